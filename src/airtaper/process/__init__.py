@@ -1,0 +1,1 @@
+"""airtaper.process"""
