@@ -1,0 +1,46 @@
+import json
+
+import numpy as np
+import pandas as pd
+
+from airtaper.report.study import CAUTION, OUTPUT_NAMES, console_summary, write_study_outputs
+
+
+def _tables(n_periods=4, zones=("Z2", "Z3")):
+    rows = []
+    for p in range(n_periods):
+        for i, z in enumerate(zones):
+            rows.append(dict(period_start_h=p * 6.0, period_end_h=(p + 1) * 6.0, zone=z,
+                             airflow_Sm3_h=1000.0 - 200 * i + 50 * p, airflow_per_diffuser_Sm3_h=2.0,
+                             do_min_mg_L=1.5, do_mean_mg_L=1.8, nh4_mean_mg_L=1.0, otr_kg_h=50.0))
+    schedule = pd.DataFrame(rows)
+    header = pd.DataFrame(dict(period=range(n_periods), pressure_kPa=55.0, airflow_Sm3_h=1800.0,
+                               power_kW=np.linspace(40, 60, n_periods)))
+    t = np.arange(0, 24, 1.5)
+    ts = pd.concat([pd.DataFrame(dict(time_h=t, zone=z, SO=1.8, SNH=1.0)) for z in (*zones, "effluent")])
+    summary = dict(status="optimal", plant="Test plant", energy_kWh_per_day=1200.0, cost_per_day=150.0,
+                   baseline=dict(energy_kWh_per_day=1500.0, cost_per_day=190.0), saving_percent=20.0,
+                   effluent=dict(nh4_mean_mg_L=1.0, nh4_max_mg_L=2.0, tn_mean_mg_L=9.0), min_do_margin_mg_L=0.0,
+                   verification=dict(verified=True), currency="EUR",
+                   marginal_costs=[dict(limit="nh4_mean_mg_L", where="effluent", kWh_per_day=-12.0,
+                                        cost_per_day=-1.5, per="+0.1 mg/L")],
+                   limits=dict(nh4_mean_mg_L=1.5, nh4_max_mg_L=3.0))
+    return schedule, header, ts, summary
+
+
+def test_all_outputs_written(tmp_path):
+    schedule, header, ts, summary = _tables()
+    paths = write_study_outputs(tmp_path, schedule=schedule, header=header, timeseries=ts, summary=summary)
+    assert sorted(p.name for p in paths) == sorted(OUTPUT_NAMES)
+    assert json.loads((tmp_path / "summary.json").read_text())["saving_percent"] == 20.0
+    assert (tmp_path / "schedule.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    page = (tmp_path / "report.html").read_text()
+    assert "Caution" in page and "licensed engineers" in page
+    assert pd.read_csv(tmp_path / "schedule.csv").shape == schedule.shape
+
+
+def test_console_summary_names_figures_and_caution():
+    *_, summary = _tables()
+    text = console_summary(summary)
+    assert "1,200.0 kWh/d" in text and "saving 20.0 %" in text
+    assert CAUTION in text
