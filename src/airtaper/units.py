@@ -12,7 +12,13 @@ Conventions pinned here (see docs/glossary.md):
 
 Values of the constants: CODATA 2018 (R), the US Standard Atmosphere 1976
 (molar mass of dry air 28.9644 g/mol, O2 volume fraction 0.20946, standard
-gravity 9.80665 m/s2), IUPAC (O2 molar mass 31.998 g/mol).
+gravity 9.80665 m/s2, and its own defining constants for the troposphere),
+IUPAC (O2 molar mass 31.998 g/mol). Ideal-gas properties of air for blower
+power: ratio of specific heats k = 1.4 and cp = 1.005 kJ/(kg K), the customary
+engineering values (common practice (no source)).
+
+All functions are plain arithmetic, so they accept floats, numpy arrays and
+Pyomo expressions alike.
 """
 
 from __future__ import annotations
@@ -29,11 +35,29 @@ M_O2_kg_mol = 0.031998  # IUPAC
 Y_O2_AIR = 0.20946  # O2 volume (mole) fraction of dry air, US Standard Atmosphere 1976
 KPA_PER_M_WATER = G_m_s2  # 1 m of conventional water column = 9.80665 kPa
 HOURS_PER_DAY = 24.0
+SECONDS_PER_HOUR = 3600.0
+G_PER_KG = 1000.0
+
+# Ideal-gas air for compression (blower) calculations.
+K_AIR = 1.4  # ratio of specific heats cp/cv, dry air near ambient
+CP_AIR_kJ_kg_K = 1.005  # isobaric specific heat of dry air near ambient
+
+# US Standard Atmosphere 1976, defining constants of the lowest layer (0-11 km).
+USSA_T0_K = 288.15  # sea-level temperature
+USSA_P0_kPa = P_STD_kPa  # sea-level pressure
+USSA_LAPSE_K_m = 0.0065  # temperature lapse rate (temperature falls with height)
+USSA_R_STAR_J_mol_K = 8.31432  # gas constant as defined by the 1976 standard (not CODATA)
+USSA_EARTH_RADIUS_m = 6356766.0  # effective earth radius for geopotential height
 
 
 def C_to_K(temperature_C):
     """Celsius to kelvin."""
     return temperature_C + KELVIN
+
+
+def K_to_C(temperature_K):
+    """Kelvin to Celsius."""
+    return temperature_K - KELVIN
 
 
 def air_density_kg_m3(pressure_kPa=P_STD_kPa, temperature_C=T_STD_C):
@@ -53,13 +77,18 @@ O2_MASS_FRACTION_AIR = Y_O2_AIR * M_O2_kg_mol / M_AIR_kg_mol
 
 # --- airflow ----------------------------------------------------------------
 def Sm3_h_to_kg_s(airflow_Sm3_h):
-    """Standard airflow (Sm3/h) to air mass flow (kg/s)."""
-    return airflow_Sm3_h * AIR_kg_per_Sm3 / 3600.0
+    """Standard airflow (Sm3/h) to dry-air mass flow (kg/s)."""
+    return airflow_Sm3_h * AIR_kg_per_Sm3 / SECONDS_PER_HOUR
 
 
 def kg_s_to_Sm3_h(mass_flow_kg_s):
-    """Air mass flow (kg/s) to standard airflow (Sm3/h)."""
-    return mass_flow_kg_s * 3600.0 / AIR_kg_per_Sm3
+    """Dry-air mass flow (kg/s) to standard airflow (Sm3/h)."""
+    return mass_flow_kg_s * SECONDS_PER_HOUR / AIR_kg_per_Sm3
+
+
+def Sm3_h_to_kg_O2_h(airflow_Sm3_h):
+    """Standard airflow (Sm3/h) to the oxygen mass flow it carries (kg O2/h)."""
+    return airflow_Sm3_h * O2_kg_per_Sm3
 
 
 def Nm3_to_Sm3(volume_Nm3):
@@ -83,6 +112,16 @@ def m_water_to_kPa(head_m):
     return head_m * KPA_PER_M_WATER
 
 
+def kPa_to_Pa(pressure_kPa):
+    """kPa to Pa."""
+    return pressure_kPa * 1e3
+
+
+def Pa_to_kPa(pressure_Pa):
+    """Pa to kPa."""
+    return pressure_Pa * 1e-3
+
+
 def kPa_to_atm(pressure_kPa):
     """kPa to standard atmospheres."""
     return pressure_kPa / P_STD_kPa
@@ -104,6 +143,16 @@ def mg_L_to_g_m3(concentration_mg_L):
     return concentration_mg_L
 
 
+def g_to_kg(mass_g):
+    """g to kg (e.g. g O2/h to kg O2/h)."""
+    return mass_g / G_PER_KG
+
+
+def kg_to_g(mass_kg):
+    """kg to g."""
+    return mass_kg * G_PER_KG
+
+
 def per_day_to_per_hour(rate_per_d):
     """A rate per day to the same rate per hour."""
     return rate_per_d / HOURS_PER_DAY
@@ -122,3 +171,23 @@ def m3_d_to_m3_h(flow_m3_d):
 def m3_h_to_m3_d(flow_m3_h):
     """m3/h to m3/d."""
     return flow_m3_h * HOURS_PER_DAY
+
+
+def kg_d_to_kg_h(mass_flow_kg_d):
+    """kg/d to kg/h."""
+    return mass_flow_kg_d / HOURS_PER_DAY
+
+
+def kg_h_to_kg_d(mass_flow_kg_h):
+    """kg/h to kg/d."""
+    return mass_flow_kg_h * HOURS_PER_DAY
+
+
+def kW_h_to_kWh(power_kW, duration_h):
+    """Energy (kWh) of a power (kW) held for a duration (h)."""
+    return power_kW * duration_h
+
+
+def kJ_s_to_kW(power_kJ_s):
+    """kJ/s to kW (identical numbers; kept so the unit change is visible)."""
+    return power_kJ_s
