@@ -1,0 +1,145 @@
+"""Every default value of the layout format, with where it comes from.
+
+One place for defaults: the parser fills in these values when a key is left out,
+and docs/layout-format.md lists the same values with the same sources. A value
+with no published source says "common practice (no source)"; a value recalled
+rather than looked up says "from memory".
+"""
+
+from __future__ import annotations
+
+# --- horizon ----------------------------------------------------------------
+#: Periods per day (hourly periods). Common practice (no source).
+N_PERIODS = 24
+#: Integration steps per period in the diurnal model. Common practice (no source).
+STEPS_PER_PERIOD = 4
+
+# --- plant ------------------------------------------------------------------
+#: Salinity of the mixed liquor, g/kg (fresh municipal wastewater). Common practice (no source).
+SALINITY_g_kg = 0.0
+
+# --- zones: field oxygen transfer -------------------------------------------
+#: alpha, process-water / clean-water kLa ratio for fine-pore diffusers; typical
+#: range 0.4-0.7 (from memory).
+ALPHA = 0.5
+#: beta, process-water / clean-water saturation ratio; typical 0.95-0.99 for
+#: municipal wastewater (from memory).
+BETA = 0.95
+#: F, diffuser fouling factor (transfer of a fouled / new diffuser); typical
+#: 0.65-0.9 (from memory).
+FOULING = 0.8
+#: de, effective-depth fraction in C*inf = C*s (1 + de Df / Pa) for fine-pore
+#: grids. Metcalf & Eddy, Wastewater Engineering, 5th ed., effective-depth form;
+#: range 0.25-0.45 (from memory). Same value as airtaper.physics.depth.
+EFFECTIVE_DEPTH_FRACTION = 0.4
+#: Mixing minimum airflow of an aerated zone per m2 of floor, Sm3/(m2 h) (from memory).
+MIXING_AIRFLOW_MIN_Sm3_h_m2 = 2.2
+#: Drop-leg loss coefficient k in dp = k Q^2, kPa/(Sm3/h)^2; 0 = drop-leg loss
+#: not modelled separately (it is then part of the minimum valve loss).
+#: Common practice (no source).
+DROP_LEG_K_kPa_per_Sm3_h2 = 0.0
+#: DO minimum applied to every aerated zone that sets none, mg/L.
+#: Common practice (no source).
+DO_MIN_mg_L = 0.5
+
+# --- diffusers --------------------------------------------------------------
+#: Practical upper bound of diffuser density (membrane area / floor area) for a
+#: full-floor grid, percent. Above it the discs no longer fit between their
+#: holders and pipes. Common practice (no source).
+DENSITY_MAX_PERCENT = 25.0
+
+# --- header and blowers -----------------------------------------------------
+#: Pressure loss kept across the most open zone valve, kPa, so that every valve
+#: keeps control authority. Common practice (no source).
+MIN_VALVE_LOSS_kPa = 0.5
+#: Wire-to-air efficiency used when a layout has no blowers at all (benchmark
+#: plants with fixed kLa). Common practice (no source).
+AGGREGATE_EFFICIENCY_NO_BLOWERS = 0.7
+#: Blower kinds the format knows.
+BLOWER_KINDS = ("centrifugal", "turbo", "positive_displacement", "screw")
+
+# --- inlet air --------------------------------------------------------------
+#: Inlet air temperature when none is given, degC (the temperature of the
+#: standard m3). Common practice (no source).
+INLET_TEMPERATURE_C = 20.0
+#: Inlet filter and silencer loss, kPa; clean filters lose about 0.5-1.5 kPa (from memory).
+INLET_FILTER_LOSS_kPa = 0.5
+
+# --- clarifier --------------------------------------------------------------
+#: Effluent TSS of the ideal separator, mg/L. Common practice (no source).
+EFFLUENT_TSS_mg_L = 10.0
+#: Layers of the layered (one-dimensional) settler. Alex et al. (2008),
+#: Benchmark Simulation Model no. 1 (BSM1), IWA, use 10.
+CLARIFIER_LAYERS = 10
+#: TSS per particulate COD, g TSS / g COD. BSM1 (Alex et al. 2008) uses 0.75.
+TSS_PER_COD = 0.75
+#: Takacs et al. (1991) double-exponential settling parameters, the BSM1 values
+#: (Alex et al. 2008).
+SETTLING_V0_MAX_m_d = 250.0
+SETTLING_V0_m_d = 474.0
+SETTLING_RH_m3_g = 0.000576
+SETTLING_RP_m3_g = 0.00286
+SETTLING_FNS = 0.00228
+SETTLING_X_THRESHOLD_g_m3 = 3000.0
+
+
+def feed_layer(layers: int) -> int:
+    """Default feed layer counted from the top: the middle layer, ``layers // 2``.
+
+    For 10 layers this is the 5th from the top, i.e. the 6th from the bottom,
+    as in BSM1 (Alex et al. 2008).
+    """
+    return max(2, layers // 2)
+
+
+# --- influent fractionation (fractions of total COD unless named otherwise) --
+# Typical raw municipal wastewater, Henze et al. (2008), Biological Wastewater
+# Treatment: Principles, Modelling and Design, IWA Publishing (values from memory).
+SI_OF_COD = 0.05  # soluble inert COD
+XI_OF_COD = 0.13  # particulate inert COD
+XBH_OF_COD = 0.07  # heterotrophic biomass
+XBA_OF_COD = 0.0  # autotrophic biomass (negligible in raw sewage)
+SND_OF_ORGANIC_N = 0.4  # soluble share of the biodegradable organic N
+SNO_mg_L = 0.0  # influent nitrate-N
+
+#: N content of biomass and of inert particulate products, g N / g COD, used only
+#: to display TKN for layouts that give ASM1 components directly (Henze et al.
+#: 1987, ASM1 typical values i_XB 0.086, i_XP 0.06; from memory).
+DISPLAY_I_XB = 0.086
+DISPLAY_I_XP = 0.06
+
+# --- kinetics and operation -------------------------------------------------
+#: ASM1 parameter set (airtaper.process.asm1) and temperature correction.
+PARAMETER_SET = "asm1_20C"
+PARAMETER_SETS = ("asm1_20C", "bsm1_15C")
+TEMPERATURE_CORRECTION = True
+#: ASM1 parameter names that [kinetics.overrides] may set (Henze et al. 1987
+#: symbols, the names airtaper.process.asm1 uses).
+KINETIC_PARAMETER_NAMES = (
+    "mu_H", "K_S", "K_OH", "K_NO", "b_H", "eta_g", "eta_h", "k_h", "K_X",
+    "mu_A", "K_NH", "b_A", "K_OA", "k_a", "Y_H", "Y_A", "f_P", "i_XB", "i_XP",
+)
+#: Uniform DO setpoint of the baseline (conventional control), mg/L.
+#: Common practice (no source).
+BASELINE_DO_SETPOINT_mg_L = 2.0
+#: Weight of the penalty on period-to-period airflow change, dimensionless
+#: (penalty = weight x sum over zones and periods of (dQ / Q_zone_max)^2, added to
+#: the objective normalised by its baseline value). Small so it only breaks ties
+#: and damps chatter; the optimisation may retune it. Common practice (no source).
+SMOOTHING_WEIGHT = 1e-3
+#: Demand-charge billing period, days. Common practice (no source).
+DEMAND_PERIOD_DAYS = 30.0
+
+# --- plausibility: values outside these ranges give a warning, not an error --
+# All common practice (no source).
+WARN_ZONE_VOLUME_m3 = (50.0, 50_000.0)
+WARN_DEPTH_m = (2.0, 12.0)
+WARN_TRAIN_HRT_h = (2.0, 72.0)
+WARN_WATER_TEMPERATURE_C = (5.0, 35.0)
+WARN_ELEVATION_m = (-100.0, 3500.0)
+WARN_MEAN_FLOW_m3_d = (10.0, 2_000_000.0)
+WARN_COD_TOTAL_mg_L = (50.0, 2000.0)
+WARN_SRT_d = (3.0, 40.0)
+WARN_RECYCLE_RATIO = 6.0
+WARN_AREA_MISMATCH = 0.15  # relative difference of area_m2 from volume_m3 / depth_m
+WARN_GRID_ABOVE_FLOOR_m = 1.0  # depth - submergence

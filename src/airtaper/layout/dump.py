@@ -1,0 +1,128 @@
+"""A Layout back to plain data in the layout file's own keys.
+
+``parse_layout(layout_to_data(layout), layout.path, base_dir)`` gives an equal
+Layout: every default is written out explicitly and per-period values are
+written as lists (a single number when they do not change). An influent read
+from a CSV is written as the same ``csv`` name, so ``base_dir`` must be the
+layout's folder. The dict holds only str, int, float, bool, list and dict, so
+it serialises to TOML or JSON as is.
+"""
+
+from __future__ import annotations
+
+from airtaper.layout.influent import MEASURED
+from airtaper.layout.types import ASM1_COMPONENTS, Layout
+
+
+def _pp(values):
+    """A per-period tuple as one number when constant, else a list."""
+    values = list(values)
+    return values[0] if len(set(values)) == 1 else values
+
+
+def _drop_none(d: dict) -> dict:
+    return {k: v for k, v in d.items() if v is not None}
+
+
+def layout_to_data(layout: Layout) -> dict:
+    """The layout as a dict that :func:`~airtaper.layout.parse_layout` reads back to an equal Layout."""
+    p = layout.plant
+    data: dict = {}
+    if layout.notes:
+        data["notes"] = layout.notes
+    data["plant"] = _drop_none({
+        "name": p.name, "elevation_m": p.elevation_m, "water_temperature_C": _pp(p.temperature_C),
+        "barometric_pressure_kPa": p.barometric_pressure_kPa, "salinity_g_kg": p.salinity_g_kg,
+    })
+    data["horizon"] = {"n_periods": layout.horizon.n_periods, "steps_per_period": layout.horizon.steps_per_period}
+    data["diffuser_types"] = [{
+        "id": d.id, "membrane_area_m2": d.membrane_area_m2, "airflow_min_Sm3_h": d.airflow_min_Sm3_h,
+        "airflow_max_Sm3_h": d.airflow_max_Sm3_h, "effective_depth_fraction": d.effective_depth_fraction,
+        "sote_points": [{
+            "airflow_per_diffuser_Sm3_h": s.airflow_per_diffuser_Sm3_h, "sote_percent": s.sote_percent,
+            "density_percent": s.density_percent, "submergence_m": s.submergence_m} for s in d.sote_points],
+        "headloss_points": [{"airflow_per_diffuser_Sm3_h": h.airflow_per_diffuser_Sm3_h,
+                             "headloss_kPa": h.headloss_kPa} for h in d.headloss_points],
+    } for d in layout.diffuser_types]
+    zones = []
+    for z in layout.zones:
+        zd = {"id": z.id, "kind": z.kind, "volume_m3": z.volume_m3, "depth_m": z.depth_m, "area_m2": z.area_m2,
+              "alpha": z.alpha, "fouling": z.fouling, "beta": z.beta,
+              "drop_leg_k_kPa_per_Sm3_h2": z.drop_leg_k_kPa_per_Sm3_h2,
+              "mixing_airflow_min_Sm3_h_m2": z.mixing_airflow_min_Sm3_h_m2}
+        if z.kind != "anoxic":
+            zd.update(_drop_none({"do_min_mg_L": z.do_min_mg_L, "do_max_mg_L": z.do_max_mg_L,
+                                  "valve_capacity_Sm3_h": z.valve_capacity_Sm3_h,
+                                  "fixed_kla_per_d": z.fixed_kla_per_d, "fixed_do_sat_mg_L": z.fixed_do_sat_mg_L}))
+            if z.grid is not None:
+                zd["grid"] = {"type": z.grid.type_id, "count": z.grid.count, "submergence_m": z.grid.submergence_m}
+        zones.append(zd)
+    data["zones"] = zones
+    flows: dict = {"step_feed": [{"zone": s.zone, "fraction": s.fraction} for s in layout.step_feed]}
+    flows["recycles"] = [
+        {"id": r.id, "from_zone": r.from_zone, "to_zone": r.to_zone,
+         **({"ratio": r.ratio} if r.ratio is not None else {"flow_m3_d": _pp(r.flow_m3_d)})}
+        for r in layout.recycles]
+    ras = layout.return_sludge
+    flows["return_sludge"] = {"to_zone": ras.to_zone,
+                              **({"ratio": ras.ratio} if ras.ratio is not None else {"flow_m3_d": _pp(ras.flow_m3_d)})}
+    w = layout.wasting
+    flows["waste"] = {"srt_d": w.srt_d} if w.srt_d is not None else {"flow_m3_d": _pp(w.flow_m3_d)}
+    data["flows"] = flows
+    c = layout.clarifier
+    if c.kind == "ideal":
+        data["clarifier"] = {"kind": "ideal", "effluent_tss_mg_L": c.effluent_tss_mg_L, "tss_per_cod": c.tss_per_cod}
+    else:
+        s = c.settling
+        data["clarifier"] = {
+            "kind": "layered", "area_m2": c.area_m2, "height_m": c.height_m, "layers": c.layers,
+            "feed_layer": c.feed_layer, "tss_per_cod": c.tss_per_cod,
+            "settling": {"v0_max_m_d": s.v0_max_m_d, "v0_m_d": s.v0_m_d, "rh_m3_g": s.rh_m3_g,
+                         "rp_m3_g": s.rp_m3_g, "fns": s.fns, "x_threshold_g_m3": s.x_threshold_g_m3}}
+    blowers = []
+    for b in layout.blowers:
+        bd = {"id": b.id, "kind": b.kind, "airflow_min_Sm3_h": b.airflow_min_Sm3_h,
+              "airflow_max_Sm3_h": b.airflow_max_Sm3_h, "pressure_max_gauge_kPa": b.pressure_max_gauge_kPa}
+        if b.efficiency is not None:
+            bd["efficiency"] = b.efficiency
+        else:
+            bd["efficiency_points"] = [{"airflow_Sm3_h": e.airflow_Sm3_h, "efficiency": e.efficiency}
+                                       for e in b.efficiency_points]
+        blowers.append(bd)
+    if blowers:
+        data["blowers"] = blowers
+    h = layout.header
+    data["header"] = {"loss_k_kPa_per_Sm3_h2": h.loss_k_kPa_per_Sm3_h2, "min_valve_loss_kPa": h.min_valve_loss_kPa,
+                      "aggregate_efficiency": h.aggregate_efficiency}
+    a = layout.inlet_air
+    data["inlet_air"] = _drop_none({"temperature_C": _pp(a.temperature_C), "pressure_kPa": a.pressure_kPa,
+                                    "filter_loss_kPa": a.filter_loss_kPa})
+    inf = layout.influent
+    f = inf.fractionation
+    influent: dict = {}
+    if inf.asm1_mg_L is not None:
+        influent["flow_m3_d"] = _pp(inf.flow_m3_d)
+        influent["asm1"] = {name: _pp(row[i] for row in inf.asm1_mg_L) for i, name in enumerate(ASM1_COMPONENTS)}
+    elif inf.source == "constant":
+        for name in MEASURED:
+            influent[name] = _pp(getattr(inf, name))
+    else:
+        influent["csv"] = inf.source
+    influent["fractionation"] = {"si_of_cod": f.si_of_cod, "xi_of_cod": f.xi_of_cod, "xbh_of_cod": f.xbh_of_cod,
+                                 "xba_of_cod": f.xba_of_cod, "snd_of_organic_n": f.snd_of_organic_n,
+                                 "sno_mg_L": f.sno_mg_L}
+    data["influent"] = influent
+    lim = layout.limits
+    data["limits"] = _drop_none({"nh4_mean_mg_L": lim.nh4_mean_mg_L, "nh4_max_mg_L": lim.nh4_max_mg_L,
+                                 "tn_mean_mg_L": lim.tn_mean_mg_L})
+    if layout.tariff is not None:
+        t = layout.tariff
+        data["tariff"] = {"currency": t.currency, "price_per_kWh": _pp(t.price_per_kWh),
+                          "demand_charge_per_kW": t.demand_charge_per_kW, "demand_period_days": t.demand_period_days}
+    k = layout.kinetics
+    data["kinetics"] = {"parameter_set": k.parameter_set, "temperature_correction": k.temperature_correction,
+                        "overrides": dict(k.overrides)}
+    o = layout.operation
+    data["operation"] = {"baseline_do_setpoint_mg_L": o.baseline_do_setpoint_mg_L, "objective": o.objective,
+                         "smoothing_weight": o.smoothing_weight}
+    return data

@@ -1,0 +1,774 @@
+"""Layout files (TOML) to the validated :class:`~airtaper.layout.types.Layout`.
+
+:func:`load_layout` reads the file and the influent CSV it names;
+:func:`parse_layout` does the same for a dict already in memory. Both collect
+every problem before raising one :class:`~airtaper.errors.InputError`, and put
+warnings (suspicious magnitudes) in the ``warnings`` list when one is given.
+docs/layout-format.md describes every key.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import tomllib
+from types import SimpleNamespace
+
+from airtaper import units
+from airtaper.errors import InputError, Problem
+from airtaper.layout import defaults as D
+from airtaper.layout import graph
+from airtaper.layout.influent import read_influent
+from airtaper.layout.reader import Collector, LayoutWarning, Table, check_number, did_you_mean, is_number, valid_id
+from airtaper.layout.types import (
+    Blower, Clarifier, DiffuserGrid, DiffuserType, EfficiencyPoint, Header, HeadlossPoint,
+    Horizon, Influent, InletAir, Kinetics, Layout, Limits, Operation, Plant, Recycle, ReturnSludge, Settling,
+    SotePoint, StepFeed, Tariff, Wasting, Zone,
+)
+
+ZONE_KINDS = ("aerated", "anoxic", "swing")
+CLARIFIER_KINDS = ("ideal", "layered")
+OBJECTIVES = ("energy", "cost")
+MAX_LAYOUT_BYTES = 5_000_000
+
+
+# --------------------------------------------------------------------------- entry points
+def load_layout(path, warnings: list | None = None) -> Layout:
+    """Read and validate a layout file (and the influent CSV it names).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The TOML file. A CSV it names is read relative to the file's folder.
+    warnings : list, optional
+        Receives one :class:`LayoutWarning` per suspicious value.
+
+    Raises
+    ------
+    InputError
+        Listing every problem found in the file and its CSV.
+    """
+    label = os.fspath(path)
+    if not isinstance(label, str):
+        label = os.fsdecode(label)
+    try:
+        size = os.path.getsize(label)
+        if size > MAX_LAYOUT_BYTES:
+            raise InputError(Problem(label, "(file)", "file too large", f"{size} bytes", f"<= {MAX_LAYOUT_BYTES}"))
+        with open(label, "rb") as fh:
+            raw = fh.read()
+    except OSError as exc:
+        raise InputError(Problem(label, "(file)", f"cannot read the layout: {exc.strerror or exc}")) from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise InputError(Problem(label, "(file)", "not UTF-8 text", f"byte {exc.start}", "a UTF-8 TOML file")) \
+            from None
+    data = parse_toml_text(text, label)
+    return parse_layout(data, label, os.path.dirname(os.path.abspath(label)), warnings=warnings)
+
+
+_TOML_AT = re.compile(r"\s*\(at line (\d+), column (\d+)\)\s*$")
+
+
+def parse_toml_text(text: str, label: str = "<memory>") -> dict:
+    """TOML text to a dict; a syntax error becomes an InputError naming line and column."""
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        msg = str(exc)
+        m = _TOML_AT.search(msg)
+        if m:
+            key, msg = f"line {m.group(1)}, column {m.group(2)}", msg[:m.start()]
+        elif msg.endswith("(at end of document)"):
+            key, msg = "end of file", msg[: -len("(at end of document)")].rstrip()
+        else:
+            key = "(toml)"
+        raise InputError(Problem(label, key, f"TOML syntax: {msg}")) from None
+
+
+def parse_layout(data: dict, path: str = "<memory>", base_dir=None, warnings: list | None = None) -> Layout:
+    """Validate a layout given as a dict (as tomllib returns it).
+
+    ``path`` labels the messages; ``base_dir`` is the folder an influent CSV is
+    read from (None: a CSV influent is an error). See :func:`load_layout`.
+    """
+    col = Collector(str(path))
+    base = None if base_dir is None else os.fspath(base_dir)
+    layout = None
+    if not isinstance(data, dict):
+        col.error("(file)", "must be a TOML table", type(data).__name__, "a table of sections")
+    else:
+        layout = _Parser(col, data, base).run()
+    if warnings is not None:
+        warnings.extend(col.warnings)
+    if col.problems:
+        raise InputError(col.problems)
+    assert layout is not None
+    return layout
+
+
+# --------------------------------------------------------------------------- the parser
+class _Parser:
+    def __init__(self, col: Collector, data: dict, base_dir: str | None):
+        self.col = col
+        self.root = Table(col, data, "")
+        self.base_dir = base_dir
+
+    # -- helpers ---------------------------------------------------------------
+    def section(self, t: Table | None, fn, *args):
+        """Run ``fn(t, ...)``; return its value, or None when it recorded a problem."""
+        before = self.col.count
+        value = fn(t, *args)
+        if t is not None:
+            t.finish()
+        return None if self.col.count > before else value
+
+    def _items_of(self, arr, name: str, id_default=None, reserved=()):
+        out = []
+        if arr is None:
+            return out
+        seen: set[str] = set()
+        for i, d in enumerate(arr, start=1):
+            raw_id = d.get("id", id_default(i) if id_default else None)
+            ident = None
+            if raw_id is None:
+                self.col.error(f"{name}[{i}].id", "missing required key", None, "an identifier")
+            else:
+                ident = valid_id(self.col, f"{name}[{i}].id", raw_id, reserved)
+                if ident is not None and ident in seen:
+                    self.col.error(f"{name}[{i}].id", "duplicate id", ident, "ids unique within " + name)
+                    ident = None
+            if ident is not None:
+                seen.add(ident)
+            key = f"{name}.{ident}" if ident is not None else f"{name}[{i}]"
+            t = Table(self.col, d, key)
+            t.allow("id")
+            out.append((t, ident))
+        return out
+
+    # -- the whole file --------------------------------------------------------
+    def run(self) -> Layout | None:
+        root, col = self.root, self.col
+        notes = root.string("notes", "")
+        horizon = self.section(root.table("horizon"), self.horizon)
+        n = horizon.n_periods if horizon is not None else D.N_PERIODS
+        self.n = n
+        plant = self.section(root.table("plant", required=True), self.plant)
+        types = self.diffuser_types()
+        limits_t = root.table("limits")
+        limits = self.section(limits_t, self.limits)
+        self.do_min_default = D.DO_MIN_mg_L
+        if limits_t is not None and is_number(limits_t.data.get("do_min_mg_L")):
+            self.do_min_default = float(limits_t.data["do_min_mg_L"])
+        zone_defaults = self.section(root.table("zone_defaults"), self.zone_defaults) or self._zone_default_values()
+        zones, zone_ids = self.zones(zone_defaults, types)
+        clarifier = self.section(root.table("clarifier"), self.clarifier)
+        tss_per_cod = clarifier.tss_per_cod if clarifier is not None else D.TSS_PER_COD
+        influent_t = root.table("influent", required=True)
+        influent = read_influent(influent_t, n, self.base_dir, tss_per_cod) if influent_t is not None else None
+        flows = self.flows(zone_ids, influent)
+        blowers = self.blowers()
+        header = self.section(root.table("header"), self.header, blowers)
+        inlet = self.section(root.table("inlet_air"), self.inlet_air)
+        tariff = self.section(root.table("tariff"), self.tariff)
+        kinetics = self.section(root.table("kinetics"), self.kinetics)
+        operation = self.section(root.table("operation"), self.operation, "tariff" in root.data)
+        root.finish()
+
+        valid_zones = [z for z in zones if z is not None]
+        self.cross_checks(plant, valid_zones, len(zones), types, blowers, header, influent, flows, limits)
+        if col.problems:
+            return None
+        step_feed, recycles, ras, wasting = flows
+        return Layout(
+            path=col.file, plant=plant, zones=tuple(zones), diffuser_types=tuple(types.values()),
+            step_feed=tuple(step_feed), recycles=tuple(recycles), return_sludge=ras, wasting=wasting,
+            clarifier=clarifier, blowers=tuple(blowers), header=header, inlet_air=inlet, influent=influent,
+            limits=limits, tariff=tariff, horizon=horizon, kinetics=kinetics, operation=operation, notes=notes,
+        )
+
+    # -- sections ----------------------------------------------------------------
+    def horizon(self, t: Table | None) -> Horizon:
+        if t is None:
+            return Horizon(D.N_PERIODS, 24.0 / D.N_PERIODS, D.STEPS_PER_PERIOD)
+        n = t.integer("n_periods", D.N_PERIODS, ge=1, le=288)
+        steps = t.integer("steps_per_period", D.STEPS_PER_PERIOD, ge=1, le=60)
+        return Horizon(n, 24.0 / n, steps) if n is not None else None
+
+    def plant(self, t: Table | None) -> Plant | None:
+        if t is None:
+            return None  # the missing section is already reported
+        name = t.string("name")
+        if isinstance(name, str) and not name.strip():
+            self.col.error(t.key("name"), "must not be empty", name, "the plant's name")
+        elevation = t.number("elevation_m", ge=-500.0, le=6000.0)
+        temp = t.per_period("water_temperature_C", self.n, ge=0.0, le=45.0)
+        baro = t.number("barometric_pressure_kPa", None, ge=50.0, le=110.0)
+        salinity = t.number("salinity_g_kg", D.SALINITY_g_kg, ge=0.0, le=45.0)
+        if elevation is not None and not (D.WARN_ELEVATION_m[0] <= elevation <= D.WARN_ELEVATION_m[1]):
+            self.col.warn(t.key("elevation_m"), f"unusual elevation {elevation:g} m")
+        if temp is not None:
+            lo, hi = D.WARN_WATER_TEMPERATURE_C
+            odd = [x for x in temp if not lo <= x <= hi]
+            if odd:
+                self.col.warn(t.key("water_temperature_C"),
+                              f"water temperature {odd[0]:g} C is outside the usual {lo:g}-{hi:g} C")
+        return Plant(name, elevation, temp, baro, salinity)
+
+    def diffuser_types(self) -> dict[str, DiffuserType]:
+        out: dict[str, DiffuserType] = {}
+        self.declared_types: set[str] = set()
+        for t, ident in self._items_of(self.root.array("diffuser_types"), "diffuser_types"):
+            if ident is not None:
+                self.declared_types.add(ident)
+            dt = self.section(t, self.diffuser_type, ident)
+            if dt is not None and ident is not None:
+                out[ident] = dt
+        return out
+
+    def diffuser_type(self, t: Table, ident) -> DiffuserType:
+        col = self.col
+        area = t.number("membrane_area_m2", gt=0.0, le=5.0)
+        qmin = t.number("airflow_min_Sm3_h", ge=0.0)
+        qmax = t.number("airflow_max_Sm3_h", gt=0.0)
+        de = t.number("effective_depth_fraction", D.EFFECTIVE_DEPTH_FRACTION, gt=0.0, lt=1.0)
+        if qmin is not None and qmax is not None and qmax <= qmin:
+            col.error(t.key("airflow_max_Sm3_h"), "must exceed airflow_min_Sm3_h", qmax, f"> {qmin:g}")
+        sote = self._points(t, "sote_points", {
+            "airflow_per_diffuser_Sm3_h": {"gt": 0.0}, "sote_percent": {"gt": 0.0, "lt": 100.0},
+            "density_percent": {"gt": 0.0, "le": 100.0}, "submergence_m": {"gt": 0.0, "le": 50.0}}, SotePoint)
+        head = self._points(t, "headloss_points", {
+            "airflow_per_diffuser_Sm3_h": {"ge": 0.0}, "headloss_kPa": {"gt": 0.0, "le": 100.0}}, HeadlossPoint)
+        if sote is not None:
+            self._check_sote(t, sote)
+        if head is not None:
+            for i in range(1, len(head)):
+                k = f"{t.key('headloss_points')}[{i + 1}]"
+                if head[i].airflow_per_diffuser_Sm3_h <= head[i - 1].airflow_per_diffuser_Sm3_h:
+                    col.error(f"{k}.airflow_per_diffuser_Sm3_h", "airflow must increase from point to point",
+                              head[i].airflow_per_diffuser_Sm3_h, f"> {head[i - 1].airflow_per_diffuser_Sm3_h:g}")
+                elif head[i].headloss_kPa < head[i - 1].headloss_kPa:
+                    col.error(f"{k}.headloss_kPa", "headloss must not fall as airflow rises",
+                              head[i].headloss_kPa, f">= {head[i - 1].headloss_kPa:g}")
+        if sote is not None and qmin is not None and qmax is not None and qmax > qmin:
+            tested = [p.airflow_per_diffuser_Sm3_h for p in sote]
+            if qmin < min(tested) or qmax > max(tested):
+                col.warn(t.key("sote_points"), f"test points cover {min(tested):g}-{max(tested):g} Sm3/h per "
+                                               f"diffuser but the range is {qmin:g}-{qmax:g}: SOTE is extrapolated")
+        return DiffuserType(ident, area, qmin, qmax, sote, head, de)
+
+    def _points(self, t: Table, name: str, spec: dict, cls, min_points: int = 2):
+        arr = t.array(name, required=True)
+        if arr is None:
+            return None
+        if len(arr) < min_points:
+            self.col.error(t.key(name), "too few points", len(arr), f"at least {min_points}")
+            return None
+        out = []
+        before = self.col.count
+        for i, d in enumerate(arr, start=1):
+            pt = Table(self.col, d, f"{t.key(name)}[{i}]")
+            vals = {k: pt.number(k, **b) for k, b in spec.items()}
+            pt.finish()
+            out.append(vals)
+        if self.col.count > before:
+            return None
+        return tuple(cls(**v) for v in out)
+
+    def _check_sote(self, t: Table, pts: tuple[SotePoint, ...]) -> None:
+        groups: dict[tuple[float, float], list[tuple[int, SotePoint]]] = {}
+        for i, p in enumerate(pts, start=1):
+            groups.setdefault((p.density_percent, p.submergence_m), []).append((i, p))
+        for members in groups.values():
+            for (_, a), (j, b) in zip(members, members[1:]):
+                k = f"{t.key('sote_points')}[{j}]"
+                if b.airflow_per_diffuser_Sm3_h <= a.airflow_per_diffuser_Sm3_h:
+                    self.col.error(f"{k}.airflow_per_diffuser_Sm3_h",
+                                   "airflow must increase from point to point at the same density and submergence",
+                                   b.airflow_per_diffuser_Sm3_h, f"> {a.airflow_per_diffuser_Sm3_h:g}")
+                elif b.sote_percent > a.sote_percent:
+                    self.col.error(f"{k}.sote_percent", "SOTE must not rise with airflow (same density and "
+                                   "submergence)", b.sote_percent, f"<= {a.sote_percent:g}")
+        if len({p.airflow_per_diffuser_Sm3_h for p in pts}) < 2:
+            self.col.error(t.key("sote_points"), "test points need at least two airflows", None,
+                           "points at two or more airflows per diffuser")
+
+    def limits(self, t: Table | None) -> Limits:
+        if t is None:
+            self.col.warn("limits", "no effluent NH4-N limit: an optimisation is bounded only by the DO minimum")
+            return Limits(None, None, None)
+        mean = t.number("nh4_mean_mg_L", None, gt=0.0)
+        peak = t.number("nh4_max_mg_L", None, gt=0.0)
+        tn = t.number("tn_mean_mg_L", None, gt=0.0)
+        t.number("do_min_mg_L", D.DO_MIN_mg_L, ge=0.0, le=20.0)
+        if mean is not None and peak is not None and peak < mean:
+            self.col.error(t.key("nh4_max_mg_L"), "the maximum period mean must not be below the daily mean",
+                           peak, f">= nh4_mean_mg_L = {mean:g}")
+        if mean is None and peak is None and "nh4_mean_mg_L" not in t.data and "nh4_max_mg_L" not in t.data:
+            self.col.warn("limits", "no effluent NH4-N limit: an optimisation is bounded only by the DO minimum")
+        return Limits(mean, peak, tn)
+
+    def _zone_default_values(self) -> dict:
+        return {"alpha": D.ALPHA, "beta": D.BETA, "fouling": D.FOULING,
+                "mixing_airflow_min_Sm3_h_m2": D.MIXING_AIRFLOW_MIN_Sm3_h_m2,
+                "drop_leg_k_kPa_per_Sm3_h2": D.DROP_LEG_K_kPa_per_Sm3_h2}
+
+    def zone_defaults(self, t: Table | None) -> dict:
+        base = self._zone_default_values()
+        if t is None:
+            return base
+        out = {}
+        for k, v in base.items():
+            out[k] = t.number(k, v, **_ZONE_NUMBER_BOUNDS[k])
+        return out
+
+    def zones(self, zd: dict, types: dict) -> tuple[list, list[str]]:
+        arr = self.root.array("zones", required=True)
+        if arr is not None and not arr:
+            self.col.error("zones", "no zones", None, "at least one [[zones]] table")
+        items = self._items_of(arr, "zones", reserved=graph.RESERVED_NODES)
+        zones, ids = [], []
+        for t, ident in items:
+            zones.append(self.section(t, self.zone, ident, zd, types))
+            if ident is not None:
+                ids.append(ident)
+        if len(ids) != len(items):
+            ids = []  # ids unknown: skip the train checks rather than misreport them
+        return zones, ids
+
+    def zone(self, t: Table, ident, zd: dict, types: dict) -> Zone:
+        col = self.col
+        kind = t.string("kind", choices=ZONE_KINDS)
+        volume = t.number("volume_m3", gt=0.0)
+        depth = t.number("depth_m", gt=0.0)
+        area = t.number("area_m2", None, gt=0.0)
+        do_min = t.number("do_min_mg_L", None, ge=0.0, le=20.0)
+        do_max = t.number("do_max_mg_L", None, gt=0.0, le=20.0)
+        vals = {k: t.number(k, zd[k], **_ZONE_NUMBER_BOUNDS[k]) for k in zd}
+        valve = t.number("valve_capacity_Sm3_h", None, gt=0.0)
+        kla = t.number("fixed_kla_per_d", None, gt=0.0, le=5000.0)
+        do_sat = t.number("fixed_do_sat_mg_L", None, gt=0.0, le=60.0)
+        grid_t = t.table("grid")
+        grid = self.section(grid_t, self.grid, depth, types) if grid_t is not None else None
+        if kind == "anoxic":
+            for k in ("do_min_mg_L", "do_max_mg_L", "grid", "fixed_kla_per_d", "fixed_do_sat_mg_L",
+                      "valve_capacity_Sm3_h"):
+                if k in t.data:
+                    col.error(t.key(k), "an anoxic zone takes no air", None,
+                              'no such key, or kind = "swing" for a zone that can be aerated')
+        elif kind in ("aerated", "swing"):
+            if kind == "aerated" and do_min is None and "do_min_mg_L" not in t.data:
+                do_min = self.do_min_default
+            has_grid = "grid" in t.data
+            if not has_grid and kla is None and "fixed_kla_per_d" not in t.data:
+                if kind == "aerated":
+                    col.error(t.key("grid"), "aerated zone has no diffusers", None,
+                              "a [zones.grid] table (or fixed_kla_per_d)")
+                else:
+                    col.warn(t.key("grid"), "swing zone has no diffusers and can never be aerated")
+            if has_grid and "fixed_kla_per_d" in t.data:
+                col.error(t.key("fixed_kla_per_d"), "a zone has either a diffuser grid or a fixed kLa", None,
+                          "grid or fixed_kla_per_d, not both")
+        if "fixed_do_sat_mg_L" in t.data and "fixed_kla_per_d" not in t.data:
+            col.error(t.key("fixed_do_sat_mg_L"), "only with fixed_kla_per_d", None, "fixed_kla_per_d as well")
+        if do_min is not None and do_max is not None and do_max <= do_min:
+            col.error(t.key("do_max_mg_L"), "must exceed the DO minimum", do_max, f"> {do_min:g}")
+        if volume is not None and depth is not None:
+            derived = volume / depth
+            if area is None:
+                area = derived
+            elif abs(area - derived) > D.WARN_AREA_MISMATCH * derived:
+                col.warn(t.key("area_m2"), f"floor area {area:g} m2 differs from volume_m3 / depth_m = "
+                                           f"{derived:.1f} m2 by more than {100 * D.WARN_AREA_MISMATCH:g} %")
+        if kind == "anoxic":
+            do_min = do_max = None
+        return Zone(ident, kind, volume, depth, area, do_min, do_max, vals["alpha"], vals["fouling"], vals["beta"],
+                    grid, valve, vals["drop_leg_k_kPa_per_Sm3_h2"], vals["mixing_airflow_min_Sm3_h_m2"], kla, do_sat)
+
+    def grid(self, t: Table, depth, types: dict) -> DiffuserGrid:
+        type_id = t.string("type")
+        count = t.integer("count", ge=1, le=10_000_000)
+        sub = t.number("submergence_m", gt=0.0)
+        if isinstance(type_id, str) and type_id not in self.declared_types:
+            hint = did_you_mean(type_id, sorted(self.declared_types))
+            problem = f"no such diffuser type, did you mean {hint!r}?" if hint else "no such diffuser type"
+            self.col.error(t.key("type"), problem, type_id,
+                           ("one of " + ", ".join(sorted(self.declared_types))) if self.declared_types
+                           else "an id from [[diffuser_types]]")
+        if sub is not None and depth is not None and sub >= depth:
+            self.col.error(t.key("submergence_m"), "diffusers must be below the water surface and above the floor",
+                           sub, f"< depth_m = {depth:g}")
+        elif sub is not None and depth is not None and depth - sub > D.WARN_GRID_ABOVE_FLOOR_m:
+            self.col.warn(t.key("submergence_m"), f"grid sits {depth - sub:.2f} m above the floor")
+        return DiffuserGrid(type_id, count, sub)
+
+    def clarifier(self, t: Table | None) -> Clarifier:
+        if t is None:
+            return Clarifier("ideal", D.EFFLUENT_TSS_mg_L, None, None, D.CLARIFIER_LAYERS,
+                             D.feed_layer(D.CLARIFIER_LAYERS), None, D.TSS_PER_COD)
+        kind = t.string("kind", "ideal", choices=CLARIFIER_KINDS)
+        tss_per_cod = t.number("tss_per_cod", D.TSS_PER_COD, gt=0.0, le=2.0)
+        layered_keys = ("area_m2", "height_m", "layers", "feed_layer", "settling")
+        if kind == "layered":
+            t.allow("effluent_tss_mg_L")
+            if "effluent_tss_mg_L" in t.data:
+                self.col.error(t.key("effluent_tss_mg_L"), 'applies only to kind = "ideal"', None,
+                               "no such key (the layered settler computes its effluent)")
+            area = t.number("area_m2", gt=0.0)
+            height = t.number("height_m", gt=0.0, le=20.0)
+            layers = t.integer("layers", D.CLARIFIER_LAYERS, ge=3, le=100)
+            feed = t.integer("feed_layer", D.feed_layer(layers) if layers else None, ge=2)
+            if feed is not None and layers is not None and feed >= layers:
+                self.col.error(t.key("feed_layer"), "feed must be above the bottom layer", feed, f"< layers = {layers}")
+            settling = self.section(t.table("settling"), self.settling)
+            return Clarifier("layered", 0.0, area, height, layers, feed, settling, tss_per_cod)
+        t.allow(*layered_keys)
+        for k in layered_keys:
+            if k in t.data:
+                self.col.error(t.key(k), 'applies only to kind = "layered"', None, "no such key for an ideal clarifier")
+        tss = t.number("effluent_tss_mg_L", D.EFFLUENT_TSS_mg_L, ge=0.0, le=1000.0)
+        return Clarifier("ideal", tss, None, None, D.CLARIFIER_LAYERS, D.feed_layer(D.CLARIFIER_LAYERS), None,
+                         tss_per_cod)
+
+    def settling(self, t: Table | None) -> Settling:
+        if t is None:
+            return Settling(D.SETTLING_V0_MAX_m_d, D.SETTLING_V0_m_d, D.SETTLING_RH_m3_g, D.SETTLING_RP_m3_g,
+                            D.SETTLING_FNS, D.SETTLING_X_THRESHOLD_g_m3)
+        return Settling(
+            t.number("v0_max_m_d", D.SETTLING_V0_MAX_m_d, gt=0.0),
+            t.number("v0_m_d", D.SETTLING_V0_m_d, gt=0.0),
+            t.number("rh_m3_g", D.SETTLING_RH_m3_g, gt=0.0),
+            t.number("rp_m3_g", D.SETTLING_RP_m3_g, gt=0.0),
+            t.number("fns", D.SETTLING_FNS, ge=0.0, lt=1.0),
+            t.number("x_threshold_g_m3", D.SETTLING_X_THRESHOLD_g_m3, ge=0.0),
+        )
+
+    # -- flows -------------------------------------------------------------------
+    def flows(self, zone_ids: list[str], influent: Influent | None):
+        col, n = self.col, self.n
+        before = col.count
+        t = self.root.table("flows", required=True)
+        known = influent is not None
+        self.flows_known = known
+        q = influent.flow_m3_d if known else tuple(1.0 for _ in range(n))
+        first = zone_ids[0] if zone_ids else None
+        step_feed: list[StepFeed] = []
+        recycles: list[Recycle] = []
+        ras = wasting = None
+        if t is not None:
+            arr = t.array("step_feed")
+            if arr is None and "step_feed" not in t.data:
+                if first is not None:
+                    step_feed = [StepFeed(first, 1.0)]
+            elif arr is not None:
+                if not arr:
+                    col.error(t.key("step_feed"), "empty", None, "at least one [[flows.step_feed]] table")
+                for i, d in enumerate(arr, start=1):
+                    st = Table(col, d, f"{t.key('step_feed')}[{i}]")
+                    zone = st.string("zone")
+                    frac = st.number("fraction", ge=0.0, le=1.0)
+                    st.finish()
+                    if zone is not None and frac is not None:
+                        step_feed.append(StepFeed(zone, frac))
+            rec_arr = t.array("recycles")
+            for rt, ident in self._items_of(rec_arr, "flows.recycles", id_default=lambda i: f"IR{i}"):
+                r = self.section(rt, self.recycle, ident, q)
+                if r is not None:
+                    recycles.append(r)
+            ras = self.section(t.table("return_sludge", required=True), self.return_sludge, first, q)
+            wasting = self.section(t.table("waste", required=True), self.waste, q)
+            t.finish()
+        if col.count == before and zone_ids:
+            graph.check_train(col, zone_ids, step_feed, recycles, ras, wasting, q, known)
+        return step_feed, recycles, ras, wasting
+
+    def _flow_or_ratio(self, t: Table, q, ratio_bounds: dict, flow_bounds: dict, what: str):
+        has_ratio, has_flow = t.has("ratio"), t.has("flow_m3_d")
+        if has_ratio == has_flow:
+            self.col.error(t.path, f"give either ratio or flow_m3_d for the {what}",
+                           "both" if has_ratio else "neither", "exactly one of ratio, flow_m3_d")
+            return None, None
+        if has_ratio:
+            ratio = t.number("ratio", **ratio_bounds)
+            if ratio is None:
+                return None, None
+            if ratio > D.WARN_RECYCLE_RATIO:
+                self.col.warn(t.key("ratio"), f"{what} ratio {ratio:g} of the influent flow is unusually high")
+            return tuple(ratio * x for x in q), ratio
+        return t.per_period("flow_m3_d", self.n, **flow_bounds), None
+
+    def recycle(self, t: Table, ident, q) -> Recycle:
+        frm = t.string("from_zone")
+        to = t.string("to_zone")
+        flow, ratio = self._flow_or_ratio(t, q, {"ge": 0.0}, {"ge": 0.0}, "recycle")
+        return Recycle(ident, frm, to, flow, ratio)
+
+    def return_sludge(self, t: Table, first, q) -> ReturnSludge:
+        to = t.string("to_zone", first)
+        flow, ratio = self._flow_or_ratio(t, q, {"gt": 0.0, "le": 10.0}, {"gt": 0.0}, "return sludge")
+        return ReturnSludge(to, flow, ratio)
+
+    def waste(self, t: Table, q) -> Wasting:
+        has_srt, has_flow = t.has("srt_d"), t.has("flow_m3_d")
+        if has_srt == has_flow:
+            self.col.error(t.path, "give either srt_d or flow_m3_d for the waste sludge",
+                           "both" if has_srt else "neither", "exactly one of srt_d, flow_m3_d")
+            return Wasting(None, None)
+        if has_srt:
+            srt = t.number("srt_d", gt=0.0, le=1000.0)
+            if srt is not None and not D.WARN_SRT_d[0] <= srt <= D.WARN_SRT_d[1]:
+                self.col.warn(t.key("srt_d"), f"unusual target SRT {srt:g} d")
+            return Wasting(None, srt)
+        flow = t.per_period("flow_m3_d", self.n, gt=0.0)
+        if flow is not None:
+            bad = [p for p in range(self.n) if flow[p] >= q[p]]
+            if bad and self.flows_known:
+                self.col.error(t.key("flow_m3_d"), f"waste flow not below the influent flow (period {bad[0] + 1})",
+                               flow[bad[0]], f"< {q[bad[0]]:g} m3/d")
+        return Wasting(flow, None)
+
+    # -- air ---------------------------------------------------------------------
+    def blowers(self) -> list[Blower]:
+        out = []
+        for t, ident in self._items_of(self.root.array("blowers"), "blowers"):
+            b = self.section(t, self.blower, ident)
+            if b is not None:
+                out.append(b)
+        return out
+
+    def blower(self, t: Table, ident) -> Blower:
+        col = self.col
+        kind = t.string("kind", choices=D.BLOWER_KINDS)
+        qmin = t.number("airflow_min_Sm3_h", ge=0.0)
+        qmax = t.number("airflow_max_Sm3_h", gt=0.0)
+        pmax = t.number("pressure_max_gauge_kPa", gt=0.0, le=300.0)
+        if qmin is not None and qmax is not None and qmax <= qmin:
+            col.error(t.key("airflow_max_Sm3_h"), "must exceed airflow_min_Sm3_h", qmax, f"> {qmin:g}")
+        has_eff, has_pts = t.has("efficiency"), t.has("efficiency_points")
+        eff, pts = None, ()
+        if has_eff == has_pts:
+            col.error(t.path, "give either efficiency or efficiency_points", "both" if has_eff else "neither",
+                      "exactly one of efficiency, efficiency_points")
+        elif has_eff:
+            eff = t.number("efficiency", gt=0.0, le=1.0)
+        else:
+            p = self._points(t, "efficiency_points", {"airflow_Sm3_h": {"ge": 0.0},
+                                                      "efficiency": {"gt": 0.0, "le": 1.0}}, EfficiencyPoint)
+            if p is not None:
+                pts = p
+                for i in range(1, len(p)):
+                    if p[i].airflow_Sm3_h <= p[i - 1].airflow_Sm3_h:
+                        col.error(f"{t.key('efficiency_points')}[{i + 1}].airflow_Sm3_h",
+                                  "airflow must increase from point to point", p[i].airflow_Sm3_h,
+                                  f"> {p[i - 1].airflow_Sm3_h:g}")
+                if qmin is not None and qmax is not None and (qmin < p[0].airflow_Sm3_h or qmax > p[-1].airflow_Sm3_h):
+                    col.warn(t.key("efficiency_points"), f"points cover {p[0].airflow_Sm3_h:g}-"
+                                                         f"{p[-1].airflow_Sm3_h:g} Sm3/h, the blower runs "
+                                                         f"{qmin:g}-{qmax:g}: efficiency is extrapolated")
+        return Blower(ident, kind, qmin, qmax, pmax, eff, pts)
+
+    def header(self, t: Table | None, blowers: list[Blower]) -> Header:
+        if blowers:
+            weight = sum(b.airflow_max_Sm3_h for b in blowers)
+            default_eff = sum(b.airflow_max_Sm3_h * _blower_mean_efficiency(b) for b in blowers) / weight
+        else:
+            default_eff = D.AGGREGATE_EFFICIENCY_NO_BLOWERS
+        if t is None:
+            if "blowers" in self.root.data:
+                self.col.error("header", "missing required section", None,
+                               "a [header] table with loss_k_kPa_per_Sm3_h2 when there are blowers")
+                return None
+            return Header(0.0, D.MIN_VALVE_LOSS_kPa, default_eff)
+        k = t.number("loss_k_kPa_per_Sm3_h2", ge=0.0)
+        vmin = t.number("min_valve_loss_kPa", D.MIN_VALVE_LOSS_kPa, ge=0.0, le=50.0)
+        eff = t.number("aggregate_efficiency", default_eff, gt=0.0, le=1.0)
+        return Header(k, vmin, eff)
+
+    def inlet_air(self, t: Table | None) -> InletAir:
+        if t is None:
+            return InletAir(tuple(D.INLET_TEMPERATURE_C for _ in range(self.n)), None, D.INLET_FILTER_LOSS_kPa)
+        temp = t.per_period("temperature_C", self.n, D.INLET_TEMPERATURE_C, ge=-50.0, le=60.0)
+        p = t.number("pressure_kPa", None, ge=50.0, le=110.0)
+        loss = t.number("filter_loss_kPa", D.INLET_FILTER_LOSS_kPa, ge=0.0, le=20.0)
+        return InletAir(temp, p, loss)
+
+    # -- money, kinetics, operation ----------------------------------------------
+    def tariff(self, t: Table | None) -> Tariff | None:
+        if t is None:
+            return None
+        currency = t.string("currency")
+        if isinstance(currency, str) and not currency.strip():
+            self.col.error(t.key("currency"), "must not be empty", currency, 'a currency code such as "EUR"')
+        prices = self._prices(t)
+        demand = t.number("demand_charge_per_kW", 0.0, ge=0.0)
+        days = t.number("demand_period_days", D.DEMAND_PERIOD_DAYS, gt=0.0, le=366.0)
+        return Tariff(currency, prices, demand, days)
+
+    def _prices(self, t: Table):
+        key = t.key("price_per_kWh")
+        if not t.has("price_per_kWh"):
+            self.col.error(key, "missing required key", None,
+                           f"a number, {self.n} numbers (one per period), or [start_h, price] bands")
+            return None
+        value = t.data["price_per_kWh"]
+        if isinstance(value, list) and value and all(isinstance(v, list) for v in value):
+            return self._bands(key, value)
+        return t.per_period("price_per_kWh", self.n, ge=0.0)
+
+    def _bands(self, key: str, bands: list) -> tuple[float, ...] | None:
+        col = self.col
+        before = col.count
+        starts, prices = [], []
+        for i, b in enumerate(bands, start=1):
+            k = f"{key}[{i}]"
+            if len(b) != 2:
+                col.error(k, "a band is [start_h, price]", f"{len(b)} values", "2 values")
+                continue
+            s = check_number(col, f"{k}[1]", b[0], ge=0.0, lt=24.0)
+            p = check_number(col, f"{k}[2]", b[1], ge=0.0)
+            if s is not None and p is not None:
+                starts.append((i, s))
+                prices.append(p)
+        if col.count > before:
+            return None
+        if starts[0][1] != 0.0:
+            col.error(f"{key}[1][1]", "the first band must start at 0 h", starts[0][1], "0")
+        for (_, a), (j, b) in zip(starts, starts[1:]):
+            if b <= a:
+                col.error(f"{key}[{j}][1]", "band starts must increase", b, f"> {a:g}")
+        if col.count > before:
+            return None
+        times = [s for _, s in starts]
+        ends = times[1:] + [24.0]
+        h = 24.0 / self.n
+        out = []
+        for p in range(self.n):
+            a, b = p * h, (p + 1) * h
+            total = sum(max(0.0, min(b, t1) - max(a, t0)) * price for t0, t1, price in zip(times, ends, prices))
+            out.append(total / h)
+        return tuple(out)
+
+    def kinetics(self, t: Table | None) -> Kinetics:
+        if t is None:
+            return Kinetics(D.PARAMETER_SET, (), D.TEMPERATURE_CORRECTION)
+        pset = t.string("parameter_set", D.PARAMETER_SET, choices=D.PARAMETER_SETS)
+        corr = t.boolean("temperature_correction", D.TEMPERATURE_CORRECTION)
+        ov = t.table("overrides")
+        pairs = []
+        if ov is not None:
+            for name in ov.data:
+                if name in D.KINETIC_PARAMETER_NAMES:
+                    v = ov.number(name, gt=0.0) if name not in ("b_A", "b_H", "f_P", "i_XP") else ov.number(name, ge=0.0)
+                    if v is not None:
+                        pairs.append((name, v))
+            ov.allow(*D.KINETIC_PARAMETER_NAMES)
+            ov.finish()
+        pairs.sort(key=lambda kv: D.KINETIC_PARAMETER_NAMES.index(kv[0]))
+        return Kinetics(pset, tuple(pairs), corr)
+
+    def operation(self, t: Table | None, has_tariff: bool) -> Operation:
+        default_obj = "cost" if has_tariff else "energy"
+        if t is None:
+            return Operation(D.BASELINE_DO_SETPOINT_mg_L, default_obj, D.SMOOTHING_WEIGHT)
+        sp = t.number("baseline_do_setpoint_mg_L", D.BASELINE_DO_SETPOINT_mg_L, gt=0.0, le=20.0)
+        obj = t.string("objective", default_obj, choices=OBJECTIVES)
+        if obj == "cost" and not has_tariff:
+            self.col.error(t.key("objective"), "a cost objective needs a [tariff]", obj, '"energy", or add [tariff]')
+        w = t.number("smoothing_weight", D.SMOOTHING_WEIGHT, ge=0.0)
+        return Operation(sp, obj, w)
+
+    # -- checks across sections --------------------------------------------------
+    def cross_checks(self, plant, zones: list[Zone], n_zones: int, types: dict, blowers, header, influent, flows,
+                     limits) -> None:
+        col = self.col
+        used_types = set()
+        for z in zones:
+            key = f"zones.{z.id}"
+            if z.volume_m3 < D.WARN_ZONE_VOLUME_m3[0]:
+                col.warn(f"{key}.volume_m3", f"very small zone ({z.volume_m3:g} m3)")
+            elif z.volume_m3 > D.WARN_ZONE_VOLUME_m3[1]:
+                col.warn(f"{key}.volume_m3", f"very large zone ({z.volume_m3:g} m3): was it typed in litres?")
+            if not D.WARN_DEPTH_m[0] <= z.depth_m <= D.WARN_DEPTH_m[1]:
+                col.warn(f"{key}.depth_m", f"unusual side-water depth {z.depth_m:g} m")
+            if z.grid is None or z.grid.type_id not in types:
+                continue
+            used_types.add(z.grid.type_id)
+            dt = types[z.grid.type_id]
+            density = 100.0 * z.grid.count * dt.membrane_area_m2 / z.area_m2
+            if density > D.DENSITY_MAX_PERCENT:
+                fits = int(D.DENSITY_MAX_PERCENT / 100.0 * z.area_m2 / dt.membrane_area_m2)
+                col.error(f"{key}.grid.count", f"diffusers cover {density:.1f} % of the floor, more than fits",
+                          z.grid.count, f"<= {fits} ({D.DENSITY_MAX_PERCENT:g} % of {z.area_m2:.1f} m2)")
+                continue
+            dens = [p.density_percent for p in dt.sote_points]
+            if not min(dens) <= density <= max(dens):
+                col.warn(f"{key}.grid.count", f"diffuser density {density:.1f} % is outside the tested "
+                                              f"{min(dens):g}-{max(dens):g} %: SOTE is extrapolated")
+            subs = [p.submergence_m for p in dt.sote_points]
+            if not min(subs) <= z.grid.submergence_m <= max(subs):
+                col.warn(f"{key}.grid.submergence_m", f"submergence {z.grid.submergence_m:g} m is outside the "
+                                                      f"tested {min(subs):g}-{max(subs):g} m: SOTE is extrapolated")
+            lo, hi = _airflow_range(z, dt)
+            if lo > hi:
+                col.error(f"{key}.grid", "no feasible airflow: the minimum exceeds what grid and valve pass",
+                          f"minimum {lo:.0f} Sm3/h", f"<= maximum {hi:.0f} Sm3/h")
+        for tid in sorted(set(types) - used_types):
+            col.warn(f"diffuser_types.{tid}", "diffuser type used by no zone")
+        gridded = [z for z in zones if z.grid is not None]
+        if gridded and not blowers and "blowers" not in self.root.data:
+            col.error("blowers", "zones have diffuser grids but there are no blowers", None,
+                      "at least one [[blowers]] table")
+        if gridded and blowers:
+            deepest = max(gridded, key=lambda z: z.grid.submergence_m)
+            static = units.m_water_to_kPa(deepest.grid.submergence_m)
+            for b in blowers:
+                if b.pressure_max_gauge_kPa <= static:
+                    col.error(f"blowers.{b.id}.pressure_max_gauge_kPa",
+                              f"below the static head of the deepest grid ({deepest.id}, "
+                              f"{deepest.grid.submergence_m:g} m)", b.pressure_max_gauge_kPa, f"> {static:.1f} kPa")
+            if len(zones) == n_zones and all(z.grid is None or z.grid.type_id in types for z in zones):
+                need = sum(_airflow_range(z, types[z.grid.type_id])[0] for z in gridded if z.kind == "aerated")
+                have = sum(b.airflow_max_Sm3_h for b in blowers)
+                if have < need:
+                    col.error("blowers", "all blowers together cannot supply the zones' minimum airflow",
+                              f"{have:g} Sm3/h", f">= {need:.0f} Sm3/h")
+        if influent is not None:
+            qm = influent.mean_flow_m3_d
+            if not D.WARN_MEAN_FLOW_m3_d[0] <= qm <= D.WARN_MEAN_FLOW_m3_d[1]:
+                col.warn("influent", f"unusual mean influent flow {qm:g} m3/d")
+            cods = influent.cod_total_mg_L
+            lo, hi = D.WARN_COD_TOTAL_mg_L
+            if any(not lo <= c <= hi for c in cods):
+                odd = next(c for c in cods if not lo <= c <= hi)
+                col.warn("influent", f"unusual total COD {odd:.0f} mg/L (usual {lo:g}-{hi:g})")
+            if zones and len(zones) == n_zones:
+                hrt = sum(z.volume_m3 for z in zones) / qm * 24.0
+                if not D.WARN_TRAIN_HRT_h[0] <= hrt <= D.WARN_TRAIN_HRT_h[1]:
+                    col.warn("zones", f"train HRT {hrt:.1f} h at the mean influent flow is unusual "
+                                      f"(usual {D.WARN_TRAIN_HRT_h[0]:g}-{D.WARN_TRAIN_HRT_h[1]:g} h): "
+                                      "check the volumes and their units")
+
+
+_ZONE_NUMBER_BOUNDS = {
+    "alpha": {"gt": 0.0, "le": 1.2},
+    "beta": {"gt": 0.0, "le": 1.0},
+    "fouling": {"gt": 0.0, "le": 1.0},
+    "mixing_airflow_min_Sm3_h_m2": {"ge": 0.0, "le": 100.0},
+    "drop_leg_k_kPa_per_Sm3_h2": {"ge": 0.0},
+}
+
+
+def _airflow_range(z: Zone, dt: DiffuserType) -> tuple[float, float]:
+    """Same rule as Layout.zone_airflow_range_Sm3_h, for a zone before the Layout exists."""
+    view = SimpleNamespace(diffuser_type=lambda _id: dt)
+    return Layout.zone_airflow_range_Sm3_h(view, z)
+
+
+def _blower_mean_efficiency(b: Blower) -> float:
+    if b.efficiency is not None:
+        return b.efficiency
+    return sum(p.efficiency for p in b.efficiency_points) / len(b.efficiency_points)
+
+
+__all__ = ["load_layout", "parse_layout", "parse_toml_text", "LayoutWarning"]
