@@ -1,0 +1,368 @@
+"""Public entry points: the steady state at mean load and the periodic (cyclic) day.
+
+:func:`steady_state` solves the plant at constant mean inputs by a Newton-type
+root solve (:mod:`airtaper.simulate.steady`). :func:`periodic` starts from
+that steady state and simulates whole days with a stiff solver
+(``scipy.integrate.solve_ivp``, BDF, with the sparse grouped-difference
+Jacobian) until the state at the end of a day matches the state at its start
+within ``tol``; inputs are constant within each period (influent, flows,
+temperature, airflow or DO setpoint), so every period is integrated on its own
+and no discontinuity falls inside a solver step.
+
+Aeration choices, per zone (see :func:`resolve_aeration`): a fixed kLa (from the
+layout), a scheduled airflow, or ideal DO control to a setpoint.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from scipy.integrate import solve_ivp
+
+from airtaper import units
+from airtaper.errors import InputError, Problem
+from airtaper.layout.types import ASM1_COMPONENTS
+from airtaper.process.stoichiometry import IDX, cod_composition, n_composition, tkn_composition, tss_composition
+from airtaper.simulate.plant import Inputs, PlantData
+from airtaper.simulate.steady import solve_steady
+from airtaper.simulate.system import NC, System
+
+EFFLUENT_COLUMNS = ("tss_mg_L", "cod_mg_L", "tkn_mg_L", "tn_mg_L")
+
+
+# --- aeration inputs ------------------------------------------------------------
+def _per_zone(layout, value, what: str, default=np.nan) -> np.ndarray:
+    nz = len(layout.zones)
+    if value is None:
+        return np.full(nz, default, dtype=float)
+    if isinstance(value, dict):
+        out = np.full(nz, default, dtype=float)
+        for key, v in value.items():
+            try:
+                out[layout.zone_index(key)] = np.nan if v is None else float(v)
+            except KeyError:
+                raise InputError(Problem(layout.path, f"{what}.{key}", "no zone with this id",
+                                         got=key, expected=", ".join(z.id for z in layout.zones))) from None
+        return out
+    arr = np.asarray(value, dtype=float)
+    if arr.ndim == 0:
+        return np.full(nz, float(arr))
+    if arr.shape != (nz,):
+        raise InputError(Problem(layout.path, what, "one value per zone expected", got=arr.shape, expected=f"({nz},)"))
+    return arr
+
+
+def resolve_aeration(layout, schedule=None, do_setpoint_mg_L=None):
+    """Per-period airflow (periods, zones) and DO setpoints (zones,) from the user's choice.
+
+    * ``do_setpoint_mg_L`` float: every zone of kind "aerated" with diffusers
+      or a fixed kLa is DO-controlled (swing zones stay unaerated unless named);
+      a dict ``{zone_id: setpoint}`` controls just those zones;
+    * ``schedule``: airflow (Sm3/h) as an array (periods, zones), one (zones,)
+      for every period, or a dict ``{zone_id: sequence or float}``;
+    * neither: the layout's baseline DO setpoint on every aerated diffused zone;
+      fixed-kLa zones (benchmark plants) keep their kLa.
+    Zones with a fixed kLa use it unless DO-controlled.
+    """
+    nz, n = len(layout.zones), layout.horizon.n_periods
+    air = np.zeros((n, nz))
+    if schedule is not None:
+        if isinstance(schedule, dict):
+            for key, v in schedule.items():
+                try:
+                    i = layout.zone_index(key)
+                except KeyError:
+                    raise InputError(Problem(layout.path, f"schedule.{key}", "no zone with this id", got=key)) from None
+                air[:, i] = np.broadcast_to(np.asarray(v, dtype=float), (n,))
+        else:
+            arr = np.asarray(schedule, dtype=float)
+            if arr.shape == (nz,):
+                arr = np.broadcast_to(arr, (n, nz))
+            if arr.shape != (n, nz):
+                raise InputError(Problem(layout.path, "schedule", "airflow per period and zone expected",
+                                         got=arr.shape, expected=f"({n}, {nz})"))
+            air = np.array(arr, dtype=float)
+        if np.any(~np.isfinite(air)) or np.any(air < 0.0):
+            raise InputError(Problem(layout.path, "schedule", "airflows must be finite and not negative"))
+    if do_setpoint_mg_L is None and schedule is None:
+        do_setpoint_mg_L = {z.id: layout.operation.baseline_do_setpoint_mg_L for z in layout.zones
+                            if z.kind == "aerated" and z.grid is not None and z.fixed_kla_per_d is None}
+    if isinstance(do_setpoint_mg_L, (int, float)):
+        do_setpoint_mg_L = {z.id: float(do_setpoint_mg_L) for z in layout.zones
+                            if z.kind == "aerated" and (z.grid is not None or z.fixed_kla_per_d is not None)}
+    sp = _per_zone(layout, do_setpoint_mg_L, "do_setpoint")
+    for i, z in enumerate(layout.zones):
+        if np.isfinite(sp[i]) and not z.aerated:
+            raise InputError(Problem(layout.path, f"do_setpoint.{z.id}", "an anoxic zone cannot be DO-controlled"))
+    return air, sp
+
+
+# --- results --------------------------------------------------------------------
+def effluent_quantities(c: np.ndarray, params, tss_per_cod: float) -> dict[str, np.ndarray]:
+    """TSS, total COD, TKN and TN of concentrations (..., 13).
+
+    TN = TKN + SNO with TKN = SNH + SND + XND + i_XB (XBH + XBA) + i_XP (XP + XI)
+    (the BSM1 effluent definitions, Alex et al. 2008 section 6).
+    """
+    cod = cod_composition(params)
+    cod[IDX["SO"]] = 0.0
+    cod[IDX["SNO"]] = 0.0
+    return {
+        "tss_mg_L": c @ tss_composition(tss_per_cod),
+        "cod_mg_L": c @ cod,
+        "tkn_mg_L": c @ tkn_composition(params),
+        "tn_mg_L": c @ n_composition(params),
+    }
+
+
+@dataclass
+class SteadyResult:
+    """Steady state of the plant at constant inputs.
+
+    ``zones``: one row per zone (13 components, airflow_Sm3_h, kla_per_h, otr_kg_h,
+    tss_mg_L); ``effluent`` and ``underflow``: component dicts plus TSS, COD,
+    TKN, TN; ``layers``: clarifier layers from the top (layered only);
+    ``balance``: external COD/N flows (g/d, see :meth:`System.balance`).
+    """
+
+    y: np.ndarray
+    zones: pd.DataFrame
+    effluent: dict[str, float]
+    underflow: dict[str, float]
+    layers: pd.DataFrame | None
+    q_waste_m3_d: float
+    q_effluent_m3_d: float
+    srt_d: float
+    balance: dict[str, float]
+    iterations: int
+    residual: float
+    seconds: float
+
+
+def _stream(c, params, tss_per_cod) -> dict[str, float]:
+    out = {k: float(v) for k, v in zip(ASM1_COMPONENTS, c)}
+    out.update({k: float(v) for k, v in effluent_quantities(np.asarray(c), params, tss_per_cod).items()})
+    return out
+
+
+def _steady_result(system: System, inp: Inputs, solve, seconds: float) -> SteadyResult:
+    y = solve.y
+    _, info = system.rhs(y, inp, detail=True)
+    B = system.blocks(y)
+    lay = system.plant.layout
+    zones = pd.DataFrame(B[: system.nz], columns=list(ASM1_COMPONENTS))
+    zones.insert(0, "zone", [z.id for z in lay.zones])
+    zones["airflow_Sm3_h"] = system.airflow_Sm3_h(inp, info["kla_per_d"])
+    zones["kla_per_h"] = units.per_day_to_per_hour(info["kla_per_d"])
+    zones["otr_kg_h"] = units.g_to_kg(units.kg_d_to_kg_h(info["otr_g_m3_d"] * system.V))
+    zones["tss_mg_L"] = system.tss(B[: system.nz].T)
+    layers = None
+    if system.layered:
+        layers = pd.DataFrame(B[system.nz:], columns=list(ASM1_COMPONENTS))
+        layers.insert(0, "layer", np.arange(1, system.n_layers + 1))
+        layers["tss_mg_L"] = system.tss(B[system.nz:].T)
+    return SteadyResult(
+        y=y, zones=zones,
+        effluent=_stream(info["c_effluent"], inp.params, system.tss_per_cod),
+        underflow=_stream(info["c_underflow"], inp.params, system.tss_per_cod),
+        layers=layers, q_waste_m3_d=float(info["q_waste_m3_d"]), q_effluent_m3_d=float(info["q_effluent_m3_d"]),
+        srt_d=float(info["srt_d"]), balance=system.balance(y, inp, info), iterations=solve.iterations,
+        residual=solve.residual, seconds=seconds,
+    )
+
+
+def steady_state(layout, airflow_Sm3_h=None, do_setpoint_mg_L=None, *, tol: float = 1e-10) -> SteadyResult:
+    """Steady state at the mean load of the day.
+
+    Parameters
+    ----------
+    layout : Layout
+    airflow_Sm3_h : None, dict {zone_id: airflow} or array (zones,)
+        Constant zone airflows (ignored for DO-controlled and fixed-kLa zones).
+    do_setpoint_mg_L : None, float or dict {zone_id: setpoint}
+        Ideal DO control (see :func:`resolve_aeration` for the defaults).
+    tol : float
+        Scaled residual of the root solve, 1/d.
+
+    Notes
+    -----
+    Mean load: mean flows, flow-weighted mean influent concentrations, mean
+    temperature (the parameters corrected to it when the layout asks).
+    """
+    t0 = time.perf_counter()
+    plant = PlantData(layout)
+    system = System(plant)
+    air = None if airflow_Sm3_h is None else _per_zone(layout, airflow_Sm3_h, "airflow", default=0.0)
+    _, sp = resolve_aeration(layout, None if air is None else air, do_setpoint_mg_L)
+    inp = plant.inputs(None, airflow_Sm3_h=air, do_setpoint_mg_L=sp)
+    solve = solve_steady(system, inp, tol=tol)
+    return _steady_result(system, inp, solve, time.perf_counter() - t0)
+
+
+@dataclass
+class PeriodicResult:
+    """The periodic (cyclic) day.
+
+    ``timeseries``: tidy, one row per output time and zone: time_h, zone, the
+    13 components, airflow_Sm3_h, kla_per_h, otr_kg_h. ``effluent``: one row
+    per output time: time_h, the 13 components, tss/cod/tkn/tn_mg_L,
+    q_influent_m3_d, q_effluent_m3_d, q_waste_m3_d, srt_d. Output times are the
+    ``steps_per_period`` equal steps of every period, starting at 0 h.
+    ``day_change``: max over states of |y(24 h) - y(0)| / max(|y(0)|, 1) of the
+    last day; ``balance``: the COD and N closure over the last day.
+    """
+
+    timeseries: pd.DataFrame
+    effluent: pd.DataFrame
+    days: int
+    converged: bool
+    day_change: float
+    balance: dict[str, float]
+    start: SteadyResult
+    seconds: float
+    y_start: np.ndarray
+    y_end: np.ndarray
+    period_h: float
+    layout: object = field(repr=False, default=None)
+
+
+def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30, tol: float = 1e-3,
+             rtol: float = 1e-6, atol: float = 1e-6) -> PeriodicResult:
+    """Simulate whole days from the mean-load steady state until the day repeats.
+
+    Parameters
+    ----------
+    layout : Layout
+    schedule : None, array (periods, zones) or (zones,), or dict {zone_id: airflows}
+        Zone airflows in Sm3/h, constant within each period.
+    do_setpoint_mg_L : None, float or dict {zone_id: setpoint}
+        Ideal DO control (controlled zones ignore the schedule).
+    max_days : int
+        Give up (``converged=False``) after this many days.
+    tol : float
+        The day repeats when max |y(t + 24 h) - y(t)| / max(|y(t)|, 1) < tol.
+    rtol, atol : float
+        Tolerances of the BDF solver.
+    """
+    t_start = time.perf_counter()
+    plant = PlantData(layout)
+    system = System(plant)
+    air, sp = resolve_aeration(layout, schedule, do_setpoint_mg_L)
+    mean_inp = plant.inputs(None, airflow_Sm3_h=air.mean(axis=0), do_setpoint_mg_L=sp)
+    t0 = time.perf_counter()
+    start = _steady_result(system, mean_inp, solve_steady(system, mean_inp), 0.0)
+    start.seconds = time.perf_counter() - t0
+    inputs = [plant.inputs(k, airflow_Sm3_h=air[k], do_setpoint_mg_L=sp) for k in range(plant.n_periods)]
+    wcod, wn = system.inventory_weights(inputs[0])
+    period_d = plant.period_d
+    steps = layout.horizon.steps_per_period
+    y = start.y.copy()
+    converged = False
+    change = np.inf
+    days = 0
+    rec = None
+    while days < max_days:
+        days += 1
+        z0 = np.concatenate((y, [0.0, 0.0]))
+        z_end, rec_try = _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod, wn)
+        y_end = z_end[: system.n]
+        change = float(np.max(np.abs(y_end - y) / np.maximum(np.abs(y), 1.0)))
+        rec = (y.copy(), z_end, rec_try)
+        y = y_end
+        if change < tol:
+            converged = True
+            break
+    y0_day, z_end, records = rec
+    y1_day = z_end[: system.n]
+    # COD and N closure over the recorded day: the net inflows integrated by the solver
+    # against the change of the plant's inventory (i_XB and i_XP do not vary by period)
+    d_cod = float(wcod @ (y1_day - y0_day))
+    d_n = float(wn @ (y1_day - y0_day))
+    cod_in = sum(inp.q_influent * float(cod_composition(inp.params) @ inp.c_influent) for inp in inputs) * period_d
+    n_in = sum(inp.q_influent * float(n_composition(inp.params) @ inp.c_influent) for inp in inputs) * period_d
+    balance = dict(
+        cod_in_g=cod_in, cod_net_in_g=float(z_end[-2]), cod_inventory_change_g=d_cod,
+        cod_closure=abs(float(z_end[-2]) - d_cod) / cod_in,
+        n_in_g=n_in, n_net_in_g=float(z_end[-1]), n_inventory_change_g=d_n,
+        n_closure=abs(float(z_end[-1]) - d_n) / n_in,
+    )
+    ts, eff = _tables(system, inputs, records)
+    return PeriodicResult(timeseries=ts, effluent=eff, days=days, converged=converged, day_change=change,
+                          balance=balance, start=start, seconds=time.perf_counter() - t_start,
+                          y_start=y0_day, y_end=y1_day, period_h=layout.horizon.period_h, layout=layout)
+
+
+def _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod, wn):
+    """One day, period by period; returns the end state and the states at the output times."""
+    import scipy.sparse as sps
+
+    n = system.n
+    z = z0
+    out_t, out_y, out_k = [], [], []
+    zero_col = sps.csc_matrix((n, 2))
+    zero_corner = sps.csc_matrix((2, 2))
+    first_step = None
+    for k, inp in enumerate(inputs):
+        t0, t1 = k * period_d, (k + 1) * period_d
+
+        def fun(t, zz, inp=inp):
+            f, info = system.rhs(zz[:n], inp, detail=True)
+            b = system.balance(zz[:n], inp, info)
+            return np.concatenate((f, [b["cod_net"], b["n_net"]]))
+
+        def jac(t, zz, inp=inp):
+            J = system.jacobian(zz[:n], inp)
+            rows = sps.csc_matrix(np.vstack((wcod @ J, wn @ J)))
+            return sps.bmat([[J, zero_col], [rows, zero_corner]], format="csc")
+
+        sol = solve_ivp(fun, (t0, t1), z, method="BDF", jac=jac, rtol=rtol, atol=atol, dense_output=True,
+                        first_step=first_step)
+        if not sol.success:
+            raise RuntimeError(f"simulation failed in period {k + 1}: {sol.message}")
+        # start the next period with the step size this one ended with (the last step may
+        # have been shortened to land on the period end; take the larger of the last two)
+        steps_taken = np.diff(sol.t)
+        first_step = float(max(steps_taken[-2:])) if steps_taken.size else None
+        for j in range(steps):
+            t = t0 + (t1 - t0) * j / steps
+            out_t.append(t)
+            out_y.append(sol.sol(t)[:n] if j else z[:n].copy())
+            out_k.append(k)
+        z = sol.y[:, -1]
+    return z, (np.array(out_t), np.array(out_y), np.array(out_k))
+
+
+def _tables(system: System, inputs, records):
+    t, Y, K = records
+    lay = system.plant.layout
+    nz = system.nz
+    zone_ids = [z.id for z in lay.zones]
+    rows_y, rows_air, rows_kla, rows_otr = [], [], [], []
+    eff_rows = []
+    for t_i, y_i, k in zip(t, Y, K):
+        inp = inputs[k]
+        _, info = system.rhs(y_i, inp, detail=True)
+        B = system.blocks(y_i)
+        rows_y.append(B[:nz])
+        rows_air.append(system.airflow_Sm3_h(inp, info["kla_per_d"]))
+        rows_kla.append(units.per_day_to_per_hour(info["kla_per_d"]))
+        rows_otr.append(units.g_to_kg(units.kg_d_to_kg_h(info["otr_g_m3_d"] * system.V)))
+        ce = info["c_effluent"]
+        q = effluent_quantities(ce, inp.params, system.tss_per_cod)
+        eff_rows.append([t_i * 24.0, *ce, *(q[c] for c in EFFLUENT_COLUMNS),
+                         inp.q_influent, float(info["q_effluent_m3_d"]), float(info["q_waste_m3_d"]),
+                         float(info["srt_d"])])
+    nt = len(t)
+    Yz = np.array(rows_y).reshape(nt * nz, NC)
+    ts = pd.DataFrame(Yz, columns=list(ASM1_COMPONENTS))
+    ts.insert(0, "zone", np.tile(zone_ids, nt))
+    ts.insert(0, "time_h", np.repeat(t * 24.0, nz))
+    ts["airflow_Sm3_h"] = np.array(rows_air).reshape(-1)
+    ts["kla_per_h"] = np.array(rows_kla).reshape(-1)
+    ts["otr_kg_h"] = np.array(rows_otr).reshape(-1)
+    eff = pd.DataFrame(eff_rows, columns=["time_h", *ASM1_COMPONENTS, *EFFLUENT_COLUMNS, "q_influent_m3_d",
+                                          "q_effluent_m3_d", "q_waste_m3_d", "srt_d"])
+    return ts, eff

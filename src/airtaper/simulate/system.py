@@ -1,0 +1,343 @@
+"""The simulator's state vector, vectorised right-hand side and sparse Jacobian.
+
+State: 13 ASM1 components per block, blocks in order: the zones (flow order),
+then the clarifier layers from the top (layered clarifier only). ``y`` has shape
+``(13 * blocks,)``; the right-hand side also takes ``(13 * blocks, m)`` and
+returns the derivative of every column, which the grouped finite-difference
+Jacobian uses to evaluate all its column groups in one call. Time is in days.
+
+Zones (completely mixed, constant volume)::
+
+    V dc/dt = sum_in Q c_in - Q_in,total c + V r(c) + V kLa (C* - SO) [SO only]
+
+Layered clarifier (Takacs et al. 1991, as specified for BSM1 by Alex et al.
+2008): non-reactive, ``n`` layers of equal height ``h``, feed to layer ``f``;
+bulk flow up (``v_up = Q_e/A``) above the feed and down (``v_dn = Q_u/A``)
+below it; gravity flux of solids between layer ``i`` and the one below
+``i+1``::
+
+    J = min(vs_i X_i, vs_i+1 X_i+1)                   at and below the feed layer (smoothed, see
+                                                      _FLUX_SMOOTHING)
+    J = vs_i X_i  if X_i+1 <= X_t  else  the same min  above the feed layer
+    vs(X) = max(0, min(v0', v0 (exp(-rh (X - X_min)) - exp(-rp (X - X_min))))),
+    X_min = fns X_feed
+
+with X the suspended solids (``tss_per_cod`` times the particulate COD).
+Each particulate component moves with the solids flux in proportion to its
+share of the solids of the layer the flux leaves (``J x_k / X``), so every
+component is conserved exactly; at steady state all layers then carry the
+feed's particulate composition, which is how BSM1 composes the underflow and
+effluent particulates.
+
+Ideal separator: no volume, no reaction; solubles leave at the feed
+concentration; the effluent carries ``effluent_tss_mg_L`` of solids with the
+feed's particulate composition; the rest goes to the underflow.
+
+Wasting from the underflow: a fixed flow, or the flow that holds the target
+SRT, ``SRT = M_reactors / (Q_w X_u + Q_e X_e)`` with ``M_reactors`` the
+suspended solids in the zones (the clarifier inventory is not counted; common
+practice (no source)).
+
+Ideal DO control: a controlled zone's kLa is chosen so that the DO follows
+``dSO/dt = (SO_set - SO) / tau_DO`` exactly (the required kLa solved from the
+zone's own DO balance), clamped to the kLa its airflow range gives; with
+``tau_DO`` = 1 minute the DO sits on the setpoint within about 5 minutes of
+any change, and exactly at steady state, whenever the airflow range allows.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import scipy.sparse as sp
+
+from airtaper.layout.types import ASM1_COMPONENTS
+from airtaper.process.stoichiometry import (
+    IDX, PARTICULATES, SOLIDS_COD, cod_composition, cod_of_n2, n2_yield, n_composition,
+)
+from airtaper.simulate.kinetics import process_rates, reaction_rates
+from airtaper.simulate.plant import MODE_DO, Inputs, PlantData
+
+NC = len(ASM1_COMPONENTS)
+PART = np.array([IDX[k] for k in PARTICULATES])
+COD_PART = np.array([IDX[k] for k in SOLIDS_COD])
+SOL = np.array([i for i in range(NC) if i not in set(PART.tolist())])
+SO = IDX["SO"]
+#: Time constant of the ideal DO control response, d (1 minute).
+TAU_DO_d = 1.0 / 1440.0
+#: Smallest driving force used when solving the DO-control kLa, mg/L.
+_MIN_DRIVING_FORCE = 0.05
+_TINY_X = 1e-6
+#: Smoothing of min(J_i, J_i+1) in the settler, g/(m2 d): ``(a + b - sqrt((a - b)^2 + eps^2)) / 2``
+#: differs from the min by at most eps/2 (about 1e-5 of the BSM1 thickening fluxes) and
+#: removes the kink that sits exactly at the steady state of a flux-limited thickening zone.
+_FLUX_SMOOTHING = 1.0
+
+
+class System:
+    """State layout, right-hand side and Jacobian of one plant."""
+
+    def __init__(self, plant: PlantData):
+        self.plant = plant
+        lay = plant.layout
+        self.nz = plant.nz
+        self.n_layers = plant.n_layers
+        self.nb = self.nz + self.n_layers
+        self.n = NC * self.nb
+        self.V = plant.volume
+        self.layered = plant.layered
+        self.tss_per_cod = plant.tss_per_cod
+        clar = lay.clarifier
+        self.effluent_tss = float(clar.effluent_tss_mg_L)
+        self.srt_target = lay.wasting.srt_d
+        if self.layered:
+            self.area = float(clar.area_m2)
+            self.h = float(clar.height_m) / clar.layers
+            self.feed = clar.feed_layer - 1
+            s = clar.settling
+            self.v0max, self.v0, self.rh, self.rp = s.v0_max_m_d, s.v0_m_d, s.rh_m3_g, s.rp_m3_g
+            self.fns, self.xt = s.fns, s.x_threshold_g_m3
+        self._pattern = None
+        self._colors = None
+
+    # --- indexing helpers ---------------------------------------------------
+    def blocks(self, y) -> np.ndarray:
+        """View ``y`` as (blocks, 13[, m])."""
+        y = np.asarray(y, dtype=float)
+        return y.reshape((self.nb, NC) + y.shape[1:])
+
+    def tss(self, c) -> np.ndarray:
+        """Suspended solids of concentrations with the component axis first."""
+        return self.tss_per_cod * np.asarray(c)[COD_PART].sum(axis=0)
+
+    # --- right-hand side ----------------------------------------------------
+    def rhs(self, y, inp: Inputs, detail: bool = False):
+        """Time derivative (per day) of ``y``; with ``detail`` also a dict of flows and transfer."""
+        y = np.asarray(y, dtype=float)
+        one = y.ndim == 1
+        Y = y.reshape(self.nb, NC, -1)
+        m = Y.shape[2]
+        C = np.transpose(Y, (1, 0, 2))  # (13, nb, m)
+        nz = self.nz
+        Cz = C[:, :nz]
+        cf = Cz[:, -1]
+        qf = inp.q_forward[-1]
+        qr = inp.q_return
+        tss_z = self.tss(Cz)  # (nz, m)
+        xf = tss_z[-1]
+        if self.layered:
+            Cs = C[:, nz:]
+            X = self.tss(Cs)
+            xu, xe = X[-1], X[0]
+        else:
+            xe = np.minimum(self.effluent_tss, xf)
+        if inp.q_waste is not None:
+            qw = np.full(m, float(inp.q_waste))
+        else:
+            solids = (self.V[:, None] * tss_z).sum(axis=0) / inp.srt_target_d
+            if self.layered:
+                qw = (solids - (qf - qr) * xe) / np.maximum(xu - xe, 1.0)
+            else:
+                qw = qr * (solids - (qf - qr) * xe) / np.maximum(qf * xf - qr * xe - solids, 1e-6 * qf * xf + 1e-9)
+            qw = np.clip(qw, 0.0, 0.99 * (qf - qr))
+        qu = qr + qw
+        qe = qf - qu
+
+        if self.layered:
+            A, f, L = self.area, self.feed, self.n_layers
+            vup, vdn = qe / A, qu / A
+            d = X - self.fns * xf
+            vs = np.clip(self.v0 * (np.exp(-self.rh * d) - np.exp(-self.rp * d)), 0.0, self.v0max)
+            js = vs * X
+            a, b = js[:-1], js[1:]
+            jmin = 0.5 * (a + b - np.sqrt((a - b) ** 2 + _FLUX_SMOOTHING ** 2))
+            J = jmin.copy()
+            if f > 0:
+                J[:f] = np.where(X[1:f + 1] <= self.xt, js[:f], jmin[:f])
+            frac = Cs[PART] / np.maximum(X, _TINY_X)
+            F = J[None] * frac[:, :-1]
+            dS = np.empty_like(Cs)
+            dS[:, :f] = vup * (Cs[:, 1:f + 1] - Cs[:, :f])
+            dS[:, f] = (qf / A) * cf - (vup + vdn) * Cs[:, f]
+            dS[:, f + 1:] = vdn * (Cs[:, f:L - 1] - Cs[:, f + 1:])
+            settle = np.zeros((PART.size, L, m))
+            settle[:, :-1] -= F
+            settle[:, 1:] += F
+            dS[PART] += settle
+            dS /= self.h
+            cu = Cs[:, -1]
+            ce = Cs[:, 0]
+        else:
+            ratio = np.where(xf > 0.0, xe / np.maximum(xf, 1e-12), 0.0)
+            ce = cf.copy()
+            ce[PART] = cf[PART] * ratio
+            cu = cf.copy()
+            cu[PART] = (qf * cf[PART] - qe * ce[PART]) / qu
+
+        T = np.einsum("ij,kjm->kim", inp.flow_matrix, Cz)
+        T += inp.q_feed[None, :, None] * inp.c_influent[:, None, None]
+        T -= inp.q_in_total[None, :, None] * Cz
+        T[:, inp.return_to] += qr * cu
+        T /= self.V[None, :, None]
+        dz = T + reaction_rates(Cz, inp.params, inp.nu_T)
+
+        so = Cz[SO]
+        sat = inp.do_sat_mg_L[:, None]
+        kla = np.broadcast_to(inp.kla_per_d[:, None], (nz, m)).copy()
+        ctl = inp.mode == MODE_DO
+        if ctl.any():
+            sp_ = inp.do_setpoint_mg_L[ctl, None]
+            need = ((sp_ - so[ctl]) / TAU_DO_d - dz[SO, ctl]) / np.maximum(sat[ctl] - so[ctl], _MIN_DRIVING_FORCE)
+            kla[ctl] = np.clip(need, inp.kla_min_per_d[ctl, None], inp.kla_max_per_d[ctl, None])
+        otr = kla * (sat - so)  # g O2/(m3 d)
+        dz[SO] += otr
+
+        D = np.empty((NC, self.nb, m))
+        D[:, :nz] = dz
+        if self.layered:
+            D[:, nz:] = dS
+        out = np.transpose(D, (1, 0, 2)).reshape(self.n, m)
+        if one:
+            out = out[:, 0]
+        if not detail:
+            return out
+        sq = (lambda a: a[..., 0]) if one else (lambda a: a)
+        xu_ = self.tss(cu)
+        removal = qw * xu_ + qe * self.tss(ce)
+        srt = (self.V[:, None] * tss_z).sum(axis=0) / np.maximum(removal, 1e-12)
+        info = dict(kla_per_d=sq(kla), otr_g_m3_d=sq(otr), c_underflow=sq(cu), c_effluent=sq(ce),
+                    q_waste_m3_d=sq(qw), q_effluent_m3_d=sq(qe), q_underflow_m3_d=sq(qu), srt_d=sq(srt))
+        return out, info
+
+    # --- balances -------------------------------------------------------------
+    def inventory_weights(self, inp: Inputs) -> tuple[np.ndarray, np.ndarray]:
+        """(w_cod, w_n), shape (n,): total COD and N held in the plant are ``w @ y`` (g)."""
+        vol = np.concatenate([self.V, np.full(self.n_layers, self.area * self.h if self.layered else 0.0)])
+        w_cod = np.kron(vol, cod_composition(inp.params))
+        w_n = np.kron(vol, n_composition(inp.params))
+        return w_cod, w_n
+
+    def balance(self, y, inp: Inputs, info: dict | None = None) -> dict[str, float]:
+        """External COD and N flows of the whole plant at state ``y``, g/d.
+
+        ``cod_in``, ``cod_out`` (effluent + waste), ``o2_transferred``, ``n2_formed``
+        (g N2-N/d), ``n_in``, ``n_out``; and the net inflows
+        ``cod_net = cod_in - cod_out - o2_transferred - cod_of_n2 * n2_formed`` (oxygen is
+        negative COD; N2 carries ``cod_of_n2`` g COD per g N) and
+        ``n_net = n_in - n_out - n2_formed``. At steady state both are zero.
+        """
+        p = inp.params
+        if info is None:
+            _, info = self.rhs(y, inp, detail=True)
+        cod, nn = cod_composition(p), n_composition(p)
+        Cz = self.blocks(y)[: self.nz].T  # (13, nz)
+        n2 = float(self.V @ (n2_yield(p) @ process_rates(Cz, p)))
+        qe, qw = float(info["q_effluent_m3_d"]), float(info["q_waste_m3_d"])
+        ce, cu = info["c_effluent"], info["c_underflow"]
+        out = dict(
+            cod_in=inp.q_influent * float(cod @ inp.c_influent),
+            cod_out=qe * float(cod @ ce) + qw * float(cod @ cu),
+            o2_transferred=float(self.V @ info["otr_g_m3_d"]),
+            n2_formed=n2,
+            n_in=inp.q_influent * float(nn @ inp.c_influent),
+            n_out=qe * float(nn @ ce) + qw * float(nn @ cu),
+        )
+        out["cod_net"] = out["cod_in"] - out["cod_out"] - out["o2_transferred"] - cod_of_n2(p) * n2
+        out["n_net"] = out["n_in"] - out["n_out"] - n2
+        return out
+
+    def airflow_Sm3_h(self, inp: Inputs, kla_per_d) -> np.ndarray:
+        """Zone airflows behind the kLa of an evaluation (0 where no diffusers)."""
+        kla = np.asarray(kla_per_d, dtype=float)
+        out = np.zeros_like(kla)
+        for i in range(self.nz):
+            if inp.mode[i] == MODE_DO and inp.tables[i] is not None:
+                out[i] = inp.tables[i].airflow(kla[i])
+            else:
+                out[i] = inp.airflow_Sm3_h[i]
+        return out
+
+    # --- Jacobian -------------------------------------------------------------
+    def pattern(self) -> sp.csc_matrix:
+        """Structural non-zeros of the Jacobian (boolean, CSC)."""
+        if self._pattern is not None:
+            return self._pattern
+        lay = self.plant.layout
+        nz, nb = self.nz, self.nb
+        P = np.zeros((self.n, self.n), dtype=bool)
+        all_c = np.arange(NC)
+
+        def put(rb, cb, rows, cols):
+            r = rb * NC + np.asarray(rows)
+            c = cb * NC + np.asarray(cols)
+            P[np.ix_(r, c)] = True
+
+        def diag(rb, cb):
+            P[rb * NC + all_c, cb * NC + all_c] = True
+
+        for i in range(nz):
+            put(i, i, all_c, all_c)
+            if i > 0:
+                diag(i, i - 1)
+        for rec in lay.recycles:
+            diag(lay.zone_index(rec.to_zone), lay.zone_index(rec.from_zone))
+        r_to = lay.zone_index(lay.return_sludge.to_zone)
+        last = nz - 1
+        srt = self.srt_target is not None
+        if self.layered:
+            bottom = nb - 1
+            diag(r_to, bottom)
+            for i in range(self.n_layers):
+                b = nz + i
+                for j in (i - 1, i, i + 1):
+                    if 0 <= j < self.n_layers:
+                        diag(b, nz + j)
+                        put(b, nz + j, PART, PART)
+                put(b, last, PART, PART)
+                if srt:
+                    for zb in range(nz):
+                        put(b, zb, all_c, COD_PART)
+                    put(b, nz, all_c, COD_PART)
+                    put(b, bottom, all_c, COD_PART)
+            diag(nz + self.feed, last)
+        else:
+            diag(r_to, last)
+            put(r_to, last, PART, PART)
+            if srt:
+                for zb in range(nz):
+                    put(r_to, zb, PART, COD_PART)
+        self._pattern = sp.csc_matrix(P)
+        return self._pattern
+
+    def colors(self) -> np.ndarray:
+        """Column groups (no two columns of a group share a row), greedy."""
+        if self._colors is not None:
+            return self._colors
+        P = self.pattern().astype(np.int8)
+        conflict = (P.T @ P).tocsr()
+        colors = -np.ones(self.n, dtype=int)
+        for j in range(self.n):
+            used = set(colors[conflict.indices[conflict.indptr[j]:conflict.indptr[j + 1]]].tolist())
+            c = 0
+            while c in used:
+                c += 1
+            colors[j] = c
+        self._colors = colors
+        return colors
+
+    def jacobian(self, y, inp: Inputs, f0=None) -> sp.csc_matrix:
+        """Sparse Jacobian by grouped forward differences (one vectorised call)."""
+        y = np.asarray(y, dtype=float)
+        P = self.pattern()
+        colors = self.colors()
+        ng = int(colors.max()) + 1
+        if f0 is None:
+            f0 = self.rhs(y, inp)
+        h = 1.5e-8 * np.maximum(np.abs(y), 1.0)
+        Y = np.repeat(y[:, None], ng, axis=1)
+        Y[np.arange(self.n), colors] += h
+        h = (Y[np.arange(self.n), colors] - y)  # the step actually taken
+        F = self.rhs(Y, inp)
+        rows = P.indices
+        cols = np.repeat(np.arange(self.n), np.diff(P.indptr))
+        vals = (F[rows, colors[cols]] - f0[rows]) / h[cols]
+        return sp.csc_matrix((vals, rows, P.indptr), shape=(self.n, self.n))

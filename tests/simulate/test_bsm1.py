@@ -1,0 +1,113 @@
+"""The simulator against the IWA Benchmark Simulation Model no. 1 open-loop steady state.
+
+Reference: Alex et al. (2008), Benchmark Simulation Model no. 1 (BSM1), open-loop
+steady-state results (constant influent), table of the five reactors and the effluent.
+The values below are from memory, Alex et al. 2008 open-loop steady state table
+(the table itself could not be consulted while writing this test).
+"""
+
+import numpy as np
+import pytest
+
+from airtaper import simulate
+from airtaper.layout.types import ASM1_COMPONENTS
+
+# from memory, Alex et al. 2008 open-loop steady state table (ASM1 order; SALK mol/m3)
+_R = {
+    1: dict(SI=30, SS=2.8082, XI=1149.1, XS=82.135, XBH=2551.8, XBA=148.39, XP=448.85, SO=0.0042984,
+            SNO=5.3699, SNH=7.9179, SND=1.2166, XND=5.285, SALK=4.9277),
+    2: dict(SI=30, SS=1.4588, XI=1149.1, XS=76.386, XBH=2553.4, XBA=148.31, XP=449.52, SO=6.3132e-5,
+            SNO=3.6619, SNH=8.3444, SND=0.88207, XND=5.0289, SALK=5.0802),
+    3: dict(SI=30, SS=1.1495, XI=1149.1, XS=64.855, XBH=2557.1, XBA=148.94, XP=450.42, SO=1.7184,
+            SNO=6.5409, SNH=5.5479, SND=0.82889, XND=4.3924, SALK=4.6748),
+    4: dict(SI=30, SS=0.99532, XI=1149.1, XS=55.694, XBH=2559.3, XBA=149.55, XP=451.32, SO=2.4289,
+            SNO=9.299, SNH=2.9674, SND=0.76679, XND=3.879, SALK=4.2935),
+    5: dict(SI=30, SS=0.88949, XI=1149.1, XS=49.306, XBH=2559.2, XBA=149.82, XP=452.21, SO=0.49094,
+            SNO=10.415, SNH=1.733, SND=0.68828, XND=3.5269, SALK=4.1256),
+}
+_EFFLUENT = dict(SI=30, SS=0.88949, XI=4.3918, XS=0.18812, XBH=9.7828, XBA=0.57252, SO=0.49094,
+                 SNO=10.415, SNH=1.733, SND=0.68828, XND=0.013473, SALK=4.1256, TSS=12.497)
+# Effluent XP: the recalled 1.7264 contradicts the same table, whose effluent particulates
+# carry reactor 5's composition (Alex et al. 2008, effluent composition): XP_e = XP_5 XI_e / XI_5
+# = 452.21 x 4.3918 / 1149.1 = 1.7283. The check uses the value the table itself implies.
+_EFFLUENT["XP"] = _R[5]["XP"] * _EFFLUENT["XI"] / _R[5]["XI"]
+
+
+def _close(got, ref):
+    """Relative 1e-3 above 1 g/m3, 0.01 g/m3 absolute below (tolerance of the check, as specified)."""
+    if abs(ref) > 1.0:
+        return abs(got - ref) <= 1e-3 * abs(ref)
+    return abs(got - ref) <= 0.01
+
+
+@pytest.fixture(scope="module")
+def layered_ss(bsm1_layered):
+    return simulate.steady_state(bsm1_layered)
+
+
+@pytest.mark.parametrize("reactor", [1, 2, 3, 4, 5])
+def test_bsm1_reactors_match_open_loop_table(layered_ss, reactor):
+    # Alex et al. (2008) open-loop steady state (values from memory, see module docstring)
+    row = layered_ss.zones.iloc[reactor - 1]
+    bad = {k: (float(row[k]), v) for k, v in _R[reactor].items() if not _close(float(row[k]), v)}
+    assert not bad, f"reactor {reactor}: (simulated, reference) {bad}"
+
+
+def test_bsm1_effluent_matches_open_loop_table(layered_ss):
+    # Alex et al. (2008) open-loop steady state effluent (values from memory)
+    eff = dict(layered_ss.effluent)
+    eff["TSS"] = eff["tss_mg_L"]
+    bad = {k: (eff[k], v) for k, v in _EFFLUENT.items() if not _close(eff[k], v)}
+    assert not bad, f"effluent: (simulated, reference) {bad}"
+
+
+def test_bsm1_max_relative_error_is_small(layered_ss):
+    # Alex et al. (2008) open-loop table (from memory): the largest relative error over all
+    # values above 1 g/m3 stays below 1e-3
+    errs = []
+    for r, ref in _R.items():
+        row = layered_ss.zones.iloc[r - 1]
+        errs += [abs(float(row[k]) - v) / v for k, v in ref.items() if v > 1.0]
+    assert max(errs) < 1e-3
+
+
+def test_bsm1_steady_state_is_a_root_not_a_long_simulation(layered_ss):
+    assert layered_ss.residual < 1e-9
+    assert layered_ss.iterations < 200
+
+
+def test_bsm1_steady_state_closes_cod_and_n(layered_ss):
+    # conservation: influent = effluent + waste + O2 transferred + N2 formed (ThOD and N)
+    b = layered_ss.balance
+    assert abs(b["cod_net"]) / b["cod_in"] < 1e-6
+    assert abs(b["n_net"]) / b["n_in"] < 1e-6
+    assert b["n2_formed"] > 0.0 and b["o2_transferred"] > 0.0
+
+
+def test_ideal_separator_differs_as_srt_explains(layered_ss, bsm1_ideal):
+    # The ideal separator loses no solids to the effluent, so with the same waste flow the
+    # SRT rises; the inert solids inventory follows the SRT (XI is neither formed nor
+    # destroyed: mass in reactors = XI load x SRT when reactor and outlet share the same
+    # XI/TSS fraction) and the longer SRT nitrifies further. (Mass balance of an inert
+    # particulate; common practice (no source).)
+    ideal = simulate.steady_state(bsm1_ideal)
+    assert ideal.srt_d > layered_ss.srt_d * 1.05
+    assert ideal.effluent["tss_mg_L"] == pytest.approx(0.0, abs=1e-9)
+    xi_ratio = ideal.zones["XI"].mean() / layered_ss.zones["XI"].mean()
+    assert xi_ratio == pytest.approx(ideal.srt_d / layered_ss.srt_d, rel=0.02)
+    assert ideal.effluent["SNH"] < layered_ss.effluent["SNH"]
+    assert ideal.zones["XBA"].iloc[4] > layered_ss.zones["XBA"].iloc[4]
+    b = ideal.balance
+    assert abs(b["cod_net"]) / b["cod_in"] < 1e-6 and abs(b["n_net"]) / b["n_in"] < 1e-6
+
+
+def test_bsm1_settler_profile_thickens_downward(layered_ss):
+    # Takacs et al. (1991) layered settler: solids rise from the top to the bottom layer
+    # (the flux-limited plateau below the feed is flat to 1e-5 relative: smoothing of the min)
+    x = layered_ss.layers["tss_mg_L"].to_numpy()
+    assert np.all(np.diff(x) >= -1e-4 * x[1:])
+    assert x[0] == pytest.approx(_EFFLUENT["TSS"], rel=1e-3)
+
+
+def test_components_in_layout_order(layered_ss):
+    assert list(layered_ss.zones.columns[1:14]) == list(ASM1_COMPONENTS)
