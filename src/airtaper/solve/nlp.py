@@ -25,6 +25,7 @@ from dataclasses import dataclass, field
 import casadi as ca
 import numpy as np
 import scipy.sparse as sp
+from pyomo.common.gc_manager import PauseGC
 
 from airtaper.errors import ModelError
 from airtaper.solve import pyomo_to_casadi as p2c
@@ -366,12 +367,13 @@ def get_structure(model, *, use_cache: bool = True) -> tuple[Structure, bool]:
             if s.key == key and s.still_valid():
                 entries.append(entries.pop(i))  # most recently used last
                 return s, True
-    tape = p2c.convert(model, constraints, objective)
-    sxm = build_sx(tape)
-    t1 = time.perf_counter()
-    fns = build_functions(sxm)
-    ev = Evaluator(fns)
-    t2 = time.perf_counter()
+    with PauseGC():  # the walk allocates many long-lived objects: no GC passes
+        tape = p2c.convert(model, constraints, objective)
+        sxm = build_sx(tape)
+        t1 = time.perf_counter()
+        fns = build_functions(sxm)
+        ev = Evaluator(fns)
+        t2 = time.perf_counter()
     s = Structure(
         tape=tape, functions=fns, evaluator=ev, key=key,
         fixed_flags=tuple(v.fixed for v in tape.all_vars),

@@ -34,10 +34,9 @@ from dataclasses import dataclass, field
 
 from pyomo.core.base.constraint import Constraint
 from pyomo.core.base.objective import Objective, maximize
-from pyomo.core.base.var import VarData
+from pyomo.core.base.expression import NamedExpressionData
 from pyomo.core.base.param import ParamData
-from pyomo.core.base.expression import ExpressionData, NamedExpressionData
-from pyomo.core.base.objective import ObjectiveData
+from pyomo.core.base.var import VarData
 from pyomo.core.expr import numeric_expr as ne
 from pyomo.core.expr import relational_expr as re_
 from pyomo.core.expr.numvalue import NumericConstant, value as pyo_value
@@ -129,29 +128,30 @@ class _Walker:
         self.keep: list = []  # keeps memoised objects alive so their ids stay unique
         self.consts: dict[float, int] = {}
         self.component = "?"
+        memo = self._memoised
         self.dispatch = {
-            ne.SumExpression: self._sum,
-            ne.LinearExpression: self._sum,
-            ne.NPV_SumExpression: self._sum,
-            ne.MonomialTermExpression: self._product,
-            ne.ProductExpression: self._product,
-            ne.NPV_ProductExpression: self._product,
-            ne.DivisionExpression: self._division,
-            ne.NPV_DivisionExpression: self._division,
-            ne.PowExpression: self._pow,
-            ne.NPV_PowExpression: self._pow,
-            ne.NegationExpression: self._negation,
-            ne.NPV_NegationExpression: self._negation,
-            ne.UnaryFunctionExpression: self._unary,
-            ne.NPV_UnaryFunctionExpression: self._unary,
-            ne.AbsExpression: self._unary,
-            ne.NPV_AbsExpression: self._unary,
-            ne.Expr_ifExpression: self._expr_if,
-            ne.NPV_Expr_ifExpression: self._expr_if,
-            ne.MaxExpression: self._maxmin,
-            ne.NPV_MaxExpression: self._maxmin,
-            ne.MinExpression: self._maxmin,
-            ne.NPV_MinExpression: self._maxmin,
+            ne.SumExpression: memo(self._sum),
+            ne.LinearExpression: memo(self._sum),
+            ne.NPV_SumExpression: memo(self._sum),
+            ne.MonomialTermExpression: memo(self._product),
+            ne.ProductExpression: memo(self._product),
+            ne.NPV_ProductExpression: memo(self._product),
+            ne.DivisionExpression: memo(self._division),
+            ne.NPV_DivisionExpression: memo(self._division),
+            ne.PowExpression: memo(self._pow),
+            ne.NPV_PowExpression: memo(self._pow),
+            ne.NegationExpression: memo(self._negation),
+            ne.NPV_NegationExpression: memo(self._negation),
+            ne.UnaryFunctionExpression: memo(self._unary),
+            ne.NPV_UnaryFunctionExpression: memo(self._unary),
+            ne.AbsExpression: memo(self._unary),
+            ne.NPV_AbsExpression: memo(self._unary),
+            ne.Expr_ifExpression: memo(self._expr_if),
+            ne.NPV_Expr_ifExpression: memo(self._expr_if),
+            ne.MaxExpression: memo(self._maxmin),
+            ne.NPV_MaxExpression: memo(self._maxmin),
+            ne.MinExpression: memo(self._maxmin),
+            ne.NPV_MinExpression: memo(self._maxmin),
             re_.InequalityExpression: self._inequality,
             re_.RangedExpression: self._ranged,
             re_.EqualityExpression: self._equality,
@@ -160,6 +160,20 @@ class _Walker:
         for num in _NUMBER_TYPES:
             self.dispatch[num] = self._number
         self.unsupported = (ne.ExternalFunctionExpression, ne.NPV_ExternalFunctionExpression)
+
+    def _memoised(self, handler):
+        """``handler`` converting each Pyomo node object once (shared sub-trees)."""
+        memo, keep = self.memo, self.keep
+
+        def convert_once(node):
+            key = id(node)
+            nid = memo.get(key)
+            if nid is None:
+                nid = memo[key] = handler(node)
+                keep.append(node)  # keeps the id unique while the walk runs
+            return nid
+
+        return convert_once
 
     # --- node creation --------------------------------------------------------------
     def _node(self, op, level, a1=-1, a2=-1, a3=-1, aux=0.0) -> int:
@@ -179,9 +193,6 @@ class _Walker:
         if nid is None:
             nid = self.consts[key] = self._node(C, 0, aux=v)
         return nid
-
-    def _is_const(self, nid) -> bool:
-        return self.t.op[nid] == C
 
     def lin(self, args, coefs, const) -> int:
         """Linear combination ``const + sum(coef * arg)``, folding constant arguments."""
@@ -325,10 +336,6 @@ class _Walker:
 
     # --- operations -----------------------------------------------------------------------
     def _sum(self, node) -> int:
-        key = id(node)
-        nid = self.memo.get(key)
-        if nid is not None:
-            return nid
         const = 0.0
         args, coefs = [], []
         conv = self.conv
@@ -348,15 +355,9 @@ class _Walker:
             args.append(conv(a))
             coefs.append(1.0)
         nid = self.lin(args, coefs, const)
-        self.memo[key] = nid
-        self.keep.append(node)
         return nid
 
     def _product(self, node) -> int:
-        key = id(node)
-        nid = self.memo.get(key)
-        if nid is not None:
-            return nid
         a, b = node._args_
         if a.__class__ in _NUMBER_TYPES:
             nid = self.lin([self.conv(b)], [a], 0.0)
@@ -369,15 +370,9 @@ class _Walker:
                 nid = self.lin([ia], [t.aux[ib]], 0.0)
             else:
                 nid = self.binary(MUL, ia, ib)
-        self.memo[key] = nid
-        self.keep.append(node)
         return nid
 
     def _division(self, node) -> int:
-        key = id(node)
-        nid = self.memo.get(key)
-        if nid is not None:
-            return nid
         a, b = node._args_
         ia, ib = self.conv(a), self.conv(b)
         t = self.t
@@ -385,15 +380,9 @@ class _Walker:
             nid = self.lin([ia], [1.0 / t.aux[ib]], 0.0)
         else:
             nid = self.binary(DIV, ia, ib)
-        self.memo[key] = nid
-        self.keep.append(node)
         return nid
 
     def _pow(self, node) -> int:
-        key = id(node)
-        nid = self.memo.get(key)
-        if nid is not None:
-            return nid
         a, b = node._args_
         ia, ib = self.conv(a), self.conv(b)
         t = self.t
@@ -407,25 +396,13 @@ class _Walker:
                 nid = self._node(POWC, t.level[ia] + 1, ia, aux=e)
         else:
             nid = self.binary(POW, ia, ib)
-        self.memo[key] = nid
-        self.keep.append(node)
         return nid
 
     def _negation(self, node) -> int:
-        key = id(node)
-        nid = self.memo.get(key)
-        if nid is not None:
-            return nid
         nid = self.lin([self.conv(node._args_[0])], [-1.0], 0.0)
-        self.memo[key] = nid
-        self.keep.append(node)
         return nid
 
     def _unary(self, node) -> int:
-        key = id(node)
-        nid = self.memo.get(key)
-        if nid is not None:
-            return nid
         name = node.getname()
         code = UNARY_CODE.get(name)
         if code is None:
@@ -439,15 +416,9 @@ class _Walker:
             nid = self.const(self._fold(_MATH[name], t.aux[ia]))
         else:
             nid = self._node(code, t.level[ia] + 1, ia)
-        self.memo[key] = nid
-        self.keep.append(node)
         return nid
 
     def _expr_if(self, node) -> int:
-        key = id(node)
-        nid = self.memo.get(key)
-        if nid is not None:
-            return nid
         c, a, b = node.args
         ic, ia, ib = self.conv(c), self.conv(a), self.conv(b)
         t = self.t
@@ -456,22 +427,14 @@ class _Walker:
         else:
             lvl = max(t.level[ic], t.level[ia], t.level[ib]) + 1
             nid = self._node(IFELSE, lvl, ic, ia, ib)
-        self.memo[key] = nid
-        self.keep.append(node)
         return nid
 
     def _maxmin(self, node) -> int:
-        key = id(node)
-        nid = self.memo.get(key)
-        if nid is not None:
-            return nid
         op = FMAX if isinstance(node, ne.MaxExpression) else FMIN
         ids = [self.conv(a) for a in node.args]
         nid = ids[0]
         for other in ids[1:]:
             nid = self.binary(op, nid, other)
-        self.memo[key] = nid
-        self.keep.append(node)
         return nid
 
     def _inequality(self, node) -> int:
@@ -542,8 +505,6 @@ def convert(model, constraints=None, objective=None) -> Tape:
         try:
             body = con.body
             has_bound = con.has_lb() or con.has_ub()
-        except ModelError:
-            raise
         except Exception as exc:  # Pyomo raises ValueError/PyomoException types here
             raise ModelError(f"constraint {con.name}: cannot be converted ({exc})") from None
         if not has_bound:
