@@ -180,6 +180,8 @@ def check_train(col: Collector, zone_ids: Sequence[str], step_feed: Sequence[Ste
                 key = f"flows.recycles.{culprits[0]}" if culprits else zone_key(z)
                 col.error(key, f"forward flow {z} -> {nxt} is negative in {len(bad)} of {n} periods "
                                f"(first period {bad[0] + 1})", round(fwd[i][bad[0]], 6), ">= 0 m3/d")
+        if col.count > before:
+            return  # reachability below would only repeat the negative flows
     g = flowing_subgraph(train_graph(ids, step_feed, recycles, return_sludge, wasting, flow))
     reach = nx.descendants(g, INFLUENT) if INFLUENT in g else set()
     for z in ids:

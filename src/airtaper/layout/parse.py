@@ -27,6 +27,9 @@ from airtaper.layout.types import (
 )
 
 ZONE_KINDS = ("aerated", "anoxic", "swing")
+#: Words engineers use for a zone kind, for the "did you mean" hint.
+ZONE_KIND_SYNONYMS = {"aerobic": "aerated", "oxic": "aerated", "aeration": "aerated",
+                      "unaerated": "anoxic", "switch": "swing", "swing zone": "swing"}
 CLARIFIER_KINDS = ("ideal", "layered")
 OBJECTIVES = ("energy", "cost")
 MAX_LAYOUT_BYTES = 5_000_000
@@ -219,6 +222,7 @@ class _Parser:
     def diffuser_types(self) -> dict[str, DiffuserType]:
         out: dict[str, DiffuserType] = {}
         self.declared_types: set[str] = set()
+        self.membrane_areas: dict[str, float] = {}
         for t, ident in self._items_of(self.root.array("diffuser_types"), "diffuser_types"):
             if ident is not None:
                 self.declared_types.add(ident)
@@ -230,6 +234,8 @@ class _Parser:
     def diffuser_type(self, t: Table, ident) -> DiffuserType:
         col = self.col
         area = t.number("membrane_area_m2", gt=0.0, le=5.0)
+        if area is not None and ident is not None:
+            self.membrane_areas[ident] = area  # for density checks even if the rest of the type is wrong
         qmin = t.number("airflow_min_Sm3_h", ge=0.0)
         qmax = t.number("airflow_max_Sm3_h", gt=0.0)
         de = t.number("effective_depth_fraction", D.EFFECTIVE_DEPTH_FRACTION, gt=0.0, lt=1.0)
@@ -339,7 +345,7 @@ class _Parser:
 
     def zone(self, t: Table, ident, zd: dict, types: dict) -> Zone:
         col = self.col
-        kind = t.string("kind", choices=ZONE_KINDS)
+        kind = t.string("kind", choices=ZONE_KINDS, synonyms=ZONE_KIND_SYNONYMS)
         volume = t.number("volume_m3", gt=0.0)
         depth = t.number("depth_m", gt=0.0)
         area = t.number("area_m2", None, gt=0.0)
@@ -504,12 +510,16 @@ class _Parser:
         flow, ratio = self._flow_or_ratio(t, q, {"ge": 0.0}, {"ge": 0.0}, "recycle")
         return Recycle(ident, frm, to, flow, ratio)
 
-    def return_sludge(self, t: Table, first, q) -> ReturnSludge:
+    def return_sludge(self, t: Table | None, first, q) -> ReturnSludge | None:
+        if t is None:
+            return None  # the missing table is already reported
         to = t.string("to_zone", first)
         flow, ratio = self._flow_or_ratio(t, q, {"gt": 0.0, "le": 10.0}, {"gt": 0.0}, "return sludge")
         return ReturnSludge(to, flow, ratio)
 
-    def waste(self, t: Table, q) -> Wasting:
+    def waste(self, t: Table | None, q) -> Wasting | None:
+        if t is None:
+            return None  # the missing table is already reported
         has_srt, has_flow = t.has("srt_d"), t.has("flow_m3_d")
         if has_srt == has_flow:
             self.col.error(t.path, "give either srt_d or flow_m3_d for the waste sludge",
@@ -691,16 +701,19 @@ class _Parser:
                 col.warn(f"{key}.volume_m3", f"very large zone ({z.volume_m3:g} m3): was it typed in litres?")
             if not D.WARN_DEPTH_m[0] <= z.depth_m <= D.WARN_DEPTH_m[1]:
                 col.warn(f"{key}.depth_m", f"unusual side-water depth {z.depth_m:g} m")
-            if z.grid is None or z.grid.type_id not in types:
+            if z.grid is None or z.grid.type_id not in self.membrane_areas:
                 continue
             used_types.add(z.grid.type_id)
-            dt = types[z.grid.type_id]
-            density = 100.0 * z.grid.count * dt.membrane_area_m2 / z.area_m2
+            membrane = self.membrane_areas[z.grid.type_id]
+            density = 100.0 * z.grid.count * membrane / z.area_m2
             if density > D.DENSITY_MAX_PERCENT:
-                fits = int(D.DENSITY_MAX_PERCENT / 100.0 * z.area_m2 / dt.membrane_area_m2)
+                fits = int(D.DENSITY_MAX_PERCENT / 100.0 * z.area_m2 / membrane)
                 col.error(f"{key}.grid.count", f"diffusers cover {density:.1f} % of the floor, more than fits",
                           z.grid.count, f"<= {fits} ({D.DENSITY_MAX_PERCENT:g} % of {z.area_m2:.1f} m2)")
                 continue
+            if z.grid.type_id not in types:
+                continue
+            dt = types[z.grid.type_id]
             dens = [p.density_percent for p in dt.sote_points]
             if not min(dens) <= density <= max(dens):
                 col.warn(f"{key}.grid.count", f"diffuser density {density:.1f} % is outside the tested "
@@ -713,7 +726,7 @@ class _Parser:
             if lo > hi:
                 col.error(f"{key}.grid", "no feasible airflow: the minimum exceeds what grid and valve pass",
                           f"minimum {lo:.0f} Sm3/h", f"<= maximum {hi:.0f} Sm3/h")
-        for tid in sorted(set(types) - used_types):
+        for tid in sorted(set(types) - used_types - {z.grid.type_id for z in zones if z.grid is not None}):
             col.warn(f"diffuser_types.{tid}", "diffuser type used by no zone")
         gridded = [z for z in zones if z.grid is not None]
         if gridded and not blowers and "blowers" not in self.root.data:

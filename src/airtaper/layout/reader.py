@@ -142,7 +142,7 @@ class Table:
             return None
         return value
 
-    def string(self, name: str, default=MISSING, *, choices=None):
+    def string(self, name: str, default=MISSING, *, choices=None, synonyms=None):
         if not self.has(name):
             if default is MISSING:
                 self._missing(name, "a string" if choices is None else "one of " + ", ".join(choices))
@@ -152,7 +152,7 @@ class Table:
             self.col.error(self.key(name), "must be a string", value, "a string")
             return None
         if choices is not None and value not in choices:
-            hint = did_you_mean(value, choices)
+            hint = (synonyms or {}).get(value.strip().lower()) or did_you_mean(value, choices)
             problem = f"unknown value, did you mean {hint!r}?" if hint else "unknown value"
             self.col.error(self.key(name), problem, value, "one of " + ", ".join(choices))
             return None

@@ -1,0 +1,7 @@
+"""`python -m airtaper`: the same as the `airtaper` command."""
+
+import sys
+
+from airtaper.cli.main import main
+
+sys.exit(main())

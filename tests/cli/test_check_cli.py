@@ -1,0 +1,127 @@
+"""`airtaper check`: the train table on a good layout, error lines and exit 2 on a bad one, never a traceback."""
+
+from __future__ import annotations
+
+import re
+import shutil
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from airtaper import __version__
+from airtaper.cli import check as check_cmd
+from airtaper.cli.main import main
+from airtaper.errors import EXIT_FAILURE, EXIT_INPUT, EXIT_OK
+
+ROOT = Path(__file__).resolve().parents[2]
+DEMO = ROOT / "layouts" / "demo.toml"
+THREE = ROOT / "layouts" / "three_tank.toml"
+
+
+@pytest.fixture
+def bad_layout(tmp_path):
+    """The demo with three mistakes: a negative volume, a typo'd key, a recycle to nowhere."""
+    text = DEMO.read_text()
+    text = text.replace('id = "Z3"\nkind = "aerated"\nvolume_m3 = 900.0', 'id = "Z3"\nkind = "aerated"\nvolume_m3 = -900.0')
+    text = text.replace("valve_capacity_Sm3_h = 4000.0", "valve_capacity_Sm3h = 4000.0")
+    text = text.replace('from_zone = "Z6"\nto_zone = "Z1"', 'from_zone = "Z6"\nto_zone = "Z0"')
+    path = tmp_path / "bad.toml"
+    path.write_text(text)
+    shutil.copy(ROOT / "layouts" / "demo_influent.csv", tmp_path / "demo_influent.csv")
+    return path
+
+
+def test_check_demo_prints_the_train(capsys):
+    assert main(["check", str(DEMO)]) == EXIT_OK
+    out, err = capsys.readouterr()
+    assert err == ""
+    lines = out.splitlines()
+    assert lines[0] == f"Brackenford town works, train 1 ({DEMO})"
+    header = next(line for line in lines if line.startswith("zone"))
+    for column in ("zone", "kind", "volume m3", "HRT h", "diffusers", "density %", "airflow Sm3/h"):
+        assert column in header
+    rows = {line.split()[0]: line.split() for line in lines if re.match(r"^(Z\d|total)\s", line)}
+    assert rows["Z1"][:5] == ["Z1", "anoxic", "1,100", "2.20", "-"]
+    assert rows["Z2"] == ["Z2", "aerated", "900", "1.80", "800", "x", "disc_040", "19.6", "800-5,600"]
+    assert rows["Z6"] == ["Z6", "aerated", "900", "1.80", "380", "x", "disc_040", "9.3", "380-2,660"]
+    assert rows["total"] == ["total", "5,600", "11.20", "2,880", "2,880-20,160"]
+    assert "recycle IR Z6 -> Z1 2.5 x Q" in out and "objective: cost" in out
+
+
+def test_check_three_tank(capsys):
+    assert main(["check", str(THREE)]) == EXIT_OK
+    out, _ = capsys.readouterr()
+    assert "T3     aerated        500   4.00  260 x disc_030        7.0      260-1,430" in out
+    assert "objective: energy" in out
+
+
+def test_check_bad_layout_lists_every_problem(bad_layout, capsys):
+    assert main(["check", str(bad_layout)]) == EXIT_INPUT
+    out, err = capsys.readouterr()
+    assert out == ""
+    assert err.splitlines() == [
+        f"error: {bad_layout}: zones.Z3.volume_m3: must be positive (got -900.0, expected > 0)",
+        f"error: {bad_layout}: zones.Z4.valve_capacity_Sm3h: unknown key, did you mean 'valve_capacity_Sm3_h'?",
+        f"error: {bad_layout}: flows.recycles.IR.to_zone: recycle to or from no zone (got 'Z0', expected one of "
+        "Z1, Z2, Z3, Z4, Z5, Z6)",
+    ]
+
+
+def test_warnings_go_to_stderr_and_exit_zero(tmp_path, capsys):
+    text = THREE.read_text().replace("volume_m3 = 500.0\ndepth_m = 4.5\ngrid = { type = \"disc_030\", count = 260",
+                                     "volume_m3 = 500.0\ndepth_m = 4.5\narea_m2 = 130.0\n"
+                                     "grid = { type = \"disc_030\", count = 260")
+    path = tmp_path / "warn.toml"
+    path.write_text(text)
+    assert main(["check", str(path)]) == EXIT_OK
+    out, err = capsys.readouterr()
+    assert err.splitlines() == [f"warning: {path}: zones.T3.area_m2: floor area 130 m2 differs from "
+                                "volume_m3 / depth_m = 111.1 m2 by more than 15 %"]
+    assert "T3" in out
+
+
+def test_missing_file(tmp_path, capsys):
+    missing = tmp_path / "nope.toml"
+    assert main(["check", str(missing)]) == EXIT_INPUT
+    assert capsys.readouterr().err == f"error: {missing}: (file): cannot read the layout: No such file or directory\n"
+
+
+def test_version(capsys):
+    assert main(["--version"]) == EXIT_OK
+    assert capsys.readouterr().out.strip() == f"airtaper {__version__}"
+
+
+def test_no_command_and_usage_errors_exit_2(capsys):
+    assert main([]) == EXIT_INPUT
+    assert main(["check"]) == EXIT_INPUT  # argparse: the LAYOUT argument is required
+    assert main(["frobnicate"]) == EXIT_INPUT
+    assert "Traceback" not in capsys.readouterr().err
+
+
+def test_internal_failure_is_reported_without_traceback(monkeypatch, capsys):
+    def boom(*args, **kwargs):
+        raise RuntimeError("simulated")
+    monkeypatch.setattr(check_cmd, "load_layout", boom)
+    monkeypatch.delenv("AIRTAPER_DEBUG", raising=False)
+    assert main(["check", str(DEMO)]) == EXIT_FAILURE
+    err = capsys.readouterr().err
+    assert err.startswith("error: internal failure: RuntimeError: simulated") and "Traceback" not in err
+
+
+def test_python_dash_m_on_a_bad_layout(bad_layout):
+    proc = subprocess.run([sys.executable, "-m", "airtaper", "check", str(bad_layout)],
+                          capture_output=True, text=True, timeout=120)
+    assert proc.returncode == EXIT_INPUT
+    assert proc.stdout == ""
+    assert "Traceback" not in proc.stderr
+    lines = proc.stderr.splitlines()
+    assert len(lines) == 3 and all(line.startswith("error: ") for line in lines)
+
+
+def test_python_dash_m_on_the_demo():
+    proc = subprocess.run([sys.executable, "-m", "airtaper", "check", str(DEMO)], capture_output=True, text=True,
+                          timeout=120)
+    assert proc.returncode == EXIT_OK, proc.stderr
+    assert "2,880-20,160" in proc.stdout

@@ -1,0 +1,272 @@
+"""Invalid layouts: each mistake gives its own precise `error: <file>: <key path>: <problem>` line."""
+
+from __future__ import annotations
+
+import os
+import shutil
+
+import pytest
+
+from airtaper.errors import InputError
+from airtaper.layout import load_layout, parse_layout
+
+
+def _zone(d, zone_id):
+    return next(z for z in d["zones"] if z["id"] == zone_id)
+
+
+def _set(path, value):
+    """A mutator setting d[path...] = value (path of keys / indices, zone ids as 'zones:<id>')."""
+    def apply(d):
+        node = d
+        for k in path[:-1]:
+            node = _zone(d, k[6:]) if isinstance(k, str) and k.startswith("zones:") else node[k]
+        node[path[-1]] = value
+    return apply
+
+
+def _typo(d):
+    z = _zone(d, "Z3")
+    z["volme_m3"] = z.pop("volume_m3")
+
+
+def _no_grid(d):
+    del _zone(d, "Z4")["grid"]
+
+
+def _anoxic_grid(d):
+    _zone(d, "Z1")["grid"] = {"type": "disc_040", "count": 100, "submergence_m": 5.2}
+
+
+def _no_tariff(d):
+    del d["tariff"]
+
+
+def _rename_blowers(d):
+    d["blower"] = d.pop("blowers")
+
+
+def _unreachable(d):
+    d["flows"]["step_feed"] = [{"zone": "Z3", "fraction": 1.0}]
+    d["flows"]["return_sludge"]["to_zone"] = "Z3"
+    d["flows"]["recycles"][0]["to_zone"] = "Z3"
+
+
+def _short_step_feed(d):
+    d["flows"]["step_feed"] = [{"zone": "Z1", "fraction": 0.7}, {"zone": "Z3", "fraction": 0.2}]
+
+
+E = "error: bad.toml: "
+
+# (id, base layout, mutation, the exact lines expected)
+CASES = [
+    ("negative-volume", "demo", _set(["zones:Z2", "volume_m3"], -900.0),
+     [E + "zones.Z2.volume_m3: must be positive (got -900.0, expected > 0)"]),
+    ("volume-as-text", "demo", _set(["zones:Z2", "volume_m3"], "900"),
+     [E + "zones.Z2.volume_m3: must be a number (got '900', expected a number)"]),
+    ("key-typo", "demo", _typo,
+     [E + "zones.Z3.volume_m3: missing required key (expected a number)",
+      E + "zones.Z3.volme_m3: unknown key, did you mean 'volume_m3'?"]),
+    ("aerated-zone-without-diffusers", "demo", _no_grid,
+     [E + "zones.Z4.grid: aerated zone has no diffusers (expected a [zones.grid] table (or fixed_kla_per_d))"]),
+    ("recycle-to-nowhere", "demo", _set(["flows", "recycles", 0, "to_zone"], "Z9"),
+     [E + "flows.recycles.IR.to_zone: recycle to or from no zone (got 'Z9', expected one of Z1, Z2, Z3, Z4, Z5, Z6)"]),
+    ("step-feed-sum", "demo", _short_step_feed,
+     [E + "flows.step_feed: step-feed fractions must sum to 1 (got 0.9, expected 1)"]),
+    ("density-above-the-physical-maximum", "demo", _set(["zones:Z2", "grid", "count"], 1200),
+     [E + "zones.Z2.grid.count: diffusers cover 29.3 % of the floor, more than fits "
+          "(got 1200, expected <= 1022 (25 % of 163.6 m2))"]),
+    ("submergence-not-below-depth", "demo", _set(["zones:Z5", "grid", "submergence_m"], 5.5),
+     [E + "zones.Z5.grid.submergence_m: diffusers must be below the water surface and above the floor "
+          "(got 5.5, expected < depth_m = 5.5)"]),
+    ("sote-rising-with-airflow", "demo", _set(["diffuser_types", 0, "sote_points", 2, "sote_percent"], 23.5),
+     [E + "diffuser_types.disc_040.sote_points[3].sote_percent: SOTE must not rise with airflow "
+          "(same density and submergence) (got 23.5, expected <= 22.8)"]),
+    ("headloss-points-out-of-order", "demo",
+     _set(["diffuser_types", 0, "headloss_points", 2, "airflow_per_diffuser_Sm3_h"], 2.0),
+     [E + "diffuser_types.disc_040.headloss_points[3].airflow_per_diffuser_Sm3_h: airflow must increase from "
+          "point to point (got 2.0, expected > 3)"]),
+    ("unknown-diffuser-type", "demo", _set(["zones:Z6", "grid", "type"], "disc_04"),
+     [E + "zones.Z6.grid.type: no such diffuser type, did you mean 'disc_040'? "
+          "(got 'disc_04', expected one of disc_040)"]),
+    ("anoxic-zone-with-diffusers", "demo", _anoxic_grid,
+     [E + 'zones.Z1.grid: an anoxic zone takes no air (expected no such key, or kind = "swing" for a zone that '
+          'can be aerated)']),
+    ("duplicate-zone-id", "demo", _set(["zones:Z3", "id"], "Z2"),
+     [E + "zones[3].id: duplicate id (got 'Z2', expected ids unique within zones)"]),
+    ("reserved-zone-id", "demo", _set(["zones:Z6", "id"], "clarifier"),
+     [E + "zones[6].id: reserved name (got 'clarifier', expected not one of influent, clarifier, effluent, waste)"]),
+    ("return-sludge-ratio-and-flow", "demo", _set(["flows", "return_sludge", "flow_m3_d"], 9000.0),
+     [E + "flows.return_sludge: give either ratio or flow_m3_d for the return sludge "
+          "(got 'both', expected exactly one of ratio, flow_m3_d)"]),
+    ("waste-without-flow-or-srt", "demo", _set(["flows", "waste"], {}),
+     [E + "flows.waste: give either srt_d or flow_m3_d for the waste sludge "
+          "(got 'neither', expected exactly one of srt_d, flow_m3_d)"]),
+    ("blower-below-static-head", "demo", _set(["blowers", 2, "pressure_max_gauge_kPa"], 45.0),
+     [E + "blowers.B3.pressure_max_gauge_kPa: below the static head of the deepest grid (Z2, 5.2 m) "
+          "(got 45.0, expected > 51.0 kPa)"]),
+    ("blower-range-empty", "demo", _set(["blowers", 0, "airflow_max_Sm3_h"], 4000.0),
+     [E + "blowers.B1.airflow_max_Sm3_h: must exceed airflow_min_Sm3_h (got 4000.0, expected > 4500)"]),
+    ("cost-objective-without-tariff", "demo", _no_tariff,
+     [E + 'operation.objective: a cost objective needs a [tariff] (got \'cost\', expected "energy", or add [tariff])']),
+    ("tariff-band-not-at-midnight", "demo", _set(["tariff", "price_per_kWh", 0, 0], 1.0),
+     [E + "tariff.price_per_kWh[1][1]: the first band must start at 0 h (got 1.0, expected 0)"]),
+    ("per-period-list-too-short", "demo", _set(["inlet_air", "temperature_C"], [14.0] * 23),
+     [E + "inlet_air.temperature_C: wrong number of values (got '23 values', expected 24 (one per period))"]),
+    ("unknown-section", "demo", _rename_blowers,
+     [E + "blower: unknown key, did you mean 'blowers'?",
+      E + "blowers: zones have diffuser grids but there are no blowers (expected at least one [[blowers]] table)"]),
+    ("zones-not-reachable", "demo", _unreachable,
+     [E + "zones.Z1: zone receives no flow (not reachable from the influent) (expected a step feed, recycle or "
+          "return sludge into it or a zone upstream)",
+      E + "zones.Z2: zone receives no flow (not reachable from the influent) (expected a step feed, recycle or "
+          "return sludge into it or a zone upstream)"]),
+    ("recycle-to-itself", "demo", _set(["flows", "recycles", 0, "to_zone"], "Z6"),
+     [E + "flows.recycles.IR.to_zone: recycle returns to the zone it leaves (got 'Z6', expected a zone other than "
+          "from_zone)"]),
+    ("nh4-above-tkn", "three", _set(["influent", "nh4_mg_L"], 50.0),
+     [E + "influent.nh4_mg_L: NH4-N exceeds TKN (got 50.0, expected <= tkn_mg_L = 45)"]),
+    ("fractionation-leaves-negative-xs", "three", _set(["influent", "cod_soluble_mg_L"], 400.0),
+     [E + "influent.cod_soluble_mg_L: particulate COD too small for the fractionation (XS < 0) (got 400.0, "
+          "expected <= cod_total_mg_L x (1 - xi_of_cod - xbh_of_cod - xba_of_cod) = 360)"]),
+    ("soluble-above-total-cod", "three", _set(["influent", "cod_soluble_mg_L"], 500.0),
+     [E + "influent.cod_soluble_mg_L: soluble COD exceeds total COD (got 500.0, expected <= cod_total_mg_L = 450)"]),
+    ("fractions-sum-to-one-or-more", "three", _set(["influent", "fractionation"], {"si_of_cod": 0.5,
+                                                                                "xi_of_cod": 0.5}),
+     [E + "influent.fractionation: fractions of total COD leave nothing biodegradable (got 1.07, expected "
+          "si_of_cod + xi_of_cod + xbh_of_cod + xba_of_cod < 1)"]),
+    ("kinetic-override-typo", "demo", _set(["kinetics", "overrides"], {"mu_h": 5.0}),
+     [E + "kinetics.overrides.mu_h: unknown key, did you mean 'mu_H'?"]),
+    ("do-max-below-do-min", "demo", _set(["zones:Z6", "do_max_mg_L"], 0.8),
+     [E + "zones.Z6.do_max_mg_L: must exceed the DO minimum (got 0.8, expected > 1)"]),
+    ("zone-kind-word", "demo", _set(["zones:Z2", "kind"], "aerobic"),
+     [E + "zones.Z2.kind: unknown value, did you mean 'aerated'? (got 'aerobic', expected one of aerated, anoxic, "
+          "swing)"]),
+    ("blower-efficiency-twice", "three", _set(["blowers", 0, "efficiency"], 0.6),
+     [E + "blowers.PD1: give either efficiency or efficiency_points (got 'both', expected exactly one of "
+          "efficiency, efficiency_points)"]),
+    ("horizon-zero-periods", "three", _set(["horizon"], {"n_periods": 0}),
+     [E + "horizon.n_periods: out of range (got 0, expected >= 1 and <= 288)"]),
+    ("alpha-above-one-point-two", "three", _set(["zones", 0, "alpha"], 5.0),
+     [E + "zones.T1.alpha: out of range (got 5.0, expected > 0 and <= 1.2)"]),
+    ("recycle-ratio-negative", "demo", _set(["flows", "recycles", 0, "ratio"], -1.0),
+     [E + "flows.recycles.IR.ratio: out of range (got -1.0, expected >= 0)"]),
+    ("not-a-table", "three", _set(["influent"], 3000.0),
+     [E + "influent: must be a table (got 3000.0, expected a table)"]),
+]
+
+
+@pytest.mark.parametrize("base,mutate,expected", [c[1:] for c in CASES], ids=[c[0] for c in CASES])
+def test_invalid_layout_message(base, mutate, expected, demo_data, three_data, errors_of):
+    data = demo_data if base == "demo" else three_data
+    mutate(data)
+    assert errors_of(data) == expected
+
+
+def test_there_are_at_least_fifteen_distinct_cases():
+    assert len({c[0] for c in CASES}) >= 15
+    assert len({tuple(c[3]) for c in CASES}) == len(CASES)
+
+
+def test_every_problem_is_listed_at_once(demo_data, errors_of):
+    chosen = ["key-typo", "aerated-zone-without-diffusers", "recycle-to-nowhere", "step-feed-sum",
+              "density-above-the-physical-maximum", "submergence-not-below-depth", "sote-rising-with-airflow",
+              "blower-below-static-head", "tariff-band-not-at-midnight"]
+    cases = [c for c in CASES if c[0] in chosen]
+    for c in cases:
+        c[2](demo_data)
+    lines = errors_of(demo_data)
+    assert sorted(lines) == sorted(line for c in cases for line in c[3])
+
+
+def test_step_feed_and_recycle_problems_are_listed_together(demo_data, errors_of):
+    _short_step_feed(demo_data)
+    demo_data["flows"]["recycles"][0]["from_zone"] = "Z7"
+    assert errors_of(demo_data) == [
+        E + "flows.step_feed: step-feed fractions must sum to 1 (got 0.9, expected 1)",
+        E + "flows.recycles.IR.from_zone: no such zone (got 'Z7', expected one of Z1, Z2, Z3, Z4, Z5, Z6)",
+    ]
+
+
+# --- files: TOML syntax, the CSV ------------------------------------------------------------------
+@pytest.fixture
+def plant_dir(tmp_path, layouts_dir):
+    shutil.copy(layouts_dir / "demo.toml", tmp_path / "demo.toml")
+    shutil.copy(layouts_dir / "demo_influent.csv", tmp_path / "demo_influent.csv")
+    return tmp_path
+
+
+def _load_errors(path) -> list[str]:
+    with pytest.raises(InputError) as info:
+        load_layout(path)
+    return [str(p) for p in info.value.problems]
+
+
+def test_toml_syntax_error_names_line_and_column(tmp_path):
+    bad = tmp_path / "syntax.toml"
+    bad.write_text('[plant]\nname = "x"\nelevation_m = = 3\n')
+    assert _load_errors(bad) == [f"error: {bad}: line 3, column 15: TOML syntax: Invalid value"]
+
+
+def test_missing_layout_file(tmp_path):
+    missing = tmp_path / "missing.toml"
+    assert _load_errors(missing) == [f"error: {missing}: (file): cannot read the layout: No such file or directory"]
+
+
+def _edit_csv(plant_dir, fn):
+    path = plant_dir / "demo_influent.csv"
+    lines = path.read_text().splitlines()
+    fn(lines)
+    path.write_text("\n".join(lines) + "\n")
+    return os.path.join(str(plant_dir), "demo_influent.csv")
+
+
+# The demo CSV: two comment lines, the header on line 3, hour 0 on line 4.
+@pytest.mark.parametrize("edit,expected", [
+    (lambda ls: ls.__setitem__(8, ls[8].replace("6810", "abc")),
+     "row 9, column flow_m3_d: not a number (got 'abc', expected a number)"),
+    (lambda ls: ls.__setitem__(8, ls[8].replace("6810", "")),
+     "row 9, column flow_m3_d: empty cell (expected a number)"),
+    (lambda ls: ls.__setitem__(4, ls[4].replace(",8170,", ",-8170,")),
+     "row 5, column flow_m3_d: must be positive (got -8170.0, expected > 0)"),
+    (lambda ls: ls.__setitem__(2, ls[2].replace("nh4_mg_L", "nh3_mg_L")),
+     "row 3, column nh3_mg_L: unknown column, did you mean 'nh4_mg_L'?\n"
+     "row 3: missing column nh4_mg_L (expected columns time_h, flow_m3_d, cod_total_mg_L, cod_soluble_mg_L, "
+     "tkn_mg_L, nh4_mg_L, tss_mg_L, alkalinity_mol_m3)"),
+    (lambda ls: ls.__setitem__(10, ls[10].replace("7,10550,453,181", "7,10550,453,481")),
+     "row 11, column cod_soluble_mg_L: soluble COD exceeds total COD (got 481.0, expected <= cod_total_mg_L = 453)"),
+    (lambda ls: ls.__setitem__(10, "5" + ls[10][1:]),
+     "row 11, column time_h: times must increase from row to row (got 5.0, expected > 6)"),
+    (lambda ls: ls.__setitem__(12, ls[12] + ",1"),
+     "row 13: wrong number of fields (got 9, expected 8 (one per column))"),
+    (lambda ls: ls.__setitem__(3, "0.5" + ls[3][1:]),
+     "row 4, column time_h: the first row must start the day (got 0.5, expected 0)"),
+])
+def test_csv_problem_names_file_row_and_column(plant_dir, edit, expected):
+    csv_path = _edit_csv(plant_dir, edit)
+    assert _load_errors(plant_dir / "demo.toml") == [f"error: {csv_path}: {e}" for e in expected.split("\n")]
+
+
+def test_csv_missing_column(plant_dir):
+    def drop_alkalinity(ls):
+        for i in range(2, len(ls)):
+            ls[i] = ls[i].rsplit(",", 1)[0]
+    csv_path = _edit_csv(plant_dir, drop_alkalinity)
+    assert _load_errors(plant_dir / "demo.toml") == [
+        f"error: {csv_path}: row 3: missing column alkalinity_mol_m3 (expected columns time_h, flow_m3_d, "
+        "cod_total_mg_L, cod_soluble_mg_L, tkn_mg_L, nh4_mg_L, tss_mg_L, alkalinity_mol_m3)"]
+
+
+def test_csv_not_found(plant_dir):
+    os.remove(plant_dir / "demo_influent.csv")
+    assert _load_errors(plant_dir / "demo.toml") == [
+        f"error: {plant_dir / 'demo.toml'}: influent.csv: cannot read the influent CSV: No such file or directory "
+        "(got 'demo_influent.csv', expected an existing file relative to the layout's folder)"]
+
+
+def test_csv_influent_needs_a_folder(demo_data):
+    with pytest.raises(InputError) as info:
+        parse_layout(demo_data, "mem.toml", None)
+    assert [str(p) for p in info.value.problems] == [
+        "error: mem.toml: influent.csv: a CSV influent needs the layout's folder (got 'demo_influent.csv', "
+        "expected load the layout from a file, or pass base_dir)"]
