@@ -230,7 +230,7 @@ class PeriodicResult:
 
 
 def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30, tol: float = 1e-3,
-             rtol: float = 1e-6, atol: float = 1e-6) -> PeriodicResult:
+             rtol: float = 1e-5, atol: float = 1e-5) -> PeriodicResult:
     """Simulate whole days from the mean-load steady state until the day repeats.
 
     Parameters
@@ -325,7 +325,7 @@ def _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod
         # start the next period with the step size this one ended with (the last step may
         # have been shortened to land on the period end; take the larger of the last two)
         steps_taken = np.diff(sol.t)
-        first_step = float(max(steps_taken[-2:])) if steps_taken.size else None
+        first_step = float(min(max(steps_taken[-2:]), 0.5 * period_d)) if steps_taken.size else None
         for j in range(steps):
             t = t0 + (t1 - t0) * j / steps
             out_t.append(t)

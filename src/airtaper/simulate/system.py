@@ -54,7 +54,7 @@ from airtaper.layout.types import ASM1_COMPONENTS
 from airtaper.process.stoichiometry import (
     IDX, PARTICULATES, SOLIDS_COD, cod_composition, cod_of_n2, n2_yield, n_composition,
 )
-from airtaper.simulate.kinetics import process_rates, reaction_rates
+from airtaper.simulate.kinetics import process_rates
 from airtaper.simulate.plant import MODE_DO, Inputs, PlantData
 
 NC = len(ASM1_COMPONENTS)
@@ -178,7 +178,8 @@ class System:
         T -= inp.q_in_total[None, :, None] * Cz
         T[:, inp.return_to] += qr * cu
         T /= self.V[None, :, None]
-        dz = T + reaction_rates(Cz, inp.params, inp.nu_T)
+        rho = process_rates(Cz, inp.params)
+        dz = T + np.tensordot(inp.nu_T, rho, axes=(1, 0))
 
         so = Cz[SO]
         sat = inp.do_sat_mg_L[:, None]
@@ -205,7 +206,8 @@ class System:
         removal = qw * xu_ + qe * self.tss(ce)
         srt = (self.V[:, None] * tss_z).sum(axis=0) / np.maximum(removal, 1e-12)
         info = dict(kla_per_d=sq(kla), otr_g_m3_d=sq(otr), c_underflow=sq(cu), c_effluent=sq(ce),
-                    q_waste_m3_d=sq(qw), q_effluent_m3_d=sq(qe), q_underflow_m3_d=sq(qu), srt_d=sq(srt))
+                    q_waste_m3_d=sq(qw), q_effluent_m3_d=sq(qe), q_underflow_m3_d=sq(qu), srt_d=sq(srt),
+                    process_rates=sq(rho))
         return out, info
 
     # --- balances -------------------------------------------------------------
@@ -229,8 +231,7 @@ class System:
         if info is None:
             _, info = self.rhs(y, inp, detail=True)
         cod, nn = cod_composition(p), n_composition(p)
-        Cz = self.blocks(y)[: self.nz].T  # (13, nz)
-        n2 = float(self.V @ (n2_yield(p) @ process_rates(Cz, p)))
+        n2 = float(self.V @ (n2_yield(p) @ info["process_rates"]))
         qe, qw = float(info["q_effluent_m3_d"]), float(info["q_waste_m3_d"])
         ce, cu = info["c_effluent"], info["c_underflow"]
         out = dict(

@@ -1,0 +1,50 @@
+"""`airtaper simulate`: outputs, schedule input and bad input handling."""
+
+import json
+
+import pandas as pd
+
+from airtaper.cli.main import main
+
+
+def test_simulate_writes_outputs(tmp_path, capsys):
+    out = tmp_path / "sim"
+    assert main(["simulate", "layouts/three_tank.toml", "--out", str(out), "--do-setpoint", "1.5"]) == 0
+    ts = pd.read_csv(out / "timeseries.csv")
+    for col in ("time_h", "zone", "SI", "SALK", "airflow_Sm3_h", "otr_kg_h"):
+        assert col in ts.columns
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["periodic"] is True
+    assert summary["blower_kWh_per_day"] > 0
+    assert "SNH" in summary["effluent_mg_L"]
+    assert "periodic" in capsys.readouterr().out
+
+
+def test_simulate_with_schedule_and_bad_schedule(tmp_path, capsys):
+    from airtaper.layout import load_layout
+    lay = load_layout("layouts/three_tank.toml")
+    rows = []
+    for k in range(lay.horizon.n_periods):
+        for z in lay.zones:
+            if z.kind == "aerated":
+                lo, hi = lay.zone_airflow_range_Sm3_h(z)
+                rows.append({"period_start_h": k * lay.horizon.period_h, "zone": z.id,
+                             "airflow_Sm3_h": 0.5 * (lo + hi)})
+    sched = tmp_path / "schedule.csv"
+    pd.DataFrame(rows).to_csv(sched, index=False)
+    assert main(["simulate", "layouts/three_tank.toml", "--out", str(tmp_path / "a"), "--schedule", str(sched)]) == 0
+    bad = tmp_path / "bad.csv"
+    pd.DataFrame([{"period_start_h": 0.3, "zone": "nope", "airflow_Sm3_h": -1}]).to_csv(bad, index=False)
+    capsys.readouterr()
+    assert main(["simulate", "layouts/three_tank.toml", "--out", str(tmp_path / "b"), "--schedule", str(bad)]) == 2
+    err = capsys.readouterr().err
+    assert "no zone with this id" in err and "Traceback" not in err
+
+
+def test_simulate_refuses_to_overwrite_an_input(tmp_path, capsys):
+    # a schedule file named like an output, in the output folder, is never overwritten
+    sched = tmp_path / "timeseries.csv"
+    sched.write_text("period_start_h,zone,airflow_Sm3_h\n")
+    assert main(["simulate", "layouts/three_tank.toml", "--out", str(tmp_path), "--schedule", str(sched)]) == 2
+    assert "would overwrite an input" in capsys.readouterr().err
+    assert sched.read_text() == "period_start_h,zone,airflow_Sm3_h\n"
