@@ -102,11 +102,13 @@ XBA_OF_COD = 0.0  # autotrophic biomass (negligible in raw sewage)
 SND_OF_ORGANIC_N = 0.4  # soluble share of the biodegradable organic N
 SNO_mg_L = 0.0  # influent nitrate-N
 
-#: N content of biomass and of inert particulate products, g N / g COD, used only
-#: to display TKN for layouts that give ASM1 components directly (Henze et al.
-#: 1987, ASM1 typical values i_XB 0.086, i_XP 0.06; from memory).
-DISPLAY_I_XB = 0.086
-DISPLAY_I_XP = 0.06
+#: N content of biomass (i_XB) and of inert particulate products (i_XP), g N / g COD,
+#: per parameter set, used only to display TKN for layouts that give ASM1
+#: components directly: the values of airtaper.process.asm1 (asm1_20C: Henze et al.
+#: 1987 typical values, from memory; bsm1_15C: Alex et al. 2008). Overrides of
+#: i_XB / i_XP in [kinetics.overrides] take precedence.
+DISPLAY_N_CONTENT = {"asm1_20C": (0.086, 0.06), "bsm1_15C": (0.08, 0.06)}
+DISPLAY_I_XB, DISPLAY_I_XP = DISPLAY_N_CONTENT["asm1_20C"]
 
 # --- kinetics and operation -------------------------------------------------
 #: ASM1 parameter set (airtaper.process.asm1) and temperature correction.

@@ -213,8 +213,13 @@ def resample(times: list[float], rows: list[dict], n_periods: int) -> dict[str, 
     return {c: tuple(v) for c, v in out.items()}
 
 
-def read_influent(t: Table, n: int, base_dir: str | None, tss_per_cod: float) -> Influent | None:
-    """Read [influent]; ``tss_per_cod`` is used only to display TSS of ASM1 influents."""
+def read_influent(t: Table, n: int, base_dir: str | None, tss_per_cod: float,
+                  n_content: tuple[float, float] = (defaults.DISPLAY_I_XB, defaults.DISPLAY_I_XP)) -> Influent | None:
+    """Read [influent].
+
+    ``tss_per_cod`` and ``n_content`` (i_XB, i_XP) are used only to display TSS
+    and TKN of influents given as ASM1 components.
+    """
     col = t.col
     before = col.count
     frac = read_fractionation(t.table("fractionation"))
@@ -234,7 +239,7 @@ def read_influent(t: Table, n: int, base_dir: str | None, tss_per_cod: float) ->
         elif col.count == before:
             result = _from_csv(col, csv_name, n, base_dir, frac)
     elif asm1 is not None:
-        result = _from_asm1(t, asm1, n, frac, tss_per_cod)
+        result = _from_asm1(t, asm1, n, frac, tss_per_cod, n_content)
     else:
         values = {c: t.per_period(c, n, **_bounds(c)) for c in MEASURED}
         if col.count == before:
@@ -299,7 +304,7 @@ def influent_from_csv_text(col: Collector, shown: str, source: str, text: str, n
     return Influent(source, *(series[c] for c in MEASURED), fractionation=frac)
 
 
-def _from_asm1(t: Table, asm1: Table, n: int, frac, tss_per_cod: float):
+def _from_asm1(t: Table, asm1: Table, n: int, frac, tss_per_cod: float, n_content: tuple[float, float]):
     col = t.col
     before = col.count
     flow = t.per_period("flow_m3_d", n, gt=0.0)
@@ -318,12 +323,12 @@ def _from_asm1(t: Table, asm1: Table, n: int, frac, tss_per_cod: float):
 
     cod = per(lambda p: sum(g[c][p] for c in ("SI", "SS", "XI", "XS", "XBH", "XBA", "XP")))
     cods = per(lambda p: g["SI"][p] + g["SS"][p])
+    i_xb, i_xp = n_content
     tkn = per(lambda p: g["SNH"][p] + g["SND"][p] + g["XND"][p]
-              + defaults.DISPLAY_I_XB * (g["XBH"][p] + g["XBA"][p])
-              + defaults.DISPLAY_I_XP * (g["XI"][p] + g["XP"][p]))
+              + i_xb * (g["XBH"][p] + g["XBA"][p]) + i_xp * (g["XI"][p] + g["XP"][p]))
     tss = per(lambda p: tss_per_cod * (cod[p] - cods[p]))
     if frac is None:
         return None
-    return Influent("asm1", flow, cod, cods, tkn, g["SNH"], tss, g["SALK"], fractionation=frac, asm1_mg_L=table)
+    return Influent("constant", flow, cod, cods, tkn, g["SNH"], tss, g["SALK"], fractionation=frac, asm1_mg_L=table)
 
 

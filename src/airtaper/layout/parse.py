@@ -168,14 +168,19 @@ class _Parser:
         zones, zone_ids = self.zones(zone_defaults, types)
         clarifier = self.section(root.table("clarifier"), self.clarifier)
         tss_per_cod = clarifier.tss_per_cod if clarifier is not None else D.TSS_PER_COD
+        kinetics = self.section(root.table("kinetics"), self.kinetics)
+        n_content = D.DISPLAY_N_CONTENT[kinetics.parameter_set] if kinetics else D.DISPLAY_N_CONTENT[D.PARAMETER_SET]
+        if kinetics is not None:
+            ov = dict(kinetics.overrides)
+            n_content = (ov.get("i_XB", n_content[0]), ov.get("i_XP", n_content[1]))
         influent_t = root.table("influent", required=True)
-        influent = read_influent(influent_t, n, self.base_dir, tss_per_cod) if influent_t is not None else None
+        influent = (read_influent(influent_t, n, self.base_dir, tss_per_cod, n_content)
+                    if influent_t is not None else None)
         flows = self.flows(zone_ids, influent)
         blowers = self.blowers()
         header = self.section(root.table("header"), self.header, blowers)
         inlet = self.section(root.table("inlet_air"), self.inlet_air)
         tariff = self.section(root.table("tariff"), self.tariff)
-        kinetics = self.section(root.table("kinetics"), self.kinetics)
         operation = self.section(root.table("operation"), self.operation, "tariff" in root.data)
         root.finish()
 
