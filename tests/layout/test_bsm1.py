@@ -23,3 +23,14 @@ def test_bsm1_ideal_and_bad_kind():
     assert bsm1_layout("ideal").clarifier.kind == "ideal"
     with pytest.raises(ValueError):
         bsm1_layout("round")
+
+
+def test_bsm1_layout_round_trips_through_the_parser(tmp_path):
+    """The factory's Layout passes the same boundary checks as a file would."""
+    from airtaper.layout import layout_to_data, parse_layout
+    from airtaper.layout.bsm1 import bsm1_layout
+
+    for kind in ("layered", "ideal"):
+        built = bsm1_layout(clarifier=kind)
+        back = parse_layout(layout_to_data(built), path="<bsm1>", base_dir=tmp_path)
+        assert back == built

@@ -40,6 +40,7 @@ from airtaper.layout.types import (
     Recycle,
     ReturnSludge,
     Settling,
+    StepFeed,
     Wasting,
     Zone,
 )
@@ -160,8 +161,8 @@ def bsm1_layout(clarifier: str = "layered", n_periods: int = 24) -> Layout:
     clar = Clarifier(
         kind=clarifier,
         effluent_tss_mg_L=0.0,
-        area_m2=BSM1_SETTLER_AREA_m2,
-        height_m=BSM1_SETTLER_HEIGHT_m,
+        area_m2=BSM1_SETTLER_AREA_m2 if layered else None,
+        height_m=BSM1_SETTLER_HEIGHT_m if layered else None,
         layers=BSM1_SETTLER_LAYERS,
         feed_layer=BSM1_FEED_LAYER_FROM_TOP,
         settling=BSM1_SETTLING if layered else None,
@@ -173,7 +174,7 @@ def bsm1_layout(clarifier: str = "layered", n_periods: int = 24) -> Layout:
                     temperature_C=rep(BSM1_TEMPERATURE_C), barometric_pressure_kPa=None, salinity_g_kg=0.0),
         zones=tuple(_zone(i) for i in range(5)),
         diffuser_types=(),
-        step_feed=(),
+        step_feed=(StepFeed(zone="R1", fraction=1.0),),
         recycles=(Recycle(id="internal", from_zone="R5", to_zone="R1",
                           flow_m3_d=rep(BSM1_Q_INTERNAL_m3_d), ratio=3.0),),
         return_sludge=ReturnSludge(to_zone="R1", flow_m3_d=rep(BSM1_Q_RETURN_m3_d), ratio=1.0),
