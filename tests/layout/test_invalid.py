@@ -143,8 +143,8 @@ CASES = [
      [E + "zones.Z2.kind: unknown value, did you mean 'aerated'? (got 'aerobic', expected one of aerated, anoxic, "
           "swing)"]),
     ("blower-efficiency-twice", "three", _set(["blowers", 0, "efficiency"], 0.6),
-     [E + "blowers.PD1: give either efficiency or efficiency_points (got 'both', expected exactly one of "
-          "efficiency, efficiency_points)"]),
+     [E + "blowers.PD1: give exactly one of efficiency, efficiency_points, power_points (got 'efficiency and "
+          "efficiency_points', expected exactly one of the three)"]),
     ("horizon-zero-periods", "three", _set(["horizon"], {"n_periods": 0}),
      [E + "horizon.n_periods: out of range (got 0, expected >= 1 and <= 288)"]),
     ("alpha-above-one-point-two", "three", _set(["zones", 0, "alpha"], 5.0),

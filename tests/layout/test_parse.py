@@ -201,3 +201,48 @@ def test_parse_of_the_tomllib_dict_equals_load():
     with open(DEMO, "rb") as fh:
         data = tomllib.load(fh)
     assert parse_layout(data, str(DEMO), LAYOUTS) == load_layout(str(DEMO))
+
+
+def _with_power_points(three_data, power_kW):
+    blower = three_data["blowers"][0]
+    for key in ("efficiency", "efficiency_points"):
+        blower.pop(key, None)
+    blower["power_points"] = [
+        {"airflow_Sm3_h": 1200.0, "discharge_gauge_kPa": 50.0, "power_kW": power_kW[0]},
+        {"airflow_Sm3_h": 3200.0, "discharge_gauge_kPa": 55.0, "power_kW": power_kW[1]},
+    ]
+    return three_data
+
+
+def test_power_points_become_efficiency_points(three_data):
+    """Duty points (wire power) turn into wire-to-air efficiencies at the boundary.
+
+    Independent check: the isentropic power of dry air written out here,
+    P = m cp T1 ((p2/p1)^(2/7) - 1) (ideal gas, k = 1.4, cp = 1.005 kJ/(kg K)).
+    """
+    layout = parse_layout(_with_power_points(three_data, (40.0, 110.0)), "x.toml", LAYOUTS)
+    b = layout.blowers[0]
+    assert b.efficiency is None and len(b.power_points) == 2
+    site = 101.325 * (1 - 2.25577e-5 * 120.0) ** 5.25588  # 120 m, US Standard Atmosphere 1976
+    inlet_T = sum(layout.inlet_air.temperature_C) / len(layout.inlet_air.temperature_C)
+    inlet_p = (layout.inlet_air.pressure_kPa or site) - layout.inlet_air.filter_loss_kPa
+    for pt, e in zip(b.power_points, b.efficiency_points):
+        m_kg_s = pt.airflow_Sm3_h * 1.2041 / 3600.0
+        ideal = m_kg_s * 1.005 * (inlet_T + 273.15) * (((site + pt.discharge_gauge_kPa) / inlet_p) ** (2 / 7) - 1)
+        assert e.efficiency == pytest.approx(ideal / pt.power_kW, rel=2e-3)
+    assert layout_to_data(layout)["blowers"][0]["power_points"][1]["power_kW"] == 110.0
+
+
+def test_power_point_below_isentropic_power_is_an_error(three_data, errors_of):
+    lines = errors_of(_with_power_points(three_data, (5.0, 110.0)))
+    assert len(lines) == 1
+    assert lines[0].startswith("error: bad.toml: blowers.PD1.power_points[1].power_kW: implies a wire-to-air "
+                               "efficiency of ")
+    assert "(got 5.0, expected a power above the isentropic power of the duty point)" in lines[0]
+
+
+def test_two_efficiency_forms_at_once_is_an_error(three_data, errors_of):
+    data = _with_power_points(three_data, (40.0, 110.0))
+    data["blowers"][0]["efficiency"] = 0.6
+    lines = errors_of(data)
+    assert any("give exactly one of efficiency, efficiency_points, power_points" in line for line in lines)

@@ -119,3 +119,12 @@ def test_pyomo_matches_numpy(rng, pyomo_check):
         warnings.simplefilter("error")
         pyomo_check(lambda q, t, p1, p2: bl.blower_power_kW(q, t, p1, p2, curve),
                     np.column_stack([rng.uniform(3000.0, 7000.0, n), pts[:, 1:4]]))
+
+
+def test_efficiency_from_power_inverts_blower_power():
+    """efficiency_from_power is the exact inverse of blower_power_kW (same pinned formula)."""
+    from airtaper.physics.blower import blower_power_kW, efficiency_from_power
+
+    q, T1, p1, p2, eta = 4200.0, 18.0, 97.0, 155.0, 0.66
+    wire_kW = blower_power_kW(q, T1, p1, p2, eta)
+    assert efficiency_from_power(q, T1, p1, p2, wire_kW) == pytest.approx(eta, rel=1e-12)

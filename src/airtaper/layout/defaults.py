@@ -8,6 +8,8 @@ rather than looked up says "from memory".
 
 from __future__ import annotations
 
+from airtaper.physics.depth import DEFAULT_EFFECTIVE_DEPTH_FRACTION
+
 # --- horizon ----------------------------------------------------------------
 #: Periods per day (hourly periods). Common practice (no source).
 N_PERIODS = 24
@@ -30,8 +32,8 @@ BETA = 0.95
 FOULING = 0.8
 #: de, effective-depth fraction in C*inf = C*s (1 + de Df / Pa) for fine-pore
 #: grids. Metcalf & Eddy, Wastewater Engineering, 5th ed., effective-depth form;
-#: range 0.25-0.45 (from memory). Same value as airtaper.physics.depth.
-EFFECTIVE_DEPTH_FRACTION = 0.4
+#: range 0.25-0.45 (from memory).
+EFFECTIVE_DEPTH_FRACTION = DEFAULT_EFFECTIVE_DEPTH_FRACTION  # one home: airtaper.physics.depth
 #: Mixing minimum airflow of an aerated zone per m2 of floor, Sm3/(m2 h) (from memory).
 MIXING_AIRFLOW_MIN_Sm3_h_m2 = 2.2
 #: Drop-leg loss coefficient k in dp = k Q^2, kPa/(Sm3/h)^2; 0 = drop-leg loss

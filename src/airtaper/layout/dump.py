@@ -85,6 +85,9 @@ def layout_to_data(layout: Layout) -> dict:
               "airflow_max_Sm3_h": b.airflow_max_Sm3_h, "pressure_max_gauge_kPa": b.pressure_max_gauge_kPa}
         if b.efficiency is not None:
             bd["efficiency"] = b.efficiency
+        elif b.power_points:
+            bd["power_points"] = [{"airflow_Sm3_h": p.airflow_Sm3_h, "discharge_gauge_kPa": p.discharge_gauge_kPa,
+                                   "power_kW": p.power_kW} for p in b.power_points]
         else:
             bd["efficiency_points"] = [{"airflow_Sm3_h": e.airflow_Sm3_h, "efficiency": e.efficiency}
                                        for e in b.efficiency_points]

@@ -19,10 +19,12 @@ from airtaper.errors import InputError, Problem
 from airtaper.layout import defaults as D
 from airtaper.layout import graph
 from airtaper.layout.influent import read_influent
+from airtaper.physics.atmosphere import barometric_pressure_kPa
+from airtaper.physics.blower import efficiency_from_power
 from airtaper.layout.reader import Collector, LayoutWarning, Table, check_number, did_you_mean, is_number, valid_id
 from airtaper.layout.types import (
     Blower, Clarifier, DiffuserGrid, DiffuserType, EfficiencyPoint, Header, HeadlossPoint,
-    Horizon, Influent, InletAir, Kinetics, Layout, Limits, Operation, Plant, Recycle, ReturnSludge, Settling,
+    Horizon, Influent, InletAir, Kinetics, Layout, Limits, Operation, Plant, PowerPoint, Recycle, ReturnSludge, Settling,
     SotePoint, StepFeed, Tariff, Wasting, Zone,
 )
 
@@ -177,9 +179,10 @@ class _Parser:
         influent = (read_influent(influent_t, n, self.base_dir, tss_per_cod, n_content)
                     if influent_t is not None else None)
         flows = self.flows(zone_ids, influent)
+        inlet = self.section(root.table("inlet_air"), self.inlet_air)
+        self.air_conditions = _duty_point_conditions(plant, inlet)
         blowers = self.blowers()
         header = self.section(root.table("header"), self.header, blowers)
-        inlet = self.section(root.table("inlet_air"), self.inlet_air)
         tariff = self.section(root.table("tariff"), self.tariff)
         operation = self.section(root.table("operation"), self.operation, "tariff" in root.data)
         root.finish()
@@ -560,28 +563,56 @@ class _Parser:
         pmax = t.number("pressure_max_gauge_kPa", gt=0.0, le=300.0)
         if qmin is not None and qmax is not None and qmax <= qmin:
             col.error(t.key("airflow_max_Sm3_h"), "must exceed airflow_min_Sm3_h", qmax, f"> {qmin:g}")
-        has_eff, has_pts = t.has("efficiency"), t.has("efficiency_points")
-        eff, pts = None, ()
-        if has_eff == has_pts:
-            col.error(t.path, "give either efficiency or efficiency_points", "both" if has_eff else "neither",
-                      "exactly one of efficiency, efficiency_points")
-        elif has_eff:
+        given = [k for k in ("efficiency", "efficiency_points", "power_points") if t.has(k)]
+        eff, pts, power_pts = None, (), ()
+        if len(given) != 1:
+            col.error(t.path, "give exactly one of efficiency, efficiency_points, power_points",
+                      " and ".join(given) if given else "none", "exactly one of the three")
+        elif given[0] == "efficiency":
             eff = t.number("efficiency", gt=0.0, le=1.0)
-        else:
+        elif given[0] == "efficiency_points":
             p = self._points(t, "efficiency_points", {"airflow_Sm3_h": {"ge": 0.0},
                                                       "efficiency": {"gt": 0.0, "le": 1.0}}, EfficiencyPoint)
-            if p is not None:
+            if p is not None and self._increasing_airflow(t, "efficiency_points", p, qmin, qmax):
                 pts = p
-                for i in range(1, len(p)):
-                    if p[i].airflow_Sm3_h <= p[i - 1].airflow_Sm3_h:
-                        col.error(f"{t.key('efficiency_points')}[{i + 1}].airflow_Sm3_h",
-                                  "airflow must increase from point to point", p[i].airflow_Sm3_h,
-                                  f"> {p[i - 1].airflow_Sm3_h:g}")
-                if qmin is not None and qmax is not None and (qmin < p[0].airflow_Sm3_h or qmax > p[-1].airflow_Sm3_h):
-                    col.warn(t.key("efficiency_points"), f"points cover {p[0].airflow_Sm3_h:g}-"
-                                                         f"{p[-1].airflow_Sm3_h:g} Sm3/h, the blower runs "
-                                                         f"{qmin:g}-{qmax:g}: efficiency is extrapolated")
-        return Blower(ident, kind, qmin, qmax, pmax, eff, pts)
+        else:
+            p = self._points(t, "power_points", {"airflow_Sm3_h": {"gt": 0.0},
+                                                 "discharge_gauge_kPa": {"gt": 0.0, "le": 300.0},
+                                                 "power_kW": {"gt": 0.0}}, PowerPoint)
+            if p is not None and self._increasing_airflow(t, "power_points", p, qmin, qmax):
+                pts = self._efficiency_from_power_points(t, p)
+                power_pts = p if pts else ()
+        return Blower(ident, kind, qmin, qmax, pmax, eff, pts, power_pts)
+
+    def _increasing_airflow(self, t: Table, name: str, p, qmin, qmax) -> bool:
+        col = self.col
+        ok = True
+        for i in range(1, len(p)):
+            if p[i].airflow_Sm3_h <= p[i - 1].airflow_Sm3_h:
+                col.error(f"{t.key(name)}[{i + 1}].airflow_Sm3_h", "airflow must increase from point to point",
+                          p[i].airflow_Sm3_h, f"> {p[i - 1].airflow_Sm3_h:g}")
+                ok = False
+        if ok and qmin is not None and qmax is not None and (qmin < p[0].airflow_Sm3_h or qmax > p[-1].airflow_Sm3_h):
+            col.warn(t.key(name), f"points cover {p[0].airflow_Sm3_h:g}-{p[-1].airflow_Sm3_h:g} Sm3/h, the blower "
+                                  f"runs {qmin:g}-{qmax:g}: efficiency is extrapolated")
+        return ok
+
+    def _efficiency_from_power_points(self, t: Table, p) -> tuple[EfficiencyPoint, ...]:
+        """Wire-to-air efficiency at each duty point, at the layout's mean inlet conditions."""
+        if self.air_conditions is None:
+            return ()
+        inlet_T, inlet_p, site_p = self.air_conditions
+        out = []
+        for i, pt in enumerate(p, start=1):
+            e = float(efficiency_from_power(pt.airflow_Sm3_h, inlet_T, inlet_p, site_p + pt.discharge_gauge_kPa,
+                                            pt.power_kW))
+            if not 0.0 < e <= 1.0:
+                self.col.error(f"{t.key('power_points')}[{i}].power_kW",
+                               f"implies a wire-to-air efficiency of {e:.2f}", pt.power_kW,
+                               "a power above the isentropic power of the duty point")
+                return ()
+            out.append(EfficiencyPoint(pt.airflow_Sm3_h, e))
+        return tuple(out)
 
     def header(self, t: Table | None, blowers: list[Blower]) -> Header:
         if blowers:
@@ -781,6 +812,16 @@ def _airflow_range(z: Zone, dt: DiffuserType) -> tuple[float, float]:
     """Same rule as Layout.zone_airflow_range_Sm3_h, for a zone before the Layout exists."""
     view = SimpleNamespace(diffuser_type=lambda _id: dt)
     return Layout.zone_airflow_range_Sm3_h(view, z)
+
+
+def _duty_point_conditions(plant: Plant | None, inlet: InletAir | None):
+    """(inlet temperature degC, absolute inlet pressure kPa, site pressure kPa) for converting power points."""
+    if plant is None or inlet is None:
+        return None
+    site = (plant.barometric_pressure_kPa if plant.barometric_pressure_kPa is not None
+            else float(barometric_pressure_kPa(plant.elevation_m)))
+    inlet_p = (inlet.pressure_kPa if inlet.pressure_kPa is not None else site) - inlet.filter_loss_kPa
+    return sum(inlet.temperature_C) / len(inlet.temperature_C), inlet_p, site
 
 
 def _blower_mean_efficiency(b: Blower) -> float:

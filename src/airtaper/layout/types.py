@@ -155,6 +155,15 @@ class EfficiencyPoint:
 
 
 @dataclass(frozen=True)
+class PowerPoint:
+    """A measured or guaranteed blower duty point: wire power at an airflow and discharge pressure."""
+
+    airflow_Sm3_h: float
+    discharge_gauge_kPa: float  # above site atmosphere
+    power_kW: float
+
+
+@dataclass(frozen=True)
 class Blower:
     id: str
     kind: str  # e.g. "centrifugal", "turbo", "positive_displacement", "screw"
@@ -162,7 +171,8 @@ class Blower:
     airflow_max_Sm3_h: float
     pressure_max_gauge_kPa: float  # discharge-pressure limit above site atmosphere
     efficiency: float | None  # constant wire-to-air efficiency, or
-    efficiency_points: tuple[EfficiencyPoint, ...]  # a curve vs airflow
+    efficiency_points: tuple[EfficiencyPoint, ...]  # a curve vs airflow (derived when power points are given)
+    power_points: tuple[PowerPoint, ...] = ()  # as given in the layout, if the curve came from power points
 
 
 @dataclass(frozen=True)

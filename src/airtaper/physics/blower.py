@@ -206,6 +206,31 @@ def blower_power_kW(airflow_Sm3_h, inlet_temperature_C, inlet_pressure_kPa, disc
     return units.kJ_s_to_kW(mass_flow_kg_s * work) / _efficiency_value(efficiency, airflow_Sm3_h)
 
 
+def efficiency_from_power(airflow_Sm3_h, inlet_temperature_C, inlet_pressure_kPa, discharge_pressure_kPa,
+                          power_kW):
+    """Wire-to-air efficiency implied by a measured duty point, fraction.
+
+    Parameters
+    ----------
+    airflow_Sm3_h : float or ndarray
+        Airflow at the duty point, Sm3/h.
+    inlet_temperature_C, inlet_pressure_kPa : float or ndarray
+        Inlet air temperature (degC) and absolute inlet pressure (kPa).
+    discharge_pressure_kPa : float or ndarray
+        Absolute discharge pressure at the duty point, kPa.
+    power_kW : float or ndarray
+        Wire (electrical) power measured or guaranteed at that point, kW.
+
+    Notes
+    -----
+    ``eta = P_isentropic / P_wire``: the inverse of :func:`blower_power_kW`, so
+    the pinned isentropic formula evaluated with this efficiency returns the
+    given power exactly.
+    """
+    ideal_kW = blower_power_kW(airflow_Sm3_h, inlet_temperature_C, inlet_pressure_kPa, discharge_pressure_kPa, 1.0)
+    return ideal_kW / power_kW
+
+
 def blower_power_textbook_kW(airflow_Sm3_h, inlet_temperature_C, inlet_pressure_kPa, discharge_pressure_kPa, efficiency):
     """Blower power by the printed Metcalf & Eddy form, kW (comparison only).
 
