@@ -1,0 +1,397 @@
+"""Initialisation of the train models: a start that converges from scratch.
+
+Steady model (:func:`initialise_steady`)
+    1. **Sequential pass** through the train in flow order: every zone gets a
+       first estimate from the influent it receives and a sludge-age mass
+       balance (solids and biomass grown over an assumed SRT, soluble substrate
+       and ammonia mostly removed, nitrate from the nitrified ammonia); the
+       clarifier layers get the feed's composition at thickened / clarified
+       levels; the settling-velocity variables are solved from their own
+       equations.
+    2. **Full system, pseudo-transient continuation**: implicit Euler steps in
+       (pseudo) time on all equations at once with a step that grows
+       geometrically; the mass balances are the time derivatives, the algebraic
+       equations (settler solids and fluxes, SRT target, imposed DO) are solved
+       at every step. Concentrations are kept non-negative. It follows the
+       plant's own dynamics toward its steady state, so it keeps the nitrifiers
+       the estimate seeded (no jump to the washout solution).
+    3. **Newton** on the full square system to full precision.
+
+    Steps 2-3 use :mod:`airtaper.model.numeric` (exact Jacobians by complex
+    step); no NLP solver is needed, so the result can also be checked without
+    one. Pass the result to :mod:`airtaper.solve` for the solve proper.
+
+Cyclic model (:func:`initialise_cyclic`)
+    The steady state at the day's mean load (with each zone's daily-mean
+    airflow) copied to every time point.
+
+References
+----------
+Kelley, C.T., Keyes, D.E. (1998). Convergence analysis of pseudo-transient
+continuation. SIAM Journal on Numerical Analysis 35(2), 508-523.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+
+import numpy as np
+import pyomo.environ as pyo
+import scipy.sparse as sp
+import scipy.sparse.linalg as spla
+from pyomo.util.calc_var_value import calculate_variable_from_constraint
+
+from airtaper.errors import ModelError
+from airtaper.layout.types import ASM1_COMPONENTS
+from airtaper.model.numeric import compile_system
+from airtaper.process.stoichiometry import IDX
+
+#: SRT assumed by the first estimate when the layout fixes the waste flow, d.
+#: Common practice (no source): typical of nitrifying plants.
+GUESS_SRT_d = 10.0
+
+
+@dataclass
+class InitReport:
+    """What the initialisation did."""
+
+    converged: bool
+    ptc_steps: int
+    newton_iterations: int
+    residual_max: float  # max |residual| scaled by the row scale
+    seconds: float
+
+
+# --- step 1: sequential pass ------------------------------------------------------------
+def _assumed_srt(m, data) -> float:
+    if data.srt_d is not None:
+        return float(data.srt_d)
+    # SRT ~ V X / (Qw X_u), X_u / X ~ (Qf / Qu) for a good clarifier
+    v = float(data.volume_m3.sum())
+    qf = float(data.feed_m3_d.mean())
+    qu = float(data.ras_m3_d.mean() + data.waste_m3_d.mean())
+    srt = v * qu / (qf * float(data.waste_m3_d.mean()))
+    return float(np.clip(srt, 3.0, 30.0)) if np.isfinite(srt) else GUESS_SRT_d
+
+
+def _zone_estimate(m, data, srt_d: float) -> np.ndarray:
+    """First estimate of every zone (Z, 13) from the influent and a sludge-age balance."""
+    p = data.params[0]
+    cin = data.influent_conc.mean(axis=0)
+    q = float(data.influent_m3_d.mean())
+    v_total = float(data.volume_m3.sum())
+    hrt_d = v_total / q
+    c = dict(zip(ASM1_COMPONENTS, cin))
+    bio_cod = c["SS"] + c["XS"] + c["XBH"]
+    tkn = c["SNH"] + c["SND"] + c["XND"] + p.i_XB * (c["XBH"] + c["XBA"]) + p.i_XP * (c["XI"] + c["XP"])
+    factor = srt_d / hrt_d  # solids concentration factor of the sludge age
+    xbh = p.Y_H * bio_cod * factor / (1.0 + p.b_H * srt_d)
+    xba = max(p.Y_A * 0.7 * tkn * factor / (1.0 + p.b_A * srt_d), 0.02 * xbh)
+    xp = p.f_P * (p.b_H * xbh + p.b_A * xba) * srt_d
+    xi = c["XI"] * factor
+    est = np.zeros((len(data.zones), len(ASM1_COMPONENTS)))
+    for i, z in enumerate(data.zones):
+        aerated = z in m.aeration and (z in m.FIXED_KLA_ZONES or any(
+            (m.airflow_Sm3_h[z, pp].value or 0.0) > 0 for pp in m.PERIODS))
+        row = {
+            "SI": c["SI"], "SS": 2.0, "XI": xi, "XS": 0.03 * xbh, "XBH": xbh, "XBA": xba, "XP": xp,
+            "SO": 1.0 if aerated else 0.01, "SNO": 0.3 * tkn if aerated else 0.15 * tkn,
+            "SNH": 0.1 * tkn if aerated else 0.25 * tkn, "SND": 0.5, "XND": 0.05 * 0.03 * xbh + 1.0,
+            "SALK": max(c["SALK"] - 0.5 * tkn / 14.0, 0.5),
+        }
+        est[i] = [row[k] for k in ASM1_COMPONENTS]
+    return est
+
+
+def _settler_estimate(m, data, feed: np.ndarray) -> None:
+    """Layers: the feed's solubles; particulates thin above the feed layer, thick at the bottom."""
+    n, f = m.settler_layers, m.settler_feed_layer
+    qf = float(data.feed_m3_d.mean())
+    qu = float(data.ras_m3_d.mean() + (data.waste_m3_d.mean() if data.waste_m3_d is not None else 0.01 * qf))
+    part = np.zeros(len(ASM1_COMPONENTS), dtype=bool)
+    for k in ("XI", "XS", "XBH", "XBA", "XP", "XND"):
+        part[IDX[k]] = True
+    solids = np.array([1.0 if k in ("XI", "XS", "XBH", "XBA", "XP") else 0.0 for k in ASM1_COMPONENTS])
+    for t in m.STEPS:
+        for layer in m.LAYERS:
+            if layer < f:
+                share = 0.004 * 2.0 ** (layer - f + 1)
+            elif layer < n:
+                share = 0.12
+            else:
+                share = qf / qu
+            row = np.where(part, feed * share, feed)
+            for k, c in enumerate(ASM1_COMPONENTS):
+                m.settler_conc[t, layer, c].set_value(float(row[k]))
+            m.settler_tss[t, layer].set_value(float(m.tss_per_cod * (row @ solids)))
+        for layer in m.INTERFACES:
+            m.settler_velocity[t, layer].set_value(0.0)
+            calculate_variable_from_constraint(m.settler_velocity[t, layer], m.settler_flux_definition[t, layer])
+
+
+def sequential_pass(m) -> None:
+    """Step 1 of :func:`initialise_steady`: estimates zone by zone, then the clarifier."""
+    data = m._train_data
+    est = _zone_estimate(m, data, _assumed_srt(m, data))
+    for t in m.STEPS:
+        for i, z in enumerate(data.zones):
+            for k, c in enumerate(ASM1_COMPONENTS):
+                var = m.conc[t, z, c]
+                if not var.fixed:
+                    var.set_value(float(est[i, k]))
+    if hasattr(m, "settler_conc"):
+        _settler_estimate(m, data, est[-1])
+    for z in m.GRID_ZONES:  # DO setpoint mode: airflow unknown
+        for p in m.PERIODS:
+            if m.airflow_Sm3_h[z, p].value is None:
+                lo, hi = data.layout.zone_airflow_range_Sm3_h(data.layout.zone(z))
+                m.airflow_Sm3_h[z, p].set_value(0.5 * (lo + hi))
+    if not m.waste_m3_d[1].fixed:
+        for p in m.PERIODS:
+            m.waste_m3_d[p].set_value(float(pyo.value(m.solids_inventory_g[1])) / data.srt_d
+                                      / max(float(pyo.value(m.underflow_tss_g_m3[1])), 1.0))
+
+
+def _solve_linear(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Solve a dense-stored but sparse square system with SuperLU (single-threaded, no BLAS contention)."""
+    x = spla.spsolve(sp.csc_matrix(a), b)
+    if not np.all(np.isfinite(x)):
+        raise np.linalg.LinAlgError("singular matrix")
+    return x
+
+
+# --- steps 2 and 3: full system ---------------------------------------------------------
+def _pairing(m, system) -> tuple[np.ndarray, np.ndarray]:
+    """Mass-matrix diagonal (1 where a row is the time derivative of its column) and row scales."""
+    col = {id(v): k for k, v in enumerate(system.variables)}
+    nrow = len(system.constraints)
+    rows, cols = [], []
+    scale = np.ones(nrow)
+    for r, con in enumerate(system.constraints):
+        comp = con.parent_component()
+        idx = con.index()
+        var = None
+        if comp is getattr(m, "zone_balance", None):
+            var = m.conc[idx]
+        elif comp is getattr(m, "settler_balance", None):
+            var = m.settler_conc[idx]
+        if var is not None and id(var) in col:
+            rows.append(r)
+            cols.append(col[id(var)])
+    return np.array(rows, dtype=int), np.array(cols, dtype=int)
+
+
+def _row_scale(system, x) -> np.ndarray:
+    """Residual scale per row: the largest term magnitude, estimated from the Jacobian."""
+    jac = system.jacobian(x)
+    mag = np.abs(jac) * np.maximum(np.abs(x), 1e-2)[None, :]
+    return 1.0 / np.maximum(mag.max(axis=1), 1e-8)
+
+
+def _lower_bounds(system) -> np.ndarray:
+    return np.array([-np.inf if v.lb is None else float(v.lb) for v in system.variables])
+
+
+def initialise_steady(m, *, sequential: bool = True, max_ptc_steps: int = 200, tol: float = 1e-10) -> InitReport:
+    """Initialise a steady model from scratch (see the module notes); values are left in ``m``.
+
+    Parameters
+    ----------
+    m : model from :func:`airtaper.model.train.build_steady_model`
+    sequential : bool
+        Run the sequential pass first (False: start from the model's current values).
+    max_ptc_steps : int
+        Limit on pseudo-transient steps.
+    tol : float
+        Newton stops when every scaled residual is below ``tol``.
+
+    Raises
+    ------
+    ModelError
+        If the model is not square or the iterations do not converge.
+    """
+    if not m.steady:
+        raise ModelError("initialise_steady needs a steady model (build_steady_model)")
+    t0 = time.perf_counter()
+    if sequential:
+        sequential_pass(m)
+    system = compile_system(m)
+    n_rows, n_cols = system.shape
+    if n_rows != n_cols:
+        raise ModelError(f"steady model is not square: {n_rows} equations, {n_cols} unknowns")
+    rows, cols = _pairing(m, system)
+    lb = _lower_bounds(system)
+    x = system.values()
+    x = np.where(np.isnan(x), 1.0, x)
+    scale = _row_scale(system, x)
+    mass = np.zeros((n_rows, n_cols))
+    mass[rows, cols] = 1.0
+    dtau = 1e-3  # d
+    steps = 0
+    for steps in range(1, max_ptc_steps + 1):
+        f = system.residual(x)
+        jac = system.jacobian(x)
+        try:
+            dx = _solve_linear(mass / dtau - jac, f)
+        except np.linalg.LinAlgError:
+            dtau *= 0.25
+            continue
+        x_new = np.maximum(x + dx, np.maximum(lb, 0.0) if True else lb)
+        f_new = system.residual(x_new)
+        if not np.all(np.isfinite(f_new)):
+            dtau *= 0.25
+            continue
+        x = x_new
+        if np.max(np.abs(f_new * scale)) < 1e-6 or dtau > 1e5:
+            break
+        dtau *= 2.0
+    newton = 0
+    converged = False
+    for newton in range(1, 31):
+        f = system.residual(x)
+        res = float(np.max(np.abs(f * scale)))
+        if res < tol:
+            converged = True
+            break
+        jac = system.jacobian(x)
+        try:
+            dx = _solve_linear(jac, -f)
+        except np.linalg.LinAlgError as exc:
+            raise ModelError(f"initialise_steady: singular Jacobian ({exc})") from exc
+        alpha = 1.0
+        for _ in range(30):
+            x_try = np.maximum(x + alpha * dx, lb)
+            f_try = system.residual(x_try)
+            if np.all(np.isfinite(f_try)) and np.max(np.abs(f_try * scale)) < (1 - 1e-4 * alpha) * res:
+                break
+            alpha *= 0.5
+        x = x_try
+    res = float(np.max(np.abs(system.residual(x) * scale)))
+    converged = converged or res < tol
+    system.store(x)
+    report = InitReport(converged, steps, newton, res, time.perf_counter() - t0)
+    if not converged:
+        raise ModelError(f"initialise_steady did not converge (scaled residual {res:.3g}); {report}")
+    return report
+
+
+def copy_steady_to_cyclic(steady, cyclic) -> None:
+    """Every time point of ``cyclic`` takes the values of the (one-point) ``steady`` model."""
+    for name in ("conc", "settler_conc", "settler_tss", "settler_velocity"):
+        src = getattr(steady, name, None)
+        dst = getattr(cyclic, name, None)
+        if src is None or dst is None:
+            continue
+        vals = {idx[1:]: v.value for idx, v in src.items()}
+        for idx, v in dst.items():
+            if not v.fixed:
+                v.set_value(vals[idx[1:]], skip_validation=True)
+    if not cyclic.waste_m3_d[1].fixed:
+        w = steady.waste_m3_d[1].value
+        for p in cyclic.PERIODS:
+            cyclic.waste_m3_d[p].set_value(w)
+
+
+def initialise_cyclic(m, steady=None) -> InitReport:
+    """Initialise a cyclic model from the steady state at the day's mean load.
+
+    ``steady``: an already initialised or solved steady model at mean load; when
+    None one is built from the cyclic model's layout with each zone's daily-mean
+    airflow and initialised with :func:`initialise_steady`.
+    """
+    from airtaper.model.train import build_steady_model
+
+    t0 = time.perf_counter()
+    report = None
+    if steady is None:
+        airflow = {z: [m.airflow_Sm3_h[z, p].value for p in m.PERIODS] for z in m.GRID_ZONES}
+        steady = build_steady_model(m._train_data.layout, airflow=airflow)
+        report = initialise_steady(steady)
+    copy_steady_to_cyclic(steady, m)
+    if report is None:
+        return InitReport(True, 0, 0, float("nan"), time.perf_counter() - t0)
+    report.seconds = time.perf_counter() - t0
+    return report
+
+
+# --- cyclic model: march through the day ---------------------------------------------------
+_STATE_NAMES = ("conc", "settler_conc", "settler_tss", "settler_velocity")
+
+
+def _step_constraints(m, t) -> list:
+    cons = [m.zone_balance[t, z, c] for z in m.ZONES for c in m.COMPONENTS]
+    if hasattr(m, "settler_balance"):
+        cons += [m.settler_balance[t, layer, c] for layer in m.LAYERS for c in m.COMPONENTS]
+        cons += [m.settler_tss_definition[t, layer] for layer in m.LAYERS]
+        cons += [m.settler_flux_definition[t, layer] for layer in m.INTERFACES]
+    return cons
+
+
+class _StepTemplate:
+    """The equations of one step of a period, compiled once and reused for every step of that period."""
+
+    def __init__(self, m, t0: int):
+        self.system = compile_system(m, _step_constraints(m, t0))
+        prev = m.prev_step[t0]
+        offsets = {t0: 0, prev: 1, m.prev_step[prev]: 2}
+        self.keys = []  # (component name, index without the step, steps back: 0, 1 or 2)
+        for v in self.system.variables:
+            comp = v.parent_component()
+            idx = v.index()
+            if comp.local_name not in _STATE_NAMES:
+                raise ModelError(f"march: unexpected free variable {v.name} in the step equations")
+            self.keys.append((comp.local_name, idx[1:], offsets[idx[0]]))
+        self.current = np.array([k for k, key in enumerate(self.keys) if key[2] == 0], dtype=int)
+        self.lb = np.array([(-np.inf if v.lb is None else v.lb) for v in self.system.variables])[self.current]
+        where = {key: k for k, key in enumerate(self.keys)}
+        pairs = [(k, where[(name, rest, 1)]) for k, (name, rest, off) in enumerate(self.keys)
+                 if off == 0 and (name, rest, 1) in where]
+        self.predict_to = np.array([a for a, _ in pairs], dtype=int)  # current-step positions ...
+        self.predict_from = np.array([b for _, b in pairs], dtype=int)  # ... started from the previous step
+
+    def variables(self, m, t):
+        steps = (t, m.prev_step[t], m.prev_step[m.prev_step[t]])
+        return [getattr(m, name)[(steps[off],) + rest] for name, rest, off in self.keys]
+
+
+def march_cyclic(m, days: int = 1, tol: float = 1e-9) -> int:
+    """Implicit-Euler march of a cyclic model through the day(s), step by step, from its current values.
+
+    Each step's equations are solved by Newton with the previous step's state
+    given (the waste flow held at its current value), which is a simulation of
+    the model's own discretised equations; the result is close to the periodic
+    solution when the march starts from the mean-load steady state. Returns the
+    number of Newton iterations.
+    """
+    waste_free = [v for v in m.waste_m3_d.values() if not v.fixed]
+    for v in waste_free:
+        v.fix()
+    templates = {}
+    total = 0
+    try:
+        for _ in range(days):
+            for t in m.STEPS:
+                p = m.period_of_step[t]
+                if p not in templates:
+                    templates[p] = _StepTemplate(m, t)
+                tpl = templates[p]
+                var = tpl.variables(m, t)
+                x = np.array([v.value for v in var], dtype=float)
+                x[tpl.predict_to] = x[tpl.predict_from]  # start from the previous step's state
+                cur = tpl.current
+                for it in range(50):
+                    f = tpl.system.residual(x)
+                    dx = _solve_linear(tpl.system.jacobian(x, cur), -f)
+                    x[cur] = np.maximum(x[cur] + dx, tpl.lb)
+                    total += 1
+                    if np.max(np.abs(dx) / np.maximum(np.abs(x[cur]), 1e-2)) < tol:
+                        break
+                else:
+                    raise ModelError(f"march_cyclic: Newton did not converge at step {t}")
+                for k in cur:
+                    var[k].set_value(float(x[k]), skip_validation=True)
+    finally:
+        for v in waste_free:
+            v.unfix()
+    return total

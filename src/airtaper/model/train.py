@@ -1,0 +1,488 @@
+"""Pyomo model of an activated-sludge train: ASM1 in completely mixed zones, field aeration, clarifier.
+
+Build functions
+---------------
+* :func:`build_steady_model` -- one steady point (at the daily mean load, or at one
+  period's load);
+* :func:`build_cyclic_model` -- the 24 h periodic day, backward Euler in time;
+* :func:`build_train_model` -- either, from resolved :class:`~airtaper.model.data.TrainData`
+  (``steady=True`` turns the time set into a single steady point).
+
+Each ``attach_*`` function adds one group of components and can be reused on its
+own; Pyomo rules are module-level functions named after the balance they write.
+
+Time and units
+--------------
+Inside the balances time is in **days** (ASM1 rates are per day), flows in m3/d,
+concentrations in g/m3 (SALK in mol/m3), kLa per day. Airflow is in Sm3/h and the
+reported oxygen transfer in kg O2/h. The cyclic day has ``N = n_periods *
+steps_per_period`` time points ``t = 1..N`` at the *ends* of steps of length
+``dt = period_h / steps_per_period / 24`` d; step ``t`` belongs to period
+``ceil(t / steps_per_period)``, whose influent, temperature and airflow hold over
+the whole step. Backward Euler::
+
+    (x[t] - x[t-1]) / dt = f(x[t], period(t)),     x[0] := x[N]   (periodic day)
+
+so the periodic condition is built in by the wrap-around of ``t - 1``; no extra
+variables or equations. In a steady model ``N = 1`` and the left side is 0.
+
+Zone balances (zone z, component i, volume V, throughflow Q_z)::
+
+    dC_z,i/dt = (sum_in Q_k C_k,i - Q_z C_z,i) / V + sum_j nu_j,i rho_j(C_z) + [i = SO] kLa_z (C*_z - SO_z)
+
+inflows k: forward flow of the zone upstream, the zone's share of the influent,
+internal recycles ending in z, the return sludge (clarifier underflow) if it
+ends in z. Aeration: zones with a diffuser grid get
+``kLa_z = 24 kLa_field(airflow)`` and ``C*_z`` from :mod:`airtaper.physics.transfer`
+(airflow -> clean-water SOTE -> SOTR -> alpha F theta^(T-20) -> field kLa, and
+tau beta Omega C*inf20); zones with a fixed kLa use the given kLa and
+saturation; anoxic zones get no oxygen. Swing zones have a grid and take
+either role with their airflow (zero airflow: no oxygen).
+
+Wasting: fixed waste flow per period, or a target SRT (one waste flow for the
+whole day, set so that the mean solids inventory of the zones over the mean
+solids leaving with waste and effluent equals the target).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import numpy as np
+import pyomo.environ as pyo
+
+from airtaper import units
+from airtaper.errors import ModelError
+from airtaper.layout.types import ASM1_COMPONENTS, Layout
+from airtaper.model.asm1_rates import RATE_ORDER, asm1_process_rates
+from airtaper.model.clarifier import attach_ideal_separator, attach_layered_settler
+from airtaper.model.data import FixedAeration, GridAeration, TrainData, mean_load, single_period, train_data
+from airtaper.physics.transfer import field_kla_per_h
+from airtaper.process.stoichiometry import PARTICULATES, PROCESSES, SOLIDS_COD, n_composition
+
+if RATE_ORDER != PROCESSES:  # pragma: no cover - guards the row order of the Petersen matrix
+    raise ModelError("asm1_rates.RATE_ORDER differs from the Petersen matrix's process order")
+
+#: Airflow added inside the SOTE curve only (not to the air supplied), Sm3/h, so that a
+#: zone with zero airflow has zero kLa with finite derivatives. Common practice (no source).
+AIRFLOW_FLOOR_Sm3_h = 1e-6
+
+
+@dataclass(frozen=True)
+class _Aux:
+    """Plain-Python lookups the rules read (no numpy scalars reach Pyomo expressions)."""
+
+    zone_index: dict
+    volume: list  # [zone]
+    influent_load: list  # [period][zone][component] g/d entering with the influent
+    through: list  # [period][zone] m3/d
+    forward: list  # [period][zone] m3/d
+    recycles_into: list  # [zone] -> list of (source zone id, [period] flow)
+    ras_zone: str
+    ras: list  # [period]
+    nu: list  # [period][component] -> list of (process name, coefficient)
+
+
+def _aux(data: TrainData) -> _Aux:
+    zones = data.zones
+    P = data.n_periods
+    load = data.influent_m3_d[:, None, None] * data.feed_fraction[None, :, None] * data.influent_conc[:, None, :]
+    nu = []
+    for p in range(P):
+        per = {}
+        for k, c in enumerate(ASM1_COMPONENTS):
+            per[c] = [(PROCESSES[j], float(data.nu[p, j, k])) for j in range(len(PROCESSES)) if data.nu[p, j, k] != 0]
+        nu.append(per)
+    rec_into = [[] for _ in zones]
+    for src, dst, q in data.recycles:
+        rec_into[dst].append((zones[src], [float(v) for v in q]))
+    return _Aux(
+        zone_index={z: i for i, z in enumerate(zones)},
+        volume=[float(v) for v in data.volume_m3],
+        influent_load=[[{c: float(load[p, i, k]) for k, c in enumerate(ASM1_COMPONENTS)} for i in range(len(zones))]
+                       for p in range(P)],
+        through=data.zone_flow_m3_d.tolist(),
+        forward=data.forward_m3_d.tolist(),
+        recycles_into=rec_into,
+        ras_zone=zones[data.ras_zone],
+        ras=[float(v) for v in data.ras_m3_d],
+        nu=nu,
+    )
+
+
+# --- sets and time --------------------------------------------------------------------
+#: Time-stepping schemes of the cyclic model (both implicit and L-stable).
+SCHEMES = ("bdf2", "euler")
+
+
+def attach_sets(m, data: TrainData, steady: bool, scheme: str = "euler") -> None:
+    """Sets, the time grid and the step -> period map."""
+    if scheme not in SCHEMES:
+        raise ModelError(f"unknown time scheme {scheme!r}; expected one of {', '.join(SCHEMES)}")
+    m.steady = bool(steady)
+    m.scheme = scheme
+    P = data.n_periods
+    n_steps = 1 if steady else P * data.steps_per_period
+    if steady and P != 1:
+        raise ModelError("a steady model needs one period (use mean_load or single_period)")
+    m.COMPONENTS = pyo.Set(initialize=ASM1_COMPONENTS, ordered=True)
+    m.PARTICULATES = pyo.Set(initialize=PARTICULATES, ordered=True)
+    m.PROCESSES = pyo.Set(initialize=PROCESSES, ordered=True)
+    m.ZONES = pyo.Set(initialize=data.zones, ordered=True)
+    m.PERIODS = pyo.RangeSet(P)
+    m.STEPS = pyo.RangeSet(n_steps)
+    spp = 1 if steady else data.steps_per_period
+    m.period_of_step = {t: (t - 1) // spp + 1 for t in range(1, n_steps + 1)}
+    m.prev_step = {t: (t - 1 if t > 1 else n_steps) for t in range(1, n_steps + 1)}
+    m.dt_d = (data.period_h / spp) / units.HOURS_PER_DAY if not steady else 1.0  # step length, d
+    m.step_hours = 0.0 if steady else data.period_h / spp
+    m.tss_per_cod = float(data.clarifier.tss_per_cod)
+    m.n_composition = {c: float(v) for c, v in zip(ASM1_COMPONENTS, n_composition(data.params[0]))}
+
+
+# --- aeration -------------------------------------------------------------------------
+def _grid_kla_rule(m, z, p):
+    a: GridAeration = m.aeration[z]
+    q = m.airflow_Sm3_h[z, p]
+    sote = a.sote.sote_fraction((q + AIRFLOW_FLOOR_Sm3_h) / a.diffusers, a.density_percent, a.submergence_m)
+    kla_h = field_kla_per_h(q, sote, m.zone_volume_m3[z], a.alpha, a.fouling, m.temperature_C[p], a.c_inf20_mg_L)
+    return units.per_hour_to_per_day(kla_h)
+
+
+def _kla_rule(m, z, p):
+    """Field kLa of an aerated zone, 1/d: from the airflow, or the given fixed kLa."""
+    if z in m.GRID_ZONES:
+        return _grid_kla_rule(m, z, p)
+    return m.kla_fixed_per_d[z, p]
+
+
+def _do_sat_init(m, z, p):
+    a = m.aeration[z]
+    if isinstance(a, GridAeration):
+        return float(a.do_sat_mg_L[p - 1])
+    return float(a.do_sat_mg_L)
+
+
+def attach_aeration(m, data: TrainData, airflow=None) -> None:
+    """Airflow (grid zones) and fixed-kLa handles, the field kLa and saturation per zone and period.
+
+    ``airflow_Sm3_h[zone, period]`` is a Var, fixed to the schedule for simulation
+    (``airflow``: mapping zone -> number or per-period sequence; default the middle
+    of the zone's allowed range). ``kla_fixed_per_d[zone, period]`` is a Var fixed
+    to the layout's kLa (freed when a DO setpoint is imposed on such a zone).
+    """
+    layout = data.layout
+    m.aeration = {z: a for z, a in zip(data.zones, data.aeration) if a is not None}
+    m.zone_volume_m3 = {z: float(v) for z, v in zip(data.zones, data.volume_m3)}
+    m.temperature_C = {p + 1: float(t) for p, t in enumerate(data.temperature_C)}
+    grid = [z for z, a in m.aeration.items() if isinstance(a, GridAeration)]
+    fixed = [z for z, a in m.aeration.items() if isinstance(a, FixedAeration)]
+    m.GRID_ZONES = pyo.Set(initialize=grid, ordered=True)
+    m.FIXED_KLA_ZONES = pyo.Set(initialize=fixed, ordered=True)
+    m.AERATED_ZONES = pyo.Set(initialize=[z for z in data.zones if z in m.aeration], ordered=True)
+
+    def bounds(m, z, p):
+        lo, hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))
+        return (0.0, hi if hi > 0 else None)
+
+    m.airflow_Sm3_h = pyo.Var(m.GRID_ZONES, m.PERIODS, bounds=bounds, doc="zone airflow, Sm3/h")
+    m.kla_fixed_per_d = pyo.Var(m.FIXED_KLA_ZONES, m.PERIODS, bounds=(0.0, None), doc="given kLa, 1/d")
+    for z in fixed:
+        for p in m.PERIODS:
+            m.kla_fixed_per_d[z, p].fix(m.aeration[z].kla_per_d)
+    for z in grid:
+        lo, hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))
+        given = None if airflow is None else airflow.get(z)
+        for p in m.PERIODS:
+            if given is None:
+                v = 0.5 * (lo + hi)
+            elif np.ndim(given) == 0:
+                v = float(given)
+            else:
+                v = float(given[p - 1])
+            m.airflow_Sm3_h[z, p].fix(v)
+    m.kla_per_d = pyo.Expression(m.AERATED_ZONES, m.PERIODS, rule=_kla_rule)
+    m.do_sat_mg_L = pyo.Param(m.AERATED_ZONES, m.PERIODS, initialize=_do_sat_init, mutable=False)
+
+
+# --- zones ----------------------------------------------------------------------------
+def _process_rates(m, data: TrainData) -> dict:
+    out = {}
+    for t in m.STEPS:
+        p = m.period_of_step[t]
+        for z in m.ZONES:
+            c = {k: m.conc[t, z, k] for k in ASM1_COMPONENTS}
+            for name, rho in zip(PROCESSES, asm1_process_rates(c, data.params[p - 1])):
+                out[t, z, name] = rho
+    return out
+
+
+def zone_rhs(m, ts, p, z, c, rates):
+    """Right-hand side of a zone balance, g/m3/d: state of step ``ts``, inputs of period ``p``.
+
+    ``rates``: process name -> rate expression at that state (parameters of period ``p``).
+    """
+    a: _Aux = m._aux
+    i = a.zone_index[z]
+    pi = p - 1
+    flow_in = a.influent_load[pi][i][c]
+    if i > 0:
+        flow_in = flow_in + a.forward[pi][i - 1] * m.conc[ts, m.ZONES.at(i), c]
+    for src, q in a.recycles_into[i]:
+        flow_in = flow_in + q[pi] * m.conc[ts, src, c]
+    if z == a.ras_zone:
+        flow_in = flow_in + a.ras[pi] * m.underflow_at(ts, p, c)
+    rhs = (flow_in - a.through[pi][i] * m.conc[ts, z, c]) / a.volume[i]
+    for j, coef in a.nu[pi][c]:
+        rhs = rhs + coef * rates[j]
+    if c == "SO" and z in m.aeration:
+        rhs = rhs + m.kla_per_d[z, p] * (m.do_sat_mg_L[z, p] - m.conc[ts, z, "SO"])
+    return rhs
+
+
+def _zone_rhs_rule(m, t, z, c):
+    """dC/dt of a zone at step t (inflows - outflow + reactions + aeration), g/m3/d."""
+    return zone_rhs(m, t, m.period_of_step[t], z, c, {j: m.rate[t, z, j] for j in PROCESSES})
+
+
+def time_balance(m, t, state, rhs):
+    """The time-discretised balance of one state at step t (see the module notes).
+
+    ``state[t]`` and ``rhs[t]`` indexable by step. Steady: ``rhs = 0``; backward Euler:
+    ``(x_t - x_t-1) / dt = rhs_t``; BDF2: ``(3/2 x_t - 2 x_t-1 + 1/2 x_t-2) / dt = rhs_t``
+    (steps wrap around the periodic day).
+    """
+    if m.steady:
+        return rhs[t] == 0.0
+    prev = m.prev_step[t]
+    if m.scheme == "euler":
+        acc = (state[t] - state[prev]) / m.dt_d
+    else:
+        acc = (1.5 * state[t] - 2.0 * state[prev] + 0.5 * state[m.prev_step[prev]]) / m.dt_d
+    return rhs[t] - acc == 0.0
+
+
+def _zone_mass_balance_rule(m, t, z, c):
+    """Completely mixed zone: inflows - outflow + reactions (+ aeration for SO) = accumulation."""
+    return time_balance(m, t, _Slice(m.conc, z, c), _Slice(m.zone_rhs, z, c))
+
+
+class _Slice:
+    """``obj[t, *rest]`` seen as a sequence indexed by the step only."""
+
+    __slots__ = ("obj", "rest")
+
+    def __init__(self, obj, *rest):
+        self.obj, self.rest = obj, rest
+
+    def __getitem__(self, t):
+        return self.obj[(t,) + self.rest]
+
+
+def attach_zone_states(m, data: TrainData) -> None:
+    """Zone concentrations ``conc[t, zone, component]`` (declared before the clarifier uses them)."""
+    m._aux = _aux(data)
+    m.conc = pyo.Var(m.STEPS, m.ZONES, m.COMPONENTS, bounds=(0.0, None), initialize=1.0,
+                     doc="zone concentration, g/m3 (SALK mol/m3)")
+
+
+def attach_zone_balances(m, data: TrainData) -> None:
+    """The ASM1 process rates, the zone right-hand sides and the zone mass balances."""
+    m.rate = pyo.Expression(m.STEPS, m.ZONES, m.PROCESSES, initialize=_process_rates(m, data),
+                            doc="ASM1 process rate, g/m3/d")
+    m.zone_rhs = pyo.Expression(m.STEPS, m.ZONES, m.COMPONENTS, rule=_zone_rhs_rule)
+    m.zone_balance = pyo.Constraint(m.STEPS, m.ZONES, m.COMPONENTS, rule=_zone_mass_balance_rule)
+
+
+def attach_clarifier(m, data: TrainData) -> None:
+    """The layout's clarifier: layered settler or ideal separator."""
+    if data.clarifier.kind == "layered":
+        attach_layered_settler(m, data)
+    else:
+        attach_ideal_separator(m, data)
+
+
+# --- flows, wasting -------------------------------------------------------------------
+def _effluent_flow_rule(m, p):
+    return m.feed_m3_d[p] - m.underflow_m3_d[p]
+
+
+def _underflow_rule(m, p):
+    return m.return_m3_d[p] + m.waste_m3_d[p]
+
+
+def _zone_tss_rule(m, t, z):
+    return m.tss_per_cod * sum(m.conc[t, z, c] for c in SOLIDS_COD)
+
+
+def _solids_inventory_rule(m, t):
+    """Suspended solids held in the zones, g."""
+    return sum(m.zone_volume_m3[z] * m.zone_tss_g_m3[t, z] for z in m.ZONES)
+
+
+def _solids_out_rule(m, t):
+    """Suspended solids leaving with the waste and the effluent, g/d."""
+    p = m.period_of_step[t]
+    return m.waste_m3_d[p] * m.underflow_tss_g_m3[t] + m.effluent_m3_d[p] * m.effluent_tss_mg_L[t]
+
+
+def _srt_target_rule(m):
+    """Daily mean solids inventory = target SRT x daily mean solids leaving (waste + effluent)."""
+    return sum(m.solids_inventory_g[t] for t in m.STEPS) == m.srt_target_d * sum(m.solids_out_g_d[t] for t in m.STEPS)
+
+
+def _constant_waste_rule(m, p):
+    if p == 1:
+        return pyo.Constraint.Skip
+    return m.waste_m3_d[p] == m.waste_m3_d[1]
+
+
+def _srt_rule(m):
+    return sum(m.solids_inventory_g[t] for t in m.STEPS) / sum(m.solids_out_g_d[t] for t in m.STEPS)
+
+
+def attach_flows(m, data: TrainData) -> None:
+    """Clarifier feed, return sludge, waste (Var), underflow and effluent flows per period."""
+    m.feed_m3_d = {p + 1: float(q) for p, q in enumerate(data.feed_m3_d)}
+    m.return_m3_d = {p + 1: float(q) for p, q in enumerate(data.ras_m3_d)}
+    m.waste_m3_d = pyo.Var(m.PERIODS, bounds=(0.0, None), doc="waste sludge flow, m3/d")
+    if data.waste_m3_d is not None:
+        for p in m.PERIODS:
+            m.waste_m3_d[p].fix(float(data.waste_m3_d[p - 1]))
+    else:
+        m.waste_m3_d.set_values({p: 0.01 * m.feed_m3_d[p] for p in m.PERIODS})
+    m.underflow_m3_d = pyo.Expression(m.PERIODS, rule=_underflow_rule)
+    m.effluent_m3_d = pyo.Expression(m.PERIODS, rule=_effluent_flow_rule)
+
+
+def attach_wasting(m, data: TrainData) -> None:
+    """Solids inventory and SRT expressions; the SRT-target equations when the layout asks for one."""
+    m.zone_tss_g_m3 = pyo.Expression(m.STEPS, m.ZONES, rule=_zone_tss_rule)
+    m.underflow_tss_g_m3 = pyo.Expression(
+        m.STEPS, rule=lambda m, t: m.tss_per_cod * sum(m.underflow_conc[t, c] for c in SOLIDS_COD))
+    m.solids_inventory_g = pyo.Expression(m.STEPS, rule=_solids_inventory_rule)
+    m.solids_out_g_d = pyo.Expression(m.STEPS, rule=_solids_out_rule)
+    m.srt_d = pyo.Expression(rule=_srt_rule, doc="sludge retention time (zones' solids / solids leaving), d")
+    if data.waste_m3_d is None:
+        m.srt_target_d = float(data.srt_d)
+        m.srt_target = pyo.Constraint(rule=_srt_target_rule)
+        m.constant_waste = pyo.Constraint(m.PERIODS, rule=_constant_waste_rule)
+
+
+# --- named outputs --------------------------------------------------------------------
+def _otr_rule(m, t, z):
+    """Oxygen transferred into zone z, kg O2/h."""
+    p = m.period_of_step[t]
+    g_d = m.kla_per_d[z, p] * (m.do_sat_mg_L[z, p] - m.conc[t, z, "SO"]) * m.zone_volume_m3[z]
+    return units.kg_d_to_kg_h(units.g_to_kg(g_d))
+
+
+def _effluent_tn_rule(m, t):
+    return sum(w * m.effluent_conc[t, c] for c, w in m.n_composition.items() if w != 0.0)
+
+
+def attach_outputs(m) -> None:
+    """Named expressions the optimiser and the reports use (per step)."""
+    m.otr_kg_h = pyo.Expression(m.STEPS, m.AERATED_ZONES, rule=_otr_rule)
+    m.effluent_nh4_mg_L = pyo.Expression(m.STEPS, rule=lambda m, t: m.effluent_conc[t, "SNH"])
+    m.effluent_tn_mg_L = pyo.Expression(m.STEPS, rule=_effluent_tn_rule)
+    m.effluent_tss_mg_L = pyo.Expression(
+        m.STEPS, rule=lambda m, t: m.tss_per_cod * sum(m.effluent_conc[t, c] for c in SOLIDS_COD))
+
+
+def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: str = "euler",
+                      name: str = "airtaper_train"):
+    """The Pyomo model of a train from resolved data (see the module notes).
+
+    Parameters
+    ----------
+    data : TrainData
+        From :func:`airtaper.model.data.train_data` (and :func:`~airtaper.model.data.mean_load`
+        or :func:`~airtaper.model.data.single_period` for a steady point).
+    steady : bool
+        One steady point (``data`` must have one period) instead of the cyclic day.
+    airflow : mapping, optional
+        Zone id -> airflow (Sm3/h) or per-period airflows, fixed in ``airflow_Sm3_h``.
+    scheme : "euler" or "bdf2"
+        Time discretisation of the cyclic model (ignored for a steady point).
+    """
+    m = pyo.ConcreteModel(name=name)
+    m._train_data = data
+    attach_sets(m, data, steady, scheme)
+    attach_aeration(m, data, airflow)
+    attach_flows(m, data)
+    attach_zone_states(m, data)
+    attach_clarifier(m, data)
+    attach_zone_balances(m, data)
+    attach_outputs(m)
+    attach_wasting(m, data)
+    m.scaling_factor = pyo.Suffix(direction=pyo.Suffix.EXPORT)
+    return m
+
+
+def build_steady_model(layout: Layout, *, period: int | None = None, airflow=None):
+    """A steady-state model of ``layout``: at the daily mean load, or at ``period`` (1-based)'s load.
+
+    ``airflow``: zone -> airflow, Sm3/h (for the mean load a per-period schedule is
+    averaged over the day).
+    """
+    data = train_data(layout)
+    if period is None:
+        steady = mean_load(data)
+        if airflow is not None:
+            airflow = {z: float(np.mean(v)) for z, v in airflow.items()}
+    else:
+        steady = single_period(data, period - 1)
+        if airflow is not None:
+            airflow = {z: (float(v) if np.ndim(v) == 0 else float(v[period - 1])) for z, v in airflow.items()}
+    return build_train_model(steady, steady=True, airflow=airflow, name="airtaper_steady")
+
+
+def build_cyclic_model(layout: Layout, *, airflow=None, scheme: str = "euler", steps_per_period: int | None = None):
+    """The cyclic diurnal model of ``layout`` (periods and steps from ``layout.horizon``).
+
+    ``scheme``: "euler" (backward Euler, default) or "bdf2" (second order);
+    ``steps_per_period`` overrides the layout's.
+    """
+    data = train_data(layout)
+    if steps_per_period is not None:
+        data = replace(data, steps_per_period=int(steps_per_period))
+    return build_train_model(data, steady=False, airflow=airflow, scheme=scheme, name="airtaper_cyclic")
+
+
+def set_airflow(m, airflow) -> None:
+    """Fix the airflow schedule: zone -> number or per-period sequence, Sm3/h."""
+    for z, given in airflow.items():
+        for p in m.PERIODS:
+            v = float(given) if np.ndim(given) == 0 else float(given[p - 1])
+            m.airflow_Sm3_h[z, p].fix(v)
+
+
+def set_do_setpoints(m, do_mg_L) -> None:
+    """Steady model: impose DO in the given zones; their airflow (or kLa) becomes the unknown.
+
+    ``do_mg_L``: zone id -> DO setpoint, mg/L. Only for steady models (in the cyclic
+    model a DO trajectory is the optimiser's business).
+    """
+    if not m.steady:
+        raise ModelError("DO setpoints fix one DO per zone: only a steady model can take them")
+    for z, do in do_mg_L.items():
+        if z not in m.aeration:
+            raise ModelError(f"zone {z} has no aeration: a DO setpoint cannot be imposed")
+        for t in m.STEPS:
+            m.conc[t, z, "SO"].fix(float(do))
+        for p in m.PERIODS:
+            if z in m.GRID_ZONES:
+                m.airflow_Sm3_h[z, p].unfix()
+            else:
+                m.kla_fixed_per_d[z, p].unfix()
+
+
+def release_do_setpoints(m, zones=None) -> None:
+    """Undo :func:`set_do_setpoints`: free DO, fix airflow/kLa at their current values."""
+    for z in (zones if zones is not None else list(m.AERATED_ZONES)):
+        for t in m.STEPS:
+            m.conc[t, z, "SO"].unfix()
+        for p in m.PERIODS:
+            v = m.airflow_Sm3_h[z, p] if z in m.GRID_ZONES else m.kla_fixed_per_d[z, p]
+            v.fix(v.value)
