@@ -19,7 +19,6 @@ from airtaper.model import (
 )
 from airtaper.model import results
 from airtaper.model.data import train_data
-from airtaper.process.stoichiometry import cod_composition, cod_of_n2, n2_yield, n_composition
 
 # from memory, Alex et al. 2008 open-loop steady state table (ASM1 order; SALK mol/m3)
 BSM1_REACTORS = {
@@ -112,33 +111,8 @@ def test_perfect_ideal_separator_differs_from_the_layered_plant_as_its_srt_expla
     assert m.conc[1, "R5", "SNH"].value < bsm1_steady.conc[1, "R5", "SNH"].value
 
 
-def plant_balance(m, t, p=None):
-    """COD and N net inflow rates of the whole train at step t (g/d): in - out - O2 - N2 terms.
-
-    COD (oxygen equivalents): SO counts -1, nitrate -cod_per_no3_n, so the oxygen transferred
-    removes COD and N2 formation adds ``-cod_of_n2`` per g N2-N (Henze et al. 1987 ThOD
-    convention); at steady state, or summed over a periodic day, both must vanish.
-    """
-    d = m._train_data
-    p = m.period_of_step[t] if p is None else p
-    par = d.params[p - 1]
-    cod, n = cod_composition(par), n_composition(par)
-    comps = list(m.COMPONENTS)
-    cin = d.influent_conc[p - 1]
-    q_in = d.influent_m3_d[p - 1]
-    ce = np.array([pyo.value(m.effluent_conc[t, c]) for c in comps])
-    cu = np.array([pyo.value(m.underflow_conc[t, c]) for c in comps])
-    qe, qw = pyo.value(m.effluent_m3_d[p]), m.waste_m3_d[p].value
-    o2 = sum(pyo.value(m.otr_kg_h[t, z]) for z in m.AERATED_ZONES) * 1000 * 24  # g/d
-    n2 = sum(m.zone_volume_m3[z] * sum(n2_yield(par)[j] * pyo.value(m.rate[t, z, name])
-                                       for j, name in enumerate(m.PROCESSES)) for z in m.ZONES)
-    cod_net = q_in * cin @ cod - (qe * ce + qw * cu) @ cod - o2 - cod_of_n2(par) * n2
-    n_net = q_in * cin @ n - (qe * ce + qw * cu) @ n - n2
-    return cod_net, n_net, q_in * cin @ cod, q_in * cin @ n
-
-
 @pytest.mark.parametrize("which", ["bsm1", "demo"])
-def test_steady_state_conserves_cod_and_nitrogen(which, bsm1_steady, demo_steady):
+def test_steady_state_conserves_cod_and_nitrogen(which, bsm1_steady, demo_steady, plant_balance):
     # conservation of COD (ThOD) and N over the whole train, Henze et al. (1987) continuity
     m = bsm1_steady if which == "bsm1" else demo_steady
     cod_net, n_net, cod_in, n_in = plant_balance(m, 1)

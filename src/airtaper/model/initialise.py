@@ -319,49 +319,60 @@ def initialise_cyclic(m, steady=None) -> InitReport:
 _STATE_NAMES = ("conc", "settler_conc", "settler_tss", "settler_velocity")
 
 
-def _step_constraints(m, t) -> list:
-    cons = [m.zone_balance[t, z, c] for z in m.ZONES for c in m.COMPONENTS]
-    if hasattr(m, "settler_balance"):
-        cons += [m.settler_balance[t, layer, c] for layer in m.LAYERS for c in m.COMPONENTS]
-        cons += [m.settler_tss_definition[t, layer] for layer in m.LAYERS]
-        cons += [m.settler_flux_definition[t, layer] for layer in m.INTERFACES]
+def _step_constraints(m, points) -> list:
+    cons = []
+    for t in points:
+        cons += [m.zone_balance[t, z, c] for z in m.ZONES for c in m.COMPONENTS]
+        if hasattr(m, "settler_balance"):
+            cons += [m.settler_balance[t, layer, c] for layer in m.LAYERS for c in m.COMPONENTS]
+            cons += [m.settler_tss_definition[t, layer] for layer in m.LAYERS]
+            cons += [m.settler_flux_definition[t, layer] for layer in m.INTERFACES]
     return cons
 
 
 class _StepTemplate:
-    """The equations of one step of a period, compiled once and reused for every step of that period."""
+    """The equations of one time step (all its points), compiled once, reused for every step of a period.
+
+    Variables are keyed by (component, index without the time point, relative
+    point): 0..K-1 for the step's own points (the unknowns), -1, -2 for the points
+    before the step (given).
+    """
 
     def __init__(self, m, t0: int):
-        self.system = compile_system(m, _step_constraints(m, t0))
-        prev = m.prev_step[t0]
-        offsets = {t0: 0, prev: 1, m.prev_step[prev]: 2}
-        self.keys = []  # (component name, index without the step, steps back: 0, 1 or 2)
+        points = m.step_points[t0]
+        n = len(m.STEPS)
+        self.system = compile_system(m, _step_constraints(m, points))
+        self.keys = []
         for v in self.system.variables:
             comp = v.parent_component()
             idx = v.index()
             if comp.local_name not in _STATE_NAMES:
                 raise ModelError(f"march: unexpected free variable {v.name} in the step equations")
-            self.keys.append((comp.local_name, idx[1:], offsets[idx[0]]))
-        self.current = np.array([k for k, key in enumerate(self.keys) if key[2] == 0], dtype=int)
+            u = idx[0]
+            rel = points.index(u) if u in points else -((t0 - u) % n)
+            self.keys.append((comp.local_name, idx[1:], rel))
+        self.current = np.array([k for k, key in enumerate(self.keys) if key[2] >= 0], dtype=int)
         self.lb = np.array([(-np.inf if v.lb is None else v.lb) for v in self.system.variables])[self.current]
         where = {key: k for k, key in enumerate(self.keys)}
-        pairs = [(k, where[(name, rest, 1)]) for k, (name, rest, off) in enumerate(self.keys)
-                 if off == 0 and (name, rest, 1) in where]
-        self.predict_to = np.array([a for a, _ in pairs], dtype=int)  # current-step positions ...
-        self.predict_from = np.array([b for _, b in pairs], dtype=int)  # ... started from the previous step
+        pairs = [(k, where[(name, rest, -1)]) for k, (name, rest, rel) in enumerate(self.keys)
+                 if rel >= 0 and (name, rest, -1) in where]
+        self.predict_to = np.array([a for a, _ in pairs], dtype=int)  # the step's points ...
+        self.predict_from = np.array([b for _, b in pairs], dtype=int)  # ... start from the point before
 
-    def variables(self, m, t):
-        steps = (t, m.prev_step[t], m.prev_step[m.prev_step[t]])
-        return [getattr(m, name)[(steps[off],) + rest] for name, rest, off in self.keys]
+    def variables(self, m, t0):
+        points = m.step_points[t0]
+        n = len(m.STEPS)
+        at = lambda rel: points[rel] if rel >= 0 else (t0 + rel - 1) % n + 1  # noqa: E731
+        return [getattr(m, name)[(at(rel),) + rest] for name, rest, rel in self.keys]
 
 
 def march_cyclic(m, days: int = 1, tol: float = 1e-9) -> int:
-    """Implicit-Euler march of a cyclic model through the day(s), step by step, from its current values.
+    """March a cyclic model through the day(s), step by step, from its current values.
 
-    Each step's equations are solved by Newton with the previous step's state
-    given (the waste flow held at its current value), which is a simulation of
-    the model's own discretised equations; the result is close to the periodic
-    solution when the march starts from the mean-load steady state. Returns the
+    Each step's equations (all its collocation points) are solved by Newton with
+    the state before the step given (the waste flow held at its current value):
+    a simulation with the model's own discretised equations. Started from the
+    mean-load steady state it lands close to the periodic solution. Returns the
     number of Newton iterations.
     """
     waste_free = [v for v in m.waste_m3_d.values() if not v.fixed]
@@ -369,18 +380,19 @@ def march_cyclic(m, days: int = 1, tol: float = 1e-9) -> int:
         v.fix()
     templates = {}
     total = 0
+    firsts = [t for t in m.STEPS if m.stage_of_point[t] == 0]
     try:
         for _ in range(days):
-            for t in m.STEPS:
+            for t in firsts:
                 p = m.period_of_step[t]
                 if p not in templates:
                     templates[p] = _StepTemplate(m, t)
                 tpl = templates[p]
                 var = tpl.variables(m, t)
                 x = np.array([v.value for v in var], dtype=float)
-                x[tpl.predict_to] = x[tpl.predict_from]  # start from the previous step's state
+                x[tpl.predict_to] = x[tpl.predict_from]  # start from the state before the step
                 cur = tpl.current
-                for it in range(50):
+                for _it in range(50):
                     f = tpl.system.residual(x)
                     dx = _solve_linear(tpl.system.jacobian(x, cur), -f)
                     x[cur] = np.maximum(x[cur] + dx, tpl.lb)

@@ -2,8 +2,8 @@
 
 Values are read in bulk from the indexed components (one pass over each, no
 per-value Pyomo calls in inner loops beyond reading ``.value``). Time is given
-both as the step index and as the hour at the end of the step (0 for a steady
-model).
+both as the time-point index (``step``) and as the hour of the point (0 for a
+steady model); daily means use the points' quadrature weights.
 """
 
 from __future__ import annotations
@@ -16,7 +16,7 @@ from airtaper.layout.types import ASM1_COMPONENTS
 
 
 def _hours(m) -> np.ndarray:
-    return np.array([t * m.step_hours for t in m.STEPS], dtype=float)
+    return np.array([m.point_hour[t] for t in m.STEPS], dtype=float)
 
 
 def zone_concentrations(m) -> pd.DataFrame:
@@ -86,15 +86,15 @@ def summary(m) -> dict:
     """Scalar results: SRT (d), waste flow (m3/d, daily mean), effluent flow-weighted daily means
     of NH4-N, TN and TSS (g/m3), total oxygen transferred (kg O2/d)."""
     eff = effluent(m)
-    w = eff["flow_m3_d"].to_numpy()
+    weight = np.array([m.point_weight[t] for t in m.STEPS])
+    w = eff["flow_m3_d"].to_numpy() * weight
     mean = lambda col: float((eff[col].to_numpy() * w).sum() / w.sum())  # noqa: E731
     otr = aeration(m)["otr_kg_h"].groupby(level="step").sum().to_numpy()
-    hours = 24.0 if m.steady else m.step_hours
     return {
         "srt_d": float(pyo.value(m.srt_d)),
         "waste_m3_d": float(np.mean([m.waste_m3_d[p].value for p in m.PERIODS])),
         "effluent_nh4_mean_mg_L": mean("NH4_N"),
         "effluent_tn_mean_mg_L": mean("TN"),
         "effluent_tss_mean_mg_L": mean("TSS"),
-        "oxygen_kg_d": float(otr.sum() * hours),
+        "oxygen_kg_d": float((otr * weight).sum() * 24.0),
     }

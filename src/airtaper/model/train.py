@@ -111,31 +111,83 @@ def _aux(data: TrainData) -> _Aux:
 
 
 # --- sets and time --------------------------------------------------------------------
-#: Time-stepping schemes of the cyclic model (both implicit and L-stable).
-SCHEMES = ("bdf2", "euler")
+#: Time schemes of the cyclic model: Radau IIA collocation with 2 or 3 points per step
+#: (orders 3 and 5), backward Euler, BDF2. All implicit and L-stable.
+SCHEMES = ("radau2", "radau3", "euler", "bdf2")
 
 
-def attach_sets(m, data: TrainData, steady: bool, scheme: str = "euler") -> None:
-    """Sets, the time grid and the step -> period map."""
+def radau_collocation(n_points: int) -> tuple[np.ndarray, np.ndarray]:
+    """Radau IIA nodes ``c`` (in (0, 1], the last is 1) and the collocation matrix ``A``.
+
+    Notes
+    -----
+    The nodes are the roots of ``d^(K-1)/dx^(K-1) [x^(K-1) (x - 1)^K]``;
+    ``A[k, j] = integral_0^c_k l_j(s) ds`` with ``l_j`` the Lagrange polynomials on
+    the nodes. The last row of ``A`` holds the quadrature weights.
+
+    References
+    ----------
+    Hairer, E., Wanner, G. (1996). Solving Ordinary Differential Equations II, 2nd ed.,
+    section IV.5 (Radau IIA methods).
+    """
+    k = int(n_points)
+    poly = np.polynomial.Polynomial([0.0, 1.0]) ** (k - 1) * np.polynomial.Polynomial([-1.0, 1.0]) ** k
+    c = np.sort(poly.deriv(k - 1).roots().real)
+    c[-1] = 1.0
+    a = np.zeros((k, k))
+    for j in range(k):
+        others = [c[i] for i in range(k) if i != j]
+        lj = np.polynomial.Polynomial.fromroots(others) / np.prod([c[j] - o for o in others])
+        integral = lj.integ()
+        a[:, j] = integral(c) - integral(0.0)
+    return c, a
+
+
+def attach_sets(m, data: TrainData, steady: bool, scheme: str = "radau2") -> None:
+    """Sets, the time grid and the maps between time points, steps and periods.
+
+    Time points ``t in STEPS`` are the collocation points (Radau) or the step ends
+    (Euler, BDF2); ``point_hour[t]`` is the time of the point (0 < h <= 24),
+    ``point_weight[t]`` its quadrature weight as a fraction of the day (sum 1),
+    ``period_of_step[t]`` its period, ``step_points[t]`` the points of its step and
+    ``step_start[t]`` the point that starts its step (the last point of the step before).
+    """
     if scheme not in SCHEMES:
         raise ModelError(f"unknown time scheme {scheme!r}; expected one of {', '.join(SCHEMES)}")
     m.steady = bool(steady)
-    m.scheme = scheme
+    m.scheme = "steady" if steady else scheme
     P = data.n_periods
-    n_steps = 1 if steady else P * data.steps_per_period
     if steady and P != 1:
         raise ModelError("a steady model needs one period (use mean_load or single_period)")
+    spp = 1 if steady else data.steps_per_period
+    n_steps = 1 if steady else P * spp
+    k = int(scheme[-1]) if (scheme.startswith("radau") and not steady) else 1
+    n_points = n_steps * k
     m.COMPONENTS = pyo.Set(initialize=ASM1_COMPONENTS, ordered=True)
     m.PARTICULATES = pyo.Set(initialize=PARTICULATES, ordered=True)
     m.PROCESSES = pyo.Set(initialize=PROCESSES, ordered=True)
     m.ZONES = pyo.Set(initialize=data.zones, ordered=True)
     m.PERIODS = pyo.RangeSet(P)
-    m.STEPS = pyo.RangeSet(n_steps)
-    spp = 1 if steady else data.steps_per_period
-    m.period_of_step = {t: (t - 1) // spp + 1 for t in range(1, n_steps + 1)}
-    m.prev_step = {t: (t - 1 if t > 1 else n_steps) for t in range(1, n_steps + 1)}
-    m.dt_d = (data.period_h / spp) / units.HOURS_PER_DAY if not steady else 1.0  # step length, d
-    m.step_hours = 0.0 if steady else data.period_h / spp
+    m.STEPS = pyo.RangeSet(n_points)
+    m.points_per_step = k
+    step_h = data.period_h / spp
+    m.dt_d = step_h / units.HOURS_PER_DAY if not steady else 1.0  # step length, d
+    m.step_hours = 0.0 if steady else step_h
+    if k > 1:
+        nodes, a = radau_collocation(k)
+    else:
+        nodes, a = np.array([1.0]), np.array([[1.0]])
+    m.collocation_matrix = a.tolist()
+    step_of = {t: (t - 1) // k + 1 for t in range(1, n_points + 1)}
+    m.stage_of_point = {t: (t - 1) % k for t in range(1, n_points + 1)}
+    m.period_of_step = {t: (step_of[t] - 1) // spp + 1 for t in range(1, n_points + 1)}
+    m.step_points = {t: [(step_of[t] - 1) * k + j + 1 for j in range(k)] for t in range(1, n_points + 1)}
+    m.step_start = {t: ((step_of[t] - 1) * k if step_of[t] > 1 else n_points) for t in range(1, n_points + 1)}
+    m.prev_step = {t: (t - 1 if t > 1 else n_points) for t in range(1, n_points + 1)}
+    m.point_hour = {t: (0.0 if steady else (step_of[t] - 1 + nodes[m.stage_of_point[t]]) * step_h)
+                    for t in range(1, n_points + 1)}
+    weights = a[-1] / n_steps
+    m.point_weight = {t: float(weights[m.stage_of_point[t]]) for t in range(1, n_points + 1)}
     m.tss_per_cod = float(data.clarifier.tss_per_cod)
     m.n_composition = {c: float(v) for c, v in zip(ASM1_COMPONENTS, n_composition(data.params[0]))}
 
@@ -246,20 +298,25 @@ def _zone_rhs_rule(m, t, z, c):
 
 
 def time_balance(m, t, state, rhs):
-    """The time-discretised balance of one state at step t (see the module notes).
+    """The time-discretised balance of one state at time point t (see the module notes).
 
-    ``state[t]`` and ``rhs[t]`` indexable by step. Steady: ``rhs = 0``; backward Euler:
-    ``(x_t - x_t-1) / dt = rhs_t``; BDF2: ``(3/2 x_t - 2 x_t-1 + 1/2 x_t-2) / dt = rhs_t``
-    (steps wrap around the periodic day).
+    ``state[t]`` and ``rhs[t]`` indexable by time point. Steady: ``rhs = 0``. Radau IIA
+    collocation, stage k of a step of length h starting at point s:
+    ``(x_t - x_s) / h = sum_j A[k, j] rhs_j`` over the points j of the step. Backward
+    Euler: ``(x_t - x_t-1) / h = rhs_t``; BDF2: ``(3/2 x_t - 2 x_t-1 + 1/2 x_t-2) / h = rhs_t``.
+    Points wrap around the periodic day.
     """
     if m.steady:
         return rhs[t] == 0.0
-    prev = m.prev_step[t]
-    if m.scheme == "euler":
-        acc = (state[t] - state[prev]) / m.dt_d
-    else:
+    if m.scheme == "bdf2":
+        prev = m.prev_step[t]
         acc = (1.5 * state[t] - 2.0 * state[prev] + 0.5 * state[m.prev_step[prev]]) / m.dt_d
-    return rhs[t] - acc == 0.0
+        return rhs[t] - acc == 0.0
+    row = m.collocation_matrix[m.stage_of_point[t]]
+    acc = (state[t] - state[m.step_start[t]]) / m.dt_d
+    if len(row) == 1:
+        return rhs[t] - acc == 0.0
+    return sum(w * rhs[j] for w, j in zip(row, m.step_points[t])) - acc == 0.0
 
 
 def _zone_mass_balance_rule(m, t, z, c):
@@ -390,7 +447,7 @@ def attach_outputs(m) -> None:
         m.STEPS, rule=lambda m, t: m.tss_per_cod * sum(m.effluent_conc[t, c] for c in SOLIDS_COD))
 
 
-def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: str = "euler",
+def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: str = "radau2",
                       name: str = "airtaper_train"):
     """The Pyomo model of a train from resolved data (see the module notes).
 
@@ -403,7 +460,7 @@ def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: st
         One steady point (``data`` must have one period) instead of the cyclic day.
     airflow : mapping, optional
         Zone id -> airflow (Sm3/h) or per-period airflows, fixed in ``airflow_Sm3_h``.
-    scheme : "euler" or "bdf2"
+    scheme : "radau2" (default), "radau3", "euler" or "bdf2"
         Time discretisation of the cyclic model (ignored for a steady point).
     """
     m = pyo.ConcreteModel(name=name)
@@ -438,10 +495,11 @@ def build_steady_model(layout: Layout, *, period: int | None = None, airflow=Non
     return build_train_model(steady, steady=True, airflow=airflow, name="airtaper_steady")
 
 
-def build_cyclic_model(layout: Layout, *, airflow=None, scheme: str = "euler", steps_per_period: int | None = None):
+def build_cyclic_model(layout: Layout, *, airflow=None, scheme: str = "radau2", steps_per_period: int | None = None):
     """The cyclic diurnal model of ``layout`` (periods and steps from ``layout.horizon``).
 
-    ``scheme``: "euler" (backward Euler, default) or "bdf2" (second order);
+    ``scheme``: "radau2" (Radau IIA, 2 points per step, order 3; default), "radau3"
+    (order 5), "euler" (backward Euler) or "bdf2";
     ``steps_per_period`` overrides the layout's.
     """
     data = train_data(layout)
