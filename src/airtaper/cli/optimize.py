@@ -1,0 +1,78 @@
+"""`airtaper optimize LAYOUT --out DIR`: the diurnal tapered-aeration schedule at least blower energy or cost.
+
+Runs :func:`airtaper.optimize.study.run_optimization` (baseline under uniform DO
+control, the optimisation on the cyclic model, verification by the independent
+simulator, marginal costs) with a progress display on stderr, writes
+``schedule.csv``, ``header.csv``, ``timeseries.csv``, ``summary.json``,
+``schedule.png`` and ``report.html`` to DIR (each atomically), and prints a short
+summary. Exit codes: 0 done and verified; 2 bad input; 3 the limits cannot all be
+met (the summary says which, where and when); 4 the re-simulated schedule breaks
+a limit; 1 the solver failed.
+"""
+
+from __future__ import annotations
+
+import sys
+
+from airtaper.errors import InputError, Problem
+from airtaper.layout import load_layout
+from airtaper.report.atomic import guard_inputs
+from airtaper.report.study import OUTPUT_NAMES, console_summary, write_study_outputs
+
+
+def register(subparsers) -> None:
+    p = subparsers.add_parser(
+        "optimize", help="optimise the diurnal aeration schedule (least blower energy or cost)",
+        description="Find the airflow per zone and period (and the DO it gives) that meets the effluent and DO "
+                    "limits at the least blower energy, or cost under the layout's tariff; compare with uniform "
+                    "DO control, verify by re-simulation, and report marginal costs.")
+    p.add_argument("layout", metavar="LAYOUT", help="layout TOML file, e.g. layouts/demo.toml")
+    p.add_argument("--out", required=True, metavar="DIR", help="output folder")
+    p.add_argument("--objective", choices=("energy", "cost"), help="override the layout's objective")
+    p.add_argument("--smoothing-weight", type=float, metavar="W",
+                   help="weight of the penalty on period-to-period airflow change (default: the layout's)")
+    p.add_argument("--mixing-min", type=float, metavar="SM3_H_M2",
+                   help="mixing minimum airflow per floor area for every aerated zone, Sm3/(m2 h)")
+    p.add_argument("--baseline-do", type=float, metavar="MG_L", help="DO setpoint of the baseline (default 2.0)")
+    p.add_argument("--no-figure", action="store_true", help="skip schedule.png")
+    p.add_argument("--quiet", action="store_true", help="no progress display")
+    p.set_defaults(handler=run)
+
+
+def _check(args) -> list[Problem]:
+    problems = []
+    for key, v, lo in (("--smoothing-weight", args.smoothing_weight, 0.0), ("--mixing-min", args.mixing_min, 0.0),
+                       ("--baseline-do", args.baseline_do, 1e-9)):
+        if v is not None and not (v >= lo and v == v and v != float("inf")):
+            problems.append(Problem("<command line>", key, "must be a finite number >= " + f"{lo:g}", v))
+    return problems
+
+
+def run(args) -> int:
+    from airtaper.optimize.progress import Progress
+    from airtaper.optimize.study import StudyOptions, run_optimization
+
+    problems = _check(args)
+    if problems:
+        raise InputError(problems)
+    warnings: list = []
+    layout = load_layout(args.layout, warnings=warnings)
+    for w in warnings:
+        print(str(w), file=sys.stderr)
+    guard_inputs(args.out, [args.layout] + ([layout.influent.source] if layout.influent.source != "constant" else []),
+                 OUTPUT_NAMES)
+    if args.objective == "cost" and layout.tariff is None:
+        raise InputError(Problem(args.layout, "--objective", "a cost objective needs a [tariff] in the layout",
+                                 "cost", '"energy", or add [tariff]'))
+    options = StudyOptions(objective=args.objective, smoothing_weight=args.smoothing_weight,
+                           mixing_airflow_min_Sm3_h_m2=args.mixing_min, baseline_do_setpoint_mg_L=args.baseline_do)
+    progress = Progress(enabled=not args.quiet)
+    result = run_optimization(layout, options, progress)
+    progress.phase("writing outputs")
+    write_study_outputs(args.out, schedule=result.schedule, header=result.header, timeseries=result.timeseries,
+                        summary=result.summary, figure=not args.no_figure)
+    print(console_summary(result.summary))
+    if result.summary.get("status") == "unverified":
+        print("WARNING: the optimised schedule breaks a limit when re-simulated by the independent simulator; "
+              "do not use it as it is (see summary.json, verification).", file=sys.stderr)
+    return result.exit_code

@@ -1,0 +1,181 @@
+"""Elastic solve: which limit cannot be met, where, when and by how much.
+
+Every limit of :mod:`airtaper.optimize.problem` carries a slack variable, fixed at
+zero in a normal solve. The elastic solve frees them and minimises::
+
+    objective + sum_groups  w_group  sum_index  slack
+
+(an exact L1 penalty: with weights above the limits' duals the slacks stay at zero
+wherever the limits can be met). Equipment limits (airflow per diffuser, mixing,
+valve, blower capacity, turndown and pressure) have slack in fractions of the limit
+(kPa for the pressure) and weight :data:`EQUIPMENT_WEIGHT`; process limits (DO range,
+effluent limits) have slack in mg/L and weight :data:`PROCESS_WEIGHT`, ten times
+higher, so the solve first asks for more hardware and only then lets a process
+limit go: the findings read "zone Z2 needs 14 % more air than its diffusers pass,
+10:00-12:00". DO slacks are per time step, their weight divided by the steps per
+period (so an hour of shortfall costs the same at any resolution).
+
+:func:`findings` groups slacks above :data:`REPORT_THRESHOLD` into runs of
+consecutive periods (or steps) per zone and words them.
+"""
+
+from __future__ import annotations
+
+import pyomo.environ as pyo
+
+from airtaper.optimize.figures import clock
+from airtaper.optimize.problem import LIMIT_GROUPS, fix_slacks, free_slacks
+
+#: Penalty per unit slack (fraction of the limit, or kPa) of equipment limits, in
+#: objective units (the objective is about 1 at the baseline).
+EQUIPMENT_WEIGHT = 100.0
+#: Penalty per mg/L of slack of process limits (DO per hour of shortfall, effluent limits).
+PROCESS_WEIGHT = 1000.0
+#: Slacks below these are read as zero (numerical noise of the solve).
+REPORT_THRESHOLD = {"fraction": 1e-3, "mg/L": 2e-3, "kPa": 1e-2}
+
+
+def _weight(m, group) -> float:
+    w = PROCESS_WEIGHT if group.kind == "process" else EQUIPMENT_WEIGHT
+    if group.index == "zone_step":
+        w /= m._train_data.steps_per_period
+    return w
+
+
+def enter_elastic(m) -> None:
+    """Free the slacks and switch to the penalised objective."""
+    b = m.opt
+    free_slacks(b)
+    terms = []
+    for g in LIMIT_GROUPS:
+        con = b.component(g.name)
+        if con is None or not con.active:
+            continue
+        w = _weight(m, g)
+        terms.extend(w * v for v in b.component(g.slack).values())
+    if b.component("elastic_objective") is not None:
+        b.del_component("elastic_objective")
+    b.elastic_objective = pyo.Objective(expr=b.objective.expr + sum(terms), sense=pyo.minimize)
+    suffix = m.component("scaling_factor")
+    if suffix is not None and b.objective in suffix:
+        suffix[b.elastic_objective] = suffix[b.objective]
+    b.objective.deactivate()
+
+
+def leave_elastic(m) -> None:
+    """Back to the normal problem: slacks fixed at zero, the normal objective."""
+    b = m.opt
+    fix_slacks(b)
+    if b.component("elastic_objective") is not None:
+        b.del_component("elastic_objective")
+    b.objective.activate()
+
+
+def _runs(keys: list[int]) -> list[tuple[int, int]]:
+    """Consecutive integer keys as (first, last) runs."""
+    runs = []
+    for k in sorted(keys):
+        if runs and k == runs[-1][1] + 1:
+            runs[-1] = (runs[-1][0], k)
+        else:
+            runs.append((k, k))
+    return runs
+
+
+def _amount(unit: str, value: float) -> str:
+    if unit == "fraction":
+        return f"{100.0 * value:.0f} %"
+    if unit == "kPa":
+        return f"{value:.1f} kPa"
+    return f"{value:.2f} mg/L"
+
+
+def _sentence(group, zone, amount: str, limit_value) -> str:
+    n = group.name
+    if n == "diffuser_max":
+        return f"zone {zone} needs {amount} more air than its diffusers pass"
+    if n == "valve_max":
+        return f"zone {zone} needs {amount} more air than its valve and drop leg pass"
+    if n == "diffuser_min":
+        return f"zone {zone} needs {amount} less air than its diffusers' minimum airflow"
+    if n == "mixing_min":
+        return f"zone {zone} needs {amount} less air than the mixing minimum"
+    if n == "blower_max":
+        return f"the blowers need {amount} more capacity than installed"
+    if n == "blower_min":
+        return f"the blowers need {amount} more turndown than the smallest machine has"
+    if n == "pressure_max":
+        return f"the blowers need {amount} more discharge pressure than their limit"
+    if n == "do_min":
+        return f"zone {zone} cannot hold its DO minimum of {limit_value:g} mg/L: short by up to {amount}"
+    if n == "do_max":
+        return f"zone {zone} cannot stay below its DO maximum of {limit_value:g} mg/L: over by up to {amount}"
+    if n == "nh4_mean":
+        return f"the effluent NH4-N daily mean cannot meet {limit_value:g} mg/L: it stays {amount} above"
+    if n == "nh4_max":
+        return f"the effluent NH4-N period mean exceeds {limit_value:g} mg/L by up to {amount}"
+    if n == "tn_mean":
+        return f"the effluent TN daily mean cannot meet {limit_value:g} mg/L: it stays {amount} above"
+    return f"{group.text}: relaxed by {amount}"  # pragma: no cover - every group is worded above
+
+
+def findings(m) -> list[dict]:
+    """The limits the elastic solution relaxes: one dict per limit, zone and run of time."""
+    b = m.opt
+    period_h = m._train_data.period_h
+    step_h = m.step_hours
+    out = []
+    for g in LIMIT_GROUPS:
+        con = b.component(g.name)
+        if con is None or not con.active:
+            continue
+        slack = b.component(g.slack)
+        tol = REPORT_THRESHOLD[g.unit]
+        hits = {k: float(v.value) for k, v in slack.items() if v.value is not None and v.value > tol}
+        if not hits:
+            continue
+        if g.index == "scalar":
+            groups = {None: {0: hits[None]}}
+        elif g.index == "period":
+            groups = {None: hits}
+        elif g.index == "zone_period":
+            groups = {}
+            for (z, p), v in hits.items():
+                groups.setdefault(z, {})[p] = v
+        else:  # zone_step
+            groups = {}
+            for (t, z), v in hits.items():
+                groups.setdefault(z, {})[t] = v
+        for zone, values in groups.items():
+            limit_value = _limit_value(b, g, zone)
+            for first, last in _runs(list(values)):
+                amount = max(values[k] for k in range(first, last + 1))
+                if g.index == "scalar":
+                    start, end = 0.0, 24.0
+                elif g.index == "zone_step":
+                    start, end = (first - 1) * step_h, last * step_h
+                else:
+                    start, end = (first - 1) * period_h, last * period_h
+                text = _sentence(g, zone, _amount(g.unit, amount), limit_value)
+                if g.index != "scalar":
+                    text += f", {clock(start)}-{clock(end)}"
+                out.append({"limit": g.name, "zone": zone, "start_h": start, "end_h": end, "amount": amount,
+                            "unit": g.unit, "message": text})
+    return out
+
+
+def _limit_value(b, g, zone):
+    if g.name == "do_min":
+        return pyo.value(b.do_min_mg_L[zone])
+    if g.name == "do_max":
+        return pyo.value(b.do_max_mg_L[zone])
+    if g.name == "nh4_mean":
+        return pyo.value(b.nh4_mean_limit)
+    if g.name == "nh4_max":
+        return pyo.value(b.nh4_max_limit)
+    if g.name == "tn_mean":
+        return pyo.value(b.tn_mean_limit)
+    return None
+
+
+__all__ = ["EQUIPMENT_WEIGHT", "PROCESS_WEIGHT", "REPORT_THRESHOLD", "enter_elastic", "findings", "leave_elastic"]

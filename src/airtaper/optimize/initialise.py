@@ -1,0 +1,90 @@
+"""Initial points of the optimisation, and the retry ladder.
+
+Start from the baseline (:func:`start_from_day`): the airflow of every zone and
+period is the baseline's period-mean airflow (clipped into the zone's range), the
+zone concentrations at every model step are the simulated baseline states at the
+same time of day, the waste flow is the simulated one; the clarifier (a layered
+settler has states of its own) and everything else come from the model layer's
+cyclic initialisation (the steady state at mean load). Optionally a square solve
+of the model at those airflows makes the start satisfy the model equations.
+
+Retry ladder (:data:`LADDER`): when a solve fails, the next rung changes one thing:
+
+1. default: baseline start, user scaling, monotone barrier;
+2. ``mu_strategy = adaptive`` (Ipopt's adaptive barrier update);
+3. other start: the model equations solved first at the baseline airflows (square
+   solve), then the optimisation;
+4. other start and scaling: airflows raised 15 % above the baseline start, square
+   solve, Ipopt's own gradient-based scaling instead of the user scaling;
+5. everything at once: adaptive barrier, square-solved start, 3000 iterations.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from airtaper.layout.types import ASM1_COMPONENTS
+from airtaper.model.initialise import initialise_cyclic
+from airtaper.optimize.simday import SimDay
+
+
+@dataclass(frozen=True)
+class Rung:
+    name: str
+    options: dict = field(default_factory=dict)
+    square_solve: bool = False
+    airflow_factor: float = 1.0
+    user_scaling: bool = True
+
+
+#: Base Ipopt options of every rung.
+BASE_OPTIONS = {"tol": 1e-7, "acceptable_tol": 1e-5, "max_iter": 600}
+
+LADDER: tuple[Rung, ...] = (
+    Rung("baseline start"),
+    Rung("adaptive barrier", {"mu_strategy": "adaptive"}),
+    Rung("square-solved start", square_solve=True),
+    Rung("raised airflow, gradient scaling", square_solve=True, airflow_factor=1.15, user_scaling=False),
+    Rung("adaptive barrier, square-solved start", {"mu_strategy": "adaptive", "max_iter": 3000}, square_solve=True),
+)
+
+
+def start_airflow(m, day: SimDay, factor: float = 1.0) -> dict:
+    """Zone id -> per-period start airflow: baseline period means x factor, clipped to the zone's range."""
+    layout = m._train_data.layout
+    means = day.period_mean_airflow()
+    out = {}
+    for z in m.GRID_ZONES:
+        lo, hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))
+        out[z] = np.clip(np.asarray(means[z]) * factor, lo, hi)
+    return out
+
+
+def start_from_day(m, day: SimDay, airflow: dict) -> None:
+    """Set the model's airflow, states and waste flow from a simulated day (see module notes).
+
+    Airflows are *fixed* at ``airflow`` (zone -> per-period values); the caller frees them.
+    """
+    for z, values in airflow.items():
+        for p in m.PERIODS:
+            m.airflow_Sm3_h[z, p].fix(float(values[p - 1]))
+    initialise_cyclic(m)
+    zones = list(m.ZONES)
+    index = {c: k for k, c in enumerate(ASM1_COMPONENTS)}
+    for t in m.STEPS:
+        s = day.model_step_sample(t)
+        for i, z in enumerate(zones):
+            for c in m.COMPONENTS:
+                v = m.conc[t, z, c]
+                if not v.fixed:
+                    v.set_value(max(float(day.conc[s, i, index[c]]), 0.0), skip_validation=True)
+    waste = day.extra.get("waste_m3_d")
+    if waste is not None and not m.waste_m3_d[1].fixed:
+        mean = float(np.mean(waste))
+        for p in m.PERIODS:
+            m.waste_m3_d[p].set_value(mean)
+
+
+__all__ = ["BASE_OPTIONS", "LADDER", "Rung", "start_airflow", "start_from_day"]

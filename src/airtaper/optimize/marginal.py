@@ -1,0 +1,148 @@
+"""Marginal costs of the limits, from the duals of the optimum.
+
+The solver bridge returns every dual as ``d f* / d b``, the derivative of the
+optimal objective with respect to the limit's bound (:mod:`airtaper.solve.ipopt`).
+The objective is ``goal / reference + smoothing``, so ``reference x dual`` is the
+change of the goal (kWh/d, or cost/d under a tariff) per unit of the limit.
+
+Sign convention of the reported figures (docs/optimization.md):
+
+* effluent limits and DO minima: ``kWh_per_day`` is the change of the daily energy
+  when the limit is **tightened by 0.1 mg/L** (an effluent limit lowered, a DO
+  minimum raised); positive means the tighter limit costs more;
+* diffusers: the change of the daily energy when **one diffuser is added** to the
+  zone's grid (airflow per diffuser and diffuser density follow); negative means
+  the extra diffuser saves energy.
+
+A limit that does not bind has a marginal cost of 0. ``nh4_max`` moves the limit
+of every period together (the sum of the period duals); a zone's DO minimum moves
+at every time step together. When the objective is energy, the cost figure is the
+energy figure times the day's mean price (cost / energy at the optimum), and the
+other way round for a cost objective; that conversion is marked ``"estimated"``.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pyomo.environ as pyo
+
+from airtaper.solve import nlp as _nlp
+
+#: Step of the limits in the report, mg/L.
+STEP_mg_L = 0.1
+#: Relative step of the central difference in :func:`parameter_sensitivity`.
+PARAMETER_STEP = 1e-4
+
+
+def _dual(result, con) -> float:
+    try:
+        return float(result.dual(con))
+    except KeyError:
+        return 0.0
+
+
+def parameter_sensitivity(m, result, params) -> list[float]:
+    """d f* / d q of the optimal objective for mutable Params ``q`` of the solved problem.
+
+    Envelope theorem: at a KKT point ``d f*/d q = df/dq - sum_c dual_c d body_c/d q``
+    with the bridge's duals ``dual_c = d f*/d b_c`` (moving a constraint body up by
+    ``delta`` is moving its bound down by ``delta``). The partial derivatives are
+    central differences of the bridge's own objective and constraint functions at the
+    solution, with the parameter moved by :data:`PARAMETER_STEP` of its value.
+    """
+    structure, _ = _nlp.get_structure(m)
+    tape, ev = structure.tape, structure.evaluator
+    x = np.array([float(v.value) for v in tape.variables])
+    p0 = structure.parameter_values()
+    where = {id(q): i for i, q in enumerate(tape.parameters)}
+    duals = np.array([result.constraint_duals.get(c, 0.0) for c in tape.constraints])
+    out = []
+    try:
+        for q in params:
+            i = where.get(id(q))
+            if i is None:  # the parameter does not enter the active problem
+                out.append(0.0)
+                continue
+            h = PARAMETER_STEP * max(abs(p0[i]), 1.0)
+            vals = []
+            for sign in (1.0, -1.0):
+                p = p0.copy()
+                p[i] += sign * h
+                ev.set_parameters(p)
+                vals.append((tape.sense * ev.objective(x), ev.constraints(x).copy()))
+            dfdq = (vals[0][0] - vals[1][0]) / (2 * h)
+            dgdq = (vals[0][1] - vals[1][1]) / (2 * h)
+            out.append(float(dfdq - duals @ dgdq))
+    finally:
+        ev.set_parameters(p0)
+    return out
+
+
+def raw_derivatives(m, result) -> dict:
+    """d goal / d limit (goal units per mg/L, or per diffuser), keyed like the report entries."""
+    b = m.opt
+    ref = b.reference
+    out = {}
+    if b.nh4_mean.active:
+        out[("nh4_mean_mg_L", None)] = ref * _dual(result, b.nh4_mean)
+    if b.nh4_max.active:
+        out[("nh4_max_mg_L", None)] = ref * sum(_dual(result, b.nh4_max[p]) for p in m.PERIODS)
+    if b.tn_mean.active:
+        out[("tn_mean_mg_L", None)] = ref * _dual(result, b.tn_mean)
+    for z in b.DO_ZONES:
+        out[("do_min_mg_L", z)] = ref * sum(_dual(result, b.do_min[t, z]) for t in m.STEPS)
+    zones = list(b.ZONES)
+    for z, d in zip(zones, parameter_sensitivity(m, result, [b.diffuser_count[z] for z in zones])):
+        out[("diffusers", z)] = ref * d
+    return out
+
+
+def marginal_costs(m, result, *, energy_kWh_per_day: float, cost_per_day: float | None) -> list[dict]:
+    """Report entries (see module notes); ``energy``/``cost`` at the optimum set the mean price."""
+    b = m.opt
+    objective = b.settings.objective
+    price = (cost_per_day / energy_kWh_per_day) if (cost_per_day is not None and energy_kWh_per_day > 0) else None
+    out = []
+    for (limit, zone), d in raw_derivatives(m, result).items():
+        if limit == "diffusers":
+            change = d  # one more diffuser
+            per = "per extra diffuser"
+            where = zone
+        elif limit == "do_min_mg_L":
+            change = d * STEP_mg_L  # raised by 0.1
+            per = "per 0.1 mg/L higher DO minimum"
+            where = zone
+        else:
+            change = -d * STEP_mg_L  # lowered by 0.1
+            per = "per 0.1 mg/L tighter limit"
+            where = "effluent"
+        if objective == "cost":
+            cost = change
+            kwh = change / price if price else None
+            estimated = "kWh_per_day"
+        else:
+            kwh = change
+            cost = change * price if price is not None else None
+            estimated = "cost_per_day" if price is not None else None
+        entry = {"limit": limit, "where": where, "kWh_per_day": kwh, "cost_per_day": cost, "per": per,
+                 "estimated": estimated, "binding": abs(d) > 1e-9 * max(1.0, b.reference)}
+        if limit in ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L"):
+            entry["limit_value_mg_L"] = pyo.value({"nh4_mean_mg_L": b.nh4_mean_limit, "nh4_max_mg_L": b.nh4_max_limit,
+                                                   "tn_mean_mg_L": b.tn_mean_limit}[limit])
+        elif limit == "do_min_mg_L":
+            entry["limit_value_mg_L"] = pyo.value(b.do_min_mg_L[zone])
+        out.append(entry)
+    return out
+
+
+def marginal_lines(entries: list[dict], currency: str = "") -> list[str]:
+    """Plain-text lines for the console."""
+    lines = []
+    for e in entries:
+        kwh = "-" if e["kWh_per_day"] is None else f"{e['kWh_per_day']:+.1f} kWh/d"
+        cost = "" if e["cost_per_day"] is None else f", {e['cost_per_day']:+.2f} {currency}/d"
+        lines.append(f"{e['limit']:<14} {e['where']:<9} {kwh}{cost} {e['per']}")
+    return lines
+
+
+__all__ = ["PARAMETER_STEP", "STEP_mg_L", "marginal_costs", "marginal_lines", "parameter_sensitivity", "raw_derivatives"]

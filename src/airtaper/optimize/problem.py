@@ -1,0 +1,320 @@
+"""The diurnal aeration optimisation, attached to the cyclic train model.
+
+:func:`attach_problem` takes a model from :func:`airtaper.model.train.build_cyclic_model`
+and adds, in a block ``m.opt``, the decisions, limits and objective of the tapered
+schedule (docs/optimization.md gives the full statement):
+
+Decisions
+    ``airflow_Sm3_h[z, p]`` of every diffused zone (the model's Var, unfixed) and
+    ``header_kPa[p]``, the header gauge pressure. The diffuser count of every grid is
+    the mutable Param ``diffuser_count[z]``; the zone kLa expressions are re-stated on
+    it (airflow per diffuser and diffuser density both follow the count), and so are
+    the per-diffuser airflow limits and the diffuser headloss. The value of one more
+    diffuser is the sensitivity of the optimum to this parameter, from the duals
+    (:func:`airtaper.optimize.marginal.parameter_sensitivity`). A count *variable* held
+    by an equality (whose dual is the same number) gave the same values but doubled the
+    derivative-building time on the three-tank layout (6.7 s against 3.5 s, one run).
+
+Limits (each a named constraint group; :data:`LIMIT_GROUPS` lists them)
+    DO minimum / maximum at every step of aerated zones; effluent NH4-N flow-weighted
+    daily mean and every period's mean; effluent TN daily mean; airflow per diffuser
+    within the diffuser type's range; mixing minimum per floor area; valve/drop-leg
+    capacity; total airflow within the blowers' turndown and capacity; valve loss
+    ``header - p_zone >= min valve loss`` for every zone; blower discharge pressure
+    within the highest blower's limit.
+
+Objective
+    ``energy (or cost) / reference + w sum_z,p ((Q_z,p - Q_z,p-1) / Q_z,max)^2``,
+    the reference being the baseline's value (so the objective is about 1) and ``w``
+    the smoothing weight (cyclic: period 1 follows the last period).
+
+Every limit carries an elastic slack variable, fixed at 0 in a normal solve (a
+fixed variable is a constant to the solver: no cost). :mod:`airtaper.optimize.elastic`
+frees them and adds their penalty.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import pyomo.environ as pyo
+
+from airtaper import units
+from airtaper.errors import ModelError
+from airtaper.layout.types import Layout
+from airtaper.model.data import GridAeration
+from airtaper.optimize.airside import AirSide
+from airtaper.physics.transfer import field_kla_per_h
+
+#: Numerical box on airflow, as a multiple of the zone's hardware maximum: wide enough
+#: that the elastic solve can ask for more air than the hardware passes, and keeps
+#: Ipopt away from absurd values. Common practice (no source).
+AIRFLOW_BOX_FACTOR = 3.0
+#: Airflow added inside the SOTE curve (not to the air supplied), as in the model.
+_AIRFLOW_FLOOR_Sm3_h = 1e-6
+
+
+@dataclass(frozen=True)
+class LimitGroup:
+    """One family of limits: its constraint and slack components and how to describe it."""
+
+    name: str  # constraint name in m.opt
+    slack: str  # slack variable name in m.opt
+    kind: str  # "process" or "equipment" (elastic penalty class)
+    index: str  # "zone_step", "zone_period", "period", "scalar", "zone"
+    unit: str  # slack unit: "mg/L", "fraction", "kPa"
+    text: str  # short description for messages
+
+
+#: Every limit of the problem (see docs/optimization.md, section "Limits").
+LIMIT_GROUPS: tuple[LimitGroup, ...] = (
+    LimitGroup("do_min", "do_min_slack", "process", "zone_step", "mg/L", "DO minimum"),
+    LimitGroup("do_max", "do_max_slack", "process", "zone_step", "mg/L", "DO maximum"),
+    LimitGroup("nh4_mean", "nh4_mean_slack", "process", "scalar", "mg/L", "effluent NH4-N daily mean limit"),
+    LimitGroup("nh4_max", "nh4_max_slack", "process", "period", "mg/L", "effluent NH4-N period mean limit"),
+    LimitGroup("tn_mean", "tn_mean_slack", "process", "scalar", "mg/L", "effluent TN daily mean limit"),
+    LimitGroup("diffuser_max", "diffuser_max_slack", "equipment", "zone_period", "fraction",
+               "maximum airflow per diffuser"),
+    LimitGroup("diffuser_min", "diffuser_min_slack", "equipment", "zone_period", "fraction",
+               "minimum airflow per diffuser"),
+    LimitGroup("mixing_min", "mixing_min_slack", "equipment", "zone_period", "fraction", "mixing minimum airflow"),
+    LimitGroup("valve_max", "valve_max_slack", "equipment", "zone_period", "fraction", "valve/drop-leg capacity"),
+    LimitGroup("blower_max", "blower_max_slack", "equipment", "period", "fraction", "installed blower capacity"),
+    LimitGroup("blower_min", "blower_min_slack", "equipment", "period", "fraction", "blower turndown"),
+    LimitGroup("pressure_max", "pressure_max_slack", "equipment", "period", "kPa", "blower pressure limit"),
+)
+
+
+@dataclass
+class ProblemSettings:
+    """Choices of one optimisation (defaults from the layout)."""
+
+    objective: str  # "energy" or "cost"
+    smoothing_weight: float
+    reference: float  # objective normaliser (baseline energy, kWh/d, or cost/d)
+    mixing_airflow_min_Sm3_h_m2: dict = field(default_factory=dict)  # zone -> value (override)
+
+
+def settings_for(layout: Layout, reference: float, *, objective: str | None = None,
+                 smoothing_weight: float | None = None, mixing_airflow_min_Sm3_h_m2: float | None = None
+                 ) -> ProblemSettings:
+    """Settings from the layout's [operation], with optional overrides."""
+    obj = objective or layout.operation.objective
+    if obj == "cost" and layout.tariff is None:
+        raise ModelError("a cost objective needs a tariff in the layout")
+    w = layout.operation.smoothing_weight if smoothing_weight is None else float(smoothing_weight)
+    mix = {}
+    for z in layout.zones:
+        if z.aerated:
+            mix[z.id] = z.mixing_airflow_min_Sm3_h_m2 if mixing_airflow_min_Sm3_h_m2 is None \
+                else float(mixing_airflow_min_Sm3_h_m2)
+    if not reference > 0:
+        raise ModelError(f"objective reference must be positive, got {reference!r}")
+    return ProblemSettings(obj, w, float(reference), mix)
+
+
+# --- helpers read by rules ----------------------------------------------------------------
+def _zone(m, z):
+    return m.opt.layout.zone(z)
+
+
+def _kla_on_diffusers(m, z, p):
+    """Field kLa (1/d) of a diffused zone with the diffuser count as the Param ``diffuser_count[z]``."""
+    a: GridAeration = m.aeration[z]
+    n = m.opt.diffuser_count[z]
+    q = m.airflow_Sm3_h[z, p]
+    density = a.density_percent * n / a.diffusers
+    sote = a.sote.sote_fraction((q + _AIRFLOW_FLOOR_Sm3_h) / n, density, a.submergence_m)
+    kla_h = field_kla_per_h(q, sote, m.zone_volume_m3[z], a.alpha, a.fouling, m.temperature_C[p], a.c_inf20_mg_L)
+    return units.per_hour_to_per_day(kla_h)
+
+
+def steps_of_period(m, p) -> list[int]:
+    return [t for t in m.STEPS if m.period_of_step[t] == p]
+
+
+def effluent_weights(m) -> dict:
+    """Effluent flow of every period at the current waste flow, m3/d: the weights of the daily means.
+
+    Held constant in the optimisation: with a target SRT the waste flow is a variable,
+    and weighting by it would couple every effluent state with every waste flow (a
+    dense Hessian block); the waste flow is a percent or two of the effluent flow,
+    so fixing it in the weights changes a daily mean by far less than 0.1 %.
+    """
+    return {p: float(pyo.value(m.effluent_m3_d[p])) for p in m.PERIODS}
+
+
+def flow_weighted_mean(m, expr, weights: dict):
+    """Flow-weighted daily mean of a per-step effluent expression (weights: effluent flow per period)."""
+    total = sum(weights[m.period_of_step[t]] for t in m.STEPS)
+    return sum(weights[m.period_of_step[t]] / total * expr[t] for t in m.STEPS)
+
+
+def period_mean(m, expr, p):
+    steps = steps_of_period(m, p)
+    return sum(expr[t] for t in steps) / len(steps)
+
+
+# --- the attachment -----------------------------------------------------------------------
+def attach_problem(m, layout: Layout, settings: ProblemSettings):
+    """Add decisions, limits and objective to a cyclic model (see module notes); returns ``m.opt``."""
+    if m.steady:
+        raise ModelError("the diurnal optimisation needs the cyclic model (build_cyclic_model)")
+    if hasattr(m, "opt"):
+        raise ModelError("the model already has an optimisation block")
+    air = AirSide(layout)
+    grid = [z for z in m.GRID_ZONES]
+    if not grid:
+        raise ModelError("the layout has no diffused zones: there is no airflow to optimise")
+    m.opt = b = pyo.Block()
+    b.layout = layout
+    b.air = air
+    b.settings = settings
+    b.ZONES = pyo.Set(initialize=grid, ordered=True)
+    do_zones = [z for z in grid if layout.zone(z).kind == "aerated" and layout.zone(z).do_min_mg_L is not None]
+    do_max_zones = [z for z in grid if layout.zone(z).do_max_mg_L is not None]
+    b.DO_ZONES = pyo.Set(initialize=do_zones, ordered=True)
+    b.DO_MAX_ZONES = pyo.Set(initialize=do_max_zones, ordered=True)
+    b.MIN_ZONES = pyo.Set(initialize=[z for z in grid if layout.zone(z).kind == "aerated"], ordered=True)
+    b.VALVE_ZONES = pyo.Set(initialize=[z for z in grid if layout.zone(z).valve_capacity_Sm3_h is not None],
+                            ordered=True)
+    P = list(m.PERIODS)
+
+    # --- decisions ------------------------------------------------------------------------
+    b.diffuser_count = pyo.Param(b.ZONES, mutable=True, initialize={z: float(layout.zone(z).grid.count) for z in grid})
+    for z in grid:
+        lo, hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))
+        for p in P:
+            v = m.airflow_Sm3_h[z, p]
+            v.unfix()
+            v.setlb(0.0)
+            v.setub(AIRFLOW_BOX_FACTOR * hi)
+            if v.value is None:
+                v.set_value(0.5 * (lo + hi))
+    for z in grid:  # kLa on the diffuser-count variable
+        for p in P:
+            m.kla_per_d[z, p].set_value(_kla_on_diffusers(m, z, p))
+
+    b.total_airflow_Sm3_h = pyo.Expression(m.PERIODS, rule=lambda b, p: sum(m.airflow_Sm3_h[z, p] for z in grid))
+    b.zone_pressure_kPa = pyo.Expression(
+        b.ZONES, m.PERIODS,
+        rule=lambda b, z, p: air.zone_required_pressure_kPa(layout.zone(z), m.airflow_Sm3_h[z, p], b.diffuser_count[z]))
+    b.header_kPa = pyo.Var(m.PERIODS, bounds=(0.0, None), initialize=lambda b, p: max(
+        pyo.value(b.zone_pressure_kPa[z, p]) for z in grid) + layout.header.min_valve_loss_kPa)
+    b.valve_loss = pyo.Constraint(
+        b.ZONES, m.PERIODS,
+        rule=lambda b, z, p: b.header_kPa[p] - b.zone_pressure_kPa[z, p] >= layout.header.min_valve_loss_kPa)
+    b.power_kW = pyo.Expression(
+        m.PERIODS, rule=lambda b, p: air.power_kW(b.total_airflow_Sm3_h[p], b.header_kPa[p], p - 1))
+    b.energy_kWh_per_day = pyo.Expression(expr=sum(b.power_kW[p] for p in P) * air.period_h)
+
+    # --- limits, each with a slack fixed at zero ---------------------------------------
+    def slack(name, *index_sets):
+        var = pyo.Var(*index_sets, bounds=(0.0, None), initialize=0.0) if index_sets else \
+            pyo.Var(bounds=(0.0, None), initialize=0.0)
+        b.add_component(name, var)
+        for v in var.values():
+            v.fix(0.0)
+        return var
+
+    so = lambda t, z: m.conc[t, z, "SO"]  # noqa: E731
+    b.do_min_mg_L = pyo.Param(b.DO_ZONES, mutable=True,
+                              initialize={z: float(layout.zone(z).do_min_mg_L) for z in do_zones})
+    s = slack("do_min_slack", m.STEPS, b.DO_ZONES)
+    b.do_min = pyo.Constraint(m.STEPS, b.DO_ZONES, rule=lambda b, t, z: so(t, z) + s[t, z] >= b.do_min_mg_L[z])
+    b.do_max_mg_L = pyo.Param(b.DO_MAX_ZONES, mutable=True,
+                              initialize={z: float(layout.zone(z).do_max_mg_L) for z in do_max_zones})
+    s2 = slack("do_max_slack", m.STEPS, b.DO_MAX_ZONES)
+    b.do_max = pyo.Constraint(m.STEPS, b.DO_MAX_ZONES, rule=lambda b, t, z: so(t, z) - s2[t, z] <= b.do_max_mg_L[z])
+
+    lim = layout.limits
+    b.effluent_weights = effluent_weights(m)
+    b.nh4_mean_expr = pyo.Expression(expr=flow_weighted_mean(m, m.effluent_nh4_mg_L, b.effluent_weights))
+    b.nh4_period_expr = pyo.Expression(m.PERIODS, rule=lambda b, p: period_mean(m, m.effluent_nh4_mg_L, p))
+    b.tn_mean_expr = pyo.Expression(expr=flow_weighted_mean(m, m.effluent_tn_mg_L, b.effluent_weights))
+    b.nh4_mean_limit = pyo.Param(mutable=True, initialize=lim.nh4_mean_mg_L if lim.nh4_mean_mg_L else 0.0)
+    b.nh4_max_limit = pyo.Param(mutable=True, initialize=lim.nh4_max_mg_L if lim.nh4_max_mg_L else 0.0)
+    b.tn_mean_limit = pyo.Param(mutable=True, initialize=lim.tn_mean_mg_L if lim.tn_mean_mg_L else 0.0)
+    s3 = slack("nh4_mean_slack")
+    s4 = slack("nh4_max_slack", m.PERIODS)
+    s5 = slack("tn_mean_slack")
+    b.nh4_mean = pyo.Constraint(expr=b.nh4_mean_expr - s3 <= b.nh4_mean_limit)
+    b.nh4_max = pyo.Constraint(m.PERIODS, rule=lambda b, p: b.nh4_period_expr[p] - s4[p] <= b.nh4_max_limit)
+    b.tn_mean = pyo.Constraint(expr=b.tn_mean_expr - s5 <= b.tn_mean_limit)
+    if lim.nh4_mean_mg_L is None:
+        b.nh4_mean.deactivate()
+    if lim.nh4_max_mg_L is None:
+        b.nh4_max.deactivate()
+    if lim.tn_mean_mg_L is None:
+        b.tn_mean.deactivate()
+
+    def dtype(z):
+        return layout.diffuser_type(layout.zone(z).grid.type_id)
+
+    q = m.airflow_Sm3_h
+    s6 = slack("diffuser_max_slack", b.ZONES, m.PERIODS)
+    b.diffuser_max = pyo.Constraint(b.ZONES, m.PERIODS, rule=lambda b, z, p: (
+        q[z, p] <= b.diffuser_count[z] * dtype(z).airflow_max_Sm3_h * (1.0 + s6[z, p])))
+    s7 = slack("diffuser_min_slack", b.MIN_ZONES, m.PERIODS)
+    b.diffuser_min = pyo.Constraint(b.MIN_ZONES, m.PERIODS, rule=lambda b, z, p: (
+        q[z, p] >= b.diffuser_count[z] * dtype(z).airflow_min_Sm3_h * (1.0 - s7[z, p])))
+    s8 = slack("mixing_min_slack", b.MIN_ZONES, m.PERIODS)
+    b.mixing_min = pyo.Constraint(b.MIN_ZONES, m.PERIODS, rule=lambda b, z, p: (
+        q[z, p] >= settings.mixing_airflow_min_Sm3_h_m2[z] * layout.zone(z).area_m2 * (1.0 - s8[z, p])))
+    s9 = slack("valve_max_slack", b.VALVE_ZONES, m.PERIODS)
+    b.valve_max = pyo.Constraint(b.VALVE_ZONES, m.PERIODS, rule=lambda b, z, p: (
+        q[z, p] <= layout.zone(z).valve_capacity_Sm3_h * (1.0 + s9[z, p])))
+    s10 = slack("blower_max_slack", m.PERIODS)
+    s11 = slack("blower_min_slack", m.PERIODS)
+    s12 = slack("pressure_max_slack", m.PERIODS)
+    if layout.blowers:
+        b.blower_max = pyo.Constraint(m.PERIODS, rule=lambda b, p: (
+            b.total_airflow_Sm3_h[p] <= air.blower_capacity_Sm3_h * (1.0 + s10[p])))
+        b.blower_min = pyo.Constraint(m.PERIODS, rule=lambda b, p: (
+            b.total_airflow_Sm3_h[p] >= air.blower_turndown_Sm3_h * (1.0 - s11[p])))
+        b.pressure_max = pyo.Constraint(m.PERIODS, rule=lambda b, p: (
+            air.discharge_gauge_kPa(b.header_kPa[p], b.total_airflow_Sm3_h[p]) - s12[p]
+            <= air.blower_pressure_max_kPa))
+
+    # --- objective --------------------------------------------------------------------------
+    if settings.objective == "cost":
+        tariff = layout.tariff
+        b.peak_kW = pyo.Var(bounds=(0.0, None), initialize=max(pyo.value(b.power_kW[p]) for p in P))
+        b.peak = pyo.Constraint(m.PERIODS, rule=lambda b, p: b.peak_kW >= b.power_kW[p])
+        if tariff.demand_charge_per_kW == 0.0:
+            b.peak.deactivate()
+            b.peak_kW.fix(0.0)
+        b.goal = pyo.Expression(expr=sum(tariff.price_per_kWh[p - 1] * b.power_kW[p] * air.period_h for p in P)
+                                + tariff.demand_charge_per_kW / tariff.demand_period_days * b.peak_kW)
+    else:
+        b.goal = pyo.Expression(expr=b.energy_kWh_per_day)
+    qmax = {z: layout.zone_airflow_range_Sm3_h(layout.zone(z))[1] for z in grid}
+    prev = {p: (p - 1 if p > 1 else P[-1]) for p in P}
+    b.smoothing_weight = pyo.Param(mutable=True, initialize=settings.smoothing_weight)
+    b.smoothing = pyo.Expression(expr=sum(((q[z, p] - q[z, prev[p]]) / qmax[z]) ** 2 for z in grid for p in P)
+                                 if len(P) > 1 else 0.0)
+    b.reference = settings.reference
+    b.objective = pyo.Objective(expr=b.goal / settings.reference + b.smoothing_weight * b.smoothing,
+                                sense=pyo.minimize)
+    return b
+
+
+def free_slacks(b) -> None:
+    """Unfix every slack of an active limit (elastic mode)."""
+    for g in LIMIT_GROUPS:
+        con = b.component(g.name)
+        if con is None or not con.active:
+            continue
+        for v in b.component(g.slack).values():
+            v.unfix()
+
+
+def fix_slacks(b) -> None:
+    """Fix every slack at zero (normal mode)."""
+    for g in LIMIT_GROUPS:
+        for v in b.component(g.slack).values():
+            v.fix(0.0)
+
+
+__all__ = ["LIMIT_GROUPS", "LimitGroup", "ProblemSettings", "attach_problem", "fix_slacks", "free_slacks",
+           "effluent_weights", "flow_weighted_mean", "period_mean", "settings_for", "steps_of_period"]
