@@ -21,9 +21,11 @@ Steady model (:func:`initialise_steady`)
     step); no NLP solver is needed, so the result can also be checked without
     one. Pass the result to :mod:`airtaper.solve` for the solve proper.
 
-Cyclic model (:func:`initialise_cyclic`)
+Cyclic model (:func:`initialise_cyclic`, then :func:`march_cyclic`)
     The steady state at the day's mean load (with each zone's daily-mean
-    airflow) copied to every time point.
+    airflow) copied to every time point; then a march through the day, step by
+    step, with the model's own discretised equations (Newton on each step with
+    the state before it given), which lands close to the periodic solution.
 
 References
 ----------
@@ -165,9 +167,7 @@ def _solve_linear(a: np.ndarray, b: np.ndarray) -> np.ndarray:
 def _pairing(m, system) -> tuple[np.ndarray, np.ndarray]:
     """Mass-matrix diagonal (1 where a row is the time derivative of its column) and row scales."""
     col = {id(v): k for k, v in enumerate(system.variables)}
-    nrow = len(system.constraints)
     rows, cols = [], []
-    scale = np.ones(nrow)
     for r, con in enumerate(system.constraints):
         comp = con.parent_component()
         idx = con.index()
@@ -237,7 +237,7 @@ def initialise_steady(m, *, sequential: bool = True, max_ptc_steps: int = 200, t
         except np.linalg.LinAlgError:
             dtau *= 0.25
             continue
-        x_new = np.maximum(x + dx, np.maximum(lb, 0.0) if True else lb)
+        x_new = np.maximum(x + dx, lb)
         f_new = system.residual(x_new)
         if not np.all(np.isfinite(f_new)):
             dtau *= 0.25

@@ -4,7 +4,7 @@ Build functions
 ---------------
 * :func:`build_steady_model` -- one steady point (at the daily mean load, or at one
   period's load);
-* :func:`build_cyclic_model` -- the 24 h periodic day, backward Euler in time;
+* :func:`build_cyclic_model` -- the 24 h periodic day (Radau IIA collocation by default);
 * :func:`build_train_model` -- either, from resolved :class:`~airtaper.model.data.TrainData`
   (``steady=True`` turns the time set into a single steady point).
 
@@ -15,16 +15,15 @@ Time and units
 --------------
 Inside the balances time is in **days** (ASM1 rates are per day), flows in m3/d,
 concentrations in g/m3 (SALK in mol/m3), kLa per day. Airflow is in Sm3/h and the
-reported oxygen transfer in kg O2/h. The cyclic day has ``N = n_periods *
-steps_per_period`` time points ``t = 1..N`` at the *ends* of steps of length
-``dt = period_h / steps_per_period / 24`` d; step ``t`` belongs to period
-``ceil(t / steps_per_period)``, whose influent, temperature and airflow hold over
-the whole step. Backward Euler::
-
-    (x[t] - x[t-1]) / dt = f(x[t], period(t)),     x[0] := x[N]   (periodic day)
-
-so the periodic condition is built in by the wrap-around of ``t - 1``; no extra
-variables or equations. In a steady model ``N = 1`` and the left side is 0.
+reported oxygen transfer in kg O2/h. The cyclic day has ``n_periods *
+steps_per_period`` steps of length ``h = period_h / steps_per_period`` (d inside
+the balances); the time points ``t = 1..N`` are the collocation points of the
+steps (Radau IIA: 2 or 3 per step, the last at the step end) or the step ends
+(backward Euler, BDF2), see :func:`time_balance`. Influent, temperature, flows and
+airflow hold over each period. Points wrap around the day (the step before the
+first is the last), which is the periodic condition ``x(0) = x(24 h)`` with no
+extra variables or equations. In a steady model there is one point and the time
+derivatives are 0. docs/model.md gives the equations and the measured accuracy.
 
 Zone balances (zone z, component i, volume V, throughflow Q_z)::
 
