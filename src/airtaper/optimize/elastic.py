@@ -12,8 +12,8 @@ valve, blower capacity, turndown and pressure) have slack in fractions of the li
 effluent limits) have slack in mg/L and weight :data:`PROCESS_WEIGHT`, ten times
 higher, so the solve first asks for more hardware and only then lets a process
 limit go: the findings read "zone Z2 needs 14 % more air than its diffusers pass,
-10:00-12:00". DO slacks are per time step, their weight divided by the steps per
-period (so an hour of shortfall costs the same at any resolution).
+10:00-12:00". DO slacks are per time point, their weight times the point's share
+of the day x 24 (so an hour of shortfall costs the same at any resolution).
 
 :func:`findings` groups slacks above :data:`REPORT_THRESHOLD` into runs of
 consecutive periods (or steps) per zone and words them.
@@ -24,7 +24,7 @@ from __future__ import annotations
 import pyomo.environ as pyo
 
 from airtaper.optimize.figures import clock
-from airtaper.optimize.problem import LIMIT_GROUPS, fix_slacks, free_slacks
+from airtaper.optimize.problem import LIMIT_GROUPS, fix_slacks, free_slacks, point_weights
 
 #: Penalty per unit slack (fraction of the limit, or kPa) of equipment limits, in
 #: objective units (the objective is about 1 at the baseline).
@@ -35,11 +35,13 @@ PROCESS_WEIGHT = 1000.0
 REPORT_THRESHOLD = {"fraction": 1e-3, "mg/L": 2e-3, "kPa": 1e-2}
 
 
-def _weight(m, group) -> float:
+def _weights(m, group, slack) -> dict:
+    """Penalty weight of every slack of a group; DO slacks by their time weight (per hour of shortfall)."""
     w = PROCESS_WEIGHT if group.kind == "process" else EQUIPMENT_WEIGHT
     if group.index == "zone_step":
-        w /= m._train_data.steps_per_period
-    return w
+        pw = point_weights(m)
+        return {k: w * 24.0 * pw[k[0]] for k in slack}
+    return {k: w for k in slack}
 
 
 def enter_elastic(m) -> None:
@@ -51,8 +53,9 @@ def enter_elastic(m) -> None:
         con = b.component(g.name)
         if con is None or not con.active:
             continue
-        w = _weight(m, g)
-        terms.extend(w * v for v in b.component(g.slack).values())
+        slack = b.component(g.slack)
+        w = _weights(m, g, slack)
+        terms.extend(w[k] * v for k, v in slack.items())
     if b.component("elastic_objective") is not None:
         b.del_component("elastic_objective")
     b.elastic_objective = pyo.Objective(expr=b.objective.expr + sum(terms), sense=pyo.minimize)
@@ -153,7 +156,8 @@ def findings(m) -> list[dict]:
                 if g.index == "scalar":
                     start, end = 0.0, 24.0
                 elif g.index == "zone_step":
-                    start, end = (first - 1) * step_h, last * step_h
+                    k = getattr(m, "points_per_step", 1)
+                    start, end = ((first - 1) // k) * step_h, ((last - 1) // k + 1) * step_h
                 else:
                     start, end = (first - 1) * period_h, last * period_h
                 text = _sentence(g, zone, _amount(g.unit, amount), limit_value)

@@ -4,8 +4,8 @@ Inputs are per time step over the day (``N = n_periods x steps_per_period`` step
 effluent NH4-N and TN (mg/L), effluent flow (m3/d), the period of every step, and
 the DO of every zone (mg/L). Definitions (docs/optimization.md, "Limits"):
 
-* daily mean = effluent-flow-weighted mean over the steps;
-* period mean = plain mean over the period's steps (the flow is constant in a period);
+* daily mean = effluent-flow-weighted mean over the steps (times the steps' time weights);
+* period mean = time mean over the period's steps (the flow is constant in a period);
 * NH4-N max = the largest period mean;
 * DO margin of a zone = min over steps (DO - DO minimum) and, where a DO maximum is
   set, min over steps (DO maximum - DO); the smallest over the zones is reported.
@@ -37,14 +37,20 @@ def do_limits(layout: Layout) -> dict[str, tuple[float | None, float | None]]:
     return out
 
 
-def day_figures(layout: Layout, nh4_mg_L, tn_mg_L, q_effluent_m3_d, period_of_step, do_by_zone: dict) -> dict:
-    """Effluent means, period maxima and DO margins of one day (see module notes)."""
+def day_figures(layout: Layout, nh4_mg_L, tn_mg_L, q_effluent_m3_d, period_of_step, do_by_zone: dict,
+                weights=None) -> dict:
+    """Effluent means, period maxima and DO margins of one day (see module notes).
+
+    ``weights``: time weight of every point (quadrature weights of collocation points);
+    None for equal steps.
+    """
     nh4 = np.asarray(nh4_mg_L, dtype=float)
     tn = np.asarray(tn_mg_L, dtype=float)
-    q = np.asarray(q_effluent_m3_d, dtype=float)
+    w = np.ones_like(nh4) if weights is None else np.asarray(weights, dtype=float)
+    q = np.asarray(q_effluent_m3_d, dtype=float) * w
     per = np.asarray(period_of_step, dtype=int)
     periods = np.unique(per)
-    nh4_period = np.array([nh4[per == k].mean() for k in periods])
+    nh4_period = np.array([(w[per == k] * nh4[per == k]).sum() / w[per == k].sum() for k in periods])
     margins = {}
     for zid, (lo, hi) in do_limits(layout).items():
         do = np.asarray(do_by_zone[zid], dtype=float)

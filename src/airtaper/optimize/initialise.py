@@ -62,6 +62,14 @@ def start_airflow(m, day: SimDay, factor: float = 1.0) -> dict:
     return out
 
 
+def point_hours(m) -> dict:
+    """Time of day of every model time point, h."""
+    hours = getattr(m, "point_hour", None)
+    if hours is None:
+        return {t: t * m.step_hours for t in m.STEPS}
+    return dict(hours)
+
+
 def start_from_day(m, day: SimDay, airflow: dict) -> None:
     """Set the model's airflow, states and waste flow from a simulated day (see module notes).
 
@@ -73,13 +81,14 @@ def start_from_day(m, day: SimDay, airflow: dict) -> None:
     initialise_cyclic(m)
     zones = list(m.ZONES)
     index = {c: k for k, c in enumerate(ASM1_COMPONENTS)}
+    hours = point_hours(m)
     for t in m.STEPS:
-        s = day.model_step_sample(t)
+        state = day.state_at(hours[t])
         for i, z in enumerate(zones):
             for c in m.COMPONENTS:
                 v = m.conc[t, z, c]
                 if not v.fixed:
-                    v.set_value(max(float(day.conc[s, i, index[c]]), 0.0), skip_validation=True)
+                    v.set_value(max(float(state[i, index[c]]), 0.0), skip_validation=True)
     waste = day.extra.get("waste_m3_d")
     if waste is not None and not m.waste_m3_d[1].fixed:
         mean = float(np.mean(waste))
@@ -87,4 +96,4 @@ def start_from_day(m, day: SimDay, airflow: dict) -> None:
             m.waste_m3_d[p].set_value(mean)
 
 
-__all__ = ["BASE_OPTIONS", "LADDER", "Rung", "start_airflow", "start_from_day"]
+__all__ = ["BASE_OPTIONS", "LADDER", "Rung", "point_hours", "start_airflow", "start_from_day"]

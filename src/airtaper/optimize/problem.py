@@ -130,7 +130,17 @@ def _kla_on_diffusers(m, z, p):
 
 
 def steps_of_period(m, p) -> list[int]:
+    """Time points of period ``p`` (collocation points or step ends, see the model's notes)."""
     return [t for t in m.STEPS if m.period_of_step[t] == p]
+
+
+def point_weights(m) -> dict:
+    """Quadrature weight of every time point as a fraction of the day (sum 1)."""
+    w = getattr(m, "point_weight", None)
+    if w is None:  # a one-point-per-step scheme without weights: equal steps
+        n = len(m.STEPS)
+        return {t: 1.0 / n for t in m.STEPS}
+    return {t: float(w[t]) for t in m.STEPS}
 
 
 def effluent_weights(m) -> dict:
@@ -145,14 +155,19 @@ def effluent_weights(m) -> dict:
 
 
 def flow_weighted_mean(m, expr, weights: dict):
-    """Flow-weighted daily mean of a per-step effluent expression (weights: effluent flow per period)."""
-    total = sum(weights[m.period_of_step[t]] for t in m.STEPS)
-    return sum(weights[m.period_of_step[t]] / total * expr[t] for t in m.STEPS)
+    """Flow-weighted daily mean of a per-point effluent expression: quadrature weight x effluent flow."""
+    w = point_weights(m)
+    ww = {t: w[t] * weights[m.period_of_step[t]] for t in m.STEPS}
+    total = sum(ww.values())
+    return sum(ww[t] / total * expr[t] for t in m.STEPS)
 
 
 def period_mean(m, expr, p):
-    steps = steps_of_period(m, p)
-    return sum(expr[t] for t in steps) / len(steps)
+    """Time mean of a per-point expression over period ``p`` (quadrature weights)."""
+    w = point_weights(m)
+    pts = steps_of_period(m, p)
+    total = sum(w[t] for t in pts)
+    return sum(w[t] / total * expr[t] for t in pts)
 
 
 # --- the attachment -----------------------------------------------------------------------
@@ -317,4 +332,4 @@ def fix_slacks(b) -> None:
 
 
 __all__ = ["LIMIT_GROUPS", "LimitGroup", "ProblemSettings", "attach_problem", "fix_slacks", "free_slacks",
-           "effluent_weights", "flow_weighted_mean", "period_mean", "settings_for", "steps_of_period"]
+           "effluent_weights", "flow_weighted_mean", "period_mean", "point_weights", "settings_for", "steps_of_period"]

@@ -8,8 +8,8 @@ from :class:`~airtaper.optimize.airside.AirSide` at every output step.
 
 The simulator reports its states at the start of each of the ``steps_per_period``
 equal steps of every period (0 h, 0.25 h, ... for hourly periods with four steps);
-the model's step ``t`` ends at ``t x step``, which is the simulator's sample
-``t mod N`` of the periodic day (:meth:`SimDay.model_step_sample`).
+:meth:`SimDay.state_at` interpolates them (linearly, around the periodic day) to
+the model's time points.
 """
 
 from __future__ import annotations
@@ -50,9 +50,14 @@ class SimDay:
         n = self.layout.horizon.n_periods
         return {z: np.array([a[self.period == k].mean() for k in range(n)]) for z, a in self.airflow.items()}
 
-    def model_step_sample(self, t: int) -> int:
-        """Sample index of the simulator that matches the model's step ``t`` (1-based)."""
-        return t % len(self.time_h)
+    def state_at(self, hour: float) -> np.ndarray:
+        """Zone concentrations (zones, 13) at a time of day, linear between samples, periodic."""
+        n = len(self.time_h)
+        step = 24.0 / n
+        x = (hour % 24.0) / step
+        i = int(np.floor(x)) % n
+        f = x - np.floor(x)
+        return (1.0 - f) * self.conc[i] + f * self.conc[(i + 1) % n]
 
 
 def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=None) -> SimDay:
