@@ -1,0 +1,73 @@
+"""`airtaper optimize`: outputs in DIR, console summary, exit codes 0/2/3, no traceback."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from airtaper.cli.main import main
+from airtaper.errors import EXIT_INFEASIBLE, EXIT_INPUT, EXIT_OK
+
+ROOT = Path(__file__).resolve().parents[2]
+THREE = ROOT / "layouts" / "three_tank.toml"
+
+
+def _short_layout(tmp_path, extra: str = "", replace: tuple[str, str] | None = None) -> Path:
+    """The three-tank layout on six 4-hour periods of two steps (fast), optionally edited."""
+    text = THREE.read_text()
+    if replace:
+        assert replace[0] in text
+        text = text.replace(*replace)
+    path = tmp_path / "three_short.toml"
+    path.write_text(text + "\n[horizon]\nn_periods = 6\nsteps_per_period = 2\n" + extra)
+    return path
+
+
+@pytest.mark.solver
+def test_optimize_writes_every_output_and_a_summary(tmp_path, capsys):
+    out = tmp_path / "out"
+    assert main(["optimize", str(_short_layout(tmp_path)), "--out", str(out), "--quiet"]) == EXIT_OK
+    for name in ("schedule.csv", "header.csv", "timeseries.csv", "summary.json", "schedule.png", "report.html"):
+        assert (out / name).is_file(), name
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["status"] == "optimal" and summary["verification"]["verified"] is True
+    assert summary["energy_kWh_per_day"] < summary["baseline"]["energy_kWh_per_day"]
+    sched = pd.read_csv(out / "schedule.csv")
+    assert len(sched) == 6 * 3 and set(sched["zone"]) == {"T1", "T2", "T3"}
+    text = capsys.readouterr().out
+    assert "saving" in text and "verified          yes" in text
+
+
+@pytest.mark.solver
+def test_impossible_limits_exit_3_with_the_reason(tmp_path, capsys):
+    # a DO minimum above what T3's diffusers can reach even at their maximum airflow
+    lay = _short_layout(tmp_path, replace=('id = "T3"\nkind = "aerated"', 'id = "T3"\nkind = "aerated"\ndo_min_mg_L = 9.5'))
+    out = tmp_path / "out"
+    assert main(["optimize", str(lay), "--out", str(out), "--quiet", "--no-figure"]) == EXIT_INFEASIBLE
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["status"] == "infeasible"
+    assert any(f["zone"] == "T3" for f in summary["infeasibility"])
+    assert "T3" in capsys.readouterr().out
+
+
+def test_bad_input_exits_2_without_traceback(tmp_path, capsys):
+    assert main(["optimize", str(tmp_path / "missing.toml"), "--out", str(tmp_path / "o")]) == EXIT_INPUT
+    err = capsys.readouterr().err
+    assert "Traceback" not in err and "error:" in err
+    assert main(["optimize", str(THREE), "--out", str(tmp_path / "o"), "--smoothing-weight", "-1"]) == EXIT_INPUT
+    assert "--smoothing-weight" in capsys.readouterr().err
+
+
+def test_output_folder_holding_the_layout_is_refused(tmp_path, capsys):
+    lay = _short_layout(tmp_path)
+    # a layout file that carries an output's name, in the output folder: refused, not overwritten
+    clash = tmp_path / "clash"
+    clash.mkdir()
+    copy = clash / "summary.json"
+    copy.write_text(lay.read_text())
+    assert main(["optimize", str(copy), "--out", str(clash)]) == EXIT_INPUT
+    assert "overwrite" in capsys.readouterr().err
+    assert copy.read_text() == lay.read_text()
