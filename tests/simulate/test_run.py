@@ -92,3 +92,19 @@ def test_bad_aeration_inputs(demo):
         simulate.periodic(demo, schedule=np.ones((3, 2)))
     with pytest.raises(InputError):
         simulate.steady_state(demo, do_setpoint_mg_L={"nope": 2.0})
+
+
+def test_srt_target_is_met_on_the_daily_mean_with_one_waste_flow(demo, demo_day):
+    """Target SRT: one waste flow all day; mean zone solids = SRT x mean solids leaving.
+
+    The same rule as the Pyomo model's, so the two implementations compare like with like.
+    """
+    eff = demo_day.effluent
+    assert eff["q_waste_m3_d"].nunique() == 1
+    ts = demo_day.timeseries
+    zones = {z.id: z.volume_m3 for z in demo.zones}
+    part = ["XI", "XS", "XBH", "XBA", "XP"]
+    tss = demo.clarifier.tss_per_cod * ts[part].sum(axis=1)
+    inventory = (tss * ts["zone"].map(zones)).groupby(ts["time_h"]).sum().to_numpy()
+    removal = inventory / eff["srt_d"].to_numpy()  # waste + effluent solids, g/d, at each output time
+    assert inventory.mean() / removal.mean() == pytest.approx(demo.wasting.srt_d, rel=2e-3)

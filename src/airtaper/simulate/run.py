@@ -15,6 +15,8 @@ layout), a scheduled airflow, or ideal DO control to a setpoint.
 
 from __future__ import annotations
 
+import dataclasses
+
 import time
 from dataclasses import dataclass, field
 
@@ -260,6 +262,12 @@ def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30
     period_d = plant.period_d
     steps = layout.horizon.steps_per_period
     y = start.y.copy()
+    srt_target = layout.wasting.srt_d
+    if srt_target is not None:
+        # An SRT target is met on the daily mean with one waste flow for the whole day, as
+        # operators waste and as the Pyomo model states it: start from the mean-load value.
+        q_waste = start.q_waste_m3_d
+        inputs = [dataclasses.replace(inp, q_waste=q_waste) for inp in inputs]
     converged = False
     change = np.inf
     days = 0
@@ -272,7 +280,14 @@ def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30
         change = float(np.max(np.abs(y_end - y) / np.maximum(np.abs(y), 1.0)))
         rec = (y.copy(), z_end, rec_try)
         y = y_end
-        if change < tol:
+        waste_change = 0.0
+        if srt_target is not None:
+            q_new = _daily_waste_for_srt(system, inputs, rec_try, srt_target)
+            waste_change = abs(q_new - q_waste) / max(q_waste, 1e-9)
+            if waste_change >= tol:
+                q_waste = q_new
+                inputs = [dataclasses.replace(inp, q_waste=q_waste) for inp in inputs]
+        if change < tol and waste_change < tol:
             converged = True
             break
     y0_day, z_end, records = rec
@@ -293,6 +308,25 @@ def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30
     return PeriodicResult(timeseries=ts, effluent=eff, days=days, converged=converged, day_change=change,
                           balance=balance, start=start, seconds=time.perf_counter() - t_start,
                           y_start=y0_day, y_end=y1_day, period_h=layout.horizon.period_h, layout=layout)
+
+
+def _daily_waste_for_srt(system: System, inputs, records, srt_target_d: float) -> float:
+    """The one waste flow that makes the day's mean solids inventory equal SRT x mean solids leaving.
+
+    ``mean(M) = SRT (Q_w mean(X_u) + mean(Q_e X_e))`` over the recorded output times
+    (equal steps of every period), with ``M`` the suspended solids in the zones, g.
+    """
+    _, Y, K = records
+    nz = system.nz
+    inventory, xu, qe_xe = [], [], []
+    for y_i, k in zip(Y, K):
+        _, info = system.rhs(y_i, inputs[k], detail=True)
+        cz = system.blocks(y_i)[:nz]
+        inventory.append(float((system.V * system.tss(cz.T)).sum()))
+        xu.append(float(system.tss(info["c_underflow"])))
+        qe_xe.append(float(info["q_effluent_m3_d"]) * float(system.tss(info["c_effluent"])))
+    q = (np.mean(inventory) / srt_target_d - np.mean(qe_xe)) / max(np.mean(xu), 1e-9)
+    return float(max(q, 0.0))
 
 
 def _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod, wn):

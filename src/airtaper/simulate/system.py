@@ -36,7 +36,11 @@ feed's particulate composition; the rest goes to the underflow.
 Wasting from the underflow: a fixed flow, or the flow that holds the target
 SRT, ``SRT = M_reactors / (Q_w X_u + Q_e X_e)`` with ``M_reactors`` the
 suspended solids in the zones (the clarifier inventory is not counted; common
-practice (no source)).
+practice (no source)). The right-hand side holds it at every instant when the
+input gives no waste flow (steady states); the periodic day
+(:func:`airtaper.simulate.run.periodic`) instead gives one waste flow for the
+whole day, updated day by day until the day's mean inventory equals SRT times
+its mean solids leaving, as operators waste and as the Pyomo model states it.
 
 Ideal DO control: a controlled zone's kLa is chosen so that the DO follows
 ``dSO/dt = (SO_set - SO) / tau_DO`` exactly (the required kLa solved from the
