@@ -36,3 +36,12 @@ def test_guard_refuses_to_overwrite_input(tmp_path):
     with pytest.raises(InputError, match="overwrite an input"):
         guard_inputs(tmp_path, [inp], ["schedule.csv", "summary.json"])
     guard_inputs(tmp_path / "other", [inp], ["schedule.csv"])  # different folder: fine
+
+
+def test_outputs_get_the_usual_permissions(tmp_path):
+    mask = os.umask(0o022)
+    try:
+        p = write_text_atomic(tmp_path / "a.txt", "x")
+    finally:
+        os.umask(mask)
+    assert (p.stat().st_mode & 0o777) == 0o644

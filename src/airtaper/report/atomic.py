@@ -23,6 +23,7 @@ def write_bytes_atomic(path: str | os.PathLike, data: bytes) -> Path:
     dest.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{dest.name}.", suffix=".tmp", dir=dest.parent)
     try:
+        os.fchmod(fd, 0o666 & ~_umask())  # mkstemp makes 0600; outputs get the usual permissions
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
             fh.flush()
@@ -35,6 +36,12 @@ def write_bytes_atomic(path: str | os.PathLike, data: bytes) -> Path:
             pass
         raise
     return dest
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def write_text_atomic(path: str | os.PathLike, text: str) -> Path:

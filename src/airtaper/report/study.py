@@ -47,7 +47,7 @@ def schedule_figure_png(schedule: pd.DataFrame, header: pd.DataFrame, timeseries
         rows = schedule[schedule["zone"] == z]
         edges = np.append(rows["period_start_h"].to_numpy(), rows["period_end_h"].to_numpy()[-1])
         vals = rows["airflow_Sm3_h"].to_numpy()
-        axes[0].stairs(vals, edges, label=z, linewidth=1.6)
+        axes[0].stairs(vals, edges, label=z, linewidth=1.6, baseline=None)
     axes[0].set_ylabel("airflow (Sm3/h)")
     axes[0].legend(ncol=min(len(zones), 6), fontsize=8, loc="upper right")
     axes[0].set_title(title)
@@ -75,11 +75,14 @@ def schedule_figure_png(schedule: pd.DataFrame, header: pd.DataFrame, timeseries
     axes[2].legend(fontsize=8, loc="upper right")
 
     edges = np.arange(len(header) + 1) * (schedule["period_end_h"].max() / max(len(header), 1))
-    axes[3].stairs(header["power_kW"].to_numpy(), edges, color="tab:purple", label="blower power")
+    axes[3].stairs(header["power_kW"].to_numpy(), edges, color="tab:purple", label="blower power", baseline=None)
     axes[3].set_ylabel("power (kW)")
+    axes[3].set_ylim(bottom=0.0)
     ax2 = axes[3].twinx()
-    ax2.stairs(header["pressure_kPa"].to_numpy(), edges, color="tab:gray", linestyle="--", label="header pressure")
+    ax2.stairs(header["pressure_kPa"].to_numpy(), edges, color="tab:gray", linestyle="--", label="header pressure",
+               baseline=None)
     ax2.set_ylabel("header pressure (kPa gauge)")
+    ax2.set_ylim(bottom=0.0)
     axes[3].set_xlabel("time of day (h)")
     axes[3].set_xlim(0, edges[-1])
 
