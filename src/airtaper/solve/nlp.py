@@ -28,6 +28,7 @@ import scipy.sparse as sp
 from pyomo.common.gc_manager import PauseGC
 
 from airtaper.errors import ModelError
+from airtaper.solve import derivatives as _derivatives
 from airtaper.solve import pyomo_to_casadi as p2c
 
 _UNARY_CA = {
@@ -101,6 +102,7 @@ class SXModel:
     p: object  # SX symbols of the parameters
     f: object  # objective times sense (scalar SX)
     g: object  # constraint bodies (SX column)
+    blocks: object = None  # where each tape node's SX lives (for the derivatives)
 
 
 def build_sx(tape: p2c.Tape) -> SXModel:
@@ -159,7 +161,7 @@ def build_sx(tape: p2c.Tape) -> SXModel:
         f = tape.sense * blocks.gather(np.asarray([tape.objective_root]))
     else:
         f = ca.SX(0.0)
-    return SXModel(x=x, p=p, f=f, g=ca.densify(g))
+    return SXModel(x=x, p=p, f=f, g=ca.densify(g), blocks=blocks)
 
 
 def _group(code, ids, L, blocks, arg1, arg2, arg3, aux, lin_row, lin_arg, lin_coef,
@@ -210,16 +212,32 @@ class NlpFunctions:
     hess_cols: np.ndarray
 
 
-def build_functions(sxm: SXModel) -> NlpFunctions:
-    """Derivatives (sparse Jacobian, exact Hessian of the Lagrangian) and functions."""
+def build_functions(sxm: SXModel, tape: p2c.Tape | None = None, *,
+                    method: str = "split") -> NlpFunctions:
+    """Derivatives (sparse Jacobian, exact Hessian of the Lagrangian) and functions.
+
+    ``method="split"`` (default, needs ``tape`` and ``sxm.blocks``) differentiates the
+    nonlinear operations only and handles the linear part of the model as constant
+    sparse matrices (:mod:`airtaper.solve.derivatives`); ``method="casadi"`` uses
+    CasADi's ``jacobian`` and ``hessian`` of the whole graph (the reference path: same
+    values, much slower on large mostly linear models because its graph colouring needs
+    one AD sweep per colour).
+    """
     x, p, f, g = sxm.x, sxm.p, sxm.f, sxm.g
     n, m, npar = x.shape[0], g.shape[0], p.shape[0]
     lam = ca.SX.sym("lam", m)
     sigma = ca.SX.sym("sigma")
     grad = ca.densify(ca.gradient(f, x))
-    jac = ca.jacobian(g, x)
-    lag = sigma * f + ca.dot(lam, g)
-    hess = ca.tril(ca.hessian(lag, x)[0])
+    if method == "split":
+        if tape is None or sxm.blocks is None:
+            raise ValueError("method='split' needs the tape and the SX blocks")
+        jac, hess = _derivatives.derivatives(tape, x, sxm.blocks, f, g, lam, sigma)
+    elif method == "casadi":
+        jac = ca.jacobian(g, x)
+        lag = sigma * f + ca.dot(lam, g)
+        hess = ca.tril(ca.hessian(lag, x)[0])
+    else:
+        raise ValueError(f"unknown derivative method {method!r}")
     jr, jc = jac.sparsity().get_triplet()
     hr, hc = hess.sparsity().get_triplet()
     opts = {"cse": False}
@@ -371,7 +389,7 @@ def get_structure(model, *, use_cache: bool = True) -> tuple[Structure, bool]:
         tape = p2c.convert(model, constraints, objective)
         sxm = build_sx(tape)
         t1 = time.perf_counter()
-        fns = build_functions(sxm)
+        fns = build_functions(sxm, tape)
         ev = Evaluator(fns)
         t2 = time.perf_counter()
     s = Structure(
