@@ -147,3 +147,17 @@ def test_tapered_shape_on_the_plug_flow_demo(demo):
     first = [z.id for z in demo.zones if z.kind == "aerated"][0]
     assert per_volume[first] == max(per_volume.values())
     assert per_volume[first] > 1.2 * np.median(list(per_volume.values()))
+
+
+def test_retry_ladder_moves_to_the_next_rung_after_a_failure(three_tank_6):
+    from airtaper.optimize.initialise import LADDER, Rung
+
+    ladder = (Rung("starved", {"max_iter": 2}), LADDER[2])  # the second rung starts from a square solve
+    res = run_optimization(three_tank_6, StudyOptions(marginal=False, ladder=ladder))
+    attempts = res.summary["solver"]["attempts"]
+    assert attempts[0]["rung"] == "starved" and attempts[0]["status"] == "iteration_limit"
+    assert attempts[-1]["rung"] == LADDER[2].name and attempts[-1]["status"] == "optimal"
+    assert any(a["rung"].startswith("square solve") for a in attempts)
+    assert res.exit_code == EXIT_OK
+    reference = run_optimization(three_tank_6, StudyOptions(marginal=False, verify=False))
+    assert res.summary["energy_kWh_per_day"] == pytest.approx(reference.summary["energy_kWh_per_day"], rel=1e-5)
