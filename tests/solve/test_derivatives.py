@@ -31,8 +31,9 @@ def _dense(values, rows, cols, shape):
 
 def _both(m):
     tape = p2c.convert(m)
-    sxm = nlp.build_sx(tape)
-    return tape, nlp.build_functions(sxm, tape), nlp.build_functions(sxm, method="casadi")
+    split = dv.build_split_sx(tape)
+    levels = nlp.build_sx(tape)  # the graph as walked, built independently
+    return tape, nlp.build_functions(split, tape), nlp.build_functions(levels, method="casadi")
 
 
 def _compare(m, seed, *, n_points=4, spread=0.2, rtol=1e-11):
@@ -46,6 +47,9 @@ def _compare(m, seed, *, n_points=4, spread=0.2, rtol=1e-11):
         x = x0 * rng.uniform(1 - spread, 1 + spread, n)
         lam = rng.normal(size=mm)
         sigma = float(rng.uniform(0.1, 2.0))
+        for name in ("f", "g", "grad_f"):  # values of the split form
+            a, b = (np.array(getattr(fns, name)(x, p0)).ravel() for fns in (new, ref))
+            np.testing.assert_allclose(a, b, rtol=rtol, atol=rtol * max(1.0, np.abs(b).max()))
         for fn_new, fn_ref, rows, cols, rref, cref, shape, args in (
             (new.jac_g, ref.jac_g, new.jac_rows, new.jac_cols, ref.jac_rows, ref.jac_cols,
              (mm, n), (x, p0)),

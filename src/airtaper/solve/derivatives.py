@@ -74,83 +74,183 @@ def differentiable_slots(code: int) -> tuple[int, ...]:
 # --- step 1: flattening ----------------------------------------------------------------
 @dataclass
 class Flat:
-    """Affine representation of every tape node in ``x`` and the nonlinear values ``w``.
+    """Affine representation of every tape node in ``x``, ``p`` and the nonlinear ``w``.
 
-    ``Ex`` (nodes x n) and ``Ew`` (nodes x K) are CSR matrices; the columns of ``Ew``
-    are the nonlinear nodes ``w_nodes`` ordered by ``depth`` (then by operation).
-    ``offsets[d]`` is the first ``w`` index of depth ``d`` (depths start at 1).
+    ``E`` (nodes x (n + n_par + K), CSR) and ``e0`` (nodes) give
+    ``node = E [x; p; w] + e0``; the ``w`` columns are the nonlinear nodes ``w_nodes``
+    ordered by ``depth`` (then by operation, then topologically), so that the nodes of
+    one depth depend only on the ``w`` before them. ``offsets[d]`` is the first ``w``
+    index of depth ``d + 1``; ``offsets[-1] == K``.
     """
 
-    Ex: sp.csr_matrix
-    Ew: sp.csr_matrix
+    E: sp.csr_matrix
+    e0: np.ndarray
+    n: int
+    n_par: int
     w_nodes: np.ndarray
     depth: np.ndarray  # of each w, in w order
     offsets: np.ndarray
 
+    @property
+    def Ex(self) -> sp.csr_matrix:
+        return self.E[:, :self.n]
+
+    @property
+    def Ew(self) -> sp.csr_matrix:
+        return self.E[:, self.n + self.n_par:]
+
 
 def flatten(tape: p2c.Tape) -> Flat:
-    """Express every node of ``tape`` in ``x`` and the nonlinear values (module notes)."""
-    op = np.asarray(tape.op, dtype=np.int64)
-    level = np.asarray(tape.level, dtype=np.int64)
-    aux = np.asarray(tape.aux, dtype=float)
-    N, n = len(op), len(tape.variables)
+    """Express every node of ``tape`` in ``x``, ``p`` and the nonlinear values (notes)."""
+    a = tape.arrays()
+    op, level, aux = a["op"], a["level"], a["aux"]
+    N, n, npar = len(op), len(tape.variables), len(tape.parameters)
     nl = np.flatnonzero(op > p2c.LIN)
     nl = nl[np.argsort(level[nl], kind="stable")]  # topological order
     K = len(nl)
-    # columns: [x | w] (parameters and constants are not needed for derivatives)
+    base = n + npar
     col = np.full(N, -1, dtype=np.int64)
     xs = np.flatnonzero(op == p2c.X)
     col[xs] = aux[xs].astype(np.int64)
-    col[nl] = n + np.arange(K)
+    ps = np.flatnonzero(op == p2c.P)
+    col[ps] = n + aux[ps].astype(np.int64)
+    col[nl] = base + np.arange(K)
     rows = np.flatnonzero(col >= 0)
-    B = sp.csr_matrix((np.ones(len(rows)), (rows, col[rows])), shape=(N, n + K))
-    C = sp.csr_matrix((np.asarray(tape.lin_coef, dtype=float),
-                       (np.asarray(tape.lin_row, dtype=np.int64),
-                        np.asarray(tape.lin_arg, dtype=np.int64))), shape=(N, N))
-    E, F = B, B
-    for _ in range(N + 1):  # C is nilpotent: at most (longest linear chain) products
+    B = sp.csr_matrix((np.ones(len(rows)), (rows, col[rows])), shape=(N, base + K))
+    C = sp.csr_matrix((a["lin_coef"], (a["lin_row"], a["lin_arg"])), shape=(N, N))
+    c0 = np.where((op == p2c.C) | (op == p2c.LIN), aux, 0.0)
+    E, F, e0, f0 = B, B, c0, c0
+    for _ in range(N + 1):  # C is nilpotent: (longest linear chain) products at most
         F = C @ F
-        if F.nnz == 0:
+        f0 = C @ f0
+        if F.nnz == 0 and not f0.any():
             break
         E = E + F
+        e0 = e0 + f0
     E = E.tocsr()
     E.sum_duplicates()
-    Ew_tape = E[:, n:].tocsr()  # w columns still in topological order
 
     # nonlinear depth of each w, one tape level at a time (arguments are lower levels)
-    depth_t = np.zeros(K, dtype=np.int64)  # indexed by topological w position
-    arg = (None, np.asarray(tape.arg1, dtype=np.int64), np.asarray(tape.arg2, dtype=np.int64),
-           np.asarray(tape.arg3, dtype=np.int64))
-    op_nl = op[nl]
+    depth_t = np.zeros(K, dtype=np.int64)  # by topological position
     lv = level[nl]
     cuts = np.flatnonzero(np.diff(lv)) + 1 if K else np.zeros(0, dtype=np.int64)
+    Ew_t = E[:, base:].tocsr()
     for chunk in np.split(np.arange(K), cuts) if K else []:
         best = np.zeros(len(chunk), dtype=np.int64)
-        for slot in (1, 2, 3):
-            has = np.array([slot in differentiable_slots(c) for c in op_nl[chunk]], dtype=bool)
+        for slot in ("arg1", "arg2", "arg3"):
+            args = a[slot][nl[chunk]]
+            has = args >= 0
             if not has.any():
                 continue
-            sub = Ew_tape[arg[slot][nl[chunk[has]]]]
+            sub = Ew_t[args[has]]
             if sub.nnz == 0:
                 continue
             vals = depth_t[sub.indices]
-            counts = np.diff(sub.indptr)
-            nonempty = counts > 0
-            mx = np.zeros(len(counts), dtype=np.int64)
+            nonempty = np.diff(sub.indptr) > 0
+            mx = np.zeros(len(nonempty), dtype=np.int64)
             mx[nonempty] = np.maximum.reduceat(vals, sub.indptr[:-1][nonempty])
             best[has] = np.maximum(best[has], mx)
         depth_t[chunk] = best + 1
-    order = np.lexsort((np.arange(K), op_nl, depth_t)) if K else np.zeros(0, dtype=np.int64)
-    new_of_old = np.empty(K, dtype=np.int64)
-    new_of_old[order] = np.arange(K)
-    Ew = sp.csr_matrix((Ew_tape.data, new_of_old[Ew_tape.indices], Ew_tape.indptr),
-                       shape=(N, K))
-    Ew.sort_indices()
+    order = np.lexsort((np.arange(K), op[nl], depth_t)) if K else np.zeros(0, np.int64)
+    new_of_old = np.arange(base + K, dtype=np.int64)
+    new_of_old[base + order] = base + np.arange(K)
+    E = sp.csr_matrix((E.data, new_of_old[E.indices], E.indptr), shape=E.shape)
+    E.sort_indices()
     depth = depth_t[order]
     max_depth = int(depth.max()) if K else 0
     offsets = np.searchsorted(depth, np.arange(1, max_depth + 2))
-    return Flat(Ex=E[:, :n].tocsr(), Ew=Ew, w_nodes=nl[order], depth=depth,
+    return Flat(E=E, e0=e0, n=n, n_par=npar, w_nodes=nl[order], depth=depth,
                 offsets=offsets)
+
+
+# --- values: the SX graph of the split form ---------------------------------------------
+@dataclass
+class Group:
+    """Nonlinear nodes of one depth and one operation: ``w[lo:hi]``."""
+
+    lo: int
+    hi: int
+    depth_lo: int  # first w index of the group's depth (its arguments use w before it)
+    code: int
+    ids: np.ndarray  # tape nodes
+    args: dict  # slot (1..3) -> SX column of the argument values
+    w: object  # SX column of the values
+
+
+@dataclass
+class SplitSX:
+    x: object
+    p: object
+    f: object  # objective times sense (scalar SX)
+    g: object  # constraint bodies (SX column)
+    groups: list
+    flat: Flat
+
+
+def build_split_sx(tape: p2c.Tape, flat: Flat | None = None) -> SplitSX:
+    """CasADi SX of the model in split form: nonlinear values one depth at a time, each
+    argument and each constraint body one sparse product ``E [x; p; w] + e0``."""
+    from airtaper.solve.nlp import _BINARY_CA, _UNARY_BY_CODE
+
+    flat = flat or flatten(tape)
+    a = tape.arrays()
+    op, aux = a["op"], a["aux"]
+    n, npar = flat.n, flat.n_par
+    base = n + npar
+    x = ca.SX.sym("x", n)
+    p = ca.SX.sym("p", npar)
+    z = ca.vertcat(x, p)
+    groups: list[Group] = []
+    for d in range(len(flat.offsets) - 1):
+        lo_d, hi_d = int(flat.offsets[d]), int(flat.offsets[d + 1])
+        ids_d = flat.w_nodes[lo_d:hi_d]
+        codes = op[ids_d]
+        cut = np.flatnonzero(np.diff(codes)) + 1
+        segs = np.split(np.arange(lo_d, hi_d), cut)
+        rows, where = [], []  # argument rows of the whole depth, one product
+        start = 0
+        for seg in segs:
+            ids = flat.w_nodes[seg]
+            slots = {}
+            for slot in (1, 2, 3):
+                r = a[f"arg{slot}"][ids]
+                if r[0] < 0:
+                    continue
+                rows.append(r)
+                slots[slot] = (start, start + len(r))
+                start += len(r)
+            where.append(slots)
+        R = np.concatenate(rows)
+        vals = ca.mtimes(_dm(flat.E[R][:, :base + lo_d]), z) + ca.DM(flat.e0[R])
+        parts = []
+        for seg, slots in zip(segs, where):
+            ids = flat.w_nodes[seg]
+            code = int(op[ids[0]])
+            args = {s: vals[i:j] for s, (i, j) in slots.items()}
+            if code == p2c.POWC:
+                w = args[1] ** ca.DM(aux[ids])
+            elif code == p2c.IFELSE:
+                w = ca.if_else(args[1], args[2], args[3])
+            elif code in _BINARY_CA:
+                w = _BINARY_CA[code](args[1], args[2])
+            else:
+                w = _UNARY_BY_CODE[code](args[1])
+            w = ca.densify(w)
+            parts.append(w)
+            groups.append(Group(int(seg[0]), int(seg[-1]) + 1, lo_d, code, ids, args, w))
+        z = ca.vertcat(z, *parts)
+    roots = np.asarray(tape.constraint_roots, dtype=np.int64)
+    if len(roots):
+        g = ca.densify(ca.mtimes(_dm(flat.E[roots]), z) + ca.DM(flat.e0[roots]))
+    else:
+        g = ca.SX(0, 1)
+    if tape.objective_root >= 0:
+        r = [tape.objective_root]
+        f = tape.sense * (ca.mtimes(_dm(flat.E[r]), z) + float(flat.e0[r[0]]))
+        f = ca.densify(f)
+    else:
+        f = ca.SX(0.0)
+    return SplitSX(x=x, p=p, f=f, g=g, groups=groups, flat=flat)
 
 
 # --- local partial derivatives of the operations ---------------------------------------
@@ -212,119 +312,96 @@ def _dm(a: sp.spmatrix):
                  a.data.tolist())
 
 
-@dataclass
-class _DepthBlock:
-    """What the Jacobian pass keeps of one (depth, operation) group for the Hessian."""
-
-    lo: int  # first w index of the group
-    hi: int
-    first: list  # d phi / d u_s (SX vectors)
-    second: dict  # (s, t) -> SX vector
-    U: list  # SX gradients (rows x n) of the arguments, per slot
-    Aw: list  # scipy CSR: E_w rows of the arguments (columns < lo), per slot
-
-
-def derivatives(tape: p2c.Tape, x, blocks, f, g, lam, sigma, *, flat: Flat | None = None):
+def derivatives(tape: p2c.Tape, sxm: SplitSX, lam, sigma):
     """Sparse Jacobian of ``g`` and lower-triangular Lagrangian Hessian, as SX.
 
-    ``blocks`` locates the SX value of every tape node (:func:`airtaper.solve.nlp.build_sx`).
-    ``f`` must be the objective already multiplied by the sense, as built there.
-    Returns ``(jac, hess_lower)``.
+    ``sxm`` is the split form of the model (:func:`build_split_sx`); the Lagrangian is
+    ``sigma * sxm.f + lam' sxm.g``. Returns ``(jac, hess_lower)``.
     """
-    flat = flat or flatten(tape)
+    flat = sxm.flat
+    x = sxm.x
     n = x.shape[0]
     K = len(flat.w_nodes)
-    arg = {1: np.asarray(tape.arg1, dtype=np.int64), 2: np.asarray(tape.arg2, dtype=np.int64),
-           3: np.asarray(tape.arg3, dtype=np.int64)}
-    op = np.asarray(tape.op, dtype=np.int64)
-    aux = np.asarray(tape.aux, dtype=float)
+    aux = tape.arrays()["aux"]
     Ex, Ew = flat.Ex, flat.Ew
 
-    # --- Jacobian of the nonlinear values, depth by depth
-    groups: list[_DepthBlock] = []
-    W_parts = []
+    # --- Jacobian of the nonlinear values, depth by depth (module notes, step 2)
+    done = []  # (group, first, second, U, Aw) for the Hessian
     Wstack = ca.SX(0, n)
-    for d in range(len(flat.offsets) - 1):
-        lo_d, hi_d = int(flat.offsets[d]), int(flat.offsets[d + 1])
-        if hi_d == lo_d:
+    depth_lo = 0
+    level_parts = []
+    for grp in sxm.groups + [None]:
+        if grp is None or grp.depth_lo != depth_lo:  # close the previous depth
+            if level_parts:
+                Wstack = ca.vertcat(Wstack, *level_parts)
+            level_parts = []
+            if grp is None:
+                break
+            depth_lo = grp.depth_lo
+        slots = differentiable_slots(grp.code)
+        k = len(grp.ids)
+        if not slots:
+            level_parts.append(ca.SX(k, n))
             continue
-        codes = op[flat.w_nodes[lo_d:hi_d]]
-        cut = np.flatnonzero(np.diff(codes)) + 1
-        level_parts = []
-        for seg in np.split(np.arange(lo_d, hi_d), cut):
-            ids = flat.w_nodes[seg]
-            code = int(op[ids[0]])
-            slots = differentiable_slots(code)
-            k = len(ids)
-            if not slots:
-                level_parts.append(ca.SX(k, n))
-                continue
-            vals = [blocks.gather(arg[s][ids]) for s in slots]
-            if code == p2c.POWC:
-                first, second = _local(code, vals[0], aux[ids])
-            elif code == p2c.IFELSE:
-                first, second = _local(code, blocks.gather(arg[1][ids]))
-            else:
-                first, second = _local(code, *vals, w=blocks.gather(ids))
-            U, Aw = [], []
-            for s in slots:
-                rows = arg[s][ids]
-                aw = Ew[rows][:, :lo_d]
-                u = _dm(Ex[rows])
-                if aw.nnz:
-                    u = u + ca.mtimes(_dm(aw), Wstack)
-                U.append(u)
-                Aw.append(aw)
-            Wg = None
-            for fs, u in zip(first, U):
-                term = ca.mtimes(ca.diag(fs), u)
-                Wg = term if Wg is None else Wg + term
-            level_parts.append(Wg)
-            groups.append(_DepthBlock(int(seg[0]), int(seg[-1]) + 1, first, second, U, Aw))
-        part = ca.vertcat(*level_parts)
-        W_parts.append(part)
-        Wstack = ca.vertcat(Wstack, part)
-    W = Wstack if K else ca.SX(0, n)
+        if grp.code == p2c.POWC:
+            first, second = _local(grp.code, grp.args[1], aux[grp.ids])
+        elif grp.code == p2c.IFELSE:
+            first, second = _local(grp.code, grp.args[1])
+        else:
+            first, second = _local(grp.code, *[grp.args[s] for s in slots], w=grp.w)
+        U, Aw = [], []
+        for s in slots:
+            rows = tape.arrays()[f"arg{s}"][grp.ids]
+            aw = Ew[rows][:, :depth_lo]
+            u = _dm(Ex[rows])
+            if aw.nnz:
+                u = u + ca.mtimes(_dm(aw), Wstack)
+            U.append(u)
+            Aw.append(aw)
+        Wg = None
+        for fs, u in zip(first, U):
+            term = ca.mtimes(ca.diag(fs), u)
+            Wg = term if Wg is None else Wg + term
+        level_parts.append(Wg)
+        done.append((grp, first, second, U, Aw))
+    W = Wstack
 
     roots = np.asarray(tape.constraint_roots, dtype=np.int64)
     m = len(roots)
+    Ew_g = Ew[roots]
+    Ew_g.eliminate_zeros()
     if m:
         Ex_g = Ex[roots]
         Ex_g.eliminate_zeros()
-        jac = _dm(Ex_g)
-        Ew_g = Ew[roots]
-        Ew_g.eliminate_zeros()
+        jac = ca.SX(_dm(Ex_g))
         if Ew_g.nnz:
             jac = jac + ca.mtimes(_dm(Ew_g), W)
-        jac = ca.SX(jac)
     else:
         jac = ca.SX(0, n)
 
-    # --- Hessian: total multipliers of the nonlinear values, top depth first
-    mu = ca.SX(K, 1)
-    if m and Ew_g.nnz:
-        mu = mu + ca.mtimes(_dm(Ew_g.T), lam)
+    # --- Hessian: total multipliers of the nonlinear values, top depth first (step 3)
+    acc = ca.SX(K, 1)
+    if Ew_g.nnz:
+        acc = acc + ca.mtimes(_dm(Ew_g.T), lam)
     if tape.objective_root >= 0:
         Ew_f = Ew[[tape.objective_root]]
         Ew_f.eliminate_zeros()
         if Ew_f.nnz:
-            mu = mu + sigma * tape.sense * _dm(Ew_f.T)
-    bar_of = {}
-    acc = mu
-    for grp in reversed(groups):
+            acc = acc + sigma * tape.sense * _dm(Ew_f.T)
+    bars = {}
+    for grp, first, _, _, Aw in reversed(done):
         bar = acc[grp.lo:grp.hi]
-        bar_of[grp.lo] = bar
-        for fs, aw in zip(grp.first, grp.Aw):
+        bars[grp.lo] = bar
+        for fs, aw in zip(first, Aw):
             if aw.nnz == 0:
                 continue
-            contrib = ca.mtimes(_dm(aw.T), fs * bar)  # length grp.lo
+            contrib = ca.mtimes(_dm(aw.T), fs * bar)  # length grp.depth_lo
             acc = acc + ca.vertcat(contrib, ca.SX(K - contrib.shape[0], 1))
     pairs: dict = {}
-    for grp in groups:
-        bar = bar_of[grp.lo]
-        for (s, t), d2 in grp.second.items():
-            coef = bar * d2
-            pairs.setdefault((s, t), []).append((grp.U[s], coef, grp.U[t]))
+    for grp, _, second, U, _ in done:
+        bar = bars[grp.lo]
+        for (s, t), d2 in second.items():
+            pairs.setdefault((s, t), []).append((U[s], bar * d2, U[t]))
     H = ca.SX(n, n)
     for (s, t), items in pairs.items():
         Us = ca.vertcat(*[u for u, _, _ in items])

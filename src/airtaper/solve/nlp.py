@@ -102,7 +102,6 @@ class SXModel:
     p: object  # SX symbols of the parameters
     f: object  # objective times sense (scalar SX)
     g: object  # constraint bodies (SX column)
-    blocks: object = None  # where each tape node's SX lives (for the derivatives)
 
 
 def build_sx(tape: p2c.Tape) -> SXModel:
@@ -161,7 +160,7 @@ def build_sx(tape: p2c.Tape) -> SXModel:
         f = tape.sense * blocks.gather(np.asarray([tape.objective_root]))
     else:
         f = ca.SX(0.0)
-    return SXModel(x=x, p=p, f=f, g=ca.densify(g), blocks=blocks)
+    return SXModel(x=x, p=p, f=f, g=ca.densify(g))
 
 
 def _group(code, ids, L, blocks, arg1, arg2, arg3, aux, lin_row, lin_arg, lin_coef,
@@ -212,16 +211,18 @@ class NlpFunctions:
     hess_cols: np.ndarray
 
 
-def build_functions(sxm: SXModel, tape: p2c.Tape | None = None, *,
+def build_functions(sxm, tape: p2c.Tape | None = None, *,
                     method: str = "split") -> NlpFunctions:
     """Derivatives (sparse Jacobian, exact Hessian of the Lagrangian) and functions.
 
-    ``method="split"`` (default, needs ``tape`` and ``sxm.blocks``) differentiates the
-    nonlinear operations only and handles the linear part of the model as constant
-    sparse matrices (:mod:`airtaper.solve.derivatives`); ``method="casadi"`` uses
-    CasADi's ``jacobian`` and ``hessian`` of the whole graph (the reference path: same
-    values, much slower on large mostly linear models because its graph colouring needs
-    one AD sweep per colour).
+    ``method="split"`` (default; ``sxm`` from
+    :func:`airtaper.solve.derivatives.build_split_sx` and its ``tape``) differentiates
+    the nonlinear operations only and handles the linear part of the model as constant
+    sparse matrices (:mod:`airtaper.solve.derivatives`). ``method="casadi"`` (any
+    ``sxm``, e.g. from :func:`build_sx`) uses CasADi's ``jacobian`` and ``hessian`` of
+    the whole graph: the reference path, with the same values, but several times slower
+    on large, mostly linear models (its graph colouring needs one AD sweep of the whole
+    graph per colour, and a dense row such as a daily mean forces many colours).
     """
     x, p, f, g = sxm.x, sxm.p, sxm.f, sxm.g
     n, m, npar = x.shape[0], g.shape[0], p.shape[0]
@@ -229,9 +230,9 @@ def build_functions(sxm: SXModel, tape: p2c.Tape | None = None, *,
     sigma = ca.SX.sym("sigma")
     grad = ca.densify(ca.gradient(f, x))
     if method == "split":
-        if tape is None or sxm.blocks is None:
-            raise ValueError("method='split' needs the tape and the SX blocks")
-        jac, hess = _derivatives.derivatives(tape, x, sxm.blocks, f, g, lam, sigma)
+        if tape is None or not isinstance(sxm, _derivatives.SplitSX):
+            raise ValueError("method='split' needs the split form and its tape")
+        jac, hess = _derivatives.derivatives(tape, sxm, lam, sigma)
     elif method == "casadi":
         jac = ca.jacobian(g, x)
         lag = sigma * f + ca.dot(lam, g)
@@ -387,7 +388,7 @@ def get_structure(model, *, use_cache: bool = True) -> tuple[Structure, bool]:
                 return s, True
     with PauseGC():  # the walk allocates many long-lived objects: no GC passes
         tape = p2c.convert(model, constraints, objective)
-        sxm = build_sx(tape)
+        sxm = _derivatives.build_split_sx(tape)
         t1 = time.perf_counter()
         fns = build_functions(sxm, tape)
         ev = Evaluator(fns)

@@ -32,6 +32,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
+import numpy as np
 from pyomo.core.base.constraint import Constraint
 from pyomo.core.base.objective import Objective, maximize
 from pyomo.core.base.expression import NamedExpressionData
@@ -74,13 +75,8 @@ _BINARY_MATH = {
     AND: lambda a, b: float(bool(a) and bool(b)),
 }
 
-_NUMBER_TYPES = {int, float, bool}
-try:  # numpy scalars turn up in user models (np.float64 coefficients)
-    import numpy as _np
-
-    _NUMBER_TYPES |= {_np.float64, _np.float32, _np.int64, _np.int32, _np.bool_}
-except ImportError:  # pragma: no cover - numpy is a hard dependency
-    pass
+# numpy scalars turn up in user models (np.float64 coefficients)
+_NUMBER_TYPES = {int, float, bool, np.float64, np.float32, np.int64, np.int32, np.bool_}
 
 
 @dataclass
@@ -118,6 +114,19 @@ class Tape:
     def n_nodes(self) -> int:
         return len(self.op)
 
+    def arrays(self) -> dict:
+        """The node lists as numpy arrays (``op``, ``level``, ``arg1``..``arg3``,
+        ``aux``, ``lin_row``, ``lin_arg``, ``lin_coef``), converted once and cached:
+        call it only when the tape is complete."""
+        cached = self.__dict__.get("_arrays")
+        if cached is None or len(cached["op"]) != len(self.op):
+            ints = ("op", "level", "arg1", "arg2", "arg3", "lin_row", "lin_arg")
+            cached = {k: np.asarray(getattr(self, k), dtype=np.int64) for k in ints}
+            cached["aux"] = np.asarray(self.aux, dtype=float)
+            cached["lin_coef"] = np.asarray(self.lin_coef, dtype=float)
+            self.__dict__["_arrays"] = cached
+        return cached
+
 
 class _Walker:
     """Converts Pyomo expression objects into tape nodes (see module docstring)."""
@@ -127,7 +136,10 @@ class _Walker:
         self.memo: dict[int, int] = {}  # id(pyomo object) -> node
         self.keep: list = []  # keeps memoised objects alive so their ids stay unique
         self.consts: dict[float, int] = {}
-        self.component = "?"
+        # what is being converted, named only when an error is raised (building the
+        # names of indexed components costs more than converting them)
+        self.what: tuple = ("?", None)  # (kind, component) e.g. ("constraint", con)
+        self.via: list = []  # named expressions entered on the way down
         memo = self._memoised
         self.dispatch = {
             ne.SumExpression: memo(self._sum),
@@ -160,6 +172,15 @@ class _Walker:
         for num in _NUMBER_TYPES:
             self.dispatch[num] = self._number
         self.unsupported = (ne.ExternalFunctionExpression, ne.NPV_ExternalFunctionExpression)
+
+    @property
+    def component(self) -> str:
+        """Name of the component being converted, for error messages."""
+        kind, obj = self.what
+        text = kind if obj is None else f"{kind} {obj.name}"
+        for e in self.via:
+            text += f" (via expression {e.name})"
+        return text
 
     def _memoised(self, handler):
         """``handler`` converting each Pyomo node object once (shared sub-trees)."""
@@ -198,6 +219,26 @@ class _Walker:
         """Linear combination ``const + sum(coef * arg)``, folding constant arguments."""
         t = self.t
         op, aux, level = t.op, t.aux, t.level
+        if len(args) == 1:  # the most common case (a scaled node)
+            a = args[0]
+            c = coefs[0]
+            if op[a] == C:
+                return self.const(const + c * aux[a])
+            if c == 0.0:
+                return self.const(const)
+            if c == 1.0 and const == 0.0:
+                return a
+            nid = len(op)
+            op.append(LIN)
+            level.append(level[a] + 1)
+            t.arg1.append(-1)
+            t.arg2.append(-1)
+            t.arg3.append(-1)
+            aux.append(float(const))
+            t.lin_row.append(nid)
+            t.lin_arg.append(a)
+            t.lin_coef.append(float(c))
+            return nid
         keep_a, keep_c = [], []
         lvl = 0
         for a, c in zip(args, coefs):
@@ -215,7 +256,7 @@ class _Walker:
         nid = self._node(LIN, lvl + 1, aux=float(const))
         t.lin_row.extend([nid] * len(keep_a))
         t.lin_arg.extend(keep_a)
-        t.lin_coef.extend(float(c) for c in keep_c)
+        t.lin_coef.extend(map(float, keep_c))
         return nid
 
     def binary(self, op, a, b) -> int:
@@ -325,10 +366,9 @@ class _Walker:
         expr = node.expr
         if expr is None:
             raise ModelError(f"{self.component}: expression {node.name} has no value")
-        outer = self.component
-        self.component = f"{outer} (via expression {node.name})"
+        self.via.append(node)
         nid = self.conv(expr)
-        self.component = outer
+        self.via.pop()
         self.t.named.append((node, expr))
         self.memo[key] = nid
         self.keep.append(node)
@@ -496,12 +536,12 @@ def convert(model, constraints=None, objective=None) -> Tape:
     if objective is None:
         objective = active_objective(model)
     if objective is not None:
-        w.component = f"objective {objective.name}"
+        w.what = ("objective", objective)
         tape.objective = objective
         tape.sense = -1 if objective.sense == maximize else 1
         tape.objective_root = w.conv(objective.expr)
     for con in constraints:
-        w.component = f"constraint {con.name}"
+        w.what = ("constraint", con)
         try:
             body = con.body
             has_bound = con.has_lb() or con.has_ub()
