@@ -130,10 +130,18 @@ def test_hessian_matches_finite_differences_of_the_gradient():
 
 def test_leaves_become_variables_parameters_and_constants():
     m = _all_operators_model()
-    tape = p2c.convert(m)
-    assert {v.name for v in tape.variables} == {"x[1]", "x[2]", "x[3]"}
-    assert {q.name for q in tape.parameters} == {"p", "fx"}
+    tape = p2c.convert(m)  # every variable is a column, fixed or not
+    assert {v.name for v in tape.variables} == {"x[1]", "x[2]", "x[3]", "fx"}
+    assert {q.name for q in tape.parameters} == {"p"}
     assert [e.name for e, _ in tape.named] == ["e"]  # converted once, used three times
+    old = p2c.convert(m, fixed_as_parameters=True)
+    assert {v.name for v in old.variables} == {"x[1]", "x[2]", "x[3]"}
+    assert {q.name for q in old.parameters} == {"p", "fx"}
+    # the structure's view of the current fixed state: fx is a constant of the solve
+    s, _ = nlp.get_structure(m, use_cache=False)
+    assert {v.name for v in s.tape.variables} == {"x[1]", "x[2]", "x[3]"}
+    assert [q.name for q in s.tape.parameters][-1] == "fx"
+    assert s.functions.n == 3 and s.full_functions.n == 4
 
 
 def test_maximisation_is_negated_internally():
@@ -186,10 +194,14 @@ def test_structure_cache_reuse_and_invalidation():
     s3, reused = nlp.get_structure(m)
     assert reused
     assert s3.parameter_values()[[q.name for q in s3.tape.parameters].index("p")] == 2.5
-    m.x[1].fix(1.0)  # fixing a variable changes it
+    m.x[1].fix(1.0)  # fixing a variable keeps it too: only the view changes
     s4, reused = nlp.get_structure(m)
-    assert not reused and "x[1]" not in {v.name for v in s4.tape.variables}
+    assert reused and s4 is s1
+    assert "x[1]" not in {v.name for v in s4.tape.variables}
+    assert "x[1]" in {q.name for q in s4.tape.parameters}
     m.x[1].unfix()
+    s5, reused = nlp.get_structure(m)
+    assert reused and "x[1]" in {v.name for v in s5.tape.variables}
     m.e.set_value(m.x[2] ** 2)  # a new named-expression body changes it
     _, reused = nlp.get_structure(m)
     assert not reused

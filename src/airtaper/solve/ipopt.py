@@ -18,6 +18,10 @@ with respect to the limit it belongs to:
   signs flip. A dual of 0 means the limit does not bind.
 * variable bounds: ``lower = d f* / d lb`` and ``upper = d f* / d ub`` (for ``min``:
   ``lower >= 0``, ``upper <= 0``).
+* fixed variables (not passed to Ipopt; both bounds hold them at their value): ``lower +
+  upper = d f* / d value``, the derivative of the Lagrangian with respect to the
+  value at the solution, split into its positive part (``lower``) and negative part
+  (``upper``) for a minimisation, as Ipopt's ``make_parameter`` treatment reports it.
 
 So ``dual * delta`` is the first-order change of the optimum when the limit moves by
 ``delta``: for the aeration problems, the marginal cost of a limit.
@@ -455,6 +459,8 @@ def solve_nlp(model, options: dict | None = None, *, warm_start=False, callback=
     if status.ok:
         structure.last_multipliers = (lam.copy(), zl.copy(), zu.copy())
     duals, bduals = _map_duals(tape, lam, zl, zu, sense)
+    if tape.fixed and np.isfinite(x).all() and np.isfinite(lam).all():
+        _fixed_duals(bduals, tape.fixed, ev.fixed_reduced_gradient(x, lam), sense)
     objective = None
     if tape.objective is not None and np.isfinite(x).all():
         objective = sense * ev.objective(x)
@@ -495,6 +501,21 @@ def _map_duals(tape, lam, zl, zu, sense):
         (v, BoundDuals(a, b)) for v, a, b in zip(tape.variables, lo, up)
     )
     return duals, bduals
+
+
+def _fixed_duals(bduals, fixed, reduced, sense) -> None:
+    """Bound duals of fixed variables from the Lagrangian's derivative at the solution.
+
+    A fixed variable is held at its value by both of its bounds at once. Its
+    ``BoundDuals`` are what Ipopt's ``make_parameter`` treatment reports: with
+    ``r = d(f + lam' g)/dx_j`` in Ipopt's convention, ``zl = max(r, 0)`` and
+    ``zu = max(-r, 0)``, mapped like the duals of free variables. So
+    ``lower + upper = d f* / d value`` (envelope theorem) and at most one is nonzero.
+    """
+    zl = np.maximum(reduced, 0.0)
+    zu = np.maximum(-reduced, 0.0)
+    for v, a, b in zip(fixed, (sense * zl).tolist(), (-sense * zu).tolist()):
+        bduals[v] = BoundDuals(a, b)
 
 
 def _load_dual_suffix(model, duals) -> None:

@@ -320,37 +320,228 @@ class Evaluator:
         return self._hess.out
 
 
-@dataclass
-class Structure:
-    """Everything built once per model structure (reused by warm re-solves)."""
+class TapeView:
+    """The tape as one fixed state of the variables sees it.
 
-    tape: p2c.Tape
-    functions: NlpFunctions
-    evaluator: Evaluator
-    key: tuple
-    fixed_flags: tuple
-    conversion_s: float
-    derivatives_s: float
-    last_multipliers: tuple | None = None  # (lam, zl, zu) in Ipopt's convention
-    expr_refs: list = field(default_factory=list)  # keeps the keyed ids from reuse
-    extra: dict = field(default_factory=dict)
+    ``variables`` are the free variables (Ipopt's columns, in column order),
+    ``fixed`` the fixed ones, ``parameters`` the tape's mutable parameters followed by
+    the fixed variables (their values are constants of the solve). Every other
+    attribute (``constraints``, ``objective``, ``sense``, ...) is the tape's own.
+    """
+
+    def __init__(self, tape: p2c.Tape, free: np.ndarray, fixed: np.ndarray):
+        self.full = tape
+        cols = tape.variables
+        self.variables = [cols[i] for i in free.tolist()]
+        self.fixed = [cols[i] for i in fixed.tolist()]
+        self.parameters = list(tape.parameters) + self.fixed
+
+    def __getattr__(self, name):
+        return getattr(self.full, name)
+
+
+class FunctionsView:
+    """:class:`NlpFunctions` restricted to the free columns: ``n``, ``n_par`` and the
+    sparsity (``jac_rows``/``jac_cols``, ``hess_rows``/``hess_cols``, columns numbered
+    among the free variables); the CasADi functions themselves are the full ones."""
+
+    def __init__(self, full: NlpFunctions, free: np.ndarray, fixed_mask: np.ndarray,
+                 n_fixed: int):
+        self.full = full
+        self.n = len(free)
+        self.m = full.m
+        self.n_par = full.n_par + n_fixed
+        if n_fixed == 0:
+            self.jac_sel = self.hess_sel = None
+            self.jac_rows, self.jac_cols = full.jac_rows, full.jac_cols
+            self.hess_rows, self.hess_cols = full.hess_rows, full.hess_cols
+            return
+        colmap = np.full(full.n, -1, dtype=np.int64)
+        colmap[free] = np.arange(len(free))
+        self.jac_sel = np.flatnonzero(~fixed_mask[full.jac_cols])
+        self.jac_rows = full.jac_rows[self.jac_sel]
+        self.jac_cols = colmap[full.jac_cols[self.jac_sel]]
+        self.hess_sel = np.flatnonzero(~(fixed_mask[full.hess_rows]
+                                         | fixed_mask[full.hess_cols]))
+        self.hess_rows = colmap[full.hess_rows[self.hess_sel]]
+        self.hess_cols = colmap[full.hess_cols[self.hess_sel]]
+
+    def __getattr__(self, name):
+        return getattr(self.full, name)
+
+
+class EvaluatorView:
+    """:class:`Evaluator` on the free columns: the fixed columns take their values from
+    :meth:`set_parameters` (which receives the mutable parameters, then the fixed
+    variables, as :class:`TapeView` orders them). Returned arrays are buffers."""
+
+    def __init__(self, ev: Evaluator, fns: FunctionsView, free: np.ndarray,
+                 fixed: np.ndarray):
+        self.full = ev
+        self.free, self.fixed = free, fixed
+        self.identity = len(fixed) == 0
+        self.n_par = ev.fns.n_par
+        self.jac_sel, self.hess_sel = fns.jac_sel, fns.hess_sel
+        self._grad = np.zeros(len(free))
+        self._jac = np.zeros(len(fns.jac_rows))
+        self._hess = np.zeros(len(fns.hess_rows))
+
+    def set_parameters(self, values) -> None:
+        values = np.asarray(values, dtype=float)
+        self.full.p[:] = values[:self.n_par]
+        if not self.identity:
+            self.full.x[self.fixed] = values[self.n_par:]
+
+    def set_x(self, x) -> None:
+        if self.identity:
+            self.full.x[:] = x
+        else:
+            self.full.x[self.free] = x
+
+    def full_x(self) -> np.ndarray:
+        """The point of the last call, over all columns (free and fixed)."""
+        return self.full.x
+
+    def objective(self, x) -> float:
+        self.set_x(x)
+        call = self.full._f
+        call.run()
+        return float(call.out[0])
+
+    def gradient(self, x) -> np.ndarray:
+        self.set_x(x)
+        call = self.full._grad
+        call.run()
+        if self.identity:
+            return call.out
+        np.take(call.out, self.free, out=self._grad)
+        return self._grad
+
+    def constraints(self, x) -> np.ndarray:
+        self.set_x(x)
+        call = self.full._g
+        call.run()
+        return call.out
+
+    def jacobian(self, x) -> np.ndarray:
+        self.set_x(x)
+        call = self.full._jac
+        call.run()
+        if self.identity:
+            return call.out
+        np.take(call.out, self.jac_sel, out=self._jac)
+        return self._jac
+
+    def hessian(self, x, lam, sigma) -> np.ndarray:
+        self.set_x(x)
+        ev = self.full
+        ev.lam[:] = lam
+        ev.sigma[0] = sigma
+        ev._hess.run()
+        if self.identity:
+            return ev._hess.out
+        np.take(ev._hess.out, self.hess_sel, out=self._hess)
+        return self._hess
+
+    def fixed_reduced_gradient(self, x, lam, sigma: float = 1.0) -> np.ndarray:
+        """``sigma * df/dx_j + lam' dg/dx_j`` for the fixed columns ``j`` at the free
+        point ``x`` (the fixed values as set): the derivative of the Lagrangian with
+        respect to each fixed value."""
+        ev = self.full
+        self.set_x(x)
+        ev._grad.run()
+        out = sigma * ev._grad.out[self.fixed]
+        if ev.fns.m and len(self.fixed):
+            ev._jac.run()
+            fns = ev.fns
+            pos = np.full(fns.n, -1, dtype=np.int64)
+            pos[self.fixed] = np.arange(len(self.fixed))
+            k = pos[fns.jac_cols]
+            sel = k >= 0
+            out = out + np.bincount(k[sel], weights=ev._jac.out[sel] * lam[fns.jac_rows[sel]],
+                                    minlength=len(self.fixed))
+        return out
+
+
+class Structure:
+    """Everything built once per model structure (reused by warm re-solves).
+
+    The tape and the functions cover every variable met, fixed or not. Which ones are
+    fixed is read at every :func:`get_structure` call: ``tape``, ``functions`` and
+    ``evaluator`` are views (:class:`TapeView`, :class:`FunctionsView`,
+    :class:`EvaluatorView`) of that fixed state, rebuilt cheaply (index arrays) when it
+    changes, so fixing or unfixing a variable does not rebuild the derivatives.
+    """
+
+    def __init__(self, tape: p2c.Tape, functions: NlpFunctions, evaluator: Evaluator,
+                 key: tuple, conversion_s: float, derivatives_s: float,
+                 expr_refs: list):
+        self.full_tape = tape
+        self.full_functions = functions
+        self.full_evaluator = evaluator
+        self.key = key
+        self.conversion_s = conversion_s
+        self.derivatives_s = derivatives_s
+        self.expr_refs = expr_refs  # keeps the keyed ids from reuse
+        self.extra: dict = {}
+        # (lam, zl, zu) of the last successful solve in Ipopt's convention, zl and zu
+        # over all columns (0 for columns that were fixed)
+        self.multipliers_full: tuple | None = None
+        self._fixed_mask: np.ndarray | None = None
+        self.refresh()
+
+    def refresh(self) -> bool:
+        """Read the fixed flags; rebuild the views if they changed (returns True)."""
+        tape = self.full_tape
+        cols = tape.variables
+        mask = np.fromiter((v.fixed for v in cols), dtype=bool, count=len(cols))
+        if self._fixed_mask is not None and np.array_equal(mask, self._fixed_mask):
+            return False
+        p2c.check_discrete(tape.discrete)
+        free = np.flatnonzero(~mask)
+        fixed = np.flatnonzero(mask)
+        self._fixed_mask = mask
+        self.tape = TapeView(tape, free, fixed)
+        self.functions = FunctionsView(self.full_functions, free, mask, len(fixed))
+        self.evaluator = EvaluatorView(self.full_evaluator, self.functions, free, fixed)
+        self.free_columns, self.fixed_columns = free, fixed
+        return True
 
     def still_valid(self) -> bool:
-        """True while no variable was fixed/unfixed and no named expression changed."""
-        tape = self.tape
-        if tuple(v.fixed for v in tape.all_vars) != self.fixed_flags:
-            return False
-        return all(e.expr is expr for e, expr in tape.named)
+        """True while no named expression was given a new body."""
+        return all(e.expr is expr for e, expr in self.full_tape.named)
 
     def parameter_values(self) -> np.ndarray:
+        """Values of ``tape.parameters`` (mutable parameters, then fixed variables)."""
         return np.fromiter((_value(q) for q in self.tape.parameters), dtype=float,
                            count=len(self.tape.parameters))
+
+    @property
+    def last_multipliers(self) -> tuple | None:
+        """(lam, zl, zu) of the last successful solve, zl/zu over the free columns."""
+        if self.multipliers_full is None:
+            return None
+        lam, zl, zu = self.multipliers_full
+        return lam, zl[self.free_columns], zu[self.free_columns]
+
+    @last_multipliers.setter
+    def last_multipliers(self, value) -> None:
+        if value is None:
+            self.multipliers_full = None
+            return
+        lam, zl, zu = value
+        n = len(self.full_tape.variables)
+        zl_full, zu_full = np.zeros(n), np.zeros(n)
+        zl_full[self.free_columns] = zl
+        zu_full[self.free_columns] = zu
+        self.multipliers_full = (np.array(lam, dtype=float), zl_full, zu_full)
 
 
 def _value(q) -> float:
     v = q.value
     if v is None:
-        raise ModelError(f"{q.name} has no value")
+        kind = "fixed variable" if q.is_variable_type() else "parameter"
+        raise ModelError(f"{kind} {q.name} has no value")
     return float(v)
 
 
@@ -372,9 +563,10 @@ def get_structure(model, *, use_cache: bool = True) -> tuple[Structure, bool]:
 
     Returns ``(structure, reused)``. The cache is keyed by the model object (held
     weakly) and by the identity of the active constraints, their expressions and the
-    objective; an entry is also dropped when a variable in it was fixed or unfixed or a
-    named expression was given a new body. Values (of parameters, fixed variables,
-    bounds, initial points) are not part of the structure and are read at every solve.
+    objective; an entry is also dropped when a named expression in it was given a new
+    body. Values (of parameters, fixed variables, bounds, initial points) and which
+    variables are fixed are not part of the structure: they are read at every call
+    (the structure's views follow the current fixed state).
     """
     t0 = time.perf_counter()
     constraints = p2c.active_constraints(model)
@@ -385,6 +577,7 @@ def get_structure(model, *, use_cache: bool = True) -> tuple[Structure, bool]:
         for i, s in enumerate(entries):
             if s.key == key and s.still_valid():
                 entries.append(entries.pop(i))  # most recently used last
+                s.refresh()
                 return s, True
     with PauseGC():  # the walk allocates many long-lived objects: no GC passes
         tape = p2c.convert(model, constraints, objective)
@@ -395,7 +588,6 @@ def get_structure(model, *, use_cache: bool = True) -> tuple[Structure, bool]:
         t2 = time.perf_counter()
     s = Structure(
         tape=tape, functions=fns, evaluator=ev, key=key,
-        fixed_flags=tuple(v.fixed for v in tape.all_vars),
         conversion_s=t1 - t0, derivatives_s=t2 - t1,
         expr_refs=[c.expr for c in constraints]
         + ([objective, objective.expr] if objective is not None else []),

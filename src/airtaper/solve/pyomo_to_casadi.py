@@ -11,10 +11,13 @@ costs well under 1 us per element).
 
 What becomes what
 -----------------
-* a free ``Var`` -> an optimisation variable (column of ``x``);
-* a fixed ``Var`` and a mutable ``Param`` -> a symbolic parameter (entry of ``p``): a
-  constant for Ipopt, but its value is read at every solve, so changing it does not
-  require rebuilding the derivative functions;
+* a ``Var``, fixed or not -> a column of ``x``: whether it is fixed is decided at each
+  solve (:mod:`airtaper.solve.nlp` gives Ipopt the free columns only), so fixing and
+  unfixing does not change the tape (``fixed_as_parameters=True`` restores the older
+  treatment: a fixed ``Var`` becomes a parameter);
+* a mutable ``Param`` -> a symbolic parameter (entry of ``p``): a constant for Ipopt,
+  but its value is read at every solve, so changing it does not require rebuilding the
+  derivative functions;
 * an immutable ``Param``, numbers -> numeric constants;
 * a named ``Expression`` (and any Pyomo sub-expression object used twice) -> converted
   once and shared (memoised by object identity);
@@ -100,8 +103,9 @@ class Tape:
     lin_row: list = field(default_factory=list)
     lin_arg: list = field(default_factory=list)
     lin_coef: list = field(default_factory=list)
-    variables: list = field(default_factory=list)  # free VarData, in column order
-    parameters: list = field(default_factory=list)  # ParamData or fixed VarData
+    variables: list = field(default_factory=list)  # VarData, in column order
+    parameters: list = field(default_factory=list)  # ParamData (and fixed VarData, if
+    # converted with fixed_as_parameters)
     constraints: list = field(default_factory=list)  # active ConstraintData, row order
     constraint_roots: list = field(default_factory=list)
     objective: object = None  # ObjectiveData or None (feasibility problem)
@@ -109,6 +113,7 @@ class Tape:
     sense: int = 1  # 1 minimise, -1 maximise
     named: list = field(default_factory=list)  # (named expression data, its expr)
     all_vars: list = field(default_factory=list)  # every VarData met (free and fixed)
+    discrete: list = field(default_factory=list)  # columns of integer or binary domain
 
     @property
     def n_nodes(self) -> int:
@@ -131,8 +136,9 @@ class Tape:
 class _Walker:
     """Converts Pyomo expression objects into tape nodes (see module docstring)."""
 
-    def __init__(self, tape: Tape):
+    def __init__(self, tape: Tape, fixed_as_parameters: bool = False):
         self.t = tape
+        self.fixed_as_parameters = fixed_as_parameters
         self.memo: dict[int, int] = {}  # id(pyomo object) -> node
         self.keep: list = []  # keeps memoised objects alive so their ids stay unique
         self.consts: dict[float, int] = {}
@@ -330,7 +336,7 @@ class _Walker:
             return nid
         t = self.t
         t.all_vars.append(node)
-        if node.fixed:
+        if self.fixed_as_parameters and node.fixed:
             if node.value is None:
                 raise ModelError(f"{self.component}: fixed variable {node.name} has no value")
             nid = self._node(P, 0, aux=len(t.parameters))
@@ -512,7 +518,8 @@ def active_constraints(model) -> list:
     return list(model.component_data_objects(Constraint, active=True, descend_into=True))
 
 
-def convert(model, constraints=None, objective=None) -> Tape:
+def convert(model, constraints=None, objective=None, *,
+            fixed_as_parameters: bool = False) -> Tape:
     """Convert the active part of a Pyomo model into a :class:`Tape`.
 
     Parameters
@@ -521,6 +528,10 @@ def convert(model, constraints=None, objective=None) -> Tape:
         The model (a ``ConcreteModel`` or any block).
     constraints, objective : optional
         Already collected active constraints and objective (saves a second traversal).
+    fixed_as_parameters : bool
+        False (default): every variable met is a column of ``x``, fixed or not (the
+        caller decides per solve which columns are free). True: fixed variables become
+        parameters, as constants of the tape.
 
     Raises
     ------
@@ -530,7 +541,7 @@ def convert(model, constraints=None, objective=None) -> Tape:
         unfixed integer variable; the message names the component.
     """
     tape = Tape()
-    w = _Walker(tape)
+    w = _Walker(tape, fixed_as_parameters)
     if constraints is None:
         constraints = active_constraints(model)
     if objective is None:
@@ -551,10 +562,16 @@ def convert(model, constraints=None, objective=None) -> Tape:
             raise ModelError(f"constraint {con.name}: has neither a lower nor an upper bound")
         tape.constraints.append(con)
         tape.constraint_roots.append(w.conv(body))
-    for v in tape.variables:
-        if not v.is_continuous():
+    tape.discrete = [v for v in tape.variables if not v.is_continuous()]
+    check_discrete(tape.discrete)
+    return tape
+
+
+def check_discrete(variables) -> None:
+    """Raise :class:`ModelError` for the first unfixed integer or binary variable."""
+    for v in variables:
+        if not v.fixed:
             raise ModelError(
                 f"variable {v.name} is integer or binary; the NLP bridge solves continuous "
                 "problems only (fix it or relax its domain)"
             )
-    return tape
