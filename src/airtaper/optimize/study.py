@@ -44,8 +44,9 @@ from airtaper.optimize.verify import verify_schedule
 from airtaper.solve import solve_nlp
 
 #: Rungs ending in "locally infeasible" after which the ladder stops and the elastic
-#: solve takes over.
-INFEASIBLE_STOP = 2
+#: solve takes over. One: Ipopt's infeasibility verdict is usually right, and when it is
+#: not the elastic solve finds every slack at zero and its schedule is the answer.
+INFEASIBLE_STOP = 1
 
 
 @dataclass
@@ -211,8 +212,8 @@ class DiurnalOptimisation:
             if r.ok:
                 self.result = r
                 return r
-            # Ipopt converged to a point of local infeasibility twice: the limits most
-            # likely conflict, and the elastic solve will say which (no more rungs).
+            # Ipopt converged to a point of local infeasibility: the limits most likely
+            # conflict, and the elastic solve will say which (no more rungs).
             infeasible += r.status.value == "infeasible"
             if infeasible >= INFEASIBLE_STOP:
                 break
