@@ -71,3 +71,18 @@ def test_output_folder_holding_the_layout_is_refused(tmp_path, capsys):
     assert main(["optimize", str(copy), "--out", str(clash)]) == EXIT_INPUT
     assert "overwrite" in capsys.readouterr().err
     assert copy.read_text() == lay.read_text()
+
+
+@pytest.mark.solver
+def test_unverified_result_warns_loudly_and_exits_4(tmp_path, capsys, monkeypatch):
+    """Plumbing of the verification verdict: with the DO tolerance made impossible (-1 mg/L), the
+    re-simulated day (whose DO sits on its minimum) counts as breaking it."""
+    import airtaper.optimize.verify as verify
+
+    monkeypatch.setattr(verify, "DO_TOLERANCE_mg_L", -1.0)
+    out = tmp_path / "out"
+    assert main(["optimize", str(_short_layout(tmp_path)), "--out", str(out), "--quiet", "--no-figure"]) == 4
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["status"] == "unverified" and summary["verification"]["verified"] is False
+    assert any(m.startswith("WARNING") for m in summary["messages"])
+    assert "WARNING" in capsys.readouterr().err
