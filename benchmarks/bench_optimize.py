@@ -20,7 +20,6 @@ from __future__ import annotations
 
 import argparse
 import dataclasses
-import math
 import pathlib
 import sys
 import tempfile

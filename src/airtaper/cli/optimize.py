@@ -61,6 +61,9 @@ def run(args) -> int:
         print(str(w), file=sys.stderr)
     guard_inputs(args.out, [args.layout] + ([layout.influent.source] if layout.influent.source != "constant" else []),
                  OUTPUT_NAMES)
+    if not any(z.grid is not None and z.aerated and z.fixed_kla_per_d is None for z in layout.zones):
+        raise InputError(Problem(args.layout, "zones", "no zone has a diffuser grid: there is no airflow to optimise",
+                                 None, "at least one aerated zone with a [zones.grid]"))
     if args.objective == "cost" and layout.tariff is None:
         raise InputError(Problem(args.layout, "--objective", "a cost objective needs a [tariff] in the layout",
                                  "cost", '"energy", or add [tariff]'))

@@ -146,7 +146,7 @@ class DiurnalOptimisation:
 
     # --- starts --------------------------------------------------------------------------
     def _restart(self, rung: Rung) -> None:
-        m, b = self.m, self.m.opt
+        m = self.m
         day = self.run_baseline().day
         start_from_day(m, day, start_airflow(m, day, rung.airflow_factor))
         if rung.square_solve:
@@ -155,7 +155,7 @@ class DiurnalOptimisation:
 
     def _square_solve(self) -> None:
         m, b = self.m, self.m.opt
-        b.deactivate()
+        b.deactivate()  # the model's equations only, airflows fixed at the start
         try:
             r = solve_nlp(m, dict(BASE_OPTIONS, max_iter=300))
             self.attempts.append({"rung": "square solve at the start airflows", "status": r.status.value,
@@ -322,14 +322,6 @@ class DiurnalOptimisation:
         return pd.DataFrame(sched), header, pd.DataFrame(rows)
 
 
-def _round(x, digits=6):
-    if x is None:
-        return None
-    if isinstance(x, float) and not np.isfinite(x):
-        return None
-    return x
-
-
 def _saving(base, value):
     if base is None or value is None or base <= 0:
         return None
@@ -402,7 +394,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         "saving_percent": _saving(base.energy_kWh_per_day, energy),
         "cost_saving_percent": _saving(base.cost_per_day, cost),
         "effluent": {k: figs[k] for k in ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L")},
-        "min_do_margin_mg_L": _round(figs["min_do_margin_mg_L"]),
+        "min_do_margin_mg_L": figs["min_do_margin_mg_L"],
         "do_margin_mg_L": figs["do_margin_mg_L"],
         "limits": {"nh4_mean_mg_L": lim.nh4_mean_mg_L, "nh4_max_mg_L": lim.nh4_max_mg_L,
                    "tn_mean_mg_L": lim.tn_mean_mg_L,
