@@ -206,7 +206,7 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
             v.setub(AIRFLOW_BOX_FACTOR * hi)
             if v.value is None:
                 v.set_value(0.5 * (lo + hi))
-    for z in grid:  # kLa on the diffuser-count variable
+    for z in grid:  # kLa on the diffuser-count parameter
         for p in P:
             m.kla_per_d[z, p].set_value(_kla_on_diffusers(m, z, p))
 
