@@ -312,74 +312,125 @@ def _dm(a: sp.spmatrix):
                  a.data.tolist())
 
 
+def _ones(spa):
+    """DM of ones on a sparsity (for structural products)."""
+    return ca.DM(spa, 1.0)
+
+
+def _product_pattern(a_dm, b_sparsity):
+    """Sparsity of ``a @ b`` (structural: ``a`` holds ones, nothing cancels)."""
+    return ca.mtimes(_ones(a_dm.sparsity()), _ones(b_sparsity)).sparsity()
+
+
+def _affine(const_rows: sp.csr_matrix, coef_rows: sp.csr_matrix, W_blocks: list):
+    """``const_rows + coef_rows @ W`` (SX), ``W`` given as row blocks
+    ``(lo, hi, W[lo:hi], its sparsity)``: one multiply-accumulate per block onto the
+    precomputed sparsity of the result (no sparse sums, no stacking of ``W``)."""
+    c = _dm(const_rows)
+    if coef_rows.nnz == 0:
+        return ca.SX(c)
+    coef_rows = sp.csc_matrix(coef_rows)
+    parts = []
+    pattern = c.sparsity()
+    for lo, hi, Wb, Wb_sp in W_blocks:
+        a = coef_rows[:, lo:hi]
+        if a.nnz == 0:
+            continue
+        a = _dm(a)
+        pattern = pattern.unite(_product_pattern(a, Wb_sp))
+        parts.append((a, Wb))
+    out = ca.SX(ca.project(c, pattern))
+    for a, Wb in parts:
+        out = ca.mac(a, Wb, out)
+    return out
+
+
+@dataclass
+class _Depth:
+    """What the Jacobian pass keeps of one nonlinear depth for the Hessian pass."""
+
+    lo: int  # w[lo:hi] are the nodes of this depth
+    hi: int
+    D: object  # SX (hi - lo) x len(R): d w / d u for each differentiable argument row
+    Aw: sp.csr_matrix  # E_w of the argument rows (columns < lo)
+    U: object  # SX len(R) x n: gradients of the argument rows
+    second: list  # (local node rows, argument rows s, argument rows t, SX d2 phi/du_s du_t)
+
+
 def derivatives(tape: p2c.Tape, sxm: SplitSX, lam, sigma):
     """Sparse Jacobian of ``g`` and lower-triangular Lagrangian Hessian, as SX.
 
     ``sxm`` is the split form of the model (:func:`build_split_sx`); the Lagrangian is
     ``sigma * sxm.f + lam' sxm.g``. Returns ``(jac, hess_lower)``.
+
+    Per depth, every differentiable argument row of its nodes is stacked into one
+    matrix ``U`` (gradients of the arguments) and the local partial derivatives into
+    one selection-like matrix ``D``, so that ``W_depth = D U`` and the depth's Hessian
+    term is ``U' M U`` with ``M`` block diagonal (the local second derivatives times the
+    node's total multiplier); products land on precomputed sparsity patterns
+    (multiply-accumulate), so no sparse sums are formed.
     """
     flat = sxm.flat
     x = sxm.x
     n = x.shape[0]
     K = len(flat.w_nodes)
-    aux = tape.arrays()["aux"]
+    a = tape.arrays()
+    aux = a["aux"]
     Ex, Ew = flat.Ex, flat.Ew
 
-    # --- Jacobian of the nonlinear values, depth by depth (module notes, step 2)
-    done = []  # (group, first, second, U, Aw) for the Hessian
-    Wstack = ca.SX(0, n)
-    depth_lo = 0
-    level_parts = []
-    for grp in sxm.groups + [None]:
-        if grp is None or grp.depth_lo != depth_lo:  # close the previous depth
-            if level_parts:
-                Wstack = ca.vertcat(Wstack, *level_parts)
-            level_parts = []
-            if grp is None:
-                break
-            depth_lo = grp.depth_lo
-        slots = differentiable_slots(grp.code)
-        k = len(grp.ids)
-        if not slots:
-            level_parts.append(ca.SX(k, n))
-            continue
-        if grp.code == p2c.POWC:
-            first, second = _local(grp.code, grp.args[1], aux[grp.ids])
-        elif grp.code == p2c.IFELSE:
-            first, second = _local(grp.code, grp.args[1])
+    by_depth: dict = {}
+    for grp in sxm.groups:
+        by_depth.setdefault(grp.depth_lo, []).append(grp)
+    depths: list[_Depth] = []
+    W_blocks = []  # (lo, hi, W[lo:hi], sparsity): d w / d x one depth at a time
+    for d in range(len(flat.offsets) - 1):
+        lo, hi = int(flat.offsets[d]), int(flat.offsets[d + 1])
+        rows, node, partials, second = [], [], [], []
+        pos = 0
+        for grp in by_depth.get(lo, []):
+            slots = differentiable_slots(grp.code)
+            if not slots:
+                continue
+            if grp.code == p2c.POWC:
+                first, sec = _local(grp.code, grp.args[1], aux[grp.ids])
+            elif grp.code == p2c.IFELSE:
+                first, sec = _local(grp.code, grp.args[1])
+            else:
+                first, sec = _local(grp.code, *[grp.args[s] for s in slots], w=grp.w)
+            local = np.arange(grp.lo - lo, grp.hi - lo)
+            where = []
+            for j, s in enumerate(slots):
+                rows.append(a[f"arg{s}"][grp.ids])
+                node.append(local)
+                partials.append(ca.densify(first[j]))
+                where.append(np.arange(pos, pos + len(local)))
+                pos += len(local)
+            for (s, t), d2 in sec.items():
+                second.append((local, where[s], where[t], ca.densify(d2)))
+        k = hi - lo
+        if not rows:
+            Wd = ca.SX(k, n)
         else:
-            first, second = _local(grp.code, *[grp.args[s] for s in slots], w=grp.w)
-        U, Aw = [], []
-        for s in slots:
-            rows = tape.arrays()[f"arg{s}"][grp.ids]
-            aw = Ew[rows][:, :depth_lo]
-            u = _dm(Ex[rows])
-            if aw.nnz:
-                u = u + ca.mtimes(_dm(aw), Wstack)
-            U.append(u)
-            Aw.append(aw)
-        Wg = None
-        for fs, u in zip(first, U):
-            term = ca.mtimes(ca.diag(fs), u)
-            Wg = term if Wg is None else Wg + term
-        level_parts.append(Wg)
-        done.append((grp, first, second, U, Aw))
-    W = Wstack
+            R = np.concatenate(rows)
+            Aw = Ew[R][:, :lo]
+            U = _affine(Ex[R], Aw, W_blocks)
+            D = ca.SX(ca.Sparsity(k, len(R), list(range(len(R) + 1)),
+                                  np.concatenate(node).tolist()), ca.vertcat(*partials))
+            Wd = ca.mtimes(D, U)
+            depths.append(_Depth(lo, hi, D, Aw, U, second))
+        W_blocks.append((lo, hi, Wd, Wd.sparsity()))
 
     roots = np.asarray(tape.constraint_roots, dtype=np.int64)
-    m = len(roots)
     Ew_g = Ew[roots]
     Ew_g.eliminate_zeros()
-    if m:
+    if len(roots):
         Ex_g = Ex[roots]
         Ex_g.eliminate_zeros()
-        jac = ca.SX(_dm(Ex_g))
-        if Ew_g.nnz:
-            jac = jac + ca.mtimes(_dm(Ew_g), W)
+        jac = _affine(Ex_g, Ew_g, W_blocks)
     else:
         jac = ca.SX(0, n)
 
-    # --- Hessian: total multipliers of the nonlinear values, top depth first (step 3)
+    # --- total multipliers of the nonlinear values, top depth first (module notes)
     acc = ca.SX(K, 1)
     if Ew_g.nnz:
         acc = acc + ca.mtimes(_dm(Ew_g.T), lam)
@@ -388,25 +439,39 @@ def derivatives(tape: p2c.Tape, sxm: SplitSX, lam, sigma):
         Ew_f.eliminate_zeros()
         if Ew_f.nnz:
             acc = acc + sigma * tape.sense * _dm(Ew_f.T)
-    bars = {}
-    for grp, first, _, _, Aw in reversed(done):
-        bar = acc[grp.lo:grp.hi]
-        bars[grp.lo] = bar
-        for fs, aw in zip(first, Aw):
-            if aw.nnz == 0:
-                continue
-            contrib = ca.mtimes(_dm(aw.T), fs * bar)  # length grp.depth_lo
-            acc = acc + ca.vertcat(contrib, ca.SX(K - contrib.shape[0], 1))
-    pairs: dict = {}
-    for grp, _, second, U, _ in done:
-        bar = bars[grp.lo]
-        for (s, t), d2 in second.items():
-            pairs.setdefault((s, t), []).append((U[s], bar * d2, U[t]))
-    H = ca.SX(n, n)
-    for (s, t), items in pairs.items():
-        Us = ca.vertcat(*[u for u, _, _ in items])
-        cs = ca.vertcat(*[c for _, c, _ in items])
-        Ut = ca.vertcat(*[u for _, _, u in items])
-        term = ca.mtimes(Us.T, ca.mtimes(ca.diag(cs), Ut))
-        H = H + term if s == t else H + term + term.T
-    return jac, ca.tril(H)
+    terms = []  # (U, M) of each depth
+    for dep in reversed(depths):
+        bar = acc[dep.lo:dep.hi]
+        if dep.Aw.nnz:
+            contrib = ca.mtimes(_dm(dep.Aw.T), ca.mtimes(dep.D.T, bar))  # length dep.lo
+            acc = acc + ca.vertcat(contrib, ca.SX(K - dep.lo, 1))
+        if not dep.second:
+            continue
+        r_idx, c_idx, vals = [], [], []
+        for local, ws, wt, d2 in dep.second:
+            coef = bar[local.tolist()] * d2
+            r_idx.append(ws)
+            c_idx.append(wt)
+            vals.append(coef)
+            if ws is not wt and not np.array_equal(ws, wt):
+                r_idx.append(wt)
+                c_idx.append(ws)
+                vals.append(coef)
+        rr, cc = np.concatenate(r_idx), np.concatenate(c_idx)
+        nR = dep.U.shape[0]
+        order = np.lexsort((rr, cc))  # column-major nonzero order
+        colind = np.searchsorted(cc[order], np.arange(nR + 1))
+        M = ca.SX(ca.Sparsity(nR, nR, colind.tolist(), rr[order].tolist()),
+                  ca.vertcat(*vals)[order.tolist()])
+        terms.append((dep.U, M))
+    if not terms:
+        return jac, ca.SX(n, n)
+    MU = [ca.mtimes(M, U) for U, M in terms]
+    pattern = ca.Sparsity(n, n)
+    for (U, _), mu in zip(terms, MU):
+        pattern = pattern.unite(_product_pattern(U.T, mu.sparsity()))
+    lower = ca.tril(_ones(pattern)).sparsity()
+    H = ca.SX.zeros(lower)
+    for (U, _), mu in zip(terms, MU):
+        H = ca.mac(U.T, mu, H)
+    return jac, H
