@@ -1,8 +1,8 @@
 """Ipopt through the CasADi bridge: published optima, analytic duals, failure paths.
 
 Published optima are from Hock, W. and Schittkowski, K. (1981), "Test Examples for
-Nonlinear Programming Codes", Lecture Notes in Economics and Mathematical Systems 187,
-Springer (values recalled from memory, each with its problem number).
+Nonlinear Programming Codes", Springer, Berlin, vol. 187 of its series in economics
+and mathematical systems (values recalled from memory, each with its problem number).
 """
 
 import math
