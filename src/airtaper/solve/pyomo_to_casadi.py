@@ -386,22 +386,35 @@ class _Walker:
         args, coefs = [], []
         conv = self.conv
         numbers = _NUMBER_TYPES
-        mono = ne.MonomialTermExpression
+        mono, prod = ne.MonomialTermExpression, ne.ProductExpression
+        neg, div = ne.NegationExpression, ne.DivisionExpression
         for a in node.args:
-            cls = a.__class__
-            if cls in numbers:
-                const += a
-                continue
-            if cls is mono:
-                c, v = a._args_
-                if c.__class__ in numbers:
-                    args.append(conv(v))
-                    coefs.append(c)
+            coef = 1.0
+            while True:  # peel constant factors off the term: no node for c * (...)
+                cls = a.__class__
+                if cls is mono or cls is prod:
+                    c, v = a._args_
+                    if c.__class__ in numbers:
+                        coef *= c
+                        a = v
+                        continue
+                elif cls is neg:
+                    coef = -coef
+                    a = a._args_[0]
                     continue
+                elif cls is div:
+                    u, d = a._args_
+                    if d.__class__ in numbers and d != 0:
+                        coef /= d
+                        a = u
+                        continue
+                break
+            if a.__class__ in numbers:
+                const += coef * a
+                continue
             args.append(conv(a))
-            coefs.append(1.0)
-        nid = self.lin(args, coefs, const)
-        return nid
+            coefs.append(coef)
+        return self.lin(args, coefs, const)
 
     def _product(self, node) -> int:
         a, b = node._args_
