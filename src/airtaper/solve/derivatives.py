@@ -5,8 +5,8 @@ means are linear combinations, and the nonlinearity sits in comparatively few pr
 quotients and powers (rates, transfer terms). This module exploits that generically,
 for any :class:`~airtaper.solve.pyomo_to_casadi.Tape`:
 
-1. *Flattening.* Every tape node is written as an affine function of the free
-   variables ``x``, the parameters ``p`` and the values ``w`` of the *nonlinear* nodes
+1. *Flattening.* Every tape node is written as an affine function of the variable
+   columns ``x``, the parameters ``p`` and the values ``w`` of the *nonlinear* nodes
    (every node that is not a leaf or a linear combination):
    ``node = E_x x + E_p p + E_w w + e0``. With ``C`` the (nilpotent) matrix of the
    linear-combination coefficients and ``B`` the unit rows of the leaves and nonlinear
@@ -32,6 +32,8 @@ for any :class:`~airtaper.solve.pyomo_to_casadi.Tape`:
    i.e. ``H = sum_{s,t} U_s' diag(bar * phi_st) U_t`` (the "edge pushing" form of the
    second-order chain rule).
 
+The values themselves are built from the same split form (:func:`build_split_sx`):
+each argument row and each constraint body is one sparse product ``E [x; p; w] + e0``.
 The results are the same functions as CasADi's own ``jacobian``/``hessian`` of the
 graph (tested to rounding at random points, including the operations handled by the
 generic fallback, which takes CasADi's own derivative of the operation).
@@ -43,6 +45,7 @@ of Algorithmic Differentiation", 2nd ed., SIAM (chain rule and its second-order 
 vertex elimination). Gower, R. M. and Mello, M. P. (2012), "A new framework for the
 computation of Hessians", Optimization Methods and Software 27(2), 251-273 (edge
 pushing: the Hessian accumulated from the local second derivatives and the adjoints).
+(Both cited from memory.)
 """
 
 from __future__ import annotations
@@ -54,6 +57,28 @@ import numpy as np
 import scipy.sparse as sp
 
 from airtaper.solve import pyomo_to_casadi as p2c
+
+# CasADi counterparts of the tape's operations (elementwise on SX columns)
+UNARY_CA = {
+    "exp": ca.exp, "log": ca.log, "log10": ca.log10, "sqrt": ca.sqrt, "sin": ca.sin,
+    "cos": ca.cos, "tan": ca.tan, "asin": ca.asin, "acos": ca.acos, "atan": ca.atan,
+    "sinh": ca.sinh, "cosh": ca.cosh, "tanh": ca.tanh, "asinh": ca.asinh,
+    "acosh": ca.acosh, "atanh": ca.atanh, "abs": ca.fabs, "ceil": ca.ceil,
+    "floor": ca.floor,
+}
+UNARY_BY_CODE = {p2c.UNARY_CODE[name]: fn for name, fn in UNARY_CA.items()}
+BINARY_CA = {
+    p2c.MUL: lambda a, b: a * b,
+    p2c.DIV: lambda a, b: a / b,
+    p2c.POW: lambda a, b: a**b,
+    p2c.FMAX: ca.fmax,
+    p2c.FMIN: ca.fmin,
+    p2c.LE: lambda a, b: a <= b,
+    p2c.LT: lambda a, b: a < b,
+    p2c.EQ: lambda a, b: a == b,
+    p2c.AND: ca.logic_and,
+}
+
 
 _ARITH2 = (p2c.MUL, p2c.DIV, p2c.POW, p2c.FMAX, p2c.FMIN)
 _NO_DERIVATIVE = (p2c.LE, p2c.LT, p2c.EQ, p2c.AND,
@@ -190,8 +215,6 @@ class SplitSX:
 def build_split_sx(tape: p2c.Tape, flat: Flat | None = None) -> SplitSX:
     """CasADi SX of the model in split form: nonlinear values one depth at a time, each
     argument and each constraint body one sparse product ``E [x; p; w] + e0``."""
-    from airtaper.solve.nlp import _BINARY_CA, _UNARY_BY_CODE
-
     flat = flat or flatten(tape)
     a = tape.arrays()
     op, aux = a["op"], a["aux"]
@@ -231,10 +254,10 @@ def build_split_sx(tape: p2c.Tape, flat: Flat | None = None) -> SplitSX:
                 w = args[1] ** ca.DM(aux[ids])
             elif code == p2c.IFELSE:
                 w = ca.if_else(args[1], args[2], args[3])
-            elif code in _BINARY_CA:
-                w = _BINARY_CA[code](args[1], args[2])
+            elif code in BINARY_CA:
+                w = BINARY_CA[code](args[1], args[2])
             else:
-                w = _UNARY_BY_CODE[code](args[1])
+                w = UNARY_BY_CODE[code](args[1])
             w = ca.densify(w)
             parts.append(w)
             groups.append(Group(int(seg[0]), int(seg[-1]) + 1, lo_d, code, ids, args, w))
@@ -280,18 +303,16 @@ def _local(code: int, a, b=None, c=None, w=None):
 
 def _generic_local(code: int, a, b=None):
     """CasADi's own partial derivatives of an elementwise operation (fallback)."""
-    from airtaper.solve.nlp import _BINARY_CA, _UNARY_BY_CODE
-
     k = a.shape[0]
     sa = ca.SX.sym("a", k)
     if b is None:
-        fn = _UNARY_BY_CODE[int(code)]
+        fn = UNARY_BY_CODE[int(code)]
         syms, vals = [sa], [a]
         phi = fn(sa)
     else:
         sb = ca.SX.sym("b", k)
         syms, vals = [sa, sb], [a, b]
-        phi = _BINARY_CA[int(code)](sa, sb)
+        phi = BINARY_CA[int(code)](sa, sb)
     first = [ca.densify(ca.diag(ca.jacobian(phi, s))) for s in syms]
     second = {}
     for i, fi in enumerate(first):

@@ -367,6 +367,8 @@ def solve_nlp(model, options: dict | None = None, *, warm_start=False, callback=
         objective (none: a feasibility problem). Fixed variables and mutable parameters
         are constants whose current values are used; the current variable values are
         the initial point (a missing value starts at 0 projected into the bounds).
+        Changing parameter values, bounds, or which variables are fixed reuses the
+        derivative functions of the structure (see ``use_cache``).
     options : dict, optional
         Ipopt options passed through (``tol``, ``max_iter``, ``max_wall_time``,
         ``mu_strategy``, ``nlp_scaling_method``, ``print_level``, ...); ``time_limit``
@@ -388,7 +390,9 @@ def solve_nlp(model, options: dict | None = None, *, warm_start=False, callback=
         returned a point; check ``status``) and the duals into a ``dual`` IMPORT Suffix
         of the model if it has one.
     use_cache : bool
-        Reuse the derivative functions built for the same model structure.
+        Reuse the derivative functions built for the same model structure (same active
+        constraints, objective and named-expression bodies; fixing and unfixing
+        variables keeps the structure).
 
     Returns
     -------

@@ -1,26 +1,40 @@
 """CasADi functions of a converted model: values, sparse Jacobian, Lagrangian Hessian.
 
-:func:`build_sx` turns a :class:`~airtaper.solve.pyomo_to_casadi.Tape` into CasADi SX
-expressions with vector operations (one CasADi call per level and operation kind).
-:func:`build_functions` then builds, once per model structure,
+:func:`get_structure` converts a model once per structure and caches the result:
 
-* ``f(x, p)`` objective (already multiplied by the sense, so always minimised),
-* ``grad_f(x, p)`` dense gradient,
-* ``g(x, p)`` constraint bodies,
-* ``jac_g(x, p)`` Jacobian nonzeros (sparsity computed once),
-* ``hess_l(x, p, lam, sigma)`` lower triangle of the Hessian of
-  ``sigma * f + lam' g`` (sparsity computed once),
+1. :func:`airtaper.solve.pyomo_to_casadi.convert` walks it into a tape (every variable
+   met is a column, fixed or not);
+2. :func:`airtaper.solve.derivatives.build_split_sx` builds the CasADi SX graph in
+   split form (the linear part flattened into sparse matrices, the nonlinear
+   operations one depth at a time);
+3. :func:`build_functions` builds
 
-and :class:`Evaluator` calls them through CasADi function buffers writing straight into
-preallocated numpy arrays, so no Python loop over constraints runs inside the Ipopt
-callbacks. :func:`get_structure` caches everything per model object and structure.
+   * ``f(x, p)`` objective (already multiplied by the sense, so always minimised),
+   * ``grad_f(x, p)`` dense gradient,
+   * ``g(x, p)`` constraint bodies,
+   * ``jac_g(x, p)`` Jacobian nonzeros (sparsity computed once),
+   * ``hess_l(x, p, lam, sigma)`` lower triangle of the Hessian of
+     ``sigma * f + lam' g`` (sparsity computed once),
+
+   by default with :func:`airtaper.solve.derivatives.derivatives` (the
+   linear/nonlinear split); ``method="casadi"`` keeps CasADi's own whole-graph
+   ``jacobian``/``hessian`` as the reference (with :func:`build_sx`, which builds the
+   graph as walked, one level and operation kind at a time);
+4. :class:`Evaluator` calls them through CasADi function buffers writing straight into
+   preallocated numpy arrays, so no Python loop over constraints runs inside the Ipopt
+   callbacks.
+
+Which variables are fixed is not part of the structure: each :func:`get_structure`
+call reads the fixed flags and :class:`Structure` exposes views of the current state
+(free columns only; fixed values enter as parameters), so fixing and unfixing
+variables changes values and index arrays, never the derivative functions.
 """
 
 from __future__ import annotations
 
 import time
 import weakref
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import casadi as ca
 import numpy as np
@@ -30,26 +44,8 @@ from pyomo.common.gc_manager import PauseGC
 from airtaper.errors import ModelError
 from airtaper.solve import derivatives as _derivatives
 from airtaper.solve import pyomo_to_casadi as p2c
-
-_UNARY_CA = {
-    "exp": ca.exp, "log": ca.log, "log10": ca.log10, "sqrt": ca.sqrt, "sin": ca.sin,
-    "cos": ca.cos, "tan": ca.tan, "asin": ca.asin, "acos": ca.acos, "atan": ca.atan,
-    "sinh": ca.sinh, "cosh": ca.cosh, "tanh": ca.tanh, "asinh": ca.asinh,
-    "acosh": ca.acosh, "atanh": ca.atanh, "abs": ca.fabs, "ceil": ca.ceil,
-    "floor": ca.floor,
-}
-_UNARY_BY_CODE = {p2c.UNARY_CODE[name]: fn for name, fn in _UNARY_CA.items()}
-_BINARY_CA = {
-    p2c.MUL: lambda a, b: a * b,
-    p2c.DIV: lambda a, b: a / b,
-    p2c.POW: lambda a, b: a**b,
-    p2c.FMAX: ca.fmax,
-    p2c.FMIN: ca.fmin,
-    p2c.LE: lambda a, b: a <= b,
-    p2c.LT: lambda a, b: a < b,
-    p2c.EQ: lambda a, b: a == b,
-    p2c.AND: ca.logic_and,
-}
+from airtaper.solve.derivatives import BINARY_CA as _BINARY_CA
+from airtaper.solve.derivatives import UNARY_BY_CODE as _UNARY_BY_CODE
 
 
 class _Blocks:
