@@ -146,6 +146,10 @@ def reduced_instance():
                                                                  flow_m3_d=tuple(q * f for f in FLOW_SHAPE)))
 
 
+class _Budget(Exception):
+    """The black box ran out of its time budget."""
+
+
 def black_box(quick: bool) -> None:
     from scipy.optimize import minimize
 
@@ -164,13 +168,24 @@ def black_box(quick: bool) -> None:
     ranges = {z: lay.zone_airflow_range_Sm3_h(lay.zone(z)) for z in zones}
     scale = np.array([ranges[z][1] for z in zones for _ in range(n_p)])
     x0 = np.array([np.clip(start[z][p], *ranges[z]) for z in zones for p in range(n_p)]) / scale
+    budget_s = 120.0 if quick else 600.0
     cache = {}
+    best = {"energy": np.inf, "t": None, "reached_t": None}
+    t_bb0 = time.perf_counter()
 
     def day(x):
         key = tuple(np.round(x, 12))
         if key not in cache:
+            if time.perf_counter() - t_bb0 > budget_s:
+                raise _Budget()
             sched = {z: (x[i * n_p:(i + 1) * n_p] * scale[i * n_p:(i + 1) * n_p]).tolist() for i, z in enumerate(zones)}
-            cache[key] = simulate_day(lay, schedule=sched)
+            d = simulate_day(lay, schedule=sched)
+            cache[key] = d
+            ok = not violations(lay, d.figures, effluent_tolerance=0.02, do_tolerance_mg_L=0.05)
+            if ok and d.energy_kWh_per_day < best["energy"]:
+                best["energy"], best["t"] = d.energy_kWh_per_day, time.perf_counter() - t_bb0
+                if best["reached_t"] is None and d.energy_kWh_per_day <= e_opt:
+                    best["reached_t"] = best["t"]
         return cache[key]
 
     def energy(x):
@@ -183,19 +198,23 @@ def black_box(quick: bool) -> None:
         return np.array(out)
 
     bounds = [(ranges[z][0] / ranges[z][1], 1.0) for z in zones for _ in range(n_p)]
-    t0 = time.perf_counter()
-    out = minimize(energy, x0, method="SLSQP", bounds=bounds, constraints=[{"type": "ineq", "fun": limits}],
-                   options={"maxiter": 4 if quick else 25, "ftol": 1e-6})
-    t_bb = time.perf_counter() - t0
-    e_bb = energy(out.x) * 1000.0
-    ok_bb = not violations(lay, day(out.x).figures, effluent_tolerance=0.02, do_tolerance_mg_L=0.05)
+    message = ""
+    try:
+        out = minimize(energy, x0, method="SLSQP", bounds=bounds, constraints=[{"type": "ineq", "fun": limits}],
+                       options={"maxiter": 200, "ftol": 1e-7})
+        message = f"{out.nit} iterations, {out.message}"
+    except _Budget:
+        message = f"stopped at the {budget_s:.0f} s budget"
+    t_bb = time.perf_counter() - t_bb0
     print(f"   optimiser: {e_opt:8.2f} kWh/d in {t_opt:6.2f} s (incl. baseline and verification; verified {verified})")
-    print(f"   black box: {e_bb:8.2f} kWh/d in {t_bb:6.2f} s ({out.nit} iterations, {len(cache)} simulations, "
-          f"{out.message}; limits met within tolerance: {ok_bb})")
-    print(f"   speed ratio black box / optimiser: {t_bb / t_opt:.1f} (target >= 20), energy ratio "
-          f"{e_bb / e_opt:.4f} (target >= 1)")
-    if e_bb > e_opt:
-        print("   (the black box stopped above the optimiser's energy: the speed ratio is a lower bound)")
+    print(f"   black box: best feasible {best['energy']:8.2f} kWh/d (found at {best['t'] or float('nan'):.1f} s), "
+          f"{t_bb:.1f} s in all, {len(cache)} simulations, {message}")
+    if best["reached_t"] is not None:
+        print(f"   black box reached the optimiser's energy after {best['reached_t']:.1f} s: speed ratio "
+              f"{best['reached_t'] / t_opt:.1f} (target >= 20)")
+    else:
+        print(f"   black box never reached the optimiser's energy (best {best['energy'] / e_opt:.4f} x); speed ratio "
+              f"at least {t_bb / t_opt:.1f} (target >= 20 at equal or lower energy)")
 
 
 def main() -> int:
