@@ -60,14 +60,26 @@ class SimDay:
         return (1.0 - f) * self.conc[i] + f * self.conc[(i + 1) % n]
 
 
-def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=None) -> SimDay:
-    """Periodic day of ``layout`` under a schedule (zone -> per-period airflow) or DO control."""
+def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=None, *, start_state=None,
+                 start_waste_m3_d: float | None = None, tol: float | None = None) -> SimDay:
+    """Periodic day of ``layout`` under a schedule (zone -> per-period airflow) or DO control.
+
+    ``start_state``/``start_waste_m3_d``: where the simulator's first day starts (its
+    default is the mean-load steady state); ``tol``: its day-repeat tolerance.
+    """
     from airtaper.simulate import periodic
 
     t0 = time.perf_counter()
+    kwargs = {}
+    if start_state is not None:
+        kwargs["start_state"] = start_state
+    if start_waste_m3_d is not None:
+        kwargs["start_waste_m3_d"] = start_waste_m3_d
+    if tol is not None:
+        kwargs["tol"] = tol
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        res = periodic(layout, schedule=schedule, do_setpoint_mg_L=do_setpoint_mg_L)
+        res = periodic(layout, schedule=schedule, do_setpoint_mg_L=do_setpoint_mg_L, **kwargs)
     ts, eff = res.timeseries, res.effluent
     zone_ids = [z.id for z in layout.zones]
     nz = len(zone_ids)

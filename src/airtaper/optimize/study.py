@@ -367,7 +367,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     if opts.verify and status != "failed":
         prog.phase("verifying: the schedule re-simulated by the independent simulator")
         t = time.perf_counter()
-        verification = verify_schedule(layout, study.schedule_by_zone(), figs)
+        verification = verify_schedule(layout, study.schedule_by_zone(), figs, study.m)
         study.timings["verification_s"] = time.perf_counter() - t
         if not verification["verified"]:
             messages.append("WARNING: the re-simulated schedule breaks a limit: " + "; ".join(verification["violations"]))
