@@ -1,8 +1,9 @@
 """Compliance figures of a day, computed the same way for the optimiser, the baseline and the verification.
 
-Inputs are per time step over the day (``N = n_periods x steps_per_period`` steps):
-effluent NH4-N and TN (mg/L), effluent flow (m3/d), the period of every step, and
-the DO of every zone (mg/L). Definitions (docs/optimization.md, "Limits"):
+Inputs are per time point over the day (the simulator's equal output steps, or the
+model's collocation points with their quadrature weights): effluent NH4-N and TN
+(mg/L), effluent flow (m3/d), the period of every point, and the DO of every zone
+(mg/L). Definitions (docs/optimization.md, "Limits"):
 
 * daily mean = effluent-flow-weighted mean over the steps (times the steps' time weights);
 * period mean = time mean over the period's steps (the flow is constant in a period);

@@ -16,7 +16,7 @@ Decisions
     derivative-building time on the three-tank layout (6.7 s against 3.5 s, one run).
 
 Limits (each a named constraint group; :data:`LIMIT_GROUPS` lists them)
-    DO minimum / maximum at every step of aerated zones; effluent NH4-N flow-weighted
+    DO minimum / maximum at every time point of aerated zones; effluent NH4-N flow-weighted
     daily mean and every period's mean; effluent TN daily mean; airflow per diffuser
     within the diffuser type's range; mixing minimum per floor area; valve/drop-leg
     capacity; total airflow within the blowers' turndown and capacity; valve loss
