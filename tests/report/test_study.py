@@ -44,3 +44,14 @@ def test_console_summary_names_figures_and_caution():
     text = console_summary(summary)
     assert "1,200.0 kWh/d" in text and "saving 20.0 %" in text
     assert CAUTION in text
+
+
+def test_console_summary_lists_every_marginal_cost_and_no_negative_zero():
+    *_, summary = _tables()
+    summary["marginal_costs"] = [dict(limit="do_min_mg_L", where=f"Z{i}", kWh_per_day=-1e-9, cost_per_day=-1e-10,
+                                      per="per 0.1 mg/L higher DO minimum", binding=i % 2 == 0) for i in range(15)]
+    summary["min_do_margin_mg_L"] = -0.001
+    text = console_summary(summary)
+    assert text.count("marginal          do_min_mg_L") == 15
+    assert "-0.0" not in text
+    assert text.count("(not binding)") == 7

@@ -103,7 +103,8 @@ def _fmt(x, digits: int = 1) -> str:
     if isinstance(x, (bool, np.bool_)):
         return "yes" if x else "no"
     if isinstance(x, (int, float, np.floating)):
-        return f"{x:,.{digits}f}"
+        text = f"{x:,.{digits}f}"
+        return text[1:] if text.startswith("-") and not text.strip("-0.,") else text  # no "-0.00"
     return str(x)
 
 
@@ -194,9 +195,11 @@ def console_summary(summary: dict) -> str:
         f"min DO margin     {_fmt(summary.get('min_do_margin_mg_L'), 2)} mg/L",
         f"verified          {_fmt(ver.get('verified'))}",
     ]
-    for item in (summary.get("marginal_costs") or [])[:12]:
+    for item in summary.get("marginal_costs") or []:
+        slack = "" if item.get("binding", True) else " (not binding)"
         lines.append(f"marginal          {item.get('limit')} {item.get('where', '')}: "
-                     f"{_fmt(item.get('kWh_per_day'), 1)} kWh/d, {_fmt(item.get('cost_per_day'), 2)} {cur}/d {item.get('per', '')}")
+                     f"{_fmt(item.get('kWh_per_day'), 1)} kWh/d, {_fmt(item.get('cost_per_day'), 2)} {cur}/d "
+                     f"{item.get('per', '')}{slack}")
     for m in summary.get("messages", []) or []:
         lines.append(f"note              {m}")
     lines.append("caution           " + CAUTION)
