@@ -21,7 +21,11 @@ def _tables(n_periods=4, zones=("Z2", "Z3")):
     summary = dict(status="optimal", plant="Test plant", energy_kWh_per_day=1200.0, cost_per_day=150.0,
                    baseline=dict(energy_kWh_per_day=1500.0, cost_per_day=190.0), saving_percent=20.0,
                    effluent=dict(nh4_mean_mg_L=1.0, nh4_max_mg_L=2.0, tn_mean_mg_L=9.0), min_do_margin_mg_L=0.0,
-                   verification=dict(verified=True), currency="EUR",
+                   verification=dict(verified=True, rule="within 2 %",
+                                     effluent=dict(nh4_mean_mg_L=1.01, nh4_max_mg_L=2.02, tn_mean_mg_L=9.1),
+                                     optimiser_effluent=dict(nh4_mean_mg_L=1.0, nh4_max_mg_L=2.0, tn_mean_mg_L=9.0),
+                                     do_margin_mg_L=dict(Z2=-0.01, Z3=0.2),
+                                     optimiser_do_margin_mg_L=dict(Z2=0.0, Z3=0.2)), currency="EUR",
                    marginal_costs=[dict(limit="nh4_mean_mg_L", where="effluent", kWh_per_day=-12.0,
                                         cost_per_day=-1.5, per="+0.1 mg/L")],
                    limits=dict(nh4_mean_mg_L=1.5, nh4_max_mg_L=3.0))
@@ -36,6 +40,8 @@ def test_all_outputs_written(tmp_path):
     assert (tmp_path / "schedule.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     page = (tmp_path / "report.html").read_text()
     assert "Caution" in page and "licensed engineers" in page
+    assert "<td>NH4-N daily mean (mg/L)</td><td>1.000</td><td>1.010</td><td>1.50</td>" in page
+    assert "<td>DO margin Z2 (mg/L)</td><td>0.000</td><td>-0.010</td>" in page
     assert pd.read_csv(tmp_path / "schedule.csv").shape == schedule.shape
 
 

@@ -134,6 +134,20 @@ def report_html(summary: dict, schedule: pd.DataFrame, png: bytes | None) -> str
                                          ("limit", "where", "kWh_per_day", "cost_per_day", "per")) + "</tr>")
     mc = ("<table class='grid'><tr><th>limit</th><th>where</th><th>kWh/d</th><th>cost/d</th><th>per</th></tr>"
           + "".join(mc_rows) + "</table>") if mc_rows else "<p>none</p>"
+    ver_rows = []
+    opt_eff = ver.get("optimiser_effluent", {}) or {}
+    sim_eff = ver.get("effluent", {}) or {}
+    lim = summary.get("limits", {}) or {}
+    for key, label in (("nh4_mean_mg_L", "NH4-N daily mean (mg/L)"), ("nh4_max_mg_L", "NH4-N max period mean (mg/L)"),
+                       ("tn_mean_mg_L", "TN daily mean (mg/L)")):
+        ver_rows.append((label, _fmt(opt_eff.get(key), 3), _fmt(sim_eff.get(key), 3), _fmt(lim.get(key), 2)))
+    opt_do = ver.get("optimiser_do_margin_mg_L", {}) or {}
+    for zone, margin in (ver.get("do_margin_mg_L", {}) or {}).items():
+        ver_rows.append((f"DO margin {zone} (mg/L)", _fmt(opt_do.get(zone), 3), _fmt(margin, 3), "0"))
+    verification = ("<table class='grid'><tr><th></th><th>optimiser</th><th>re-simulated</th><th>limit</th></tr>"
+                    + "".join("<tr>" + "".join(f"<td>{html.escape(c)}</td>" for c in r) + "</tr>" for r in ver_rows)
+                    + "</table>"
+                    + f"<p>{html.escape(str(ver.get('rule', '')))}</p>") if ver_rows else ""
     pivot = schedule.pivot_table(index="zone", columns="period_start_h", values="airflow_Sm3_h", sort=False)
     sched = pivot.to_html(float_format=lambda v: f"{v:,.0f}", border=0, classes="grid")
     img = (f"<img alt='schedule' src='data:image/png;base64,{base64.b64encode(png).decode()}'/>" if png else "")
@@ -152,6 +166,7 @@ img {{ max-width: 100%; }}
 <p class="caution"><strong>Caution.</strong> {html.escape(CAUTION)}</p>
 <h2>Result</h2>{head}
 <ul>{notes}</ul>
+<h2>Verification by the independent simulator</h2>{verification}
 <h2>Marginal costs</h2>{mc}
 <h2>Airflow schedule (Sm3/h per zone and period start hour)</h2>{sched}
 <h2>Figure</h2>{img}
