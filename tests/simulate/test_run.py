@@ -6,6 +6,7 @@ import pytest
 from airtaper import simulate
 from airtaper.errors import InputError
 from airtaper.layout import load_layout
+from airtaper.layout.types import ASM1_COMPONENTS
 from airtaper.simulate.summary import summarize
 
 
@@ -122,6 +123,25 @@ def test_periodic_day_from_a_given_start_state_reaches_the_same_day(demo, demo_d
     a = demo_day.effluent["SNH"].to_numpy()
     b = again.effluent["SNH"].to_numpy()
     assert np.max(np.abs(a - b)) < 0.01  # mg/L: the same periodic day within the day-repeat tolerance
+    assert again.start is None
+
+
+def test_given_start_state_skips_the_mean_load_steady_state(demo, demo_day, monkeypatch):
+    """With a start state (and no first waste flow) no steady state is solved; the day is the same."""
+    import airtaper.simulate.run as run
+
+    def refuse(*args, **kwargs):
+        raise AssertionError("mean-load steady state solved although a start state was given")
+
+    monkeypatch.setattr(run, "solve_steady", refuse)
+    ts = demo_day.timeseries
+    first = ts[ts["time_h"] == 0.0].set_index("zone")
+    state = {"zones": {z.id: first.loc[z.id, list(ASM1_COMPONENTS)].to_numpy(dtype=float) for z in demo.zones}}
+    again = simulate.periodic(demo, do_setpoint_mg_L=2.0, start_state=state)
+    assert again.start is None and again.converged
+    assert again.balance["cod_closure"] < 1e-6 and again.balance["n_closure"] < 1e-6
+    assert np.max(np.abs(again.effluent["SNH"].to_numpy() - demo_day.effluent["SNH"].to_numpy())) < 0.01  # mg/L
+    assert summarize(again)  # the summary does not need the steady state
 
 
 def test_start_state_of_the_wrong_size_is_refused(demo):

@@ -214,7 +214,9 @@ class PeriodicResult:
     q_influent_m3_d, q_effluent_m3_d, q_waste_m3_d, srt_d. Output times are the
     ``steps_per_period`` equal steps of every period, starting at 0 h.
     ``day_change``: max over states of |y(24 h) - y(0)| / max(|y(0)|, 1) of the
-    last day; ``balance``: the COD and N closure over the last day.
+    last day; ``balance``: the COD and N closure over the last day. ``start``: the
+    mean-load steady state the first day started from, None when the caller gave
+    ``start_state`` (it is then not solved).
     """
 
     timeseries: pd.DataFrame
@@ -223,7 +225,7 @@ class PeriodicResult:
     converged: bool
     day_change: float
     balance: dict[str, float]
-    start: SteadyResult
+    start: SteadyResult | None
     seconds: float
     y_start: np.ndarray
     y_end: np.ndarray
@@ -255,27 +257,39 @@ def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30
         ``{"zones": {zone_id: 13 components}, "layers": (layers, 13) from the top}``
         (``layers`` only for a layered clarifier), g/m3 and SALK mol/m3. The
         simulator still runs whole days of its own equations until the day repeats.
+        The mean-load steady state is then not solved (``start`` of the result is None).
     start_waste_m3_d : float, optional
-        With a target SRT, the first day's waste flow (default: the mean-load value).
+        With a target SRT, the first day's waste flow (default: the mean-load steady
+        state's; with ``start_state``, the flow holding the SRT at that state and mean load).
     """
     t_start = time.perf_counter()
     plant = PlantData(layout)
     system = System(plant)
     air, sp = resolve_aeration(layout, schedule, do_setpoint_mg_L)
     mean_inp = plant.inputs(None, airflow_Sm3_h=air.mean(axis=0), do_setpoint_mg_L=sp)
-    t0 = time.perf_counter()
-    start = _steady_result(system, mean_inp, solve_steady(system, mean_inp), 0.0)
-    start.seconds = time.perf_counter() - t0
+    start = None
+    if start_state is None:
+        t0 = time.perf_counter()
+        start = _steady_result(system, mean_inp, solve_steady(system, mean_inp), 0.0)
+        start.seconds = time.perf_counter() - t0
+        y = start.y.copy()
+    else:
+        y = _state_vector(system, start_state)
     inputs = [plant.inputs(k, airflow_Sm3_h=air[k], do_setpoint_mg_L=sp) for k in range(plant.n_periods)]
     wcod, wn = system.inventory_weights(inputs[0])
     period_d = plant.period_d
     steps = layout.horizon.steps_per_period
-    y = start.y.copy() if start_state is None else _state_vector(system, start_state)
     srt_target = layout.wasting.srt_d
     if srt_target is not None:
         # An SRT target is met on the daily mean with one waste flow for the whole day, as
-        # operators waste and as the Pyomo model states it: start from the mean-load value.
-        q_waste = start.q_waste_m3_d if start_waste_m3_d is None else float(start_waste_m3_d)
+        # operators waste and as the Pyomo model states it: start from the mean-load value
+        # (without a steady state: the flow that holds the SRT at the start state and mean load).
+        if start_waste_m3_d is not None:
+            q_waste = float(start_waste_m3_d)
+        elif start is not None:
+            q_waste = start.q_waste_m3_d
+        else:
+            q_waste = float(system.rhs(y, mean_inp, detail=True)[1]["q_waste_m3_d"])
         inputs = [dataclasses.replace(inp, q_waste=q_waste) for inp in inputs]
     converged = False
     change = np.inf
