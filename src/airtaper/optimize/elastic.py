@@ -24,7 +24,7 @@ from __future__ import annotations
 import pyomo.environ as pyo
 
 from airtaper.optimize.figures import clock
-from airtaper.optimize.problem import LIMIT_GROUPS, fix_slacks, free_slacks, point_weights
+from airtaper.optimize.problem import active_limit_groups, fix_slacks, free_slacks, point_weights
 
 #: Penalty per unit slack (fraction of the limit, or kPa) of equipment limits, in
 #: objective units (the objective is about 1 at the baseline).
@@ -49,11 +49,7 @@ def enter_elastic(m) -> None:
     b = m.opt
     free_slacks(b)
     terms = []
-    for g in LIMIT_GROUPS:
-        con = b.component(g.name)
-        if con is None or not con.active:
-            continue
-        slack = b.component(g.slack)
+    for g, slack in active_limit_groups(b):
         w = _weights(m, g, slack)
         terms.extend(w[k] * v for k, v in slack.items())
     if b.component("elastic_objective") is not None:
@@ -128,11 +124,7 @@ def findings(m) -> list[dict]:
     period_h = m._train_data.period_h
     step_h = m.step_hours
     out = []
-    for g in LIMIT_GROUPS:
-        con = b.component(g.name)
-        if con is None or not con.active:
-            continue
-        slack = b.component(g.slack)
+    for g, slack in active_limit_groups(b):
         tol = REPORT_THRESHOLD[g.unit]
         hits = {k: float(v.value) for k, v in slack.items() if v.value is not None and v.value > tol}
         if not hits:

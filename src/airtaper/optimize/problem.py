@@ -314,13 +314,18 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
     return b
 
 
-def free_slacks(b) -> None:
-    """Unfix every slack of an active limit (elastic mode)."""
+def active_limit_groups(b):
+    """(group, slack variable) of every limit group whose constraint is present and active in ``b``."""
     for g in LIMIT_GROUPS:
         con = b.component(g.name)
-        if con is None or not con.active:
-            continue
-        for v in b.component(g.slack).values():
+        if con is not None and con.active:
+            yield g, b.component(g.slack)
+
+
+def free_slacks(b) -> None:
+    """Unfix every slack of an active limit (elastic mode)."""
+    for _, slack in active_limit_groups(b):
+        for v in slack.values():
             v.unfix()
 
 
@@ -331,5 +336,5 @@ def fix_slacks(b) -> None:
             v.fix(0.0)
 
 
-__all__ = ["LIMIT_GROUPS", "LimitGroup", "ProblemSettings", "attach_problem", "fix_slacks", "free_slacks",
+__all__ = ["LIMIT_GROUPS", "LimitGroup", "ProblemSettings", "active_limit_groups", "attach_problem", "fix_slacks", "free_slacks",
            "effluent_weights", "flow_weighted_mean", "period_mean", "point_weights", "settings_for", "steps_of_period"]
