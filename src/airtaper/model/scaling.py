@@ -47,4 +47,4 @@ def apply_scaling(m) -> None:
     for key, v in m.airflow_Sm3_h.items():
         sf[v] = _factor(v.value, 1.0)
     if hasattr(m, "srt_target"):
-        sf[m.srt_target] = _factor(sum((m.solids_inventory_g[t]() or 0.0) for t in m.STEPS), 1.0)
+        sf[m.srt_target] = _factor(sum(m.point_weight[t] * (m.solids_inventory_g[t]() or 0.0) for t in m.STEPS), 1.0)

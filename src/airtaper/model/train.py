@@ -382,9 +382,14 @@ def _solids_out_rule(m, t):
     return m.waste_m3_d[p] * m.underflow_tss_g_m3[t] + m.effluent_m3_d[p] * m.effluent_tss_mg_L[t]
 
 
+def _daily_mean(m, expr):
+    """Time mean over the day of a per-point expression (the points' quadrature weights)."""
+    return sum(m.point_weight[t] * expr[t] for t in m.STEPS)
+
+
 def _srt_target_rule(m):
     """Daily mean solids inventory = target SRT x daily mean solids leaving (waste + effluent)."""
-    return sum(m.solids_inventory_g[t] for t in m.STEPS) == m.srt_target_d * sum(m.solids_out_g_d[t] for t in m.STEPS)
+    return _daily_mean(m, m.solids_inventory_g) == m.srt_target_d * _daily_mean(m, m.solids_out_g_d)
 
 
 def _constant_waste_rule(m, p):
@@ -394,7 +399,7 @@ def _constant_waste_rule(m, p):
 
 
 def _srt_rule(m):
-    return sum(m.solids_inventory_g[t] for t in m.STEPS) / sum(m.solids_out_g_d[t] for t in m.STEPS)
+    return _daily_mean(m, m.solids_inventory_g) / _daily_mean(m, m.solids_out_g_d)
 
 
 def attach_flows(m, data: TrainData) -> None:
