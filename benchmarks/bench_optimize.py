@@ -5,8 +5,10 @@ Prints, measured side by side in one run:
 1. the 6-zone x 24-period demo end to end (baseline, build, conversion and
    derivatives, Ipopt, verification, writing the outputs) against the 20 s target;
 2. the optimisation (build + derivatives + Ipopt) over aerated zones 3-20 (12 periods)
-   and periods 12-96 (the demo's zones), with time per (zones x periods) and the
-   log-log slope of time against zones x periods (1 = linear);
+   and periods 12-96 (the demo's zones), with time per (zones x periods), Ipopt time
+   per iteration, the log-log slopes of both over each series and of time against
+   zones x periods (1 = linear); then MUMPS's automatic ordering of the KKT matrix
+   against the optimiser's AMF ordering on two sizes;
 3. the same decisions (airflow per zone and period) optimised by a black box,
    ``scipy.optimize.minimize`` (SLSQP, finite-difference gradients) over the
    independent simulator, on a reduced instance (three tanks, six periods), against
@@ -67,8 +69,8 @@ def zones_variant(layout, n_aerated: int):
                                recycles=(dataclasses.replace(rec, from_zone=zones[-1].id),))
 
 
-def solve_time(layout) -> tuple[float, dict]:
-    res = run_optimization(layout, StudyOptions(verify=False, marginal=False))
+def solve_time(layout, ipopt_options: dict | None = None) -> tuple[float, dict]:
+    res = run_optimization(layout, StudyOptions(verify=False, marginal=False, ipopt_options=ipopt_options or {}))
     t = res.summary["solver"]["timings"]
     solve = t["build_s"] + t["initialise_s"] + t["conversion_derivatives_s"] + t["ipopt_s"]
     return solve, res.summary
@@ -112,31 +114,52 @@ def scaling(quick: bool) -> None:
     demo = load("layouts/demo.toml")
     zone_counts = (3, 6, 12) if quick else (3, 6, 8, 12, 15, 20)
     period_counts = (12, 24, 48) if quick else (12, 24, 48, 96)
-    sizes, times = [], []
-    print("   aerated zones x periods    solve s   iterations   ms per (zone x period)   derivatives s   Ipopt s")
-    for nz in zone_counts:
-        lay = with_periods(zones_variant(demo, nz), 12)
+    # (aerated zones, periods, the series it belongs to, layout maker); 5 x 12 is in both series
+    cases = [(nz, 12, ("zones",), lambda nz=nz: with_periods(zones_variant(demo, nz), 12)) for nz in zone_counts]
+    cases += [(5, npd, ("periods", "zones") if npd == 12 else ("periods",), lambda npd=npd: with_periods(demo, npd))
+              for npd in period_counts]
+    series = {"zones": ([], [], []), "periods": ([], [], [])}
+    all_sizes, all_times = [], []
+    print("   aerated zones x periods    solve s   iterations   ms per (zone x period)   derivatives s   Ipopt s"
+          "   Ipopt s per iteration")
+    for nz, npd, keys, make in cases:
         try:
-            sec, s = solve_time(lay)
+            sec, s = solve_time(make())
         except Exception as exc:  # the baseline simulation can fail on a synthetic variant
-            print(f"   {nz:>5} x {12:<3}               skipped: {type(exc).__name__}: {exc}")
+            print(f"   {nz:>5} x {npd:<3}               skipped: {type(exc).__name__}: {exc}")
             continue
-        sizes.append(nz * 12)
-        times.append(sec)
-        t = s["solver"]["timings"]
-        print(f"   {nz:>5} x {12:<3}               {sec:7.2f}   {s['solver']['iterations']:>5}        "
-              f"{1000 * sec / (nz * 12):8.1f}                {t['conversion_derivatives_s']:7.2f}   "
-              f"{t['ipopt_s']:7.2f}   ({s['status']})")
-    for npd in period_counts:
-        lay = with_periods(demo, npd)
-        sec, s = solve_time(lay)
-        sizes.append(5 * npd)
-        times.append(sec)
-        t = s["solver"]["timings"]
-        print(f"   {5:>5} x {npd:<3}               {sec:7.2f}   {s['solver']['iterations']:>5}        "
-              f"{1000 * sec / (5 * npd):8.1f}                {t['conversion_derivatives_s']:7.2f}   "
-              f"{t['ipopt_s']:7.2f}   ({s['status']})")
-    print(f"   log-log slope of solve time against zones x periods: {slope(sizes, times):.2f} (1 = linear)")
+        t, its = s["solver"]["timings"], s["solver"]["iterations"]
+        per_it = t["ipopt_s"] / max(its, 1)
+        for key in keys:
+            for lst, v in zip(series[key], (nz * npd, sec, per_it)):
+                lst.append(v)
+        all_sizes.append(nz * npd)
+        all_times.append(sec)
+        print(f"   {nz:>5} x {npd:<3}               {sec:7.2f}   {its:>5}        {1000 * sec / (nz * npd):8.1f}"
+              f"                {t['conversion_derivatives_s']:7.2f}   {t['ipopt_s']:7.2f}   {per_it:8.3f}"
+              f"   ({s['status']})")
+    for key, (sizes, times, per_it) in series.items():
+        if len(sizes) > 1:
+            print(f"   over {key:<8} log-log slope: solve time {slope(sizes, times):.2f}, "
+                  f"Ipopt time per iteration {slope(sizes, per_it):.2f}")
+    print(f"   log-log slope of solve time against zones x periods, all sizes: {slope(all_sizes, all_times):.2f} "
+          f"(1 = linear)")
+    orderings(demo, quick)
+
+
+def orderings(demo, quick: bool) -> None:
+    """The optimiser's MUMPS ordering (AMF) against MUMPS's automatic choice, side by side."""
+    print("   MUMPS ordering of the KKT matrix: the optimiser's AMF against MUMPS's automatic choice")
+    print("   aerated zones x periods    Ipopt s (auto)   Ipopt s (AMF)   auto / AMF   energy kWh/d (auto, AMF)")
+    cases = [(12, 12, with_periods(zones_variant(demo, 12), 12)), (5, 48, with_periods(demo, 48))]
+    if quick:
+        cases = cases[:1]
+    for nz, npd, lay in cases:
+        _, auto = solve_time(lay, {"mumps_pivot_order": 7})
+        _, amf = solve_time(lay, {"mumps_pivot_order": 2})
+        ta, tb = auto["solver"]["timings"]["ipopt_s"], amf["solver"]["timings"]["ipopt_s"]
+        print(f"   {nz:>5} x {npd:<3}               {ta:8.2f}        {tb:8.2f}        {ta / tb:6.2f}"
+              f"       {auto['energy_kWh_per_day']:.2f}, {amf['energy_kWh_per_day']:.2f}")
 
 
 def reduced_instance():

@@ -41,8 +41,13 @@ class Rung:
     user_scaling: bool = True
 
 
-#: Base Ipopt options of every rung.
-BASE_OPTIONS = {"tol": 1e-7, "acceptable_tol": 1e-5, "max_iter": 600}
+#: Base Ipopt options of every rung. ``mumps_pivot_order = 2``: MUMPS orders the KKT
+#: matrix by approximate minimum fill (AMF) instead of its automatic choice. Every time
+#: point couples all zones, so the factorisation is nearly all the time; AMF halves its
+#: cost on the larger layouts and keeps the cost per iteration linear in the number of
+#: periods (docs/optimization.md, Performance: 5 zones x 96 periods 0.94 against 1.84 s
+#: per iteration, 20 x 12 1.7 against 3.8 s, the same optimum in the same iterations).
+BASE_OPTIONS = {"tol": 1e-7, "acceptable_tol": 1e-5, "max_iter": 600, "mumps_pivot_order": 2}
 
 LADDER: tuple[Rung, ...] = (
     Rung("baseline start", {"mu_strategy": "adaptive"}),
