@@ -86,3 +86,22 @@ def test_unverified_result_warns_loudly_and_exits_4(tmp_path, capsys, monkeypatc
     assert summary["status"] == "unverified" and summary["verification"]["verified"] is False
     assert any(m.startswith("WARNING") for m in summary["messages"])
     assert "WARNING" in capsys.readouterr().err
+
+
+def test_influent_csv_named_like_an_output_is_never_overwritten(tmp_path, capsys, monkeypatch):
+    # The influent CSV is read from the layout's folder, wherever the command runs; an output
+    # folder that would overwrite it is refused there too (the guard once looked in the
+    # working folder instead).
+    plant = tmp_path / "plant"
+    plant.mkdir()
+    csv_text = (ROOT / "layouts" / "demo_influent.csv").read_text()
+    (plant / "schedule.csv").write_text(csv_text)
+    text = (ROOT / "layouts" / "demo.toml").read_text().replace('csv = "demo_influent.csv"', 'csv = "schedule.csv"')
+    (plant / "demo.toml").write_text(text)
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    monkeypatch.chdir(elsewhere)
+    assert main(["optimize", str(plant / "demo.toml"), "--out", str(plant)]) == EXIT_INPUT
+    err = capsys.readouterr().err
+    assert "would overwrite an input" in err and "Traceback" not in err
+    assert (plant / "schedule.csv").read_text() == csv_text

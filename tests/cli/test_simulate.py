@@ -1,6 +1,7 @@
 """`airtaper simulate`: outputs, schedule input and bad input handling."""
 
 import json
+from pathlib import Path
 
 import pandas as pd
 
@@ -48,3 +49,16 @@ def test_simulate_refuses_to_overwrite_an_input(tmp_path, capsys):
     assert main(["simulate", "layouts/three_tank.toml", "--out", str(tmp_path), "--schedule", str(sched)]) == 2
     assert "would overwrite an input" in capsys.readouterr().err
     assert sched.read_text() == "period_start_h,zone,airflow_Sm3_h\n"
+
+
+def test_simulate_never_overwrites_the_influent_csv(tmp_path, capsys, monkeypatch):
+    # the layout's influent CSV counts as an input, found in the layout's folder
+    root = Path(__file__).resolve().parents[2]
+    csv_text = (root / "layouts" / "demo_influent.csv").read_text()
+    (tmp_path / "timeseries.csv").write_text(csv_text)
+    text = (root / "layouts" / "demo.toml").read_text().replace('csv = "demo_influent.csv"', 'csv = "timeseries.csv"')
+    (tmp_path / "demo.toml").write_text(text)
+    monkeypatch.chdir(root)
+    assert main(["simulate", str(tmp_path / "demo.toml"), "--out", str(tmp_path)]) == 2
+    assert "would overwrite an input" in capsys.readouterr().err
+    assert (tmp_path / "timeseries.csv").read_text() == csv_text

@@ -15,7 +15,7 @@ from __future__ import annotations
 import sys
 
 from airtaper.errors import InputError, Problem
-from airtaper.layout import load_layout
+from airtaper.layout import layout_input_files, load_layout
 from airtaper.report.atomic import guard_inputs
 from airtaper.report.study import OUTPUT_NAMES, console_summary, write_study_outputs
 
@@ -59,8 +59,7 @@ def run(args) -> int:
     layout = load_layout(args.layout, warnings=warnings)
     for w in warnings:
         print(str(w), file=sys.stderr)
-    guard_inputs(args.out, [args.layout] + ([layout.influent.source] if layout.influent.source != "constant" else []),
-                 OUTPUT_NAMES)
+    guard_inputs(args.out, layout_input_files(args.layout, layout), OUTPUT_NAMES)
     if not any(z.grid is not None and z.aerated and z.fixed_kla_per_d is None for z in layout.zones):
         raise InputError(Problem(args.layout, "zones", "no zone has a diffuser grid: there is no airflow to optimise",
                                  None, "at least one aerated zone with a [zones.grid]"))

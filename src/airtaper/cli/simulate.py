@@ -81,7 +81,7 @@ def read_schedule(path: str, layout) -> np.ndarray:
 
 
 def run(args) -> int:
-    from airtaper.layout import load_layout
+    from airtaper.layout import layout_input_files, load_layout
     from airtaper.simulate import periodic
     from airtaper.simulate.summary import summarize
 
@@ -89,7 +89,7 @@ def run(args) -> int:
     layout = load_layout(args.layout, warnings=warnings)
     for w in warnings:
         print(str(w), file=sys.stderr)
-    inputs = [args.layout] + ([args.schedule] if args.schedule else [])
+    inputs = layout_input_files(args.layout, layout) + ([args.schedule] if args.schedule else [])
     guard_inputs(args.out, inputs, OUTPUT_NAMES)
     if args.max_days < 1:
         raise InputError(Problem("<command line>", "--max-days", "must be at least 1", got=args.max_days))

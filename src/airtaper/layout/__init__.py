@@ -6,9 +6,23 @@ problem at once as one :class:`~airtaper.errors.InputError`;
 :func:`layout_to_data` writes a Layout back as a dict in the file's own keys.
 """
 
+import os
+
 from airtaper.layout.dump import layout_to_data
+from airtaper.layout.influent import influent_csv_path
 from airtaper.layout.parse import load_layout, parse_layout, parse_toml_text
 from airtaper.layout.reader import LayoutWarning
 from airtaper.layout.types import Layout
 
-__all__ = ["Layout", "LayoutWarning", "load_layout", "parse_layout", "parse_toml_text", "layout_to_data"]
+
+
+def layout_input_files(layout_path: str | os.PathLike, layout: Layout) -> list[str]:
+    """The files a loaded layout was read from: the layout file and its influent CSV, if any."""
+    files = [str(layout_path)]
+    if layout.influent.source != "constant":
+        files.append(influent_csv_path(layout_path, layout.influent.source))
+    return files
+
+
+__all__ = ["Layout", "LayoutWarning", "layout_input_files", "load_layout", "parse_layout", "parse_toml_text",
+           "layout_to_data"]

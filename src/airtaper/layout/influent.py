@@ -268,6 +268,13 @@ def csv_display_path(file_label: str, base_dir: str | None, csv_name: str) -> st
     return os.path.join(folder, csv_name) if folder else csv_name
 
 
+def influent_csv_path(layout_path: str | os.PathLike, csv_name: str) -> str:
+    """Where the loader reads a layout's influent CSV from: the layout's own folder."""
+    if os.path.isabs(csv_name):
+        return csv_name
+    return os.path.join(os.path.dirname(os.path.abspath(layout_path)), csv_name)
+
+
 def _from_csv(col: Collector, csv_name: str, n: int, base_dir: str | None, frac):
     shown = csv_display_path(col.file, base_dir, csv_name)
     if base_dir is None:
