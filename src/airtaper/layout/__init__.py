@@ -15,7 +15,6 @@ from airtaper.layout.reader import LayoutWarning
 from airtaper.layout.types import Layout
 
 
-
 def layout_input_files(layout_path: str | os.PathLike, layout: Layout) -> list[str]:
     """The files a loaded layout was read from: the layout file and its influent CSV, if any."""
     files = [str(layout_path)]
