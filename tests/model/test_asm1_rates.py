@@ -49,5 +49,12 @@ def test_rates_accept_floats_and_stay_finite_without_biomass():
     assert rates[6] == 0.0 and rates[7] == 0.0
 
 
+#: Henze et al. (1987), Table 6.1: the processes in the order of its rows (and of _by_hand)
+HENZE_ORDER = ("aerobic_growth_heterotrophs", "anoxic_growth_heterotrophs", "aerobic_growth_autotrophs",
+               "decay_heterotrophs", "decay_autotrophs", "ammonification", "hydrolysis_organics",
+               "hydrolysis_organic_n")
+
+
 def test_rate_order_is_the_petersen_row_order():
     assert RATE_ORDER == PROCESSES
+    assert RATE_ORDER == HENZE_ORDER

@@ -30,19 +30,10 @@ Activated Sludge Model No. 1. IAWPRC Scientific and Technical Report No. 1, Tabl
 from __future__ import annotations
 
 from airtaper.process.asm1 import ASM1Parameters
+from airtaper.process.stoichiometry import PROCESSES
 
-#: Process names in the order of the rows of the Petersen matrix
-#: (:data:`airtaper.process.stoichiometry.PROCESSES`).
-RATE_ORDER: tuple[str, ...] = (
-    "aerobic_growth_heterotrophs",
-    "anoxic_growth_heterotrophs",
-    "aerobic_growth_autotrophs",
-    "decay_heterotrophs",
-    "decay_autotrophs",
-    "ammonification",
-    "hydrolysis_organics",
-    "hydrolysis_organic_n",
-)
+#: Process names in the order of the returned rates: the rows of the Petersen matrix.
+RATE_ORDER: tuple[str, ...] = PROCESSES
 
 
 def asm1_process_rates(c, p: ASM1Parameters) -> tuple:

@@ -53,14 +53,11 @@ import pyomo.environ as pyo
 from airtaper import units
 from airtaper.errors import ModelError
 from airtaper.layout.types import ASM1_COMPONENTS, Layout
-from airtaper.model.asm1_rates import RATE_ORDER, asm1_process_rates
+from airtaper.model.asm1_rates import asm1_process_rates
 from airtaper.model.clarifier import attach_ideal_separator, attach_layered_settler
 from airtaper.model.data import FixedAeration, GridAeration, TrainData, mean_load, single_period, train_data
 from airtaper.physics.transfer import field_kla_per_h
 from airtaper.process.stoichiometry import PARTICULATES, PROCESSES, SOLIDS_COD, n_composition
-
-if RATE_ORDER != PROCESSES:  # pragma: no cover - guards the row order of the Petersen matrix
-    raise ModelError("asm1_rates.RATE_ORDER differs from the Petersen matrix's process order")
 
 #: Airflow added inside the SOTE curve only (not to the air supplied), Sm3/h, so that a
 #: zone with zero airflow has zero kLa with finite derivatives. Common practice (no source).
