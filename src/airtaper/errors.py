@@ -62,3 +62,18 @@ class ModelError(AirtaperError):
 
 class SolverError(AirtaperError):
     """A solver could not be run at all (missing binary, bad option)."""
+
+
+class NoSteadyStateError(AirtaperError):
+    """The plant as laid out has no steady state to start a study from, said in plain words.
+
+    ``cause``: ``"washout"`` (the sludge age is below the nitrifiers' minimum: a property
+    of the layout, exit :data:`EXIT_INPUT`) or ``"no steady state"`` (the plant's own
+    equations still change after a long simulated time, for example a clarifier that
+    loses its sludge: the plant cannot run as laid out, exit :data:`EXIT_INFEASIBLE`).
+    """
+
+    def __init__(self, message: str, cause: str = "no steady state"):
+        super().__init__(message)
+        self.cause = cause
+        self.exit_code = EXIT_INPUT if cause == "washout" else EXIT_INFEASIBLE

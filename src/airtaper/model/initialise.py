@@ -193,23 +193,77 @@ def _lower_bounds(system) -> np.ndarray:
     return np.array([-np.inf if v.lb is None else float(v.lb) for v in system.variables])
 
 
-def initialise_steady(m, *, sequential: bool = True, max_ptc_steps: int = 200, tol: float = 1e-10) -> InitReport:
+#: Pseudo-time step control of step 2: the largest relative change of a state a step may make
+#: (a step changing more is rejected and retried shorter), and the change the next step aims at.
+_MAX_CHANGE = 0.5
+_TARGET_CHANGE = 0.15
+#: Pseudo time (d) the continuation may spend before it gives up: about 30 times the slowest
+#: mode of a nitrifying plant (the nitrifiers, ~100 d). Common practice (no source).
+MAX_PSEUDO_TIME_d = 3000.0
+#: Scaled residual below which the continuation hands over to Newton.
+_HANDOVER = 1e-6
+
+
+def _newton(system, x, scale, lb, tol, max_iter=30):
+    """Newton with backtracking on the scaled max-norm residual; returns (x, residual, iterations)."""
+    f = system.residual(x)
+    res = float(np.max(np.abs(f * scale)))
+    for it in range(1, max_iter + 1):
+        if res < tol:
+            return x, res, it - 1
+        try:
+            dx = _solve_linear(system.jacobian(x), -f)
+        except np.linalg.LinAlgError:
+            return x, res, it
+        alpha = 1.0
+        while alpha > 1e-3:
+            x_try = np.maximum(x + alpha * dx, lb)
+            f_try = system.residual(x_try)
+            r_try = float(np.max(np.abs(f_try * scale))) if np.all(np.isfinite(f_try)) else np.inf
+            if r_try < (1 - 1e-4 * alpha) * res:
+                break
+            alpha *= 0.5
+        else:
+            return x, res, it  # no descent: Newton has stalled here
+        x, f, res = x_try, f_try, r_try
+    return x, res, max_iter
+
+
+def initialise_steady(m, *, sequential: bool = True, max_ptc_steps: int = 2000, tol: float = 1e-10) -> InitReport:
     """Initialise a steady model from scratch (see the module notes); values are left in ``m``.
 
     Parameters
     ----------
     m : model from :func:`airtaper.model.train.build_steady_model`
     sequential : bool
-        Run the sequential pass first (False: start from the model's current values).
+        Run the sequential pass first (False: start from the model's current values, for
+        example a steady state the simulator found).
     max_ptc_steps : int
-        Limit on pseudo-transient steps.
+        Limit on pseudo-transient steps (accepted or rejected).
     tol : float
         Newton stops when every scaled residual is below ``tol``.
+
+    Notes
+    -----
+    The pseudo-transient steps are linearly implicit Euler steps in pseudo time
+    ``(M / dtau - J) dx = f`` on the balances (``M``: 1 where a row is the time
+    derivative of its column). Their length is controlled by what they change,
+    as an integrator controls its step: a step that changes some state by more
+    than :data:`_MAX_CHANGE` of its size is rejected and retried shorter, and
+    the next ``dtau`` aims at :data:`_TARGET_CHANGE`. Near the steady state the
+    changes are small, so ``dtau`` grows and the steps become Newton steps;
+    where the equations have a near-kink (the minimum of two settling fluxes
+    under a sludge blanket) the steps stay short enough to follow the plant's
+    own dynamics instead of oscillating. When the residual is small Newton
+    finishes; if Newton stalls, the continuation goes on from where it was.
+    Pseudo time only moves forward, so the iteration cannot stall: it ends at a
+    steady state or after :data:`MAX_PSEUDO_TIME_d` of pseudo time.
 
     Raises
     ------
     ModelError
-        If the model is not square or the iterations do not converge.
+        If the model is not square or no steady state was found (plain words: the
+        residual left and the pseudo time spent).
     """
     if not m.steady:
         raise ModelError("initialise_steady needs a steady model (build_steady_model)")
@@ -227,53 +281,59 @@ def initialise_steady(m, *, sequential: bool = True, max_ptc_steps: int = 200, t
     scale = _row_scale(system, x)
     mass = np.zeros((n_rows, n_cols))
     mass[rows, cols] = 1.0
+    with np.errstate(all="ignore"):
+        x, res, steps, newton, tau = _continue_and_polish(system, x, scale, lb, mass, cols, tol, max_ptc_steps)
+    converged = res < tol
+    system.store(x)
+    report = InitReport(converged, steps, newton, res, time.perf_counter() - t0)
+    if not converged:
+        raise ModelError(
+            f"the train model's steady state was not found: scaled residual {res:.3g} after {tau:.0f} d of "
+            f"pseudo time ({steps} steps, {newton} Newton iterations)")
+    return report
+
+
+def _continue_and_polish(system, x, scale, lb, mass, cols, tol, max_steps):
+    """Steps 2 and 3 (see :func:`initialise_steady`); returns (x, residual, steps, Newton iterations, tau)."""
     dtau = 1e-3  # d
-    steps = 0
-    for steps in range(1, max_ptc_steps + 1):
-        f = system.residual(x)
-        jac = system.jacobian(x)
+    tau = 0.0
+    steps = newton = 0
+    f = system.residual(x)
+    res = float(np.max(np.abs(f * scale))) if np.all(np.isfinite(f)) else np.inf
+    next_try = _HANDOVER
+    floor = np.maximum(np.abs(x[cols]), 1.0)  # change measure of the states: relative, 1 g/m3 floor
+    while steps < max_steps and tau < MAX_PSEUDO_TIME_d:
+        if res < next_try:
+            x_n, res_n, k = _newton(system, x, scale, lb, tol)
+            newton += k
+            if res_n < tol:
+                return x_n, res_n, steps, newton, tau
+            next_try = max(0.01 * min(res, next_try), 10 * tol)  # go on in pseudo time first
+            if res_n < res:
+                x, res = x_n, res_n
+                f = system.residual(x)
+        steps += 1
         try:
-            dx = _solve_linear(mass / dtau - jac, f)
+            dx = _solve_linear(mass / dtau - system.jacobian(x), f)
         except np.linalg.LinAlgError:
             dtau *= 0.25
             continue
         x_new = np.maximum(x + dx, lb)
         f_new = system.residual(x_new)
-        if not np.all(np.isfinite(f_new)):
-            dtau *= 0.25
+        floor = np.maximum(np.abs(x[cols]), 1.0)
+        change = float(np.max(np.abs(x_new[cols] - x[cols]) / floor)) if cols.size else 0.0
+        if not np.all(np.isfinite(f_new)) or change > _MAX_CHANGE:
+            dtau *= 0.5 * (_MAX_CHANGE / change if np.isfinite(change) and change > 0 else 0.5)
             continue
-        x = x_new
-        if np.max(np.abs(f_new * scale)) < 1e-6 or dtau > 1e5:
-            break
-        dtau *= 2.0
-    newton = 0
-    converged = False
-    for newton in range(1, 31):
-        f = system.residual(x)
+        x, f = x_new, f_new
+        tau += dtau
         res = float(np.max(np.abs(f * scale)))
-        if res < tol:
-            converged = True
-            break
-        jac = system.jacobian(x)
-        try:
-            dx = _solve_linear(jac, -f)
-        except np.linalg.LinAlgError as exc:
-            raise ModelError(f"initialise_steady: singular Jacobian ({exc})") from exc
-        alpha = 1.0
-        for _ in range(30):
-            x_try = np.maximum(x + alpha * dx, lb)
-            f_try = system.residual(x_try)
-            if np.all(np.isfinite(f_try)) and np.max(np.abs(f_try * scale)) < (1 - 1e-4 * alpha) * res:
-                break
-            alpha *= 0.5
-        x = x_try
-    res = float(np.max(np.abs(system.residual(x) * scale)))
-    converged = converged or res < tol
-    system.store(x)
-    report = InitReport(converged, steps, newton, res, time.perf_counter() - t0)
-    if not converged:
-        raise ModelError(f"initialise_steady did not converge (scaled residual {res:.3g}); {report}")
-    return report
+        dtau = min(dtau * float(np.clip(_TARGET_CHANGE / max(change, 1e-12), 0.2, 2.0)), 1e6)
+    x_n, res_n, k = _newton(system, x, scale, lb, tol)
+    newton += k
+    if res_n < res:
+        x, res = x_n, res_n
+    return x, res, steps, newton, tau
 
 
 def copy_steady_to_cyclic(steady, cyclic) -> None:

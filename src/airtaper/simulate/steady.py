@@ -1,47 +1,70 @@
-"""Steady state of the simulator's equations by a Newton-type root solve.
+"""Steady state of the simulator's equations: a root solve that cannot stall.
 
-The root of ``f(y) = 0`` is found by pseudo-transient continuation (Kelley &
-Keyes 1998): damped Newton steps ``(I/dt - J) dy = f(y)`` with the sparse
-Jacobian of :class:`~airtaper.simulate.system.System`, the pseudo time step
-``dt`` growing as the residual falls (switched evolution relaxation, ``dt_k+1
-= dt_k ||f_k-1|| / ||f_k||``), so the iteration ends with plain Newton steps
-(``dt`` -> infinity) and quadratic convergence. Once ``dt`` is long the steps
-are line-searched on the residual norm (backtracking, see :func:`solve_steady`),
-which keeps the Newton phase from cycling at kinks of ``f`` (clamped DO
-control). Iterates are kept non-negative (concentrations). This is a root
-solve, not a long simulation: BSM1 with its layered settler converges in
-about 150 linear solves, the demo in a few dozen.
+Two methods, the second a fallback that always makes progress:
+
+1. **Pseudo-transient Newton** (Kelley & Keyes 1998): damped Newton steps
+   ``(I/dt - J) dy = f(y)`` with the sparse Jacobian of
+   :class:`~airtaper.simulate.system.System`, the pseudo time step ``dt`` growing
+   as the residual falls (switched evolution relaxation), so the iteration ends
+   with plain Newton steps and quadratic convergence. Steps at long ``dt`` are
+   line-searched on the residual (Nocedal & Wright 2006 section 3.1), which keeps
+   the Newton phase from cycling at kinks of ``f`` (a DO controller clamped at an
+   end of its airflow range). Iterates are kept non-negative. This is the fast
+   path: a few dozen linear solves on most plants.
+2. **Time integration, then Newton again.** Pseudo-transient steps are implicit
+   Euler steps whose length is chosen from the residual, not from an error
+   estimate; near a kink of ``f`` (the minimum of two settling fluxes on a
+   thickening plateau, where the linear model holds within a few mg/L) the
+   residual test rejects long steps and ``dt`` can collapse, so the iteration
+   sits still while the slow modes (nitrifiers: about 100 d) have not settled.
+   When Newton stalls (``dt`` collapsed, or the best residual no better by a
+   factor 10 over :data:`_STALL_STEPS` steps) the plant's own equations are
+   integrated in time with a stiff error-controlled solver (``solve_ivp`` BDF
+   with the sparse Jacobian) until the scaled rate of change is small, and Newton
+   restarts from there. Every leg advances simulated time, so the sequence cannot
+   stall: either the plant settles (a stable steady state is an attractor of its
+   dynamics) and Newton finishes, or simulated time runs out
+   (:data:`MAX_SIMULATED_d`) and :class:`NoSteadyStateError` says why.
+
+Before anything is solved, :func:`check_washout` refuses a plant whose sludge
+age is below the nitrifiers' minimum at its temperature: no nitrifying steady
+state exists there, whatever the aeration.
 
 References
 ----------
 Kelley, C.T., Keyes, D.E. (1998). Convergence analysis of pseudo-transient
 continuation. SIAM J. Numer. Anal. 35(2), 508-523.
 Nocedal, J., Wright, S.J. (2006). Numerical Optimization, 2nd ed. Springer.
+Shampine, L.F., Reichelt, M.W. (1997). The MATLAB ODE suite. SIAM J. Sci. Comput.
+18(1), 1-22 (the variable-order BDF method scipy's ``BDF`` implements).
 """
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
+from scipy.integrate import solve_ivp
 
-from airtaper.errors import AirtaperError
+from airtaper.errors import NoSteadyStateError
 from airtaper.process.stoichiometry import IDX
 from airtaper.simulate.plant import MODE_DO, Inputs
 from airtaper.simulate.system import NC, System
 
-
-class SteadyStateError(AirtaperError):
-    """The steady-state iteration did not converge."""
+#: Kept for callers that caught the old name: a steady state the solve could not reach.
+SteadyStateError = NoSteadyStateError
 
 
 @dataclass
 class SteadySolve:
     y: np.ndarray
-    iterations: int
+    iterations: int  # linear solves of the Newton phases
     residual: float  # max |f_i| / max(|y_i|, 1), per day
+    simulated_d: float = 0.0  # simulated time of the fallback (0: Newton alone)
+    legs: int = 0  # time-integration legs of the fallback
 
 
 def initial_guess(system: System, inp: Inputs) -> np.ndarray:
@@ -85,6 +108,59 @@ def initial_guess(system: System, inp: Inputs) -> np.ndarray:
     return Y.reshape(-1)
 
 
+# --- washout: no nitrifying steady state -----------------------------------------------
+def aerable_fraction(system: System) -> float:
+    """Share of the reactor volume in zones that can be aerated (diffusers or a fixed kLa)."""
+    can = np.array([z.aerated and (z.grid is not None or z.fixed_kla_per_d is not None)
+                    for z in system.plant.layout.zones])
+    return float(system.V[can].sum() / system.V.sum())
+
+
+def minimum_srt_d(params, aerated_fraction: float) -> float:
+    """Sludge age below which nitrifiers wash out at any aeration, d.
+
+    Nitrifiers grow only in aerated zones, at most at ``mu_A`` (ammonia and
+    oxygen saturating), and decay everywhere at ``b_A`` (ASM1, Henze et al.
+    1987). A steady population needs growth to balance decay and wasting::
+
+        mu_A f_aer SRT >= 1 + b_A SRT   ->   SRT_min = 1 / (mu_A f_aer - b_A)
+
+    with ``f_aer`` the aerable share of the volume (solids evenly spread over
+    the zones; common practice (no source)). Infinite when ``mu_A f_aer <= b_A``.
+
+    References
+    ----------
+    Henze, M., Grady, C.P.L., Gujer, W., Marais, G.v.R., Matsuo, T. (1987).
+    Activated Sludge Model No. 1. IAWPRC Scientific and Technical Report No. 1.
+    """
+    net = params.mu_A * aerated_fraction - params.b_A
+    return float(1.0 / net) if net > 0.0 else float("inf")
+
+
+def check_washout(system: System, inp: Inputs, srt_d: float | None = None) -> None:
+    """Raise :class:`NoSteadyStateError` when the sludge age cannot keep nitrifiers.
+
+    ``srt_d``: the sludge age to check (default: the layout's target; nothing is
+    checked without one).
+    """
+    srt = inp.srt_target_d if srt_d is None else srt_d
+    if srt is None or not np.isfinite(srt):
+        return
+    f_aer = aerable_fraction(system)
+    srt_min = minimum_srt_d(inp.params, f_aer)
+    if srt < srt_min:
+        lay = system.plant.layout
+        what = "the target sludge age" if srt_d is None else "the sludge age the waste flow gives"
+        limit = f"{srt_min:.3g} d" if np.isfinite(srt_min) else "any value"
+        raise NoSteadyStateError(
+            f"{lay.path}: wasting: no steady state with nitrification: {what} ({srt:.3g} d) is below the "
+            f"nitrifiers' minimum sludge age at {inp.temperature_C:.3g} C ({limit}: mu_A {inp.params.mu_A:.3g} /d, "
+            f"b_A {inp.params.b_A:.3g} /d, {100 * f_aer:.0f} % of the volume aerable); they wash out at any "
+            "aeration (lengthen the sludge age, waste less, or aerate more of the volume)",
+            cause="washout")
+
+
+# --- method 1: pseudo-transient Newton ---------------------------------------------------
 def _scaled_norm(f, y):
     return float(np.max(np.abs(f) / np.maximum(np.abs(y), 1.0)))
 
@@ -94,6 +170,10 @@ def _scaled_norm(f, y):
 _DT_SEARCH_d = 1.0
 #: Shortest step fraction the line search tries.
 _MIN_LAMBDA = 1.0 / 16.0
+#: Newton has stalled when its best residual fell less than 10 x over this many steps ...
+_STALL_STEPS = 30
+#: ... or when the pseudo time step collapsed below this, d.
+_DT_COLLAPSED_d = 1e-3
 
 
 def _merit(f, w) -> float:
@@ -118,42 +198,22 @@ def _backtrack(system, inp, y, f, dy, y_full, f_full):
         f_new = system.rhs(y_new, inp)
 
 
-def solve_steady(system: System, inp: Inputs, y0=None, tol: float = 1e-10, max_iter: int = 200,
-                 dt0_d: float = 0.05) -> SteadySolve:
-    """Root of the right-hand side (see module notes).
+def _newton(system, inp, y, tol, max_iter, dt0_d):
+    """Pseudo-transient Newton from ``y``; returns (best y, its residual, linear solves, converged).
 
-    Parameters
-    ----------
-    tol : float
-        Convergence when ``max_i |f_i| / max(|y_i|, 1)`` is below ``tol`` (1/d).
-    max_iter : int
-        Most pseudo-time steps (accepted or rejected), each one linear solve.
-
-    Notes
-    -----
-    Once ``dt`` reaches ``_DT_SEARCH_d`` every step is globalised by
-    backtracking on the residual: ``y + lambda dy`` with the first ``lambda``
-    of 1, 1/2, ... 1/16 whose weighted residual ``||f / max(|y_k|, 1)||_2``
-    falls (Armijo condition, Nocedal & Wright 2006 section 3.1), the full step
-    if none does; ``dt`` grows by switched evolution relaxation only after full
-    steps. Without the line search, plain steps at large ``dt`` can cycle
-    between the two branches of a DO controller clamped at its smallest kLa
-    (a kink of ``f``) while ``dt`` keeps growing, as on the demo train split
-    into 10 or 20 aerated zones. Short pseudo time steps are not searched:
-    there the iteration follows the transient, whose residual may rise.
-
-    References
-    ----------
-    Nocedal, J., Wright, S.J. (2006). Numerical Optimization, 2nd ed. Springer.
+    Stops early when it stalls (see :data:`_STALL_STEPS`, :data:`_DT_COLLAPSED_d`).
     """
-    y = initial_guess(system, inp) if y0 is None else np.maximum(np.asarray(y0, dtype=float), 0.0)
     f = system.rhs(y, inp)
     res = _scaled_norm(f, y)
+    best = (y, res)
+    best_at = 0
     dt = dt0_d
     eye = sp.identity(system.n, format="csc")
-    for it in range(1, max_iter + 1):
+    it = 0
+    while it < max_iter:
         if res < tol:
-            return SteadySolve(y, it - 1, res)
+            return y, res, it, True
+        it += 1
         J = system.jacobian(y, inp, f0=f)
         A = (eye / dt - J).tocsc() if np.isfinite(dt) else (-J).tocsc()
         try:
@@ -161,7 +221,9 @@ def solve_steady(system: System, inp: Inputs, y0=None, tol: float = 1e-10, max_i
         except RuntimeError:
             dy = np.full_like(y, np.nan)
         if not np.all(np.isfinite(dy)):
-            dt = dt * 0.1
+            dt *= 0.1
+            if dt < _DT_COLLAPSED_d:
+                break
             continue
         y_new = np.maximum(y + dy, 0.0)
         f_new = system.rhs(y_new, inp)
@@ -171,12 +233,100 @@ def solve_steady(system: System, inp: Inputs, y0=None, tol: float = 1e-10, max_i
         res_new = _scaled_norm(f_new, y_new)
         if not np.isfinite(res_new) or res_new > 10.0 * res:
             dt *= 0.25
-            if dt < 1e-8:
+            if dt < _DT_COLLAPSED_d:
                 break
             continue
         if lam == 1.0:
             dt = min(dt * max(min(res / max(res_new, 1e-300), 10.0), 0.5), 1e12)
         y, f, res = y_new, f_new, res_new
-    if res < tol * 100:
-        return SteadySolve(y, max_iter, res)
-    raise SteadyStateError(f"steady state not reached: scaled residual {res:.3g} /d after {it} steps")
+        if res < 0.1 * best[1]:
+            best_at = it
+        if res < best[1]:
+            best = (y, res)
+        if it - best_at > _STALL_STEPS or dt < _DT_COLLAPSED_d:
+            break
+    return best[0], best[1], it, best[1] < tol
+
+
+# --- method 2: time integration toward the steady state ---------------------------------
+#: Total simulated time the fallback may spend before it declares no steady state, d
+#: (about 30 times the slowest settling mode of a nitrifying plant, the nitrifiers' ~100 d).
+MAX_SIMULATED_d = 3000.0
+#: First leg of simulated time, d; each further leg is twice as long.
+_FIRST_LEG_d = 100.0
+
+
+def _integrate(system, inp, y, horizon_d, target):
+    """Integrate the plant's equations from ``y`` for ``horizon_d`` or until the scaled rate of change
+    falls below ``target``; returns (y, simulated time, success)."""
+    def fun(t, yy):
+        return system.rhs(np.maximum(yy, 0.0), inp)
+
+    def jac(t, yy):
+        return system.jacobian(np.maximum(yy, 0.0), inp)
+
+    def settled(t, yy):
+        yy = np.maximum(yy, 0.0)
+        return np.log(max(_scaled_norm(system.rhs(yy, inp), yy), 1e-300)) - np.log(target)
+
+    settled.terminal = True
+    settled.direction = -1
+    scale = np.maximum(np.abs(y), 1.0)
+    sol = solve_ivp(fun, (0.0, horizon_d), y, method="BDF", jac=jac, rtol=1e-6, atol=1e-6 * scale,
+                    events=settled, first_step=1e-4)
+    y_end = np.maximum(sol.y[:, -1], 0.0)
+    return y_end, float(sol.t[-1]), sol.status >= 0
+
+
+def solve_steady(system: System, inp: Inputs, y0=None, tol: float = 1e-10, max_iter: int = 200,
+                 dt0_d: float = 0.05, check: bool = True) -> SteadySolve:
+    """Root of the right-hand side (see module notes).
+
+    Parameters
+    ----------
+    tol : float
+        Convergence when ``max_i |f_i| / max(|y_i|, 1)`` is below ``tol`` (1/d).
+    max_iter : int
+        Most pseudo-time steps of each Newton phase (accepted or rejected), each one linear solve.
+    check : bool
+        Refuse a sludge age below the nitrifiers' minimum first (:func:`check_washout`).
+
+    Raises
+    ------
+    NoSteadyStateError
+        The nitrifiers wash out, or the plant still changes after :data:`MAX_SIMULATED_d`
+        of simulated time (the message names the largest rate of change and where).
+    """
+    if check:
+        check_washout(system, inp)
+    y = initial_guess(system, inp) if y0 is None else np.maximum(np.asarray(y0, dtype=float), 0.0)
+    y, res, iters, ok = _newton(system, inp, y, tol, max_iter, dt0_d)
+    simulated, legs, leg = 0.0, 0, _FIRST_LEG_d
+    target = 1e-5
+    while not ok and simulated < MAX_SIMULATED_d:
+        legs += 1
+        y, t, _ = _integrate(system, inp, y, min(leg, MAX_SIMULATED_d - simulated), target)
+        simulated += t
+        y, res, k, ok = _newton(system, inp, y, tol, max_iter, 1.0)
+        iters += k
+        leg *= 2.0
+        target = max(target * 0.01, 1e-9)
+    if not ok and res < 100 * tol:
+        ok = True
+    if not ok:
+        raise NoSteadyStateError(_no_steady_message(system, inp, y, res, simulated), cause="no steady state")
+    return SteadySolve(y, iters, res, simulated, legs)
+
+
+def _no_steady_message(system, inp, y, res, simulated) -> str:
+    """Plain words on why no steady state was found: where the plant still changes."""
+    from airtaper.layout.types import ASM1_COMPONENTS
+
+    f = system.rhs(y, inp)
+    rate = np.abs(f) / np.maximum(np.abs(y), 1.0)
+    k = int(np.argmax(rate))
+    b, c = divmod(k, NC)
+    lay = system.plant.layout
+    where = lay.zones[b].id if b < system.nz else f"clarifier layer {b - system.nz + 1}"
+    return (f"{lay.path}: no steady state found: after {simulated:.0f} d of simulated time the plant still "
+            f"changes (scaled rate {res:.3g} /d, largest in {ASM1_COMPONENTS[c]} of {where})")
