@@ -99,6 +99,9 @@ def run(args) -> int:
     schedule = read_schedule(args.schedule, layout) if args.schedule else None
     result = periodic(layout, schedule=schedule, do_setpoint_mg_L=args.do_setpoint,
                       max_days=args.max_days, tol=args.tol)
+    clarifier = result.start.clarifier if result.start is not None else None
+    if clarifier is not None and clarifier["overloaded"]:
+        print(f"warning: {args.layout}: clarifier: {clarifier['message']}", file=sys.stderr)
     summary = summarize(result)
     out = Path(args.out)
     write_csv_atomic(out / "timeseries.csv", result.timeseries)

@@ -58,6 +58,7 @@ from __future__ import annotations
 
 import pyomo.environ as pyo
 
+from airtaper.physics import settling as settling_physics
 from airtaper.physics.backend import smooth_max
 from airtaper.process.stoichiometry import PARTICULATES, SOLIDS_COD
 
@@ -82,6 +83,9 @@ def smooth_step(x, width):
 def takacs_velocity_m_d(tss_g_m3, tss_min_g_m3, settling):
     """Double-exponential settling velocity (Takacs et al. 1991), m/d, smoothly clamped to [0, v0'].
 
+    :func:`airtaper.physics.settling.takacs_velocity_m_d` with the model's smoothing
+    :data:`SMOOTH_VELOCITY_m_d`.
+
     Parameters
     ----------
     tss_g_m3 : Pyomo expression
@@ -91,10 +95,8 @@ def takacs_velocity_m_d(tss_g_m3, tss_min_g_m3, settling):
     settling : airtaper.layout.types.Settling
         v0', v0 (m/d), rh, rp (m3/g).
     """
-    x = tss_g_m3 - tss_min_g_m3
-    v = settling.v0_m_d * (pyo.exp(-settling.rh_m3_g * x) - pyo.exp(-settling.rp_m3_g * x))
-    v = smooth_max(v, 0.0, SMOOTH_VELOCITY_m_d)
-    return smooth_min(v, settling.v0_max_m_d, SMOOTH_VELOCITY_m_d)
+    return settling_physics.takacs_velocity_m_d(tss_g_m3, tss_min_g_m3, settling.v0_max_m_d, settling.v0_m_d,
+                                                settling.rh_m3_g, settling.rp_m3_g, SMOOTH_VELOCITY_m_d)
 
 
 # --- shared by both clarifier kinds --------------------------------------------------

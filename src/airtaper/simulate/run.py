@@ -127,7 +127,10 @@ class SteadyResult:
     ``zones``: one row per zone (13 components, airflow_Sm3_h, kla_per_h, otr_kg_h,
     tss_mg_L); ``effluent`` and ``underflow``: component dicts plus TSS, COD,
     TKN, TN; ``layers``: clarifier layers from the top (layered only);
-    ``balance``: external COD/N flows (g/d, see :meth:`System.balance`).
+    ``balance``: external COD/N flows (g/d, see :meth:`System.balance`); ``clarifier``:
+    the layered clarifier checked physically (:meth:`System.clarifier_profile`: solids per
+    layer, blanket, underflow, limiting flux, ``overloaded`` and its ``message``), None for
+    an ideal separator.
     """
 
     y: np.ndarray
@@ -142,6 +145,7 @@ class SteadyResult:
     iterations: int
     residual: float
     seconds: float
+    clarifier: dict | None = None
 
 
 def _stream(c, params, tss_per_cod) -> dict[str, float]:
@@ -172,7 +176,7 @@ def _steady_result(system: System, inp: Inputs, solve, seconds: float) -> Steady
         underflow=_stream(info["c_underflow"], inp.params, system.tss_per_cod),
         layers=layers, q_waste_m3_d=float(info["q_waste_m3_d"]), q_effluent_m3_d=float(info["q_effluent_m3_d"]),
         srt_d=float(info["srt_d"]), balance=system.balance(y, inp, info), iterations=solve.iterations,
-        residual=solve.residual, seconds=seconds,
+        residual=solve.residual, seconds=seconds, clarifier=system.clarifier_profile(y, inp),
     )
 
 

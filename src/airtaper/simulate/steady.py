@@ -315,6 +315,8 @@ def solve_steady(system: System, inp: Inputs, y0=None, tol: float = 1e-10, max_i
         ok = True
     if not ok:
         raise NoSteadyStateError(_no_steady_message(system, inp, y, res, simulated), cause="no steady state")
+    if check and inp.srt_target_d is None:  # a fixed waste flow: check the sludge age it gives
+        check_washout(system, inp, float(system.rhs(y, inp, detail=True)[1]["srt_d"]))
     return SteadySolve(y, iters, res, simulated, legs)
 
 

@@ -55,6 +55,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from airtaper.layout.types import ASM1_COMPONENTS
+from airtaper.physics.settling import limiting_solids_flux_g_m2_d, takacs_velocity_m_d
 from airtaper.process.stoichiometry import (
     IDX, PARTICULATES, SOLIDS_COD, cod_composition, cod_of_n2, n2_yield, n_composition,
 )
@@ -149,8 +150,7 @@ class System:
         if self.layered:
             A, f, L = self.area, self.feed, self.n_layers
             vup, vdn = qe / A, qu / A
-            d = X - self.fns * xf
-            vs = np.clip(self.v0 * (np.exp(-self.rh * d) - np.exp(-self.rp * d)), 0.0, self.v0max)
+            vs = takacs_velocity_m_d(X, self.fns * xf, self.v0max, self.v0, self.rh, self.rp)
             js = vs * X
             a, b = js[:-1], js[1:]
             jmin = 0.5 * (a + b - np.sqrt((a - b) ** 2 + _FLUX_SMOOTHING ** 2))
@@ -213,6 +213,66 @@ class System:
                     q_waste_m3_d=sq(qw), q_effluent_m3_d=sq(qe), q_underflow_m3_d=sq(qu), srt_d=sq(srt),
                     process_rates=sq(rho))
         return out, info
+
+    # --- clarifier --------------------------------------------------------------
+    def clarifier_profile(self, y, inp: Inputs) -> dict | None:
+        """The layered clarifier at state ``y`` checked physically (None for an ideal separator).
+
+        Per layer from the top: ``tss_g_m3``, ``solids_kg`` (inventory); ``blanket_layer``: the
+        highest layer (1 = top) at or above the threshold concentration ``X_t`` whose layers below
+        are all at or above it too (0: no blanket), ``blanket_height_m`` above the floor;
+        ``underflow_tss_g_m3``; the solids loading ``applied_flux_g_m2_d = Q_f X_f / A`` against the
+        limiting flux of the thickening zone at the underflow velocity
+        (:func:`~airtaper.physics.settling.limiting_solids_flux_g_m2_d`), ``flux_ratio``;
+        ``overflow_rate_m_d = Q_e / A`` against ``feed_velocity_m_d``, the settling velocity of the
+        feed; ``overloaded``: True when the applied flux exceeds the limit or the overflow rate
+        exceeds the feed's settling velocity (solids carried over the weir), or the blanket reaches
+        the feed layer (in a steady state the solids an overloaded thickening zone cannot pass pile
+        up until they do), with ``message`` in plain words.
+        """
+        if not self.layered:
+            return None
+        _, info = self.rhs(y, inp, detail=True)
+        B = self.blocks(y)
+        X = self.tss(B[self.nz:].T)
+        xf = float(self.tss(B[self.nz - 1]))
+        qf = float(inp.q_forward[-1])
+        qu, qe = float(info["q_underflow_m3_d"]), float(info["q_effluent_m3_d"])
+        A, L = self.area, self.n_layers
+        solids_kg = X * A * self.h / 1000.0
+        thick = X >= self.xt
+        blanket = 0
+        for j in range(L - 1, -1, -1):
+            if not thick[j]:
+                break
+            blanket = j + 1
+        g_lim, x_lim = limiting_solids_flux_g_m2_d(xf, qu / A, self.fns * xf, self.v0max, self.v0, self.rh, self.rp)
+        applied = qf * xf / A
+        v_feed = float(takacs_velocity_m_d(xf, self.fns * xf, self.v0max, self.v0, self.rh, self.rp))
+        over_flux = applied > g_lim
+        over_rate = qe / A > v_feed
+        over_blanket = 0 < blanket <= self.feed + 1
+        height = self.h * L
+        msg = ""
+        if over_flux or over_rate or over_blanket:
+            parts = []
+            if over_flux:
+                parts.append(f"solids loading {applied / 24000.0:.3g} kg/(m2 h) is above the limiting flux of its "
+                             f"thickening zone ({g_lim / 24000.0:.3g} kg/(m2 h))")
+            if over_rate:
+                parts.append(f"overflow rate {qe / A / 24.0:.3g} m/h is above the settling velocity of the feed "
+                             f"({v_feed / 24.0:.3g} m/h at {xf:.0f} g/m3)")
+            msg = ("clarifier overloaded at the mean load: " + "".join(p + "; " for p in parts)
+                   + f"the sludge blanket reaches layer {blanket or 1} of {L} from the top (fed at layer "
+                   f"{self.feed + 1}) and the effluent carries "
+                   f"{X[0]:.0f} g/m3 of solids (a larger area, a higher return ratio or a shorter sludge age would relieve it)")
+        return dict(tss_g_m3=X, solids_kg=solids_kg, solids_total_kg=float(solids_kg.sum()),
+                    blanket_layer=blanket, blanket_height_m=(L - blanket + 1) * self.h if blanket else 0.0,
+                    underflow_tss_g_m3=float(X[-1]), feed_tss_g_m3=xf,
+                    applied_flux_g_m2_d=applied, limiting_flux_g_m2_d=g_lim, limiting_tss_g_m3=x_lim,
+                    flux_ratio=applied / g_lim if g_lim > 0 else float("inf"),
+                    overflow_rate_m_d=qe / A, feed_velocity_m_d=v_feed, height_m=height,
+                    overloaded=bool(over_flux or over_rate or over_blanket), message=msg)
 
     # --- balances -------------------------------------------------------------
     def inventory_weights(self, inp: Inputs) -> tuple[np.ndarray, np.ndarray]:

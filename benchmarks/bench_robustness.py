@@ -1,0 +1,210 @@
+"""Robustness benchmark: random valid plants, each through `airtaper optimize` with a time limit.
+
+Every plant is invented for the purpose, drawn from a fixed seed: 2-12 zones, with and
+without anoxic and swing zones, step feed and internal recycle, an ideal or a layered
+clarifier, 10-25 C, 0-1,450 m elevation, loads 0.5-2 x the load the plant was sized for,
+12, 24 or 48 periods, a target SRT or a fixed waste flow. Each is written as a layout
+(influent per period, no CSV) and run as a user would: ``python -m airtaper.cli.main
+optimize LAYOUT --out DIR`` in a subprocess with a time limit.
+
+Outcome of each plant, from the exit code and the last message:
+
+* ``verified``   exit 0: the schedule was solved and verified by the simulator;
+* ``diagnosed``  exit 2 or 3 with a named reason (limits infeasible, no steady state,
+  washout): the tool says why it cannot plan this plant;
+* ``unverified`` exit 4: a schedule that broke a limit when re-simulated;
+* ``failed``     exit 1, a traceback, or the time limit.
+
+Target (issue 10): at least 98 % verified or diagnosed; no failure.
+
+Usage::
+
+    python benchmarks/bench_robustness.py [--n 50] [--first 0] [--timeout 600] [--keep DIR]
+
+``--n`` plants from the fixed seed (``--first`` skips the first ones: run a long list in
+pieces on a busy machine); ``AIRTAPER_ROBUSTNESS_SEEDS=1,2,3`` adds plants from more
+seeds (``--n`` each). The machine is shared: times are wall-clock, noisy.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[1]
+#: The fixed seed of the plant list.
+SEED = 20261202
+
+_SOTE = """sote_points = [
+  { airflow_per_diffuser_Sm3_h = 1.0, sote_percent = 26.3, density_percent = 8.0, submergence_m = 4.0 },
+  { airflow_per_diffuser_Sm3_h = 4.0, sote_percent = 22.0, density_percent = 8.0, submergence_m = 4.0 },
+  { airflow_per_diffuser_Sm3_h = 7.0, sote_percent = 20.4, density_percent = 8.0, submergence_m = 4.0 },
+  { airflow_per_diffuser_Sm3_h = 1.0, sote_percent = 37.9, density_percent = 8.0, submergence_m = 6.0 },
+  { airflow_per_diffuser_Sm3_h = 4.0, sote_percent = 31.8, density_percent = 8.0, submergence_m = 6.0 },
+  { airflow_per_diffuser_Sm3_h = 7.0, sote_percent = 29.4, density_percent = 8.0, submergence_m = 6.0 },
+  { airflow_per_diffuser_Sm3_h = 1.0, sote_percent = 31.0, density_percent = 20.0, submergence_m = 4.0 },
+  { airflow_per_diffuser_Sm3_h = 4.0, sote_percent = 26.0, density_percent = 20.0, submergence_m = 4.0 },
+  { airflow_per_diffuser_Sm3_h = 7.0, sote_percent = 24.1, density_percent = 20.0, submergence_m = 4.0 },
+  { airflow_per_diffuser_Sm3_h = 1.0, sote_percent = 44.7, density_percent = 20.0, submergence_m = 6.0 },
+  { airflow_per_diffuser_Sm3_h = 4.0, sote_percent = 37.5, density_percent = 20.0, submergence_m = 6.0 },
+  { airflow_per_diffuser_Sm3_h = 7.0, sote_percent = 34.7, density_percent = 20.0, submergence_m = 6.0 },
+]
+headloss_points = [
+  { airflow_per_diffuser_Sm3_h = 1.0, headloss_kPa = 2.9 },
+  { airflow_per_diffuser_Sm3_h = 4.0, headloss_kPa = 3.6 },
+  { airflow_per_diffuser_Sm3_h = 7.0, headloss_kPa = 4.5 },
+]
+"""
+
+
+def _per_period(values) -> str:
+    return "[" + ", ".join(f"{v:.4g}" for v in values) + "]"
+
+
+def random_plant(rng: np.random.Generator, index: int) -> tuple[str, dict]:
+    """One invented plant as layout text, and a short description of it."""
+    n = int(rng.integers(2, 13))
+    n_periods = int(rng.choice([12, 24, 48]))
+    q_design = float(rng.uniform(2000.0, 30000.0))
+    load = float(rng.uniform(0.5, 2.0))
+    hrt_h = float(rng.uniform(8.0, 14.0))
+    volume = q_design * hrt_h / 24.0
+    depth = float(rng.uniform(4.0, 6.5))
+    n_anoxic = int(max(1, round(rng.uniform(0.15, 0.35) * n))) if (n >= 3 and rng.random() < 0.6) else 0
+    swing = n - n_anoxic >= 3 and rng.random() < 0.3
+    kinds = ["anoxic"] * n_anoxic + ["aerated"] * (n - n_anoxic)
+    if swing:
+        kinds[n_anoxic] = "swing"
+    shares = rng.uniform(0.7, 1.3, n)
+    vols = volume * shares / shares.sum()
+    taper = np.linspace(1.5, 0.7, n)
+    density = float(rng.uniform(0.08, 0.2))
+    temperature = float(rng.uniform(10.0, 25.0))
+    elevation = float(rng.uniform(0.0, 1450.0))
+    layered = rng.random() < 0.5
+    lines = [f'notes = "Invented plant {index} for the robustness benchmark. Planning estimates only."', "",
+             "[plant]", f'name = "Benchmark plant {index}"', f"elevation_m = {elevation:.0f}",
+             f"water_temperature_C = {temperature:.1f}", "", "[horizon]", f"n_periods = {n_periods}",
+             "steps_per_period = 2", "", "[[diffuser_types]]", 'id = "disc"', "membrane_area_m2 = 0.040",
+             "airflow_min_Sm3_h = 1.0", "airflow_max_Sm3_h = 7.0", _SOTE]
+    grid_max = 0.0
+    for i in range(n):
+        area = vols[i] / depth
+        lines += ["[[zones]]", f'id = "Z{i + 1}"', f'kind = "{kinds[i]}"', f"volume_m3 = {vols[i]:.1f}",
+                  f"depth_m = {depth:.2f}", f"alpha = {0.45 + 0.15 * i / max(n - 1, 1):.3f}"]
+        if kinds[i] != "anoxic":
+            count = int(max(20, round(density * taper[i] * area / 0.040)))
+            count = min(count, int(0.24 * area / 0.040))
+            grid_max += 7.0 * count
+            lines.append(f'grid = {{ type = "disc", count = {count}, submergence_m = {depth - 0.3:.2f} }}')
+        lines.append("")
+    step_feed = n >= 3 and rng.random() < 0.3
+    lines.append("[flows]")
+    if step_feed:
+        second = int(rng.integers(1, max(2, n // 2 + 1)))
+        lines += ["[[flows.step_feed]]", 'zone = "Z1"', "fraction = 0.6", "[[flows.step_feed]]",
+                  f'zone = "Z{second + 1}"', "fraction = 0.4"]
+    recycle = n_anoxic > 0 and rng.random() < 0.8
+    if recycle:
+        lines += ["[[flows.recycles]]", 'id = "IR"', f'from_zone = "Z{n}"', 'to_zone = "Z1"',
+                  f"ratio = {rng.uniform(1.0, 4.0):.2f}"]
+    ras = float(rng.uniform(0.5, 1.0))
+    lines += ["[flows.return_sludge]", 'to_zone = "Z1"', f"ratio = {ras:.2f}", "[flows.waste]"]
+    srt = float(rng.uniform(8.0, 20.0))
+    if rng.random() < 0.8:
+        lines.append(f"srt_d = {srt:.1f}")
+    else:
+        lines.append(f"flow_m3_d = {volume * ras / (srt * (1.0 + ras)):.1f}")
+    lines.append("")
+    if layered:
+        sor = float(rng.uniform(0.6, 1.2))  # surface overflow rate at the design flow, m/h
+        lines += ["[clarifier]", 'kind = "layered"', f"area_m2 = {q_design / 24.0 / sor:.0f}",
+                  f"height_m = {rng.uniform(3.5, 4.5):.2f}", ""]
+    else:
+        lines += ["[clarifier]", 'kind = "ideal"', f"effluent_tss_mg_L = {rng.uniform(5.0, 15.0):.1f}", ""]
+    n_blowers = int(rng.integers(2, 4))
+    each = 1.15 * grid_max / n_blowers
+    for b in range(n_blowers):
+        lines += ["[[blowers]]", f'id = "B{b + 1}"', 'kind = "centrifugal"', f"airflow_min_Sm3_h = {0.45 * each:.0f}",
+                  f"airflow_max_Sm3_h = {each:.0f}", "pressure_max_gauge_kPa = 80.0", "efficiency = 0.68", ""]
+    lines += ["[header]", f"loss_k_kPa_per_Sm3_h2 = {2.0 / max(grid_max, 1.0) ** 2:.3g}", ""]
+    hours = (np.arange(n_periods) + 0.5) * 24.0 / n_periods
+    shape = 1.0 + 0.35 * np.sin(2.0 * np.pi * (hours - 8.0) / 24.0)
+    conc = 1.0 + 0.25 * np.sin(2.0 * np.pi * (hours - 9.0) / 24.0)
+    cod = float(rng.uniform(350.0, 600.0))
+    tkn = float(rng.uniform(35.0, 55.0))
+    lines += ["[influent]", f"flow_m3_d = {_per_period(q_design * load * shape)}",
+              f"cod_total_mg_L = {_per_period(cod * conc)}", f"cod_soluble_mg_L = {_per_period(0.38 * cod * conc)}",
+              f"tkn_mg_L = {_per_period(tkn * conc)}", f"nh4_mg_L = {_per_period(0.67 * tkn * conc)}",
+              f"tss_mg_L = {_per_period(0.46 * cod * conc)}", "alkalinity_mol_m3 = 7.0", "",
+              "[limits]", "nh4_mean_mg_L = 2.0", "nh4_max_mg_L = 5.0", "do_min_mg_L = 1.0", "",
+              "[kinetics]", 'parameter_set = "asm1_20C"', "temperature_correction = true", "",
+              "[operation]", 'objective = "energy"', ""]
+    desc = dict(zones=n, anoxic=n_anoxic, swing=swing, step_feed=step_feed, recycle=recycle,
+                clarifier="layered" if layered else "ideal", temperature_C=round(temperature, 1),
+                elevation_m=round(elevation), load=round(load, 2), periods=n_periods)
+    return "\n".join(lines), desc
+
+
+def run_plant(text: str, folder: Path, timeout_s: float) -> tuple[str, int | None, float, str]:
+    """(outcome, exit code, seconds, last message line) of `airtaper optimize` on one layout."""
+    folder.mkdir(parents=True, exist_ok=True)
+    path = folder / "plant.toml"
+    path.write_text(text)
+    env = dict(os.environ, PYTHONPATH=str(ROOT / "src"))
+    t0 = time.perf_counter()
+    try:
+        p = subprocess.run([sys.executable, "-m", "airtaper.cli.main", "optimize", str(path), "--out",
+                            str(folder / "out"), "--quiet", "--no-figure"], capture_output=True, text=True,
+                           timeout=timeout_s, env=env)
+    except subprocess.TimeoutExpired:
+        return "failed", None, time.perf_counter() - t0, f"time limit {timeout_s:.0f} s"
+    seconds = time.perf_counter() - t0
+    err = [ln for ln in p.stderr.splitlines() if ln.strip()]
+    last = next((ln for ln in reversed(err) if ln.startswith("error:")), err[-1] if err else "")
+    if "Traceback" in p.stderr:
+        return "failed", p.returncode, seconds, "traceback: " + last
+    outcome = {0: "verified", 2: "diagnosed", 3: "diagnosed", 4: "unverified"}.get(p.returncode, "failed")
+    return outcome, p.returncode, seconds, last
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--n", type=int, default=50, help="plants per seed (default 50)")
+    ap.add_argument("--first", type=int, default=0, help="skip this many plants of each seed")
+    ap.add_argument("--timeout", type=float, default=600.0, help="time limit per plant, s (default 600)")
+    ap.add_argument("--keep", metavar="DIR", help="keep the layouts and outputs in DIR")
+    args = ap.parse_args(argv)
+    seeds = [SEED] + [int(s) for s in os.environ.get("AIRTAPER_ROBUSTNESS_SEEDS", "").split(",") if s.strip()]
+    base = Path(args.keep) if args.keep else Path(tempfile.mkdtemp(prefix="airtaper-robustness-"))
+    counts: dict[str, int] = {}
+    total = 0
+    print(f"{'plant':>12} {'zones':>5} {'clar':>7} {'load':>5} {'T_C':>5} {'exit':>4} {'s':>7}  outcome: message")
+    for seed in seeds:
+        rng = np.random.default_rng(seed)
+        for k in range(args.first + args.n):
+            text, desc = random_plant(rng, k)
+            if k < args.first:
+                continue
+            outcome, code, seconds, msg = run_plant(text, base / f"{seed}-{k:03d}", args.timeout)
+            counts[outcome] = counts.get(outcome, 0) + 1
+            total += 1
+            print(f"{seed % 1000:>5}-{k:<6d} {desc['zones']:>5} {desc['clarifier']:>7} {desc['load']:>5} "
+                  f"{desc['temperature_C']:>5} {code if code is not None else '-':>4} {seconds:>7.1f}  "
+                  f"{outcome}: {msg[:160]}", flush=True)
+    good = counts.get("verified", 0) + counts.get("diagnosed", 0)
+    print(f"\n{total} plants: " + ", ".join(f"{k} {v}" for k, v in sorted(counts.items()))
+          + f"; verified or diagnosed {100.0 * good / max(total, 1):.0f} % (target >= 98 %, no failure)")
+    print(f"layouts and outputs in {base}")
+    return 0 if counts.get("failed", 0) == 0 else 1
+
+
+if __name__ == "__main__":
+    sys.exit(main())
