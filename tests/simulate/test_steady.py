@@ -51,3 +51,80 @@ def test_finely_split_train_at_fixed_airflow():
     assert abs(r.balance["cod_net"]) / r.balance["cod_in"] < 1e-6
     assert abs(r.balance["n_net"]) / r.balance["n_in"] < 1e-6
     np.testing.assert_allclose(r.zones["airflow_Sm3_h"].iloc[1:], 400.0)
+
+
+# --- plants with no steady state, and random layered plants ---------------------------------
+import os  # noqa: E402
+import shutil  # noqa: E402
+
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+from airtaper.errors import EXIT_INFEASIBLE, EXIT_INPUT, NoSteadyStateError  # noqa: E402
+from airtaper.layout.bsm1 import BSM1_SETTLING  # noqa: E402
+from airtaper.layout.types import Wasting  # noqa: E402
+
+_DEMO = load_layout("layouts/demo.toml")
+
+
+def test_sludge_age_below_the_nitrifiers_minimum_is_named_washout():
+    # ASM1 (Henze et al. 1987): nitrifiers grow at most at mu_A in the aerated share of the volume
+    # and decay at b_A; with 80 % aerable at 17 C the minimum sludge age is about 2.8 d.
+    lay = dataclasses.replace(_DEMO, wasting=Wasting(flow_m3_d=None, srt_d=1.5))
+    with pytest.raises(NoSteadyStateError) as err:
+        simulate.steady_state(lay)
+    assert err.value.cause == "washout" and err.value.exit_code == EXIT_INPUT
+    text = str(err.value)
+    assert "wash out" in text and "1.5 d" in text and "minimum sludge age" in text
+
+
+def test_fixed_waste_flow_that_washes_out_nitrifiers_is_named(bsm1_layered):
+    # BSM1 wasting 3,000 m3/d instead of 385: a sludge age of about a day
+    n = bsm1_layered.horizon.n_periods
+    lay = dataclasses.replace(bsm1_layered, wasting=Wasting(flow_m3_d=(3000.0,) * n, srt_d=None))
+    with pytest.raises(NoSteadyStateError) as err:
+        simulate.steady_state(lay)
+    assert err.value.cause == "washout" and "the waste flow gives" in str(err.value)
+
+
+def test_cli_exit_code_and_message_for_a_washout(tmp_path, capsys):
+    from airtaper.cli.main import main
+
+    text = open("layouts/demo.toml").read().replace("srt_d = 11.0", "srt_d = 1.5")
+    (tmp_path / "plant.toml").write_text(text)
+    shutil.copy("layouts/demo_influent.csv", tmp_path / "demo_influent.csv")
+    code = main(["simulate", str(tmp_path / "plant.toml"), "--out", str(tmp_path / "out")])
+    err = capsys.readouterr().err
+    assert code == EXIT_INPUT
+    assert "error:" in err and "wash out" in err
+    assert "Traceback" not in err and "Error(" not in err and "internal failure" not in err
+
+
+def test_no_steady_state_error_is_exit_3():
+    assert NoSteadyStateError("x").exit_code == EXIT_INFEASIBLE
+
+
+_EXAMPLES = int(os.environ.get("AIRTAPER_ROBUSTNESS_EXAMPLES", "12"))
+
+
+@pytest.mark.slow
+@settings(max_examples=_EXAMPLES, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(area=st.floats(150.0, 3000.0), height=st.floats(2.5, 5.0), feed=st.integers(2, 8),
+       srt=st.floats(1.0, 30.0), temperature=st.floats(10.0, 25.0), do=st.sampled_from([None, 0.5, 2.0, 4.0]))
+def test_layered_plants_reach_a_steady_state_or_say_why(area, height, feed, srt, temperature, do):
+    # Any valid layered plant: the solve ends below its tolerance or raises the named error; it
+    # never runs out of steps, whatever the clarifier's size (overloaded ones included).
+    n = _DEMO.horizon.n_periods
+    clar = dataclasses.replace(_DEMO.clarifier, kind="layered", area_m2=area, height_m=height, layers=10,
+                               feed_layer=feed, settling=BSM1_SETTLING)
+    lay = dataclasses.replace(_DEMO, clarifier=clar, wasting=Wasting(flow_m3_d=None, srt_d=srt),
+                              plant=dataclasses.replace(_DEMO.plant, temperature_C=(temperature,) * n))
+    try:
+        r = simulate.steady_state(lay, do_setpoint_mg_L=do)
+    except NoSteadyStateError as exc:
+        assert exc.cause in ("washout", "no steady state")
+        return
+    assert r.residual < 1e-8
+    assert abs(r.balance["cod_net"]) / r.balance["cod_in"] < 1e-6
+    assert abs(r.balance["n_net"]) / r.balance["n_in"] < 1e-6
+    assert r.clarifier is not None and r.clarifier["solids_total_kg"] > 0.0

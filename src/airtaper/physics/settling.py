@@ -53,24 +53,28 @@ def takacs_velocity_m_d(tss_g_m3, tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_
     return np.clip(v, 0.0, v0_max_m_d)
 
 
-def limiting_solids_flux_g_m2_d(feed_tss_g_m3, underflow_velocity_m_d, tss_min_g_m3, v0_max_m_d, v0_m_d,
-                                rh_m3_g, rp_m3_g, x_max_g_m3: float = 30000.0) -> tuple[float, float]:
+def limiting_solids_flux_g_m2_d(underflow_velocity_m_d, tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g,
+                                x_max_g_m3: float = 30000.0) -> tuple[float, float]:
     """Limiting solids flux of the thickening zone and the concentration where it occurs.
 
     Solids flux theory (Ekama et al. 1997): below the feed, solids move down with
     the total flux ``G(X) = vs(X) X + v_u X`` (gravity plus the underflow's bulk
-    velocity ``v_u = Q_u / A``). The largest flux the zone can pass is the
-    smallest ``G`` over concentrations from the feed's up to the underflow's; since
-    ``G`` grows without bound at high ``X`` (``v_u X``), that is the minimum of ``G``
-    over ``X >= X_feed``. A clarifier fed more solids per area than this
-    (``Q_f X_f / A > G_L``) cannot pass them: its blanket rises until solids leave
-    over the weir.
+    velocity ``v_u = Q_u / A``). Where ``G`` has a local minimum beyond its local
+    maximum, that minimum ``G_L`` is the largest flux the thickening zone can pass:
+    a clarifier fed more solids per area (``Q_f X_f / A > G_L``) cannot pass them, and
+    its blanket rises until solids leave over the weir. When the underflow velocity
+    is high enough that ``G`` only grows, there is no such limit (``G_L`` infinite).
 
     Returns
     -------
-    (G_L, X_L) : g/(m2 d), g/m3
+    (G_L, X_L) : g/(m2 d), g/m3 (inf, nan without a limit)
     """
-    x = np.linspace(float(feed_tss_g_m3), max(x_max_g_m3, 3.0 * float(feed_tss_g_m3)), 4001)
+    x = np.linspace(max(float(tss_min_g_m3), 0.0), x_max_g_m3, 6001)
     g = (takacs_velocity_m_d(x, tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g) + underflow_velocity_m_d) * x
-    k = int(np.argmin(g))
+    falling = np.nonzero(np.diff(g) < 0.0)[0]
+    if falling.size == 0:
+        return float("inf"), float("nan")
+    k = falling[0] + int(np.argmin(g[falling[0]:]))
+    if k == g.size - 1:  # still falling at the end of the range: no minimum inside it
+        return float("inf"), float("nan")
     return float(g[k]), float(x[k])

@@ -246,7 +246,7 @@ class System:
             if not thick[j]:
                 break
             blanket = j + 1
-        g_lim, x_lim = limiting_solids_flux_g_m2_d(xf, qu / A, self.fns * xf, self.v0max, self.v0, self.rh, self.rp)
+        g_lim, x_lim = limiting_solids_flux_g_m2_d(qu / A, self.fns * xf, self.v0max, self.v0, self.rh, self.rp)
         applied = qf * xf / A
         v_feed = float(takacs_velocity_m_d(xf, self.fns * xf, self.v0max, self.v0, self.rh, self.rp))
         over_flux = applied > g_lim
