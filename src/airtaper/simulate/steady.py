@@ -23,10 +23,12 @@ Two methods, the second a fallback that always makes progress:
    with the sparse Jacobian) until the scaled rate of change is small or the leg
    ends, and Newton restarts from there: plain full steps first (from near the
    steady state they converge quadratically even where the residual rises on the
-   first step), the pseudo-transient iteration if they do not converge. Every leg advances simulated time, so the sequence cannot
-   stall: either the plant settles (a stable steady state is an attractor of its
-   dynamics) and Newton finishes, or simulated time runs out
-   (:data:`MAX_SIMULATED_d`) and :class:`NoSteadyStateError` says why.
+   first step), the pseudo-transient iteration if they do not converge. Every
+   leg advances simulated time (a leg the integrator cannot finish counts as
+   spent), so the sequence cannot stall: either the plant settles (a stable
+   steady state is an attractor of its dynamics) and Newton finishes, or
+   simulated time runs out (:data:`MAX_SIMULATED_d`) and
+   :class:`NoSteadyStateError` says why.
 
 Before anything is solved, :func:`check_washout` refuses a plant whose sludge
 age is below the nitrifiers' minimum at its temperature: no nitrifying steady
@@ -43,7 +45,6 @@ Shampine, L.F., Reichelt, M.W. (1997). The MATLAB ODE suite. SIAM J. Sci. Comput
 
 from __future__ import annotations
 
-import time
 from dataclasses import dataclass
 
 import numpy as np
@@ -333,8 +334,9 @@ def solve_steady(system: System, inp: Inputs, y0=None, tol: float = 1e-10, max_i
     target = 1e-5
     while not ok and simulated < MAX_SIMULATED_d:
         legs += 1
-        y, t, _ = _integrate(system, inp, y, min(leg, MAX_SIMULATED_d - simulated), target)
-        simulated += t
+        span = min(leg, MAX_SIMULATED_d - simulated)
+        y, t, finished = _integrate(system, inp, y, span, target)
+        simulated += t if finished else span
         y_n, res_n, k, ok = _plain_newton(system, inp, y, tol)
         iters += k
         if ok:
