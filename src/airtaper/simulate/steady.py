@@ -174,7 +174,7 @@ _DT_SEARCH_d = 1.0
 #: Shortest step fraction the line search tries.
 _MIN_LAMBDA = 1.0 / 16.0
 #: Newton has stalled when its best residual fell less than 10 x over this many steps ...
-_STALL_STEPS = 30
+_STALL_STEPS = 60
 #: ... or when the pseudo time step collapsed below this, d.
 _DT_COLLAPSED_d = 1e-3
 
