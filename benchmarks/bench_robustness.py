@@ -30,6 +30,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import resource
 import subprocess
 import sys
 import tempfile
@@ -153,22 +154,34 @@ def random_plant(rng: np.random.Generator, index: int) -> tuple[str, dict]:
     return "\n".join(lines), desc
 
 
+def _child_cpu_s() -> float:
+    r = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return r.ru_utime + r.ru_stime
+
+
 def run_plant(text: str, folder: Path, timeout_s: float) -> tuple[str, int | None, float, str]:
-    """(outcome, exit code, seconds, last message line) of `airtaper optimize` on one layout."""
+    """(outcome, exit code, seconds, last message line) of `airtaper optimize` on one layout.
+
+    The seconds are wall-clock; the CPU seconds of the run are appended to the message
+    (on a shared machine they say more about the work than the wall clock).
+    """
     folder.mkdir(parents=True, exist_ok=True)
     path = folder / "plant.toml"
     path.write_text(text)
     env = dict(os.environ, PYTHONPATH=str(ROOT / "src"))
     t0 = time.perf_counter()
+    cpu0 = _child_cpu_s()
     try:
         p = subprocess.run([sys.executable, "-m", "airtaper.cli.main", "optimize", str(path), "--out",
                             str(folder / "out"), "--quiet", "--no-figure"], capture_output=True, text=True,
                            timeout=timeout_s, env=env)
     except subprocess.TimeoutExpired:
-        return "failed", None, time.perf_counter() - t0, f"time limit {timeout_s:.0f} s"
+        return ("failed", None, time.perf_counter() - t0,
+                f"[cpu {_child_cpu_s() - cpu0:.0f} s] time limit {timeout_s:.0f} s")
     seconds = time.perf_counter() - t0
     err = [ln for ln in p.stderr.splitlines() if ln.strip()]
     last = next((ln for ln in reversed(err) if ln.startswith("error:")), err[-1] if err else "")
+    last = f"[cpu {_child_cpu_s() - cpu0:.0f} s] {last}"
     if "Traceback" in p.stderr:
         return "failed", p.returncode, seconds, "traceback: " + last
     outcome = {0: "verified", 2: "diagnosed", 3: "diagnosed", 4: "unverified"}.get(p.returncode, "failed")
