@@ -132,6 +132,34 @@ def _settler_estimate(m, data, feed: np.ndarray) -> None:
             calculate_variable_from_constraint(m.settler_velocity[t, layer], m.settler_flux_definition[t, layer])
 
 
+def set_start_state(m, start: dict) -> None:
+    """Put a known steady state into a steady model's states (for example the simulator's).
+
+    ``start``: ``{"zones": {zone_id: 13 components}, "layers": (layers, 13) from the top (layered
+    only), "waste_m3_d": float (optional)}``, g/m3 and SALK mol/m3. Settler solids and effective
+    velocities follow from their own definitions; what ``start`` does not give keeps its value.
+    """
+    for t in m.STEPS:
+        for z, row in start["zones"].items():
+            for k, c in enumerate(ASM1_COMPONENTS):
+                var = m.conc[t, z, c]
+                if not var.fixed:
+                    var.set_value(max(float(row[k]), 0.0), skip_validation=True)
+        if hasattr(m, "settler_conc") and start.get("layers") is not None:
+            solids = [IDX[k] for k in ("XI", "XS", "XBH", "XBA", "XP")]
+            for layer, row in zip(m.LAYERS, np.asarray(start["layers"], dtype=float)):
+                for k, c in enumerate(ASM1_COMPONENTS):
+                    m.settler_conc[t, layer, c].set_value(max(float(row[k]), 0.0), skip_validation=True)
+                m.settler_tss[t, layer].set_value(max(float(m.tss_per_cod * row[solids].sum()), 1e-6),
+                                                  skip_validation=True)
+            for layer in m.INTERFACES:
+                m.settler_velocity[t, layer].set_value(0.0)
+                calculate_variable_from_constraint(m.settler_velocity[t, layer], m.settler_flux_definition[t, layer])
+    if start.get("waste_m3_d") is not None and not m.waste_m3_d[1].fixed:
+        for p in m.PERIODS:
+            m.waste_m3_d[p].set_value(float(start["waste_m3_d"]))
+
+
 def sequential_pass(m) -> None:
     """Step 1 of :func:`initialise_steady`: estimates zone by zone, then the clarifier."""
     data = m._train_data
@@ -229,15 +257,18 @@ def _newton(system, x, scale, lb, tol, max_iter=30):
     return x, res, max_iter
 
 
-def initialise_steady(m, *, sequential: bool = True, max_ptc_steps: int = 2000, tol: float = 1e-10) -> InitReport:
+def initialise_steady(m, *, sequential: bool = True, max_ptc_steps: int = 2000, tol: float = 1e-10,
+                      start: dict | None = None) -> InitReport:
     """Initialise a steady model from scratch (see the module notes); values are left in ``m``.
 
     Parameters
     ----------
     m : model from :func:`airtaper.model.train.build_steady_model`
     sequential : bool
-        Run the sequential pass first (False: start from the model's current values, for
-        example a steady state the simulator found).
+        Run the sequential pass first (False: start from the model's current values).
+    start : dict, optional
+        A known steady state to start from instead of the sequential pass (see
+        :func:`set_start_state`), for example the independent simulator's at the same airflows.
     max_ptc_steps : int
         Limit on pseudo-transient steps (accepted or rejected).
     tol : float
@@ -268,7 +299,10 @@ def initialise_steady(m, *, sequential: bool = True, max_ptc_steps: int = 2000, 
     if not m.steady:
         raise ModelError("initialise_steady needs a steady model (build_steady_model)")
     t0 = time.perf_counter()
-    if sequential:
+    if start is not None:
+        sequential_pass(m)  # every variable gets a value; then the known state replaces the estimates
+        set_start_state(m, start)
+    elif sequential:
         sequential_pass(m)
     system = compile_system(m)
     n_rows, n_cols = system.shape
@@ -353,12 +387,13 @@ def copy_steady_to_cyclic(steady, cyclic) -> None:
             cyclic.waste_m3_d[p].set_value(w)
 
 
-def initialise_cyclic(m, steady=None) -> InitReport:
+def initialise_cyclic(m, steady=None, start: dict | None = None) -> InitReport:
     """Initialise a cyclic model from the steady state at the day's mean load.
 
     ``steady``: an already initialised or solved steady model at mean load; when
     None one is built from the cyclic model's layout with each zone's daily-mean
-    airflow and initialised with :func:`initialise_steady`.
+    airflow and initialised with :func:`initialise_steady` (from ``start``, a known
+    steady state, when given).
     """
     from airtaper.model.train import build_steady_model
 
@@ -367,7 +402,7 @@ def initialise_cyclic(m, steady=None) -> InitReport:
     if steady is None:
         airflow = {z: [m.airflow_Sm3_h[z, p].value for p in m.PERIODS] for z in m.GRID_ZONES}
         steady = build_steady_model(m._train_data.layout, airflow=airflow)
-        report = initialise_steady(steady)
+        report = initialise_steady(steady, start=start)
     copy_steady_to_cyclic(steady, m)
     if report is None:
         return InitReport(True, 0, 0, float("nan"), time.perf_counter() - t0)

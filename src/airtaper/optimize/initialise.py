@@ -5,7 +5,9 @@ period is the baseline's period-mean airflow (clipped into the zone's range), th
 zone concentrations at every model step are the simulated baseline states at the
 same time of day, the waste flow is the simulated one; the clarifier (a layered
 settler has states of its own) and everything else come from the model layer's
-cyclic initialisation (the steady state at mean load). Optionally a square solve
+cyclic initialisation (the steady state at mean load). Should the model's own
+continuation not settle, that steady state starts from the independent
+simulator's at the same mean airflows (:func:`simulated_steady_start`). Optionally a square solve
 of the model at those airflows makes the start satisfy the model equations.
 
 Retry ladder (:data:`LADDER`): when a solve fails, the next rung changes one thing:
@@ -27,6 +29,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from airtaper.errors import ModelError, NoSteadyStateError
 from airtaper.layout.types import ASM1_COMPONENTS
 from airtaper.model.initialise import initialise_cyclic
 from airtaper.optimize.simday import SimDay
@@ -85,7 +88,17 @@ def start_from_day(m, day: SimDay, airflow: dict) -> None:
     for z, values in airflow.items():
         for p in m.PERIODS:
             m.airflow_Sm3_h[z, p].fix(float(values[p - 1]))
-    initialise_cyclic(m)
+    try:
+        initialise_cyclic(m)
+    except ModelError:
+        # the model's own continuation did not settle: start it from the independent
+        # simulator's steady state at the same mean airflows (a root solve that cannot stall),
+        # unless that state shows the plant cannot hold its target sludge age at all
+        start, clarifier = simulated_steady_start(m._train_data.layout, airflow)
+        if clarifier is not None and not clarifier["srt_held"]:
+            raise NoSteadyStateError(f"{m._train_data.layout.path}: clarifier: no steady state at the target "
+                                     f"sludge age: {clarifier['message']}", cause="overloaded") from None
+        initialise_cyclic(m, start=start)
     zones = list(m.ZONES)
     index = {c: k for k, c in enumerate(ASM1_COMPONENTS)}
     hours = point_hours(m)
@@ -103,4 +116,22 @@ def start_from_day(m, day: SimDay, airflow: dict) -> None:
             m.waste_m3_d[p].set_value(mean)
 
 
-__all__ = ["BASE_OPTIONS", "LADDER", "Rung", "point_hours", "start_airflow", "start_from_day"]
+def simulated_steady_start(layout, airflow: dict) -> tuple[dict, dict | None]:
+    """The simulator's steady state at each zone's daily-mean airflow, as a start for the model.
+
+    Returns ``({"zones": {zone_id: 13 components}, "layers": (layers, 13) or None, "waste_m3_d"},
+    clarifier)``: the start (:func:`airtaper.model.initialise.set_start_state`) and the layered
+    clarifier's check at that state (None for an ideal separator).
+    """
+    from airtaper.simulate import steady_state
+
+    mean = {z: float(np.mean(v)) for z, v in airflow.items()}
+    ss = steady_state(layout, airflow_Sm3_h=mean)
+    comps = list(ASM1_COMPONENTS)
+    zones = {str(row["zone"]): row[comps].to_numpy(dtype=float) for _, row in ss.zones.iterrows()}
+    layers = None if ss.layers is None else ss.layers[comps].to_numpy(dtype=float)
+    return {"zones": zones, "layers": layers, "waste_m3_d": ss.q_waste_m3_d}, ss.clarifier
+
+
+__all__ = ["BASE_OPTIONS", "LADDER", "Rung", "point_hours", "simulated_steady_start", "start_airflow",
+           "start_from_day"]

@@ -228,7 +228,9 @@ class System:
         feed; ``overloaded``: True when the applied flux exceeds the limit or the overflow rate
         exceeds the feed's settling velocity (solids carried over the weir), or the blanket reaches
         the feed layer (in a steady state the solids an overloaded thickening zone cannot pass pile
-        up until they do), with ``message`` in plain words.
+        up until they do), or the effluent alone loses solids faster than the target SRT allows
+        (``srt_held`` False: no sludge is wasted and the SRT falls short), with ``message`` in plain
+        words.
         """
         if not self.layered:
             return None
@@ -252,9 +254,11 @@ class System:
         over_flux = applied > g_lim
         over_rate = qe / A > v_feed
         over_blanket = 0 < blanket <= self.feed + 1
+        srt, target = float(info["srt_d"]), inp.srt_target_d
+        srt_held = target is None or srt >= 0.999 * target
         height = self.h * L
         msg = ""
-        if over_flux or over_rate or over_blanket:
+        if over_flux or over_rate or over_blanket or not srt_held:
             parts = []
             if over_flux:
                 parts.append(f"solids loading {applied / 24000.0:.3g} kg/(m2 h) is above the limiting flux of its "
@@ -265,14 +269,18 @@ class System:
             msg = ("clarifier overloaded at the mean load: " + "".join(p + "; " for p in parts)
                    + f"the sludge blanket reaches layer {blanket or 1} of {L} from the top (fed at layer "
                    f"{self.feed + 1}) and the effluent carries "
-                   f"{X[0]:.0f} g/m3 of solids (a larger area, a higher return ratio or a shorter sludge age would relieve it)")
+                   f"{X[0]:.0f} g/m3 of solids"
+                   + ("" if srt_held else f"; the effluent alone removes solids faster than the target sludge age "
+                      f"allows (sludge age {srt:.3g} d against {target:.3g} d), so none is wasted")
+                   + " (a larger area, a higher return ratio or a shorter sludge age would relieve it)")
         return dict(tss_g_m3=X, solids_kg=solids_kg, solids_total_kg=float(solids_kg.sum()),
                     blanket_layer=blanket, blanket_height_m=(L - blanket + 1) * self.h if blanket else 0.0,
                     underflow_tss_g_m3=float(X[-1]), feed_tss_g_m3=xf,
                     applied_flux_g_m2_d=applied, limiting_flux_g_m2_d=g_lim, limiting_tss_g_m3=x_lim,
                     flux_ratio=applied / g_lim if g_lim > 0 else float("inf"),
-                    overflow_rate_m_d=qe / A, feed_velocity_m_d=v_feed, height_m=height,
-                    overloaded=bool(over_flux or over_rate or over_blanket), message=msg)
+                    overflow_rate_m_d=qe / A, feed_velocity_m_d=v_feed, height_m=height, srt_d=srt,
+                    srt_held=bool(srt_held), overloaded=bool(over_flux or over_rate or over_blanket or not srt_held),
+                    message=msg)
 
     # --- balances -------------------------------------------------------------
     def inventory_weights(self, inp: Inputs) -> tuple[np.ndarray, np.ndarray]:
