@@ -140,11 +140,12 @@ def minimum_srt_d(params, aerated_fraction: float) -> float:
     return float(1.0 / net) if net > 0.0 else float("inf")
 
 
-def check_washout(system: System, inp: Inputs, srt_d: float | None = None) -> None:
+def check_washout(system: System, inp: Inputs, srt_d: float | None = None, y=None) -> None:
     """Raise :class:`NoSteadyStateError` when the sludge age cannot keep nitrifiers.
 
     ``srt_d``: the sludge age to check (default: the layout's target; nothing is
-    checked without one).
+    checked without one); ``y``: the steady state it was reached at (the message then
+    says how much solids leave with the waste and over the weir).
     """
     srt = inp.srt_target_d if srt_d is None else srt_d
     if srt is None or not np.isfinite(srt):
@@ -153,7 +154,13 @@ def check_washout(system: System, inp: Inputs, srt_d: float | None = None) -> No
     srt_min = minimum_srt_d(inp.params, f_aer)
     if srt < srt_min:
         lay = system.plant.layout
-        what = "the target sludge age" if srt_d is None else "the sludge age the waste flow gives"
+        what = "the target sludge age"
+        if srt_d is not None:
+            _, info = system.rhs(y, inp, detail=True)
+            wasted = float(info["q_waste_m3_d"]) * float(system.tss(info["c_underflow"])) / 1000.0
+            lost = float(info["q_effluent_m3_d"]) * float(system.tss(info["c_effluent"])) / 1000.0
+            what = (f"the sludge age the plant reaches ({wasted:,.0f} kg/d of solids wasted, {lost:,.0f} kg/d "
+                    "lost over the weir)")
         limit = f"{srt_min:.3g} d" if np.isfinite(srt_min) else "any value"
         raise NoSteadyStateError(
             f"{lay.path}: wasting: no steady state with nitrification: {what} ({srt:.3g} d) is below the "
@@ -351,7 +358,7 @@ def solve_steady(system: System, inp: Inputs, y0=None, tol: float = 1e-10, max_i
     if not ok:
         raise NoSteadyStateError(_no_steady_message(system, inp, y, res, simulated), cause="no steady state")
     if check and inp.srt_target_d is None:  # a fixed waste flow: check the sludge age it gives
-        check_washout(system, inp, float(system.rhs(y, inp, detail=True)[1]["srt_d"]))
+        check_washout(system, inp, float(system.rhs(y, inp, detail=True)[1]["srt_d"]), y)
     return SteadySolve(y, iters, res, simulated, legs)
 
 

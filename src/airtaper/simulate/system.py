@@ -242,7 +242,7 @@ class System:
         qu, qe = float(info["q_underflow_m3_d"]), float(info["q_effluent_m3_d"])
         A, L = self.area, self.n_layers
         solids_kg = X * A * self.h / 1000.0
-        thick = X >= self.xt
+        thick = X >= xf  # the blanket: layers thickened to the feed's solids or more
         blanket = 0
         for j in range(L - 1, -1, -1):
             if not thick[j]:
