@@ -40,8 +40,11 @@ def test_all_outputs_written(tmp_path):
     assert (tmp_path / "schedule.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     page = (tmp_path / "report.html").read_text()
     assert "Caution" in page and "licensed engineers" in page
-    assert "<td>NH4-N daily mean (mg/L)</td><td>1.000</td><td>1.010</td><td>1.50</td>" in page
-    assert "<td>DO margin Z2 (mg/L)</td><td>0.000</td><td>-0.010</td>" in page
+    assert ("<td class='left'>effluent NH4-N, daily mean (mg/L)</td><td>1.000</td><td>1.010</td><td>1.5</td>"
+            in page)
+    assert "<td>+0.000</td><td>-0.010</td>" in page  # the re-simulated dip below Z2's minimum, not rounded away
+    assert "summary names no layout file" in page  # said, not an error
+    assert pd.read_excel(tmp_path / "results.xlsx", sheet_name="header").shape == header.shape
     assert pd.read_csv(tmp_path / "schedule.csv").shape == schedule.shape
 
 

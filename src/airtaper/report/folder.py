@@ -1,0 +1,180 @@
+"""A finished output folder read back: the one input of the report, the figures and the workbook.
+
+``airtaper optimize`` writes its tables and summary, then builds the report from the
+folder exactly as ``airtaper report DIR`` does later, so both give the same pages.
+Required: ``summary.json`` and ``schedule.csv``; optional: ``header.csv``,
+``timeseries.csv``, ``blowers.csv`` and the layout that ``summary.json`` names (read
+again for the inputs summary, the zone ranges and the drawing of the train). Whatever
+is absent is left out of the report without an error.
+"""
+
+from __future__ import annotations
+
+import json
+import warnings
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from airtaper.errors import InputError, Problem
+from airtaper.layout.types import Layout
+
+#: Files the report reads, in the order docs/outputs.md lists them.
+REQUIRED = ("summary.json", "schedule.csv")
+OPTIONAL_TABLES = ("header.csv", "timeseries.csv", "blowers.csv")
+
+
+@dataclass
+class StudyFolder:
+    """The contents of a finished output folder (see module notes)."""
+
+    path: Path
+    summary: dict
+    schedule: pd.DataFrame
+    header: pd.DataFrame | None = None
+    timeseries: pd.DataFrame | None = None
+    blowers: pd.DataFrame | None = None
+    layout: Layout | None = None
+    notes: list[str] = field(default_factory=list)  # what could not be read, for the report
+
+    # -- derived views -------------------------------------------------------------------------
+    @property
+    def zones(self) -> list[str]:
+        """Zones of the schedule, in the schedule's (flow) order."""
+        return list(dict.fromkeys(self.schedule["zone"]))
+
+    @property
+    def period_edges_h(self) -> np.ndarray:
+        """Period boundaries over the day, h (n_periods + 1 values)."""
+        first = self.schedule.drop_duplicates("period_start_h").sort_values("period_start_h")
+        return np.append(first["period_start_h"].to_numpy(float), first["period_end_h"].to_numpy(float)[-1])
+
+    def pivot(self, column: str) -> pd.DataFrame | None:
+        """``column`` of the schedule as zones (rows, flow order) x period start hour (columns)."""
+        if column not in self.schedule:
+            return None
+        table = self.schedule.pivot(index="zone", columns="period_start_h", values=column)
+        return table.reindex(self.zones)
+
+    def header_by_period(self) -> pd.DataFrame | None:
+        """header.csv with ``period_start_h`` and ``period_end_h`` added (one row per period, in order)."""
+        if self.header is None:
+            return None
+        edges = self.period_edges_h
+        if len(edges) - 1 != len(self.header):
+            return None
+        out = self.header.copy()
+        out.insert(0, "period_end_h", edges[1:])
+        out.insert(0, "period_start_h", edges[:-1])
+        return out
+
+    def zone_airflow_range_Sm3_h(self) -> dict[str, tuple[float, float]]:
+        """Zone -> (min, max) airflow its diffusers, mixing and valve allow (empty without the layout)."""
+        if self.layout is None:
+            return {}
+        out = {}
+        for z in self.zones:
+            try:
+                out[z] = self.layout.zone_airflow_range_Sm3_h(self.layout.zone(z))
+            except KeyError:
+                continue
+        return out
+
+    def diffuser_range_Sm3_h(self) -> dict[str, tuple[float, float]]:
+        """Zone -> (min, max) airflow per diffuser of its diffuser type (empty without the layout)."""
+        if self.layout is None:
+            return {}
+        out = {}
+        for z in self.zones:
+            try:
+                zone = self.layout.zone(z)
+            except KeyError:
+                continue
+            if zone.grid is not None:
+                d = self.layout.diffuser_type(zone.grid.type_id)
+                out[z] = (d.airflow_min_Sm3_h, d.airflow_max_Sm3_h)
+        return out
+
+    def tariff_price(self) -> np.ndarray | None:
+        """Energy price of every period (currency/kWh), or None."""
+        if self.layout is None or self.layout.tariff is None:
+            return None
+        price = np.asarray(self.layout.tariff.price_per_kWh, dtype=float)
+        return price if len(price) == len(self.period_edges_h) - 1 else None
+
+
+def _read_csv(path: Path, notes: list[str]) -> pd.DataFrame | None:
+    if not path.is_file():
+        return None
+    try:
+        frame = pd.read_csv(path)
+    except (OSError, ValueError) as exc:
+        notes.append(f"{path.name} could not be read ({exc}); the parts that need it are left out")
+        return None
+    return frame
+
+
+def _find_layout(folder: Path, summary: dict, layout_path: str | Path | None) -> tuple[Path | None, str | None]:
+    """Where the layout is: the given path, else the summary's, as given (from the working folder) or
+    relative to the output folder."""
+    if layout_path is not None:
+        return Path(layout_path), None
+    named = summary.get("layout")
+    if not named or named == "<memory>":
+        return None, "the summary names no layout file"
+    for cand in (Path(named), folder / named, folder.parent / Path(named).name):
+        if cand.is_file():
+            return cand, None
+    return None, f"the layout {named} named in summary.json was not found (give it with --layout)"
+
+
+def read_study_folder(path: str | Path, layout_path: str | Path | None = None) -> StudyFolder:
+    """Read a finished output folder; raise :class:`InputError` when it is not one."""
+    from airtaper.layout import load_layout
+
+    folder = Path(path)
+    problems = []
+    if not folder.is_dir():
+        raise InputError(Problem(str(folder), "-", "not a folder", None, "an output folder of airtaper optimize"))
+    for name in REQUIRED:
+        if not (folder / name).is_file():
+            problems.append(Problem(str(folder / name), "-", "missing", None,
+                                    "a finished output folder of airtaper optimize"))
+    if problems:
+        raise InputError(problems)
+    try:
+        summary = json.loads((folder / "summary.json").read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, ValueError) as exc:
+        raise InputError(Problem(str(folder / "summary.json"), "-", f"not readable JSON ({exc})", None,
+                                 "the summary written by airtaper optimize")) from None
+    if not isinstance(summary, dict):
+        raise InputError(Problem(str(folder / "summary.json"), "-", "not a JSON object", type(summary).__name__,
+                                 "the summary written by airtaper optimize"))
+    notes: list[str] = []
+    schedule = _read_csv(folder / "schedule.csv", notes)
+    need = {"period_start_h", "period_end_h", "zone", "airflow_Sm3_h"}
+    if schedule is None or not need <= set(schedule.columns):
+        got = None if schedule is None else ", ".join(schedule.columns)
+        raise InputError(Problem(str(folder / "schedule.csv"), "columns", "not a schedule table", got,
+                                 ", ".join(sorted(need))))
+    tables = {name: _read_csv(folder / name, notes) for name in OPTIONAL_TABLES}
+    layout = None
+    where, why = _find_layout(folder, summary, layout_path)
+    if where is not None:
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                layout = load_layout(where, warnings=[])
+        except InputError as exc:
+            if layout_path is not None:
+                raise
+            why = f"the layout {where} no longer reads ({len(exc.problems)} problem(s): run airtaper check on it)"
+    if why:
+        notes.append(why + "; the inputs summary, zone ranges and the drawing of the train are left out")
+    return StudyFolder(path=folder, summary=summary, schedule=schedule, header=tables["header.csv"],
+                       timeseries=tables["timeseries.csv"], blowers=tables["blowers.csv"], layout=layout, notes=notes)
+
+
+__all__ = ["OPTIONAL_TABLES", "REQUIRED", "StudyFolder", "read_study_folder"]
