@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -55,3 +56,17 @@ def test_summary_and_marginal_sheets(book, demo_dir):
     ver = book["verification"]
     assert ver.loc[ver["where"] == "Z6", "re-simulated"].iloc[0] == pytest.approx(
         s["verification"]["do_margin_mg_L"]["Z6"])
+
+
+def test_every_output_column_is_documented(demo_dir):
+    # docs/outputs.md names every column of every table the run wrote, each in a table row of its file's section
+    doc = (Path(__file__).resolve().parents[2] / "docs" / "outputs.md").read_text()
+    for name in ("schedule.csv", "header.csv", "timeseries.csv", "blowers.csv"):
+        if not (demo_dir / name).is_file():
+            continue
+        section = doc[doc.index(f"### `{name}`"):]
+        section = section[:section.index("\n### ", 5)]
+        for col in pd.read_csv(demo_dir / name, nrows=1).columns:
+            assert f"`{col}`" in section, f"{name}: {col} is not in docs/outputs.md"
+    for key in json.loads((demo_dir / "summary.json").read_text()):
+        assert f"`{key}`" in doc, f"summary.json: {key} is not in docs/outputs.md"
