@@ -110,7 +110,7 @@ def test_limits_stay_on_the_scale_and_airflow_above_a_maximum_is_flagged(folder)
     labels = _labels(fig)
     assert "above the zone's maximum (2 cells)" in labels and "above the zone's maximum" in labels
     heat = fig.axes[0]
-    assert sum(1 for p in heat.patches if p.get_hatch() == "xxx") == 2
+    assert sum(1 for p in heat.patches if p.get_hatch() == "//") == 2
     fig = F.effluent_figure(f)
     ax = next(a for a in fig.axes if a.get_ylabel() == "NH4-N (mg/L)")
     lo, hi_y = ax.get_ylim()

@@ -63,6 +63,13 @@ def test_report_renders_in_headless_chromium_at_1280_px(demo_dir, tmp_path):
     assert probe["images"] >= 6 and probe["loaded"] == probe["images"]
     assert probe["errors"] == []
     assert probe["scrollWidth"] <= probe["clientWidth"] <= 1280  # no horizontal scrolling
+    # the print layout (its @media print rules applied on screen) fits landscape A4's printable width, about 1030 px
+    printed = tmp_path / "printed.html"
+    printed.write_text(text.replace("@media print", "@media all").replace("<head>", "<head>" + _PROBE, 1),
+                       encoding="utf-8")
+    dom = _chromium("--window-size=1030,900", "--dump-dom", printed.as_uri()).stdout
+    probe = json.loads(re.search(r'<pre id="airtaper-probe">(.*?)</pre>', dom).group(1).replace("&quot;", '"'))
+    assert probe["scrollWidth"] <= probe["clientWidth"] and probe["errors"] == []
     # a screenshot of the unmodified page that is not blank
     shot = tmp_path / "shot.png"
     _chromium("--window-size=1280,2400", f"--screenshot={shot}", (demo_dir / "report.html").as_uri())

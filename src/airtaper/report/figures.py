@@ -65,6 +65,14 @@ def _steps(ax, values, edges, **kw):
     return ax.plot(edges, np.append(v, v[-1]), drawstyle="steps-post", **kw)
 
 
+def _cyclic(t, y, edges):
+    """Close a periodic day at its start: the optimiser's day repeats, so the value at 24 h is the value at 0 h."""
+    t, y = np.asarray(t, dtype=float), np.asarray(y, dtype=float)
+    if len(t) and t[0] > edges[0] + 1e-9 and abs(t[-1] - edges[-1]) < 1e-6:
+        return np.insert(t, 0, edges[0]), np.insert(y, 0, y[-1])
+    return t, y
+
+
 def _period_mid(edges):
     return 0.5 * (edges[:-1] + edges[1:])
 
@@ -104,13 +112,14 @@ def airflow_figure(folder: StudyFolder):
                     continue
                 light = (v - vmin) / (vmax - vmin if vmax > vmin else 1.0) > 0.6
                 ax.text(x, i + 0.5, f"{v:,.0f}", ha="center", va="center", fontsize=6.5 if len(mids) > 12 else 8,
-                        color="black" if light else "white", rotation=90 if len(mids) > 12 else 0,
-                        fontweight="bold" if over[i, j] else "normal")
+                        color="black" if light or over[i, j] else "white", rotation=90 if len(mids) > 12 else 0,
+                        fontweight="bold" if over[i, j] else "normal", zorder=4,
+                        bbox=dict(facecolor="white", edgecolor="none", pad=1.0) if over[i, j] else None)
     if over.any():
         ii, jj = np.nonzero(over)
         for i, j in zip(ii, jj):
-            ax.add_patch(plt.Rectangle((edges[j], i), edges[j + 1] - edges[j], 1, fill=False, hatch="xxx",
-                                       edgecolor="red", linewidth=1.5))
+            ax.add_patch(plt.Rectangle((edges[j], i), edges[j + 1] - edges[j], 1, fill=False, hatch="//",
+                                       edgecolor="red", linewidth=2.0, zorder=3))
         ax.plot([], [], color="red", linestyle="none", marker="s", markerfacecolor="none",
                 label=f"above the zone's maximum ({int(over.sum())} cells)")
         ax.legend(loc="upper right", fontsize=8, framealpha=0.9)
@@ -153,7 +162,8 @@ def airflow_figure(folder: StudyFolder):
         ax.set_ylabel("airflow per diffuser (Sm3/h)")
         ax.set_title("Airflow per diffuser against the diffusers' range" +
                      (" (thin dashed: a zone's valve limit)" if any(len(s) == 1 for s in shown) else ""))
-        ax.legend(ncol=min(len(zones) + 1, 8), fontsize=8, loc="upper left", framealpha=0.9)
+        ax.legend(fontsize=8, loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=min(len(zones) + 1, 8),
+                  frameon=False)
         _hour_axis(ax, edges)
     return fig
 
@@ -179,7 +189,7 @@ def do_figure(folder: StudyFolder):
         st = _style(i)
         if ts is not None and "SO" in ts:
             d = ts[ts["zone"] == z]
-            t, do = d["time_h"].to_numpy(float), d["SO"].to_numpy(float)
+            t, do = _cyclic(d["time_h"], d["SO"], edges)
             ax.plot(t, do, color=st["color"], linestyle="-", linewidth=1.5, label="DO, optimised")
         else:
             rows = folder.schedule[folder.schedule["zone"] == z]
@@ -202,7 +212,7 @@ def do_figure(folder: StudyFolder):
             tops.append([hi_lim[z]])
         ax.set_title(f"zone {z}", fontsize=10, loc="left")
         ax.set_ylabel("DO (mg/L)")
-        ax.legend(fontsize=7, loc="upper right", framealpha=0.9)
+        ax.legend(fontsize=7, loc="best", framealpha=0.9)
         _hour_axis(ax, edges)
     _include(axes[0, 0], *tops)
     for k in range(n, nrows * cols):
@@ -235,8 +245,8 @@ def effluent_figure(folder: StudyFolder):
     t = eff["time_h"].to_numpy(float)
     panels = [("SNH", "NH4-N", "nh4")] + ([("tn_mg_L", "TN", "tn")] if has_tn else [])
     for ax, (col, name, key) in zip(axes[:, 0], panels):
-        y = eff[col].to_numpy(float)
-        ax.plot(t, y, color="black", linewidth=1.6, marker="o", markersize=2.5, label=f"effluent {name}")
+        tt, y = _cyclic(t, eff[col], edges)
+        ax.plot(tt, y, color="black", linewidth=1.6, marker="o", markersize=2.5, label=f"effluent {name}")
         shown = [y]
         mean = means.get(f"{key}_mean_mg_L")
         if mean is not None:

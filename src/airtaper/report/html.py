@@ -39,7 +39,7 @@ th { background: #f0f0f0; }
 th.left, td.left { text-align: left; }
 table.kv th { text-align: left; background: none; font-weight: normal; color: #333; }
 table.kv td { font-weight: bold; }
-td.nowrap { white-space: nowrap; }
+table.nowrap td { white-space: nowrap; }
 table.hours { width: 100%; table-layout: fixed; font-size: 12px; }
 table.hours th, table.hours td { padding: .2em .1em; }
 table.hours th.zone, table.hours td.zone { width: 4.5em; text-align: left; padding-left: .3em; }
@@ -88,10 +88,12 @@ def _hour_label(h: float) -> str:
 
 
 def hours_table(table: pd.DataFrame, caption: str, digits: int = 0, *, over: pd.DataFrame | None = None,
-                below: pd.DataFrame | None = None) -> str:
+                below: pd.DataFrame | None = None, findings: dict | None = None) -> str:
     """Rows (zones or quantities) x hour columns; ``over``/``below`` flag cells (True) above a maximum / below a
-    minimum. Headings are the hours the periods start ("00" ... "23")."""
+    minimum; ``findings`` maps (row, column) to the sentence of a finding there. Headings are the hours the
+    periods start ("00" ... "23")."""
     heads = "".join(f"<th>{_hour_label(c)}</th>" for c in table.columns)
+    findings = findings or {}
     rows = []
     for name, r in table.iterrows():
         cells = []
@@ -101,6 +103,8 @@ def hours_table(table: pd.DataFrame, caption: str, digits: int = 0, *, over: pd.
                 cls = " class='over' title='above the maximum'"
             elif below is not None and bool(below.loc[name, c]):
                 cls = " class='below' title='below the minimum'"
+            elif (name, c) in findings:
+                cls = f" class='below' title='{esc(findings[name, c])}'"
             cells.append(f"<td{cls}>{fmt(v, digits)}</td>")
         rows.append(f"<tr><td class='zone'>{esc(name)}</td>{''.join(cells)}</tr>")
     return (f"<table class='hours'><caption>{esc(caption)}</caption><tr><th class='zone'>hour</th>{heads}</tr>"
@@ -227,7 +231,8 @@ def _inputs(f: StudyFolder, images: dict) -> str:
         ("objective", esc(s.get("objective", lay.operation.objective))),
     ])
     load = _kv([
-        ("load case", f"one diurnal day from {esc(inf.source)}"),
+        ("load case", "one day of constant influent" if inf.source == "constant" else
+         f"one diurnal day from {esc(inf.source)}"),
         ("influent flow, mean", f"{fmt(q, 0)} m3/d (period means {fmt(w.min(), 0)}-{fmt(w.max(), 0)})"),
         ("total COD, flow-weighted", f"{fmt(fw(inf.cod_total_mg_L), 0)} mg/L"),
         ("TKN, flow-weighted", f"{fmt(fw(inf.tkn_mg_L), 1)} mg/L"),
@@ -251,7 +256,7 @@ def _inputs(f: StudyFolder, images: dict) -> str:
                      f"{z.alpha:g}"])
     parts.append("<h3>Train</h3>" + _grid(
         ["zone", "kind", "volume (m3)", "depth (m)", "HRT at mean flow (h)", "diffusers", "density (%)",
-         "airflow range (Sm3/h)", "DO min / max (mg/L)", "alpha"], rows, left=2))
+         "airflow range (Sm3/h)", "DO min / max (mg/L)", "alpha"], rows, left=2, cls="grid nowrap"))
     flows = [f"step feed: " + ", ".join(f"{esc(sf.zone)} {100 * sf.fraction:g} %" for sf in lay.step_feed)]
     for r in lay.recycles:
         flows.append(f"recycle {esc(r.id)}: {esc(r.from_zone)} to {esc(r.to_zone)}"
@@ -310,7 +315,11 @@ def _results(f: StudyFolder, images: dict, captions: dict) -> str:
     parts = []
     air = f.pivot("airflow_Sm3_h")
     over = _over_max(f)
-    parts.append(hours_table(air, "Airflow by zone, Sm3/h, hour the period starts", 0, over=over))
+    spots = _finding_cells(f, air)
+    caption = "Airflow by zone, Sm3/h, hour the period starts" + (
+        " (dark red: above the zone's maximum; pink: where a finding applies)" if spots or
+        (over is not None and over.to_numpy().any()) else "")
+    parts.append(hours_table(air, caption, 0, over=over, findings=spots))
     per = f.pivot("airflow_per_diffuser_Sm3_h")
     if per is not None:
         parts.append(hours_table(per, "Airflow per diffuser, Sm3/h", 2, over=over))
@@ -355,6 +364,21 @@ def _results(f: StudyFolder, images: dict, captions: dict) -> str:
             rows.append([esc(name), fmt(hours), fmt(energy, 0), fmt(starts, 0) if starts is not None else "-"])
         parts.append("<h3>Blowers over the day</h3>" + _grid(["blower", "running (h)", "energy (kWh/d)", "starts"], rows))
     return "".join(parts)
+
+
+def _finding_cells(f: StudyFolder, table: pd.DataFrame) -> dict:
+    """(zone, period start) -> sentence, for every finding of an infeasible run that names a zone and hours."""
+    out = {}
+    for item in f.summary.get("infeasibility") or []:
+        if not isinstance(item, dict) or item.get("zone") not in table.index:
+            continue
+        start, end = item.get("start_h"), item.get("end_h")
+        if start is None or end is None:
+            continue
+        for c in table.columns:
+            if start - 1e-9 <= float(c) < end - 1e-9:
+                out[item["zone"], c] = str(item.get("message", ""))
+    return out
 
 
 def _header_table(frame: pd.DataFrame, digits: dict) -> str:
