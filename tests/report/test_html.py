@@ -177,3 +177,13 @@ def test_blowers_csv_when_present_adds_the_run_chart_and_table(demo_copy):
     assert "<h3>Blowers over the day</h3>" in page and "Blower run chart." in page
     table = page[page.index("<h3>Blowers over the day</h3>"):]
     assert "<td class='left'>B1</td><td>12.0</td><td>480</td><td>12</td>" in table
+
+
+def test_figures_added_to_the_summary_later_are_listed(demo_copy):
+    s = json.loads((demo_copy / "summary.json").read_text())
+    s["bill"] = {"energy_cost": 350.25, "demand_charge": 40.0}
+    s["version"] = "9.9"
+    (demo_copy / "summary.json").write_text(json.dumps(s))
+    page = render(read_study_folder(demo_copy), figures=False)["report.html"].decode()
+    further = page[page.index("<h2>Further figures</h2>"):]
+    assert "<th>bill: energy_cost</th><td>350.250</td>" in further and "<th>version</th><td>9.9</td>" in further

@@ -53,6 +53,8 @@ def test_console_summary_names_figures_and_caution():
     text = console_summary(summary)
     assert "1,200.0 kWh/d" in text and "saving 20.0 %" in text
     assert CAUTION in text
+    assert "min DO margin     -0.010 mg/L re-simulated (optimiser +0.000 mg/L)" in console_summary(
+        dict(summary, verification=dict(summary["verification"], min_do_margin_mg_L=-0.01)))
 
 
 def test_console_summary_lists_every_marginal_cost_and_no_negative_zero():
@@ -62,5 +64,6 @@ def test_console_summary_lists_every_marginal_cost_and_no_negative_zero():
     summary["min_do_margin_mg_L"] = -0.001
     text = console_summary(summary)
     assert text.count("marginal          do_min_mg_L") == 15
-    assert "-0.0" not in text
+    assert "-0.0 " not in text and "-0.00 " not in text  # no negative zero
+    assert "min DO margin     -0.001 mg/L" in text  # a real dip below the minimum is not rounded away
     assert text.count("(not binding)") == 7

@@ -70,28 +70,21 @@ class StudyFolder:
         out.insert(0, "period_start_h", edges[:-1])
         return out
 
-    def zone_airflow_range_Sm3_h(self) -> dict[str, tuple[float, float]]:
-        """Zone -> (min, max) airflow its diffusers, mixing and valve allow (empty without the layout)."""
+    def _layout_zones(self) -> dict:
+        """Zone id -> the layout's Zone, for the schedule's zones the layout has (empty without the layout)."""
         if self.layout is None:
             return {}
-        out = {}
-        for z in self.zones:
-            try:
-                out[z] = self.layout.zone_airflow_range_Sm3_h(self.layout.zone(z))
-            except KeyError:
-                continue
-        return out
+        known = {z.id: z for z in self.layout.zones}
+        return {z: known[z] for z in self.zones if z in known}
+
+    def zone_airflow_range_Sm3_h(self) -> dict[str, tuple[float, float]]:
+        """Zone -> (min, max) airflow its diffusers, mixing and valve allow (empty without the layout)."""
+        return {z: self.layout.zone_airflow_range_Sm3_h(zone) for z, zone in self._layout_zones().items()}
 
     def diffuser_range_Sm3_h(self) -> dict[str, tuple[float, float]]:
         """Zone -> (min, max) airflow per diffuser of its diffuser type (empty without the layout)."""
-        if self.layout is None:
-            return {}
         out = {}
-        for z in self.zones:
-            try:
-                zone = self.layout.zone(z)
-            except KeyError:
-                continue
+        for z, zone in self._layout_zones().items():
             if zone.grid is not None:
                 d = self.layout.diffuser_type(zone.grid.type_id)
                 out[z] = (d.airflow_min_Sm3_h, d.airflow_max_Sm3_h)

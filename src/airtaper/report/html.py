@@ -493,6 +493,33 @@ def _solver(f: StudyFolder) -> str:
     return "".join(parts)
 
 
+#: summary.json keys the parts above present; any other key is listed as it comes (:func:`_further`).
+_PRESENTED = {"status", "plant", "layout", "objective", "currency", "energy_kWh_per_day", "cost_per_day", "baseline",
+              "saving_percent", "cost_saving_percent", "effluent", "min_do_margin_mg_L", "do_margin_mg_L", "limits",
+              "verification", "verified", "marginal_costs", "infeasibility", "smoothing", "solver", "messages"}
+
+
+def _further(f: StudyFolder) -> str:
+    """Figures summary.json holds beyond the parts above (later additions), as name and value."""
+    rows = []
+
+    def add(name: str, v) -> None:
+        if isinstance(v, bool) or v is None or isinstance(v, str):
+            rows.append((name, esc(fmt(v))))
+        elif isinstance(v, (int, float)):
+            rows.append((name, fmt(v, 0 if isinstance(v, int) else 3)))
+
+    for key, val in f.summary.items():
+        if key in _PRESENTED:
+            continue
+        if isinstance(val, dict):
+            for k, v in val.items():
+                add(f"{key}: {k}", v)
+        else:
+            add(key, val)
+    return f"<h2>Further figures</h2>{_kv(rows)}" if rows else ""
+
+
 def report_html(folder: StudyFolder, images: dict[str, bytes], captions: dict[str, str], files: list[str]) -> str:
     """The page (see module notes). ``images``: PNG bytes by figure name; ``captions`` by name; ``files``: the
     folder's files once the report is written."""
@@ -518,6 +545,7 @@ Column meanings and units of every file: docs/outputs.md.</p>
 <h2>Verification by the independent simulator</h2>{_verification(folder)}
 <h2>Marginal costs</h2>{_marginal(folder)}
 <h2>Solver</h2>{_solver(folder)}
+{_further(folder)}
 <h2>Files</h2><p>{esc(', '.join(files))}</p>
 </body></html>
 """

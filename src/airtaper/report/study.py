@@ -24,6 +24,7 @@ from airtaper.report.atomic import write_csv_atomic, write_json_atomic
 from airtaper.report.build import REPORT_NAMES, write_report
 from airtaper.report.text import CAUTION
 from airtaper.report.text import fmt as _fmt
+from airtaper.report.text import fmt_margin
 
 OUTPUT_NAMES = ("schedule.csv", "header.csv", "timeseries.csv", "summary.json") + REPORT_NAMES
 
@@ -45,6 +46,13 @@ def write_study_outputs(out_dir: str | Path, *, schedule: pd.DataFrame, header: 
     return written + write_report(out, figures=figure)
 
 
+def _do_margin_line(optimiser, resimulated) -> str:
+    """The smallest DO margin, signed and never rounded to zero; the re-simulated one first when there is one."""
+    if resimulated is None:
+        return f"min DO margin     {fmt_margin(optimiser)} mg/L"
+    return f"min DO margin     {fmt_margin(resimulated)} mg/L re-simulated (optimiser {fmt_margin(optimiser)} mg/L)"
+
+
 def console_summary(summary: dict) -> str:
     """A short plain-text summary for the terminal."""
     base = summary.get("baseline", {}) or {}
@@ -59,7 +67,7 @@ def console_summary(summary: dict) -> str:
         f"   (baseline {_fmt(base.get('cost_per_day'), 2)} {cur}/d)",
         f"effluent NH4-N    mean {_fmt(eff.get('nh4_mean_mg_L'), 2)} mg/L, max period {_fmt(eff.get('nh4_max_mg_L'), 2)} mg/L"
         f", TN mean {_fmt(eff.get('tn_mean_mg_L'), 2)} mg/L",
-        f"min DO margin     {_fmt(summary.get('min_do_margin_mg_L'), 2)} mg/L",
+        _do_margin_line(summary.get("min_do_margin_mg_L"), ver.get("min_do_margin_mg_L")),
         f"verified          {_fmt(ver.get('verified'))}",
     ]
     for item in summary.get("marginal_costs") or []:
