@@ -34,7 +34,8 @@ def render(folder: StudyFolder, figures: bool = True) -> dict[str, bytes]:
     if "airflow" in images:
         out["schedule.png"] = images["airflow"]
     out["results.xlsx"] = workbook_bytes(folder)
-    data = {p.name for p in folder.path.iterdir() if p.is_file() and p.suffix in (".csv", ".json")}
+    data = {p.name for p in folder.path.iterdir()
+            if p.is_file() and p.suffix in (".csv", ".json") and not p.name.startswith(".")}
     files = sorted(data | set(out) | {"report.html"})
     out["report.html"] = report_html(folder, images, captions, files).encode("utf-8")
     return out

@@ -240,6 +240,10 @@ def _inputs(f: StudyFolder, images: dict) -> str:
         ("NH4-N load, peak / mean", f"{fmt(max(w * np.asarray(inf.nh4_mg_L)) / np.mean(w * np.asarray(inf.nh4_mg_L)), 2)}"),
     ])
     parts.append(f"<div class='cols'><div><h3>Plant</h3>{plant}</div><div><h3>Influent</h3>{load}</div></div>")
+    files = [i for i in s.get("inputs") or [] if isinstance(i, dict) and i.get("path")]
+    if files:
+        parts.append("<h3>Input files of the run</h3>" + _grid(["file", "SHA-256 (first 16 digits)"], [
+            [esc(i["path"]), esc(str(i.get("sha256") or "-")[:16])] for i in files]))
     # train table
     rows = []
     for z in lay.zones:
@@ -496,7 +500,8 @@ def _solver(f: StudyFolder) -> str:
 #: summary.json keys the parts above present; any other key is listed as it comes (:func:`_further`).
 _PRESENTED = {"status", "plant", "layout", "objective", "currency", "energy_kWh_per_day", "cost_per_day", "baseline",
               "saving_percent", "cost_saving_percent", "effluent", "min_do_margin_mg_L", "do_margin_mg_L", "limits",
-              "verification", "verified", "marginal_costs", "infeasibility", "smoothing", "solver", "messages"}
+              "verification", "verified", "marginal_costs", "infeasibility", "smoothing", "solver", "messages",
+              "airtaper_version", "inputs"}
 
 
 def _further(f: StudyFolder) -> str:
@@ -536,7 +541,8 @@ def report_html(folder: StudyFolder, images: dict[str, bytes], captions: dict[st
 <style>{_CSS}</style></head><body>
 <p class="caution"><strong>Caution.</strong> {esc(CAUTION)}</p>
 <h1>{esc(title)}</h1>
-<p class="sub">airtaper optimize, layout {esc(s.get('layout', '-'))}; objective: {esc(s.get('objective', '-'))}.
+<p class="sub">airtaper {esc(s.get('airtaper_version', ''))} optimize, layout {esc(s.get('layout', '-'))};
+objective: {esc(s.get('objective', '-'))}.
 Column meanings and units of every file: docs/outputs.md.</p>
 {find_html}
 <h2>Result</h2>{_headline(folder)}

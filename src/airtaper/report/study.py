@@ -8,6 +8,7 @@ ones the optimisation produces:
   ``do_min_mg_L``, ``do_mean_mg_L``, ``nh4_mean_mg_L``, ``otr_kg_h``;
 * ``header`` — one row per period: ``period``, ``pressure_kPa``,
   ``airflow_Sm3_h``, ``power_kW``;
+* ``blowers`` — one row per period and blower, when the run stages blowers;
 * ``timeseries`` — one row per time step and zone (states, airflow, OTR);
 * ``summary`` — a JSON-serialisable dict (see docs and :func:`console_summary`).
 
@@ -26,11 +27,12 @@ from airtaper.report.text import CAUTION
 from airtaper.report.text import fmt as _fmt
 from airtaper.report.text import fmt_margin
 
-OUTPUT_NAMES = ("schedule.csv", "header.csv", "timeseries.csv", "summary.json") + REPORT_NAMES
+OUTPUT_NAMES = ("schedule.csv", "header.csv", "blowers.csv", "timeseries.csv", "summary.json") + REPORT_NAMES
 
 
 def write_study_outputs(out_dir: str | Path, *, schedule: pd.DataFrame, header: pd.DataFrame,
-                        timeseries: pd.DataFrame, summary: dict, figure: bool = True) -> list[Path]:
+                        timeseries: pd.DataFrame, summary: dict, figure: bool = True,
+                        blowers: pd.DataFrame | None = None) -> list[Path]:
     """Write the study's tables and summary into ``out_dir``, then its report from them; return the paths.
 
     The report (``schedule.png``, ``report.html``, ``results.xlsx``) is built from the files just
@@ -40,6 +42,7 @@ def write_study_outputs(out_dir: str | Path, *, schedule: pd.DataFrame, header: 
     written = [
         write_csv_atomic(out / "schedule.csv", schedule),
         write_csv_atomic(out / "header.csv", header),
+        *([write_csv_atomic(out / "blowers.csv", blowers)] if blowers is not None else []),
         write_csv_atomic(out / "timeseries.csv", timeseries),
         write_json_atomic(out / "summary.json", summary),
     ]
