@@ -98,6 +98,70 @@ class StudyFolder:
         return price if len(price) == len(self.period_edges_h) - 1 else None
 
 
+# -- what summary.json must look like for the report: checked once, here -------------------------------
+_NUM, _STR, _BOOL, _LIST = "a number or null", "text", "true or false", "a list"
+_NUMS = {"*": _NUM}
+_EFFLUENT = {"nh4_mean_mg_L": _NUM, "nh4_max_mg_L": _NUM, "tn_mean_mg_L": _NUM}
+SUMMARY_SHAPE: dict = {
+    "status": _STR, "plant": _STR, "layout": _STR, "objective": _STR, "currency": _STR,
+    "energy_kWh_per_day": _NUM, "cost_per_day": _NUM, "saving_percent": _NUM, "cost_saving_percent": _NUM,
+    "min_do_margin_mg_L": _NUM, "do_margin_mg_L": _NUMS, "effluent": _EFFLUENT, "messages": _LIST,
+    "baseline": {"energy_kWh_per_day": _NUM, "cost_per_day": _NUM, "compliant": _BOOL, "effluent": _EFFLUENT},
+    "limits": {"nh4_mean_mg_L": _NUM, "nh4_max_mg_L": _NUM, "tn_mean_mg_L": _NUM, "do_min_mg_L": _NUMS,
+               "do_max_mg_L": _NUMS},
+    "verification": {"verified": _BOOL, "rule": _STR, "effluent": _EFFLUENT, "optimiser_effluent": _EFFLUENT,
+                     "do_margin_mg_L": _NUMS, "optimiser_do_margin_mg_L": _NUMS, "min_do_margin_mg_L": _NUM,
+                     "violations": _LIST, "energy_kWh_per_day": _NUM, "start": _STR},
+    "marginal_costs": [{"limit": _STR, "where": _STR, "kWh_per_day": _NUM, "cost_per_day": _NUM, "per": _STR,
+                        "binding": _BOOL, "limit_value_mg_L": _NUM, "estimated": _STR}],
+    "infeasibility": [{"message": _STR, "zone": _STR, "start_h": _NUM, "end_h": _NUM}],
+    "smoothing": {"weight": _NUM, "penalty": _NUM},
+    "solver": {"iterations": _NUM, "variables": _NUM, "constraints": _NUM, "timings": _NUMS,
+               "attempts": [{"iterations": _NUM, "seconds": _NUM}]},
+    "inputs": [{"path": _STR}],
+}
+
+
+def _shape_problems(value, shape, key: str, file: str) -> list[Problem]:
+    """Where ``value`` departs from ``shape`` (null is allowed anywhere; keys not in the shape pass)."""
+    if value is None:
+        return []
+    if isinstance(shape, dict):
+        if not isinstance(value, dict):
+            return [Problem(file, key, "not a table", _short(value), "a JSON object")]
+        out = []
+        for k, v in value.items():
+            sub = shape.get(k, shape.get("*"))
+            if sub is not None:
+                out += _shape_problems(v, sub, f"{key}.{k}" if key else str(k), file)
+        return out
+    if isinstance(shape, list):
+        if not isinstance(value, list):
+            return [Problem(file, key, "not a list", _short(value), "a JSON array")]
+        return [p for i, v in enumerate(value) for p in _shape_problems(v, shape[0], f"{key}[{i}]", file)]
+    ok = {_NUM: lambda v: isinstance(v, (int, float)) and not isinstance(v, bool),
+          _STR: lambda v: isinstance(v, str), _BOOL: lambda v: isinstance(v, bool),
+          _LIST: lambda v: isinstance(v, list)}[shape](value)
+    return [] if ok else [Problem(file, key, "of the wrong kind", _short(value), shape)]
+
+
+def _short(value):
+    """The value for a message (its repr there), cut to 40 characters."""
+    text = repr(value)
+    return value if len(text) <= 40 else text[:37] + "..."
+
+
+def _table_problems(frame: pd.DataFrame, path: Path, numeric: tuple[str, ...]) -> list[Problem]:
+    out = []
+    for col in numeric:
+        if col in frame and not pd.api.types.is_numeric_dtype(frame[col]):
+            bad = pd.to_numeric(frame[col], errors="coerce").isna() & frame[col].notna()
+            row = int(bad.to_numpy().argmax()) + 2 if bad.any() else None
+            out.append(Problem(str(path), f"row {row}, column {col}" if row else f"column {col}", "not a number",
+                               str(frame[col][bad].iloc[0]) if bad.any() else None, "a number"))
+    return out
+
+
 def _read_csv(path: Path, notes: list[str]) -> pd.DataFrame | None:
     if not path.is_file():
         return None
@@ -145,14 +209,31 @@ def read_study_folder(path: str | Path, layout_path: str | Path | None = None) -
     if not isinstance(summary, dict):
         raise InputError(Problem(str(folder / "summary.json"), "-", "not a JSON object", type(summary).__name__,
                                  "the summary written by airtaper optimize"))
+    problems = _shape_problems(summary, SUMMARY_SHAPE, "", str(folder / "summary.json"))
     notes: list[str] = []
     schedule = _read_csv(folder / "schedule.csv", notes)
     need = {"period_start_h", "period_end_h", "zone", "airflow_Sm3_h"}
     if schedule is None or not need <= set(schedule.columns):
         got = None if schedule is None else ", ".join(schedule.columns)
-        raise InputError(Problem(str(folder / "schedule.csv"), "columns", "not a schedule table", got,
-                                 ", ".join(sorted(need))))
+        raise InputError(problems + [Problem(str(folder / "schedule.csv"), "columns", "not a schedule table", got,
+                                             ", ".join(sorted(need)))])
+    sched_path = folder / "schedule.csv"
+    problems += _table_problems(schedule, sched_path, tuple(c for c in schedule.columns if c != "zone"))
+    if not problems:
+        if schedule[["period_start_h", "period_end_h", "zone"]].isna().any().any() or not len(schedule):
+            problems.append(Problem(str(sched_path), "rows", "a row without its period or zone, or no rows", None,
+                                    "one row per period and zone"))
+        elif schedule.duplicated(["period_start_h", "zone"]).any():
+            dup = schedule[schedule.duplicated(["period_start_h", "zone"])].iloc[0]
+            problems.append(Problem(str(sched_path), f"zone {dup['zone']}, period_start_h {dup['period_start_h']:g}",
+                                    "appears twice", None, "one row per period and zone"))
     tables = {name: _read_csv(folder / name, notes) for name in OPTIONAL_TABLES}
+    for name, frame in tables.items():
+        if frame is not None:
+            problems += _table_problems(frame, folder / name, tuple(
+                c for c in frame.columns if c not in ("zone", "blower", "running")))
+    if problems:
+        raise InputError(problems)
     layout = None
     where, why = _find_layout(folder, summary, layout_path)
     if where is not None:

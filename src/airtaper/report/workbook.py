@@ -77,15 +77,27 @@ def _verification_frame(s: dict) -> pd.DataFrame:
     return pd.DataFrame(rows, columns=["figure", "where", "optimiser", "re-simulated", "limit"])
 
 
+def _cell(v):
+    """A value openpyxl can store: numpy scalars to Python, NaN to empty, control characters escaped."""
+    from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
+
+    if hasattr(v, "item"):
+        v = v.item()
+    if isinstance(v, float) and math.isnan(v):
+        return None
+    if isinstance(v, str):
+        return ILLEGAL_CHARACTERS_RE.sub(lambda m: f"\\x{ord(m.group()):02x}", v)
+    return v
+
+
 def _write_sheet(ws, frame: pd.DataFrame, headings: list[str]) -> None:
     from openpyxl.styles import Font
 
-    ws.append(headings)
+    ws.append([_cell(h) for h in headings])
     for cell in ws[1]:
         cell.font = Font(bold=True)
     for row in frame.itertuples(index=False):
-        ws.append([None if isinstance(v, float) and math.isnan(v) else (v.item() if hasattr(v, "item") else v)
-                   for v in row])
+        ws.append([_cell(v) for v in row])
     ws.freeze_panes = "A2"
     for i, h in enumerate(headings, 1):
         ws.column_dimensions[ws.cell(row=1, column=i).column_letter].width = max(10, min(60, len(str(h)) + 2))
