@@ -70,6 +70,10 @@ def test_report_renders_in_headless_chromium_at_1280_px(demo_dir, tmp_path):
     dom = _chromium("--window-size=1030,900", "--dump-dom", printed.as_uri()).stdout
     probe = json.loads(re.search(r'<pre id="airtaper-probe">(.*?)</pre>', dom).group(1).replace("&quot;", '"'))
     assert probe["scrollWidth"] <= probe["clientWidth"] and probe["errors"] == []
+    # the unmodified page logs nothing to the browser console (Chromium's log of it on stderr)
+    log = _chromium("--window-size=1280,900", "--enable-logging=stderr", "--v=0", "--dump-dom",
+                    (demo_dir / "report.html").as_uri()).stderr
+    assert [line for line in log.splitlines() if ":CONSOLE" in line] == []
     # a screenshot of the unmodified page that is not blank
     shot = tmp_path / "shot.png"
     _chromium("--window-size=1280,2400", f"--screenshot={shot}", (demo_dir / "report.html").as_uri())

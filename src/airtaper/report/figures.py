@@ -300,8 +300,9 @@ def air_side_figure(folder: StudyFolder):
     mid = _period_mid(edges)[k]
     ax.plot([mid], [power[k]], marker="v", color="#b03a2e", markersize=10, linestyle="none",
             label=f"peak {power[k]:,.0f} kW, {edges[k]:g}-{edges[k + 1]:g} h")
-    ax.annotate(f"peak {power[k]:,.0f} kW", (mid, power[k]), xytext=(0, 10), textcoords="offset points",
-                ha="center", fontsize=8, color="#b03a2e")
+    ax.annotate(f"peak {power[k]:,.0f} kW", (mid, power[k]), xytext=(0, -10), textcoords="offset points",
+                ha="center", va="top", fontsize=8, color="#b03a2e",
+                bbox=dict(facecolor="white", edgecolor="none", alpha=0.85, pad=1))
     _include(ax, *shown, pad=0.18)
     ax.set_ylabel("blower power (kW)")
     ax.set_title("Blower power" + (" with the energy price behind it (grey)" if price is not None else ""),
