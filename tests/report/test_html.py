@@ -177,7 +177,20 @@ def test_blowers_csv_when_present_adds_the_run_chart_and_table(demo_copy):
                  airflow_Sm3_h=1000.0, power_kW=20.0, efficiency=0.7, discharge_gauge_kPa=56.0,
                  starts=int(b == "B1" and i % 2 == 0)) for i in range(len(head)) for b in ("B1", "B3")]
     pd.DataFrame(rows).to_csv(demo_copy / "blowers.csv", index=False)
+    s = json.loads((demo_copy / "summary.json").read_text())
+    s["dispatch"] = {"energy_cost": 300.0, "demand_charge": 40.5, "start_costs": 12.0, "cost_per_day": 352.5,
+                     "rounds": [{"round": 1}, {"round": 2}], "stopped": "the dispatch repeats",
+                     "blowers": {"B1": {"running_h": 12.0, "starts": 12, "out_of_service": False},
+                                 "B2": {"running_h": 0.0, "starts": 0, "out_of_service": True}},
+                     "swing_zones": {"Z6": {"aerated_periods": [1, 2, 3], "switches": 2}},
+                     "feasibility_breaches": ["B3 runs below its minimum airflow at 03:00"]}
+    (demo_copy / "summary.json").write_text(json.dumps(s))
     page = render(read_study_folder(demo_copy))["report.html"].decode()
+    assert "energy 300.00 + demand charge 40.50 + starts 12.00 = 352.50 EUR/d" in page
+    assert "Out of service: B2." in page and "Z6: aerated in 3 of 24 periods, 2 switches per day" in page
+    assert "<td>2 (the dispatch repeats)</td>" in page
+    box = page[page.index("class='findings'"):page.index("<h2>Result</h2>")]
+    assert "Blowers or grids: B3 runs below its minimum airflow at 03:00" in box
     assert "<h3>Blowers over the day</h3>" in page and "Blower run chart." in page
     table = page[page.index("<h3>Blowers over the day</h3>"):]
     assert "<td class='left'>B1</td><td>12.0</td><td>480</td><td>12</td>" in table

@@ -487,7 +487,8 @@ def blower_figure(folder: StudyFolder):
                 ax.text((x0 + x1) / 2, i + 0.5, f"{r['airflow_Sm3_h']:,.0f}", ha="center", va="center",
                         fontsize=6.5, rotation=90, color="white")
         if "starts" in rows:
-            ax.text(edges[-1] + 0.2, i + 0.5, f"{int(rows['starts'].sum())} starts", va="center", fontsize=8)
+            n = int(rows["starts"].sum())
+            ax.text(edges[-1] + 0.2, i + 0.5, f"{n} start{'' if n == 1 else 's'}", va="center", fontsize=8)
     ax.set_ylim(len(names), 0)
     ax.set_yticks(np.arange(len(names)) + 0.5, names)
     ax.set_ylabel("blower")

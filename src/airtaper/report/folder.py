@@ -119,6 +119,10 @@ SUMMARY_SHAPE: dict = {
     "solver": {"iterations": _NUM, "variables": _NUM, "constraints": _NUM, "timings": _NUMS,
                "attempts": [{"iterations": _NUM, "seconds": _NUM}]},
     "inputs": [{"path": _STR}],
+    "dispatch": {"energy_cost": _NUM, "demand_charge": _NUM, "start_costs": _NUM, "cost_per_day": _NUM,
+                 "peak_kW": _NUM, "rounds": _LIST, "converged": _BOOL, "stopped": _STR, "feasibility_breaches": _LIST,
+                 "blowers": {"*": {"running_h": _NUM, "starts": _NUM, "out_of_service": _BOOL}},
+                 "swing_zones": {"*": {"aerated_periods": _LIST, "switches": _NUM}}},
 }
 
 

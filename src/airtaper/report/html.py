@@ -128,6 +128,8 @@ def _findings(f: StudyFolder) -> list[str]:
         out.append(str(item.get("message", item)))
     for v in ver.get("violations") or []:
         out.append(f"Verification: {v}")
+    for v in (s.get("dispatch") or {}).get("feasibility_breaches") or []:
+        out.append(f"Blowers or grids: {v}")
     for m in s.get("messages") or []:
         text = str(m)
         if text.startswith("WARNING: the re-simulated") and ver.get("violations"):
@@ -174,6 +176,11 @@ def _headline(f: StudyFolder) -> str:
             rows.append(("baseline cost", f"{fmt(base.get('cost_per_day'), 2)} {esc(cur)}/d"))
         if s.get("cost_saving_percent") is not None and not infeasible:
             rows.append(("cost saving against the baseline", f"{fmt(s.get('cost_saving_percent'))} %"))
+    dp = s.get("dispatch") or {}
+    if dp.get("cost_per_day") is not None and dp.get("energy_cost") is not None:
+        rows.append(("bill split", f"energy {fmt(dp['energy_cost'], 2)} + demand charge {fmt(dp.get('demand_charge'), 2)}"
+                                   f" + starts {fmt(dp.get('start_costs'), 2)} = {fmt(dp['cost_per_day'], 2)} "
+                                   f"{esc(cur)}/d"))
     head = f.header
     if head is not None and "power_kW" in head and len(head):
         k = int(head["power_kW"].to_numpy().argmax())
@@ -367,6 +374,16 @@ def _results(f: StudyFolder, images: dict, captions: dict) -> str:
             starts = int(g["starts"].sum()) if "starts" in g else None
             rows.append([esc(name), fmt(hours), fmt(energy, 0), fmt(starts, 0) if starts is not None else "-"])
         parts.append("<h3>Blowers over the day</h3>" + _grid(["blower", "running (h)", "energy (kWh/d)", "starts"], rows))
+    dp = f.summary.get("dispatch") or {}
+    off = [esc(b) for b, v in (dp.get("blowers") or {}).items() if isinstance(v, dict) and v.get("out_of_service")]
+    if off:
+        parts.append(f"<p>Out of service: {', '.join(off)}.</p>")
+    swing = dp.get("swing_zones") or {}
+    if swing:
+        parts.append("<h3>Swing zones</h3><ul class='plain'>" + "".join(
+            f"<li>{esc(z)}: aerated in {len(v.get('aerated_periods') or [])} of {len(f.period_edges_h) - 1} periods, "
+            f"{fmt(v.get('switches'), 0)} switches per day</li>" for z, v in swing.items() if isinstance(v, dict))
+            + "</ul>")
     return "".join(parts)
 
 
@@ -481,6 +498,10 @@ def _solver(f: StudyFolder) -> str:
     rows = [("status", esc(sol.get("status"))), ("message", esc(sol.get("message"))),
             ("iterations", fmt(sol.get("iterations"), 0)), ("variables", fmt(sol.get("variables"), 0)),
             ("constraints", fmt(sol.get("constraints"), 0))]
+    dp = f.summary.get("dispatch") or {}
+    if dp.get("rounds") is not None:
+        rows.append(("blower dispatch rounds", f"{len(dp['rounds'])}" + (f" ({esc(dp['stopped'])})" if dp.get("stopped")
+                                                                          else "")))
     sm = f.summary.get("smoothing") or {}
     if sm:
         rows.append(("smoothing weight / penalty", f"{fmt(sm.get('weight'), 4)} / {fmt(sm.get('penalty'), 4)}"))
@@ -501,7 +522,7 @@ def _solver(f: StudyFolder) -> str:
 _PRESENTED = {"status", "plant", "layout", "objective", "currency", "energy_kWh_per_day", "cost_per_day", "baseline",
               "saving_percent", "cost_saving_percent", "effluent", "min_do_margin_mg_L", "do_margin_mg_L", "limits",
               "verification", "verified", "marginal_costs", "infeasibility", "smoothing", "solver", "messages",
-              "airtaper_version", "inputs"}
+              "airtaper_version", "inputs", "dispatch"}
 
 
 def _further(f: StudyFolder) -> str:

@@ -45,6 +45,9 @@ def _summary_rows(s: dict) -> list[tuple[str, object, str]]:
         ("smallest DO margin, re-simulated", ver.get("min_do_margin_mg_L"), "mg/L"),
         ("verified", ver.get("verified"), ""),
     ]
+    dp = s.get("dispatch") or {}
+    rows += [("energy cost", dp.get("energy_cost"), f"{cur}/d"), ("demand charge", dp.get("demand_charge"), f"{cur}/d"),
+             ("start costs", dp.get("start_costs"), f"{cur}/d"), ("peak blower power", dp.get("peak_kW"), "kW")]
     for i, m in enumerate(s.get("messages") or [], 1):
         rows.append((f"message {i}", str(m), ""))
     for i, m in enumerate(s.get("infeasibility") or [], 1):
