@@ -110,3 +110,21 @@ def test_damaged_tables_give_the_error_form(small, tmp_path):
     with pytest.raises(InputError) as err:
         read_study_folder(copy_dir)
     assert "appears twice" in str(err.value.problems[0])
+
+
+def test_a_run_stopped_before_any_schedule_still_gets_its_report(small, tmp_path):
+    # a pre-screen may stop the run before solving: the tables then hold their headings only
+    out, summary = small
+    import shutil
+
+    d = tmp_path / "stopped"
+    shutil.copytree(out, d)
+    for name in ("schedule.csv", "header.csv", "timeseries.csv"):
+        head = (d / name).read_text().splitlines()[0]
+        (d / name).write_text(head + "\n")
+    s = dict(summary, status="infeasible", infeasibility=[{"message": "the grids cannot meet the peak oxygen demand"}])
+    (d / "summary.json").write_text(json.dumps(s))
+    files = render(read_study_folder(d))
+    page = files["report.html"].decode()
+    assert "No schedule: the run stopped" in page and "the grids cannot meet the peak oxygen demand" in page
+    assert "schedule.png" not in files and files["results.xlsx"][:2] == b"PK"

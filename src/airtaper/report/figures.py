@@ -80,8 +80,10 @@ def _period_mid(edges):
 # -- airflow ------------------------------------------------------------------------------------
 def airflow_figure(folder: StudyFolder):
     """Zone x hour heat map of airflow, and airflow per diffuser against each zone's range."""
-    plt = _plt()
     air = folder.pivot("airflow_Sm3_h")
+    if air is None:
+        return None
+    plt = _plt()
     edges = folder.period_edges_h
     zones = folder.zones
     ranges = folder.zone_airflow_range_Sm3_h()
@@ -171,6 +173,8 @@ def airflow_figure(folder: StudyFolder):
 # -- DO -----------------------------------------------------------------------------------------
 def do_figure(folder: StudyFolder):
     """DO of every zone under air over the day, each with its minimum (and maximum)."""
+    if not folder.zones:
+        return None
     plt = _plt()
     edges = folder.period_edges_h
     lim = folder.summary.get("limits", {}) or {}

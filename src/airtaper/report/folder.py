@@ -48,12 +48,18 @@ class StudyFolder:
     @property
     def period_edges_h(self) -> np.ndarray:
         """Period boundaries over the day, h (n_periods + 1 values)."""
+        if not len(self.schedule):  # no schedule (a run stopped before solving): the layout's periods
+            if self.layout is None:
+                return np.array([0.0, 24.0])
+            h = self.layout.horizon
+            return np.arange(h.n_periods + 1) * h.period_h
         first = self.schedule.drop_duplicates("period_start_h").sort_values("period_start_h")
         return np.append(first["period_start_h"].to_numpy(float), first["period_end_h"].to_numpy(float)[-1])
 
     def pivot(self, column: str) -> pd.DataFrame | None:
-        """``column`` of the schedule as zones (rows, flow order) x period start hour (columns)."""
-        if column not in self.schedule:
+        """``column`` of the schedule as zones (rows, flow order) x period start hour (columns); None when the
+        schedule has no such column or no rows."""
+        if column not in self.schedule or not len(self.schedule):
             return None
         table = self.schedule.pivot(index="zone", columns="period_start_h", values=column)
         return table.reindex(self.zones)
@@ -105,7 +111,7 @@ _EFFLUENT = {"nh4_mean_mg_L": _NUM, "nh4_max_mg_L": _NUM, "tn_mean_mg_L": _NUM}
 SUMMARY_SHAPE: dict = {
     "status": _STR, "plant": _STR, "layout": _STR, "objective": _STR, "currency": _STR,
     "energy_kWh_per_day": _NUM, "cost_per_day": _NUM, "saving_percent": _NUM, "cost_saving_percent": _NUM,
-    "min_do_margin_mg_L": _NUM, "do_margin_mg_L": _NUMS, "effluent": _EFFLUENT, "messages": _LIST,
+    "min_do_margin_mg_L": _NUM, "optimiser_min_do_margin_mg_L": _NUM, "do_margin_mg_L": _NUMS, "effluent": _EFFLUENT, "messages": _LIST,
     "baseline": {"energy_kWh_per_day": _NUM, "cost_per_day": _NUM, "compliant": _BOOL, "effluent": _EFFLUENT},
     "limits": {"nh4_mean_mg_L": _NUM, "nh4_max_mg_L": _NUM, "tn_mean_mg_L": _NUM, "do_min_mg_L": _NUMS,
                "do_max_mg_L": _NUMS},
@@ -157,6 +163,8 @@ def _short(value):
 
 def _table_problems(frame: pd.DataFrame, path: Path, numeric: tuple[str, ...]) -> list[Problem]:
     out = []
+    if not len(frame):
+        return out
     for col in numeric:
         if col in frame and not pd.api.types.is_numeric_dtype(frame[col]):
             bad = pd.to_numeric(frame[col], errors="coerce").isna() & frame[col].notna()
@@ -224,14 +232,15 @@ def read_study_folder(path: str | Path, layout_path: str | Path | None = None) -
     sched_path = folder / "schedule.csv"
     problems += _table_problems(schedule, sched_path, tuple(c for c in schedule.columns if c != "zone"))
     if not problems:
-        if schedule[["period_start_h", "period_end_h", "zone"]].isna().any().any() or not len(schedule):
-            problems.append(Problem(str(sched_path), "rows", "a row without its period or zone, or no rows", None,
+        if schedule[["period_start_h", "period_end_h", "zone"]].isna().any().any():
+            problems.append(Problem(str(sched_path), "rows", "a row without its period or zone", None,
                                     "one row per period and zone"))
         elif schedule.duplicated(["period_start_h", "zone"]).any():
             dup = schedule[schedule.duplicated(["period_start_h", "zone"])].iloc[0]
             problems.append(Problem(str(sched_path), f"zone {dup['zone']}, period_start_h {dup['period_start_h']:g}",
                                     "appears twice", None, "one row per period and zone"))
     tables = {name: _read_csv(folder / name, notes) for name in OPTIONAL_TABLES}
+    tables = {name: (t if t is not None and len(t) else None) for name, t in tables.items()}  # empty: absent
     for name, frame in tables.items():
         if frame is not None:
             problems += _table_problems(frame, folder / name, tuple(

@@ -325,6 +325,8 @@ def _figure(images: dict, name: str, caption: str) -> str:
 def _results(f: StudyFolder, images: dict, captions: dict) -> str:
     parts = []
     air = f.pivot("airflow_Sm3_h")
+    if air is None:
+        return "<p class='finding'>No schedule: the run stopped before an airflow schedule was found (see the findings).</p>"
     over = _over_max(f)
     spots = _finding_cells(f, air)
     caption = "Airflow by zone, Sm3/h, hour the period starts" + (

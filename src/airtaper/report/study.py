@@ -70,7 +70,8 @@ def console_summary(summary: dict) -> str:
         f"   (baseline {_fmt(base.get('cost_per_day'), 2)} {cur}/d)",
         f"effluent NH4-N    mean {_fmt(eff.get('nh4_mean_mg_L'), 2)} mg/L, max period {_fmt(eff.get('nh4_max_mg_L'), 2)} mg/L"
         f", TN mean {_fmt(eff.get('tn_mean_mg_L'), 2)} mg/L",
-        _do_margin_line(summary.get("min_do_margin_mg_L"), ver.get("min_do_margin_mg_L")),
+        _do_margin_line(summary.get("optimiser_min_do_margin_mg_L", summary.get("min_do_margin_mg_L")),
+                        ver.get("min_do_margin_mg_L")),
         f"verified          {_fmt(ver.get('verified'))}",
     ]
     for item in summary.get("marginal_costs") or []:

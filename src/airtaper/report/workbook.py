@@ -41,7 +41,7 @@ def _summary_rows(s: dict) -> list[tuple[str, object, str]]:
         ("effluent NH4-N daily mean", eff.get("nh4_mean_mg_L"), "mg N/L"),
         ("effluent NH4-N largest period mean", eff.get("nh4_max_mg_L"), "mg N/L"),
         ("effluent TN daily mean", eff.get("tn_mean_mg_L"), "mg N/L"),
-        ("smallest DO margin, optimiser", s.get("min_do_margin_mg_L"), "mg/L"),
+        ("smallest DO margin, optimiser", s.get("optimiser_min_do_margin_mg_L", s.get("min_do_margin_mg_L")), "mg/L"),
         ("smallest DO margin, re-simulated", ver.get("min_do_margin_mg_L"), "mg/L"),
         ("verified", ver.get("verified"), ""),
     ]
