@@ -165,7 +165,8 @@ def test_optional_inputs_absent_are_left_out_without_error(demo_copy, tmp_path):
     page = (demo_copy / "report.html").read_text()
     assert "moved-away.toml named in summary.json was not found" in page
     assert "Baseline airflow" not in page and "Air side by hour" not in page
-    assert {p.name for p in paths} == {"schedule.png", "report.html", "results.xlsx"}
+    assert {p.name for p in paths} == {"schedule.png", "do_by_zone.png", "report.html", "results.xlsx"}
+    assert not (demo_copy / "train.png").exists() and not (demo_copy / "effluent.png").exists()  # stale ones go
     # given again with --layout's path, the inputs come back
     write_report(demo_copy, layout_path=Path(__file__).resolve().parents[2] / "layouts" / "demo.toml", figures=False)
     assert "<h3>Train</h3>" in (demo_copy / "report.html").read_text()

@@ -35,7 +35,11 @@ def _tables(n_periods=4, zones=("Z2", "Z3")):
 def test_all_outputs_written(tmp_path):
     schedule, header, ts, summary = _tables()
     paths = write_study_outputs(tmp_path, schedule=schedule, header=header, timeseries=ts, summary=summary)
-    assert sorted(p.name for p in paths) == sorted(set(OUTPUT_NAMES) - {"blowers.csv"})  # no blowers given
+    names = {p.name for p in paths}
+    assert names <= set(OUTPUT_NAMES) and len(names) == len(paths)
+    # no layout, no baseline columns, no blowers: those figures are left out, the rest written
+    assert names == {"schedule.csv", "header.csv", "timeseries.csv", "summary.json", "schedule.png", "do_by_zone.png",
+                     "effluent.png", "power_and_pressure.png", "report.html", "results.xlsx"}
     assert json.loads((tmp_path / "summary.json").read_text())["saving_percent"] == 20.0
     assert (tmp_path / "schedule.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     page = (tmp_path / "report.html").read_text()

@@ -1,7 +1,7 @@
 """`airtaper report DIR`: rebuild the report and workbook of a finished output folder, without solving.
 
 Reads the folder's ``summary.json`` and tables (and the layout the summary names, or
-``--layout``) and writes ``schedule.png``, ``report.html`` and ``results.xlsx`` into
+``--layout``) and writes the figures' PNG files, ``report.html`` and ``results.xlsx`` into
 the folder, each atomically, through the same
 :func:`airtaper.report.build.write_report` that ``airtaper optimize`` runs. Exit
 codes: 0 done; 2 the folder is not a finished output folder, or ``--layout`` does
@@ -21,7 +21,7 @@ def register(subparsers) -> None:
     p.add_argument("folder", metavar="DIR", help="output folder of airtaper optimize")
     p.add_argument("--layout", metavar="LAYOUT",
                    help="the layout of the run, when the path recorded in summary.json no longer leads to it")
-    p.add_argument("--no-figure", action="store_true", help="no figures (and no schedule.png)")
+    p.add_argument("--no-figure", action="store_true", help="no figures (no PNG files, none in the page)")
     p.set_defaults(handler=run)
 
 

@@ -148,7 +148,13 @@ def _shape_problems(value, shape, key: str, file: str) -> list[Problem]:
     if isinstance(shape, list):
         if not isinstance(value, list):
             return [Problem(file, key, "not a list", _short(value), "a JSON array")]
-        return [p for i, v in enumerate(value) for p in _shape_problems(v, shape[0], f"{key}[{i}]", file)]
+        out = []
+        for i, v in enumerate(value):
+            if v is None and isinstance(shape[0], dict):
+                out.append(Problem(file, f"{key}[{i}]", "an empty entry", None, "a JSON object"))
+            else:
+                out += _shape_problems(v, shape[0], f"{key}[{i}]", file)
+        return out
     ok = {_NUM: lambda v: isinstance(v, (int, float)) and not isinstance(v, bool),
           _STR: lambda v: isinstance(v, str), _BOOL: lambda v: isinstance(v, bool),
           _LIST: lambda v: isinstance(v, list)}[shape](value)

@@ -35,7 +35,7 @@ def write_study_outputs(out_dir: str | Path, *, schedule: pd.DataFrame, header: 
                         blowers: pd.DataFrame | None = None) -> list[Path]:
     """Write the study's tables and summary into ``out_dir``, then its report from them; return the paths.
 
-    The report (``schedule.png``, ``report.html``, ``results.xlsx``) is built from the files just
+    The report (the figures' PNG files, ``report.html``, ``results.xlsx``) is built from the files just
     written, by the same :func:`~airtaper.report.build.write_report` that ``airtaper report`` runs.
     """
     out = Path(out_dir)
