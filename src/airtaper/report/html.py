@@ -438,14 +438,16 @@ def _verification(f: StudyFolder) -> str:
         rng = (f"its range {lo:g}-{hi:g} mg/L" if lo is not None and hi is not None else
                f"its minimum {lo:g} mg/L" if lo is not None else f"its maximum {hi:g} mg/L" if hi is not None else
                "its range")
+        leaves = ("falls below its minimum" if lo is not None and hi is None else
+                  "rises above its maximum" if hi is not None and lo is None else "leaves its range")
         if m is None:
             state = "-"
         elif m >= 0:
             state = "<span class='ok'>inside its range</span>"
         elif f"zone {z}:" in violations:
-            state = f"<span class='finding'>leaves its range by {fmt(-m, 3)} mg/L: breaks the rule</span>"
+            state = f"<span class='finding'>{leaves} by {fmt(-m, 3)} mg/L: breaks the rule</span>"
         else:
-            state = f"<span class='finding'>leaves its range by {fmt_margin(-m).lstrip('+')} mg/L</span> (within the tolerance)"
+            state = f"<span class='finding'>{leaves} by {fmt_margin(-m).lstrip('+')} mg/L</span> (within the tolerance)"
         rows.append([f"DO of {esc(z)} against {esc(rng)}: smallest margin (mg/L)", fmt_margin(o_do.get(z)), fmt_margin(m),
                      "0", state])
     # margins other engineers' verification adds (zone -> mg/L), shown as they come
