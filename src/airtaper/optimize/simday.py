@@ -55,6 +55,8 @@ class SimDay:
     seconds: float
     extra: dict = field(default_factory=dict)
     do_extremes: pd.DataFrame | None = None  # period (0-based), zone, do_min/max_mg_L and their times
+    node_airflow: np.ndarray | None = None  # (nodes, zones) airflow at the quadrature nodes, Sm3/h
+    node_period: np.ndarray | None = None  # (nodes,) 0-based period of every node
     setpoint_shortfalls: list = field(default_factory=list)  # DO setpoints the control could not hold
 
     def start_state(self) -> tuple[dict, float | None]:
@@ -145,6 +147,7 @@ def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=
                   conc=conc, power_kW=power, energy_kWh_per_day=energy, cost_per_day=cost, figures=figs,
                   converged=bool(res.converged), days=int(res.days), seconds=time.perf_counter() - t0,
                   extra={"waste_m3_d": eff["q_waste_m3_d"].to_numpy(), "y_end": res.y_end}, do_extremes=ex,
+                  node_airflow=quad.airflow_Sm3_h, node_period=quad.period,
                   setpoint_shortfalls=shortfalls)
 
 

@@ -39,6 +39,7 @@ from airtaper.optimize.figures import day_figures
 from airtaper.optimize.initialise import BASE_OPTIONS, LADDER, Rung, point_hours, start_airflow, start_from_day
 from airtaper.optimize.marginal import marginal_costs
 from airtaper.optimize.problem import attach_problem, fix_slacks, point_weights, settings_for
+from airtaper.optimize.prescreen import outside_tested_range, prescreen
 from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.scaling import apply_scaling
 from airtaper.optimize.verify import verify_day
@@ -64,6 +65,7 @@ class StudyOptions:
     hold_do: bool = True  # back-off rounds so the DO minimum holds in continuous time (optimize/backoff.py)
     complying_baseline: bool = True  # when the baseline breaks a limit, search the lowest complying setpoint
     marginal: bool = True
+    prescreen: bool = True  # equipment bounds and a full-air day before anything else (optimize/prescreen.py)
     ipopt_options: dict = field(default_factory=dict)
     ladder: tuple[Rung, ...] = LADDER
 
@@ -369,6 +371,12 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     t0 = time.perf_counter()
     opts = options or StudyOptions()
     prog = progress or Silent()
+    screen = None
+    if opts.prescreen:
+        prog.phase("pre-screen: equipment bounds and every grid at full air")
+        screen = prescreen(layout)
+        if not screen["feasible"]:
+            return _screened_out(layout, screen, time.perf_counter() - t0)
     study = DiurnalOptimisation(layout, opts, prog)
     base = study.run_baseline()
     study.build()
@@ -435,6 +443,11 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         study.timings["complying_baseline_s"] = time.perf_counter() - t
     savings = saving_figures(base, complying, energy, cost, status)
     messages.extend(savings.pop("notes"))
+    periods = np.arange(layout.horizon.n_periods)
+    untested = outside_tested_range(layout, study.schedule_by_zone(), periods,
+                                    "optimum" if status in ("optimal", "unverified") else "elastic solution") + \
+        outside_tested_range(layout, _node_airflow(base.day), base.day.node_period, "baseline")
+    messages.extend(u["message"] for u in untested)
     exit_code = {"optimal": EXIT_OK, "infeasible": EXIT_INFEASIBLE, "unverified": EXIT_UNVERIFIED,
                  "failed": EXIT_FAILURE}[status]
     study.timings["total_s"] = time.perf_counter() - t0
@@ -464,6 +477,8 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         "verified": None if verification is None else verification["verified"],
         "marginal_costs": marginal,
         "infeasibility": infeasibility,
+        "prescreen": screen,
+        "outside_tested_range": untested,
         "smoothing": {"weight": study.m.opt.settings.smoothing_weight,
                       "penalty": float(pyo.value(study.m.opt.smoothing))},
         "solver": {
@@ -480,6 +495,45 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     }
     return StudyResult(schedule=schedule, header=header, timeseries=timeseries, summary=_jsonable(summary),
                        exit_code=exit_code, study=study)
+
+
+def _node_airflow(day) -> dict:
+    """Zone id -> airflow at the simulated day's quadrature nodes."""
+    return {z.id: day.node_airflow[:, i] for i, z in enumerate(day.layout.zones)}
+
+
+def _screened_out(layout: Layout, screen: dict, seconds: float) -> StudyResult:
+    """The result of a run the pre-screen stops: no schedule, the findings, exit code 3."""
+    schedule = pd.DataFrame(columns=["period_start_h", "period_end_h", "zone", "airflow_Sm3_h",
+                                     "airflow_per_diffuser_Sm3_h", "do_min_mg_L", "do_mean_mg_L", "nh4_mean_mg_L",
+                                     "otr_kg_h"])
+    header = pd.DataFrame(columns=["period", "pressure_kPa", "airflow_Sm3_h", "power_kW"])
+    timeseries = pd.DataFrame(columns=["time_h", "zone", *ASM1_COMPONENTS, "airflow_Sm3_h", "otr_kg_h"])
+    lim = layout.limits
+    summary = {
+        "status": "infeasible",
+        "plant": layout.plant.name,
+        "layout": layout.path,
+        "objective": layout.operation.objective,
+        "currency": layout.tariff.currency if layout.tariff else "",
+        "energy_kWh_per_day": None, "cost_per_day": None, "baseline": None,
+        "saving_percent": None, "cost_saving_percent": None, "baseline_compliant": None, "complying_baseline": None,
+        "effluent": None, "min_do_margin_mg_L": None, "do_margin_mg_L": None,
+        "limits": {"nh4_mean_mg_L": lim.nh4_mean_mg_L, "nh4_max_mg_L": lim.nh4_max_mg_L,
+                   "tn_mean_mg_L": lim.tn_mean_mg_L,
+                   "do_min_mg_L": {z.id: z.do_min_mg_L for z in layout.zones if z.do_min_mg_L is not None},
+                   "do_max_mg_L": {z.id: z.do_max_mg_L for z in layout.zones if z.do_max_mg_L is not None}},
+        "verification": {"verified": None, "skipped": True}, "verified": None,
+        "marginal_costs": [],
+        "infeasibility": screen["findings"],
+        "prescreen": screen,
+        "outside_tested_range": [],
+        "solver": {"status": None, "timings": {"prescreen_s": screen["seconds"], "total_s": seconds}},
+        "messages": ["the pre-screen shows the limits cannot all be met (no optimisation was run): "
+                     + f["message"] for f in screen["findings"]] + ["no saving is given: the limits cannot be met"],
+    }
+    return StudyResult(schedule=schedule, header=header, timeseries=timeseries, summary=_jsonable(summary),
+                       exit_code=EXIT_INFEASIBLE)
 
 
 def _jsonable(obj):

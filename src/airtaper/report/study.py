@@ -193,7 +193,7 @@ def write_study_outputs(out_dir: str | Path, *, schedule: pd.DataFrame, header: 
         write_json_atomic(out / "summary.json", summary),
     ]
     png = None
-    if figure:
+    if figure and not schedule.empty:  # no schedule when the pre-screen finds the limits cannot be met
         png = schedule_figure_png(schedule, header, timeseries, f"{summary.get('plant', '')}: tapered schedule",
                                   limits=summary.get("limits"))
         written.append(write_bytes_atomic(out / "schedule.png", png))
