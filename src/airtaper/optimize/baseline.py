@@ -60,6 +60,7 @@ class Baseline:
         f = self.day.figures
         return {
             "control": "uniform DO setpoint (ideal control, independent simulator)",
+            "setpoint_mg_L": self.setpoint_mg_L,
             "do_setpoint_mg_L": self.setpoints_mg_L,
             "energy_kWh_per_day": self.energy_kWh_per_day,
             "cost_per_day": self.cost_per_day,
