@@ -20,6 +20,21 @@ def test_shortfalls_name_only_the_zone_periods_below_the_minimum(demo):
     backoff = {(z, p): 0.0 for z in ("Z2", "Z3") for p in range(1, 25)}
     found = shortfalls(demo, lows, backoff, list(range(1, 25)))
     assert found == {("Z2", 6): pytest.approx(2 * ACCEPT_mg_L)}  # Z1 (anoxic, no DO minimum) is not asked
+    highs = {"Z6": np.full(24, 2.0)}
+    highs["Z6"][3] = 2.5 + 0.3  # Z6's DO maximum is 2.5 mg/L (layouts/demo.toml)
+    low, high = shortfalls(demo, lows, backoff, list(range(1, 25)), highs, {("Z6", p): 0.0 for p in range(1, 25)})
+    assert low == found and high == {("Z6", 4): pytest.approx(0.3)}
+
+
+def test_back_offs_leave_half_of_a_zone_s_do_range_open(demo):
+    from airtaper.optimize.backoff import OPEN_SHARE, _keep_band_open
+
+    low = {("Z6", 1): 0.2, ("Z6", 2): 1.0}
+    high = {("Z6", 1): 1.0, ("Z6", 2): 0.5}
+    _keep_band_open(demo, (low, high))
+    room = (1.0 - OPEN_SHARE) * (2.5 - 1.0)  # Z6: DO range 1.0..2.5 mg/L (layouts/demo.toml)
+    assert low[("Z6", 1)] == 0.2 and high[("Z6", 1)] == pytest.approx(room - 0.2)  # the minimum first
+    assert low[("Z6", 2)] == pytest.approx(room) and high[("Z6", 2)] == pytest.approx(0.0)
 
 
 @pytest.mark.solver
@@ -33,6 +48,7 @@ def test_demo_holds_the_do_minimum_in_continuous_time(demo):
     for zone, margin in v["do_margin_mg_L"].items():
         assert margin >= -DO_ACCEPT_mg_L, zone
     assert s["min_do_margin_mg_L"] == v["min_do_margin_mg_L"] >= -DO_ACCEPT_mg_L
+    assert v["do_min_margin_mg_L"] >= -DO_ACCEPT_mg_L
     hold = s["do_hold"]
     # the demo dips between the optimiser's time points without it (0.031 mg/L, issue 12): it needs the back-off
     assert hold["rounds"] >= 1 and hold["largest_backoff_mg_L"] > 0.0

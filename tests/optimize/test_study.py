@@ -38,7 +38,8 @@ def test_optimum_beats_the_baseline_and_verifies(solved, three_tank_diurnal):
     v = s["verification"]
     assert v["verified"] is True and v["violations"] == []
     # the DO minimum holds over the re-simulated continuous day (issue 12: within 0.01 mg/L)
-    assert v["min_do_margin_mg_L"] >= -0.01 and s["min_do_margin_mg_L"] == v["min_do_margin_mg_L"]
+    assert v["do_min_margin_mg_L"] >= -0.01 and v["min_do_margin_mg_L"] >= -0.01
+    assert s["min_do_margin_mg_L"] == v["min_do_margin_mg_L"]
     # the independent simulator's day meets every limit (effluent within 2 %, DO within 0.05 mg/L)
     sim_figs = dict(v["effluent"], do_margin_mg_L=v["do_margin_mg_L"])
     assert violations(three_tank_diurnal, sim_figs, effluent_tolerance=0.02, do_tolerance_mg_L=0.05) == []
@@ -140,7 +141,8 @@ def test_tapered_shape_on_the_plug_flow_demo(demo):
     """At the peak period the first aerated zone gets the most air per volume (plug-flow demand)."""
     res = run_optimization(with_periods(demo, 6, steps_per_period=2), StudyOptions(marginal=False))
     assert res.summary["status"] in ("optimal", "unverified")
-    assert res.summary["verification"]["min_do_margin_mg_L"] >= -0.01  # continuous time (issue 12)
+    # the DO minimum holds in continuous time (issue 12) even on these 2-hour steps (Z6's DO maximum may not)
+    assert res.summary["verification"]["do_min_margin_mg_L"] >= -0.01
     sched = res.schedule
     totals = sched.groupby("period_start_h")["airflow_Sm3_h"].sum()
     peak = totals.idxmax()

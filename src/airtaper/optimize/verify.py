@@ -70,6 +70,10 @@ def verify_day(layout: Layout, schedule: dict, optimiser_figures: dict, m=None):
         "optimiser_do_margin_mg_L": optimiser_figures["do_margin_mg_L"],
         "do_lowest": {r.zone: {"do_mg_L": float(r.do_min_mg_L), "time_h": float(r.do_min_time_h)}
                       for r in lows.itertuples()},
+        # the DO minimum alone: lowest DO over continuous time less the minimum, the smallest over the zones
+        "do_min_margin_mg_L": min((float(r.do_min_mg_L) - layout.zone(r.zone).do_min_mg_L for r in lows.itertuples()
+                                   if layout.zone(r.zone).do_min_mg_L is not None and layout.zone(r.zone).grid
+                                   is not None and layout.zone(r.zone).kind == "aerated"), default=None),
         "method": "effluent means integrated over the day (quadrature of the dense output); "
                   "DO extremes over continuous time",
         "violations": broken,
