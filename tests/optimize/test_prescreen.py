@@ -101,3 +101,16 @@ def test_airflow_outside_the_tested_range_is_flagged_by_span(demo6):
     assert [(sp["start_h"], sp["end_h"]) for sp in f["spans"]] == [(4.0, 12.0), (16.0, 20.0)]
     assert [sp["airflow_per_diffuser_Sm3_h"] for sp in f["spans"]] == pytest.approx([10.0, 8.0])
     assert outside_tested_range(demo6, {"Z2": np.full(6, 3.0 * z2.grid.count)}, np.arange(6), "optimum") == []
+
+
+def test_a_full_air_day_that_cannot_be_simulated_leaves_the_equipment_bounds(demo6, monkeypatch):
+    import airtaper.optimize.simday as simday
+    from airtaper.simulate.steady import SteadyStateError
+
+    def fail(*args, **kwargs):
+        raise SteadyStateError("steady state not reached")
+
+    monkeypatch.setattr(simday, "simulate_day", fail)
+    screen = prescreen(demo6)
+    assert screen["feasible"] and screen["full_air"] is None
+    assert "only the equipment bounds were screened" in screen["note"]

@@ -38,8 +38,11 @@ def run(args) -> int:
     from airtaper.optimize.prescreen import prescreen
 
     screen = prescreen(layout)
+    if screen["note"]:
+        print(f"pre-screen: {screen['note']}")
     if screen["feasible"]:
-        print(f"pre-screen: no limit is out of reach at full air ({screen['seconds']:.1f} s)")
+        reach = "with the equipment" if screen["note"] else "at full air"
+        print(f"pre-screen: no limit is out of reach {reach} ({screen['seconds']:.1f} s)")
         return EXIT_OK
     print(f"pre-screen: the limits cannot all be met ({screen['seconds']:.1f} s):")
     for f in screen["findings"]:

@@ -49,6 +49,7 @@ from airtaper.layout.types import Layout
 from airtaper.optimize.airside import AirSide
 from airtaper.optimize.figures import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE
 from airtaper.simulate.aeration import zone_transfer
+from airtaper.simulate.steady import SteadyStateError
 from airtaper.simulate.summary import period_runs, span_text
 
 
@@ -176,12 +177,20 @@ def prescreen(layout: Layout, *, simulate: bool = True) -> dict:
     findings = equipment_findings(layout)
     full = None
     zones = _grid_zones(layout)
+    note = None
     if simulate and zones and not any(f["limit"] == "zone_range" for f in findings):
         schedule = {z.id: layout.zone_airflow_range_Sm3_h(z)[1] for z in zones}
-        day = simulate_day(layout, schedule=schedule, max_days=FULL_AIR_DAYS)
-        findings.extend(full_air_findings(layout, day))
-        full = {k: day.figures[k] for k in ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L", "min_do_margin_mg_L")}
-    return {"feasible": not findings, "findings": findings, "seconds": time.perf_counter() - t0, "full_air": full}
+        try:
+            day = simulate_day(layout, schedule=schedule, max_days=FULL_AIR_DAYS)
+        except (SteadyStateError, RuntimeError, ArithmeticError, ValueError) as exc:
+            # a screen, not a verdict: without the full-air day only the equipment bounds speak
+            note = f"the full-air day could not be simulated ({exc}); only the equipment bounds were screened"
+        else:
+            findings.extend(full_air_findings(layout, day))
+            full = {k: day.figures[k] for k in ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L",
+                                                "min_do_margin_mg_L")}
+    return {"feasible": not findings, "findings": findings, "seconds": time.perf_counter() - t0, "full_air": full,
+            "note": note}
 
 
 def outside_tested_range(layout: Layout, airflow_by_zone: dict, period_of_point, where: str) -> list[dict]:

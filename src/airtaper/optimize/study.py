@@ -381,7 +381,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     base = study.run_baseline()
     study.build()
     result = study.solve()
-    messages = []
+    messages = [] if screen is None or not screen["note"] else [f"pre-screen: {screen['note']}"]
     infeasibility = []
     status = "optimal"
     if result is None:
