@@ -104,7 +104,8 @@ def period_runs(periods, n_periods: int | None = None) -> list[list[int]]:
 
 def span_text(runs_with_sizes, period_h: float) -> str:
     """``"0.41 mg/L 09:00-14:00, 0.2 mg/L 22:00-01:00"`` from ``[(run of 0-based periods, size text)]``."""
-    return ", ".join(f"{size} {_clock(r[0] * period_h)}-{_clock((r[-1] + 1) * period_h)}" for r, size in runs_with_sizes)
+    return ", ".join(f"{size} {_clock(r[0] * period_h)}-{_clock((r[-1] + 1) * period_h)}"
+                     for r, size in runs_with_sizes)
 
 
 def setpoint_shortfalls(layout, extremes, setpoints_mg_L: dict) -> list:
