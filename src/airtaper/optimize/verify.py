@@ -70,6 +70,7 @@ def verify_day(layout: Layout, schedule: dict, optimiser_figures: dict, m=None):
         "optimiser_do_margin_mg_L": optimiser_figures["do_margin_mg_L"],
         "do_lowest": {r.zone: {"do_mg_L": float(r.do_min_mg_L), "time_h": float(r.do_min_time_h)}
                       for r in lows.itertuples()},
+        "do_lowest_by_period": {z: [float(v) for v in lows_z] for z, lows_z in day.do_min_by_period().items()},
         # the DO minimum alone: lowest DO over continuous time less the minimum, the smallest over the zones
         "do_min_margin_mg_L": min((float(r.do_min_mg_L) - layout.zone(r.zone).do_min_mg_L for r in lows.itertuples()
                                    if layout.zone(r.zone).do_min_mg_L is not None and layout.zone(r.zone).grid
