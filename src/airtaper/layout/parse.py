@@ -53,6 +53,12 @@ def load_layout(path, warnings: list | None = None) -> Layout:
     InputError
         Listing every problem found in the file and its CSV.
     """
+    label, data = read_layout_data(path)
+    return parse_layout(data, label, os.path.dirname(os.path.abspath(label)), warnings=warnings)
+
+
+def read_layout_data(path) -> tuple[str, dict]:
+    """A layout file's label and its TOML as a dict, not yet validated (overrides apply to it)."""
     label = os.fspath(path)
     if not isinstance(label, str):
         label = os.fsdecode(label)
@@ -69,8 +75,7 @@ def load_layout(path, warnings: list | None = None) -> Layout:
     except UnicodeDecodeError as exc:
         raise InputError(Problem(label, "(file)", "not UTF-8 text", f"byte {exc.start}", "a UTF-8 TOML file")) \
             from None
-    data = parse_toml_text(text, label)
-    return parse_layout(data, label, os.path.dirname(os.path.abspath(label)), warnings=warnings)
+    return label, parse_toml_text(text, label)
 
 
 _TOML_AT = re.compile(r"\s*\(at line (\d+), column (\d+)\)\s*$")
