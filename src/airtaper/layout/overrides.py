@@ -167,6 +167,14 @@ def _toml_key(k: str) -> str:
     return k if _BARE_KEY.match(k) else '"' + k.replace("\\", "\\\\").replace('"', '\\"') + '"'
 
 
+def _escape(c: str) -> str:
+    if c in ('"', "\\"):
+        return "\\" + c
+    if ord(c) < 0x20 or ord(c) == 0x7F:
+        return f"\\u{ord(c):04x}"
+    return c
+
+
 def _toml_value(v) -> str:
     if isinstance(v, bool):
         return "true" if v else "false"
@@ -178,7 +186,7 @@ def _toml_value(v) -> str:
         text = repr(v)
         return text if any(c in text for c in ".en") else text + ".0"
     if isinstance(v, str):
-        return '"' + v.replace("\\", "\\\\").replace('"', '\\"').replace("\n", "\\n") + '"'
+        return '"' + "".join(_escape(c) for c in v) + '"'
     if isinstance(v, (list, tuple)):
         return "[" + ", ".join(_toml_value(x) for x in v) + "]"
     raise ValueError(f"cannot write {type(v).__name__} to an override file")

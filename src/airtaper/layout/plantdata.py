@@ -309,10 +309,10 @@ def read_plant_csv_text(col: Collector, text: str, layout: Layout) -> PlantRecor
         if not t[i] > t[i - 1]:
             col.error(f"row {linenos[i]}, column {TIME}", "times must increase from row to row"
                       + (" (a repeated row?)" if t[i] == t[i - 1] else " (a clock change or rows out of order?)"),
-                      t[i], f"> {t[i - 1]:g}")
+                      float(t[i]), f"> {t[i - 1]:g}")
             bad_time = True
     if t[0] < 0.0:
-        col.error(f"row {linenos[0]}, column {TIME}", "out of range", t[0], ">= 0 (hours from midnight of day 1)")
+        col.error(f"row {linenos[0]}, column {TIME}", "out of range", float(t[0]), ">= 0 (hours from midnight of day 1)")
         bad_time = True
     if bad_time:
         return None
