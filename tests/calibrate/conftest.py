@@ -1,7 +1,7 @@
-"""Synthetic plant data for the calibration tests: the demo plant on twelve 2-hour periods.
+"""Synthetic plant data for the calibration tests: the demo plant on six 4-hour periods.
 
 Data come from the independent simulator (airtaper.simulate) with known true values and
-Gaussian noise of stated size (fixed seeds); the fit runs on the Pyomo model. Twelve
+Gaussian noise of stated size (fixed seeds); the fit runs on the Pyomo model. Six
 periods keep the suite fast; the 15-minute, 24-period case is benchmarks/bench_calibrate.py.
 """
 
@@ -21,35 +21,35 @@ ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "layouts" / "demo.toml"
 
 #: True values of the synthetic plant (invented): alpha x F per zone and mu_A (1/d at 20 degC).
-TRUE_ALPHA_F = {"Z2": 0.31, "Z3": 0.35, "Z4": 0.42, "Z5": 0.44, "Z6": 0.52}
+TRUE_ALPHA_F = {"Z2": 0.31, "Z3": 0.35, "Z4": 0.42, "Z5": 0.48, "Z6": 0.52}
 TRUE_MU_A = 0.66
 DO_SD, NH4_SD = 0.1, 0.2  # noise of the synthetic data, mg/L
-INTERVAL_H = 0.5
-MODEL_STEPS = 4  # model steps per 2-hour period: step ends on the half-hourly samples
+INTERVAL_H = 1.0
+MODEL_STEPS = 4  # model steps per 4-hour period: step ends on the hourly samples
 
 
-def demo12_file(folder: Path) -> Path:
-    """The demo layout on twelve 2-hour periods (eight output steps each), written in ``folder``."""
-    text = DEMO.read_text().replace("n_periods = 24\nsteps_per_period = 4", "n_periods = 12\nsteps_per_period = 8")
-    assert "n_periods = 12" in text
+def demo6_file(folder: Path) -> Path:
+    """The demo layout on six 4-hour periods (eight output steps each), written in ``folder``."""
+    text = DEMO.read_text().replace("n_periods = 24\nsteps_per_period = 4", "n_periods = 6\nsteps_per_period = 8")
+    assert "n_periods = 6" in text
     # the hourly inlet-air temperatures: one mean value (they do not enter the fit)
     text = re.sub(r"\ntemperature_C = \[[^\]]*\]", "\ntemperature_C = 18.0", text, count=1)
-    path = folder / "demo12.toml"
+    path = folder / "demo6.toml"
     path.write_text(text)
     shutil.copy(ROOT / "layouts" / "demo_influent.csv", folder / "demo_influent.csv")
     return path
 
 
 @pytest.fixture(scope="session")
-def demo12_path(tmp_path_factory) -> Path:
-    return demo12_file(tmp_path_factory.mktemp("demo12"))
+def demo6_path(tmp_path_factory) -> Path:
+    return demo6_file(tmp_path_factory.mktemp("demo6"))
 
 
 @pytest.fixture(scope="session")
-def demo12(demo12_path):
+def demo6(demo6_path):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        return load_layout(demo12_path)
+        return load_layout(demo6_path)
 
 
 def _data(layout, days, seed, folder):
@@ -62,10 +62,10 @@ def _data(layout, days, seed, folder):
 
 
 @pytest.fixture(scope="session")
-def data_1day(demo12, tmp_path_factory) -> Path:
-    return _data(demo12, 1, 11, tmp_path_factory.mktemp("data1"))
+def data_1day(demo6, tmp_path_factory) -> Path:
+    return _data(demo6, 1, 11, tmp_path_factory.mktemp("data1"))
 
 
 @pytest.fixture(scope="session")
-def data_3day(demo12, tmp_path_factory) -> Path:
-    return _data(demo12, 3, 12, tmp_path_factory.mktemp("data3"))
+def data_3day(demo6, tmp_path_factory) -> Path:
+    return _data(demo6, 3, 12, tmp_path_factory.mktemp("data3"))
