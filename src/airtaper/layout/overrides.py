@@ -28,6 +28,7 @@ import re
 
 from airtaper.errors import InputError, Problem
 from airtaper.layout.parse import parse_layout, parse_toml_text, read_layout_data
+from airtaper.layout.reader import read_text_file
 from airtaper.layout.types import Layout
 
 MAX_OVERRIDE_BYTES = 1_000_000
@@ -48,21 +49,7 @@ def flatten(data: dict, prefix: str = "") -> dict:
 
 def read_overrides(path) -> dict:
     """An override file as ``{key path: value}``; a TOML or key problem is an InputError naming the file."""
-    label = os.fspath(path)
-    try:
-        size = os.path.getsize(label)
-        if size > MAX_OVERRIDE_BYTES:
-            raise InputError(Problem(label, "(file)", "file too large", f"{size} bytes",
-                                     f"<= {MAX_OVERRIDE_BYTES} bytes"))
-        with open(label, "rb") as fh:
-            raw = fh.read()
-    except OSError as exc:
-        raise InputError(Problem(label, "(file)", f"cannot read the override file: {exc.strerror or exc}")) from None
-    try:
-        text = raw.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        raise InputError(Problem(label, "(file)", "not UTF-8 text", f"byte {exc.start}", "a UTF-8 TOML file")) \
-            from None
+    label, text = read_text_file(path, MAX_OVERRIDE_BYTES, "override file", "TOML")
     values = flatten(parse_toml_text(text, label))
     if not values:
         raise InputError(Problem(label, "(file)", "no overrides in the file", None, "key = value lines"))

@@ -30,14 +30,13 @@ from __future__ import annotations
 import csv
 import io
 import math
-import os
 from dataclasses import dataclass
 
 import numpy as np
 
 from airtaper.errors import InputError, Problem
 from airtaper.layout.influent import CONCENTRATIONS, check_measured
-from airtaper.layout.reader import Collector, LayoutWarning, did_you_mean
+from airtaper.layout.reader import Collector, LayoutWarning, did_you_mean, read_text_file
 from airtaper.layout.types import Layout
 
 MAX_CSV_BYTES = 50_000_000
@@ -153,20 +152,8 @@ def _is_missing(cell: str) -> bool:
 # --------------------------------------------------------------------------- reading
 def load_plant_data(path, layout: Layout, warnings: list | None = None) -> PlantRecord:
     """Read and validate a plant-data CSV for ``layout``; every problem in one :class:`InputError`."""
-    label = os.fspath(path)
-    col = Collector(str(label))
-    try:
-        size = os.path.getsize(label)
-        if size > MAX_CSV_BYTES:
-            raise InputError(Problem(label, "(file)", "file too large", f"{size} bytes", f"<= {MAX_CSV_BYTES} bytes"))
-        with open(label, "rb") as fh:
-            raw = fh.read()
-    except OSError as exc:
-        raise InputError(Problem(label, "(file)", f"cannot read the plant data: {exc.strerror or exc}")) from None
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise InputError(Problem(label, "(file)", "not UTF-8 text", f"byte {exc.start}", "a UTF-8 CSV file")) from None
+    label, text = read_text_file(path, MAX_CSV_BYTES, "plant data", "CSV", encoding="utf-8-sig")
+    col = Collector(label)
     record = read_plant_csv_text(col, text, layout)
     if warnings is not None:
         warnings.extend(col.warnings)

@@ -23,6 +23,7 @@ from pathlib import Path
 import numpy as np
 
 from airtaper.layout.overrides import overrides_to_toml
+from airtaper.optimize.study import _jsonable
 from airtaper.report.atomic import write_bytes_atomic, write_csv_atomic, write_json_atomic, write_text_atomic
 
 CAUTION = (
@@ -202,21 +203,6 @@ def console_summary(summary: dict) -> str:
         lines.append("note              " + m)
     lines.append("caution           " + CAUTION)
     return "\n".join(lines)
-
-
-def _jsonable(obj):
-    if isinstance(obj, dict):
-        return {str(k): _jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_jsonable(v) for v in obj]
-    if isinstance(obj, (np.floating, float)):
-        v = float(obj)
-        return v if np.isfinite(v) else None
-    if isinstance(obj, np.integer):
-        return int(obj)
-    if isinstance(obj, np.bool_):
-        return bool(obj)
-    return obj
 
 
 __all__ = ["CAUTION", "OUTPUT_NAMES", "console_summary", "fit_figure_png", "overrides_text", "report_html",
