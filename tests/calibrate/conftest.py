@@ -24,8 +24,10 @@ DEMO = ROOT / "layouts" / "demo.toml"
 TRUE_ALPHA_F = {"Z2": 0.31, "Z3": 0.35, "Z4": 0.42, "Z5": 0.48, "Z6": 0.52}
 TRUE_MU_A = 0.66
 DO_SD, NH4_SD = 0.1, 0.2  # noise of the synthetic data, mg/L
+# Airflows are logged exactly here: the intervals assume exact airflows (errors in the imposed inputs are
+# not part of the least squares; docs/calibration.md says so), so the coverage test must not add them.
 INTERVAL_H = 1.0
-MODEL_STEPS = 4  # model steps per 4-hour period: step ends on the hourly samples
+MODEL_STEPS = 8  # model steps per 4-hour period: 30-min steps, ends on the hourly samples
 
 
 def demo6_file(folder: Path) -> Path:
@@ -55,7 +57,7 @@ def demo6(demo6_path):
 def _data(layout, days, seed, folder):
     text, truth, _ = synthetic_plant_data(layout, days=days, alpha_F=TRUE_ALPHA_F, mu_A=TRUE_MU_A,
                                           interval_h=INTERVAL_H, do_sd_mg_L=DO_SD, nh4_sd_mg_L=NH4_SD,
-                                          seed=seed, nh4_zones=("Z6",))
+                                          seed=seed, nh4_zones=("Z6",), airflow_sd_fraction=0.0)
     path = folder / f"data_{days}d.csv"
     path.write_text(text)
     return path
@@ -67,5 +69,5 @@ def data_1day(demo6, tmp_path_factory) -> Path:
 
 
 @pytest.fixture(scope="session")
-def data_3day(demo6, tmp_path_factory) -> Path:
-    return _data(demo6, 3, 12, tmp_path_factory.mktemp("data3"))
+def data_2day(demo6, tmp_path_factory) -> Path:
+    return _data(demo6, 2, 12, tmp_path_factory.mktemp("data2"))

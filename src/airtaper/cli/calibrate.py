@@ -41,7 +41,7 @@ def register(subparsers) -> None:
     p.add_argument("--warmup-h", type=float, default=6.0, metavar="H",
                    help="hours at the start of the record left out of the fit (default 6)")
     p.add_argument("--steps-per-period", type=int, metavar="N",
-                   help="integration steps per period of the model (default: half the layout's)")
+                   help="integration steps per period of the model (default: steps of at most 15 min)")
     p.add_argument("--no-figure", action="store_true", help="skip fit.png and residuals.png")
     p.add_argument("--quiet", action="store_true", help="no progress display")
     p.set_defaults(handler=run)
