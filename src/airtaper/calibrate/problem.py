@@ -88,13 +88,19 @@ def interpolation(m, start_h: float, times_h: np.ndarray) -> list[tuple]:
 
 
 def observations(m, record: PlantRecord, spec: FitSpec) -> list[Observation]:
-    """The logged values the fit uses: DO of the fitted zones (and of zones held fixed), NH4-N."""
+    """The logged values the fit uses: DO of the zones whose alpha x F is fitted, and NH4-N.
+
+    The DO of a zone held at the layout's alpha x F (its data cannot identify it) is left out:
+    it would pull the other parameters toward whatever explains a probe at saturation or at zero.
+    """
     t = record.time_h
     keep = (t - record.start_h) >= spec.warmup_h - 1e-9
     weights = interpolation(m, record.start_h, t)
     obs = []
     for kind, series, sd in (("do", record.do_mg_L, spec.do_sd_mg_L), ("nh4", record.nh4_mg_L, spec.nh4_sd_mg_L)):
         for where, values in series.items():
+            if kind == "do" and where not in spec.zones:
+                continue
             for i in np.flatnonzero(keep & np.isfinite(values)):
                 obs.append(Observation(kind, where, float(t[i]), float(values[i]), float(sd), weights[i]))
     return obs
