@@ -53,7 +53,8 @@ def plant(plant_path):
 def _data(layout, days, seed, folder):
     text, truth, _ = synthetic_plant_data(layout, days=days, alpha_F=TRUE_ALPHA_F, mu_A=TRUE_MU_A,
                                           interval_h=INTERVAL_H, do_sd_mg_L=DO_SD, nh4_sd_mg_L=NH4_SD,
-                                          seed=seed, nh4_zones=(LAST,), airflow_sd_fraction=0.0)
+                                          seed=seed, nh4_zones=(LAST,), airflow_sd_fraction=0.0,
+                                          tol=1e-3)  # day-repeat tolerance of the simulator (its default)
     path = folder / f"data_{days}d.csv"
     path.write_text(text)
     return path
