@@ -17,7 +17,7 @@ from airtaper.calibrate.fit import identifiability_of_data
 from airtaper.layout.plantdata import load_plant_data
 from airtaper.model.data import train_data
 
-from .conftest import LAST, MODEL_STEPS, TRUE_ALPHA_F, TRUE_MU_A
+from .conftest import MODEL_STEPS, TRUE_ALPHA_F, TRUE_MU_A
 
 pytestmark = [pytest.mark.solver, pytest.mark.slow]
 

@@ -33,7 +33,7 @@ from airtaper.calibrate.horizon import record_layout
 from airtaper.calibrate.problem import BOUNDS, FitSpec, attach_fit, fix_parameters, free_parameters, parameters
 from airtaper.calibrate.statistics import FitStatistics, fit_statistics
 from airtaper.errors import ModelError
-from airtaper.layout.plantdata import EFFLUENT, PlantRecord, period_inputs
+from airtaper.layout.plantdata import PlantRecord, period_inputs
 from airtaper.layout.types import Layout
 from airtaper.model.data import GridAeration, train_data
 from airtaper.model.initialise import initialise_cyclic, march_cyclic

@@ -34,7 +34,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from airtaper.errors import InputError, Problem
+from airtaper.errors import InputError
 from airtaper.layout.influent import CONCENTRATIONS, check_measured
 from airtaper.layout.reader import Collector, LayoutWarning, did_you_mean, read_text_file
 from airtaper.layout.types import Layout
