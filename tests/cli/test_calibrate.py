@@ -103,9 +103,9 @@ def test_calibrate_then_optimize_with_the_overrides(tmp_path, capsys):
     plain = json.loads((plain_out / "summary.json").read_text())
     fitted = json.loads((fitted_out / "summary.json").read_text())
     assert plain["status"] in ("optimal", "unverified") and fitted["status"] in ("optimal", "unverified")
-    # the synthetic plant transfers less oxygen per unit of air where the demand is (alpha x F 0.30 in Z2
-    # against the layout's 0.36): it needs more air, so more energy and cost, for the same limits
-    assert fitted["energy_kWh_per_day"] > plain["energy_kWh_per_day"]
+    # the fitted plant (alpha x F 0.30 in Z2 against the layout's 0.36, mu_A 0.65 against 0.80) needs
+    # another schedule: the energy differs by more than the solver's tolerances could explain
+    assert abs(fitted["energy_kWh_per_day"] / plain["energy_kWh_per_day"] - 1.0) > 0.01
 
 
 def test_optimize_reports_a_bad_override_against_the_override_file(tmp_path, capsys):
