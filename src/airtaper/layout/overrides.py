@@ -27,8 +27,8 @@ import os
 import re
 
 from airtaper.errors import InputError, Problem
-from airtaper.layout.parse import parse_layout, parse_toml_text, read_layout_data
-from airtaper.layout.reader import read_text_file
+from airtaper.layout.parse import MAX_LAYOUT_BYTES, load_layout, parse_layout, parse_toml_text
+from airtaper.layout.textfile import read_text_file
 from airtaper.layout.types import Layout
 
 MAX_OVERRIDE_BYTES = 1_000_000
@@ -134,10 +134,11 @@ def load_layout_with_overrides(path, overrides_path=None, warnings: list | None 
     ``overrides_path`` None: the layout as it is. Problems at overridden keys name the
     override file; all others name the layout file, as usual.
     """
-    label, data = read_layout_data(path)
-    base_dir = os.path.dirname(os.path.abspath(label))
     if overrides_path is None:
-        return parse_layout(data, label, base_dir, warnings=warnings)
+        return load_layout(path, warnings=warnings)
+    label, text = read_text_file(path, MAX_LAYOUT_BYTES, "layout", "TOML")
+    data = parse_toml_text(text, label)
+    base_dir = os.path.dirname(os.path.abspath(label))
     file = os.fspath(overrides_path)
     overrides = read_overrides(file)
     if not isinstance(data, dict):

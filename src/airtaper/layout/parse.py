@@ -21,9 +21,7 @@ from airtaper.layout import graph
 from airtaper.layout.influent import read_influent
 from airtaper.physics.atmosphere import barometric_pressure_kPa
 from airtaper.physics.blower import efficiency_from_power
-from airtaper.layout.reader import (
-    Collector, LayoutWarning, Table, check_number, did_you_mean, is_number, read_text_file, valid_id,
-)
+from airtaper.layout.reader import Collector, LayoutWarning, Table, check_number, did_you_mean, is_number, valid_id
 from airtaper.layout.types import (
     Blower, Clarifier, DiffuserGrid, DiffuserType, EfficiencyPoint, Header, HeadlossPoint,
     Horizon, Influent, InletAir, Kinetics, Layout, Limits, Operation, Plant, PowerPoint, Recycle, ReturnSludge, Settling,
@@ -55,14 +53,24 @@ def load_layout(path, warnings: list | None = None) -> Layout:
     InputError
         Listing every problem found in the file and its CSV.
     """
-    label, data = read_layout_data(path)
+    label = os.fspath(path)
+    if not isinstance(label, str):
+        label = os.fsdecode(label)
+    try:
+        size = os.path.getsize(label)
+        if size > MAX_LAYOUT_BYTES:
+            raise InputError(Problem(label, "(file)", "file too large", f"{size} bytes", f"<= {MAX_LAYOUT_BYTES}"))
+        with open(label, "rb") as fh:
+            raw = fh.read()
+    except OSError as exc:
+        raise InputError(Problem(label, "(file)", f"cannot read the layout: {exc.strerror or exc}")) from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise InputError(Problem(label, "(file)", "not UTF-8 text", f"byte {exc.start}", "a UTF-8 TOML file")) \
+            from None
+    data = parse_toml_text(text, label)
     return parse_layout(data, label, os.path.dirname(os.path.abspath(label)), warnings=warnings)
-
-
-def read_layout_data(path) -> tuple[str, dict]:
-    """A layout file's label and its TOML as a dict, not yet validated (overrides apply to it)."""
-    label, text = read_text_file(path, MAX_LAYOUT_BYTES, "layout", "TOML")
-    return label, parse_toml_text(text, label)
 
 
 _TOML_AT = re.compile(r"\s*\(at line (\d+), column (\d+)\)\s*$")

@@ -36,7 +36,8 @@ import numpy as np
 
 from airtaper.errors import InputError
 from airtaper.layout.influent import CONCENTRATIONS, check_measured
-from airtaper.layout.reader import Collector, LayoutWarning, did_you_mean, read_text_file
+from airtaper.layout.reader import Collector, LayoutWarning, did_you_mean
+from airtaper.layout.textfile import read_text_file
 from airtaper.layout.types import Layout
 
 MAX_CSV_BYTES = 50_000_000
