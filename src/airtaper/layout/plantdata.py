@@ -154,6 +154,11 @@ def _is_missing(cell: str) -> bool:
 def load_plant_data(path, layout: Layout, warnings: list | None = None) -> PlantRecord:
     """Read and validate a plant-data CSV for ``layout``; every problem in one :class:`InputError`."""
     label, text = read_text_file(path, MAX_CSV_BYTES, "plant data", "CSV", encoding="utf-8-sig")
+    return parse_plant_data(text, layout, label, warnings)
+
+
+def parse_plant_data(text: str, layout: Layout, label: str = "<memory>", warnings: list | None = None) -> PlantRecord:
+    """:func:`load_plant_data` for text in memory (tests, fuzzing); ``label`` names it in messages."""
     col = Collector(label)
     record = read_plant_csv_text(col, text, layout)
     if warnings is not None:
@@ -161,17 +166,6 @@ def load_plant_data(path, layout: Layout, warnings: list | None = None) -> Plant
     if col.problems:
         raise InputError(col.problems)
     assert record is not None
-    return record
-
-
-def parse_plant_data(text: str, layout: Layout, label: str = "<memory>", warnings: list | None = None) -> PlantRecord:
-    """:func:`load_plant_data` for text in memory (tests, fuzzing)."""
-    col = Collector(label)
-    record = read_plant_csv_text(col, text, layout)
-    if warnings is not None:
-        warnings.extend(col.warnings)
-    if col.problems:
-        raise InputError(col.problems)
     return record
 
 
