@@ -94,7 +94,7 @@ class Baseline:
         sched["baseline_airflow_Sm3_h"] = [air[z][i] if z in self.setpoints_mg_L else np.nan for z, i in zip(zones, k)]
         sched["baseline_do_mean_mg_L"] = [do[z][i] for z, i in zip(zones, k)]
         head = header.copy()
-        head["baseline_power_kW"] = [float(day.power_kW[day.period == i].mean()) for i in range(len(head))]
+        head["baseline_power_kW"] = day.period_mean_power_kW()
         return sched, head
 
 

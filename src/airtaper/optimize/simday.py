@@ -57,6 +57,8 @@ class SimDay:
     do_extremes: pd.DataFrame | None = None  # period (0-based), zone, do_min/max_mg_L and their times
     node_airflow: np.ndarray | None = None  # (nodes, zones) airflow at the quadrature nodes, Sm3/h
     node_period: np.ndarray | None = None  # (nodes,) 0-based period of every node
+    node_weight: np.ndarray | None = None  # (nodes,) quadrature weight of every node (fractions of the day)
+    node_power_kW: np.ndarray | None = None  # (nodes,) blower power at the quadrature nodes, kW
     setpoint_shortfalls: list = field(default_factory=list)  # DO setpoints the control could not hold
 
     def start_state(self) -> tuple[dict, float | None]:
@@ -78,6 +80,13 @@ class SimDay:
         """Zone id -> mean airflow of every period, (n_periods,), Sm3/h."""
         n = self.layout.horizon.n_periods
         return {z: np.array([a[self.period == k].mean() for k in range(n)]) for z, a in self.airflow.items()}
+
+    def period_mean_power_kW(self) -> np.ndarray:
+        """Mean blower power of every period, (n_periods,), kW: the quadrature that gives the day's energy,
+        so the periods' means times their hours add up to ``energy_kWh_per_day``."""
+        n = self.layout.horizon.n_periods
+        w, k = self.node_weight, self.node_period
+        return np.array([float(w[k == i] @ self.node_power_kW[k == i] / w[k == i].sum()) for i in range(n)])
 
     def state_at(self, hour: float) -> np.ndarray:
         """Zone concentrations (zones, 13) at a time of day, linear between samples, periodic."""
@@ -147,7 +156,8 @@ def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=
                   conc=conc, power_kW=power, energy_kWh_per_day=energy, cost_per_day=cost, figures=figs,
                   converged=bool(res.converged), days=int(res.days), seconds=time.perf_counter() - t0,
                   extra={"waste_m3_d": eff["q_waste_m3_d"].to_numpy(), "y_end": res.y_end}, do_extremes=ex,
-                  node_airflow=quad.airflow_Sm3_h, node_period=quad.period,
+                  node_airflow=quad.airflow_Sm3_h, node_period=quad.period, node_weight=quad.weight,
+                  node_power_kW=node_power,
                   setpoint_shortfalls=shortfalls)
 
 
