@@ -15,7 +15,8 @@ from __future__ import annotations
 import sys
 
 from airtaper.errors import InputError, Problem
-from airtaper.layout import layout_input_files, load_layout
+from airtaper.layout import layout_input_files
+from airtaper.layout.overrides import load_layout_with_overrides
 from airtaper.report.atomic import guard_inputs
 from airtaper.report.study import OUTPUT_NAMES, console_summary, write_study_outputs
 
@@ -28,6 +29,8 @@ def register(subparsers) -> None:
                     "DO control, verify by re-simulation, and report marginal costs.")
     p.add_argument("layout", metavar="LAYOUT", help="layout TOML file, e.g. layouts/demo.toml")
     p.add_argument("--out", required=True, metavar="DIR", help="output folder")
+    p.add_argument("--overrides", metavar="FILE",
+                   help="override file (e.g. from `airtaper calibrate`) applied to the layout before validation")
     p.add_argument("--objective", choices=("energy", "cost"), help="override the layout's objective")
     p.add_argument("--smoothing-weight", type=float, metavar="W",
                    help="weight of the penalty on period-to-period airflow change (default: the layout's)")
@@ -56,10 +59,11 @@ def run(args) -> int:
     if problems:
         raise InputError(problems)
     warnings: list = []
-    layout = load_layout(args.layout, warnings=warnings)
+    layout = load_layout_with_overrides(args.layout, args.overrides, warnings=warnings)
     for w in warnings:
         print(str(w), file=sys.stderr)
-    guard_inputs(args.out, layout_input_files(args.layout, layout), OUTPUT_NAMES)
+    guard_inputs(args.out, layout_input_files(args.layout, layout) + ([args.overrides] if args.overrides else []),
+                 OUTPUT_NAMES)
     if not any(z.grid is not None and z.aerated and z.fixed_kla_per_d is None for z in layout.zones):
         raise InputError(Problem(args.layout, "zones", "no zone has a diffuser grid: there is no airflow to optimise",
                                  None, "at least one aerated zone with a [zones.grid]"))
