@@ -13,7 +13,7 @@ import io
 import os
 
 from airtaper.layout import defaults
-from airtaper.layout.reader import Collector, Table, check_number, did_you_mean
+from airtaper.layout.reader import Collector, Table, UnreadableInput, check_number, did_you_mean, read_input_file
 from airtaper.layout.types import ASM1_COMPONENTS, Fractionation, Influent
 
 #: Measured influent quantities, as CSV columns and as [influent] keys.
@@ -283,15 +283,12 @@ def _from_csv(col: Collector, csv_name: str, n: int, base_dir: str | None, frac)
         return None
     full = csv_name if os.path.isabs(csv_name) else os.path.join(str(base_dir), csv_name)
     try:
-        size = os.path.getsize(full)
-        if size > MAX_CSV_BYTES:
-            col.error("(file)", "file too large", f"{size} bytes", f"<= {MAX_CSV_BYTES} bytes", file=shown)
-            return None
-        with open(full, "rb") as fh:
-            raw = fh.read()
-    except OSError as exc:
-        col.error("influent.csv", f"cannot read the influent CSV: {exc.strerror or exc}", csv_name,
-                  "an existing file relative to the layout's folder")
+        raw = read_input_file(full, MAX_CSV_BYTES, "the influent CSV")
+    except UnreadableInput as exc:
+        if exc.problem.startswith("cannot read") and exc.got is None:
+            col.error("influent.csv", exc.problem, csv_name, "an existing file relative to the layout's folder")
+        else:
+            col.error("(file)", exc.problem, exc.got, exc.expected, file=shown)
         return None
     try:
         text = raw.decode("utf-8-sig")

@@ -21,7 +21,9 @@ from airtaper.layout import graph
 from airtaper.layout.influent import read_influent
 from airtaper.physics.atmosphere import barometric_pressure_kPa
 from airtaper.physics.blower import efficiency_from_power
-from airtaper.layout.reader import Collector, LayoutWarning, Table, check_number, did_you_mean, is_number, valid_id
+from airtaper.layout.reader import (
+    Collector, LayoutWarning, Table, UnreadableInput, check_number, did_you_mean, is_number, read_input_file, valid_id,
+)
 from airtaper.layout.types import (
     Blower, Clarifier, DiffuserGrid, DiffuserType, EfficiencyPoint, Header, HeadlossPoint,
     Horizon, Influent, InletAir, Kinetics, Layout, Limits, Operation, Plant, PowerPoint, Recycle, ReturnSludge, Settling,
@@ -57,13 +59,9 @@ def load_layout(path, warnings: list | None = None) -> Layout:
     if not isinstance(label, str):
         label = os.fsdecode(label)
     try:
-        size = os.path.getsize(label)
-        if size > MAX_LAYOUT_BYTES:
-            raise InputError(Problem(label, "(file)", "file too large", f"{size} bytes", f"<= {MAX_LAYOUT_BYTES}"))
-        with open(label, "rb") as fh:
-            raw = fh.read()
-    except OSError as exc:
-        raise InputError(Problem(label, "(file)", f"cannot read the layout: {exc.strerror or exc}")) from None
+        raw = read_input_file(label, MAX_LAYOUT_BYTES, "the layout")
+    except UnreadableInput as exc:
+        raise InputError(Problem(label, "(file)", exc.problem, exc.got, exc.expected)) from None
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError as exc:
@@ -80,6 +78,9 @@ def parse_toml_text(text: str, label: str = "<memory>") -> dict:
     """TOML text to a dict; a syntax error becomes an InputError naming line and column."""
     try:
         return tomllib.loads(text)
+    except RecursionError:  # tomllib recurses once per level of nested arrays or inline tables
+        raise InputError(Problem(label, "(toml)", "TOML nested too deeply", None,
+                                 "arrays and inline tables nested a few levels at most")) from None
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         m = _TOML_AT.search(msg)
@@ -108,7 +109,7 @@ def parse_layout(data: dict, path: str = "<memory>", base_dir=None, warnings: li
     if warnings is not None:
         warnings.extend(col.warnings)
     if col.problems:
-        raise InputError(col.problems)
+        raise InputError(col.problems, col.warnings)
     assert layout is not None
     return layout
 
@@ -615,9 +616,10 @@ class _Parser:
         return tuple(out)
 
     def header(self, t: Table | None, blowers: list[Blower]) -> Header:
-        if blowers:
-            weight = sum(b.airflow_max_Sm3_h for b in blowers)
-            default_eff = sum(b.airflow_max_Sm3_h * _blower_mean_efficiency(b) for b in blowers) / weight
+        known = [(b.airflow_max_Sm3_h, _blower_mean_efficiency(b)) for b in blowers]
+        known = [(w, e) for w, e in known if e is not None]
+        if known:
+            default_eff = sum(w * e for w, e in known) / sum(w for w, _ in known)
         else:
             default_eff = D.AGGREGATE_EFFICIENCY_NO_BLOWERS
         if t is None:
@@ -824,9 +826,18 @@ def _duty_point_conditions(plant: Plant | None, inlet: InletAir | None):
     return sum(inlet.temperature_C) / len(inlet.temperature_C), inlet_p, site
 
 
-def _blower_mean_efficiency(b: Blower) -> float:
+def _blower_mean_efficiency(b: Blower) -> float | None:
+    """The blower's mean wire-to-air efficiency, or None when it is not known.
+
+    Power points are turned into efficiencies at the site's air conditions; when
+    the plant or inlet-air section has a problem (a missing elevation, a water
+    temperature out of range) they cannot be, the problem is already reported
+    there, and this blower then counts in no default.
+    """
     if b.efficiency is not None:
         return b.efficiency
+    if not b.efficiency_points:
+        return None
     return sum(p.efficiency for p in b.efficiency_points) / len(b.efficiency_points)
 
 
