@@ -138,8 +138,8 @@ def read_schedule(path: str, layout, warnings: list | None = None):
         low = min(q for q, _, _ in given)
         high = max(q for q, _, _ in given)
         raise InputError(Problem(path, "column airflow_Sm3_h", "every airflow is below its zone's minimum: was the "
-                                 "schedule typed in Sm3/min?", f"{low:g}-{high:g}",
-                                 f"Sm3/h (x 60: {60 * low:g}-{60 * high:g} Sm3/h)"))
+                                 "schedule typed in Sm3/min?", f"{low:.4g}-{high:.4g}",
+                                 f"Sm3/h (x 60: {60 * low:.4g}-{60 * high:.4g} Sm3/h)"))
     if warnings is not None:
         below = [(p, z, air[p, ids[z]], lo) for p in range(n) for z in gridded
                  for lo in [ranges[z][0]] if 0.0 < air[p, ids[z]] < lo]

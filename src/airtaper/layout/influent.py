@@ -12,8 +12,11 @@ import csv
 import io
 import os
 
+from airtaper import units
 from airtaper.layout import defaults
-from airtaper.layout.reader import Collector, Table, UnreadableInput, check_number, did_you_mean, read_input_file
+from airtaper.layout.reader import (
+    Collector, Table, UnreadableInput, check_number, did_you_mean, fixed, read_input_file,
+)
 from airtaper.layout.types import ASM1_COMPONENTS, Fractionation, Influent
 
 #: Measured influent quantities, as CSV columns and as [influent] keys.
@@ -75,6 +78,33 @@ def check_measured(col: Collector, frac: Fractionation | None, row: dict, key_of
     if row["nh4_mg_L"] > row["tkn_mg_L"]:
         col.error(key_of("nh4_mg_L"), "NH4-N exceeds TKN", row["nh4_mg_L"], f"<= tkn_mg_L = {row['tkn_mg_L']:g}",
                   file=file)
+
+
+def check_magnitudes(col: Collector, rows: list[dict], key_of, file: str | None = None) -> None:
+    """Unit slips in the measured influent, named where they were typed (CSV row, or key).
+
+    ``key_of(i, column)`` names row ``i``'s cell. A total COD below
+    ``COD_GRAMS_PER_LITRE_MAX_mg_L`` in every row is an error (the
+    concentrations were typed in g/L); a COD outside the usual range and an
+    alkalinity likely given in mg/L as CaCO3 are warnings.
+    """
+    cods = [r["cod_total_mg_L"] for r in rows]
+    top = max(cods)
+    if top < defaults.COD_GRAMS_PER_LITRE_MAX_mg_L:
+        i = cods.index(top)
+        col.error(key_of(i, "cod_total_mg_L"), f"total COD at most {top:g} mg/L in every row: were the "
+                  "concentrations typed in g/L?", top, f"mg/L (x 1000: {1000 * top:g} mg/L)", file=file)
+        return
+    lo, hi = defaults.WARN_COD_TOTAL_mg_L
+    odd = [i for i, c in enumerate(cods) if not lo <= c <= hi]
+    if odd:
+        col.warn(key_of(odd[0], "cod_total_mg_L"),
+                 f"unusual total COD {fixed(cods[odd[0]], 0)} mg/L (usual {lo:g}-{hi:g})", file=file)
+    alk = [i for i, r in enumerate(rows) if r["alkalinity_mol_m3"] > defaults.WARN_ALKALINITY_mol_m3]
+    if alk:
+        a = rows[alk[0]]["alkalinity_mol_m3"]
+        col.warn(key_of(alk[0], "alkalinity_mol_m3"), f"alkalinity {a:g} mol/m3: was it given in mg/L as CaCO3 "
+                 f"({a / units.MG_CACO3_PER_MOL_ALK:.1f} mol/m3)?", file=file)
 
 
 def _bounds(column: str) -> dict:
@@ -165,6 +195,7 @@ def read_csv_text(col: Collector, file: str, text: str, frac: Fractionation | No
             linenos.append(lineno)
     if col.count > before:
         return None
+    check_magnitudes(col, rows, lambda i, c: f"row {linenos[i]}, column {c}", file=file)
     times = [r["time_h"] for r in rows]
     if times[0] != 0.0:
         col.error(f"row {linenos[0]}, column time_h", "the first row must start the day", times[0], "0", file=file)
@@ -250,6 +281,9 @@ def read_influent(t: Table, n: int, base_dir: str | None, tss_per_cod: float,
                                lambda c, p=p: t.key(c) if not isinstance(t.data[c], list) else f"{t.key(c)}[{p + 1}]")
                 if col.count > mark:
                     break
+            if col.count == before:
+                check_magnitudes(col, [{c: values[c][p] for c in MEASURED} for p in range(n)],
+                                 lambda p, c: t.key(c) if not isinstance(t.data[c], list) else f"{t.key(c)}[{p + 1}]")
             if col.count == before:
                 result = Influent("constant", *(values[c] for c in MEASURED), fractionation=frac)
     t.finish()

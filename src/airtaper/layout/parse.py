@@ -22,7 +22,8 @@ from airtaper.layout.influent import read_influent
 from airtaper.physics.atmosphere import barometric_pressure_kPa
 from airtaper.physics.blower import efficiency_from_power
 from airtaper.layout.reader import (
-    Collector, LayoutWarning, Table, UnreadableInput, check_number, did_you_mean, is_number, read_input_file, valid_id,
+    Collector, LayoutWarning, Table, UnreadableInput, check_number, did_you_mean, fixed, is_number, read_input_file,
+    valid_id,
 )
 from airtaper.layout.types import (
     Blower, Clarifier, DiffuserGrid, DiffuserType, EfficiencyPoint, Header, HeadlossPoint,
@@ -218,7 +219,11 @@ class _Parser:
         temp = t.per_period("water_temperature_C", self.n, ge=0.0, le=45.0)
         baro = t.number("barometric_pressure_kPa", None, ge=50.0, le=110.0)
         salinity = t.number("salinity_g_kg", D.SALINITY_g_kg, ge=0.0, le=45.0)
-        if elevation is not None and not (D.WARN_ELEVATION_m[0] <= elevation <= D.WARN_ELEVATION_m[1]):
+        if elevation is not None and baro is None and elevation > D.WARN_ELEVATION_FEET_m:
+            self.col.warn(t.key("elevation_m"), f"elevation {elevation:g} m: was it typed in feet "
+                                                f"({elevation:g} ft = {units.ft_to_m(elevation):.0f} m)? "
+                                                "give barometric_pressure_kPa to confirm a high site")
+        elif elevation is not None and not (D.WARN_ELEVATION_m[0] <= elevation <= D.WARN_ELEVATION_m[1]):
             self.col.warn(t.key("elevation_m"), f"unusual elevation {elevation:g} m")
         if temp is not None:
             lo, hi = D.WARN_WATER_TEMPERATURE_C
@@ -255,7 +260,12 @@ class _Parser:
             "density_percent": {"gt": 0.0, "le": 100.0}, "submergence_m": {"gt": 0.0, "le": 50.0}}, SotePoint)
         head = self._points(t, "headloss_points", {
             "airflow_per_diffuser_Sm3_h": {"ge": 0.0}, "headloss_kPa": {"gt": 0.0, "le": 100.0}}, HeadlossPoint)
-        if sote is not None:
+        if sote is not None and max(p.sote_percent for p in sote) <= D.SOTE_FRACTION_MAX_percent:
+            first = sote[0].sote_percent
+            col.error(f"{t.key('sote_points')}[1].sote_percent",
+                      f"SOTE {first:g} %: was it typed as a fraction? every test point is at or below "
+                      f"{D.SOTE_FRACTION_MAX_percent:g} %", first, f"percent ({100 * first:g} %, not {first:g})")
+        elif sote is not None:
             self._check_sote(t, sote)
         if head is not None:
             for i in range(1, len(head)):
@@ -348,6 +358,9 @@ class _Parser:
             zones.append(self.section(t, self.zone, ident, zd, types))
             if ident is not None:
                 ids.append(ident)
+        if len(items) > D.MAX_ZONES:
+            self.col.error("zones", "too many zones for one train", f"{len(items)} zones",
+                           f"at most {D.MAX_ZONES} (model a long plug-flow lane with fewer, larger zones)")
         if len(ids) != len(items):
             ids = []  # ids unknown: skip the train checks rather than misreport them
         return zones, ids
@@ -395,7 +408,7 @@ class _Parser:
                 area = derived
             elif abs(area - derived) > D.WARN_AREA_MISMATCH * derived:
                 col.warn(t.key("area_m2"), f"floor area {area:g} m2 differs from volume_m3 / depth_m = "
-                                           f"{derived:.1f} m2 by more than {100 * D.WARN_AREA_MISMATCH:g} %")
+                                           f"{fixed(derived, 1)} m2 by more than {100 * D.WARN_AREA_MISMATCH:g} %")
         if kind == "anoxic":
             do_min = do_max = None
         return Zone(ident, kind, volume, depth, area, do_min, do_max, vals["alpha"], vals["fouling"], vals["beta"],
@@ -415,7 +428,7 @@ class _Parser:
             self.col.error(t.key("submergence_m"), "diffusers must be below the water surface and above the floor",
                            sub, f"< depth_m = {depth:g}")
         elif sub is not None and depth is not None and depth - sub > D.WARN_GRID_ABOVE_FLOOR_m:
-            self.col.warn(t.key("submergence_m"), f"grid sits {depth - sub:.2f} m above the floor")
+            self.col.warn(t.key("submergence_m"), f"grid sits {fixed(depth - sub, 2)} m above the floor")
         return DiffuserGrid(type_id, count, sub)
 
     def clarifier(self, t: Table | None) -> Clarifier:
@@ -707,7 +720,9 @@ class _Parser:
         if ov is not None:
             for name in ov.data:
                 if name in D.KINETIC_PARAMETER_NAMES:
-                    v = ov.number(name, gt=0.0) if name not in ("b_A", "b_H", "f_P", "i_XP") else ov.number(name, ge=0.0)
+                    top = D.KINETIC_PARAMETER_MAX[name]
+                    v = (ov.number(name, gt=0.0, le=top) if name not in ("b_A", "b_H", "f_P", "i_XP")
+                         else ov.number(name, ge=0.0, le=top))
                     if v is not None:
                         pairs.append((name, v))
             ov.allow(*D.KINETIC_PARAMETER_NAMES)
@@ -737,7 +752,10 @@ class _Parser:
                 col.warn(f"{key}.volume_m3", f"very small zone ({z.volume_m3:g} m3)")
             elif z.volume_m3 > D.WARN_ZONE_VOLUME_m3[1]:
                 col.warn(f"{key}.volume_m3", f"very large zone ({z.volume_m3:g} m3): was it typed in litres?")
-            if not D.WARN_DEPTH_m[0] <= z.depth_m <= D.WARN_DEPTH_m[1]:
+            if z.depth_m > D.WARN_DEPTH_MM_m:
+                col.warn(f"{key}.depth_m", f"side-water depth {z.depth_m:g} m: was it typed in mm "
+                                           f"({z.depth_m / 1000:g} m)?")
+            elif not D.WARN_DEPTH_m[0] <= z.depth_m <= D.WARN_DEPTH_m[1]:
                 col.warn(f"{key}.depth_m", f"unusual side-water depth {z.depth_m:g} m")
             if z.grid is None or z.grid.type_id not in self.membrane_areas:
                 continue
@@ -746,15 +764,15 @@ class _Parser:
             density = 100.0 * z.grid.count * membrane / z.area_m2
             if density > D.DENSITY_MAX_PERCENT:
                 fits = int(D.DENSITY_MAX_PERCENT / 100.0 * z.area_m2 / membrane)
-                col.error(f"{key}.grid.count", f"diffusers cover {density:.1f} % of the floor, more than fits",
-                          z.grid.count, f"<= {fits} ({D.DENSITY_MAX_PERCENT:g} % of {z.area_m2:.1f} m2)")
+                col.error(f"{key}.grid.count", f"diffusers cover {fixed(density, 1)} % of the floor, more than fits",
+                          z.grid.count, f"<= {fits} ({D.DENSITY_MAX_PERCENT:g} % of {fixed(z.area_m2, 1)} m2)")
                 continue
             if z.grid.type_id not in types:
                 continue
             dt = types[z.grid.type_id]
             dens = [p.density_percent for p in dt.sote_points]
             if not min(dens) <= density <= max(dens):
-                col.warn(f"{key}.grid.count", f"diffuser density {density:.1f} % is outside the tested "
+                col.warn(f"{key}.grid.count", f"diffuser density {fixed(density, 1)} % is outside the tested "
                                               f"{min(dens):g}-{max(dens):g} %: SOTE is extrapolated")
             subs = [p.submergence_m for p in dt.sote_points]
             if not min(subs) <= z.grid.submergence_m <= max(subs):
@@ -763,7 +781,7 @@ class _Parser:
             lo, hi = _airflow_range(z, dt)
             if lo > hi:
                 col.error(f"{key}.grid", "no feasible airflow: the minimum exceeds what grid and valve pass",
-                          f"minimum {lo:.0f} Sm3/h", f"<= maximum {hi:.0f} Sm3/h")
+                          f"minimum {fixed(lo, 0)} Sm3/h", f"<= maximum {fixed(hi, 0)} Sm3/h")
         for tid in sorted(set(types) - used_types - {z.grid.type_id for z in zones if z.grid is not None}):
             col.warn(f"diffuser_types.{tid}", "diffuser type used by no zone")
         gridded = [z for z in zones if z.grid is not None]
@@ -777,26 +795,22 @@ class _Parser:
                 if b.pressure_max_gauge_kPa <= static:
                     col.error(f"blowers.{b.id}.pressure_max_gauge_kPa",
                               f"below the static head of the deepest grid ({deepest.id}, "
-                              f"{deepest.grid.submergence_m:g} m)", b.pressure_max_gauge_kPa, f"> {static:.1f} kPa")
+                              f"{deepest.grid.submergence_m:g} m)", b.pressure_max_gauge_kPa, f"> {fixed(static, 1)} kPa")
             if len(zones) == n_zones and all(z.grid is None or z.grid.type_id in types for z in zones):
                 need = sum(_airflow_range(z, types[z.grid.type_id])[0] for z in gridded if z.kind == "aerated")
                 have = sum(b.airflow_max_Sm3_h for b in blowers)
                 if have < need:
                     col.error("blowers", "all blowers together cannot supply the zones' minimum airflow",
-                              f"{have:g} Sm3/h", f">= {need:.0f} Sm3/h")
+                              f"{have:g} Sm3/h", f">= {fixed(need, 0)} Sm3/h")
         if influent is not None:
             qm = influent.mean_flow_m3_d
             if not D.WARN_MEAN_FLOW_m3_d[0] <= qm <= D.WARN_MEAN_FLOW_m3_d[1]:
                 col.warn("influent", f"unusual mean influent flow {qm:g} m3/d")
-            cods = influent.cod_total_mg_L
-            lo, hi = D.WARN_COD_TOTAL_mg_L
-            if any(not lo <= c <= hi for c in cods):
-                odd = next(c for c in cods if not lo <= c <= hi)
-                col.warn("influent", f"unusual total COD {odd:.0f} mg/L (usual {lo:g}-{hi:g})")
+            # the measured forms (CSV rows, constant values) are checked for unit slips where they are read
             if zones and len(zones) == n_zones:
                 hrt = sum(z.volume_m3 for z in zones) / qm * 24.0
                 if not D.WARN_TRAIN_HRT_h[0] <= hrt <= D.WARN_TRAIN_HRT_h[1]:
-                    col.warn("zones", f"train HRT {hrt:.1f} h at the mean influent flow is unusual "
+                    col.warn("zones", f"train HRT {fixed(hrt, 1)} h at the mean influent flow is unusual "
                                       f"(usual {D.WARN_TRAIN_HRT_h[0]:g}-{D.WARN_TRAIN_HRT_h[1]:g} h): "
                                       "check the volumes and their units")
 

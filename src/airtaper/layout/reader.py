@@ -113,6 +113,11 @@ def join(path: str, key) -> str:
     return f"{path}.{key}" if path else str(key)
 
 
+def fixed(x: float, digits: int = 1) -> str:
+    """``x`` with ``digits`` decimals, or three significant digits when it is huge (a message stays short)."""
+    return f"{x:.{digits}f}" if abs(x) < 1e7 else f"{x:.3g}"
+
+
 def _bounds_text(gt, ge, lt, le) -> str:
     parts = []
     if gt is not None:

@@ -117,12 +117,14 @@ class OutputFolder:
             if dest.exists():
                 old = Path(tempfile.mkdtemp(prefix=f".{dest.name}{_OLD}", dir=dest.parent))
                 os.rename(dest, old / dest.name)
-            try:
-                os.rename(self.staging, dest)
-            except BaseException:
-                if old is not None:
-                    os.rename(old / dest.name, dest)  # put the earlier run back
-                raise
+            os.rename(self.staging, dest)
+        except BaseException:
+            if old is not None and (old / dest.name).exists() and not dest.exists():
+                os.rename(old / dest.name, dest)  # put the earlier run back
+            if old is not None:
+                shutil.rmtree(old, ignore_errors=True)
+            self.discard()
+            raise
         finally:
             _unblock_signals(blocked)
         self._open = False
