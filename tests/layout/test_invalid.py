@@ -205,7 +205,8 @@ def _load_errors(path) -> list[str]:
 def test_toml_syntax_error_names_line_and_column(tmp_path):
     bad = tmp_path / "syntax.toml"
     bad.write_text('[plant]\nname = "x"\nelevation_m = = 3\n')
-    assert _load_errors(bad) == [f"error: {bad}: line 3, column 15: TOML syntax: Invalid value"]
+    assert _load_errors(bad) == [f"error: {bad}: line 3, column 15: TOML syntax: Invalid value (expected a number, "
+                                 '"string", true/false, [array] or { inline table })']
 
 
 def test_missing_layout_file(tmp_path):

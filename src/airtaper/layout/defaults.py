@@ -174,3 +174,24 @@ KINETIC_PARAMETER_MAX = {
     "k_h": 20.0, "K_X": 5.0, "mu_A": 5.0, "K_NH": 10.0, "b_A": 1.0, "K_OA": 5.0, "k_a": 1.0,
     "Y_H": 0.95, "Y_A": 0.95, "f_P": 0.5, "i_XB": 0.2, "i_XP": 0.2,
 }
+#: Largest concentration an influent column may hold, mg/L: a tenth of the water's own mass; above it a number
+#: is surely mistyped (error).
+CONCENTRATION_MAX_mg_L = 100_000.0
+#: Largest alkalinity, mol/m3 (error above; usual municipal values are 2-10).
+ALKALINITY_MAX_mol_m3 = 1000.0
+#: Largest influent flow, m3/d (error above; the largest plants treat a few million m3/d).
+FLOW_MAX_m3_d = 1.0e8
+#: A CSV cell this many times above or below its column's median over the day: warning (another unit?).
+WARN_ROW_OUTLIER_FACTOR = 10.0
+#: Usual ratios of the influent's daily means, TKN / COD and TSS / COD: warnings outside.
+WARN_TKN_PER_COD = (0.02, 0.3)
+WARN_TSS_PER_COD = (0.1, 1.5)
+#: Lowest usual wire-to-air blower efficiency: warning below.
+WARN_BLOWER_EFFICIENCY_MIN = 0.2
+#: Usual NH4-N / TKN of the daily means (warning outside) and lowest usual alkalinity, mol/m3 (warning below).
+WARN_NH4_PER_TKN = (0.3, 1.0)
+WARN_ALKALINITY_MIN_mol_m3 = 0.5
+#: A CSV's last row holding until 24 h this many times longer than the median row: warning (times in minutes?).
+WARN_LAST_ROW_FACTOR = 4.0
+#: Shallowest usual clean-water test submergence of a diffuser test point, m (warning below).
+WARN_TEST_SUBMERGENCE_MIN_m = 0.5

@@ -105,10 +105,47 @@ def check_magnitudes(col: Collector, rows: list[dict], key_of, file: str | None 
         a = rows[alk[0]]["alkalinity_mol_m3"]
         col.warn(key_of(alk[0], "alkalinity_mol_m3"), f"alkalinity {a:g} mol/m3: was it given in mg/L as CaCO3 "
                  f"({a / units.MG_CACO3_PER_MOL_ALK:.1f} mol/m3)?", file=file)
+    if len(rows) > 2:
+        _outliers(col, rows, key_of, file)
+    flow = sum(r["flow_m3_d"] for r in rows)
+    mean = {c: sum(r["flow_m3_d"] * r[c] for r in rows) / flow for c in MEASURED[1:]}
+    if mean["alkalinity_mol_m3"] < defaults.WARN_ALKALINITY_MIN_mol_m3:
+        key = key_of(0, "alkalinity_mol_m3")
+        col.warn(key if not key.startswith("row ") else "column alkalinity_mol_m3",
+                 f"alkalinity {mean['alkalinity_mol_m3']:.3g} mol/m3 on the daily mean is unusually low (usual above "
+                 f"{defaults.WARN_ALKALINITY_MIN_mol_m3:g}): was it given in mol/L or eq/L?", file=file)
+    for c, (lo, hi), what, of in (("tkn_mg_L", defaults.WARN_TKN_PER_COD, "TKN / COD", "cod_total_mg_L"),
+                                  ("tss_mg_L", defaults.WARN_TSS_PER_COD, "TSS / COD", "cod_total_mg_L"),
+                                  ("nh4_mg_L", defaults.WARN_NH4_PER_TKN, "NH4-N / TKN", "tkn_mg_L")):
+        ratio = mean[c] / mean[of] if mean[of] > 0.0 else 0.0
+        if not lo <= ratio <= hi:
+            key = key_of(0, c)
+            col.warn(key if not key.startswith("row ") else f"column {c}",
+                     f"{what} of the daily means is {ratio:.3g} (usual {lo:g}-{hi:g}): is a column in another "
+                     "unit?", file=file)
+
+
+def _outliers(col: Collector, rows: list[dict], key_of, file: str | None) -> None:
+    """Warn once per column about a value far from the column's median over the day (a cell in another unit)."""
+    factor = defaults.WARN_ROW_OUTLIER_FACTOR
+    for c in MEASURED:
+        values = sorted(r[c] for r in rows)
+        median = values[len(values) // 2]
+        if median <= 0.0:
+            continue
+        odd = [i for i, r in enumerate(rows) if not median / factor <= r[c] <= median * factor]
+        if odd:
+            v = rows[odd[0]][c]
+            col.warn(key_of(odd[0], c), f"{c} {v:g} is far from the day's median {median:g} (more than "
+                     f"{factor:g} times apart): typed in another unit?", file=file)
 
 
 def _bounds(column: str) -> dict:
-    return {"gt": 0.0} if column == "flow_m3_d" else {"ge": 0.0}
+    if column == "flow_m3_d":
+        return {"gt": 0.0, "le": defaults.FLOW_MAX_m3_d}
+    if column == "alkalinity_mol_m3":
+        return {"ge": 0.0, "le": defaults.ALKALINITY_MAX_mol_m3}
+    return {"ge": 0.0, "le": defaults.CONCENTRATION_MAX_mg_L}
 
 
 def read_csv_text(col: Collector, file: str, text: str, frac: Fractionation | None):
@@ -131,7 +168,7 @@ def read_csv_text(col: Collector, file: str, text: str, frac: Fractionation | No
         try:
             fields = next(csv.reader(io.StringIO(line)))
         except (csv.Error, StopIteration) as exc:
-            col.error(f"row {lineno}", f"not valid CSV: {exc}", file=file)
+            col.error(f"row {lineno}", f"not valid CSV: {exc}", None, "comma-separated values", file=file)
             continue
         fields = [f.strip() for f in fields]
         if header is None:
@@ -145,7 +182,7 @@ def read_csv_text(col: Collector, file: str, text: str, frac: Fractionation | No
     seen: set[str] = set()
     for name in names:
         if name in seen:
-            col.error(f"row {hrow}, column {name}", "duplicate column", file=file)
+            col.error(f"row {hrow}, column {name}", "duplicate column", None, "each column once", file=file)
         seen.add(name)
         if name not in CSV_COLUMNS:
             hint = did_you_mean(name, CSV_COLUMNS)
@@ -205,6 +242,13 @@ def read_csv_text(col: Collector, file: str, text: str, frac: Fractionation | No
                       f"> {times[i - 1]:g}", file=file)
     if col.count > before:
         return None
+    if len(times) > 2:
+        spans = sorted(b - a for a, b in zip(times, times[1:]))
+        last = 24.0 - times[-1]
+        if last > defaults.WARN_LAST_ROW_FACTOR * spans[len(spans) // 2]:
+            col.warn(f"row {linenos[-1]}, column time_h", f"the last row holds from {times[-1]:g} h until 24 h, "
+                     f"{last / spans[len(spans) // 2]:.0f} times longer than the others: were the times in another "
+                     "unit than hours?", file=file)
     return times, rows
 
 
@@ -261,7 +305,7 @@ def read_influent(t: Table, n: int, base_dir: str | None, tss_per_cod: float,
     result = None
     if csv_name is not None:
         if asm1 is not None:
-            col.error(t.key("asm1"), "give either csv or asm1, not both")
+            col.error(t.key("asm1"), "give either csv or asm1, not both", None, "csv alone, or asm1 alone")
         extra = given
         for c in extra:
             col.error(t.key(c), "constant values and csv are exclusive", None, "csv alone, or constant values alone")

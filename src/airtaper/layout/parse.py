@@ -91,7 +91,19 @@ def parse_toml_text(text: str, label: str = "<memory>") -> dict:
             key, msg = "end of file", msg[: -len("(at end of document)")].rstrip()
         else:
             key = "(toml)"
-        raise InputError(Problem(label, key, f"TOML syntax: {msg}")) from None
+        raise InputError(Problem(label, key, f"TOML syntax: {msg}", None, _toml_expected(msg))) from None
+
+
+def _toml_expected(message: str) -> str:
+    """What a TOML syntax error calls for, in words (tomllib's messages say what is wrong, not what is right)."""
+    text = message.lower()
+    if "overwrite" in text or "twice" in text or "redefin" in text:
+        return "each key and each table once"
+    if "unclosed" in text or "end of" in text:
+        return "every string, array and table closed"
+    if "invalid value" in text:
+        return 'a number, "string", true/false, [array] or { inline table }'
+    return "TOML syntax (https://toml.io; quote text, one key = value per line)"
 
 
 def parse_layout(data: dict, path: str = "<memory>", base_dir=None, warnings: list | None = None) -> Layout:
@@ -267,6 +279,14 @@ class _Parser:
                       f"{D.SOTE_FRACTION_MAX_percent:g} %", first, f"percent ({100 * first:g} %, not {first:g})")
         elif sote is not None:
             self._check_sote(t, sote)
+            for i, pt in enumerate(sote, start=1):
+                k = f"{t.key('sote_points')}[{i}]"
+                if pt.density_percent <= D.SOTE_FRACTION_MAX_percent:
+                    col.warn(f"{k}.density_percent", f"density {pt.density_percent:g} %: was it typed as a fraction "
+                                                     f"({100 * pt.density_percent:g} %)?")
+                if pt.submergence_m < D.WARN_TEST_SUBMERGENCE_MIN_m:
+                    col.warn(f"{k}.submergence_m", f"test submergence {pt.submergence_m:g} m is unusually shallow "
+                                                   "(was it in another unit?)")
         if head is not None:
             for i in range(1, len(head)):
                 k = f"{t.key('headloss_points')}[{i + 1}]"
@@ -784,6 +804,11 @@ class _Parser:
                           f"minimum {fixed(lo, 0)} Sm3/h", f"<= maximum {fixed(hi, 0)} Sm3/h")
         for tid in sorted(set(types) - used_types - {z.grid.type_id for z in zones if z.grid is not None}):
             col.warn(f"diffuser_types.{tid}", "diffuser type used by no zone")
+        for b in blowers:
+            effs = [b.efficiency] if b.efficiency is not None else [e.efficiency for e in b.efficiency_points]
+            if effs and min(effs) < D.WARN_BLOWER_EFFICIENCY_MIN:
+                col.warn(f"blowers.{b.id}", f"wire-to-air efficiency {min(effs):.3g} is unusually low (usual above "
+                                            f"{D.WARN_BLOWER_EFFICIENCY_MIN:g}): was it divided by 100?")
         gridded = [z for z in zones if z.grid is not None]
         if gridded and not blowers and "blowers" not in self.root.data:
             col.error("blowers", "zones have diffuser grids but there are no blowers", None,

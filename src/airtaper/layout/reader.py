@@ -56,6 +56,8 @@ def read_input_file(path: str, max_bytes: int, what: str) -> bytes:
         info = os.stat(path)
     except OSError as exc:
         raise UnreadableInput(f"cannot read {what}: {exc.strerror or exc}") from None
+    except ValueError:  # a NUL character in the name: no file can have it
+        raise UnreadableInput(f"cannot read {what}: the file name holds a NUL character") from None
     if stat.S_ISDIR(info.st_mode):
         raise UnreadableInput(f"cannot read {what}: it is a folder", None, "a file")
     if not stat.S_ISREG(info.st_mode):
@@ -147,9 +149,10 @@ def check_number(col: Collector, key: str, value, *, gt=None, ge=None, lt=None, 
         return None
     if ((gt is not None and not x > gt) or (ge is not None and not x >= ge)
             or (lt is not None and not x < lt) or (le is not None and not x <= le)):
-        bounds = _bounds_text(gt, ge, lt, le)
-        problem = "must be positive" if (gt == 0 and ge is None and lt is None and le is None) else "out of range"
-        col.error(key, problem, value, bounds)
+        if gt == 0 and not x > 0 and ge is None:
+            col.error(key, "must be positive", value, "> 0")
+        else:
+            col.error(key, "out of range", value, _bounds_text(gt, ge, lt, le))
         return None
     return x
 

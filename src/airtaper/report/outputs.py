@@ -54,7 +54,7 @@ def sha256_of(path: str | os.PathLike) -> str | None:
     try:
         if not stat.S_ISREG(os.stat(path).st_mode):
             return None
-    except OSError:
+    except (OSError, ValueError):  # missing, unreadable, a NUL in the name: the reader reports it
         return None
     h = hashlib.sha256()
     try:
