@@ -34,6 +34,7 @@ import tempfile
 from collections import Counter
 from pathlib import Path
 
+import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -305,3 +306,27 @@ def census(n: int, seed: int = 12) -> dict[str, Counter]:
 if __name__ == "__main__":
     for what, counter in census(int(sys.argv[1]) if len(sys.argv) > 1 else 200).items():
         print(what, sum(counter.values()), dict(counter.most_common()))
+
+
+#: Valid-but-odd layouts simulated per run (each takes seconds): a twentieth of the fuzz examples, at least 5.
+N_SIMULATED = max(5, N_EXAMPLES // 20)
+
+
+@pytest.mark.slow
+@settings(max_examples=N_SIMULATED, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.randoms(use_true_random=False))
+def test_valid_but_odd_layouts_simulate_without_crashing(rng):
+    """A mutated layout that `check` accepts (warnings allowed) must simulate: exit 0 and the whole set written."""
+    with _workdir() as work:
+        for _ in range(100):  # most mutations are refused: draw until one passes `check`
+            base = DEMO_TEXT if rng.random() < 0.5 else THREE_TEXT
+            text = mutate_layout(rng, base)
+            if contract_outcome(text, CSV_TEXT, work).startswith("valid"):
+                break
+        else:
+            return
+        out = work / "out"
+        code, err = _run(["simulate", str(work / "plant" / "plant.toml"), "--out", str(out), "--max-days", "1"])
+        assert code == 0, err[-500:]
+        assert sorted(p.name for p in out.iterdir() if not p.name.startswith(".")) == [
+            "effluent.csv", "summary.json", "timeseries.csv"]

@@ -422,3 +422,15 @@ def test_deeply_nested_arrays_are_an_input_error(tmp_path):
     deep.write_text("a = " + "[" * 2000 + "]" * 2000 + "\n")
     assert _load_errors(deep) == [f"error: {deep}: (toml): TOML nested too deeply (expected arrays and inline "
                                   "tables nested a few levels at most)"]
+
+
+def test_csv_flow_warnings_name_the_csv(plant_dir):
+    def tiny_flows(ls):
+        for i in range(3, len(ls)):
+            cells = ls[i].split(",")
+            ls[i] = ",".join([cells[0], f"{float(cells[1]) / 10000:g}"] + cells[2:])
+    csv_path = _edit_csv(plant_dir, tiny_flows)
+    found: list = []
+    load_layout(plant_dir / "demo.toml", warnings=found)
+    lines = [str(w) for w in found]
+    assert f"warning: {csv_path}: column flow_m3_d: unusual mean influent flow 1.20004 m3/d" in lines

@@ -18,7 +18,7 @@ from airtaper import units
 from airtaper.errors import InputError, Problem
 from airtaper.layout import defaults as D
 from airtaper.layout import graph
-from airtaper.layout.influent import read_influent
+from airtaper.layout.influent import csv_display_path, read_influent
 from airtaper.physics.atmosphere import barometric_pressure_kPa
 from airtaper.physics.blower import efficiency_from_power
 from airtaper.layout.reader import (
@@ -820,7 +820,8 @@ class _Parser:
                 if b.pressure_max_gauge_kPa <= static:
                     col.error(f"blowers.{b.id}.pressure_max_gauge_kPa",
                               f"below the static head of the deepest grid ({deepest.id}, "
-                              f"{deepest.grid.submergence_m:g} m)", b.pressure_max_gauge_kPa, f"> {fixed(static, 1)} kPa")
+                              f"{deepest.grid.submergence_m:g} m)", b.pressure_max_gauge_kPa,
+                              f"> {fixed(static, 1)} kPa")
             if len(zones) == n_zones and all(z.grid is None or z.grid.type_id in types for z in zones):
                 need = sum(_airflow_range(z, types[z.grid.type_id])[0] for z in gridded if z.kind == "aerated")
                 have = sum(b.airflow_max_Sm3_h for b in blowers)
@@ -830,7 +831,11 @@ class _Parser:
         if influent is not None:
             qm = influent.mean_flow_m3_d
             if not D.WARN_MEAN_FLOW_m3_d[0] <= qm <= D.WARN_MEAN_FLOW_m3_d[1]:
-                col.warn("influent", f"unusual mean influent flow {qm:g} m3/d")
+                if influent.source == "constant":
+                    col.warn("influent.flow_m3_d", f"unusual mean influent flow {qm:g} m3/d")
+                else:  # name the CSV the flows were read from
+                    col.warn("column flow_m3_d", f"unusual mean influent flow {qm:g} m3/d",
+                             file=csv_display_path(col.file, self.base_dir, influent.source))
             # the measured forms (CSV rows, constant values) are checked for unit slips where they are read
             if zones and len(zones) == n_zones:
                 hrt = sum(z.volume_m3 for z in zones) / qm * 24.0
