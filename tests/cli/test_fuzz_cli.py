@@ -330,3 +330,74 @@ def test_valid_but_odd_layouts_simulate_without_crashing(rng):
         assert code == 0, err[-500:]
         assert sorted(p.name for p in out.iterdir() if not p.name.startswith(".")) == [
             "effluent.csv", "summary.json", "timeseries.csv"]
+
+
+# --- schedules for `simulate --schedule` ----------------------------------------------------------------
+def _three_schedule_text() -> str:
+    lines = ["period_start_h,zone,airflow_Sm3_h,do_mean_mg_L"]
+    for k in range(24):
+        for zone, q in (("T1", 900.0), ("T2", 700.0), ("T3", 550.0)):
+            lines.append(f"{k:g},{zone},{q:g},1.5")
+    return "\n".join(lines) + "\n"
+
+
+SCHEDULE_TEXT = _three_schedule_text()
+
+
+def mutate_schedule(rng: random.Random, text: str) -> str:
+    lines = text.split("\n")
+    for _ in range(rng.randint(1, 3)):
+        kind = rng.choice(["scale", "cell", "row", "header", "cut"])
+        body = [i for i in range(1, len(lines)) if lines[i].strip()]
+        if kind == "scale" and body:
+            factor = rng.choice([1 / 60, 60.0, 1000.0, 0.001, -1.0, 3600.0])
+            for i in body:
+                cells = lines[i].split(",")
+                if len(cells) > 2:
+                    try:
+                        cells[2] = f"{float(cells[2]) * factor:g}"
+                    except ValueError:
+                        pass
+                lines[i] = ",".join(cells)
+        elif kind == "cell" and body:
+            i = rng.choice(body)
+            cells = lines[i].split(",")
+            j = rng.randrange(len(cells))
+            cells[j] = rng.choice(["", "x", "nan", "inf", "-1", "1e400", "0.5", "25", "T9", "t1", "\x1b", "3.0001"])
+            lines[i] = ",".join(cells)
+        elif kind == "row" and body:
+            i = rng.choice(body)
+            if rng.random() < 0.5:
+                del lines[i]
+            else:
+                lines.insert(i, lines[i])
+        elif kind == "header":
+            names = lines[0].split(",")
+            j = rng.randrange(len(names))
+            names[j] = rng.choice(["", names[j].upper(), names[j] + "\x07", "airflow_Sm3_min", "zone"])
+            lines[0] = ",".join(names)
+        else:
+            joined = "\n".join(lines)
+            lines = joined[:rng.randrange(len(joined) + 1)].split("\n")
+    return "\n".join(lines)
+
+
+@settings(max_examples=max(10, N_EXAMPLES // 10), deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.randoms(use_true_random=False))
+def test_fuzzed_schedules_keep_the_error_contract(rng):
+    with _workdir() as work:
+        sched = work / "schedule.csv"
+        sched.write_bytes(mutate_schedule(rng, SCHEDULE_TEXT).encode("utf-8", "surrogatepass"))
+        out = work / "out"
+        code, err = _run(["simulate", str(LAYOUTS / "three_tank.toml"), "--out", str(out), "--schedule", str(sched),
+                          "--max-days", "1"])
+        assert code in (0, 2), err[-500:]
+        lines = err.splitlines()
+        assert all(line.isprintable() and line.startswith(("error: ", "warning: ")) for line in lines), lines
+        if code == 2:
+            errors = [line for line in lines if line.startswith("error: ")]
+            assert errors and all(line.startswith(f"error: {sched}: ") and "expected" in line for line in errors), \
+                errors
+            assert sorted(p.name for p in work.iterdir()) == ["schedule.csv"]  # nothing written
+        else:
+            assert (out / "summary.json").is_file()

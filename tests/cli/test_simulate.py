@@ -185,3 +185,15 @@ def test_interrupted_run_leaves_the_earlier_set(tmp_path, capsys, monkeypatch, e
     assert main(args + ["--overwrite", "--do-setpoint", "1.0"]) == code
     assert {p.name: p.read_bytes() for p in out.iterdir()} == before  # the old set, whole
     assert sorted(p.name for p in tmp_path.iterdir()) == ["sim"]  # no staging folder left
+
+
+@pytest.mark.parametrize("option,value,expected", [
+    ("--max-days", "0", "--max-days: out of range (got 0, expected 1 to 365 days)"),
+    ("--max-days", "100000000000000000000", "--max-days: out of range (got 1e+20, expected 1 to 365 days)"),
+    ("--tol", "nan", "--tol: out of range (got nan, expected 0 < tol < 1)"),
+    ("--do-setpoint", "inf", "--do-setpoint: out of range (got inf, expected 0 < setpoint < 20 mg/L)"),
+])
+def test_command_line_numbers_are_checked_before_anything(tmp_path, capsys, option, value, expected):
+    assert main(["simulate", "layouts/three_tank.toml", "--out", str(tmp_path / "o"), option, value]) == 2
+    assert capsys.readouterr().err == f"error: <command line>: {expected}\n"
+    assert not (tmp_path / "o").exists()

@@ -38,6 +38,8 @@ MAX_SCHEDULE_BYTES = 20_000_000
 #: A schedule in Sm3/min is 60 times too small; refused when x 60 stays within this factor of the zone maxima.
 SM3_MIN_FIT = 1.5
 SCHEDULE_COLUMNS = ("period_start_h", "zone", "airflow_Sm3_h")
+#: Most days `--max-days` may ask for (a day that has not repeated after a year will not).
+MAX_DAYS = 365
 
 
 def register(subparsers) -> None:
@@ -156,8 +158,9 @@ def run(args) -> int:
     from airtaper.simulate import periodic
     from airtaper.simulate.summary import summarize
 
-    if args.max_days < 1:
-        raise InputError(Problem("<command line>", "--max-days", "must be at least 1", got=args.max_days))
+    if not 1 <= args.max_days <= MAX_DAYS:
+        raise InputError(Problem("<command line>", "--max-days", "out of range", got=args.max_days,
+                                 expected=f"1 to {MAX_DAYS} days"))
     if args.do_setpoint is not None and not 0.0 < args.do_setpoint < 20.0:
         raise InputError(Problem("<command line>", "--do-setpoint", "out of range", got=args.do_setpoint,
                                  expected="0 < setpoint < 20 mg/L"))
