@@ -434,3 +434,10 @@ def test_csv_flow_warnings_name_the_csv(plant_dir):
     load_layout(plant_dir / "demo.toml", warnings=found)
     lines = [str(w) for w in found]
     assert f"warning: {csv_path}: column flow_m3_d: unusual mean influent flow 1.20004 m3/d" in lines
+
+
+def test_pipe_given_as_layout_is_refused_without_waiting(tmp_path):
+    fifo = tmp_path / "plant.toml"
+    os.mkfifo(fifo)  # opening it would wait for a writer forever
+    assert _load_errors(fifo) == [f"error: {fifo}: (file): cannot read the layout: not a regular file (got 'a pipe', "
+                                  "expected a regular file)"]
