@@ -197,3 +197,33 @@ def test_command_line_numbers_are_checked_before_anything(tmp_path, capsys, opti
     assert main(["simulate", "layouts/three_tank.toml", "--out", str(tmp_path / "o"), option, value]) == 2
     assert capsys.readouterr().err == f"error: <command line>: {expected}\n"
     assert not (tmp_path / "o").exists()
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("sig", ["SIGTERM", "SIGINT"])
+def test_a_signal_during_a_run_leaves_the_old_set_or_the_new_one(tmp_path, sig):
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    out = tmp_path / "sim"
+    base = [sys.executable, "-m", "airtaper", "simulate", "layouts/three_tank.toml", "--out", str(out)]
+    subprocess.run(base + ["--max-days", "1"], check=True, capture_output=True, timeout=300)
+    old = {p.name: p.read_bytes() for p in out.iterdir()}
+    proc = subprocess.Popen(base + ["--overwrite", "--do-setpoint", "0.7", "--max-days", "30"],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    deadline = time.monotonic() + 240
+    while not any(p.name.startswith(".sim.airtaper-staging-") for p in tmp_path.iterdir()):  # the run is under way
+        assert proc.poll() is None and time.monotonic() < deadline, proc.stderr.read()
+        time.sleep(0.05)
+    proc.send_signal(getattr(signal, sig))
+    _, err = proc.communicate(timeout=300)
+    now = {p.name: p.read_bytes() for p in out.iterdir()}
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["sim"]  # no staging folder left
+    if proc.returncode == 0:  # the run finished before the signal: the whole new set
+        assert sorted(now) == sorted(old) and now != old
+    else:
+        assert proc.returncode == 128 + getattr(signal, sig), err
+        assert now == old  # the earlier run, whole
+        assert b"Traceback" not in err
