@@ -197,7 +197,8 @@ def mutate_csv(rng: random.Random, text: str) -> str:
 
 
 # --- running one variant --------------------------------------------------------------------------
-ERROR_LINE = re.compile(r"^error: (?P<file>[^:]+(?::[^:]+)*?): (?P<key>[^:]+?): (?P<problem>.+)$")
+ERROR_LINE = re.compile(r"^error: (?P<file>[^:]+): (?P<key>(?:[^:'\"]|\"(?:[^\"\\]|\\.)*\"|'(?:[^'\\]|\\.)*')+?): "
+                        r"(?P<problem>.+)$")
 
 
 def _run(argv: list[str]) -> tuple[int, str]:

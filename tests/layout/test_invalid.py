@@ -345,7 +345,7 @@ SLIPS = [
           "lane with fewer, larger zones))"], None),
     ("control-characters-in-a-key", "demo", _control_characters_in_a_key,
      [E + "zones.Z3.volume_m3: missing required key (expected a number)",
-      E + "zones.Z3.volume\\n_m3\\x1b[31m: unknown key, did you mean 'volume_m3'?"], []),
+      E + "zones.Z3.\"volume\\n_m3\\x1b[31m\": unknown key, did you mean 'volume_m3'?"], []),
 ]
 
 
@@ -388,7 +388,8 @@ def test_csv_concentrations_in_g_per_litre_name_the_csv_row(plant_dir):
 def test_csv_header_with_control_characters_stays_one_line(plant_dir):
     csv_path = _edit_csv(plant_dir, lambda ls: ls.__setitem__(2, ls[2].replace("nh4_mg_L", "nh4\x1b_mg\x07L")))
     lines = _load_errors(plant_dir / "demo.toml")
-    assert lines[0] == f"error: {csv_path}: row 3, column nh4\\x1b_mg\\x07L: unknown column, did you mean 'nh4_mg_L'?"
+    assert lines[0] == (f"error: {csv_path}: row 3, column 'nh4\\x1b_mg\\x07L': unknown column, did you mean "
+                        "'nh4_mg_L'?")
     assert all(line.isprintable() for line in lines)
 
 
@@ -410,6 +411,13 @@ def test_device_given_as_layout_or_influent_is_refused_at_once(plant_dir, specia
     assert _load_errors(plant_dir / "demo.toml") == [
         f"error: {special}: (file): cannot read the influent CSV: not a regular file (got 'a character device', "
         "expected a regular file)"]
+
+
+def test_csv_header_cell_with_a_colon_is_quoted(plant_dir):
+    csv_path = _edit_csv(plant_dir, lambda ls: ls.__setitem__(2, ls[2].replace("tss_mg_L", ":")))
+    assert _load_errors(plant_dir / "demo.toml")[0] == (
+        f"error: {csv_path}: row 3, column ':': unknown column (expected one of time_h, flow_m3_d, cod_total_mg_L, "
+        "cod_soluble_mg_L, tkn_mg_L, nh4_mg_L, tss_mg_L, alkalinity_mol_m3)")
 
 
 def test_folder_given_as_layout(tmp_path):

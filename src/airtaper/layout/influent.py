@@ -182,14 +182,14 @@ def read_csv_text(col: Collector, file: str, text: str, frac: Fractionation | No
     seen: set[str] = set()
     for name in names:
         if name in seen:
-            col.error(f"row {hrow}, column {name}", "duplicate column", None, "each column once", file=file)
+            col.error(f"row {hrow}, column {_column(name)}", "duplicate column", None, "each column once", file=file)
         seen.add(name)
         if name not in CSV_COLUMNS:
             hint = did_you_mean(name, CSV_COLUMNS)
             if hint:
-                col.error(f"row {hrow}, column {name}", f"unknown column, did you mean {hint!r}?", file=file)
+                col.error(f"row {hrow}, column {_column(name)}", f"unknown column, did you mean {hint!r}?", file=file)
             else:
-                col.error(f"row {hrow}, column {name}", "unknown column", None,
+                col.error(f"row {hrow}, column {_column(name)}", "unknown column", None,
                           "one of " + ", ".join(CSV_COLUMNS), file=file)
     for name in CSV_COLUMNS:
         if name not in seen:
@@ -250,6 +250,11 @@ def read_csv_text(col: Collector, file: str, text: str, frac: Fractionation | No
                      f"{last / spans[len(spans) // 2]:.0f} times longer than the others: were the times in another "
                      "unit than hours?", file=file)
     return times, rows
+
+
+def _column(name: str) -> str:
+    """A CSV header cell as a message names it: quoted when it is empty or holds more than letters, digits and '_'."""
+    return name if name and all(c.isascii() and (c.isalnum() or c == "_") for c in name) else repr(name)
 
 
 class _FileCollector:

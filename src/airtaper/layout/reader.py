@@ -111,8 +111,17 @@ def is_number(value) -> bool:
     return isinstance(value, (int, float)) and not isinstance(value, bool)
 
 
+def bare_key(key) -> str:
+    """A key as a key path shows it: TOML's bare form, or double-quoted when it holds other characters
+    (``zones.Z3."volume m3"``), so that a ':' or '.' in a key cannot be misread."""
+    key = str(key)
+    if key and all(c.isascii() and (c.isalnum() or c in "_-") for c in key):
+        return key
+    return '"' + key.replace("\\", "\\\\").replace('"', '\\"') + '"'
+
+
 def join(path: str, key) -> str:
-    return f"{path}.{key}" if path else str(key)
+    return f"{path}.{bare_key(key)}" if path else bare_key(key)
 
 
 def fixed(x: float, digits: int = 1) -> str:
