@@ -35,13 +35,20 @@ def _tables(n_periods=4, zones=("Z2", "Z3")):
 def test_all_outputs_written(tmp_path):
     schedule, header, ts, summary = _tables()
     paths = write_study_outputs(tmp_path, schedule=schedule, header=header, timeseries=ts, summary=summary)
-    assert sorted(p.name for p in paths) == sorted(OUTPUT_NAMES)
+    names = {p.name for p in paths}
+    assert names <= set(OUTPUT_NAMES) and len(names) == len(paths)
+    # no layout, no baseline columns, no blowers: those figures are left out, the rest written
+    assert names == {"schedule.csv", "header.csv", "timeseries.csv", "summary.json", "schedule.png", "do_by_zone.png",
+                     "effluent.png", "power_and_pressure.png", "report.html", "results.xlsx"}
     assert json.loads((tmp_path / "summary.json").read_text())["saving_percent"] == 20.0
     assert (tmp_path / "schedule.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     page = (tmp_path / "report.html").read_text()
     assert "Caution" in page and "licensed engineers" in page
-    assert "<td>NH4-N daily mean (mg/L)</td><td>1.000</td><td>1.010</td><td>1.50</td>" in page
-    assert "<td>DO margin Z2 (mg/L)</td><td>0.000</td><td>-0.010</td>" in page
+    assert ("<td class='left'>effluent NH4-N, daily mean (mg/L)</td><td>1.000</td><td>1.010</td><td>1.5</td>"
+            in page)
+    assert "<td>+0.000</td><td>-0.010</td>" in page  # the re-simulated dip below Z2's minimum, not rounded away
+    assert "summary names no layout file" in page  # said, not an error
+    assert pd.read_excel(tmp_path / "results.xlsx", sheet_name="header").shape == header.shape
     assert pd.read_csv(tmp_path / "schedule.csv").shape == schedule.shape
 
 
@@ -50,6 +57,8 @@ def test_console_summary_names_figures_and_caution():
     text = console_summary(summary)
     assert "1,200.0 kWh/d" in text and "saving 20.0 %" in text
     assert CAUTION in text
+    assert "min DO margin     -0.010 mg/L re-simulated (optimiser +0.000 mg/L)" in console_summary(
+        dict(summary, verification=dict(summary["verification"], min_do_margin_mg_L=-0.01)))
 
 
 def test_console_summary_lists_every_marginal_cost_and_no_negative_zero():
@@ -59,5 +68,16 @@ def test_console_summary_lists_every_marginal_cost_and_no_negative_zero():
     summary["min_do_margin_mg_L"] = -0.001
     text = console_summary(summary)
     assert text.count("marginal          do_min_mg_L") == 15
-    assert "-0.0" not in text
+    assert "-0.0 " not in text and "-0.00 " not in text  # no negative zero
+    assert "min DO margin     -0.001 mg/L" in text  # a real dip below the minimum is not rounded away
     assert text.count("(not binding)") == 7
+
+
+def test_console_summary_says_when_the_baseline_breaks_a_limit():
+    *_, summary = _tables()
+    summary["baseline_compliant"] = False
+    summary["complying_baseline"] = dict(energy_kWh_per_day=1400.0, setpoint_mg_L=2.6, saving_percent=14.3)
+    text = console_summary(summary)
+    energy_line = next(line for line in text.splitlines() if line.startswith("energy"))
+    assert "a baseline that breaks a limit" in energy_line
+    assert "complying base    1,400.0 kWh/d at a uniform DO of 2.60 mg/L, saving 14.3 %" in text
