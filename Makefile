@@ -16,7 +16,7 @@ $(STAMP): pyproject.toml | $(PY)
 
 demo: $(STAMP)
 	$(VENV)/bin/airtaper check layouts/demo.toml
-	$(VENV)/bin/airtaper optimize layouts/demo.toml --out outputs/demo
+	$(VENV)/bin/airtaper optimize layouts/demo.toml --out outputs/demo --overwrite
 
 test: $(STAMP)
 	$(PY) -m pytest -q

@@ -7,6 +7,7 @@ with :data:`EXIT_INPUT`; no traceback reaches the user.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 EXIT_OK = 0
@@ -31,15 +32,69 @@ class Problem:
     expected: str | None = None
 
     def __str__(self) -> str:
-        text = f"error: {self.file}: {self.key}: {self.problem}"
+        text = f"error: {one_line(self.file)}: {one_line(self.key)}: {one_line(self.problem)}"
         details = []
         if self.got is not None:
-            details.append(f"got {self.got!r}")
+            details.append(f"got {shown(self.got)}")
         if self.expected:
-            details.append(f"expected {self.expected}")
+            details.append(f"expected {one_line(self.expected)}")
         if details:
             text += " (" + ", ".join(details) + ")"
         return text
+
+
+#: Longest value text a message shows; longer values are cut with "...".
+SHOWN_MAX_CHARS = 60
+
+
+def one_line(text) -> str:
+    """``text`` with every control or other non-printable character escaped, so a message stays one line.
+
+    A newline in a quoted TOML key or a CSV header becomes ``\\n``; an escape
+    character ``\\x1b``: what the user typed stays visible and cannot split or
+    recolour the terminal line.
+    """
+    text = str(text)
+    if text.isprintable():
+        return text
+    out = []
+    for ch in text:
+        if ch.isprintable():
+            out.append(ch)
+        else:
+            out.append(repr(ch)[1:-1])
+    return "".join(out)
+
+
+def shown(value) -> str:
+    """A value as a message shows it: repr for short values, huge numbers rounded, big or nested values summarised."""
+    if isinstance(value, bool) or value is None:
+        return repr(value)
+    if isinstance(value, int):
+        if abs(value) < 10**12:
+            return repr(value)
+        digits = str(abs(value)) if value.bit_length() < 4000 else None
+        if digits is None:
+            return ("-" if value < 0 else "") + "a number of more than 1200 digits"
+        mantissa = f"{digits[0]}.{digits[1:6]}".rstrip("0").rstrip(".")
+        return f"{'-' if value < 0 else ''}{mantissa}e+{len(digits) - 1}"
+    if isinstance(value, float):
+        text = repr(value)
+        return text if len(text) <= 12 or not math.isfinite(value) else f"{value:.6g}"
+    if isinstance(value, dict):
+        return "a table"
+    if isinstance(value, (list, tuple)):
+        if all(isinstance(v, (int, float, str, bool)) for v in value):
+            text = "[" + ", ".join(shown(v) for v in value[:8]) + (", ..." if len(value) > 8 else "") + "]"
+            if len(text) <= SHOWN_MAX_CHARS:
+                return text
+        return f"a list of {len(value)}"
+    if isinstance(value, str):
+        if len(value) > SHOWN_MAX_CHARS:
+            value = value[:SHOWN_MAX_CHARS - 3] + "..."
+        return one_line(repr(value))
+    text = one_line(repr(value))
+    return text if len(text) <= SHOWN_MAX_CHARS else text[:SHOWN_MAX_CHARS - 3] + "..."
 
 
 class AirtaperError(Exception):
@@ -49,10 +104,13 @@ class AirtaperError(Exception):
 class InputError(AirtaperError):
     """One or more problems with user input; ``problems`` lists them all."""
 
-    def __init__(self, problems: list[Problem] | Problem):
+    def __init__(self, problems: list[Problem] | Problem, warnings: list | tuple = ()):
         if isinstance(problems, Problem):
             problems = [problems]
         self.problems: list[Problem] = list(problems)
+        #: Warnings found in the same input (a likely unit slip): the CLI prints them before the errors,
+        #: since they often name the cause of an error.
+        self.warnings: list = list(warnings)
         super().__init__("\n".join(str(p) for p in self.problems))
 
 

@@ -35,6 +35,10 @@ M_O2_kg_mol = 0.031998  # IUPAC
 Y_O2_AIR = 0.20946  # O2 volume (mole) fraction of dry air, US Standard Atmosphere 1976
 KPA_PER_M_WATER = G_m_s2  # 1 m of conventional water column = 9.80665 kPa
 HOURS_PER_DAY = 24.0
+M_PER_FT = 0.3048  # international foot (exact by definition)
+#: Alkalinity: mg/L as CaCO3 per mol/m3 (mmol/L) of alkalinity counted as HCO3- equivalents, half the molar
+#: mass of CaCO3 (100.09 g/mol).
+MG_CACO3_PER_MOL_ALK = 50.04
 SECONDS_PER_HOUR = 3600.0
 G_PER_KG = 1000.0
 
@@ -191,3 +195,8 @@ def kW_h_to_kWh(power_kW, duration_h):
 def kJ_s_to_kW(power_kJ_s):
     """kJ/s to kW (identical numbers; kept so the unit change is visible)."""
     return power_kJ_s
+
+
+def ft_to_m(length_ft):
+    """Feet to metres (the international foot, 0.3048 m exactly)."""
+    return length_ft * M_PER_FT

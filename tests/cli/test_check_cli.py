@@ -125,3 +125,42 @@ def test_python_dash_m_on_the_demo():
                           timeout=120)
     assert proc.returncode == EXIT_OK, proc.stderr
     assert "2,880-20,160" in proc.stdout
+
+
+def test_a_warning_naming_the_cause_is_printed_before_the_errors(tmp_path, capsys):
+    # a depth typed in mm: the density error follows from it, the warning says why
+    text = DEMO.read_text().replace('id = "Z2"\nkind = "aerated"\nvolume_m3 = 900.0\ndepth_m = 5.5',
+                                    'id = "Z2"\nkind = "aerated"\nvolume_m3 = 900.0\ndepth_m = 5500')
+    path = tmp_path / "mm.toml"
+    path.write_text(text)
+    shutil.copy(ROOT / "layouts" / "demo_influent.csv", tmp_path / "demo_influent.csv")
+    assert main(["check", str(path)]) == EXIT_INPUT
+    assert capsys.readouterr().err.splitlines() == [
+        f"warning: {path}: zones.Z2.grid.submergence_m: grid sits 5494.80 m above the floor",
+        f"warning: {path}: zones.Z2.depth_m: side-water depth 5500 m: was it typed in mm (5.5 m)?",
+        f"error: {path}: zones.Z2.grid.count: diffusers cover 19555.6 % of the floor, more than fits (got 800, "
+        "expected <= 1 (25 % of 0.2 m2))",
+    ]
+
+
+def test_a_closed_stdout_ends_quietly():
+    # `airtaper check ... | head`: the reader leaves before airtaper writes
+    proc = subprocess.Popen([sys.executable, "-m", "airtaper", "check", str(DEMO)], stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE)
+    proc.stdout.close()
+    err = proc.stderr.read().decode()
+    assert proc.wait(timeout=120) == EXIT_OK
+    assert err == ""
+
+
+def test_sigterm_is_reported_like_an_interrupt(monkeypatch, capsys):
+    import os
+    import signal
+
+    def terminated(*args, **kwargs):
+        os.kill(os.getpid(), signal.SIGTERM)
+        raise AssertionError("SIGTERM did not stop the command")
+    monkeypatch.setattr(check_cmd, "load_layout", terminated)
+    assert main(["check", str(DEMO)]) == 128 + signal.SIGTERM
+    assert capsys.readouterr().err == "error: terminated\n"
+    assert signal.getsignal(signal.SIGTERM) is signal.SIG_DFL  # restored after the command

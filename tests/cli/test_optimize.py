@@ -105,3 +105,30 @@ def test_influent_csv_named_like_an_output_is_never_overwritten(tmp_path, capsys
     err = capsys.readouterr().err
     assert "would overwrite an input" in err and "Traceback" not in err
     assert (plant / "schedule.csv").read_text() == csv_text
+
+
+@pytest.mark.parametrize("case", ["existing file", "earlier run without --overwrite", "under a file"])
+def test_output_folder_problems_are_found_before_the_solve(tmp_path, capsys, monkeypatch, case):
+    import airtaper.optimize.study as study
+
+    def no_solve(*args, **kwargs):
+        raise AssertionError("the solve started before the output folder was checked")
+
+    monkeypatch.setattr(study, "run_optimization", no_solve)
+    lay = _short_layout(tmp_path)
+    if case == "existing file":
+        out = tmp_path / "report.html"
+        out.write_text("keep\n")
+        expected = f"error: {out}: --out: names an existing file, not a folder"
+    elif case == "earlier run without --overwrite":
+        out = tmp_path / "earlier"
+        out.mkdir()
+        (out / "summary.json").write_text("{}\n")
+        expected = f"error: {out}: --out: the folder holds an earlier run or other files (kept)"
+    else:
+        (tmp_path / "blocker").write_text("")
+        out = tmp_path / "blocker" / "out"
+        expected = f"error: {out}: --out: cannot write in {tmp_path / 'blocker'}"
+    assert main(["optimize", str(lay), "--out", str(out), "--quiet"]) == EXIT_INPUT
+    err = capsys.readouterr().err.splitlines()
+    assert len(err) == 1 and err[0].startswith(expected), err  # at once: the solve never started

@@ -162,7 +162,8 @@ def test_step_feed_fractions_must_sum_to_one():
 def test_step_feed_to_a_missing_zone_and_twice_to_one_zone():
     errors, _ = _check(step_feed=[StepFeed("A", 0.5), StepFeed("A", 0.25), StepFeed("Q", 0.25)])
     assert errors == [
-        "error: t.toml: flows.step_feed[2].zone: zone fed twice; give one fraction per zone (got 'A')",
+        "error: t.toml: flows.step_feed[2].zone: zone fed twice; give one fraction per zone (got 'A', expected one "
+        "[[flows.step_feed]] per zone)",
         "error: t.toml: flows.step_feed[3].zone: no such zone (got 'Q', expected one of A, B, C)",
     ]
 

@@ -205,7 +205,8 @@ def _load_errors(path) -> list[str]:
 def test_toml_syntax_error_names_line_and_column(tmp_path):
     bad = tmp_path / "syntax.toml"
     bad.write_text('[plant]\nname = "x"\nelevation_m = = 3\n')
-    assert _load_errors(bad) == [f"error: {bad}: line 3, column 15: TOML syntax: Invalid value"]
+    assert _load_errors(bad) == [f"error: {bad}: line 3, column 15: TOML syntax: Invalid value (expected a number, "
+                                 '"string", true/false, [array] or { inline table })']
 
 
 def test_missing_layout_file(tmp_path):
@@ -270,3 +271,181 @@ def test_csv_influent_needs_a_folder(demo_data):
     assert [str(p) for p in info.value.problems] == [
         "error: mem.toml: influent.csv: a CSV influent needs the layout's folder (got 'demo_influent.csv', "
         "expected load the layout from a file, or pass base_dir)"]
+
+
+# --- unit slips: the likely cause named, as an error when surely wrong, a warning otherwise ---------
+def _sote_as_fractions(d):
+    for p in d["diffuser_types"][0]["sote_points"]:
+        p["sote_percent"] = round(p["sote_percent"] / 100.0, 6)
+
+
+def _concentrations_in_g_per_litre(d):
+    for k in ("cod_total_mg_L", "cod_soluble_mg_L", "tkn_mg_L", "nh4_mg_L", "tss_mg_L"):
+        d["influent"][k] = d["influent"][k] / 1000.0
+
+
+def _power_points(d):
+    b = d["blowers"][2]
+    del b["efficiency"]
+    b["power_points"] = [{"airflow_Sm3_h": 2500.0, "discharge_gauge_kPa": 60.0, "power_kW": 80.0},
+                         {"airflow_Sm3_h": 5500.0, "discharge_gauge_kPa": 62.0, "power_kW": 160.0}]
+
+
+def _power_points_without_elevation(d):
+    _power_points(d)
+    del d["plant"]["elevation_m"]
+
+
+def _power_points_in_hot_water(d):
+    _power_points(d)
+    d["plant"]["water_temperature_C"] = 54.0
+
+
+def _many_zones(d):
+    z = d["zones"][0]
+    d["zones"] = [dict(z, id=f"T{i}", volume_m3=10.0, grid=dict(z["grid"], count=2)) for i in range(1, 202)]
+
+
+def _control_characters_in_a_key(d):
+    z = _zone(d, "Z3")
+    z["volume\n_m3\x1b[31m"] = z.pop("volume_m3")
+
+
+# (id, base layout, mutation, the exact error lines, the exact warning lines)
+SLIPS = [
+    ("sote-typed-as-fractions", "demo", _sote_as_fractions,
+     [E + "diffuser_types.disc_040.sote_points[1].sote_percent: SOTE 0.263 %: was it typed as a fraction? every "
+          "test point is at or below 1 % (got 0.263, expected percent (26.3 %, not 0.263))"], []),
+    ("elevation-typed-in-feet", "demo", _set(["plant", "elevation_m"], 2953.0),
+     [], ["warning: bad.toml: plant.elevation_m: elevation 2953 m: was it typed in feet (2953 ft = 900 m)? give "
+          "barometric_pressure_kPa to confirm a high site"]),
+    ("depth-typed-in-mm", "demo", _set(["zones:Z2", "depth_m"], 5500.0),
+     [E + "zones.Z2.grid.count: diffusers cover 19555.6 % of the floor, more than fits (got 800, expected <= 1 "
+          "(25 % of 0.2 m2))"],
+     ["warning: bad.toml: zones.Z2.grid.submergence_m: grid sits 5494.80 m above the floor",
+      "warning: bad.toml: zones.Z2.depth_m: side-water depth 5500 m: was it typed in mm (5.5 m)?"]),
+    ("concentrations-in-g-per-litre", "three", _concentrations_in_g_per_litre,
+     [E + "influent.cod_total_mg_L: total COD at most 0.45 mg/L in every row: were the concentrations typed in "
+          "g/L? (got 0.45, expected mg/L (x 1000: 450 mg/L))"], []),
+    ("alkalinity-as-caco3", "three", _set(["influent", "alkalinity_mol_m3"], 325.0),
+     [], ["warning: bad.toml: influent.alkalinity_mol_m3: alkalinity 325 mol/m3: was it given in mg/L as CaCO3 "
+          "(6.5 mol/m3)?"]),
+    ("huge-growth-rate", "demo", _set(["kinetics", "overrides"], {"mu_H": 6.0e5}),
+     [E + "kinetics.overrides.mu_H: out of range (got 600000.0, expected > 0 and <= 20)"], []),
+    ("twenty-digit-integer-shown-rounded", "demo", _set(["plant", "elevation_m"], 12345678901234567890),
+     [E + "plant.elevation_m: out of range (got 1.23456e+19, expected >= -500 and <= 6000)"], []),
+    ("integer-beyond-the-float-range", "demo", _set(["plant", "elevation_m"], 10**400),
+     [E + "plant.elevation_m: number too large (got 1e+400, expected >= -500 and <= 6000)"], []),
+    ("power-points-without-elevation", "demo", _power_points_without_elevation,
+     [E + "plant.elevation_m: missing required key (expected a number)"], []),
+    ("power-points-in-water-at-54-C", "demo", _power_points_in_hot_water,
+     [E + "plant.water_temperature_C: out of range (got 54.0, expected >= 0 and <= 45)"], []),
+    ("two-hundred-zones", "three", _many_zones,
+     [E + "zones: too many zones for one train (got '201 zones', expected at most 60 (model a long plug-flow "
+          "lane with fewer, larger zones))"], None),
+    ("control-characters-in-a-key", "demo", _control_characters_in_a_key,
+     [E + "zones.Z3.volume_m3: missing required key (expected a number)",
+      E + "zones.Z3.\"volume\\n_m3\\x1b[31m\": unknown key, did you mean 'volume_m3'?"], []),
+]
+
+
+@pytest.mark.parametrize("base,mutate,errors,warnings", [c[1:] for c in SLIPS], ids=[c[0] for c in SLIPS])
+def test_unit_slip_names_its_likely_cause(base, mutate, errors, warnings, demo_data, three_data):
+    data = demo_data if base == "demo" else three_data
+    mutate(data)
+    found: list = []
+    if errors:
+        with pytest.raises(InputError) as info:
+            parse_layout(data, "bad.toml", os.path.join(os.path.dirname(__file__), "..", "..", "layouts"),
+                         warnings=found)
+        assert [str(p) for p in info.value.problems] == errors
+        assert [str(w) for w in info.value.warnings] == [str(w) for w in found]
+    else:
+        parse_layout(data, "bad.toml", os.path.join(os.path.dirname(__file__), "..", "..", "layouts"), warnings=found)
+    if warnings is not None:
+        assert [str(w) for w in found] == warnings
+    for line in (errors or []) + [str(w) for w in found]:
+        assert line.isprintable(), line  # one clean line: control characters escaped
+
+
+def test_power_points_layout_parses_with_its_site(demo_data):
+    _power_points(demo_data)
+    layout = parse_layout(demo_data, "ok.toml", os.path.join(os.path.dirname(__file__), "..", "..", "layouts"))
+    assert all(0.0 < p.efficiency <= 1.0 for p in layout.blowers[2].efficiency_points)
+
+
+def test_csv_concentrations_in_g_per_litre_name_the_csv_row(plant_dir):
+    def to_grams(ls):
+        for i in range(3, len(ls)):
+            cells = ls[i].split(",")
+            ls[i] = ",".join(cells[:2] + [f"{float(c) / 1000:g}" for c in cells[2:7]] + cells[7:])
+    csv_path = _edit_csv(plant_dir, to_grams)
+    assert _load_errors(plant_dir / "demo.toml") == [
+        f"error: {csv_path}: row 15, column cod_total_mg_L: total COD at most 0.538 mg/L in every row: were the "
+        "concentrations typed in g/L? (got 0.538, expected mg/L (x 1000: 538 mg/L))"]
+
+
+def test_csv_header_with_control_characters_stays_one_line(plant_dir):
+    csv_path = _edit_csv(plant_dir, lambda ls: ls.__setitem__(2, ls[2].replace("nh4_mg_L", "nh4\x1b_mg\x07L")))
+    lines = _load_errors(plant_dir / "demo.toml")
+    assert lines[0] == (f"error: {csv_path}: row 3, column 'nh4\\x1b_mg\\x07L': unknown column, did you mean "
+                        "'nh4_mg_L'?")
+    assert all(line.isprintable() for line in lines)
+
+
+def test_csv_cod_outside_the_usual_range_is_named_by_file_and_row(plant_dir):
+    # line 8 of the demo CSV is hour 4: 4,6470,408,163,...
+    csv_path = _edit_csv(plant_dir, lambda ls: ls.__setitem__(7, ls[7].replace(",408,163,", ",2408,163,")))
+    found: list = []
+    load_layout(plant_dir / "demo.toml", warnings=found)
+    assert [str(w) for w in found] == [f"warning: {csv_path}: row 8, column cod_total_mg_L: unusual total COD "
+                                       "2408 mg/L (usual 50-2000)"]
+
+
+@pytest.mark.parametrize("special", ["/dev/zero", "/dev/null"])
+def test_device_given_as_layout_or_influent_is_refused_at_once(plant_dir, special):
+    assert _load_errors(special) == [f"error: {special}: (file): cannot read the layout: not a regular file "
+                                     "(got 'a character device', expected a regular file)"]
+    text = (plant_dir / "demo.toml").read_text().replace('csv = "demo_influent.csv"', f'csv = "{special}"')
+    (plant_dir / "demo.toml").write_text(text)
+    assert _load_errors(plant_dir / "demo.toml") == [
+        f"error: {special}: (file): cannot read the influent CSV: not a regular file (got 'a character device', "
+        "expected a regular file)"]
+
+
+def test_csv_header_cell_with_a_colon_is_quoted(plant_dir):
+    csv_path = _edit_csv(plant_dir, lambda ls: ls.__setitem__(2, ls[2].replace("tss_mg_L", ":")))
+    assert _load_errors(plant_dir / "demo.toml")[0] == (
+        f"error: {csv_path}: row 3, column ':': unknown column (expected one of time_h, flow_m3_d, cod_total_mg_L, "
+        "cod_soluble_mg_L, tkn_mg_L, nh4_mg_L, tss_mg_L, alkalinity_mol_m3)")
+
+
+def test_folder_given_as_layout(tmp_path):
+    assert _load_errors(tmp_path) == [f"error: {tmp_path}: (file): cannot read the layout: it is a folder "
+                                      "(expected a file)"]
+
+
+def test_deeply_nested_arrays_are_an_input_error(tmp_path):
+    deep = tmp_path / "deep.toml"
+    deep.write_text("a = " + "[" * 2000 + "]" * 2000 + "\n")
+    assert _load_errors(deep) == [f"error: {deep}: (toml): TOML nested too deeply (expected arrays and inline "
+                                  "tables nested a few levels at most)"]
+
+
+def test_csv_flow_warnings_name_the_csv(plant_dir):
+    def tiny_flows(ls):
+        for i in range(3, len(ls)):
+            cells = ls[i].split(",")
+            ls[i] = ",".join([cells[0], f"{float(cells[1]) / 10000:g}"] + cells[2:])
+    csv_path = _edit_csv(plant_dir, tiny_flows)
+    found: list = []
+    load_layout(plant_dir / "demo.toml", warnings=found)
+    lines = [str(w) for w in found]
+    assert f"warning: {csv_path}: column flow_m3_d: unusual mean influent flow 1.20004 m3/d" in lines
+
+
+def test_pipe_given_as_layout_is_refused_without_waiting(tmp_path):
+    fifo = tmp_path / "plant.toml"
+    os.mkfifo(fifo)  # opening it would wait for a writer forever
+    assert _load_errors(fifo) == [f"error: {fifo}: (file): cannot read the layout: not a regular file (got 'a pipe', "
+                                  "expected a regular file)"]

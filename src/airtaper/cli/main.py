@@ -7,8 +7,12 @@ one entry in :data:`COMMANDS`.
 
 Every handler runs through :func:`run_handler`: an
 :class:`~airtaper.errors.InputError` becomes one ``error: <file>: <key>: ...``
-line per problem on stderr and exit code 2; no traceback reaches the user
-(set ``AIRTAPER_DEBUG=1`` to see one for an internal failure).
+line per problem on stderr (after the warnings found in the same input, which
+often name the cause) and exit code 2; no traceback reaches the user (set
+``AIRTAPER_DEBUG=1`` to see one for an internal failure). A reader that stops
+reading (``airtaper check ... | head``) ends the command quietly; SIGTERM is
+handled like Ctrl-C, so a command writing an output folder removes its
+unfinished copy (:mod:`airtaper.report.outputs`).
 """
 
 from __future__ import annotations
@@ -16,6 +20,7 @@ from __future__ import annotations
 import argparse
 import importlib
 import os
+import signal
 import sys
 
 from airtaper import __version__
@@ -23,6 +28,10 @@ from airtaper.errors import EXIT_FAILURE, EXIT_INPUT, EXIT_OK, AirtaperError, In
 
 #: Subcommand modules under airtaper.cli, in the order `airtaper --help` lists them.
 COMMANDS: tuple[str, ...] = ("check", "simulate", "optimize", "report", "calibrate")
+
+#: Exit codes of a run stopped by a signal (the shell's 128 + signal number).
+EXIT_INTERRUPTED = 128 + signal.SIGINT
+EXIT_TERMINATED = 128 + signal.SIGTERM
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -38,21 +47,60 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def add_output_options(parser: argparse.ArgumentParser) -> None:
+    """``--out DIR`` and ``--overwrite``, the options of every command that writes an output folder.
+
+    The command then opens the folder with :func:`airtaper.report.outputs.output_folder`
+    (``args.out``, ``overwrite=args.overwrite``) before any work.
+    """
+    parser.add_argument("--out", required=True, metavar="DIR",
+                        help="output folder (written as one set: it appears complete or not at all)")
+    parser.add_argument("--overwrite", action="store_true",
+                        help="replace the folder of an earlier run as a whole (it is kept otherwise)")
+
+
+class _Terminated(KeyboardInterrupt):
+    """SIGTERM, raised like Ctrl-C so that the same clean-up runs."""
+
+
+def _on_sigterm(signum, frame):
+    raise _Terminated()
+
+
+def _quiet_stdout() -> None:
+    """After a broken pipe: send what is left for stdout nowhere, so nothing complains at exit."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
+    except (OSError, ValueError, AttributeError):  # a captured stdout without a file descriptor
+        pass
+
+
 def run_handler(handler, args) -> int:
     """Run a subcommand handler, turning the project's errors into messages and exit codes."""
     try:
         code = handler(args)
+        sys.stdout.flush()  # a closed pipe shows here, not at interpreter exit
         return EXIT_OK if code is None else int(code)
+    except BrokenPipeError:  # the reader went away (`| head`): what it wanted is written
+        _quiet_stdout()
+        return EXIT_OK
     except InputError as exc:
+        for warning in exc.warnings:
+            print(str(warning), file=sys.stderr)
         for problem in exc.problems:
             print(str(problem), file=sys.stderr)
         return EXIT_INPUT
     except AirtaperError as exc:
         print(f"error: {exc}", file=sys.stderr)
         return getattr(exc, "exit_code", EXIT_FAILURE)
+    except _Terminated:
+        print("error: terminated", file=sys.stderr)
+        return EXIT_TERMINATED
     except KeyboardInterrupt:
         print("error: interrupted", file=sys.stderr)
-        return 130
+        return EXIT_INTERRUPTED
     except Exception as exc:  # an internal failure: say so, without a traceback
         if os.environ.get("AIRTAPER_DEBUG"):
             raise
@@ -71,7 +119,15 @@ def main(argv: list[str] | None = None) -> int:
     if getattr(args, "handler", None) is None:
         parser.print_help(sys.stderr)
         return EXIT_INPUT
-    return run_handler(args.handler, args)
+    try:
+        previous = signal.signal(signal.SIGTERM, _on_sigterm)
+    except ValueError:  # not the main thread: leave signals alone
+        previous = None
+    try:
+        return run_handler(args.handler, args)
+    finally:
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)
 
 
 if __name__ == "__main__":

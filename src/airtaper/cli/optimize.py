@@ -4,7 +4,9 @@ Runs :func:`airtaper.optimize.study.run_optimization` (baseline under uniform DO
 control, the optimisation on the cyclic model, verification by the independent
 simulator, marginal costs) with a progress display on stderr, writes
 ``schedule.csv``, ``header.csv``, ``timeseries.csv``, ``summary.json``,
-``schedule.png`` and ``report.html`` to DIR (each atomically), and prints a short
+``schedule.png`` and ``report.html`` to DIR as one set (:mod:`airtaper.report.outputs`:
+the folder is checked before the solve, appears complete or not at all, and an
+earlier run's folder is kept unless ``--overwrite``), and prints a short
 summary. Exit codes: 0 done and verified; 2 bad input; 3 the limits cannot all be
 met (the summary says which, where and when); 4 the re-simulated schedule breaks
 a limit; 1 the solver failed.
@@ -14,11 +16,12 @@ from __future__ import annotations
 
 import sys
 
+from airtaper.cli.main import add_output_options
 from airtaper.errors import InputError, Problem
 from airtaper.layout import layout_input_files
 from airtaper.layout.overrides import load_layout_with_overrides
-from airtaper.report.atomic import guard_inputs
-from airtaper.report.study import OUTPUT_NAMES, console_summary, write_study_outputs
+from airtaper.report.outputs import output_folder
+from airtaper.report.study import console_summary, write_study_outputs
 
 
 def register(subparsers) -> None:
@@ -28,7 +31,7 @@ def register(subparsers) -> None:
                     "limits at the least blower energy, or cost under the layout's tariff; compare with uniform "
                     "DO control, verify by re-simulation, and report marginal costs.")
     p.add_argument("layout", metavar="LAYOUT", help="layout TOML file, e.g. layouts/demo.toml")
-    p.add_argument("--out", required=True, metavar="DIR", help="output folder")
+    add_output_options(p)
     p.add_argument("--overrides", metavar="FILE",
                    help="override file (e.g. from `airtaper calibrate`) applied to the layout before validation")
     p.add_argument("--objective", choices=("energy", "cost"), help="override the layout's objective")
@@ -62,8 +65,6 @@ def run(args) -> int:
     layout = load_layout_with_overrides(args.layout, args.overrides, warnings=warnings)
     for w in warnings:
         print(str(w), file=sys.stderr)
-    guard_inputs(args.out, layout_input_files(args.layout, layout) + ([args.overrides] if args.overrides else []),
-                 OUTPUT_NAMES)
     if not any(z.grid is not None and z.aerated and z.fixed_kla_per_d is None for z in layout.zones):
         raise InputError(Problem(args.layout, "zones", "no zone has a diffuser grid: there is no airflow to optimise",
                                  None, "at least one aerated zone with a [zones.grid]"))
@@ -72,13 +73,16 @@ def run(args) -> int:
                                  "cost", '"energy", or add [tariff]'))
     options = StudyOptions(objective=args.objective, smoothing_weight=args.smoothing_weight,
                            mixing_airflow_min_Sm3_h_m2=args.mixing_min, baseline_do_setpoint_mg_L=args.baseline_do)
-    progress = Progress(enabled=not args.quiet)
-    result = run_optimization(layout, options, progress)
-    progress.phase("writing outputs")
-    write_study_outputs(args.out, schedule=result.schedule, header=result.header, timeseries=result.timeseries,
-                        summary=result.summary, figure=not args.no_figure)
-    print(console_summary(result.summary))
-    if result.summary.get("status") == "unverified":
+    inputs = layout_input_files(args.layout, layout) + ([args.overrides] if args.overrides else [])
+    with output_folder(args.out, inputs=inputs, overwrite=args.overwrite) as out:
+        progress = Progress(enabled=not args.quiet)
+        result = run_optimization(layout, options, progress)
+        progress.phase("writing outputs")
+        summary = {**result.summary, **out.provenance()}
+        write_study_outputs(out.staging, schedule=result.schedule, header=result.header,
+                            timeseries=result.timeseries, summary=summary, figure=not args.no_figure)
+    print(console_summary(summary))
+    if summary.get("status") == "unverified":
         print("WARNING: the optimised schedule breaks a limit when re-simulated by the independent simulator; "
               "do not use it as it is (see summary.json, verification).", file=sys.stderr)
     return result.exit_code

@@ -3,27 +3,43 @@
 Runs the independent simulator (:mod:`airtaper.simulate`) from the steady state
 at mean load until the day repeats, and writes ``timeseries.csv`` (time_h,
 zone, the 13 ASM1 components, airflow_Sm3_h, kla_per_h, otr_kg_h),
-``effluent.csv`` and ``summary.json`` to DIR.
+``effluent.csv`` and ``summary.json`` to DIR, as one set
+(:mod:`airtaper.report.outputs`: checked before the run, an earlier run's
+folder kept unless ``--overwrite``).
 
 ``--schedule`` reads zone airflows per period from a CSV with the columns
 ``period_start_h``, ``zone`` and ``airflow_Sm3_h`` (the optimiser's
-``schedule.csv`` has them); zones or periods not listed get no air. Without
-either option every aerated diffused zone is held at the layout's baseline DO
-setpoint (ideal DO control).
+``schedule.csv`` has them, other columns are ignored). Every zone with a
+diffuser grid needs one row per period: a missing (period, zone) pair is an
+error naming the pairs, as is a pair listed twice; a schedule whose every
+airflow lies below its zone's minimum, where 60 times the values would fit, is
+refused as likely typed in Sm3/min. Without either option every aerated
+diffused zone is held at the layout's baseline DO setpoint (ideal DO control).
 """
 
 from __future__ import annotations
 
+import io
+import math
 import sys
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
+from airtaper.cli.main import add_output_options
 from airtaper.errors import EXIT_OK, InputError, Problem
-from airtaper.report.atomic import guard_inputs, write_csv_atomic, write_json_atomic
+from airtaper.layout.reader import LayoutWarning, UnreadableInput, read_input_file
+from airtaper.report.atomic import write_csv_atomic, write_json_atomic
+from airtaper.report.outputs import output_folder
 
 OUTPUT_NAMES = ("timeseries.csv", "effluent.csv", "summary.json")
+#: Largest schedule CSV read, bytes (288 periods x 200 zones of rows fit many times over).
+MAX_SCHEDULE_BYTES = 20_000_000
+#: A schedule in Sm3/min is 60 times too small; refused when x 60 stays within this factor of the zone maxima.
+SM3_MIN_FIT = 1.5
+SCHEDULE_COLUMNS = ("period_start_h", "zone", "airflow_Sm3_h")
+#: Most days `--max-days` may ask for (a day that has not repeated after a year will not).
+MAX_DAYS = 365
 
 
 def register(subparsers) -> None:
@@ -32,7 +48,7 @@ def register(subparsers) -> None:
         description="Simulate the layout from its steady state at mean load until the day repeats; "
                     "write timeseries.csv, effluent.csv and summary.json.")
     p.add_argument("layout", metavar="LAYOUT", help="layout TOML file")
-    p.add_argument("--out", required=True, metavar="DIR", help="output folder")
+    add_output_options(p)
     g = p.add_mutually_exclusive_group()
     g.add_argument("--do-setpoint", type=float, metavar="MG_L",
                    help="ideal DO control of every aerated zone to this setpoint, mg/L")
@@ -43,40 +59,97 @@ def register(subparsers) -> None:
     p.set_defaults(handler=run)
 
 
-def read_schedule(path: str, layout) -> np.ndarray:
-    """Airflow (periods, zones) from a schedule CSV; :class:`InputError` on bad content."""
+def _number(value) -> float:
     try:
-        frame = pd.read_csv(path)
-    except (OSError, ValueError, pd.errors.ParserError) as exc:
-        raise InputError(Problem(path, "--schedule", f"cannot read the CSV ({exc})")) from None
-    missing = [c for c in ("period_start_h", "zone", "airflow_Sm3_h") if c not in frame.columns]
+        return float(value)
+    except (TypeError, ValueError, OverflowError):
+        return math.nan
+
+
+def _hours(x: float) -> str:
+    return f"{x:g} h"
+
+
+def read_schedule(path: str, layout, warnings: list | None = None):
+    """Airflow (periods, zones) from a schedule CSV; :class:`InputError` listing every bad row or missing pair.
+
+    ``warnings`` receives a line for airflows outside their zone's range (the
+    simulator runs them as given).
+    """
+    try:
+        raw = read_input_file(path, MAX_SCHEDULE_BYTES, "the schedule")
+        frame = pd.read_csv(io.BytesIO(raw), dtype=str, keep_default_na=False, skip_blank_lines=False)
+    except UnreadableInput as exc:
+        raise InputError(Problem(path, "--schedule" if exc.got is None else "(file)", exc.problem, exc.got,
+                                 exc.expected)) from None
+    except (ValueError, pd.errors.ParserError) as exc:  # not UTF-8, not CSV, no columns
+        raise InputError(Problem(path, "(file)", f"cannot read the CSV ({str(exc).splitlines()[0]})", None,
+                                 "columns " + ", ".join(SCHEDULE_COLUMNS))) from None
+    frame.columns = [str(c).strip() for c in frame.columns]
+    missing = [c for c in SCHEDULE_COLUMNS if c not in frame.columns]
     if missing:
-        raise InputError(Problem(path, "columns", "missing columns", got=", ".join(missing),
-                                 expected="period_start_h, zone, airflow_Sm3_h"))
+        raise InputError(Problem(path, "row 1", "missing columns", got=", ".join(missing),
+                                 expected=", ".join(SCHEDULE_COLUMNS)))
     n, period_h = layout.horizon.n_periods, layout.horizon.period_h
     ids = {z.id: i for i, z in enumerate(layout.zones)}
+    ranges = {z.id: layout.zone_airflow_range_Sm3_h(z) for z in layout.zones}
+    gridded = [z.id for z in layout.zones if ranges[z.id][1] > 0.0]
     air = np.zeros((n, len(layout.zones)))
+    seen: dict[tuple[int, str], int] = {}
     problems = []
-    for row_no, row in enumerate(frame.itertuples(index=False), start=2):
-        zone, start, q = row.zone, row.period_start_h, row.airflow_Sm3_h
-        k = float(start) / period_h if np.isfinite(float(start)) else np.nan
-        if str(zone) not in ids:
-            problems.append(Problem(path, f"row {row_no}, column zone", "no zone with this id", got=zone))
+    for row_no, (zone, start, q) in enumerate(zip(frame["zone"], frame["period_start_h"], frame["airflow_Sm3_h"]),
+                                              start=2):
+        zone, start, q = zone.strip(), start.strip(), q.strip()
+        if not (zone or start or q):
+            continue  # a blank line
+        if zone not in ids:
+            problems.append(Problem(path, f"row {row_no}, column zone", "no zone with this id", got=zone,
+                                    expected="one of " + ", ".join(ids)))
             continue
-        if not np.isfinite(k) or abs(k - round(k)) > 1e-6 or not 0 <= round(k) < n:
+        k = _number(start) / period_h
+        if not math.isfinite(k) or abs(k - round(k)) > 1e-6 or not 0 <= round(k) < n:
             problems.append(Problem(path, f"row {row_no}, column period_start_h", "not the start of a period",
                                     got=start, expected=f"a multiple of {period_h:g} h below 24"))
             continue
-        try:
-            qv = float(q)
-        except (TypeError, ValueError):
-            qv = np.nan
-        if not np.isfinite(qv) or qv < 0.0:
-            problems.append(Problem(path, f"row {row_no}, column airflow_Sm3_h", "must be a number >= 0", got=q))
+        qv = _number(q)
+        if not math.isfinite(qv) or qv < 0.0:
+            problems.append(Problem(path, f"row {row_no}, column airflow_Sm3_h", "must be a number >= 0", got=q,
+                                    expected="an airflow in Sm3/h"))
             continue
-        air[int(round(k)), ids[str(zone)]] = qv
+        p = int(round(k))
+        if (p, zone) in seen:
+            problems.append(Problem(path, f"row {row_no}", f"period {_hours(p * period_h)}, zone {zone} listed twice",
+                                    got=f"also row {seen[(p, zone)]}", expected="one row per period and zone"))
+            continue
+        seen[(p, zone)] = row_no
+        if zone not in gridded and qv > 0.0:
+            problems.append(Problem(path, f"row {row_no}, column airflow_Sm3_h", f"zone {zone} takes no air "
+                                    "(no diffuser grid, or not aerated)", got=q, expected="0, or no row"))
+            continue
+        air[p, ids[zone]] = qv
+    absent = [(p, z) for p in range(n) for z in gridded if (p, z) not in seen]
+    if absent:
+        listed = "; ".join(f"{_hours(p * period_h)} {z}" for p, z in absent[:8])
+        more = f" and {len(absent) - 8} more" if len(absent) > 8 else ""
+        problems.append(Problem(path, "rows", f"no airflow for {len(absent)} (period, zone) pair(s): {listed}{more}",
+                                None, "one row per period for every zone with diffusers"))
     if problems:
         raise InputError(problems)
+    given = [(air[p, ids[z]], *ranges[z]) for p in range(n) for z in gridded]
+    if given and all(q < lo for q, lo, _ in given) and all(60.0 * q <= SM3_MIN_FIT * hi for q, _, hi in given):
+        low = min(q for q, _, _ in given)
+        high = max(q for q, _, _ in given)
+        raise InputError(Problem(path, "column airflow_Sm3_h", "every airflow is below its zone's minimum: was the "
+                                 "schedule typed in Sm3/min?", f"{low:.4g}-{high:.4g}",
+                                 f"Sm3/h (x 60: {60 * low:.4g}-{60 * high:.4g} Sm3/h)"))
+    if warnings is not None:
+        below = [(p, z, air[p, ids[z]], lo) for p in range(n) for z in gridded
+                 for lo in [ranges[z][0]] if 0.0 < air[p, ids[z]] < lo]
+        if below:
+            p, z, q, lo = below[0]
+            warnings.append(LayoutWarning(path, "column airflow_Sm3_h", f"{len(below)} airflow(s) below the zone's "
+                                          f"minimum (first: {_hours(p * period_h)} {z} {q:g} < {lo:g} Sm3/h): the "
+                                          "diffusers run outside their tested range"))
     return air
 
 
@@ -85,28 +158,33 @@ def run(args) -> int:
     from airtaper.simulate import periodic
     from airtaper.simulate.summary import summarize
 
+    if not 1 <= args.max_days <= MAX_DAYS:
+        raise InputError(Problem("<command line>", "--max-days", "out of range", got=args.max_days,
+                                 expected=f"1 to {MAX_DAYS} days"))
+    if args.do_setpoint is not None and not 0.0 < args.do_setpoint < 20.0:
+        raise InputError(Problem("<command line>", "--do-setpoint", "out of range", got=args.do_setpoint,
+                                 expected="0 < setpoint < 20 mg/L"))
+    if not 0.0 < args.tol < 1.0:
+        raise InputError(Problem("<command line>", "--tol", "out of range", got=args.tol, expected="0 < tol < 1"))
     warnings: list = []
     layout = load_layout(args.layout, warnings=warnings)
     for w in warnings:
         print(str(w), file=sys.stderr)
     inputs = layout_input_files(args.layout, layout) + ([args.schedule] if args.schedule else [])
-    guard_inputs(args.out, inputs, OUTPUT_NAMES)
-    if args.max_days < 1:
-        raise InputError(Problem("<command line>", "--max-days", "must be at least 1", got=args.max_days))
-    if args.do_setpoint is not None and not 0.0 < args.do_setpoint < 20.0:
-        raise InputError(Problem("<command line>", "--do-setpoint", "out of range", got=args.do_setpoint,
-                                 expected="0 < setpoint < 20 mg/L"))
-    schedule = read_schedule(args.schedule, layout) if args.schedule else None
-    result = periodic(layout, schedule=schedule, do_setpoint_mg_L=args.do_setpoint,
-                      max_days=args.max_days, tol=args.tol)
-    clarifier = result.start.clarifier if result.start is not None else None
-    if clarifier is not None and clarifier["overloaded"]:
-        print(f"warning: {args.layout}: clarifier: {clarifier['message']}", file=sys.stderr)
-    summary = summarize(result)
-    out = Path(args.out)
-    write_csv_atomic(out / "timeseries.csv", result.timeseries)
-    write_csv_atomic(out / "effluent.csv", result.effluent)
-    write_json_atomic(out / "summary.json", summary)
+    with output_folder(args.out, inputs=inputs, overwrite=args.overwrite) as out:
+        warnings = []
+        schedule = read_schedule(args.schedule, layout, warnings) if args.schedule else None
+        for w in warnings:
+            print(str(w), file=sys.stderr)
+        result = periodic(layout, schedule=schedule, do_setpoint_mg_L=args.do_setpoint,
+                          max_days=args.max_days, tol=args.tol)
+        clarifier = result.start.clarifier if result.start is not None else None
+        if clarifier is not None and clarifier["overloaded"]:
+            print(f"warning: {args.layout}: clarifier: {clarifier['message']}", file=sys.stderr)
+        summary = {**summarize(result), **out.provenance()}
+        write_csv_atomic(out.file("timeseries.csv"), result.timeseries)
+        write_csv_atomic(out.file("effluent.csv"), result.effluent)
+        write_json_atomic(out.file("summary.json"), summary)
     eff = summary["effluent_mg_L"]
     state = "periodic" if result.converged else f"NOT periodic after {result.days} days (change {result.day_change:.2g})"
     print(f"{layout.plant.name}: {state} after {result.days} day(s), {result.seconds:.2f} s")
@@ -115,5 +193,5 @@ def run(args) -> int:
     print(f"  air {summary['air_Sm3_per_day']:,.0f} Sm3/d, blower {summary['blower_kWh_per_day']:,.0f} kWh/d")
     for short in summary["setpoint_not_held"]:
         print(f"WARNING: {short['message']}", file=sys.stderr)
-    print(f"  wrote {', '.join(OUTPUT_NAMES)} to {out}")
+    print(f"  wrote {', '.join(OUTPUT_NAMES)} to {args.out}")
     return EXIT_OK

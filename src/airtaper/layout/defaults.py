@@ -148,3 +148,50 @@ WARN_SRT_d = (3.0, 40.0)
 WARN_RECYCLE_RATIO = 6.0
 WARN_AREA_MISMATCH = 0.15  # relative difference of area_m2 from volume_m3 / depth_m
 WARN_GRID_ABOVE_FLOOR_m = 1.0  # depth - submergence
+
+# --- unit slips: values that are surely or likely typed in the wrong unit ----
+# The check names the likely cause in its message. All common practice (no source).
+#: Every SOTE test point at or below this, percent: the points were typed as fractions (0.22 for 22 %): error.
+SOTE_FRACTION_MAX_percent = 1.0
+#: Above this elevation, m, with no barometric pressure given, warn that it may be in feet (2953 ft = 900 m).
+WARN_ELEVATION_FEET_m = 2000.0
+#: A side-water depth above this, m, was likely typed in mm (5500 for 5.5 m): warning.
+WARN_DEPTH_MM_m = 100.0
+#: An influent whose total COD stays below this in every row or period, mg/L, was typed in g/L: error
+#: (raw municipal wastewater always carries more).
+COD_GRAMS_PER_LITRE_MAX_mg_L = 10.0
+#: An alkalinity above this, mol/m3, was likely given in mg/L as CaCO3 (250 mg/L = 5 mol/m3): warning.
+WARN_ALKALINITY_mol_m3 = 30.0
+#: Most zones in one train: each zone adds 13 states per time point to the optimisation, and a train of this
+#: many zones already needs hours of solving on a desktop machine.
+MAX_ZONES = 60
+#: Upper bounds of [kinetics.overrides], wide envelopes around the ranges reported for ASM1 by Henze et al.
+#: (1987), Activated Sludge Model No. 1, IAWPRC Scientific and Technical Report No. 1 (from memory); a value
+#: beyond one is a typing slip (a growth rate per hour typed as per day is 24 times too small, not too large).
+#: Units: mu, b, k_h per d; K_ in g/m3 (K_X g COD/g COD); k_a m3/(g COD d); yields and fractions g/g.
+KINETIC_PARAMETER_MAX = {
+    "mu_H": 20.0, "K_S": 500.0, "K_OH": 5.0, "K_NO": 5.0, "b_H": 5.0, "eta_g": 1.0, "eta_h": 1.0,
+    "k_h": 20.0, "K_X": 5.0, "mu_A": 5.0, "K_NH": 10.0, "b_A": 1.0, "K_OA": 5.0, "k_a": 1.0,
+    "Y_H": 0.95, "Y_A": 0.95, "f_P": 0.5, "i_XB": 0.2, "i_XP": 0.2,
+}
+#: Largest concentration an influent column may hold, mg/L: a tenth of the water's own mass; above it a number
+#: is surely mistyped (error).
+CONCENTRATION_MAX_mg_L = 100_000.0
+#: Largest alkalinity, mol/m3 (error above; usual municipal values are 2-10).
+ALKALINITY_MAX_mol_m3 = 1000.0
+#: Largest influent flow, m3/d (error above; the largest plants treat a few million m3/d).
+FLOW_MAX_m3_d = 1.0e8
+#: A CSV cell this many times above or below its column's median over the day: warning (another unit?).
+WARN_ROW_OUTLIER_FACTOR = 10.0
+#: Usual ratios of the influent's daily means, TKN / COD and TSS / COD: warnings outside.
+WARN_TKN_PER_COD = (0.02, 0.3)
+WARN_TSS_PER_COD = (0.1, 1.5)
+#: Lowest usual wire-to-air blower efficiency: warning below.
+WARN_BLOWER_EFFICIENCY_MIN = 0.2
+#: Usual NH4-N / TKN of the daily means (warning outside) and lowest usual alkalinity, mol/m3 (warning below).
+WARN_NH4_PER_TKN = (0.3, 1.0)
+WARN_ALKALINITY_MIN_mol_m3 = 0.5
+#: A CSV's last row holding until 24 h this many times longer than the median row: warning (times in minutes?).
+WARN_LAST_ROW_FACTOR = 4.0
+#: Shallowest usual clean-water test submergence of a diffuser test point, m (warning below).
+WARN_TEST_SUBMERGENCE_MIN_m = 0.5

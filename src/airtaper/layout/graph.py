@@ -132,7 +132,8 @@ def check_train(col: Collector, zone_ids: Sequence[str], step_feed: Sequence[Ste
         if sf.zone not in index:
             col.error(f"{step_feed_key}[{i}].zone", "no such zone", sf.zone, "one of " + ", ".join(ids))
         elif sf.zone in seen:
-            col.error(f"{step_feed_key}[{i}].zone", "zone fed twice; give one fraction per zone", sf.zone)
+            col.error(f"{step_feed_key}[{i}].zone", "zone fed twice; give one fraction per zone", sf.zone,
+                      "one [[flows.step_feed]] per zone")
         seen.add(sf.zone)
     total = sum(sf.fraction for sf in step_feed)
     if step_feed and abs(total - 1.0) > 1e-6:

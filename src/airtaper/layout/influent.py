@@ -12,8 +12,11 @@ import csv
 import io
 import os
 
+from airtaper import units
 from airtaper.layout import defaults
-from airtaper.layout.reader import Collector, Table, check_number, did_you_mean
+from airtaper.layout.reader import (
+    Collector, Table, UnreadableInput, check_number, did_you_mean, fixed, read_input_file,
+)
 from airtaper.layout.types import ASM1_COMPONENTS, Fractionation, Influent
 
 #: Measured influent quantities, as CSV columns and as [influent] keys.
@@ -77,8 +80,72 @@ def check_measured(col: Collector, frac: Fractionation | None, row: dict, key_of
                   file=file)
 
 
+def check_magnitudes(col: Collector, rows: list[dict], key_of, file: str | None = None) -> None:
+    """Unit slips in the measured influent, named where they were typed (CSV row, or key).
+
+    ``key_of(i, column)`` names row ``i``'s cell. A total COD below
+    ``COD_GRAMS_PER_LITRE_MAX_mg_L`` in every row is an error (the
+    concentrations were typed in g/L); a COD outside the usual range and an
+    alkalinity likely given in mg/L as CaCO3 are warnings.
+    """
+    cods = [r["cod_total_mg_L"] for r in rows]
+    top = max(cods)
+    if top < defaults.COD_GRAMS_PER_LITRE_MAX_mg_L:
+        i = cods.index(top)
+        col.error(key_of(i, "cod_total_mg_L"), f"total COD at most {top:g} mg/L in every row: were the "
+                  "concentrations typed in g/L?", top, f"mg/L (x 1000: {1000 * top:g} mg/L)", file=file)
+        return
+    lo, hi = defaults.WARN_COD_TOTAL_mg_L
+    odd = [i for i, c in enumerate(cods) if not lo <= c <= hi]
+    if odd:
+        col.warn(key_of(odd[0], "cod_total_mg_L"),
+                 f"unusual total COD {fixed(cods[odd[0]], 0)} mg/L (usual {lo:g}-{hi:g})", file=file)
+    alk = [i for i, r in enumerate(rows) if r["alkalinity_mol_m3"] > defaults.WARN_ALKALINITY_mol_m3]
+    if alk:
+        a = rows[alk[0]]["alkalinity_mol_m3"]
+        col.warn(key_of(alk[0], "alkalinity_mol_m3"), f"alkalinity {a:g} mol/m3: was it given in mg/L as CaCO3 "
+                 f"({a / units.MG_CACO3_PER_MOL_ALK:.1f} mol/m3)?", file=file)
+    if len(rows) > 2:
+        _outliers(col, rows, key_of, file)
+    flow = sum(r["flow_m3_d"] for r in rows)
+    mean = {c: sum(r["flow_m3_d"] * r[c] for r in rows) / flow for c in MEASURED[1:]}
+    if mean["alkalinity_mol_m3"] < defaults.WARN_ALKALINITY_MIN_mol_m3:
+        key = key_of(0, "alkalinity_mol_m3")
+        col.warn(key if not key.startswith("row ") else "column alkalinity_mol_m3",
+                 f"alkalinity {mean['alkalinity_mol_m3']:.3g} mol/m3 on the daily mean is unusually low (usual above "
+                 f"{defaults.WARN_ALKALINITY_MIN_mol_m3:g}): was it given in mol/L or eq/L?", file=file)
+    for c, (lo, hi), what, of in (("tkn_mg_L", defaults.WARN_TKN_PER_COD, "TKN / COD", "cod_total_mg_L"),
+                                  ("tss_mg_L", defaults.WARN_TSS_PER_COD, "TSS / COD", "cod_total_mg_L"),
+                                  ("nh4_mg_L", defaults.WARN_NH4_PER_TKN, "NH4-N / TKN", "tkn_mg_L")):
+        ratio = mean[c] / mean[of] if mean[of] > 0.0 else 0.0
+        if not lo <= ratio <= hi:
+            key = key_of(0, c)
+            col.warn(key if not key.startswith("row ") else f"column {c}",
+                     f"{what} of the daily means is {ratio:.3g} (usual {lo:g}-{hi:g}): is a column in another "
+                     "unit?", file=file)
+
+
+def _outliers(col: Collector, rows: list[dict], key_of, file: str | None) -> None:
+    """Warn once per column about a value far from the column's median over the day (a cell in another unit)."""
+    factor = defaults.WARN_ROW_OUTLIER_FACTOR
+    for c in MEASURED:
+        values = sorted(r[c] for r in rows)
+        median = values[len(values) // 2]
+        if median <= 0.0:
+            continue
+        odd = [i for i, r in enumerate(rows) if not median / factor <= r[c] <= median * factor]
+        if odd:
+            v = rows[odd[0]][c]
+            col.warn(key_of(odd[0], c), f"{c} {v:g} is far from the day's median {median:g} (more than "
+                     f"{factor:g} times apart): typed in another unit?", file=file)
+
+
 def _bounds(column: str) -> dict:
-    return {"gt": 0.0} if column == "flow_m3_d" else {"ge": 0.0}
+    if column == "flow_m3_d":
+        return {"gt": 0.0, "le": defaults.FLOW_MAX_m3_d}
+    if column == "alkalinity_mol_m3":
+        return {"ge": 0.0, "le": defaults.ALKALINITY_MAX_mol_m3}
+    return {"ge": 0.0, "le": defaults.CONCENTRATION_MAX_mg_L}
 
 
 def read_csv_text(col: Collector, file: str, text: str, frac: Fractionation | None):
@@ -101,7 +168,7 @@ def read_csv_text(col: Collector, file: str, text: str, frac: Fractionation | No
         try:
             fields = next(csv.reader(io.StringIO(line)))
         except (csv.Error, StopIteration) as exc:
-            col.error(f"row {lineno}", f"not valid CSV: {exc}", file=file)
+            col.error(f"row {lineno}", f"not valid CSV: {exc}", None, "comma-separated values", file=file)
             continue
         fields = [f.strip() for f in fields]
         if header is None:
@@ -115,14 +182,14 @@ def read_csv_text(col: Collector, file: str, text: str, frac: Fractionation | No
     seen: set[str] = set()
     for name in names:
         if name in seen:
-            col.error(f"row {hrow}, column {name}", "duplicate column", file=file)
+            col.error(f"row {hrow}, column {_column(name)}", "duplicate column", None, "each column once", file=file)
         seen.add(name)
         if name not in CSV_COLUMNS:
             hint = did_you_mean(name, CSV_COLUMNS)
             if hint:
-                col.error(f"row {hrow}, column {name}", f"unknown column, did you mean {hint!r}?", file=file)
+                col.error(f"row {hrow}, column {_column(name)}", f"unknown column, did you mean {hint!r}?", file=file)
             else:
-                col.error(f"row {hrow}, column {name}", "unknown column", None,
+                col.error(f"row {hrow}, column {_column(name)}", "unknown column", None,
                           "one of " + ", ".join(CSV_COLUMNS), file=file)
     for name in CSV_COLUMNS:
         if name not in seen:
@@ -165,6 +232,7 @@ def read_csv_text(col: Collector, file: str, text: str, frac: Fractionation | No
             linenos.append(lineno)
     if col.count > before:
         return None
+    check_magnitudes(col, rows, lambda i, c: f"row {linenos[i]}, column {c}", file=file)
     times = [r["time_h"] for r in rows]
     if times[0] != 0.0:
         col.error(f"row {linenos[0]}, column time_h", "the first row must start the day", times[0], "0", file=file)
@@ -174,7 +242,19 @@ def read_csv_text(col: Collector, file: str, text: str, frac: Fractionation | No
                       f"> {times[i - 1]:g}", file=file)
     if col.count > before:
         return None
+    if len(times) > 2:
+        spans = sorted(b - a for a, b in zip(times, times[1:]))
+        last = 24.0 - times[-1]
+        if last > defaults.WARN_LAST_ROW_FACTOR * spans[len(spans) // 2]:
+            col.warn(f"row {linenos[-1]}, column time_h", f"the last row holds from {times[-1]:g} h until 24 h, "
+                     f"{last / spans[len(spans) // 2]:.0f} times longer than the others: were the times in another "
+                     "unit than hours?", file=file)
     return times, rows
+
+
+def _column(name: str) -> str:
+    """A CSV header cell as a message names it: quoted when it is empty or holds more than letters, digits and '_'."""
+    return name if name and all(c.isascii() and (c.isalnum() or c == "_") for c in name) else repr(name)
 
 
 class _FileCollector:
@@ -230,7 +310,7 @@ def read_influent(t: Table, n: int, base_dir: str | None, tss_per_cod: float,
     result = None
     if csv_name is not None:
         if asm1 is not None:
-            col.error(t.key("asm1"), "give either csv or asm1, not both")
+            col.error(t.key("asm1"), "give either csv or asm1, not both", None, "csv alone, or asm1 alone")
         extra = given
         for c in extra:
             col.error(t.key(c), "constant values and csv are exclusive", None, "csv alone, or constant values alone")
@@ -250,6 +330,9 @@ def read_influent(t: Table, n: int, base_dir: str | None, tss_per_cod: float,
                                lambda c, p=p: t.key(c) if not isinstance(t.data[c], list) else f"{t.key(c)}[{p + 1}]")
                 if col.count > mark:
                     break
+            if col.count == before:
+                check_magnitudes(col, [{c: values[c][p] for c in MEASURED} for p in range(n)],
+                                 lambda p, c: t.key(c) if not isinstance(t.data[c], list) else f"{t.key(c)}[{p + 1}]")
             if col.count == before:
                 result = Influent("constant", *(values[c] for c in MEASURED), fractionation=frac)
     t.finish()
@@ -283,15 +366,12 @@ def _from_csv(col: Collector, csv_name: str, n: int, base_dir: str | None, frac)
         return None
     full = csv_name if os.path.isabs(csv_name) else os.path.join(str(base_dir), csv_name)
     try:
-        size = os.path.getsize(full)
-        if size > MAX_CSV_BYTES:
-            col.error("(file)", "file too large", f"{size} bytes", f"<= {MAX_CSV_BYTES} bytes", file=shown)
-            return None
-        with open(full, "rb") as fh:
-            raw = fh.read()
-    except OSError as exc:
-        col.error("influent.csv", f"cannot read the influent CSV: {exc.strerror or exc}", csv_name,
-                  "an existing file relative to the layout's folder")
+        raw = read_input_file(full, MAX_CSV_BYTES, "the influent CSV")
+    except UnreadableInput as exc:
+        if exc.problem.startswith("cannot read") and exc.got is None:
+            col.error("influent.csv", exc.problem, csv_name, "an existing file relative to the layout's folder")
+        else:
+            col.error("(file)", exc.problem, exc.got, exc.expected, file=shown)
         return None
     try:
         text = raw.decode("utf-8-sig")

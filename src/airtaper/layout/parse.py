@@ -18,10 +18,13 @@ from airtaper import units
 from airtaper.errors import InputError, Problem
 from airtaper.layout import defaults as D
 from airtaper.layout import graph
-from airtaper.layout.influent import read_influent
+from airtaper.layout.influent import csv_display_path, read_influent
 from airtaper.physics.atmosphere import barometric_pressure_kPa
 from airtaper.physics.blower import efficiency_from_power
-from airtaper.layout.reader import Collector, LayoutWarning, Table, check_number, did_you_mean, is_number, valid_id
+from airtaper.layout.reader import (
+    Collector, LayoutWarning, Table, UnreadableInput, check_number, did_you_mean, fixed, is_number, read_input_file,
+    valid_id,
+)
 from airtaper.layout.types import (
     Blower, Clarifier, DiffuserGrid, DiffuserType, EfficiencyPoint, Header, HeadlossPoint,
     Horizon, Influent, InletAir, Kinetics, Layout, Limits, Operation, Plant, PowerPoint, Recycle, ReturnSludge, Settling,
@@ -57,13 +60,9 @@ def load_layout(path, warnings: list | None = None) -> Layout:
     if not isinstance(label, str):
         label = os.fsdecode(label)
     try:
-        size = os.path.getsize(label)
-        if size > MAX_LAYOUT_BYTES:
-            raise InputError(Problem(label, "(file)", "file too large", f"{size} bytes", f"<= {MAX_LAYOUT_BYTES}"))
-        with open(label, "rb") as fh:
-            raw = fh.read()
-    except OSError as exc:
-        raise InputError(Problem(label, "(file)", f"cannot read the layout: {exc.strerror or exc}")) from None
+        raw = read_input_file(label, MAX_LAYOUT_BYTES, "the layout")
+    except UnreadableInput as exc:
+        raise InputError(Problem(label, "(file)", exc.problem, exc.got, exc.expected)) from None
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError as exc:
@@ -80,6 +79,9 @@ def parse_toml_text(text: str, label: str = "<memory>") -> dict:
     """TOML text to a dict; a syntax error becomes an InputError naming line and column."""
     try:
         return tomllib.loads(text)
+    except RecursionError:  # tomllib recurses once per level of nested arrays or inline tables
+        raise InputError(Problem(label, "(toml)", "TOML nested too deeply", None,
+                                 "arrays and inline tables nested a few levels at most")) from None
     except tomllib.TOMLDecodeError as exc:
         msg = str(exc)
         m = _TOML_AT.search(msg)
@@ -89,7 +91,19 @@ def parse_toml_text(text: str, label: str = "<memory>") -> dict:
             key, msg = "end of file", msg[: -len("(at end of document)")].rstrip()
         else:
             key = "(toml)"
-        raise InputError(Problem(label, key, f"TOML syntax: {msg}")) from None
+        raise InputError(Problem(label, key, f"TOML syntax: {msg}", None, _toml_expected(msg))) from None
+
+
+def _toml_expected(message: str) -> str:
+    """What a TOML syntax error calls for, in words (tomllib's messages say what is wrong, not what is right)."""
+    text = message.lower()
+    if "overwrite" in text or "twice" in text or "redefin" in text:
+        return "each key and each table once"
+    if "unclosed" in text or "end of" in text:
+        return "every string, array and table closed"
+    if "invalid value" in text:
+        return 'a number, "string", true/false, [array] or { inline table }'
+    return "TOML syntax (https://toml.io; quote text, one key = value per line)"
 
 
 def parse_layout(data: dict, path: str = "<memory>", base_dir=None, warnings: list | None = None) -> Layout:
@@ -108,7 +122,7 @@ def parse_layout(data: dict, path: str = "<memory>", base_dir=None, warnings: li
     if warnings is not None:
         warnings.extend(col.warnings)
     if col.problems:
-        raise InputError(col.problems)
+        raise InputError(col.problems, col.warnings)
     assert layout is not None
     return layout
 
@@ -217,7 +231,11 @@ class _Parser:
         temp = t.per_period("water_temperature_C", self.n, ge=0.0, le=45.0)
         baro = t.number("barometric_pressure_kPa", None, ge=50.0, le=110.0)
         salinity = t.number("salinity_g_kg", D.SALINITY_g_kg, ge=0.0, le=45.0)
-        if elevation is not None and not (D.WARN_ELEVATION_m[0] <= elevation <= D.WARN_ELEVATION_m[1]):
+        if elevation is not None and baro is None and elevation > D.WARN_ELEVATION_FEET_m:
+            self.col.warn(t.key("elevation_m"), f"elevation {elevation:g} m: was it typed in feet "
+                                                f"({elevation:g} ft = {units.ft_to_m(elevation):.0f} m)? "
+                                                "give barometric_pressure_kPa to confirm a high site")
+        elif elevation is not None and not (D.WARN_ELEVATION_m[0] <= elevation <= D.WARN_ELEVATION_m[1]):
             self.col.warn(t.key("elevation_m"), f"unusual elevation {elevation:g} m")
         if temp is not None:
             lo, hi = D.WARN_WATER_TEMPERATURE_C
@@ -254,8 +272,21 @@ class _Parser:
             "density_percent": {"gt": 0.0, "le": 100.0}, "submergence_m": {"gt": 0.0, "le": 50.0}}, SotePoint)
         head = self._points(t, "headloss_points", {
             "airflow_per_diffuser_Sm3_h": {"ge": 0.0}, "headloss_kPa": {"gt": 0.0, "le": 100.0}}, HeadlossPoint)
-        if sote is not None:
+        if sote is not None and max(p.sote_percent for p in sote) <= D.SOTE_FRACTION_MAX_percent:
+            first = sote[0].sote_percent
+            col.error(f"{t.key('sote_points')}[1].sote_percent",
+                      f"SOTE {first:g} %: was it typed as a fraction? every test point is at or below "
+                      f"{D.SOTE_FRACTION_MAX_percent:g} %", first, f"percent ({100 * first:g} %, not {first:g})")
+        elif sote is not None:
             self._check_sote(t, sote)
+            for i, pt in enumerate(sote, start=1):
+                k = f"{t.key('sote_points')}[{i}]"
+                if pt.density_percent <= D.SOTE_FRACTION_MAX_percent:
+                    col.warn(f"{k}.density_percent", f"density {pt.density_percent:g} %: was it typed as a fraction "
+                                                     f"({100 * pt.density_percent:g} %)?")
+                if pt.submergence_m < D.WARN_TEST_SUBMERGENCE_MIN_m:
+                    col.warn(f"{k}.submergence_m", f"test submergence {pt.submergence_m:g} m is unusually shallow "
+                                                   "(was it in another unit?)")
         if head is not None:
             for i in range(1, len(head)):
                 k = f"{t.key('headloss_points')}[{i + 1}]"
@@ -347,6 +378,9 @@ class _Parser:
             zones.append(self.section(t, self.zone, ident, zd, types))
             if ident is not None:
                 ids.append(ident)
+        if len(items) > D.MAX_ZONES:
+            self.col.error("zones", "too many zones for one train", f"{len(items)} zones",
+                           f"at most {D.MAX_ZONES} (model a long plug-flow lane with fewer, larger zones)")
         if len(ids) != len(items):
             ids = []  # ids unknown: skip the train checks rather than misreport them
         return zones, ids
@@ -394,7 +428,7 @@ class _Parser:
                 area = derived
             elif abs(area - derived) > D.WARN_AREA_MISMATCH * derived:
                 col.warn(t.key("area_m2"), f"floor area {area:g} m2 differs from volume_m3 / depth_m = "
-                                           f"{derived:.1f} m2 by more than {100 * D.WARN_AREA_MISMATCH:g} %")
+                                           f"{fixed(derived, 1)} m2 by more than {100 * D.WARN_AREA_MISMATCH:g} %")
         if kind == "anoxic":
             do_min = do_max = None
         return Zone(ident, kind, volume, depth, area, do_min, do_max, vals["alpha"], vals["fouling"], vals["beta"],
@@ -414,7 +448,7 @@ class _Parser:
             self.col.error(t.key("submergence_m"), "diffusers must be below the water surface and above the floor",
                            sub, f"< depth_m = {depth:g}")
         elif sub is not None and depth is not None and depth - sub > D.WARN_GRID_ABOVE_FLOOR_m:
-            self.col.warn(t.key("submergence_m"), f"grid sits {depth - sub:.2f} m above the floor")
+            self.col.warn(t.key("submergence_m"), f"grid sits {fixed(depth - sub, 2)} m above the floor")
         return DiffuserGrid(type_id, count, sub)
 
     def clarifier(self, t: Table | None) -> Clarifier:
@@ -615,9 +649,10 @@ class _Parser:
         return tuple(out)
 
     def header(self, t: Table | None, blowers: list[Blower]) -> Header:
-        if blowers:
-            weight = sum(b.airflow_max_Sm3_h for b in blowers)
-            default_eff = sum(b.airflow_max_Sm3_h * _blower_mean_efficiency(b) for b in blowers) / weight
+        known = [(b.airflow_max_Sm3_h, _blower_mean_efficiency(b)) for b in blowers]
+        known = [(w, e) for w, e in known if e is not None]
+        if known:
+            default_eff = sum(w * e for w, e in known) / sum(w for w, _ in known)
         else:
             default_eff = D.AGGREGATE_EFFICIENCY_NO_BLOWERS
         if t is None:
@@ -705,7 +740,9 @@ class _Parser:
         if ov is not None:
             for name in ov.data:
                 if name in D.KINETIC_PARAMETER_NAMES:
-                    v = ov.number(name, gt=0.0) if name not in ("b_A", "b_H", "f_P", "i_XP") else ov.number(name, ge=0.0)
+                    top = D.KINETIC_PARAMETER_MAX[name]
+                    v = (ov.number(name, gt=0.0, le=top) if name not in ("b_A", "b_H", "f_P", "i_XP")
+                         else ov.number(name, ge=0.0, le=top))
                     if v is not None:
                         pairs.append((name, v))
             ov.allow(*D.KINETIC_PARAMETER_NAMES)
@@ -735,7 +772,10 @@ class _Parser:
                 col.warn(f"{key}.volume_m3", f"very small zone ({z.volume_m3:g} m3)")
             elif z.volume_m3 > D.WARN_ZONE_VOLUME_m3[1]:
                 col.warn(f"{key}.volume_m3", f"very large zone ({z.volume_m3:g} m3): was it typed in litres?")
-            if not D.WARN_DEPTH_m[0] <= z.depth_m <= D.WARN_DEPTH_m[1]:
+            if z.depth_m > D.WARN_DEPTH_MM_m:
+                col.warn(f"{key}.depth_m", f"side-water depth {z.depth_m:g} m: was it typed in mm "
+                                           f"({z.depth_m / 1000:g} m)?")
+            elif not D.WARN_DEPTH_m[0] <= z.depth_m <= D.WARN_DEPTH_m[1]:
                 col.warn(f"{key}.depth_m", f"unusual side-water depth {z.depth_m:g} m")
             if z.grid is None or z.grid.type_id not in self.membrane_areas:
                 continue
@@ -744,15 +784,15 @@ class _Parser:
             density = 100.0 * z.grid.count * membrane / z.area_m2
             if density > D.DENSITY_MAX_PERCENT:
                 fits = int(D.DENSITY_MAX_PERCENT / 100.0 * z.area_m2 / membrane)
-                col.error(f"{key}.grid.count", f"diffusers cover {density:.1f} % of the floor, more than fits",
-                          z.grid.count, f"<= {fits} ({D.DENSITY_MAX_PERCENT:g} % of {z.area_m2:.1f} m2)")
+                col.error(f"{key}.grid.count", f"diffusers cover {fixed(density, 1)} % of the floor, more than fits",
+                          z.grid.count, f"<= {fits} ({D.DENSITY_MAX_PERCENT:g} % of {fixed(z.area_m2, 1)} m2)")
                 continue
             if z.grid.type_id not in types:
                 continue
             dt = types[z.grid.type_id]
             dens = [p.density_percent for p in dt.sote_points]
             if not min(dens) <= density <= max(dens):
-                col.warn(f"{key}.grid.count", f"diffuser density {density:.1f} % is outside the tested "
+                col.warn(f"{key}.grid.count", f"diffuser density {fixed(density, 1)} % is outside the tested "
                                               f"{min(dens):g}-{max(dens):g} %: SOTE is extrapolated")
             subs = [p.submergence_m for p in dt.sote_points]
             if not min(subs) <= z.grid.submergence_m <= max(subs):
@@ -761,9 +801,14 @@ class _Parser:
             lo, hi = _airflow_range(z, dt)
             if lo > hi:
                 col.error(f"{key}.grid", "no feasible airflow: the minimum exceeds what grid and valve pass",
-                          f"minimum {lo:.0f} Sm3/h", f"<= maximum {hi:.0f} Sm3/h")
+                          f"minimum {fixed(lo, 0)} Sm3/h", f"<= maximum {fixed(hi, 0)} Sm3/h")
         for tid in sorted(set(types) - used_types - {z.grid.type_id for z in zones if z.grid is not None}):
             col.warn(f"diffuser_types.{tid}", "diffuser type used by no zone")
+        for b in blowers:
+            effs = [b.efficiency] if b.efficiency is not None else [e.efficiency for e in b.efficiency_points]
+            if effs and min(effs) < D.WARN_BLOWER_EFFICIENCY_MIN:
+                col.warn(f"blowers.{b.id}", f"wire-to-air efficiency {min(effs):.3g} is unusually low (usual above "
+                                            f"{D.WARN_BLOWER_EFFICIENCY_MIN:g}): was it divided by 100?")
         gridded = [z for z in zones if z.grid is not None]
         if gridded and not blowers and "blowers" not in self.root.data:
             col.error("blowers", "zones have diffuser grids but there are no blowers", None,
@@ -775,26 +820,27 @@ class _Parser:
                 if b.pressure_max_gauge_kPa <= static:
                     col.error(f"blowers.{b.id}.pressure_max_gauge_kPa",
                               f"below the static head of the deepest grid ({deepest.id}, "
-                              f"{deepest.grid.submergence_m:g} m)", b.pressure_max_gauge_kPa, f"> {static:.1f} kPa")
+                              f"{deepest.grid.submergence_m:g} m)", b.pressure_max_gauge_kPa,
+                              f"> {fixed(static, 1)} kPa")
             if len(zones) == n_zones and all(z.grid is None or z.grid.type_id in types for z in zones):
                 need = sum(_airflow_range(z, types[z.grid.type_id])[0] for z in gridded if z.kind == "aerated")
                 have = sum(b.airflow_max_Sm3_h for b in blowers)
                 if have < need:
                     col.error("blowers", "all blowers together cannot supply the zones' minimum airflow",
-                              f"{have:g} Sm3/h", f">= {need:.0f} Sm3/h")
+                              f"{have:g} Sm3/h", f">= {fixed(need, 0)} Sm3/h")
         if influent is not None:
             qm = influent.mean_flow_m3_d
             if not D.WARN_MEAN_FLOW_m3_d[0] <= qm <= D.WARN_MEAN_FLOW_m3_d[1]:
-                col.warn("influent", f"unusual mean influent flow {qm:g} m3/d")
-            cods = influent.cod_total_mg_L
-            lo, hi = D.WARN_COD_TOTAL_mg_L
-            if any(not lo <= c <= hi for c in cods):
-                odd = next(c for c in cods if not lo <= c <= hi)
-                col.warn("influent", f"unusual total COD {odd:.0f} mg/L (usual {lo:g}-{hi:g})")
+                if influent.source == "constant":
+                    col.warn("influent.flow_m3_d", f"unusual mean influent flow {qm:g} m3/d")
+                else:  # name the CSV the flows were read from
+                    col.warn("column flow_m3_d", f"unusual mean influent flow {qm:g} m3/d",
+                             file=csv_display_path(col.file, self.base_dir, influent.source))
+            # the measured forms (CSV rows, constant values) are checked for unit slips where they are read
             if zones and len(zones) == n_zones:
                 hrt = sum(z.volume_m3 for z in zones) / qm * 24.0
                 if not D.WARN_TRAIN_HRT_h[0] <= hrt <= D.WARN_TRAIN_HRT_h[1]:
-                    col.warn("zones", f"train HRT {hrt:.1f} h at the mean influent flow is unusual "
+                    col.warn("zones", f"train HRT {fixed(hrt, 1)} h at the mean influent flow is unusual "
                                       f"(usual {D.WARN_TRAIN_HRT_h[0]:g}-{D.WARN_TRAIN_HRT_h[1]:g} h): "
                                       "check the volumes and their units")
 
@@ -824,9 +870,18 @@ def _duty_point_conditions(plant: Plant | None, inlet: InletAir | None):
     return sum(inlet.temperature_C) / len(inlet.temperature_C), inlet_p, site
 
 
-def _blower_mean_efficiency(b: Blower) -> float:
+def _blower_mean_efficiency(b: Blower) -> float | None:
+    """The blower's mean wire-to-air efficiency, or None when it is not known.
+
+    Power points are turned into efficiencies at the site's air conditions; when
+    the plant or inlet-air section has a problem (a missing elevation, a water
+    temperature out of range) they cannot be, the problem is already reported
+    there, and this blower then counts in no default.
+    """
     if b.efficiency is not None:
         return b.efficiency
+    if not b.efficiency_points:
+        return None
     return sum(p.efficiency for p in b.efficiency_points) / len(b.efficiency_points)
 
 

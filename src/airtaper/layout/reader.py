@@ -10,9 +10,11 @@ from __future__ import annotations
 
 import difflib
 import math
+import os
+import stat
 from dataclasses import dataclass
 
-from airtaper.errors import Problem
+from airtaper.errors import Problem, one_line
 
 MISSING = object()
 
@@ -26,7 +28,58 @@ class LayoutWarning:
     message: str
 
     def __str__(self) -> str:
-        return f"warning: {self.file}: {self.key}: {self.message}"
+        return f"warning: {one_line(self.file)}: {one_line(self.key)}: {one_line(self.message)}"
+
+
+class UnreadableInput(Exception):
+    """An input path that is not a readable, regular, small enough file (see :func:`read_input_file`)."""
+
+    def __init__(self, problem: str, got=None, expected: str | None = None):
+        super().__init__(problem)
+        self.problem, self.got, self.expected = problem, got, expected
+
+
+def read_input_file(path: str, max_bytes: int, what: str) -> bytes:
+    """The bytes of an input file, refusing what is not a regular file or is larger than ``max_bytes``.
+
+    A device (``/dev/zero``), a FIFO or a folder given as an input would be read
+    forever or fail obscurely; their size on disk says nothing, so the kind of
+    file is checked first and the read itself is capped. ``what`` names the
+    input in the message ("the layout", "the influent CSV").
+
+    Raises
+    ------
+    UnreadableInput
+        With the problem, what was found and what is expected.
+    """
+    try:
+        info = os.stat(path)
+    except OSError as exc:
+        raise UnreadableInput(f"cannot read {what}: {exc.strerror or exc}") from None
+    except ValueError:  # a NUL character in the name: no file can have it
+        raise UnreadableInput(f"cannot read {what}: the file name holds a NUL character") from None
+    if stat.S_ISDIR(info.st_mode):
+        raise UnreadableInput(f"cannot read {what}: it is a folder", None, "a file")
+    if not stat.S_ISREG(info.st_mode):
+        raise UnreadableInput(f"cannot read {what}: not a regular file", _file_kind(info.st_mode), "a regular file")
+    if info.st_size > max_bytes:
+        raise UnreadableInput("file too large", f"{info.st_size} bytes", f"<= {max_bytes} bytes")
+    try:
+        with open(path, "rb") as fh:
+            data = fh.read(max_bytes + 1)
+    except OSError as exc:
+        raise UnreadableInput(f"cannot read {what}: {exc.strerror or exc}") from None
+    if len(data) > max_bytes:
+        raise UnreadableInput("file too large", f"more than {max_bytes} bytes", f"<= {max_bytes} bytes")
+    return data
+
+
+def _file_kind(mode: int) -> str:
+    for test, name in ((stat.S_ISCHR, "a character device"), (stat.S_ISBLK, "a block device"),
+                       (stat.S_ISFIFO, "a pipe"), (stat.S_ISSOCK, "a socket")):
+        if test(mode):
+            return name
+    return "a special file"
 
 
 class Collector:
@@ -58,8 +111,22 @@ def is_number(value) -> bool:
     return isinstance(value, (int, float)) and not isinstance(value, bool)
 
 
+def bare_key(key) -> str:
+    """A key as a key path shows it: TOML's bare form, or double-quoted when it holds other characters
+    (``zones.Z3."volume m3"``), so that a ':' or '.' in a key cannot be misread."""
+    key = str(key)
+    if key and all(c.isascii() and (c.isalnum() or c in "_-") for c in key):
+        return key
+    return '"' + key.replace("\\", "\\\\").replace('"', '\\"') + '"'
+
+
 def join(path: str, key) -> str:
-    return f"{path}.{key}" if path else str(key)
+    return f"{path}.{bare_key(key)}" if path else bare_key(key)
+
+
+def fixed(x: float, digits: int = 1) -> str:
+    """``x`` with ``digits`` decimals, or three significant digits when it is huge (a message stays short)."""
+    return f"{x:.{digits}f}" if abs(x) < 1e7 else f"{x:.3g}"
 
 
 def _bounds_text(gt, ge, lt, le) -> str:
@@ -80,15 +147,21 @@ def check_number(col: Collector, key: str, value, *, gt=None, ge=None, lt=None, 
     if not is_number(value):
         col.error(key, "must be a number", value, "a number")
         return None
-    x = float(value)
+    try:
+        x = float(value)
+    except OverflowError:  # an integer beyond the float range (TOML integers have no size limit in tomllib)
+        bounds = _bounds_text(gt, ge, lt, le)
+        col.error(key, "number too large", value, bounds or "a number below 1e308 in size")
+        return None
     if not math.isfinite(x):
         col.error(key, "must be finite", value, "a finite number")
         return None
     if ((gt is not None and not x > gt) or (ge is not None and not x >= ge)
             or (lt is not None and not x < lt) or (le is not None and not x <= le)):
-        bounds = _bounds_text(gt, ge, lt, le)
-        problem = "must be positive" if (gt == 0 and ge is None and lt is None and le is None) else "out of range"
-        col.error(key, problem, value, bounds)
+        if gt == 0 and not x > 0 and ge is None:
+            col.error(key, "must be positive", value, "> 0")
+        else:
+            col.error(key, "out of range", value, _bounds_text(gt, ge, lt, le))
         return None
     return x
 

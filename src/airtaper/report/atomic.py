@@ -3,7 +3,8 @@
 Each writer writes to a temporary file in the destination folder, flushes and
 fsyncs it, then renames it over the destination (``os.replace`` is atomic on
 POSIX and Windows within one file system). Writers refuse to overwrite a file
-that the caller names as an input (:func:`guard_inputs`).
+that the caller names as an input (:func:`guard_inputs`). A run's whole output
+folder is written as one set by :mod:`airtaper.report.outputs`.
 """
 
 from __future__ import annotations
@@ -23,7 +24,7 @@ def write_bytes_atomic(path: str | os.PathLike, data: bytes) -> Path:
     dest.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{dest.name}.", suffix=".tmp", dir=dest.parent)
     try:
-        os.fchmod(fd, 0o666 & ~_umask())  # mkstemp makes 0600; outputs get the usual permissions
+        os.fchmod(fd, 0o666 & ~current_umask())  # mkstemp makes 0600; outputs get the usual permissions
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
             fh.flush()
@@ -38,7 +39,8 @@ def write_bytes_atomic(path: str | os.PathLike, data: bytes) -> Path:
     return dest
 
 
-def _umask() -> int:
+def current_umask() -> int:
+    """The process's file-creation mask (read without changing it for longer than a moment)."""
     mask = os.umask(0)
     os.umask(mask)
     return mask
