@@ -13,12 +13,13 @@ from __future__ import annotations
 import math
 import sys
 
+from airtaper.cli.main import add_output_options
 from airtaper.errors import EXIT_FAILURE, EXIT_OK, InputError, Problem
 from airtaper.layout import layout_input_files
 from airtaper.layout.overrides import load_layout_with_overrides
 from airtaper.layout.plantdata import load_plant_data
-from airtaper.report.atomic import guard_inputs
-from airtaper.report.calibration import OUTPUT_NAMES, console_summary, write_calibration_outputs
+from airtaper.report.calibration import console_summary, write_calibration_outputs
+from airtaper.report.outputs import output_folder
 
 
 def register(subparsers) -> None:
@@ -29,7 +30,7 @@ def register(subparsers) -> None:
                     "report intervals and identifiability and write the values as an override file.")
     p.add_argument("layout", metavar="LAYOUT", help="layout TOML file, e.g. layouts/demo.toml")
     p.add_argument("--data", required=True, metavar="DATA.csv", help="plant-data CSV (docs/calibration.md)")
-    p.add_argument("--out", required=True, metavar="DIR", help="output folder")
+    add_output_options(p)
     p.add_argument("--overrides", metavar="FILE", help="override file applied to the layout first")
     p.add_argument("--mu-a", action="store_true", help="also fit mu_A, the autotrophs' maximum growth rate "
                                                        "(needs NH4-N data)")
@@ -71,7 +72,6 @@ def run(args) -> int:
     for w in warnings:
         print(str(w), file=sys.stderr)
     inputs = layout_input_files(args.layout, layout) + [args.data] + ([args.overrides] if args.overrides else [])
-    guard_inputs(args.out, inputs, OUTPUT_NAMES)
     if args.mu_a and not record.nh4_mg_L:
         raise InputError(Problem(args.data, "--mu-a", "fitting mu_A needs NH4-N data", None,
                                  "an nh4_effluent_mg_L or nh4_<zone>_mg_L column"))
@@ -81,9 +81,11 @@ def run(args) -> int:
         raise InputError(Problem("<command line>", "--warmup-h", "the warm-up covers the whole record",
                                  args.warmup_h, f"< {24.0 * record.days:g} h"))
     progress = (lambda text: None) if args.quiet else (lambda text: print(f"... {text}", file=sys.stderr))
-    result = run_calibration(layout, record, options, progress)
-    for z, msg in result.held.items():
-        print(f"warning: {args.data}: do_{z}_mg_L: {msg}", file=sys.stderr)
-    write_calibration_outputs(args.out, result, figures=not args.no_figure)
+    with output_folder(args.out, inputs=inputs, overwrite=args.overwrite) as out:
+        result = run_calibration(layout, record, options, progress)
+        for z, msg in result.held.items():
+            print(f"warning: {args.data}: do_{z}_mg_L: {msg}", file=sys.stderr)
+        result.summary.update(out.provenance())
+        write_calibration_outputs(out.staging, result, figures=not args.no_figure)
     print(console_summary(result.summary))
     return EXIT_OK if result.status == "fitted" else EXIT_FAILURE
