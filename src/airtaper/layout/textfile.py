@@ -1,7 +1,8 @@
-"""Reading an input file as text: one home for the size limit and the UTF-8 check.
+"""Reading an input file as text: the shared reader's guards plus the UTF-8 check.
 
-(The layout parser reads its file the same way; when the input-contract work lands a shared
-reader in :mod:`airtaper.layout.reader`, this becomes a call to it.)
+:func:`airtaper.layout.reader.read_input_file` is the one home of what an input file may be
+(a regular file, not larger than a limit, read with a cap); this adds the decoding and turns
+its refusal into the layout's one error form.
 """
 
 from __future__ import annotations
@@ -9,10 +10,12 @@ from __future__ import annotations
 import os
 
 from airtaper.errors import InputError, Problem
+from airtaper.layout.reader import UnreadableInput, read_input_file
 
 
 def read_text_file(path, max_bytes: int, what: str, kind: str, encoding: str = "utf-8") -> tuple[str, str]:
-    """(label, text) of an input file; unreadable, too large or not UTF-8 is an InputError naming the file.
+    """(label, text) of an input file; unreadable, not a regular file, too large or not UTF-8 is an
+    InputError naming the file.
 
     ``what`` names the file in "cannot read the <what>"; ``kind`` in "a UTF-8 <kind> file".
     """
@@ -20,13 +23,9 @@ def read_text_file(path, max_bytes: int, what: str, kind: str, encoding: str = "
     if not isinstance(label, str):
         label = os.fsdecode(label)
     try:
-        size = os.path.getsize(label)
-        if size > max_bytes:
-            raise InputError(Problem(label, "(file)", "file too large", f"{size} bytes", f"<= {max_bytes} bytes"))
-        with open(label, "rb") as fh:
-            raw = fh.read()
-    except OSError as exc:
-        raise InputError(Problem(label, "(file)", f"cannot read the {what}: {exc.strerror or exc}")) from None
+        raw = read_input_file(label, max_bytes, f"the {what}")
+    except UnreadableInput as exc:
+        raise InputError(Problem(label, "(file)", exc.problem, exc.got, exc.expected)) from None
     try:
         return label, raw.decode(encoding)
     except UnicodeDecodeError as exc:
