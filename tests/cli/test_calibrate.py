@@ -56,7 +56,7 @@ def test_outputs_may_not_overwrite_the_data(tmp_path, capsys):
     data = tmp_path / "fit.csv"
     shutil.copy(_first_day(tmp_path), data)
     assert main(["calibrate", str(lay), "--data", str(data), "--out", str(tmp_path)]) == EXIT_INPUT
-    assert "output would overwrite an input file" in capsys.readouterr().err
+    assert "--out: the output folder holds an input of this run" in capsys.readouterr().err
 
 
 def test_bad_options_are_reported(tmp_path, capsys):
