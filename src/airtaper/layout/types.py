@@ -79,6 +79,7 @@ class Zone:
     mixing_airflow_min_Sm3_h_m2: float  # mixing minimum per floor area (aerated zones)
     fixed_kla_per_d: float | None  # benchmark plants, mechanical aerators
     fixed_do_sat_mg_L: float | None
+    max_switches_per_day: int | None = None  # swing zones: on/off changes per day (cyclic), None = no limit
 
     @property
     def aerated(self) -> bool:
@@ -173,6 +174,11 @@ class Blower:
     efficiency: float | None  # constant wire-to-air efficiency, or
     efficiency_points: tuple[EfficiencyPoint, ...]  # a curve vs airflow (derived when power points are given)
     power_points: tuple[PowerPoint, ...] = ()  # as given in the layout, if the curve came from power points
+    out_of_service: bool = False  # never dispatched
+    min_up_h: float = 0.0  # once started, runs at least this long
+    min_down_h: float = 0.0  # once stopped, stays off at least this long
+    max_starts_per_day: int | None = None  # None = no limit (starts counted around the periodic day)
+    start_cost: float = 0.0  # currency per start (wear, inrush), added to the cost objective
 
 
 @dataclass(frozen=True)

@@ -37,9 +37,11 @@ from airtaper.optimize.baseline import Baseline, run_baseline
 from airtaper.optimize.figures import day_figures
 from airtaper.optimize.initialise import BASE_OPTIONS, LADDER, Rung, point_hours, start_airflow, start_from_day
 from airtaper.optimize.marginal import marginal_costs
-from airtaper.optimize.problem import attach_problem, fix_slacks, point_weights, settings_for
+from airtaper.optimize.problem import attach_problem, fix_slacks, max_power_line_kW, point_weights, settings_for
 from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.scaling import apply_scaling
+from airtaper.optimize.staging import (day_dispatch, dispatch_summary, dispatch_table, feasibility_check,
+                                       final_dispatch, run_staging)
 from airtaper.optimize.verify import verify_schedule
 from airtaper.solve import solve_nlp
 
@@ -73,6 +75,7 @@ class StudyResult:
     summary: dict
     exit_code: int
     study: "DiurnalOptimisation" = field(repr=False, default=None)
+    blowers: pd.DataFrame | None = None  # blowers.csv: one row per period and blower (staged layouts)
 
 
 def model_steps_per_period(layout: Layout, options: StudyOptions) -> int:
@@ -168,9 +171,15 @@ class DiurnalOptimisation:
         for z in b.ZONES:
             for p in m.PERIODS:
                 m.airflow_Sm3_h[z, p].unfix()
+        for z, on in (b.swing_states or {}).items():  # a swing zone switched off gets no air
+            for p in m.PERIODS:
+                if not on[p - 1]:
+                    m.airflow_Sm3_h[z, p].fix(0.0)
         for p in m.PERIODS:
             b.header_kPa[p].set_value(max(pyo.value(b.zone_pressure_kPa[z, p]) for z in b.ZONES)
                                       + self.layout.header.min_valve_loss_kPa)
+            if b.staged:
+                b.power_kW[p].set_value(max_power_line_kW(b, p))
         if b.component("peak_kW") is not None and not b.peak_kW.fixed:
             b.peak_kW.set_value(max(pyo.value(b.power_kW[p]) for p in m.PERIODS))
 
@@ -288,6 +297,7 @@ class DiurnalOptimisation:
         sched = []
         w = point_weights(m)
         hours = point_hours(m)
+        states = b.swing_states or {}
         for p in m.PERIODS:
             steps = [t for t in m.STEPS if m.period_of_step[t] == p]
             wp = np.array([w[t] for t in steps])
@@ -297,6 +307,7 @@ class DiurnalOptimisation:
                 do = np.array([pyo.value(m.conc[t, z, "SO"]) for t in steps])
                 sched.append({
                     "period_start_h": (p - 1) * period_h, "period_end_h": p * period_h, "zone": z,
+                    "aerated": bool(states[z][p - 1]) if z in states else q > 0.0,
                     "airflow_Sm3_h": q, "airflow_per_diffuser_Sm3_h": q / pyo.value(b.diffuser_count[z]),
                     "do_min_mg_L": float(do.min()), "do_mean_mg_L": float(wp @ do),
                     "nh4_mean_mg_L": float(wp @ np.array([pyo.value(m.conc[t, z, "SNH"]) for t in steps])),
@@ -341,6 +352,15 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     messages = []
     infeasibility = []
     status = "optimal"
+    staging = None
+    objective = study.m.opt.settings.objective
+    if result is not None and study.m.opt.staged:
+        staging = run_staging(study, result)
+        result = staging.result
+        if staging.findings:
+            status = "infeasible"
+            infeasibility = staging.findings
+            messages.extend(f["message"] for f in staging.findings)
     if result is None:
         r, infeasibility = study.elastic()
         if not r.ok:
@@ -363,6 +383,30 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     energy = study.energy_kWh_per_day()
     power = study.power_by_period()
     cost = study.m.opt.air.cost(power)
+    blowers_table, dispatch, base_dispatch = None, None, None
+    if staging is not None and staging.dispatch is not None:
+        dp = staging.dispatch if staging.findings else final_dispatch(study.m, staging.dispatch)
+        blowers_table = dispatch_table(layout, dp)
+        dispatch = dispatch_summary(layout, dp)
+        energy = dispatch["energy_kWh_per_day"]
+        cost = dispatch["cost_per_day"]
+        dispatch["rounds"] = staging.rounds
+        dispatch["converged"] = staging.converged
+        dispatch["stopped"] = staging.reason
+        dispatch["swing_zones"] = {z: {"aerated_periods": [int(i) + 1 for i in np.flatnonzero(on)],
+                                       "switches": int(np.sum(on != np.roll(on, 1)))}
+                                   for z, on in (staging.swing_states or {}).items()}
+        if status == "optimal" and result is not None:
+            breaches = feasibility_check(study.m, dp)
+            dispatch["feasibility_breaches"] = breaches
+            if breaches:
+                status = "unverified"
+                messages.append("WARNING: the schedule breaks a machine or grid range: " + "; ".join(breaches))
+        bd = day_dispatch(layout, base.day, objective)
+        if bd is not None:
+            base_dispatch = dispatch_summary(layout, bd)
+            base_dispatch["shortfall"] = [f["message"] for f in bd.findings]
+            messages.extend(f"baseline: {f['message']}" for f in bd.findings)
     verification = None
     if opts.verify and status != "failed":
         prog.phase("verifying: the schedule re-simulated by the independent simulator")
@@ -382,6 +426,11 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
                  "failed": EXIT_FAILURE}[status]
     study.timings["total_s"] = time.perf_counter() - t0
     lim = layout.limits
+    base_summary = base.summary()
+    if base_dispatch is not None:  # the same dispatch rule bills the baseline
+        base_summary["dispatch"] = base_dispatch
+        base_summary["energy_kWh_per_day"] = base_dispatch["energy_kWh_per_day"]
+        base_summary["cost_per_day"] = base_dispatch["cost_per_day"]
     summary = {
         "status": status,
         "plant": layout.plant.name,
@@ -390,9 +439,10 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         "currency": layout.tariff.currency if layout.tariff else "",
         "energy_kWh_per_day": energy,
         "cost_per_day": cost,
-        "baseline": base.summary(),
-        "saving_percent": _saving(base.energy_kWh_per_day, energy),
-        "cost_saving_percent": _saving(base.cost_per_day, cost),
+        "baseline": base_summary,
+        "saving_percent": _saving(base_summary["energy_kWh_per_day"], energy),
+        "cost_saving_percent": _saving(base_summary["cost_per_day"], cost),
+        "dispatch": dispatch,
         "effluent": {k: figs[k] for k in ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L")},
         "min_do_margin_mg_L": figs["min_do_margin_mg_L"],
         "do_margin_mg_L": figs["do_margin_mg_L"],
@@ -419,7 +469,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         "messages": messages,
     }
     return StudyResult(schedule=schedule, header=header, timeseries=timeseries, summary=_jsonable(summary),
-                       exit_code=exit_code, study=study)
+                       exit_code=exit_code, study=study, blowers=blowers_table)
 
 
 def _jsonable(obj):
