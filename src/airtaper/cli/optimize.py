@@ -3,7 +3,7 @@
 Runs :func:`airtaper.optimize.study.run_optimization` (baseline under uniform DO
 control, the optimisation on the cyclic model, verification by the independent
 simulator, marginal costs) with a progress display on stderr, writes
-``schedule.csv``, ``header.csv``, ``timeseries.csv``, ``summary.json``,
+``schedule.csv``, ``header.csv``, ``blowers.csv``, ``timeseries.csv``, ``summary.json``,
 ``schedule.png`` and ``report.html`` to DIR (each atomically), and prints a short
 summary. Exit codes: 0 done and verified; 2 bad input; 3 the limits cannot all be
 met (the summary says which, where and when); 4 the re-simulated schedule breaks
@@ -72,7 +72,7 @@ def run(args) -> int:
     result = run_optimization(layout, options, progress)
     progress.phase("writing outputs")
     write_study_outputs(args.out, schedule=result.schedule, header=result.header, timeseries=result.timeseries,
-                        summary=result.summary, figure=not args.no_figure)
+                        summary=result.summary, figure=not args.no_figure, blowers=result.blowers)
     print(console_summary(result.summary))
     if result.summary.get("status") == "unverified":
         print("WARNING: the optimised schedule breaks a limit when re-simulated by the independent simulator; "

@@ -331,12 +331,11 @@ class Layout:
         return 100.0 * zone.grid.count * dtype.membrane_area_m2 / zone.area_m2
 
     def zone_airflow_range_Sm3_h(self, zone: Zone) -> tuple[float, float]:
-        """(min, max) zone airflow allowed by its diffusers, mixing and valve."""
+        """(min, max) zone airflow allowed by its diffusers, mixing and valve (a swing zone's when on)."""
         if zone.grid is None or not zone.aerated:
             return (0.0, 0.0)
         dtype = self.diffuser_type(zone.grid.type_id)
-        lo = max(zone.grid.count * dtype.airflow_min_Sm3_h,
-                 zone.mixing_airflow_min_Sm3_h_m2 * zone.area_m2 if zone.kind == "aerated" else 0.0)
+        lo = max(zone.grid.count * dtype.airflow_min_Sm3_h, zone.mixing_airflow_min_Sm3_h_m2 * zone.area_m2)
         hi = zone.grid.count * dtype.airflow_max_Sm3_h
         if zone.valve_capacity_Sm3_h is not None:
             hi = min(hi, zone.valve_capacity_Sm3_h)

@@ -8,6 +8,9 @@ ones the optimisation produces:
   ``do_min_mg_L``, ``do_mean_mg_L``, ``nh4_mean_mg_L``, ``otr_kg_h``;
 * ``header`` — one row per period: ``period``, ``pressure_kPa``,
   ``airflow_Sm3_h``, ``power_kW``;
+* ``blowers`` — one row per period and blower (layouts with blowers): ``period_start_h``,
+  ``period_end_h``, ``blower``, ``running``, ``airflow_Sm3_h``, ``power_kW``, ``efficiency``
+  (empty when stopped), ``discharge_gauge_kPa``, ``starts`` (1 when it starts at the period's start);
 * ``timeseries`` — one row per time step and zone (states, airflow, OTR);
 * ``summary`` — a JSON-serialisable dict (see docs and :func:`console_summary`).
 """
@@ -30,7 +33,8 @@ CAUTION = (
     "against plant data before using it for control."
 )
 
-OUTPUT_NAMES = ("schedule.csv", "header.csv", "timeseries.csv", "summary.json", "schedule.png", "report.html")
+OUTPUT_NAMES = ("schedule.csv", "header.csv", "blowers.csv", "timeseries.csv", "summary.json", "schedule.png",
+                "report.html")
 
 
 def schedule_figure_png(schedule: pd.DataFrame, header: pd.DataFrame, timeseries: pd.DataFrame | None,
@@ -175,12 +179,14 @@ img {{ max-width: 100%; }}
 
 
 def write_study_outputs(out_dir: str | Path, *, schedule: pd.DataFrame, header: pd.DataFrame,
-                        timeseries: pd.DataFrame, summary: dict, figure: bool = True) -> list[Path]:
+                        timeseries: pd.DataFrame, summary: dict, figure: bool = True,
+                        blowers: pd.DataFrame | None = None) -> list[Path]:
     """Write the study's files into ``out_dir`` atomically; return their paths."""
     out = Path(out_dir)
     written = [
         write_csv_atomic(out / "schedule.csv", schedule),
         write_csv_atomic(out / "header.csv", header),
+        *([write_csv_atomic(out / "blowers.csv", blowers)] if blowers is not None else []),
         write_csv_atomic(out / "timeseries.csv", timeseries),
         write_json_atomic(out / "summary.json", summary),
     ]
@@ -191,6 +197,28 @@ def write_study_outputs(out_dir: str | Path, *, schedule: pd.DataFrame, header: 
         written.append(write_bytes_atomic(out / "schedule.png", png))
     written.append(write_text_atomic(out / "report.html", report_html(summary, schedule, png)))
     return written
+
+
+def _dispatch_lines(dp: dict | None, cur: str) -> list[str]:
+    """The blower dispatch in a few console lines."""
+    if not dp:
+        return []
+    used = [f"{b} {_fmt(v.get('running_h'), 0)} h ({v.get('starts')} start{'s' if v.get('starts') != 1 else ''})"
+            for b, v in (dp.get("blowers") or {}).items() if v.get("running_h")]
+    idle = [b for b, v in (dp.get("blowers") or {}).items() if not v.get("running_h")]
+    lines = [f"blowers           {', '.join(used) or 'none running'}"
+             + (f"; idle {', '.join(idle)}" if idle else "")
+             + f"; peak {_fmt(dp.get('peak_kW'), 1)} kW in period {dp.get('peak_period')}"]
+    if dp.get("cost_per_day") is not None:
+        lines.append(f"bill              energy {_fmt(dp.get('energy_cost'), 2)} + demand {_fmt(dp.get('demand_charge'), 2)}"
+                     f" + starts {_fmt(dp.get('start_costs'), 2)} = {_fmt(dp.get('cost_per_day'), 2)} {cur}/d")
+    rounds = dp.get("rounds") or []
+    lines.append(f"staging           {len(rounds)} dispatch round{'s' if len(rounds) != 1 else ''}"
+                 f" ({dp.get('stopped', '')})")
+    for z, v in (dp.get("swing_zones") or {}).items():
+        lines.append(f"swing zone        {z} aerated in {len(v.get('aerated_periods') or [])} periods, "
+                     f"{v.get('switches')} switches per day")
+    return lines
 
 
 def console_summary(summary: dict) -> str:
@@ -210,6 +238,7 @@ def console_summary(summary: dict) -> str:
         f"min DO margin     {_fmt(summary.get('min_do_margin_mg_L'), 2)} mg/L",
         f"verified          {_fmt(ver.get('verified'))}",
     ]
+    lines.extend(_dispatch_lines(summary.get("dispatch"), cur))
     for item in summary.get("marginal_costs") or []:
         slack = "" if item.get("binding", True) else " (not binding)"
         lines.append(f"marginal          {item.get('limit')} {item.get('where', '')}: "
