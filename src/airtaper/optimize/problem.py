@@ -199,6 +199,24 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
                             ordered=True)
     P = list(m.PERIODS)
 
+    # --- swing zones: on/off per period as fixed 0/1 variables (a relaxed solve has them 0 and the
+    # airflow free from 0; :mod:`airtaper.optimize.staging` fixes the states and re-solves) ------
+    b.swing_states = None  # zone -> (n_periods,) bool once decided
+    b.swing_on = pyo.Var(b.SWING_ZONES, m.PERIODS, bounds=(0.0, 1.0), initialize=0.0)
+    b.swing_do_on = pyo.Var(m.STEPS, b.SWING_ZONES, bounds=(0.0, 1.0), initialize=0.0)  # DO minimum held
+    for v in list(b.swing_on.values()) + list(b.swing_do_on.values()):
+        v.fix()
+
+    b.swing_air = pyo.Var(b.SWING_ZONES, m.PERIODS, bounds=(0.0, 1.0), initialize=1.0)  # 0: off, valve shut
+    for v in b.swing_air.values():
+        v.fix()
+
+    def on(z, p):
+        return b.swing_on[z, p] if z in b.SWING_ZONES else 1.0
+
+    def air_on(z, p):
+        return b.swing_air[z, p] if z in b.SWING_ZONES else 1.0
+
     # --- decisions ------------------------------------------------------------------------
     b.diffuser_count = pyo.Param(b.ZONES, mutable=True, initialize={z: float(layout.zone(z).grid.count) for z in grid})
     for z in grid:
@@ -220,20 +238,9 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
         rule=lambda b, z, p: air.zone_required_pressure_kPa(layout.zone(z), m.airflow_Sm3_h[z, p], b.diffuser_count[z]))
     b.header_kPa = pyo.Var(m.PERIODS, bounds=(0.0, None), initialize=lambda b, p: max(
         pyo.value(b.zone_pressure_kPa[z, p]) for z in grid) + layout.header.min_valve_loss_kPa)
-    b.valve_loss = pyo.Constraint(
-        b.ZONES, m.PERIODS,
-        rule=lambda b, z, p: b.header_kPa[p] - b.zone_pressure_kPa[z, p] >= layout.header.min_valve_loss_kPa)
-    # --- swing zones: on/off per period as fixed 0/1 variables (a relaxed solve has them 0 and the
-    # airflow free from 0; :mod:`airtaper.optimize.staging` fixes the states and re-solves) ------
-    b.swing_states = None  # zone -> (n_periods,) bool once decided
-    b.swing_on = pyo.Var(b.SWING_ZONES, m.PERIODS, bounds=(0.0, 1.0), initialize=0.0)
-    b.swing_do_on = pyo.Var(m.STEPS, b.SWING_ZONES, bounds=(0.0, 1.0), initialize=0.0)  # DO minimum held
-    for v in list(b.swing_on.values()) + list(b.swing_do_on.values()):
-        v.fix()
-
-    def on(z, p):
-        return b.swing_on[z, p] if z in b.SWING_ZONES else 1.0
-
+    b.valve_loss = pyo.Constraint(  # a swing zone switched off has its valve shut (swing_air 0)
+        b.ZONES, m.PERIODS, rule=lambda b, z, p: b.header_kPa[p] - air_on(z, p) * b.zone_pressure_kPa[z, p]
+        >= air_on(z, p) * layout.header.min_valve_loss_kPa)
     # --- blower power --------------------------------------------------------------------
     # Staged: the power of the period's running machines is the largest of the lines of their
     # least-power curve (convex, see airtaper.optimize.dispatch), in equivalent airflow
@@ -375,6 +382,7 @@ def set_swing_states(m, states: dict | None) -> None:
         on = np.zeros(n, dtype=bool) if states is None else b.swing_states[z]
         for p in m.PERIODS:
             b.swing_on[z, p].fix(float(on[p - 1]))
+            b.swing_air[z, p].fix(float(states is None or on[p - 1]))
             v = m.airflow_Sm3_h[z, p]
             if states is not None and not on[p - 1]:
                 v.fix(0.0)

@@ -7,7 +7,8 @@ Scheme (docs/optimization.md, "Blower staging and swing zones"):
    power over every set of machines in service (and of no air) - a convex under-estimate
    of the staged power, so the relaxed optimum is a lower bound of the cost it can reach;
 2. **swing states**: each swing zone's relaxed airflow rounded to on/off within its
-   switches limit (:func:`airtaper.optimize.dispatch.swing_states`), then fixed;
+   switches limit (:func:`airtaper.optimize.dispatch.swing_states`, leaning to "on",
+   :data:`SWING_ON_FRACTION`), then fixed;
 3. **dispatch round** ``r = 1, 2, ...``: the machines chosen by the MILP
    (:func:`airtaper.optimize.dispatch.solve_dispatch`) on the current airflow and
    discharge pressure of every period are fixed in the nonlinear schedule (their
@@ -42,6 +43,11 @@ from airtaper.physics.blower import blower_power_kW
 COST_RTOL = 0.005
 #: Most dispatch rounds (each one a warm re-solve of the nonlinear schedule).
 MAX_ROUNDS = 4
+#: Relaxed airflow, as a fraction of a swing zone's minimum when on, at which rounding leans to "on":
+#: the relaxed fraction f is mapped to min(1, f / (2 x this)) before rounding at 1/2. Rounding
+#: up is the safe side (an aerated spell at its minimum gives at least the relaxed oxygen); a
+#: zone is switched off only where the relaxed schedule barely aerates it. Common practice (no source).
+SWING_ON_FRACTION = 0.1
 #: Relative tolerance of the post-solve feasibility check of machines and grids.
 CHECK_RTOL = 1e-4
 
@@ -177,7 +183,8 @@ def run_staging(study, first_result) -> StagingOutcome:
     rounds = out.rounds
     if b.SWING_ZONES:
         frac = relaxed_swing_fractions(m)
-        states = {z: swing_states(frac[z], layout.zone(z).max_switches_per_day) for z in b.SWING_ZONES}
+        states = {z: swing_states(np.minimum(1.0, frac[z] / (2.0 * SWING_ON_FRACTION)),
+                                  layout.zone(z).max_switches_per_day) for z in b.SWING_ZONES}
         set_swing_states(m, states)
         out.swing_states = states
     best = None  # (cost, snapshot, dispatch, result, swing states)
@@ -202,7 +209,8 @@ def run_staging(study, first_result) -> StagingOutcome:
         apply_dispatch(m, dp)
         prog.phase(f"staging round {r}: " + ", ".join(
             f"{mm.id} {int(dp.running[j].sum())} periods" for j, mm in enumerate(dp.machines)))
-        res = study.resolve(warm=True)
+        # round 1 may go down the retry ladder; later rounds get one warm attempt (the best round stands)
+        res = study.resolve(warm=True) if best is None else study._ipopt(study.options.ladder[0], warm_start=True)
         if res is None or not res.ok:
             if r == 1 and b.SWING_ZONES and not tried_all_on and \
                     any(not s.all() for s in (b.swing_states or {}).values()):
