@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from airtaper.errors import EXIT_OK
+from airtaper.errors import EXIT_INFEASIBLE, EXIT_OK
 from airtaper.layout import load_layout
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.staging import COST_RTOL, MAX_ROUNDS
@@ -143,3 +143,22 @@ def test_perturbed_efficiencies_give_nearly_the_same_staged_cost(three_tank_diur
     assert r.summary["status"] == "optimal"
     ratio = r.summary["energy_kWh_per_day"] / staged.summary["energy_kWh_per_day"]
     assert 1 / 1.005 * (1 - COST_RTOL) <= ratio <= 1 + COST_RTOL
+
+
+def test_staging_that_cannot_meet_the_demand_is_a_finding(three_tank_diurnal):
+    """PD1's pressure limit is below the header's need and PD2 alone is too small at the peak: exit 3 with
+    the periods and the shortfall, not a solver error (the relaxed solve, one machine of the set's
+    capacity at the highest limit, is feasible)."""
+    pd1, pd2 = three_tank_diurnal.blowers
+    layout = replace(three_tank_diurnal, blowers=(
+        replace(pd1, pressure_max_gauge_kPa=44.0),
+        replace(pd2, airflow_min_Sm3_h=600.0, airflow_max_Sm3_h=1500.0)))
+    r = run_optimization(layout)
+    s = r.summary
+    assert r.exit_code == EXIT_INFEASIBLE and s["status"] == "infeasible"
+    found = [f for f in s["infeasibility"] if f["limit"] == "blower_staging"]
+    assert found and all(f["shortfall_Sm3_h"] > 0 for f in found)
+    header = r.header.set_index("period")
+    for f in found:  # the shortfall is the schedule's air above what PD2 can give
+        assert f["shortfall_Sm3_h"] == pytest.approx(header.loc[f["period"], "airflow_Sm3_h"] - 1500.0, rel=1e-6)
+        assert "capacity" in f["message"]

@@ -46,12 +46,12 @@ def test_optimum_beats_the_baseline_and_verifies(solved, three_tank_diurnal):
 
 
 def test_outputs_have_the_promised_columns(solved):
-    assert list(solved.schedule.columns) == ["period_start_h", "period_end_h", "zone", "airflow_Sm3_h",
+    assert list(solved.schedule.columns) == ["period_start_h", "period_end_h", "zone", "aerated", "airflow_Sm3_h",
                                              "airflow_per_diffuser_Sm3_h", "do_min_mg_L", "do_mean_mg_L",
                                              "nh4_mean_mg_L", "otr_kg_h"]
     assert list(solved.header.columns) == ["period", "pressure_kPa", "airflow_Sm3_h", "power_kW"]
     for key in ("status", "energy_kWh_per_day", "cost_per_day", "baseline", "saving_percent", "effluent",
-                "min_do_margin_mg_L", "verification", "marginal_costs", "solver"):
+                "min_do_margin_mg_L", "verification", "marginal_costs", "solver", "dispatch"):
         assert key in solved.summary
     assert {"iterations", "timings"} <= set(solved.summary["solver"])
     # the header holds the most demanding zone plus the minimum valve loss (tight at the optimum)

@@ -96,11 +96,12 @@ class ProblemSettings:
     smoothing_weight: float
     reference: float  # objective normaliser (baseline energy, kWh/d, or cost/d)
     mixing_airflow_min_Sm3_h_m2: dict = field(default_factory=dict)  # zone -> value (override)
+    staging: bool = True  # False: the blowers as one machine at the aggregate efficiency, swing zones relaxed
 
 
 def settings_for(layout: Layout, reference: float, *, objective: str | None = None,
-                 smoothing_weight: float | None = None, mixing_airflow_min_Sm3_h_m2: float | None = None
-                 ) -> ProblemSettings:
+                 smoothing_weight: float | None = None, mixing_airflow_min_Sm3_h_m2: float | None = None,
+                 staging: bool = True) -> ProblemSettings:
     """Settings from the layout's [operation], with optional overrides."""
     obj = objective or layout.operation.objective
     if obj == "cost" and layout.tariff is None:
@@ -113,7 +114,7 @@ def settings_for(layout: Layout, reference: float, *, objective: str | None = No
                 else float(mixing_airflow_min_Sm3_h_m2)
     if not reference > 0:
         raise ModelError(f"objective reference must be positive, got {reference!r}")
-    return ProblemSettings(obj, w, float(reference), mix)
+    return ProblemSettings(obj, w, float(reference), mix, bool(staging))
 
 
 # --- helpers read by rules ----------------------------------------------------------------
@@ -249,7 +250,8 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
     # change between staging rounds, the derivative structure does not); the first solve uses
     # the convex envelope over every set of machines (and no air).
     b.machines = machines_of(layout)
-    b.staged = any(not mm.out_of_service for mm in b.machines)
+    in_service = any(not mm.out_of_service for mm in b.machines)
+    b.staged = in_service and settings.staging
     b.LINES = pyo.RangeSet(max_lines(b.machines) if b.staged else 1)
     b.line_a = pyo.Var(m.PERIODS, b.LINES, initialize=0.0)
     b.line_b = pyo.Var(m.PERIODS, b.LINES, initialize=0.0)
@@ -335,7 +337,7 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
     s10 = slack("blower_max_slack", m.PERIODS)
     s11 = slack("blower_min_slack", m.PERIODS)
     s12 = slack("pressure_max_slack", m.PERIODS)
-    if b.staged:
+    if in_service:
         b.blower_max = pyo.Constraint(m.PERIODS, rule=lambda b, p: (
             b.total_airflow_Sm3_h[p] <= b.staging_max_Sm3_h[p] * (1.0 + s10[p])))
         b.blower_min = pyo.Constraint(m.PERIODS, rule=lambda b, p: (

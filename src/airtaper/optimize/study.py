@@ -63,6 +63,7 @@ class StudyOptions:
     steps_per_period: int | None = None  # None: see model_steps_per_period
     verify: bool = True
     marginal: bool = True
+    staging: bool = True  # False: blowers as one machine, swing zones relaxed (the comparison in benchmarks/)
     ipopt_options: dict = field(default_factory=dict)
     ladder: tuple[Rung, ...] = LADDER
 
@@ -138,7 +139,8 @@ class DiurnalOptimisation:
         start_from_day(m, base.day, start_airflow(m, base.day))
         settings = settings_for(self.layout, self.reference(), objective=self.options.objective,
                                 smoothing_weight=self.options.smoothing_weight,
-                                mixing_airflow_min_Sm3_h_m2=self.options.mixing_airflow_min_Sm3_h_m2)
+                                mixing_airflow_min_Sm3_h_m2=self.options.mixing_airflow_min_Sm3_h_m2,
+                                staging=self.options.staging)
         attach_problem(m, self.layout, settings)
         self.timings["initialise_s"] = time.perf_counter() - t
         self.progress.phase("converting the model and building derivatives")
