@@ -183,6 +183,18 @@ CASES = [
     ("switches-on-an-aerated-zone", "demo", _set(["zones:Z3", "max_switches_per_day"], 3),
      [E + 'zones.Z3.max_switches_per_day: only a swing zone is switched on and off (got 3, expected no such key, '
           'or kind = "swing")']),
+    ("blower-range-points-pressure-falls", "demo", _set(["blowers", 0, "airflow_range_points"], [
+        {"discharge_gauge_kPa": 60.0, "airflow_min_Sm3_h": 4500.0, "airflow_max_Sm3_h": 9000.0},
+        {"discharge_gauge_kPa": 55.0, "airflow_min_Sm3_h": 5000.0, "airflow_max_Sm3_h": 8000.0}]),
+     [E + "blowers.B1.airflow_range_points[2].discharge_gauge_kPa: pressure must increase from point to point "
+          "(got 55.0, expected > 60)"]),
+    ("blower-range-point-outside-the-range", "demo", _set(["blowers", 0, "airflow_range_points"], [
+        {"discharge_gauge_kPa": 50.0, "airflow_min_Sm3_h": 4000.0, "airflow_max_Sm3_h": 9000.0},
+        {"discharge_gauge_kPa": 70.0, "airflow_min_Sm3_h": 5000.0, "airflow_max_Sm3_h": 4800.0}]),
+     [E + "blowers.B1.airflow_range_points[1]: range outside the blower's airflow_min_Sm3_h-airflow_max_Sm3_h "
+          "(got '4000-9000', expected within 4500-9000)",
+      E + "blowers.B1.airflow_range_points[2].airflow_max_Sm3_h: must exceed the point's airflow_min_Sm3_h "
+          "(got 4800.0, expected > 5000)"]),
     ("every-blower-out-of-service", "demo", _all_out_of_service,
      [E + "blowers: every blower is out of service (got '3 out of service', expected at least one blower in "
           "service)"]),

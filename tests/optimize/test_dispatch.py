@@ -22,8 +22,8 @@ pytestmark = pytest.mark.solver
 H = 1.0  # period length, h
 
 
-def machine(mid, lo, hi, eff=None, points=(), pmax=80.0, oos=False, up=0, down=0, starts=None, cost=0.0):
-    return Machine(mid, equivalent_curve(lo, hi, eff, points), pmax, oos, up, down, starts, cost)
+def machine(mid, lo, hi, eff=None, points=(), pmax=80.0, oos=False, up=0, down=0, starts=None, cost=0.0, ranges=()):
+    return Machine(mid, equivalent_curve(lo, hi, eff, points), pmax, oos, up, down, starts, cost, ranges)
 
 
 def _runs_ok(pattern, length, value):
@@ -68,7 +68,7 @@ def brute_force(machines, demand, pressure, w, bill: Bill, excess):
             continue
         power = np.zeros(n)
         for p in range(n):
-            on = [machines[j].curve for j in range(nm) if run[j, p]]
+            on = [machines[j].curve_at(pressure[p]) for j in range(nm) if run[j, p]]
             if not on:
                 ok = demand[p] == 0
                 break
@@ -177,6 +177,30 @@ def test_demand_charge_lowers_the_peak():
     for dp, bill in ((no_charge, Bill(np.ones(n), 0.0, True, True)), (charged, Bill(np.ones(n), 5.0, True, True))):
         ref = brute_force((a, b), demand, p, w, bill, excess)
         assert dispatch_value(dp, bill) == pytest.approx(ref[0], rel=1e-5, abs=1e-3)
+
+
+def test_airflow_range_follows_the_discharge_pressure():
+    """A centrifugal machine loses capacity and turndown as the pressure rises (range points): the dispatch
+    uses the range at each period's pressure, as the enumeration does."""
+    cen = machine("CEN", 1000.0, 3000.0, points=[(1000.0, 0.66), (2000.0, 0.76), (3000.0, 0.74)],
+                  ranges=((50.0, 1000.0, 3000.0), (60.0, 1400.0, 2200.0)), cost=0.5)
+    pd_ = machine("PD", 400.0, 1400.0, eff=0.58, cost=0.2)
+    assert cen.range_at(55.0) == pytest.approx((1200.0, 2600.0))
+    assert cen.range_at(70.0) == pytest.approx((1400.0, 2200.0))  # held beyond the last point
+    demand = np.array([2700.0, 2700.0, 1100.0, 2500.0])
+    pressure = np.array([50.0, 60.0, 60.0, 55.0])
+    n = demand.size
+    bill = Bill(np.array([0.1, 0.2, 0.1, 0.2]), 0.3, True, True)
+    excess = np.full(n, 100.0)
+    dp = solve_dispatch((cen, pd_), demand, pressure, np.full(n, 0.012), bill, H, excess)
+    ref = brute_force((cen, pd_), demand, pressure, np.full(n, 0.012), bill, excess)
+    assert not dp.findings
+    assert dispatch_value(dp, bill) == pytest.approx(ref[0], rel=1e-5, abs=1e-3)
+    assert dp.running[:, 1].all()  # at 60 kPa the centrifugal gives at most 2,200: both machines run
+    for i in range(n):
+        if dp.running[0, i]:
+            lo, hi = cen.range_at(pressure[i])
+            assert lo - 1e-6 <= dp.airflow_Sm3_h[0, i] <= hi + 1e-6
 
 
 def test_unmeetable_demand_is_a_finding_with_periods_and_shortfall():

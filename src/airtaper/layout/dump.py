@@ -97,6 +97,10 @@ def layout_to_data(layout: Layout) -> dict:
                    "start_cost": b.start_cost})
         if b.max_starts_per_day is not None:
             bd["max_starts_per_day"] = b.max_starts_per_day
+        if b.range_points:
+            bd["airflow_range_points"] = [{"discharge_gauge_kPa": r.discharge_gauge_kPa,
+                                           "airflow_min_Sm3_h": r.airflow_min_Sm3_h,
+                                           "airflow_max_Sm3_h": r.airflow_max_Sm3_h} for r in b.range_points]
         blowers.append(bd)
     if blowers:
         data["blowers"] = blowers

@@ -26,6 +26,7 @@ from airtaper.layout.types import (
     Blower, Clarifier, DiffuserGrid, DiffuserType, EfficiencyPoint, Header, HeadlossPoint,
     Horizon, Influent, InletAir, Kinetics, Layout, Limits, Operation, Plant, PowerPoint, Recycle, ReturnSludge, Settling,
     SotePoint, StepFeed, Tariff, Wasting, Zone,
+    RangePoint,
 )
 
 ZONE_KINDS = ("aerated", "anoxic", "swing")
@@ -592,12 +593,36 @@ class _Parser:
             for why in power_curve_problems(curve):
                 col.error(t.key(given[0]), why, [round(v, 1) for v in curve.airflow_Sm3_h],
                           "wire power positive and rising at a non-falling rate (convex) over the airflow range")
+        ranges = ()
+        if t.has("airflow_range_points"):
+            ranges = self._range_points(t, qmin, qmax) or ()
         oos = t.boolean("out_of_service", False)
         up = t.number("min_up_h", D.BLOWER_MIN_UP_h, ge=0.0, le=24.0)
         down = t.number("min_down_h", D.BLOWER_MIN_DOWN_h, ge=0.0, le=24.0)
         starts = t.integer("max_starts_per_day", None, ge=0, le=1000)
         start_cost = t.number("start_cost", D.BLOWER_START_COST, ge=0.0)
-        return Blower(ident, kind, qmin, qmax, pmax, eff, pts, power_pts, oos, up, down, starts, start_cost)
+        return Blower(ident, kind, qmin, qmax, pmax, eff, pts, power_pts, oos, up, down, starts, start_cost, ranges)
+
+    def _range_points(self, t: Table, qmin, qmax):
+        """Airflow range vs discharge pressure: pressure increasing, each range inside the nominal one."""
+        key = t.key("airflow_range_points")
+        pts = self._points(t, "airflow_range_points", {"discharge_gauge_kPa": {"gt": 0.0, "le": 300.0},
+                                                      "airflow_min_Sm3_h": {"ge": 0.0},
+                                                      "airflow_max_Sm3_h": {"gt": 0.0}}, RangePoint)
+        if pts is None:
+            return None
+        before = self.col.count
+        for i, r in enumerate(pts, start=1):
+            if i > 1 and r.discharge_gauge_kPa <= pts[i - 2].discharge_gauge_kPa:
+                self.col.error(f"{key}[{i}].discharge_gauge_kPa", "pressure must increase from point to point",
+                               r.discharge_gauge_kPa, f"> {pts[i - 2].discharge_gauge_kPa:g}")
+            if r.airflow_max_Sm3_h <= r.airflow_min_Sm3_h:
+                self.col.error(f"{key}[{i}].airflow_max_Sm3_h", "must exceed the point's airflow_min_Sm3_h",
+                               r.airflow_max_Sm3_h, f"> {r.airflow_min_Sm3_h:g}")
+            elif qmin is not None and qmax is not None and (r.airflow_min_Sm3_h < qmin or r.airflow_max_Sm3_h > qmax):
+                self.col.error(f"{key}[{i}]", "range outside the blower's airflow_min_Sm3_h-airflow_max_Sm3_h",
+                               f"{r.airflow_min_Sm3_h:g}-{r.airflow_max_Sm3_h:g}", f"within {qmin:g}-{qmax:g}")
+        return None if self.col.count > before else pts
 
     def _increasing_airflow(self, t: Table, name: str, p, qmin, qmax) -> bool:
         col = self.col

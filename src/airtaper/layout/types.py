@@ -165,6 +165,15 @@ class PowerPoint:
 
 
 @dataclass(frozen=True)
+class RangePoint:
+    """A blower's airflow range when running at one discharge pressure (turndown and capacity)."""
+
+    discharge_gauge_kPa: float  # above site atmosphere
+    airflow_min_Sm3_h: float
+    airflow_max_Sm3_h: float
+
+
+@dataclass(frozen=True)
 class Blower:
     id: str
     kind: str  # e.g. "centrifugal", "turbo", "positive_displacement", "screw"
@@ -179,6 +188,8 @@ class Blower:
     min_down_h: float = 0.0  # once stopped, stays off at least this long
     max_starts_per_day: int | None = None  # None = no limit (starts counted around the periodic day)
     start_cost: float = 0.0  # currency per start (wear, inrush), added to the cost objective
+    range_points: tuple[RangePoint, ...] = ()  # airflow range vs discharge pressure (empty: the range above);
+    # linear between points, held beyond the ends (airtaper.optimize.dispatch.Machine.range_at)
 
 
 @dataclass(frozen=True)

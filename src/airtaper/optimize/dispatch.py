@@ -67,6 +67,7 @@ class Machine:
     min_down: int  # periods
     max_starts: int | None
     start_cost: float
+    range_points: tuple = ()  # (discharge gauge kPa, min, max) of the airflow range; empty: the curve's range
 
     @property
     def airflow_min_Sm3_h(self) -> float:
@@ -75,6 +76,22 @@ class Machine:
     @property
     def airflow_max_Sm3_h(self) -> float:
         return self.curve.airflow_max_Sm3_h
+
+    def range_at(self, discharge_gauge_kPa: float) -> tuple[float, float]:
+        """(min, max) airflow when running at a discharge pressure (linear between points, held beyond)."""
+        if not self.range_points:
+            return (self.airflow_min_Sm3_h, self.airflow_max_Sm3_h)
+        d, lo, hi = (np.array(c, dtype=float) for c in zip(*self.range_points))
+        return (float(np.interp(discharge_gauge_kPa, d, lo)), float(np.interp(discharge_gauge_kPa, d, hi)))
+
+    def curve_at(self, discharge_gauge_kPa: float) -> EquivalentCurve:
+        """The power curve on the airflow range at a discharge pressure."""
+        if not self.range_points:
+            return self.curve
+        lo, hi = self.range_at(discharge_gauge_kPa)
+        q = np.asarray(self.curve.airflow_Sm3_h)
+        xs = np.concatenate([[lo], q[(q > lo) & (q < hi)], [hi]])
+        return EquivalentCurve(tuple(float(x) for x in xs), tuple(float(v) for v in self.curve.equivalent(xs)))
 
 
 def machines_of(layout: Layout) -> tuple[Machine, ...]:
@@ -87,7 +104,9 @@ def machines_of(layout: Layout) -> tuple[Machine, ...]:
                                  [(e.airflow_Sm3_h, e.efficiency) for e in b.efficiency_points])
         out.append(Machine(b.id, curve, b.pressure_max_gauge_kPa, b.out_of_service,
                            min(n, math.ceil(b.min_up_h / h - 1e-9)), min(n, math.ceil(b.min_down_h / h - 1e-9)),
-                           b.max_starts_per_day, b.start_cost))
+                           b.max_starts_per_day, b.start_cost,
+                           tuple((r.discharge_gauge_kPa, r.airflow_min_Sm3_h, r.airflow_max_Sm3_h)
+                                 for r in b.range_points)))
     return tuple(out)
 
 
@@ -171,6 +190,7 @@ def evaluate(machines, running: np.ndarray, demand_Sm3_h, discharge_gauge_kPa, k
     """
     running = np.asarray(running, dtype=bool)
     demand = np.asarray(demand_Sm3_h, dtype=float)
+    pressure = np.asarray(discharge_gauge_kPa, dtype=float)
     nm, n = running.shape
     q = np.zeros((nm, n))
     pw = np.zeros((nm, n))
@@ -180,14 +200,14 @@ def evaluate(machines, running: np.ndarray, demand_Sm3_h, discharge_gauge_kPa, k
         if not on:
             short[p] = demand[p]
             continue
-        curves = [machines[j].curve for j in on]
+        curves = [machines[j].curve_at(pressure[p]) for j in on]
         agg = aggregate_curve(curves)
         total = min(max(demand[p], agg.airflow_min_Sm3_h), agg.airflow_max_Sm3_h)
         short[p] = max(0.0, demand[p] - total)
         split = split_airflow(curves, total)
-        for j, qj in zip(on, split):
+        for j, c, qj in zip(on, curves, split):
             q[j, p] = qj
-            pw[j, p] = kw_per_equivalent[p] * machines[j].curve.equivalent(qj)
+            pw[j, p] = kw_per_equivalent[p] * c.equivalent(qj)
     return Dispatch(tuple(machines), running, q, pw, np.asarray(discharge_gauge_kPa, dtype=float), demand, short,
                     period_h, **kw)
 
@@ -205,11 +225,12 @@ def solve_dispatch(machines, demand_Sm3_h, discharge_gauge_kPa, kw_per_equivalen
     J = range(len(machines))
     P = range(n)
     m = pyo.ConcreteModel(name="dispatch")
-    segs = {j: list(zip(machines[j].curve.slopes(), np.diff(machines[j].curve.airflow_Sm3_h))) for j in J}
+    curve = {(j, p): machines[j].curve_at(d[p]) for j in J for p in P}
+    segs = {jp: list(zip(c.slopes(), np.diff(c.airflow_Sm3_h))) for jp, c in curve.items()}
     m.y = pyo.Var(J, P, domain=pyo.Binary)
     m.start = pyo.Var(J, P, bounds=(0.0, 1.0))
     m.stop = pyo.Var(J, P, bounds=(0.0, 1.0))
-    m.f = pyo.Var([(j, k, p) for j in J for k in range(len(segs[j])) for p in P], bounds=(0.0, None))
+    m.f = pyo.Var([(j, k, p) for j in J for p in P for k in range(len(segs[j, p]))], bounds=(0.0, None))
     m.excess = pyo.Var(P, bounds=lambda m, p: (0.0, float(E[p])))
     m.short = pyo.Var(P, bounds=(0.0, None))
     m.peak = pyo.Var(bounds=(0.0, None))
@@ -217,15 +238,15 @@ def solve_dispatch(machines, demand_Sm3_h, discharge_gauge_kPa, kw_per_equivalen
         for p in P:
             if not _allowed(machines[j], d[p]):
                 m.y[j, p].fix(0)
-    m.seg_cap = pyo.Constraint([(j, k, p) for j in J for k in range(len(segs[j])) for p in P],
-                               rule=lambda m, j, k, p: m.f[j, k, p] <= float(segs[j][k][1]) * m.y[j, p])
+    m.seg_cap = pyo.Constraint([(j, k, p) for j in J for p in P for k in range(len(segs[j, p]))],
+                               rule=lambda m, j, k, p: m.f[j, k, p] <= float(segs[j, p][k][1]) * m.y[j, p])
 
     def airflow(j, p):
-        return machines[j].airflow_min_Sm3_h * m.y[j, p] + sum(m.f[j, k, p] for k in range(len(segs[j])))
+        return curve[j, p].airflow_min_Sm3_h * m.y[j, p] + sum(m.f[j, k, p] for k in range(len(segs[j, p])))
 
     def equivalent(j, p):
-        c = machines[j].curve
-        return c.equivalent_Sm3_h[0] * m.y[j, p] + sum(float(s) * m.f[j, k, p] for k, (s, _) in enumerate(segs[j]))
+        return curve[j, p].equivalent_Sm3_h[0] * m.y[j, p] + sum(
+            float(s) * m.f[j, k, p] for k, (s, _) in enumerate(segs[j, p]))
 
     m.power = pyo.Expression(P, rule=lambda m, p: float(w[p]) * sum(equivalent(j, p) for j in J))
     m.balance = pyo.Constraint(P, rule=lambda m, p: sum(airflow(j, p) for j in J) == float(D[p]) + m.excess[p]
@@ -276,7 +297,7 @@ def _canonical(machines, running: np.ndarray) -> np.ndarray:
     groups: dict = {}
     for j, mm in enumerate(machines):
         key = (mm.curve, mm.pressure_max_gauge_kPa, mm.out_of_service, mm.min_up, mm.min_down, mm.max_starts,
-               mm.start_cost)
+               mm.start_cost, mm.range_points)
         groups.setdefault(key, []).append(j)
     for idx in groups.values():
         if len(idx) > 1:
@@ -296,8 +317,9 @@ def shortfall_findings(dp: Dispatch) -> list[dict]:
             why = (f"no blower in service can deliver {d:.1f} kPa gauge (limits "
                    + ", ".join(f"{mm.id} {mm.pressure_max_gauge_kPa:g}" for mm in dp.machines if not mm.out_of_service)
                    + " kPa)")
-        elif dp.demand_Sm3_h[p] > sum(mm.airflow_max_Sm3_h for mm in allowed):
-            why = f"above the capacity of the blowers that can run ({sum(mm.airflow_max_Sm3_h for mm in allowed):.0f} Sm3/h)"
+        elif dp.demand_Sm3_h[p] > sum(mm.range_at(d)[1] for mm in allowed):
+            why = (f"above the capacity of the blowers that can run at {d:.1f} kPa "
+                   f"({sum(mm.range_at(d)[1] for mm in allowed):.0f} Sm3/h)")
         else:
             why = "blocked by the blowers' minimum run/rest times or starts limit"
         out.append({"limit": "blower_staging", "period": int(p) + 1, "shortfall_Sm3_h": float(dp.shortfall_Sm3_h[p]),
@@ -313,14 +335,15 @@ def curve_lines(curve: EquivalentCurve) -> list[tuple[float, float]]:
     return [(g[i] - s * q[i], float(s)) for i, s in enumerate(curve.slopes())]
 
 
-def set_lines(machines, running) -> list[tuple[float, float]]:
-    """Lines of the least equivalent airflow of the running machines sharing a total airflow."""
-    return curve_lines(aggregate_curve([mm.curve for mm, on in zip(machines, running) if on]))
+def set_lines(machines, running, discharge_gauge_kPa: float) -> list[tuple[float, float]]:
+    """Lines of the least equivalent airflow of the running machines sharing a total airflow at a pressure."""
+    return curve_lines(aggregate_curve([mm.curve_at(discharge_gauge_kPa) for mm, on in zip(machines, running) if on]))
 
 
 def envelope_lines(machines) -> list[tuple[float, float]]:
     """Lines of the convex envelope of the least equivalent airflow over every set of machines in service
-    and of no air at all (the origin): a convex under-estimate of the staged power, for the relaxed solve."""
+    and of no air at all (the origin): a convex under-estimate of the staged power, for the relaxed solve
+    (on the nominal airflow ranges, which contain the range at any pressure)."""
     avail = [mm for mm in machines if not mm.out_of_service]
     pts = [(0.0, 0.0)]
     for mask in range(1, 2 ** len(avail)):

@@ -120,9 +120,10 @@ def apply_dispatch(m, dp: Dispatch) -> None:
     for i, p in enumerate(m.PERIODS):
         on = dp.running[:, i]
         sel = [mm for mm, r in zip(dp.machines, on) if r]
-        lines[p] = set_lines(dp.machines, on) if sel else []
-        b.staging_min_Sm3_h[p].fix(sum(mm.airflow_min_Sm3_h for mm in sel))
-        b.staging_max_Sm3_h[p].fix(sum(mm.airflow_max_Sm3_h for mm in sel))
+        d = float(dp.discharge_gauge_kPa[i])
+        lines[p] = set_lines(dp.machines, on, d) if sel else []
+        b.staging_min_Sm3_h[p].fix(sum(mm.range_at(d)[0] for mm in sel))
+        b.staging_max_Sm3_h[p].fix(sum(mm.range_at(d)[1] for mm in sel))
         b.staging_pressure_max_kPa[p].fix(min((mm.pressure_max_gauge_kPa for mm in sel), default=0.0))
     set_power_lines(b, lines)
     for p in m.PERIODS:
@@ -275,9 +276,10 @@ def feasibility_check(m, dp: Dispatch) -> list[str]:
             if not dp.running[j, i]:
                 continue
             q = dp.airflow_Sm3_h[j, i]
-            if q < mm.airflow_min_Sm3_h * (1 - tol) or q > mm.airflow_max_Sm3_h * (1 + tol):
-                bad.append(f"period {p}: blower {mm.id} at {q:.0f} Sm3/h outside {mm.airflow_min_Sm3_h:g}-"
-                           f"{mm.airflow_max_Sm3_h:g}")
+            lo, hi = mm.range_at(float(dp.discharge_gauge_kPa[i]))
+            if q < lo * (1 - tol) or q > hi * (1 + tol):
+                bad.append(f"period {p}: blower {mm.id} at {q:.0f} Sm3/h outside {lo:.0f}-{hi:.0f} at "
+                           f"{dp.discharge_gauge_kPa[i]:.1f} kPa")
             if dp.discharge_gauge_kPa[i] > mm.pressure_max_gauge_kPa * (1 + tol):
                 bad.append(f"period {p}: blower {mm.id} at {dp.discharge_gauge_kPa[i]:.1f} kPa above its "
                            f"{mm.pressure_max_gauge_kPa:g} kPa limit")
