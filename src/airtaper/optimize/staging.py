@@ -8,7 +8,9 @@ Scheme (docs/optimization.md, "Blower staging and swing zones"):
    of the staged power, so the relaxed optimum is a lower bound of the cost it can reach;
 2. **swing states**: each swing zone's relaxed airflow rounded to on/off within its
    switches limit (:func:`airtaper.optimize.dispatch.swing_states`, leaning to "on",
-   :data:`SWING_ON_FRACTION`), then fixed;
+   :data:`SWING_ON_FRACTION`), then fixed and the schedule re-solved warm with the blowers
+   still relaxed (the states change the air demand the dispatch will see); if that fails,
+   the swing zones are aerated all day and it is solved again;
 3. **dispatch round** ``r = 1, 2, ...``: the machines chosen by the MILP
    (:func:`airtaper.optimize.dispatch.solve_dispatch`) on the current airflow and
    discharge pressure of every period are fixed in the nonlinear schedule (their
@@ -36,6 +38,7 @@ import pyomo.environ as pyo
 from airtaper.layout.types import Layout
 from airtaper.optimize.airside import AirSide
 from airtaper.optimize.dispatch import Bill, Dispatch, evaluate, machines_of, set_lines, solve_dispatch, swing_states
+from airtaper.optimize.initialise import Rung
 from airtaper.optimize.problem import max_power_line_kW, set_power_lines, set_swing_states
 from airtaper.physics.blower import blower_power_kW
 
@@ -48,6 +51,10 @@ MAX_ROUNDS = 4
 #: up is the safe side (an aerated spell at its minimum gives at least the relaxed oxygen); a
 #: zone is switched off only where the relaxed schedule barely aerates it. Common practice (no source).
 SWING_ON_FRACTION = 0.1
+#: The solve with the rounded swing states: one warm attempt with an iteration cap (a feasible pattern
+#: converges in a few tens of iterations; an infeasible one would wander for hundreds before the
+#: fallback, every swing zone aerated all day, is tried down the whole retry ladder).
+SWING_RUNG = Rung("swing states", {"mu_strategy": "adaptive", "max_iter": 150})
 #: Relative tolerance of the post-solve feasibility check of machines and grids.
 CHECK_RTOL = 1e-4
 
@@ -183,14 +190,32 @@ def run_staging(study, first_result) -> StagingOutcome:
     out = StagingOutcome(result=first_result, dispatch=None)
     rounds = out.rounds
     if b.SWING_ZONES:
+        # the swing states change the air demand (minimum when on, none when off): re-solve with them
+        # fixed and the blowers still relaxed before the first dispatch
+        t0 = time.perf_counter()
         frac = relaxed_swing_fractions(m)
         states = {z: swing_states(np.minimum(1.0, frac[z] / (2.0 * SWING_ON_FRACTION)),
                                   layout.zone(z).max_switches_per_day) for z in b.SWING_ZONES}
         set_swing_states(m, states)
-        out.swing_states = states
+        prog.phase("swing zones: " + ", ".join(f"{z} aerated in {int(v.sum())} periods" for z, v in states.items()))
+        res = study._ipopt(SWING_RUNG, warm_start=True)
+        rounds.append({"round": 0, "step": "swing states fixed, blowers relaxed", "status": res.status.value if res
+                       else "failed", "seconds": time.perf_counter() - t0})
+        if (res is None or not res.ok) and not all(v.all() for v in states.values()):
+            # the rounding switched a swing zone off where the process needs it: keep it on all day
+            t0 = time.perf_counter()
+            set_swing_states(m, {z: np.ones(len(m.PERIODS), dtype=bool) for z in b.SWING_ZONES})
+            res = study.resolve(warm=False)
+            rounds.append({"round": 0, "step": "swing zones aerated all day", "status": res.status.value if res
+                           else "failed", "seconds": time.perf_counter() - t0})
+        out.swing_states = b.swing_states
+        if res is None or not res.ok:
+            out.result = None
+            out.reason = "the schedule with the swing states fixed could not be solved"
+            return out
+        out.result = res
     best = None  # (cost, snapshot, dispatch, result, swing states)
     last_cost = None
-    tried_all_on = False
     r = 1
     while r <= MAX_ROUNDS:
         t0 = time.perf_counter()
@@ -213,14 +238,6 @@ def run_staging(study, first_result) -> StagingOutcome:
         # round 1 may go down the retry ladder; later rounds get one warm attempt (the best round stands)
         res = study.resolve(warm=True) if best is None else study._ipopt(study.options.ladder[0], warm_start=True)
         if res is None or not res.ok:
-            if r == 1 and b.SWING_ZONES and not tried_all_on and \
-                    any(not s.all() for s in (b.swing_states or {}).values()):
-                # the rounding switched a swing zone off where the process needs it: keep it on all day
-                tried_all_on = True
-                set_swing_states(m, {z: np.ones(len(m.PERIODS), dtype=bool) for z in b.SWING_ZONES})
-                out.swing_states = b.swing_states
-                rounds.append({"round": r, "status": "failed", "note": "swing zones switched on all day"})
-                continue
             rounds.append({"round": r, "status": "failed", "seconds": time.perf_counter() - t0})
             if best is None:
                 out.result = None

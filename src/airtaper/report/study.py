@@ -212,7 +212,7 @@ def _dispatch_lines(dp: dict | None, cur: str) -> list[str]:
     if dp.get("cost_per_day") is not None:
         lines.append(f"bill              energy {_fmt(dp.get('energy_cost'), 2)} + demand {_fmt(dp.get('demand_charge'), 2)}"
                      f" + starts {_fmt(dp.get('start_costs'), 2)} = {_fmt(dp.get('cost_per_day'), 2)} {cur}/d")
-    rounds = dp.get("rounds") or []
+    rounds = [r for r in dp.get("rounds") or [] if "cost" in r]
     lines.append(f"staging           {len(rounds)} dispatch round{'s' if len(rounds) != 1 else ''}"
                  f" ({dp.get('stopped', '')})")
     for z, v in (dp.get("swing_zones") or {}).items():
