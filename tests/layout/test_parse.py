@@ -259,7 +259,10 @@ def test_staging_keys_are_read_with_their_defaults():
     assert s1.power_points and not pd1.out_of_service
     swing = fen.zone("Z2")
     assert swing.kind == "swing" and swing.max_switches_per_day == 4
-    assert swing.do_min_mg_L == fen.zone("Z3").do_min_mg_L  # held while aerated
+    assert swing.do_min_mg_L == 0.5  # its own, held while aerated
+    text = FENWHISTLE.read_text().replace("do_min_mg_L = 0.5  #", "#")
+    assert parse_layout(tomllib.loads(text), str(FENWHISTLE), LAYOUTS).zone("Z2").do_min_mg_L == \
+        fen.zone("Z3").do_min_mg_L  # without one: the layout's DO minimum
     demo = load_layout(DEMO)
     for b in demo.blowers:
         assert (b.out_of_service, b.min_up_h, b.min_down_h, b.max_starts_per_day, b.start_cost, b.range_points) == (
