@@ -153,7 +153,7 @@ def test_retry_ladder_moves_to_the_next_rung_after_a_failure(three_tank_6):
     from airtaper.optimize.initialise import LADDER, Rung
 
     ladder = (Rung("starved", {"max_iter": 2}), LADDER[2])  # the second rung starts from a square solve
-    res = run_optimization(three_tank_6, StudyOptions(marginal=False, ladder=ladder))
+    res = run_optimization(three_tank_6, StudyOptions(marginal=False, ladder=ladder, staging=False))
     attempts = res.summary["solver"]["attempts"]
     assert attempts[0]["rung"] == "starved" and attempts[0]["status"] == "iteration_limit"
     assert attempts[-1]["rung"] == LADDER[2].name and attempts[-1]["status"] == "optimal"

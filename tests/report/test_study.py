@@ -34,8 +34,16 @@ def _tables(n_periods=4, zones=("Z2", "Z3")):
 
 def test_all_outputs_written(tmp_path):
     schedule, header, ts, summary = _tables()
-    paths = write_study_outputs(tmp_path, schedule=schedule, header=header, timeseries=ts, summary=summary)
+    blowers = pd.DataFrame(dict(period_start_h=[0.0, 6.0], period_end_h=[6.0, 12.0], blower="B1", running=True,
+                                airflow_Sm3_h=1800.0, power_kW=[40.0, 45.0], efficiency=0.7,
+                                discharge_gauge_kPa=55.0, starts=[1, 0]))
+    paths = write_study_outputs(tmp_path, schedule=schedule, header=header, timeseries=ts, summary=summary,
+                                blowers=blowers)
     assert sorted(p.name for p in paths) == sorted(OUTPUT_NAMES)
+    # blowers.csv is written only for layouts with blowers
+    other = write_study_outputs(tmp_path / "no_blowers", schedule=schedule, header=header, timeseries=ts,
+                                summary=summary, figure=False)
+    assert "blowers.csv" not in {p.name for p in other}
     assert json.loads((tmp_path / "summary.json").read_text())["saving_percent"] == 20.0
     assert (tmp_path / "schedule.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     page = (tmp_path / "report.html").read_text()
