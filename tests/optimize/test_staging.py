@@ -7,6 +7,7 @@ monotonicity any correct staging must show (taking a machine away never makes th
 
 from __future__ import annotations
 
+import copy
 import warnings
 from dataclasses import replace
 from pathlib import Path
@@ -17,7 +18,8 @@ import pytest
 from airtaper.errors import EXIT_INFEASIBLE, EXIT_OK
 from airtaper.layout import load_layout
 from airtaper.optimize.horizon import with_periods
-from airtaper.optimize.staging import COST_RTOL, MAX_ROUNDS
+from airtaper.optimize.dispatch import evaluate, machines_of
+from airtaper.optimize.staging import COST_RTOL, MAX_ROUNDS, feasibility_check, model_air_state
 from airtaper.optimize.study import run_optimization
 
 pytestmark = pytest.mark.solver
@@ -171,3 +173,31 @@ def test_staging_that_cannot_meet_the_demand_is_a_finding(three_tank_diurnal):
     for f in found:  # the shortfall is the schedule's air above what PD2 can give
         assert f["shortfall_Sm3_h"] == pytest.approx(header.loc[f["period"], "airflow_Sm3_h"] - 1500.0, rel=1e-6)
         assert "capacity" in f["message"]
+
+
+def test_post_solve_check_catches_a_machine_or_grid_out_of_range(staged):
+    """The check after the solve is not a formality: a machine pushed past its range or pressure limit, or a
+    zone below its grid minimum, is reported."""
+    m = staged.study.m
+    t = staged.blowers
+    machines = machines_of(staged.study.layout)
+    running = t.pivot(index="blower", columns="period_start_h", values="running").loc[[mm.id for mm in machines]]
+    state = model_air_state(m)
+    dp = evaluate(machines, running.to_numpy(dtype=bool), state["demand_Sm3_h"], state["discharge_gauge_kPa"],
+                  state["kw_per_equivalent"], staged.study.layout.horizon.period_h)
+    assert feasibility_check(m, dp) == []
+    j, i = np.argwhere(dp.running)[0]
+    bad = copy.deepcopy(dp)
+    bad.airflow_Sm3_h[j, i] = machines[j].airflow_max_Sm3_h * 1.1
+    assert any(machines[j].id in x for x in feasibility_check(m, bad))
+    bad = copy.deepcopy(dp)
+    bad.discharge_gauge_kPa[i] = machines[j].pressure_max_gauge_kPa + 5.0
+    assert any("limit" in x for x in feasibility_check(m, bad))
+    z = next(iter(m.opt.ZONES))
+    p = m.PERIODS.first()
+    keep = m.airflow_Sm3_h[z, p].value
+    try:
+        m.airflow_Sm3_h[z, p].set_value(1.0)
+        assert any(f"zone {z}" in x for x in feasibility_check(m, dp))
+    finally:
+        m.airflow_Sm3_h[z, p].set_value(keep)
