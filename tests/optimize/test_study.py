@@ -159,5 +159,5 @@ def test_retry_ladder_moves_to_the_next_rung_after_a_failure(three_tank_6):
     assert attempts[-1]["rung"] == LADDER[2].name and attempts[-1]["status"] == "optimal"
     assert any(a["rung"].startswith("square solve") for a in attempts)
     assert res.exit_code == EXIT_OK
-    reference = run_optimization(three_tank_6, StudyOptions(marginal=False, verify=False))
+    reference = run_optimization(three_tank_6, StudyOptions(marginal=False, verify=False, staging=False))
     assert res.summary["energy_kWh_per_day"] == pytest.approx(reference.summary["energy_kWh_per_day"], rel=1e-5)
