@@ -48,8 +48,13 @@ def test_optimum_beats_the_baseline_and_verifies(solved, three_tank_diurnal):
 def test_outputs_have_the_promised_columns(solved):
     assert list(solved.schedule.columns) == ["period_start_h", "period_end_h", "zone", "aerated", "airflow_Sm3_h",
                                              "airflow_per_diffuser_Sm3_h", "do_min_mg_L", "do_mean_mg_L",
-                                             "nh4_mean_mg_L", "otr_kg_h"]
-    assert list(solved.header.columns) == ["period", "pressure_kPa", "airflow_Sm3_h", "power_kW"]
+                                             "nh4_mean_mg_L", "otr_kg_h", "baseline_airflow_Sm3_h",
+                                             "baseline_do_mean_mg_L"]
+    assert list(solved.header.columns) == ["period", "pressure_kPa", "airflow_Sm3_h", "power_kW", "baseline_power_kW"]
+    # the baseline beside the optimum: its period means give back the baseline's day
+    base = solved.summary["baseline"]["energy_kWh_per_day"]
+    period_h = solved.schedule["period_end_h"].iloc[0] - solved.schedule["period_start_h"].iloc[0]
+    assert (solved.header["baseline_power_kW"] * period_h).sum() == pytest.approx(base, rel=1e-9)
     for key in ("status", "energy_kWh_per_day", "cost_per_day", "baseline", "saving_percent", "effluent",
                 "min_do_margin_mg_L", "verification", "marginal_costs", "solver", "dispatch"):
         assert key in solved.summary

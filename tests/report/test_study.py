@@ -34,22 +34,21 @@ def _tables(n_periods=4, zones=("Z2", "Z3")):
 
 def test_all_outputs_written(tmp_path):
     schedule, header, ts, summary = _tables()
-    blowers = pd.DataFrame(dict(period_start_h=[0.0, 6.0], period_end_h=[6.0, 12.0], blower="B1", running=True,
-                                airflow_Sm3_h=1800.0, power_kW=[40.0, 45.0], efficiency=0.7,
-                                discharge_gauge_kPa=55.0, starts=[1, 0]))
-    paths = write_study_outputs(tmp_path, schedule=schedule, header=header, timeseries=ts, summary=summary,
-                                blowers=blowers)
-    assert sorted(p.name for p in paths) == sorted(OUTPUT_NAMES)
-    # blowers.csv is written only for layouts with blowers
-    other = write_study_outputs(tmp_path / "no_blowers", schedule=schedule, header=header, timeseries=ts,
-                                summary=summary, figure=False)
-    assert "blowers.csv" not in {p.name for p in other}
+    paths = write_study_outputs(tmp_path, schedule=schedule, header=header, timeseries=ts, summary=summary)
+    names = {p.name for p in paths}
+    assert names <= set(OUTPUT_NAMES) and len(names) == len(paths)
+    # no layout, no baseline columns, no blowers: those figures are left out, the rest written
+    assert names == {"schedule.csv", "header.csv", "timeseries.csv", "summary.json", "schedule.png", "do_by_zone.png",
+                     "effluent.png", "power_and_pressure.png", "report.html", "results.xlsx"}
     assert json.loads((tmp_path / "summary.json").read_text())["saving_percent"] == 20.0
     assert (tmp_path / "schedule.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     page = (tmp_path / "report.html").read_text()
     assert "Caution" in page and "licensed engineers" in page
-    assert "<td>NH4-N daily mean (mg/L)</td><td>1.000</td><td>1.010</td><td>1.50</td>" in page
-    assert "<td>DO margin Z2 (mg/L)</td><td>0.000</td><td>-0.010</td>" in page
+    assert ("<td class='left'>effluent NH4-N, daily mean (mg/L)</td><td>1.000</td><td>1.010</td><td>1.5</td>"
+            in page)
+    assert "<td>+0.000</td><td>-0.010</td>" in page  # the re-simulated dip below Z2's minimum, not rounded away
+    assert "summary names no layout file" in page  # said, not an error
+    assert pd.read_excel(tmp_path / "results.xlsx", sheet_name="header").shape == header.shape
     assert pd.read_csv(tmp_path / "schedule.csv").shape == schedule.shape
 
 
@@ -58,6 +57,8 @@ def test_console_summary_names_figures_and_caution():
     text = console_summary(summary)
     assert "1,200.0 kWh/d" in text and "saving 20.0 %" in text
     assert CAUTION in text
+    assert "min DO margin     -0.010 mg/L re-simulated (optimiser +0.000 mg/L)" in console_summary(
+        dict(summary, verification=dict(summary["verification"], min_do_margin_mg_L=-0.01)))
 
 
 def test_console_summary_lists_every_marginal_cost_and_no_negative_zero():
@@ -67,5 +68,6 @@ def test_console_summary_lists_every_marginal_cost_and_no_negative_zero():
     summary["min_do_margin_mg_L"] = -0.001
     text = console_summary(summary)
     assert text.count("marginal          do_min_mg_L") == 15
-    assert "-0.0" not in text
+    assert "-0.0 " not in text and "-0.00 " not in text  # no negative zero
+    assert "min DO margin     -0.001 mg/L" in text  # a real dip below the minimum is not rounded away
     assert text.count("(not binding)") == 7

@@ -22,7 +22,7 @@ from airtaper import __version__
 from airtaper.errors import EXIT_FAILURE, EXIT_INPUT, EXIT_OK, AirtaperError, InputError
 
 #: Subcommand modules under airtaper.cli, in the order `airtaper --help` lists them.
-COMMANDS: tuple[str, ...] = ("check", "simulate", "optimize")
+COMMANDS: tuple[str, ...] = ("check", "simulate", "optimize", "report")
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -12,6 +12,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numpy as np
+import pandas as pd
+
 from airtaper.layout.types import Layout
 from airtaper.optimize.figures import violations
 from airtaper.optimize.simday import SimDay, simulate_day
@@ -45,6 +48,27 @@ class Baseline:
             "simulated_days": self.day.days,
             "periodic": self.day.converged,
         }
+
+    def add_columns(self, schedule: pd.DataFrame, header: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
+        """The optimum's tables with the baseline beside them, period by period (copies).
+
+        ``schedule`` gains ``baseline_airflow_Sm3_h`` and ``baseline_do_mean_mg_L`` (means over the
+        period's simulator steps) for the zones under DO control; ``header`` (one row per period, in
+        order) gains ``baseline_power_kW``.
+        """
+        day = self.day
+        n = self.day.layout.horizon.n_periods
+        air = day.period_mean_airflow()
+        do = {z: np.array([v[day.period == k].mean() for k in range(n)]) for z, v in day.do.items()}
+        period_h = self.day.layout.horizon.period_h
+        k = np.rint(schedule["period_start_h"].to_numpy() / period_h).astype(int)
+        zones = schedule["zone"].to_numpy()
+        sched = schedule.copy()
+        sched["baseline_airflow_Sm3_h"] = [air[z][i] if z in self.setpoints_mg_L else np.nan for z, i in zip(zones, k)]
+        sched["baseline_do_mean_mg_L"] = [do[z][i] for z, i in zip(zones, k)]
+        head = header.copy()
+        head["baseline_power_kW"] = [float(day.power_kW[day.period == i].mean()) for i in range(len(head))]
+        return sched, head
 
 
 def baseline_setpoints(layout: Layout, setpoint_mg_L: float | None = None) -> dict:

@@ -381,6 +381,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     fix_slacks(study.m.opt)
 
     schedule, header, timeseries = study.tables()
+    schedule, header = base.add_columns(schedule, header)
     figs = study.figures()
     energy = study.energy_kWh_per_day()
     power = study.power_by_period()
