@@ -407,6 +407,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
                 messages.append("WARNING: the schedule breaks a machine or grid range: " + "; ".join(breaches))
         bd = day_dispatch(layout, base.day, objective)
         if bd is not None:
+            header["baseline_power_kW"] = bd.total_power_kW  # the baseline billed by the same dispatch
             base_dispatch = dispatch_summary(layout, bd)
             base_dispatch["shortfall"] = [f["message"] for f in bd.findings]
             messages.extend(f"baseline: {f['message']}" for f in bd.findings)
