@@ -13,9 +13,14 @@ Prints, measured side by side in one run:
    ``scipy.optimize.minimize`` (SLSQP, finite-difference gradients) over the
    independent simulator, on a reduced instance (three tanks, six periods), against
    the optimiser: energy reached and time, and the speed ratio (target >= 20 at equal
-   or lower energy).
+   or lower energy);
+4. the DO minimum in continuous time: the demo with and without the back-off rounds
+   (continuous re-simulated DO margin, energy and time of each);
+5. an infeasible layout (the demo with a quarter of Z2's diffusers): the pre-screen's
+   time against the 10 s target, and (unless --quick) the optimisation without the
+   pre-screen (ladder and elastic solve) on the same layout, side by side.
 
-    python benchmarks/bench_optimize.py [--quick] [--sections 1,2,3]
+    python benchmarks/bench_optimize.py [--quick] [--sections 1,2,3,4,5]
 """
 
 from __future__ import annotations
@@ -240,10 +245,47 @@ def black_box(quick: bool) -> None:
               f"at least {t_bb / t_opt:.1f} (target >= 20 at equal or lower energy)")
 
 
+def do_hold() -> None:
+    print("4. DO minimum between the optimiser's time points: the demo with and without the back-off")
+    layout = load("layouts/demo.toml")
+    for hold in (False, True):
+        t0 = time.perf_counter()
+        res = run_optimization(layout, StudyOptions(hold_do=hold, marginal=False, prescreen=False))
+        total = time.perf_counter() - t0
+        s = res.summary
+        extra = "" if not hold else f", {s['do_hold']['rounds']} rounds in {s['do_hold']['seconds']:.1f} s"
+        print(f"   back-off {'on ' if hold else 'off'}: continuous DO margin {s['min_do_margin_mg_L']:+.4f} mg/L, "
+              f"energy {s['energy_kWh_per_day']:.1f} kWh/d, total {total:.1f} s{extra}")
+
+
+def infeasible(quick: bool) -> None:
+    from airtaper.optimize.prescreen import prescreen
+
+    print("5. an infeasible layout (demo, Z2 with 200 of its 800 diffusers): pre-screen against the solve")
+    layout = load("layouts/demo.toml")
+    layout = dataclasses.replace(layout, zones=tuple(
+        dataclasses.replace(z, grid=dataclasses.replace(z.grid, count=200)) if z.id == "Z2" else z
+        for z in layout.zones))
+    t0 = time.perf_counter()
+    screen = prescreen(layout)
+    t_screen = time.perf_counter() - t0
+    print(f"   pre-screen {t_screen:.2f} s (target 10 s: {'met' if t_screen <= 10 else 'NOT met'}), "
+          f"{len(screen['findings'])} finding(s): " + "; ".join(f["message"] for f in screen["findings"]))
+    if quick:
+        return
+    t0 = time.perf_counter()
+    res = run_optimization(layout, StudyOptions(prescreen=False, marginal=False))
+    t_solve = time.perf_counter() - t0
+    print(f"   without the pre-screen: status {res.summary['status']} after {t_solve:.1f} s "
+          f"({res.summary['solver']['iterations']} Ipopt iterations); ratio {t_solve / t_screen:.0f}")
+    for f in res.summary["infeasibility"]:
+        print(f"     {f['message']}")
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="fewer sizes and black-box iterations")
-    ap.add_argument("--sections", default="1,2,3", help="which parts to run, e.g. 1,3 (default all)")
+    ap.add_argument("--sections", default="1,2,3,4,5", help="which parts to run, e.g. 1,3 (default all)")
     args = ap.parse_args()
     warnings.simplefilter("ignore")
     parts = {int(x) for x in args.sections.split(",") if x.strip()}
@@ -253,6 +295,10 @@ def main() -> int:
         scaling(args.quick)
     if 3 in parts:
         black_box(args.quick)
+    if 4 in parts:
+        do_hold()
+    if 5 in parts:
+        infeasible(args.quick)
     return 0
 
 

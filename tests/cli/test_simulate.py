@@ -62,3 +62,18 @@ def test_simulate_never_overwrites_the_influent_csv(tmp_path, capsys, monkeypatc
     assert main(["simulate", str(tmp_path / "demo.toml"), "--out", str(tmp_path)]) == 2
     assert "would overwrite an input" in capsys.readouterr().err
     assert (tmp_path / "timeseries.csv").read_text() == csv_text
+
+
+def test_a_setpoint_the_grid_cannot_hold_is_said_with_zone_and_hours(tmp_path, capsys):
+    """The demo with a quarter of Z2's diffusers under --do-setpoint 2: Z2 runs at full air below 2 mg/L."""
+    demo = Path("layouts/demo.toml")
+    (tmp_path / "short.toml").write_text(demo.read_text().replace("count = 800", "count = 200"))
+    (tmp_path / "demo_influent.csv").write_bytes((demo.parent / "demo_influent.csv").read_bytes())
+    out = tmp_path / "sim"
+    assert main(["simulate", str(tmp_path / "short.toml"), "--out", str(out), "--do-setpoint", "2"]) == 0
+    err = capsys.readouterr().err
+    assert "WARNING: zone Z2 cannot hold its DO setpoint of 2 mg/L" in err and "at full air" in err
+    summary = json.loads((out / "summary.json").read_text())
+    held = summary["setpoint_not_held"]
+    assert held and all(h["zone"] == "Z2" and h["do_min_mg_L"] < 1.95 for h in held)
+    assert all(0.0 <= h["start_h"] < 24.0 and 0.0 < h["end_h"] <= 24.0 for h in held)

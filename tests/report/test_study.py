@@ -71,3 +71,13 @@ def test_console_summary_lists_every_marginal_cost_and_no_negative_zero():
     assert "-0.0 " not in text and "-0.00 " not in text  # no negative zero
     assert "min DO margin     -0.001 mg/L" in text  # a real dip below the minimum is not rounded away
     assert text.count("(not binding)") == 7
+
+
+def test_console_summary_says_when_the_baseline_breaks_a_limit():
+    *_, summary = _tables()
+    summary["baseline_compliant"] = False
+    summary["complying_baseline"] = dict(energy_kWh_per_day=1400.0, setpoint_mg_L=2.6, saving_percent=14.3)
+    text = console_summary(summary)
+    energy_line = next(line for line in text.splitlines() if line.startswith("energy"))
+    assert "a baseline that breaks a limit" in energy_line
+    assert "complying base    1,400.0 kWh/d at a uniform DO of 2.60 mg/L, saving 14.3 %" in text

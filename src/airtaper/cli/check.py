@@ -2,15 +2,19 @@
 
 Prints the table of zones (kind, volume, HRT at the mean influent flow,
 diffusers, density, airflow range) and a summary of flows, blowers, tariff and
-limits; warnings go to stderr as ``warning: <file>: <key>: ...``. Exit 0 when
-the layout is valid, 2 (with every problem listed) when it is not.
+limits; warnings go to stderr as ``warning: <file>: <key>: ...``. Then the
+pre-screen (:mod:`airtaper.optimize.prescreen`: equipment bounds and one simulated
+day with every grid at full air, a few seconds) says whether a limit surely cannot
+be met. Exit 0 when the layout is valid and passes the pre-screen, 2 (with every
+problem listed) when it is not valid, 3 when the pre-screen finds a limit no
+schedule can meet (``--no-prescreen`` skips it).
 """
 
 from __future__ import annotations
 
 import sys
 
-from airtaper.errors import EXIT_OK
+from airtaper.errors import EXIT_INFEASIBLE, EXIT_OK
 from airtaper.layout import Layout, load_layout
 
 
@@ -18,6 +22,8 @@ def register(subparsers) -> None:
     p = subparsers.add_parser("check", help="validate a layout file and print its train",
                               description="Validate a layout file (and its influent CSV) and print the train.")
     p.add_argument("layout", metavar="LAYOUT", help="layout TOML file, e.g. layouts/demo.toml")
+    p.add_argument("--no-prescreen", action="store_true",
+                   help="skip the pre-screen (equipment bounds and a simulated day at full air)")
     p.set_defaults(handler=run)
 
 
@@ -27,7 +33,21 @@ def run(args) -> int:
     for w in warnings:
         print(str(w), file=sys.stderr)
     print(train_report(layout))
-    return EXIT_OK
+    if getattr(args, "no_prescreen", False):
+        return EXIT_OK
+    from airtaper.optimize.prescreen import prescreen
+
+    screen = prescreen(layout)
+    if screen["note"]:
+        print(f"pre-screen: {screen['note']}")
+    if screen["feasible"]:
+        reach = "with the equipment" if screen["note"] else "at full air"
+        print(f"pre-screen: no limit is out of reach {reach} ({screen['seconds']:.1f} s)")
+        return EXIT_OK
+    print(f"pre-screen: the limits cannot all be met ({screen['seconds']:.1f} s):")
+    for f in screen["findings"]:
+        print(f"  {f['message']}")
+    return EXIT_INFEASIBLE
 
 
 def _n(x: float, digits: int = 0) -> str:

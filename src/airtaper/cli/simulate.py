@@ -110,5 +110,7 @@ def run(args) -> int:
     print(f"  effluent NH4-N mean {eff['SNH']['mean']:.2f} max {eff['SNH']['max']:.2f} mg/L, "
           f"TN mean {eff['tn_mg_L']['mean']:.2f} mg/L")
     print(f"  air {summary['air_Sm3_per_day']:,.0f} Sm3/d, blower {summary['blower_kWh_per_day']:,.0f} kWh/d")
+    for short in summary["setpoint_not_held"]:
+        print(f"WARNING: {short['message']}", file=sys.stderr)
     print(f"  wrote {', '.join(OUTPUT_NAMES)} to {out}")
     return EXIT_OK

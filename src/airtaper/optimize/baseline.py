@@ -6,6 +6,16 @@ range clips it) by the simulator's ideal DO control; the simulator returns the
 airflow that control needs at every step, and the blower energy and cost follow
 from :class:`~airtaper.optimize.airside.AirSide` step by step. Its figures are
 compared with the same limits as the optimum (:mod:`airtaper.optimize.figures`).
+A setpoint the control cannot hold (the zone at full air below it) is simulated at
+full air and listed with its zone and hours (``setpoint_not_held``).
+
+When the baseline breaks a limit, a saving against it flatters the optimum:
+:func:`complying_baseline` finds the lowest uniform setpoint whose simulated day
+meets the limits, by bracketing upward from the baseline's setpoint (steps of
+:data:`SEARCH_STEPS_mg_L`, up to :data:`SEARCH_MAX_mg_L`) and bisecting the bracket to
+:data:`SEARCH_TOL_mg_L`. It assumes compliance does not get lost again at higher
+setpoints (true of NH4-N; a TN limit broken by too much DO is not cured upward, and
+the search then reports no complying setpoint).
 """
 
 from __future__ import annotations
@@ -20,11 +30,26 @@ from airtaper.optimize.figures import violations
 from airtaper.optimize.simday import SimDay, simulate_day
 
 
+#: DO range tolerance of the baseline's compliance, mg/L: the DO over continuous time
+#: overshoots a setpoint held at a zone's DO maximum by round-off after load changes
+#: (ideal control, 1-minute time constant); the same as the optimum's continuous-time
+#: acceptance (:mod:`airtaper.optimize.backoff`). Effluent limits are exact.
+DO_TOLERANCE_mg_L = 0.01
+#: Steps of the upward bracketing search above the baseline setpoint, mg/L (cumulative).
+SEARCH_STEPS_mg_L = (0.25, 0.5, 1.0, 2.0, 4.0)
+#: Highest uniform setpoint tried, mg/L; common practice (no source): DO above about
+#: 6 mg/L is not an operating point of diffused aeration.
+SEARCH_MAX_mg_L = 6.0
+#: Width of the final bracket, mg/L.
+SEARCH_TOL_mg_L = 0.05
+
+
 @dataclass
 class Baseline:
     setpoints_mg_L: dict  # zone id -> DO setpoint
     day: SimDay
     violations: list
+    setpoint_mg_L: float | None = None  # the uniform setpoint asked for (before clipping to the zones' ranges)
 
     @property
     def energy_kWh_per_day(self) -> float:
@@ -38,6 +63,7 @@ class Baseline:
         f = self.day.figures
         return {
             "control": "uniform DO setpoint (ideal control, independent simulator)",
+            "setpoint_mg_L": self.setpoint_mg_L,
             "do_setpoint_mg_L": self.setpoints_mg_L,
             "energy_kWh_per_day": self.energy_kWh_per_day,
             "cost_per_day": self.cost_per_day,
@@ -45,6 +71,7 @@ class Baseline:
             "min_do_margin_mg_L": f["min_do_margin_mg_L"],
             "compliant": not self.violations,
             "violations": self.violations,
+            "setpoint_not_held": self.day.setpoint_shortfalls,
             "simulated_days": self.day.days,
             "periodic": self.day.converged,
         }
@@ -67,7 +94,7 @@ class Baseline:
         sched["baseline_airflow_Sm3_h"] = [air[z][i] if z in self.setpoints_mg_L else np.nan for z, i in zip(zones, k)]
         sched["baseline_do_mean_mg_L"] = [do[z][i] for z, i in zip(zones, k)]
         head = header.copy()
-        head["baseline_power_kW"] = [float(day.power_kW[day.period == i].mean()) for i in range(len(head))]
+        head["baseline_power_kW"] = day.period_mean_power_kW()
         return sched, head
 
 
@@ -87,11 +114,50 @@ def baseline_setpoints(layout: Layout, setpoint_mg_L: float | None = None) -> di
     return out
 
 
-def run_baseline(layout: Layout, setpoint_mg_L: float | None = None) -> Baseline:
-    """Simulate the baseline day (see module notes)."""
-    sps = baseline_setpoints(layout, setpoint_mg_L)
-    day = simulate_day(layout, do_setpoint_mg_L=sps)
-    return Baseline(setpoints_mg_L=sps, day=day, violations=violations(layout, day.figures))
+def run_baseline(layout: Layout, setpoint_mg_L: float | None = None, start_state=None) -> Baseline:
+    """Simulate the baseline day (see module notes); ``start_state``: the simulator's first day's start."""
+    sp = layout.operation.baseline_do_setpoint_mg_L if setpoint_mg_L is None else float(setpoint_mg_L)
+    sps = baseline_setpoints(layout, sp)
+    kwargs = {} if start_state is None else {"start_state": start_state[0], "start_waste_m3_d": start_state[1]}
+    day = simulate_day(layout, do_setpoint_mg_L=sps, **kwargs)
+    return Baseline(setpoints_mg_L=sps, day=day, setpoint_mg_L=sp,
+                    violations=violations(layout, day.figures, do_tolerance_mg_L=DO_TOLERANCE_mg_L))
 
 
-__all__ = ["Baseline", "baseline_setpoints", "run_baseline"]
+def complying_baseline(layout: Layout, base: Baseline) -> Baseline | None:
+    """The lowest uniform DO setpoint above ``base``'s whose day meets the limits (module notes); None if none."""
+    lo = base.setpoint_mg_L
+    start = base.day.start_state()
+    found = None
+    for step in SEARCH_STEPS_mg_L:
+        sp = min(base.setpoint_mg_L + step, SEARCH_MAX_mg_L)
+        if sp <= lo:
+            break
+        trial = _try(layout, sp, start)
+        if trial is None:
+            break
+        if not trial.violations:
+            found = trial
+            break
+        lo, start = sp, trial.day.start_state()
+    if found is None:
+        return None
+    hi = found.setpoint_mg_L
+    while hi - lo > SEARCH_TOL_mg_L:
+        mid = 0.5 * (lo + hi)
+        trial = _try(layout, mid, found.day.start_state())
+        if trial is not None and not trial.violations:
+            found, hi = trial, mid
+        else:
+            lo = mid
+    return found
+
+
+def _try(layout: Layout, setpoint_mg_L: float, start) -> Baseline | None:
+    try:
+        return run_baseline(layout, setpoint_mg_L, start_state=start)
+    except (RuntimeError, ArithmeticError, ValueError):  # the simulator failed at this setpoint: stop there
+        return None
+
+
+__all__ = ["Baseline", "baseline_setpoints", "complying_baseline", "run_baseline"]

@@ -15,8 +15,18 @@ limit go: the findings read "zone Z2 needs 14 % more air than its diffusers pass
 10:00-12:00". DO slacks are per time point, their weight times the point's share
 of the day x 24 (so an hour of shortfall costs the same at any resolution).
 
-:func:`findings` groups slacks above :data:`REPORT_THRESHOLD` into runs of
-consecutive periods (or steps) per zone and words them.
+Oxygen carried by recycles: left alone, the elastic optimum may over-aerate other
+zones (DO up to 7.8 mg/L was seen) so that the internal recycle and return sludge
+carry oxygen to a zone that is short, which sizes the shortfall wrongly and adds
+findings (blower capacity, pressure) that vanish at normal DO. The elastic objective
+therefore also penalises every aerated zone's DO above its normal level (the
+baseline's uniform setpoint, or the zone's DO minimum if higher) with the process
+weight per mg/L and hour (:data:`EXCESS_DO_WEIGHT`): a mg/L carried downstream
+then costs at least what it could save in the short zone, where the recycles dilute
+it. The findings read as at normal DO elsewhere.
+
+:func:`findings` groups slacks above :data:`REPORT_THRESHOLD` per limit and zone,
+with every run of consecutive periods (or steps) as a span of its own size.
 """
 
 from __future__ import annotations
@@ -31,6 +41,8 @@ from airtaper.optimize.problem import active_limit_groups, fix_slacks, free_slac
 EQUIPMENT_WEIGHT = 100.0
 #: Penalty per mg/L of slack of process limits (DO per hour of shortfall, effluent limits).
 PROCESS_WEIGHT = 1000.0
+#: Penalty per mg/L and hour of DO above a zone's normal level in the elastic solve.
+EXCESS_DO_WEIGHT = PROCESS_WEIGHT
 #: Slacks below these are read as zero (numerical noise of the solve).
 REPORT_THRESHOLD = {"fraction": 1e-3, "mg/L": 2e-3, "kPa": 1e-2}
 
@@ -44,14 +56,32 @@ def _weights(m, group, slack) -> dict:
     return {k: w for k in slack}
 
 
+def normal_do_mg_L(layout) -> dict:
+    """Zone id -> the DO above which the elastic solve penalises (module notes)."""
+    from airtaper.optimize.baseline import baseline_setpoints
+
+    return {z: max(sp, layout.zone(z).do_min_mg_L or 0.0) for z, sp in baseline_setpoints(layout).items()}
+
+
 def enter_elastic(m) -> None:
-    """Free the slacks and switch to the penalised objective."""
+    """Free the slacks and switch to the penalised objective (with the excess-DO penalty)."""
     b = m.opt
     free_slacks(b)
     terms = []
     for g, slack in active_limit_groups(b):
         w = _weights(m, g, slack)
         terms.extend(w[k] * v for k, v in slack.items())
+    normal = {z: v for z, v in normal_do_mg_L(b.layout).items() if z in b.ZONES}
+    for name in ("elastic_do_excess_def", "elastic_do_excess", "ELASTIC_DO_ZONES"):
+        if b.component(name) is not None:
+            b.del_component(name)
+    b.ELASTIC_DO_ZONES = pyo.Set(initialize=list(normal), ordered=True)
+    b.elastic_do_excess = pyo.Var(m.STEPS, b.ELASTIC_DO_ZONES, bounds=(0.0, None), initialize=lambda b, t, z: max(
+        0.0, float(m.conc[t, z, "SO"].value or 0.0) - normal[z]))
+    b.elastic_do_excess_def = pyo.Constraint(m.STEPS, b.ELASTIC_DO_ZONES, rule=lambda b, t, z: (
+        b.elastic_do_excess[t, z] >= m.conc[t, z, "SO"] - normal[z]))
+    pw = point_weights(m)
+    terms.extend(EXCESS_DO_WEIGHT * 24.0 * pw[t] * b.elastic_do_excess[t, z] for t in m.STEPS for z in normal)
     if b.component("elastic_objective") is not None:
         b.del_component("elastic_objective")
     b.elastic_objective = pyo.Objective(expr=b.objective.expr + sum(terms), sense=pyo.minimize)
@@ -65,8 +95,9 @@ def leave_elastic(m) -> None:
     """Back to the normal problem: slacks fixed at zero, the normal objective."""
     b = m.opt
     fix_slacks(b)
-    if b.component("elastic_objective") is not None:
-        b.del_component("elastic_objective")
+    for name in ("elastic_objective", "elastic_do_excess_def", "elastic_do_excess", "ELASTIC_DO_ZONES"):
+        if b.component(name) is not None:
+            b.del_component(name)
     b.objective.activate()
 
 
@@ -119,7 +150,11 @@ def _sentence(group, zone, amount: str, limit_value) -> str:
 
 
 def findings(m) -> list[dict]:
-    """The limits the elastic solution relaxes: one dict per limit, zone and run of time."""
+    """The limits the elastic solution relaxes: one dict per limit and zone.
+
+    ``amount`` is the largest relaxation; ``spans`` lists every run of time
+    (``start_h``, ``end_h``, ``amount``, ``unit``), each with its own largest relaxation.
+    """
     b = m.opt
     period_h = m._train_data.period_h
     step_h = m.step_hours
@@ -143,6 +178,7 @@ def findings(m) -> list[dict]:
                 groups.setdefault(z, {})[t] = v
         for zone, values in groups.items():
             limit_value = _limit_value(b, g, zone)
+            spans = []
             for first, last in _runs(list(values)):
                 amount = max(values[k] for k in range(first, last + 1))
                 if g.index == "scalar":
@@ -152,12 +188,39 @@ def findings(m) -> list[dict]:
                     start, end = ((first - 1) // k) * step_h, ((last - 1) // k + 1) * step_h
                 else:
                     start, end = (first - 1) * period_h, last * period_h
-                text = _sentence(g, zone, _amount(g.unit, amount), limit_value)
-                if g.index != "scalar":
-                    text += f", {clock(start)}-{clock(end)}"
-                out.append({"limit": g.name, "zone": zone, "start_h": start, "end_h": end, "amount": amount,
-                            "unit": g.unit, "message": text})
+                spans.append({"start_h": start, "end_h": end, "amount": amount})
+            spans = _wrap_midnight(_merge_touching(spans))
+            largest = max(spans, key=lambda sp: sp["amount"])
+            text = _sentence(g, zone, _amount(g.unit, largest["amount"]), limit_value)
+            if g.index != "scalar" and len(spans) == 1:
+                text += f", {clock(spans[0]['start_h'])}-{clock(spans[0]['end_h'])}"
+            elif g.index != "scalar":
+                text += ": " + ", ".join(f"{_amount(g.unit, sp['amount'])} {clock(sp['start_h'])}-"
+                                         f"{clock(sp['end_h'])}" for sp in spans)
+            out.append({"limit": g.name, "zone": zone, "amount": largest["amount"], "unit": g.unit,
+                        "spans": [dict(sp, unit=g.unit) for sp in spans], "message": text})
     return out
+
+
+def _merge_touching(spans: list[dict]) -> list[dict]:
+    """Spans that touch (steps of one run map to adjoining hours) joined, the larger amount kept."""
+    out = []
+    for sp in sorted(spans, key=lambda s: s["start_h"]):
+        if out and sp["start_h"] <= out[-1]["end_h"] + 1e-9:
+            out[-1] = {"start_h": out[-1]["start_h"], "end_h": max(out[-1]["end_h"], sp["end_h"]),
+                       "amount": max(out[-1]["amount"], sp["amount"])}
+        else:
+            out.append(dict(sp))
+    return out
+
+
+def _wrap_midnight(spans: list[dict]) -> list[dict]:
+    """A span ending at 24:00 and one starting at 00:00 are one span through midnight (listed first)."""
+    if len(spans) > 1 and spans[0]["start_h"] <= 1e-9 and spans[-1]["end_h"] >= 24.0 - 1e-9:
+        last = spans.pop()
+        spans[0] = {"start_h": last["start_h"], "end_h": spans[0]["end_h"],
+                    "amount": max(last["amount"], spans[0]["amount"])}
+    return spans
 
 
 def _limit_value(b, g, zone):

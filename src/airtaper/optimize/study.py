@@ -33,16 +33,18 @@ from airtaper.errors import EXIT_FAILURE, EXIT_INFEASIBLE, EXIT_OK, EXIT_UNVERIF
 from airtaper.layout.types import ASM1_COMPONENTS, Layout
 from airtaper.model.train import build_cyclic_model
 from airtaper.optimize import elastic as _elastic
-from airtaper.optimize.baseline import Baseline, run_baseline
+from airtaper.optimize.backoff import hold_do
+from airtaper.optimize.baseline import Baseline, complying_baseline, run_baseline
 from airtaper.optimize.figures import day_figures
 from airtaper.optimize.initialise import BASE_OPTIONS, LADDER, Rung, point_hours, start_airflow, start_from_day
 from airtaper.optimize.marginal import marginal_costs
 from airtaper.optimize.problem import attach_problem, fix_slacks, max_power_line_kW, point_weights, settings_for
+from airtaper.optimize.prescreen import outside_tested_range, prescreen
 from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.scaling import apply_scaling
 from airtaper.optimize.staging import (day_dispatch, dispatch_summary, dispatch_table, feasibility_check,
                                        final_dispatch, run_staging)
-from airtaper.optimize.verify import verify_schedule
+from airtaper.optimize.verify import verify_day
 from airtaper.solve import solve_nlp
 
 #: Rungs ending in "locally infeasible" after which the ladder stops and the elastic
@@ -62,7 +64,10 @@ class StudyOptions:
     scheme: str | None = None  # time scheme of the cyclic model (None: the model's default)
     steps_per_period: int | None = None  # None: see model_steps_per_period
     verify: bool = True
+    hold_do: bool = True  # back-off rounds so the DO minimum holds in continuous time (optimize/backoff.py)
+    complying_baseline: bool = True  # when the baseline breaks a limit, search the lowest complying setpoint
     marginal: bool = True
+    prescreen: bool = True  # equipment bounds and a full-air day before anything else (optimize/prescreen.py)
     staging: bool = True  # False: blowers as one machine, swing zones relaxed (the comparison in benchmarks/)
     ipopt_options: dict = field(default_factory=dict)
     ladder: tuple[Rung, ...] = LADDER
@@ -341,17 +346,55 @@ def _saving(base, value):
     return 100.0 * (base - value) / base
 
 
+def saving_figures(base: Baseline, complying: Baseline | None, energy: float, cost, status: str) -> dict:
+    """The summary's saving entries, and notes for the console.
+
+    No saving for a run whose limits cannot all be met (or that failed). When the
+    uniform-DO baseline breaks a limit the saving against it is kept, marked as such
+    (``baseline_compliant`` False), beside the saving against the lowest uniform
+    setpoint that complies (``complying_baseline``), when one was found.
+    """
+    out = {"saving_percent": None, "cost_saving_percent": None, "baseline_compliant": not base.violations,
+           "complying_baseline": None, "notes": []}
+    if status not in ("optimal", "unverified"):
+        out["notes"].append("no saving is given: the schedule does not meet the limits")
+        return out
+    out["saving_percent"] = _saving(base.energy_kWh_per_day, energy)
+    out["cost_saving_percent"] = _saving(base.cost_per_day, cost)
+    if base.violations:
+        sp = ", ".join(f"{v:g}" for v in sorted(set(base.setpoints_mg_L.values())))
+        out["notes"].append(f"the saving of {out['saving_percent']:.1f} % is against a uniform DO baseline "
+                            f"({sp} mg/L) that breaks a limit")
+        if complying is not None:
+            c = complying.summary()
+            c["saving_percent"] = _saving(complying.energy_kWh_per_day, energy)
+            c["cost_saving_percent"] = _saving(complying.cost_per_day, cost)
+            out["complying_baseline"] = c
+            out["notes"].append(f"saving {c['saving_percent']:.1f} % against the lowest uniform DO setpoint that "
+                                f"meets the limits ({complying.setpoint_mg_L:.2f} mg/L, "
+                                f"{complying.energy_kWh_per_day:,.1f} kWh/d)")
+        else:
+            out["notes"].append("no uniform DO setpoint meets the limits: no complying baseline to compare with")
+    return out
+
+
 def run_optimization(layout: Layout, options: StudyOptions | None = None, progress: Progress | None = None
                      ) -> StudyResult:
     """The whole study (module notes); never raises for an infeasible or failed solve."""
     t0 = time.perf_counter()
     opts = options or StudyOptions()
     prog = progress or Silent()
+    screen = None
+    if opts.prescreen:
+        prog.phase("pre-screen: equipment bounds and every grid at full air")
+        screen = prescreen(layout)
+        if not screen["feasible"]:
+            return _screened_out(layout, screen, time.perf_counter() - t0)
     study = DiurnalOptimisation(layout, opts, prog)
     base = study.run_baseline()
     study.build()
     result = study.solve()
-    messages = []
+    messages = [] if screen is None or not screen["note"] else [f"pre-screen: {screen['note']}"]
     infeasibility = []
     status = "optimal"
     staging = None
@@ -380,13 +423,33 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         messages.append("Ipopt stopped at its 'acceptable' tolerances")
     fix_slacks(study.m.opt)
 
+    verification = None
+    hold = None
+    if opts.verify and status != "failed":
+        prog.phase("verifying: the schedule re-simulated by the independent simulator")
+        t = time.perf_counter()
+
+        def verify():
+            return verify_day(layout, study.schedule_by_zone(), study.figures(), study.m)
+
+        if status == "optimal" and opts.hold_do:
+            hold = hold_do(study, verify, prog)
+            verification = hold["verification"]
+            result = study.result
+            if hold["resolve_failed"]:
+                messages.append("the DO back-off could not be applied in full: the re-solve failed")
+        else:
+            verification = verify()[0]
+        study.timings["verification_s"] = time.perf_counter() - t
+        if not verification["verified"]:
+            messages.append("WARNING: the re-simulated schedule breaks a limit: " + "; ".join(verification["violations"]))
     schedule, header, timeseries = study.tables()
     schedule, header = base.add_columns(schedule, header)
     figs = study.figures()
     energy = study.energy_kWh_per_day()
     power = study.power_by_period()
     cost = study.m.opt.air.cost(power)
-    blowers_table, dispatch, base_dispatch = None, None, None
+    blowers_table, dispatch = None, None
     if staging is not None and staging.dispatch is not None:
         dp = staging.dispatch if staging.findings else final_dispatch(study.m, staging.dispatch)
         blowers_table = dispatch_table(layout, dp)
@@ -406,35 +469,41 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
                 status = "unverified"
                 messages.append("WARNING: the schedule breaks a machine or grid range: " + "; ".join(breaches))
         bd = day_dispatch(layout, base.day, objective)
-        if bd is not None:
-            header["baseline_power_kW"] = bd.total_power_kW  # the baseline billed by the same dispatch
+        if bd is not None:  # the baseline billed by the same dispatch rule: like with like
+            bill = bd.bill(layout)
+            base.day.energy_kWh_per_day = bill["energy_kWh_per_day"]
+            base.day.cost_per_day = bill["cost_per_day"]
+            header["baseline_power_kW"] = bd.total_power_kW
             base_dispatch = dispatch_summary(layout, bd)
             base_dispatch["shortfall"] = [f["message"] for f in bd.findings]
             messages.extend(f"baseline: {f['message']}" for f in bd.findings)
-    verification = None
-    if opts.verify and status != "failed":
-        prog.phase("verifying: the schedule re-simulated by the independent simulator")
-        t = time.perf_counter()
-        verification = verify_schedule(layout, study.schedule_by_zone(), figs, study.m)
-        study.timings["verification_s"] = time.perf_counter() - t
-        if not verification["verified"]:
-            messages.append("WARNING: the re-simulated schedule breaks a limit: " + "; ".join(verification["violations"]))
+            dispatch["baseline"] = base_dispatch
     marginal = []
     if opts.marginal and status == "optimal" and result is not None and result.ok:
         marginal = marginal_costs(study.m, result, energy_kWh_per_day=energy, cost_per_day=cost)
     for w in base.violations:
         messages.append(f"baseline: {w}")
+    for short in base.day.setpoint_shortfalls:
+        messages.append(f"baseline: {short['message']}")
     if status == "optimal" and verification is not None and not verification["verified"]:
         status = "unverified"
+    complying = None
+    if base.violations and status in ("optimal", "unverified") and opts.complying_baseline:
+        prog.phase("the uniform-DO baseline breaks a limit: finding the lowest uniform setpoint that complies")
+        t = time.perf_counter()
+        complying = complying_baseline(layout, base)
+        study.timings["complying_baseline_s"] = time.perf_counter() - t
+    savings = saving_figures(base, complying, energy, cost, status)
+    messages.extend(savings.pop("notes"))
+    periods = np.arange(layout.horizon.n_periods)
+    untested = outside_tested_range(layout, study.schedule_by_zone(), periods,
+                                    "optimum" if status in ("optimal", "unverified") else "elastic solution") + \
+        outside_tested_range(layout, _node_airflow(base.day), base.day.node_period, "baseline")
+    messages.extend(u["message"] for u in untested)
     exit_code = {"optimal": EXIT_OK, "infeasible": EXIT_INFEASIBLE, "unverified": EXIT_UNVERIFIED,
                  "failed": EXIT_FAILURE}[status]
     study.timings["total_s"] = time.perf_counter() - t0
     lim = layout.limits
-    base_summary = base.summary()
-    if base_dispatch is not None:  # the same dispatch rule bills the baseline
-        base_summary["dispatch"] = base_dispatch
-        base_summary["energy_kWh_per_day"] = base_dispatch["energy_kWh_per_day"]
-        base_summary["cost_per_day"] = base_dispatch["cost_per_day"]
     summary = {
         "status": status,
         "plant": layout.plant.name,
@@ -443,13 +512,17 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         "currency": layout.tariff.currency if layout.tariff else "",
         "energy_kWh_per_day": energy,
         "cost_per_day": cost,
-        "baseline": base_summary,
-        "saving_percent": _saving(base_summary["energy_kWh_per_day"], energy),
-        "cost_saving_percent": _saving(base_summary["cost_per_day"], cost),
+        "baseline": dict(base.summary(), **({"dispatch": dispatch.pop("baseline")}
+                                              if dispatch and "baseline" in dispatch else {})),
+        **savings,
         "dispatch": dispatch,
         "effluent": {k: figs[k] for k in ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L")},
-        "min_do_margin_mg_L": figs["min_do_margin_mg_L"],
-        "do_margin_mg_L": figs["do_margin_mg_L"],
+        # the re-simulated day's margins (continuous time) when verified, else the optimiser's
+        "min_do_margin_mg_L": figs["min_do_margin_mg_L"] if verification is None
+        else verification["min_do_margin_mg_L"],
+        "do_margin_mg_L": figs["do_margin_mg_L"] if verification is None else verification["do_margin_mg_L"],
+        "optimiser_min_do_margin_mg_L": figs["min_do_margin_mg_L"],
+        "do_hold": None if hold is None else {k: v for k, v in hold.items() if k != "verification"},
         "limits": {"nh4_mean_mg_L": lim.nh4_mean_mg_L, "nh4_max_mg_L": lim.nh4_max_mg_L,
                    "tn_mean_mg_L": lim.tn_mean_mg_L,
                    "do_min_mg_L": {z.id: z.do_min_mg_L for z in layout.zones if z.do_min_mg_L is not None},
@@ -458,6 +531,8 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         "verified": None if verification is None else verification["verified"],
         "marginal_costs": marginal,
         "infeasibility": infeasibility,
+        "prescreen": screen,
+        "outside_tested_range": untested,
         "smoothing": {"weight": study.m.opt.settings.smoothing_weight,
                       "penalty": float(pyo.value(study.m.opt.smoothing))},
         "solver": {
@@ -474,6 +549,45 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     }
     return StudyResult(schedule=schedule, header=header, timeseries=timeseries, summary=_jsonable(summary),
                        exit_code=exit_code, study=study, blowers=blowers_table)
+
+
+def _node_airflow(day) -> dict:
+    """Zone id -> airflow at the simulated day's quadrature nodes."""
+    return {z.id: day.node_airflow[:, i] for i, z in enumerate(day.layout.zones)}
+
+
+def _screened_out(layout: Layout, screen: dict, seconds: float) -> StudyResult:
+    """The result of a run the pre-screen stops: no schedule, the findings, exit code 3."""
+    schedule = pd.DataFrame(columns=["period_start_h", "period_end_h", "zone", "airflow_Sm3_h",
+                                     "airflow_per_diffuser_Sm3_h", "do_min_mg_L", "do_mean_mg_L", "nh4_mean_mg_L",
+                                     "otr_kg_h"])
+    header = pd.DataFrame(columns=["period", "pressure_kPa", "airflow_Sm3_h", "power_kW"])
+    timeseries = pd.DataFrame(columns=["time_h", "zone", *ASM1_COMPONENTS, "airflow_Sm3_h", "otr_kg_h"])
+    lim = layout.limits
+    summary = {
+        "status": "infeasible",
+        "plant": layout.plant.name,
+        "layout": layout.path,
+        "objective": layout.operation.objective,
+        "currency": layout.tariff.currency if layout.tariff else "",
+        "energy_kWh_per_day": None, "cost_per_day": None, "baseline": None,
+        "saving_percent": None, "cost_saving_percent": None, "baseline_compliant": None, "complying_baseline": None,
+        "effluent": None, "min_do_margin_mg_L": None, "do_margin_mg_L": None,
+        "limits": {"nh4_mean_mg_L": lim.nh4_mean_mg_L, "nh4_max_mg_L": lim.nh4_max_mg_L,
+                   "tn_mean_mg_L": lim.tn_mean_mg_L,
+                   "do_min_mg_L": {z.id: z.do_min_mg_L for z in layout.zones if z.do_min_mg_L is not None},
+                   "do_max_mg_L": {z.id: z.do_max_mg_L for z in layout.zones if z.do_max_mg_L is not None}},
+        "verification": {"verified": None, "skipped": True}, "verified": None,
+        "marginal_costs": [],
+        "infeasibility": screen["findings"],
+        "prescreen": screen,
+        "outside_tested_range": [],
+        "solver": {"status": None, "timings": {"prescreen_s": screen["seconds"], "total_s": seconds}},
+        "messages": ["the pre-screen shows the limits cannot all be met (no optimisation was run): "
+                     + f["message"] for f in screen["findings"]] + ["no saving is given: the limits cannot be met"],
+    }
+    return StudyResult(schedule=schedule, header=header, timeseries=timeseries, summary=_jsonable(summary),
+                       exit_code=EXIT_INFEASIBLE)
 
 
 def _jsonable(obj):

@@ -12,6 +12,11 @@ the two agree within 0.3 % on the effluent means. Rule
 (:mod:`airtaper.optimize.figures`): the result is **verified** unless the simulated
 day breaks an effluent limit by more than 2 % of the limit, or a zone's DO range
 by more than 0.05 mg/L.
+
+The simulated day is integrated, not sampled (:mod:`airtaper.optimize.simday`):
+effluent means by quadrature of the solver's dense output, DO margins from the
+lowest and highest DO of every zone and period over continuous time. The margins
+are reported as they are, negative when the DO leaves its range.
 """
 
 from __future__ import annotations
@@ -41,12 +46,18 @@ def verify_schedule(layout: Layout, schedule: dict, optimiser_figures: dict, m=N
     ``m``: the solved model, whose state at 0 h starts the simulation (None: the
     simulator's own mean-load steady state and default tolerance).
     """
+    return verify_day(layout, schedule, optimiser_figures, m)[0]
+
+
+def verify_day(layout: Layout, schedule: dict, optimiser_figures: dict, m=None):
+    """:func:`verify_schedule` and the simulated :class:`~airtaper.optimize.simday.SimDay`."""
     if m is not None:
         state, waste = start_state_of(m)
         day = simulate_day(layout, schedule=schedule, start_state=state, start_waste_m3_d=waste, tol=DAY_REPEAT_TOL)
     else:
         day = simulate_day(layout, schedule=schedule)
     f = day.figures
+    lows = day.do_extremes.loc[day.do_extremes.groupby("zone")["do_min_mg_L"].idxmin()]
     broken = violations(layout, f, effluent_tolerance=EFFLUENT_TOLERANCE, do_tolerance_mg_L=DO_TOLERANCE_mg_L)
     return {
         "verified": not broken,
@@ -57,13 +68,22 @@ def verify_schedule(layout: Layout, schedule: dict, optimiser_figures: dict, m=N
         "optimiser_min_do_margin_mg_L": optimiser_figures["min_do_margin_mg_L"],
         "do_margin_mg_L": f["do_margin_mg_L"],
         "optimiser_do_margin_mg_L": optimiser_figures["do_margin_mg_L"],
+        "do_lowest": {r.zone: {"do_mg_L": float(r.do_min_mg_L), "time_h": float(r.do_min_time_h)}
+                      for r in lows.itertuples()},
+        "do_lowest_by_period": {z: [float(v) for v in lows_z] for z, lows_z in day.do_min_by_period().items()},
+        # the DO minimum alone: lowest DO over continuous time less the minimum, the smallest over the zones
+        "do_min_margin_mg_L": min((float(r.do_min_mg_L) - layout.zone(r.zone).do_min_mg_L for r in lows.itertuples()
+                                   if layout.zone(r.zone).do_min_mg_L is not None and layout.zone(r.zone).grid
+                                   is not None and layout.zone(r.zone).kind == "aerated"), default=None),
+        "method": "effluent means integrated over the day (quadrature of the dense output); "
+                  "DO extremes over continuous time",
         "violations": broken,
         "energy_kWh_per_day": day.energy_kWh_per_day,
         "simulated_days": day.days,
         "start": "optimiser's state at 0 h" if m is not None else "mean-load steady state",
         "periodic": day.converged,
         "seconds": day.seconds,
-    }
+    }, day
 
 
-__all__ = ["DAY_REPEAT_TOL", "start_state_of", "verify_schedule"]
+__all__ = ["DAY_REPEAT_TOL", "start_state_of", "verify_day", "verify_schedule"]

@@ -89,9 +89,16 @@ def console_summary(summary: dict) -> str:
     lines = [
         f"status            {summary.get('status')}",
         f"energy            {_fmt(summary.get('energy_kWh_per_day'))} kWh/d"
-        f"   (baseline {_fmt(base.get('energy_kWh_per_day'))} kWh/d, saving {_fmt(summary.get('saving_percent'))} %)",
+        f"   (baseline {_fmt(base.get('energy_kWh_per_day'))} kWh/d, saving {_fmt(summary.get('saving_percent'))} %"
+        + (", a baseline that breaks a limit)" if summary.get("baseline_compliant") is False else ")"),
         f"cost              {_fmt(summary.get('cost_per_day'), 2)} {cur}/d"
         f"   (baseline {_fmt(base.get('cost_per_day'), 2)} {cur}/d)",
+    ]
+    comp = summary.get("complying_baseline")
+    if comp:
+        lines.append(f"complying base    {_fmt(comp.get('energy_kWh_per_day'))} kWh/d at a uniform DO of "
+                     f"{_fmt(comp.get('setpoint_mg_L'), 2)} mg/L, saving {_fmt(comp.get('saving_percent'))} %")
+    lines += [
         f"effluent NH4-N    mean {_fmt(eff.get('nh4_mean_mg_L'), 2)} mg/L, max period {_fmt(eff.get('nh4_max_mg_L'), 2)} mg/L"
         f", TN mean {_fmt(eff.get('tn_mean_mg_L'), 2)} mg/L",
         _do_margin_line(summary.get("optimiser_min_do_margin_mg_L", summary.get("min_do_margin_mg_L")),

@@ -213,6 +213,9 @@ class PeriodicResult:
     per output time: time_h, the 13 components, tss/cod/tkn/tn_mg_L,
     q_influent_m3_d, q_effluent_m3_d, q_waste_m3_d, srt_d. Output times are the
     ``steps_per_period`` equal steps of every period, starting at 0 h.
+    ``quadrature``: the day at Gauss-Legendre nodes of every solver step (the means
+    integrate it, :class:`DayQuadrature`); ``do_extremes``: the lowest and highest DO
+    of every zone and period over continuous time (:func:`do_extremes`).
     ``day_change``: max over states of |y(24 h) - y(0)| / max(|y(0)|, 1) of the
     last day; ``balance``: the COD and N closure over the last day. ``start``: the
     mean-load steady state the first day started from, None when the caller gave
@@ -231,6 +234,9 @@ class PeriodicResult:
     y_end: np.ndarray
     period_h: float
     layout: object = field(repr=False, default=None)
+    quadrature: "DayQuadrature | None" = field(repr=False, default=None)
+    do_extremes: pd.DataFrame | None = field(repr=False, default=None)
+    setpoints_mg_L: dict = field(default_factory=dict)  # zone id -> DO setpoint of the DO-controlled zones
 
 
 def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30, tol: float = 1e-3,
@@ -298,10 +304,10 @@ def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30
     while days < max_days:
         days += 1
         z0 = np.concatenate((y, [0.0, 0.0]))
-        z_end, rec_try = _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod, wn)
+        z_end, rec_try, dense = _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod, wn)
         y_end = z_end[: system.n]
         change = float(np.max(np.abs(y_end - y) / np.maximum(np.abs(y), 1.0)))
-        rec = (y.copy(), z_end, rec_try)
+        rec = (y.copy(), z_end, rec_try, dense)
         y = y_end
         waste_change = 0.0
         if srt_target is not None:
@@ -313,7 +319,7 @@ def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30
         if change < tol and waste_change < tol:
             converged = True
             break
-    y0_day, z_end, records = rec
+    y0_day, z_end, records, dense = rec
     y1_day = z_end[: system.n]
     # COD and N closure over the recorded day: the net inflows integrated by the solver
     # against the change of the plant's inventory (i_XB and i_XP do not vary by period)
@@ -328,9 +334,13 @@ def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30
         n_closure=abs(float(z_end[-1]) - d_n) / n_in,
     )
     ts, eff = _tables(system, inputs, records)
+    quad = day_quadrature(system, inputs, dense)
+    extremes = do_extremes(system, dense)
     return PeriodicResult(timeseries=ts, effluent=eff, days=days, converged=converged, day_change=change,
                           balance=balance, start=start, seconds=time.perf_counter() - t_start,
-                          y_start=y0_day, y_end=y1_day, period_h=layout.horizon.period_h, layout=layout)
+                          y_start=y0_day, y_end=y1_day, period_h=layout.horizon.period_h, layout=layout,
+                          quadrature=quad, do_extremes=extremes,
+                          setpoints_mg_L={z.id: float(v) for z, v in zip(layout.zones, sp) if np.isfinite(v)})
 
 
 def _state_vector(system: System, state) -> np.ndarray:
@@ -365,12 +375,17 @@ def _daily_waste_for_srt(system: System, inputs, records, srt_target_d: float) -
 
 
 def _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod, wn):
-    """One day, period by period; returns the end state and the states at the output times."""
+    """One day, period by period.
+
+    Returns the end state, the states at the output times and the dense output of
+    every period, ``[(period, solver step times (d), OdeSolution)]``.
+    """
     import scipy.sparse as sps
 
     n = system.n
     z = z0
     out_t, out_y, out_k = [], [], []
+    dense = []
     zero_col = sps.csc_matrix((n, 2))
     zero_corner = sps.csc_matrix((2, 2))
     first_step = None
@@ -407,7 +422,132 @@ def _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod
             out_y.append(sol.sol(t)[:n] if j else z[:n].copy())
             out_k.append(k)
         z = sol.y[:, -1]
-    return z, (np.array(out_t), np.array(out_y), np.array(out_k))
+        dense.append((k, sol.t, sol.sol))
+    return z, (np.array(out_t), np.array(out_y), np.array(out_k)), dense
+
+
+#: Gauss-Legendre nodes per solver step of the day quadrature: exact for polynomials of
+#: degree 5, the highest order of the BDF dense output (Shampine & Reichelt 1997,
+#: "The MATLAB ODE suite", SIAM J. Sci. Comput. 18(1), doi:10.1137/S1064827594276424).
+QUADRATURE_NODES = 3
+#: Samples per solver step where the DO extremes are first looked for (then refined).
+_EXTREME_SAMPLES = 8
+#: Samples of each refinement of the bracket around an extreme sample.
+_REFINE_SAMPLES = 17
+
+
+@dataclass
+class DayQuadrature:
+    """The simulated day at Gauss-Legendre nodes of every solver step (dense output).
+
+    ``weight`` is each node's share of the day (sum 1), so a daily time mean is
+    ``weight @ value`` and a flow-weighted mean ``(weight * q) @ value / (weight @ q)``,
+    exact for the solver's piecewise-polynomial solution up to the nodes' degree.
+    ``effluent``: the columns of :attr:`PeriodicResult.effluent` at the nodes;
+    ``do``, ``airflow_Sm3_h``, ``otr_kg_h``: (nodes, zones).
+    """
+
+    time_h: np.ndarray
+    weight: np.ndarray
+    period: np.ndarray  # 0-based
+    effluent: pd.DataFrame
+    do: np.ndarray
+    airflow_Sm3_h: np.ndarray
+    otr_kg_h: np.ndarray
+
+    def mean(self, values, flow_weighted: bool = False) -> float:
+        """Daily mean of per-node values (time mean, or weighted by the effluent flow)."""
+        w = self.weight * (self.effluent["q_effluent_m3_d"].to_numpy() if flow_weighted else 1.0)
+        return float(w @ np.asarray(values, dtype=float) / w.sum())
+
+    def period_means(self, values) -> np.ndarray:
+        """Time mean of per-node values in every period, (periods,)."""
+        v = np.asarray(values, dtype=float)
+        n = int(self.period.max()) + 1
+        return np.array([(self.weight[self.period == k] @ v[self.period == k]) / self.weight[self.period == k].sum()
+                         for k in range(n)])
+
+
+def day_quadrature(system: System, inputs, dense, nodes: int = QUADRATURE_NODES) -> DayQuadrature:
+    """The day at ``nodes`` Gauss-Legendre nodes of every solver step (see :class:`DayQuadrature`)."""
+    x, w = np.polynomial.legendre.leggauss(nodes)
+    n, nz = system.n, system.nz
+    t_all, w_all, k_all, eff_rows, so, air, otr = [], [], [], [], [], [], []
+    for k, ts, sol in dense:
+        a, b = ts[:-1], ts[1:]
+        half = 0.5 * (b - a)
+        t = ((a + b)[:, None] * 0.5 + half[:, None] * x[None, :]).ravel()
+        wt = (half[:, None] * w[None, :]).ravel()
+        Y = sol(t)[:n]
+        inp = inputs[k]
+        _, info = system.rhs(Y, inp, detail=True)
+        ce = info["c_effluent"]
+        q = effluent_quantities(ce.T, inp.params, system.tss_per_cod)
+        m = t.size
+        frame = pd.DataFrame(ce.T, columns=list(ASM1_COMPONENTS))
+        for c in EFFLUENT_COLUMNS:
+            frame[c] = q[c]
+        frame["q_influent_m3_d"] = inp.q_influent
+        frame["q_effluent_m3_d"] = np.broadcast_to(info["q_effluent_m3_d"], (m,))
+        frame["q_waste_m3_d"] = np.broadcast_to(info["q_waste_m3_d"], (m,))
+        frame["srt_d"] = info["srt_d"]
+        eff_rows.append(frame)
+        B = system.blocks(Y)
+        so.append(B[:nz, IDX["SO"]].T)
+        air.append(system.airflow_Sm3_h(inp, info["kla_per_d"]).T)
+        otr.append((units.g_to_kg(units.kg_d_to_kg_h(info["otr_g_m3_d"] * system.V[:, None]))).T)
+        t_all.append(t)
+        w_all.append(wt)
+        k_all.append(np.full(m, k))
+    t = np.concatenate(t_all)
+    weight = np.concatenate(w_all)
+    eff = pd.concat(eff_rows, ignore_index=True)
+    eff.insert(0, "time_h", t * 24.0)
+    return DayQuadrature(time_h=t * 24.0, weight=weight / weight.sum(), period=np.concatenate(k_all), effluent=eff,
+                         do=np.concatenate(so), airflow_Sm3_h=np.concatenate(air), otr_kg_h=np.concatenate(otr))
+
+
+def do_extremes(system: System, dense) -> pd.DataFrame:
+    """Lowest and highest DO of every zone in every period, over continuous time.
+
+    The dense output is sampled at :data:`_EXTREME_SAMPLES` points of every solver
+    step; the bracket around the extreme sample is then sampled again, twice, at
+    :data:`_REFINE_SAMPLES` points (the bracket shrinks 8-fold each time: the
+    extreme's time is found to 1/512 of a solver step, its value to round-off, as the
+    dense output is smooth there). One row per period and zone: ``period`` (0-based),
+    ``zone``, ``do_min_mg_L``, ``do_min_time_h``, ``do_max_mg_L``, ``do_max_time_h``.
+    """
+    zone_ids = [z.id for z in system.plant.layout.zones]
+    rows = []
+    frac = np.arange(_EXTREME_SAMPLES) / _EXTREME_SAMPLES
+    fine = np.linspace(0.0, 1.0, _REFINE_SAMPLES)
+    for k, ts, sol in dense:
+        a, b = ts[:-1], ts[1:]
+        grid = np.append((a[:, None] + (b - a)[:, None] * frac[None, :]).ravel(), ts[-1])
+        Y = sol(grid)
+        for i, zid in enumerate(zone_ids):
+            idx = i * NC + IDX["SO"]
+            v = Y[idx]
+            out = {"period": k, "zone": zid}
+            for sign, key in ((1.0, "do_min"), (-1.0, "do_max")):
+                j = int(np.argmin(sign * v))
+                best_t, best = float(grid[j]), float(sign * v[j])
+                lo, hi = grid[max(j - 1, 0)], grid[min(j + 1, grid.size - 1)]
+                for _ in range(2):
+                    if not hi > lo:
+                        break
+                    t = lo + (hi - lo) * fine
+                    w = sign * sol(t)[idx]
+                    jj = int(np.argmin(w))
+                    if w[jj] < best:
+                        best_t, best = float(t[jj]), float(w[jj])
+                    step = (hi - lo) / (_REFINE_SAMPLES - 1)
+                    lo, hi = max(best_t - step, lo), min(best_t + step, hi)
+                out[f"{key}_mg_L"] = sign * best
+                out[f"{key}_time_h"] = best_t * 24.0
+            rows.append(out)
+    return pd.DataFrame(rows, columns=["period", "zone", "do_min_mg_L", "do_min_time_h", "do_max_mg_L",
+                                       "do_max_time_h"])
 
 
 def _tables(system: System, inputs, records):

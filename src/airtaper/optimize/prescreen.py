@@ -1,0 +1,233 @@
+"""Pre-screen: limits that surely cannot be met, found in seconds without an optimisation.
+
+:func:`prescreen` runs before the optimisation (``airtaper optimize``) and in
+``airtaper check``. It needs no NLP solve; it bounds what any schedule can do:
+
+Equipment (arithmetic on the layout)
+    * a zone whose minimum airflow (diffusers' minimum, mixing) exceeds its maximum
+      (diffusers' maximum, valve);
+    * the blowers' installed capacity against the sum of the zones' minimum airflows;
+    * the smallest blower's minimum against the sum of the zones' maximum airflows;
+    * the blowers' pressure limit against the discharge pressure the zones need at
+      their *minimum* airflows (static head, diffuser headloss, drop leg, valve,
+      header).
+
+Oxygen (a simulated day with every grid at its maximum airflow all day, the first
+day from the steady state at mean load and full air, :data:`FULL_AIR_DAYS`)
+    Every zone gets the most oxygen its grid can transfer, the oxygen demand of the
+    day's load is the simulated plant's own uptake, and more air raises the DO of
+    every zone and lowers the effluent NH4-N (common practice (no source)), so:
+
+    * a zone whose DO falls below its minimum (by more than the verification's DO
+      tolerance) even at full air cannot hold it with any schedule: the finding lists
+      every span of periods with its own shortfall (mg/L) and a lower bound of the
+      extra oxygen transfer it needs,
+      ``(DO_min - DO_low) / (C* - DO_min)`` (the transfer at full air is
+      ``kLa_max (C* - DO)``, and the uptake at the minimum DO is not lower than at
+      the lower DO the day reached);
+    * an effluent NH4-N daily mean, or period means, above the limit (beyond the
+      verification's tolerance) even at full air cannot be met.
+
+    The TN limit is not screened: more air can raise TN (less denitrification).
+
+This is a relaxation (the blowers may not even deliver full air everywhere), so a
+finding is certain; a layout that passes can still prove infeasible in the solve,
+where the elastic solve (:mod:`airtaper.optimize.elastic`) sizes it.
+
+:func:`outside_tested_range` flags airflow per diffuser outside the range of a
+diffuser type's clean-water test points (where its SOTE curve is extrapolated),
+for any schedule or simulated day.
+"""
+
+from __future__ import annotations
+
+import time
+
+import numpy as np
+
+from airtaper.layout.types import Layout
+from airtaper.optimize.airside import AirSide
+from airtaper.optimize.figures import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE
+from airtaper.simulate.aeration import zone_transfer
+from airtaper.simulate.steady import SteadyStateError
+from airtaper.simulate.summary import period_runs, span_text
+
+
+#: Days simulated at full air: one day from the full-air steady state at mean load.
+#: On the demo the periodic day (4 days) differs from the first by 0.005 mg/L of DO
+#: and 0.6 % of the NH4-N means, well inside the tolerances the findings use.
+FULL_AIR_DAYS = 1
+
+
+def _grid_zones(layout: Layout):
+    return [z for z in layout.zones if z.grid is not None and z.aerated and z.fixed_kla_per_d is None]
+
+
+def _finding(limit, zone, spans, message) -> dict:
+    return {"limit": limit, "zone": zone, "spans": spans, "message": message, "source": "pre-screen"}
+
+
+def _all_day(layout: Layout, amount: float, unit: str) -> list[dict]:
+    return [{"start_h": 0.0, "end_h": 24.0, "amount": float(amount), "unit": unit}]
+
+
+def equipment_findings(layout: Layout) -> list[dict]:
+    """Equipment limits no schedule can meet (module notes), as findings."""
+    out = []
+    zones = _grid_zones(layout)
+    if not zones:
+        return out
+    ranges = {z.id: layout.zone_airflow_range_Sm3_h(z) for z in zones}
+    for z in zones:
+        lo, hi = ranges[z.id]
+        if lo > hi * (1.0 + 1e-9):
+            out.append(_finding("zone_range", z.id, _all_day(layout, lo / hi - 1.0, "fraction"),
+                                f"zone {z.id}: its minimum airflow ({lo:,.0f} Sm3/h, diffusers' minimum or mixing) "
+                                f"exceeds its maximum ({hi:,.0f} Sm3/h, diffusers or valve) by "
+                                f"{100.0 * (lo / hi - 1.0):.0f} %"))
+    if not layout.blowers:
+        return out
+    air = AirSide(layout)
+    lo_total = sum(r[0] for r in ranges.values())
+    hi_total = sum(r[1] for r in ranges.values())
+    cap, turndown = air.blower_capacity_Sm3_h, air.blower_turndown_Sm3_h
+    if lo_total > cap * (1.0 + 1e-9):
+        out.append(_finding("blower_max", None, _all_day(layout, lo_total / cap - 1.0, "fraction"),
+                            f"the blowers ({cap:,.0f} Sm3/h installed) cannot supply even the zones' minimum "
+                            f"airflows ({lo_total:,.0f} Sm3/h): {100.0 * (lo_total / cap - 1.0):.0f} % short"))
+    if turndown > hi_total * (1.0 + 1e-9):
+        out.append(_finding("blower_min", None, _all_day(layout, turndown / hi_total - 1.0, "fraction"),
+                            f"the smallest blower's minimum ({turndown:,.0f} Sm3/h) exceeds what the grids take at "
+                            f"their maximum ({hi_total:,.0f} Sm3/h)"))
+    need = max(float(air.zone_required_pressure_kPa(z, max(ranges[z.id][0], 1e-9))) for z in zones)
+    need = float(air.discharge_gauge_kPa(need + layout.header.min_valve_loss_kPa, lo_total))
+    if need > air.blower_pressure_max_kPa + 1e-9:
+        short = need - air.blower_pressure_max_kPa
+        out.append(_finding("pressure_max", None, _all_day(layout, short, "kPa"),
+                            f"the blowers reach {air.blower_pressure_max_kPa:g} kPa gauge, but the zones need "
+                            f"{need:.1f} kPa even at their minimum airflows ({short:.1f} kPa short)"))
+    return out
+
+
+def full_air_findings(layout: Layout, day) -> list[dict]:
+    """Process limits the full-air day (``day``, a SimDay) breaks (module notes), as findings."""
+    out = []
+    period_h = layout.horizon.period_h
+    n = layout.horizon.n_periods
+    lows = day.do_min_by_period()
+    for z in _grid_zones(layout):
+        if z.kind != "aerated" or z.do_min_mg_L is None:
+            continue
+        low = lows[z.id]
+        bad = [k for k in range(n) if low[k] < z.do_min_mg_L - DO_TOLERANCE_mg_L]
+        if not bad:
+            continue
+        _, hi = layout.zone_airflow_range_Sm3_h(z)
+        spans, texts = [], []
+        for r in period_runs(bad, n):
+            short = float(max(z.do_min_mg_L - low[k] for k in r))
+            oxygen = max(_oxygen_shortfall(layout, z, hi, k, float(low[k])) for k in r)
+            spans.append({"start_h": r[0] * period_h, "end_h": (r[-1] + 1) * period_h, "amount": short,
+                          "unit": "mg/L", "oxygen_fraction": oxygen})
+            texts.append((r, f"{short:.2f} mg/L short (at least {100.0 * oxygen:.0f} % more oxygen)"))
+        out.append(_finding("do_min", z.id, spans,
+                            f"zone {z.id} cannot hold its DO minimum of {z.do_min_mg_L:g} mg/L even with its grid at "
+                            f"its maximum airflow ({hi:,.0f} Sm3/h): " + span_text(texts, period_h)))
+    lim = layout.limits
+    f = day.figures
+    if lim.nh4_mean_mg_L is not None and f["nh4_mean_mg_L"] > lim.nh4_mean_mg_L * (1.0 + EFFLUENT_TOLERANCE):
+        v = f["nh4_mean_mg_L"]
+        out.append(_finding("nh4_mean", None, _all_day(layout, v - lim.nh4_mean_mg_L, "mg/L"),
+                            f"the effluent NH4-N daily mean is {v:.2f} mg/L even with every grid at its maximum "
+                            f"airflow, above the limit of {lim.nh4_mean_mg_L:g} mg/L"))
+    if lim.nh4_max_mg_L is not None:
+        per = np.asarray(f["nh4_period_mean_mg_L"])
+        bad = [k for k in range(n) if per[k] > lim.nh4_max_mg_L * (1.0 + EFFLUENT_TOLERANCE)]
+        if bad:
+            spans, texts = [], []
+            for r in period_runs(bad, n):
+                over = float(max(per[k] for k in r) - lim.nh4_max_mg_L)
+                spans.append({"start_h": r[0] * period_h, "end_h": (r[-1] + 1) * period_h, "amount": over,
+                              "unit": "mg/L"})
+                texts.append((r, f"{over:.2f} mg/L over"))
+            out.append(_finding("nh4_max", None, spans,
+                                f"the effluent NH4-N period mean exceeds {lim.nh4_max_mg_L:g} mg/L even with every "
+                                "grid at its maximum airflow: " + span_text(texts, period_h)))
+    return out
+
+
+def _oxygen_shortfall(layout: Layout, zone, airflow_Sm3_h: float, period: int, do_low_mg_L: float) -> float:
+    """Lower bound of the extra oxygen transfer a zone needs, as a fraction (module notes)."""
+    _, sat = zone_transfer(layout, zone, airflow_Sm3_h, layout.plant.temperature_C[period])
+    c_star = float(np.asarray(sat))
+    return max(0.0, (zone.do_min_mg_L - do_low_mg_L) / max(c_star - zone.do_min_mg_L, 1e-9))
+
+
+def prescreen(layout: Layout, *, simulate: bool = True) -> dict:
+    """Equipment and full-air findings (module notes).
+
+    Returns ``{"feasible": no finding, "findings": [...], "seconds", "full_air": figures
+    of the full-air day or None}``; each finding has ``limit``, ``zone``, ``spans``
+    (``start_h``, ``end_h``, ``amount``, ``unit``: every span with its own size) and a
+    ``message``.
+    """
+    from airtaper.optimize.simday import simulate_day
+
+    t0 = time.perf_counter()
+    findings = equipment_findings(layout)
+    full = None
+    zones = _grid_zones(layout)
+    note = None
+    if simulate and zones and not any(f["limit"] == "zone_range" for f in findings):
+        schedule = {z.id: layout.zone_airflow_range_Sm3_h(z)[1] for z in zones}
+        try:
+            day = simulate_day(layout, schedule=schedule, max_days=FULL_AIR_DAYS)
+        except (SteadyStateError, RuntimeError, ArithmeticError, ValueError) as exc:
+            # a screen, not a verdict: without the full-air day only the equipment bounds speak
+            note = f"the full-air day could not be simulated ({exc}); only the equipment bounds were screened"
+        else:
+            findings.extend(full_air_findings(layout, day))
+            full = {k: day.figures[k] for k in ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L",
+                                                "min_do_margin_mg_L")}
+    return {"feasible": not findings, "findings": findings, "seconds": time.perf_counter() - t0, "full_air": full,
+            "note": note}
+
+
+def outside_tested_range(layout: Layout, airflow_by_zone: dict, period_of_point, where: str) -> list[dict]:
+    """Spans where a zone's airflow per diffuser leaves its diffuser type's tested range.
+
+    ``airflow_by_zone``: zone id -> airflow at points (per period, or per simulated node)
+    with ``period_of_point`` (0-based) their periods; ``where``: what the airflow is
+    ("optimum", "baseline", ...), for the message. The tested range is the span of the
+    type's clean-water SOTE test points; outside it the SOTE curve is extrapolated.
+    """
+    out = []
+    period_h = layout.horizon.period_h
+    n = layout.horizon.n_periods
+    per = np.asarray(period_of_point, dtype=int)
+    for z in _grid_zones(layout):
+        if z.id not in airflow_by_zone:
+            continue
+        dtype = layout.diffuser_type(z.grid.type_id)
+        tested = [p.airflow_per_diffuser_Sm3_h for p in dtype.sote_points]
+        lo, hi = min(tested), max(tested)
+        q = np.asarray(airflow_by_zone[z.id], dtype=float) / z.grid.count
+        for side, bad_point in (("above", q > hi * (1.0 + 1e-6)), ("below", (q < lo * (1.0 - 1e-6)) & (q > 0.0))):
+            if not bad_point.any():
+                continue
+            texts, spans = [], []
+            for r in period_runs(np.unique(per[bad_point]).tolist(), n):
+                mask = bad_point & np.isin(per, r)
+                v = float(q[mask].max() if side == "above" else q[mask].min())
+                spans.append({"start_h": r[0] * period_h, "end_h": (r[-1] + 1) * period_h,
+                              "airflow_per_diffuser_Sm3_h": v})
+                texts.append((r, f"{v:.1f} Sm3/h per diffuser"))
+            out.append({"zone": z.id, "diffuser_type": dtype.id, "where": where, "side": side,
+                        "tested_Sm3_h": [lo, hi], "spans": spans,
+                        "message": f"{where}: zone {z.id} runs its diffusers {side} the tested range of "
+                                   f"{dtype.id} ({lo:g}-{hi:g} Sm3/h per diffuser), where the SOTE curve is "
+                                   "extrapolated: " + span_text(texts, period_h)})
+    return out
+
+
+__all__ = ["equipment_findings", "full_air_findings", "outside_tested_range", "prescreen"]

@@ -1,0 +1,116 @@
+"""The pre-screen: limits no schedule can meet, found without an optimisation, and the tested-range flags."""
+
+from __future__ import annotations
+
+import shutil
+from dataclasses import replace
+
+import numpy as np
+import pytest
+
+from airtaper.cli.main import main
+from airtaper.errors import EXIT_INFEASIBLE, EXIT_OK
+from airtaper.optimize.horizon import with_periods
+from airtaper.optimize.prescreen import equipment_findings, outside_tested_range, prescreen
+from airtaper.optimize.study import StudyOptions, run_optimization
+
+from .conftest import DEMO
+
+
+def _with_grid(layout, zone_id, count):
+    zones = tuple(replace(z, grid=replace(z.grid, count=count)) if z.id == zone_id else z for z in layout.zones)
+    return replace(layout, zones=zones)
+
+
+@pytest.fixture(scope="module")
+def demo6(demo):
+    return with_periods(demo, 6, steps_per_period=2)
+
+
+@pytest.fixture(scope="module")
+def short_z2(demo6):
+    """The demo with a quarter of Z2's diffusers: Z2 cannot hold 1 mg/L at the peak even at full air."""
+    return _with_grid(demo6, "Z2", 200)
+
+
+def test_the_demo_passes(demo6):
+    screen = prescreen(demo6)
+    assert screen["feasible"] and screen["findings"] == []
+    assert screen["full_air"]["nh4_mean_mg_L"] < demo6.limits.nh4_mean_mg_L
+
+
+def test_a_short_zone_is_named_with_every_span_and_its_size(short_z2):
+    screen = prescreen(short_z2)
+    assert not screen["feasible"]
+    (f,) = [f for f in screen["findings"] if f["limit"] == "do_min"]
+    assert f["zone"] == "Z2" and "Z2 cannot hold its DO minimum of 1 mg/L" in f["message"]
+    assert f["spans"] and all(sp["amount"] > 0.05 and sp["oxygen_fraction"] > 0 for sp in f["spans"])
+    # every span is in the message with its own size
+    for sp in f["spans"]:
+        assert f"{sp['amount']:.2f} mg/L short" in f["message"]
+    # the other zones are not blamed
+    assert all(g["zone"] in (None, "Z2") for g in screen["findings"])
+
+
+def test_optimize_stops_at_the_prescreen_with_exit_3_and_no_saving(short_z2):
+    res = run_optimization(short_z2, StudyOptions())
+    s = res.summary
+    assert res.exit_code == EXIT_INFEASIBLE and s["status"] == "infeasible"
+    assert s["prescreen"]["feasible"] is False
+    assert any(f["limit"] == "do_min" and f["zone"] == "Z2" for f in s["infeasibility"])
+    assert s["saving_percent"] is None and s["cost_saving_percent"] is None
+    assert "iterations" not in s["solver"]  # no optimisation was run
+    assert res.schedule.empty
+
+
+def test_check_reports_the_prescreen(tmp_path, capsys):
+    text = DEMO.read_text().replace('count = 800', 'count = 200')
+    (tmp_path / "short.toml").write_text(text)
+    shutil.copy(DEMO.parent / "demo_influent.csv", tmp_path / "demo_influent.csv")
+    assert main(["check", str(tmp_path / "short.toml")]) == EXIT_INFEASIBLE
+    out = capsys.readouterr().out
+    assert "pre-screen: the limits cannot all be met" in out and "zone Z2 cannot hold its DO minimum" in out
+    assert main(["check", "--no-prescreen", str(tmp_path / "short.toml")]) == EXIT_OK
+
+
+def test_blower_capacity_below_the_zones_minimum_airflow(demo6):
+    small = replace(demo6, blowers=(replace(demo6.blowers[0], airflow_min_Sm3_h=500.0, airflow_max_Sm3_h=1000.0),))
+    found = {f["limit"]: f for f in equipment_findings(small)}
+    # minimum airflows: 1 Sm3/h per diffuser x 2,880 diffusers (the grid sets it; demo.toml notes)
+    need = sum(small.zone_airflow_range_Sm3_h(z)[0] for z in small.zones if z.grid is not None)
+    assert need == pytest.approx(2880.0)
+    assert found["blower_max"]["spans"][0]["amount"] == pytest.approx(need / 1000.0 - 1.0)
+    assert "cannot supply even the zones' minimum airflows" in found["blower_max"]["message"]
+
+
+def test_blower_pressure_below_the_static_head(demo6):
+    # 5.2 m of water is 51 kPa of static head alone (rho g h, common practice (no source))
+    low = replace(demo6, blowers=tuple(replace(b, pressure_max_gauge_kPa=45.0) for b in demo6.blowers))
+    found = {f["limit"]: f for f in equipment_findings(low)}
+    assert "pressure_max" in found and found["pressure_max"]["spans"][0]["amount"] > 6.0
+    assert equipment_findings(demo6) == []
+
+
+def test_airflow_outside_the_tested_range_is_flagged_by_span(demo6):
+    z2 = next(z for z in demo6.zones if z.id == "Z2")
+    tested = [p.airflow_per_diffuser_Sm3_h for p in demo6.diffuser_type(z2.grid.type_id).sote_points]
+    per_diffuser = np.array([3.0, 9.0, 10.0, 3.0, 8.0, 3.0])
+    flags = outside_tested_range(demo6, {"Z2": per_diffuser * z2.grid.count}, np.arange(6), "optimum")
+    (f,) = flags
+    assert f["zone"] == "Z2" and f["side"] == "above" and f["tested_Sm3_h"] == [min(tested), max(tested)]
+    assert [(sp["start_h"], sp["end_h"]) for sp in f["spans"]] == [(4.0, 12.0), (16.0, 20.0)]
+    assert [sp["airflow_per_diffuser_Sm3_h"] for sp in f["spans"]] == pytest.approx([10.0, 8.0])
+    assert outside_tested_range(demo6, {"Z2": np.full(6, 3.0 * z2.grid.count)}, np.arange(6), "optimum") == []
+
+
+def test_a_full_air_day_that_cannot_be_simulated_leaves_the_equipment_bounds(demo6, monkeypatch):
+    import airtaper.optimize.simday as simday
+    from airtaper.simulate.steady import SteadyStateError
+
+    def fail(*args, **kwargs):
+        raise SteadyStateError("steady state not reached")
+
+    monkeypatch.setattr(simday, "simulate_day", fail)
+    screen = prescreen(demo6)
+    assert screen["feasible"] and screen["full_air"] is None
+    assert "only the equipment bounds were screened" in screen["note"]
