@@ -145,8 +145,11 @@ def test_demo_with_a_blower_out_of_service_is_feasible_and_costs_no_less(demo):
     assert less.summary["dispatch"]["blowers"]["B3"]["running_h"] == 0.0
     assert (less.blowers[less.blowers["blower"] == "B3"]["running"] == False).all()  # noqa: E712
     _machines_within_their_ranges(less, out)
-    # a subset of the machines cannot do better (up to the loop's tolerance)
-    assert less.summary["cost_per_day"] >= full.summary["cost_per_day"] * (1 - COST_RTOL)
+    # a subset of the machines cannot do better (up to the loop's tolerance): the staged optimum, the best
+    # accepted round, before the DO back-off re-solves (which move the two days differently)
+    def staged_cost(r):
+        return min(x["cost"] for x in r.summary["dispatch"]["rounds"] if x.get("accepted"))
+    assert staged_cost(less) >= staged_cost(full) * (1 - COST_RTOL)
 
 
 @pytest.mark.slow
