@@ -30,8 +30,13 @@ def _short_layout(tmp_path, extra: str = "", replace: tuple[str, str] | None = N
 def test_optimize_writes_every_output_and_a_summary(tmp_path, capsys):
     out = tmp_path / "out"
     assert main(["optimize", str(_short_layout(tmp_path)), "--out", str(out), "--quiet"]) == EXIT_OK
-    for name in ("schedule.csv", "header.csv", "timeseries.csv", "summary.json", "schedule.png", "report.html"):
+    for name in ("schedule.csv", "header.csv", "blowers.csv", "timeseries.csv", "summary.json", "schedule.png",
+                 "report.html"):
         assert (out / name).is_file(), name
+    blowers = pd.read_csv(out / "blowers.csv")
+    assert list(blowers.columns) == ["period_start_h", "period_end_h", "blower", "running", "airflow_Sm3_h",
+                                     "power_kW", "efficiency", "discharge_gauge_kPa", "starts"]
+    assert len(blowers) == 6 * 2 and set(blowers["blower"]) == {"PD1", "PD2"}
     summary = json.loads((out / "summary.json").read_text())
     assert summary["status"] == "optimal" and summary["verification"]["verified"] is True
     assert summary["energy_kWh_per_day"] < summary["baseline"]["energy_kWh_per_day"]
@@ -39,6 +44,7 @@ def test_optimize_writes_every_output_and_a_summary(tmp_path, capsys):
     assert len(sched) == 6 * 3 and set(sched["zone"]) == {"T1", "T2", "T3"}
     text = capsys.readouterr().out
     assert "saving" in text and "verified          yes" in text
+    assert "blowers           " in text and "staging           " in text
 
 
 @pytest.mark.solver

@@ -25,6 +25,11 @@ def _set(path, value):
     return apply
 
 
+def _all_out_of_service(d):
+    for b in d["blowers"]:
+        b["out_of_service"] = True
+
+
 def _typo(d):
     z = _zone(d, "Z3")
     z["volme_m3"] = z.pop("volume_m3")
@@ -153,6 +158,46 @@ CASES = [
      [E + "flows.recycles.IR.ratio: out of range (got -1.0, expected >= 0)"]),
     ("not-a-table", "three", _set(["influent"], 3000.0),
      [E + "influent: must be a table (got 3000.0, expected a table)"]),
+    ("blower-power-curve-not-convex", "demo", _set(["blowers", 0, "efficiency_points"], [
+        {"airflow_Sm3_h": 4500.0, "efficiency": 0.60}, {"airflow_Sm3_h": 6500.0, "efficiency": 0.66},
+        {"airflow_Sm3_h": 9000.0, "efficiency": 0.80}]),
+     [E + "blowers.B1.efficiency_points: wire power rises more slowly above 6500 Sm3/h than below it (not convex: "
+          "efficiency climbs too steeply there) (got [4500.0, 6500.0, 9000.0], expected wire power positive and "
+          "rising at a non-falling rate (convex) over the airflow range)"]),
+    ("blower-power-falls-with-airflow", "demo", _set(["blowers", 0, "efficiency_points"], [
+        {"airflow_Sm3_h": 4500.0, "efficiency": 0.50}, {"airflow_Sm3_h": 6500.0, "efficiency": 0.75},
+        {"airflow_Sm3_h": 9000.0, "efficiency": 0.76}]),
+     [E + "blowers.B1.efficiency_points: wire power does not rise with airflow between 4500 and 6500 Sm3/h (got "
+          "[4500.0, 6500.0, 9000.0], expected wire power positive and rising at a non-falling rate (convex) over "
+          "the airflow range)"]),
+    ("blower-out-of-service-not-boolean", "demo", _set(["blowers", 0, "out_of_service"], "yes"),
+     [E + "blowers.B1.out_of_service: must be true or false (got 'yes', expected true or false)"]),
+    ("blower-min-up-negative", "demo", _set(["blowers", 0, "min_up_h"], -1.0),
+     [E + "blowers.B1.min_up_h: out of range (got -1.0, expected >= 0 and <= 24)"]),
+    ("blower-min-down-above-a-day", "demo", _set(["blowers", 0, "min_down_h"], 30.0),
+     [E + "blowers.B1.min_down_h: out of range (got 30.0, expected >= 0 and <= 24)"]),
+    ("blower-starts-not-integer", "demo", _set(["blowers", 0, "max_starts_per_day"], 2.5),
+     [E + "blowers.B1.max_starts_per_day: must be an integer (got 2.5, expected an integer)"]),
+    ("blower-start-cost-negative", "demo", _set(["blowers", 0, "start_cost"], -3.0),
+     [E + "blowers.B1.start_cost: out of range (got -3.0, expected >= 0)"]),
+    ("switches-on-an-aerated-zone", "demo", _set(["zones:Z3", "max_switches_per_day"], 3),
+     [E + 'zones.Z3.max_switches_per_day: only a swing zone is switched on and off (got 3, expected no such key, '
+          'or kind = "swing")']),
+    ("blower-range-points-pressure-falls", "demo", _set(["blowers", 0, "airflow_range_points"], [
+        {"discharge_gauge_kPa": 60.0, "airflow_min_Sm3_h": 4500.0, "airflow_max_Sm3_h": 9000.0},
+        {"discharge_gauge_kPa": 55.0, "airflow_min_Sm3_h": 5000.0, "airflow_max_Sm3_h": 8000.0}]),
+     [E + "blowers.B1.airflow_range_points[2].discharge_gauge_kPa: pressure must increase from point to point "
+          "(got 55.0, expected > 60)"]),
+    ("blower-range-point-outside-the-range", "demo", _set(["blowers", 0, "airflow_range_points"], [
+        {"discharge_gauge_kPa": 50.0, "airflow_min_Sm3_h": 4000.0, "airflow_max_Sm3_h": 9000.0},
+        {"discharge_gauge_kPa": 70.0, "airflow_min_Sm3_h": 5000.0, "airflow_max_Sm3_h": 4800.0}]),
+     [E + "blowers.B1.airflow_range_points[1]: range outside the blower's airflow_min_Sm3_h-airflow_max_Sm3_h "
+          "(got '4000-9000', expected within 4500-9000)",
+      E + "blowers.B1.airflow_range_points[2].airflow_max_Sm3_h: must exceed the point's airflow_min_Sm3_h "
+          "(got 4800.0, expected > 5000)"]),
+    ("every-blower-out-of-service", "demo", _all_out_of_service,
+     [E + "blowers: every blower is out of service (got '3 out of service', expected at least one blower in "
+          "service)"]),
 ]
 
 

@@ -15,9 +15,10 @@ from airtaper.layout.types import Layout
 LAYOUTS = Path(__file__).resolve().parents[2] / "layouts"
 DEMO = LAYOUTS / "demo.toml"
 THREE_TANK = LAYOUTS / "three_tank.toml"
+FENWHISTLE = LAYOUTS / "fenwhistle.toml"
 
 
-@pytest.mark.parametrize("path", [DEMO, THREE_TANK], ids=["demo", "three_tank"])
+@pytest.mark.parametrize("path", [DEMO, THREE_TANK, FENWHISTLE], ids=["demo", "three_tank", "fenwhistle"])
 def test_round_trip_gives_an_equal_layout(path):
     warnings: list = []
     layout = load_layout(path, warnings=warnings)
@@ -26,7 +27,7 @@ def test_round_trip_gives_an_equal_layout(path):
     assert again == layout
 
 
-@pytest.mark.parametrize("path", [DEMO, THREE_TANK], ids=["demo", "three_tank"])
+@pytest.mark.parametrize("path", [DEMO, THREE_TANK, FENWHISTLE], ids=["demo", "three_tank", "fenwhistle"])
 def test_dump_is_plain_data(path):
     data = layout_to_data(load_layout(path))
 
@@ -246,3 +247,23 @@ def test_two_efficiency_forms_at_once_is_an_error(three_data, errors_of):
     data["blowers"][0]["efficiency"] = 0.6
     lines = errors_of(data)
     assert any("give exactly one of efficiency, efficiency_points, power_points" in line for line in lines)
+
+
+def test_staging_keys_are_read_with_their_defaults():
+    """The Fenwhistle layout sets every staging key; the demo sets none and gets the defaults."""
+    fen = load_layout(FENWHISTLE)
+    pd1, t1, s1 = fen.blowers
+    assert (t1.min_up_h, t1.min_down_h, t1.max_starts_per_day, t1.start_cost) == (3.0, 2.0, 2, 1.5)
+    assert [(r.discharge_gauge_kPa, r.airflow_min_Sm3_h, r.airflow_max_Sm3_h) for r in t1.range_points] == [
+        (45.0, 700.0, 1800.0), (65.0, 900.0, 1500.0)]
+    assert s1.power_points and not pd1.out_of_service
+    swing = fen.zone("Z2")
+    assert swing.kind == "swing" and swing.max_switches_per_day == 4
+    assert swing.do_min_mg_L == 0.5  # its own, held while aerated
+    text = FENWHISTLE.read_text().replace("do_min_mg_L = 0.5  #", "#")
+    assert parse_layout(tomllib.loads(text), str(FENWHISTLE), LAYOUTS).zone("Z2").do_min_mg_L == \
+        fen.zone("Z3").do_min_mg_L  # without one: the layout's DO minimum
+    demo = load_layout(DEMO)
+    for b in demo.blowers:
+        assert (b.out_of_service, b.min_up_h, b.min_down_h, b.max_starts_per_day, b.start_cost, b.range_points) == (
+            False, D.BLOWER_MIN_UP_h, D.BLOWER_MIN_DOWN_h, None, D.BLOWER_START_COST, ())

@@ -49,7 +49,7 @@ def test_optimum_beats_the_baseline_and_verifies(solved, three_tank_diurnal):
 
 
 def test_outputs_have_the_promised_columns(solved):
-    assert list(solved.schedule.columns) == ["period_start_h", "period_end_h", "zone", "airflow_Sm3_h",
+    assert list(solved.schedule.columns) == ["period_start_h", "period_end_h", "zone", "aerated", "airflow_Sm3_h",
                                              "airflow_per_diffuser_Sm3_h", "do_min_mg_L", "do_mean_mg_L",
                                              "nh4_mean_mg_L", "otr_kg_h", "baseline_airflow_Sm3_h",
                                              "baseline_do_mean_mg_L"]
@@ -59,7 +59,7 @@ def test_outputs_have_the_promised_columns(solved):
     period_h = solved.schedule["period_end_h"].iloc[0] - solved.schedule["period_start_h"].iloc[0]
     assert (solved.header["baseline_power_kW"] * period_h).sum() == pytest.approx(base, rel=1e-9)
     for key in ("status", "energy_kWh_per_day", "cost_per_day", "baseline", "saving_percent", "effluent",
-                "min_do_margin_mg_L", "verification", "marginal_costs", "solver"):
+                "min_do_margin_mg_L", "verification", "marginal_costs", "solver", "dispatch"):
         assert key in solved.summary
     assert {"iterations", "timings"} <= set(solved.summary["solver"])
     # the header holds the most demanding zone plus the minimum valve loss (tight at the optimum)
@@ -163,11 +163,11 @@ def test_retry_ladder_moves_to_the_next_rung_after_a_failure(three_tank_6):
     from airtaper.optimize.initialise import LADDER, Rung
 
     ladder = (Rung("starved", {"max_iter": 2}), LADDER[2])  # the second rung starts from a square solve
-    res = run_optimization(three_tank_6, StudyOptions(marginal=False, ladder=ladder))
+    res = run_optimization(three_tank_6, StudyOptions(marginal=False, ladder=ladder, staging=False))
     attempts = res.summary["solver"]["attempts"]
     assert attempts[0]["rung"] == "starved" and attempts[0]["status"] == "iteration_limit"
     assert attempts[-1]["rung"] == LADDER[2].name and attempts[-1]["status"] == "optimal"
     assert any(a["rung"].startswith("square solve") for a in attempts)
     assert res.exit_code == EXIT_OK
-    reference = run_optimization(three_tank_6, StudyOptions(marginal=False, verify=False))
+    reference = run_optimization(three_tank_6, StudyOptions(marginal=False, verify=False, staging=False))
     assert res.summary["energy_kWh_per_day"] == pytest.approx(reference.summary["energy_kWh_per_day"], rel=1e-5)

@@ -157,8 +157,8 @@ def test_optional_inputs_absent_are_left_out_without_error(demo_copy, tmp_path):
     s = json.loads((demo_copy / "summary.json").read_text())
     s["layout"] = str(tmp_path / "moved-away.toml")
     (demo_copy / "summary.json").write_text(json.dumps(s))
-    for name in ("header.csv", "timeseries.csv"):
-        (demo_copy / name).unlink()
+    for name in ("header.csv", "timeseries.csv", "blowers.csv"):
+        (demo_copy / name).unlink(missing_ok=True)
     sched = pd.read_csv(demo_copy / "schedule.csv")
     sched.drop(columns=[c for c in sched if c.startswith("baseline_")]).to_csv(demo_copy / "schedule.csv", index=False)
     paths = write_report(demo_copy)

@@ -3,7 +3,7 @@
 Runs :func:`airtaper.optimize.study.run_optimization` (baseline under uniform DO
 control, the optimisation on the cyclic model, verification by the independent
 simulator, marginal costs) with a progress display on stderr, writes
-``schedule.csv``, ``header.csv``, ``timeseries.csv``, ``summary.json``,
+``schedule.csv``, ``header.csv``, ``blowers.csv``, ``timeseries.csv``, ``summary.json``,
 ``schedule.png`` and ``report.html`` to DIR as one set (:mod:`airtaper.report.outputs`:
 the folder is checked before the solve, appears complete or not at all, and an
 earlier run's folder is kept unless ``--overwrite``), and prints a short
@@ -80,7 +80,8 @@ def run(args) -> int:
         progress.phase("writing outputs")
         summary = {**result.summary, **out.provenance()}
         write_study_outputs(out.staging, schedule=result.schedule, header=result.header,
-                            timeseries=result.timeseries, summary=summary, figure=not args.no_figure)
+                            timeseries=result.timeseries, summary=summary, figure=not args.no_figure,
+                            blowers=result.blowers)
     print(console_summary(summary))
     if summary.get("status") == "unverified":
         print("WARNING: the optimised schedule breaks a limit when re-simulated by the independent simulator; "

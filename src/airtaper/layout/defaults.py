@@ -60,6 +60,12 @@ MIN_VALVE_LOSS_kPa = 0.5
 AGGREGATE_EFFICIENCY_NO_BLOWERS = 0.7
 #: Blower kinds the format knows.
 BLOWER_KINDS = ("centrifugal", "turbo", "positive_displacement", "screw")
+#: Minimum run and rest times of a blower once started or stopped, h: none unless the
+#: layout gives them (the motor maker's starts-per-hour rule is site data). Common practice (no source).
+BLOWER_MIN_UP_h = 0.0
+BLOWER_MIN_DOWN_h = 0.0
+#: Cost of one blower start, currency: none unless given. Common practice (no source).
+BLOWER_START_COST = 0.0
 
 # --- inlet air --------------------------------------------------------------
 #: Inlet air temperature when none is given, degC (the temperature of the

@@ -56,6 +56,8 @@ def layout_to_data(layout: Layout) -> dict:
                                   "fixed_kla_per_d": z.fixed_kla_per_d, "fixed_do_sat_mg_L": z.fixed_do_sat_mg_L}))
             if z.grid is not None:
                 zd["grid"] = {"type": z.grid.type_id, "count": z.grid.count, "submergence_m": z.grid.submergence_m}
+            if z.max_switches_per_day is not None:
+                zd["max_switches_per_day"] = z.max_switches_per_day
         zones.append(zd)
     data["zones"] = zones
     flows: dict = {"step_feed": [{"zone": s.zone, "fraction": s.fraction} for s in layout.step_feed]}
@@ -91,6 +93,14 @@ def layout_to_data(layout: Layout) -> dict:
         else:
             bd["efficiency_points"] = [{"airflow_Sm3_h": e.airflow_Sm3_h, "efficiency": e.efficiency}
                                        for e in b.efficiency_points]
+        bd.update({"out_of_service": b.out_of_service, "min_up_h": b.min_up_h, "min_down_h": b.min_down_h,
+                   "start_cost": b.start_cost})
+        if b.max_starts_per_day is not None:
+            bd["max_starts_per_day"] = b.max_starts_per_day
+        if b.range_points:
+            bd["airflow_range_points"] = [{"discharge_gauge_kPa": r.discharge_gauge_kPa,
+                                           "airflow_min_Sm3_h": r.airflow_min_Sm3_h,
+                                           "airflow_max_Sm3_h": r.airflow_max_Sm3_h} for r in b.range_points]
         blowers.append(bd)
     if blowers:
         data["blowers"] = blowers

@@ -20,7 +20,7 @@ from airtaper.layout import defaults as D
 from airtaper.layout import graph
 from airtaper.layout.influent import csv_display_path, read_influent
 from airtaper.physics.atmosphere import barometric_pressure_kPa
-from airtaper.physics.blower import efficiency_from_power
+from airtaper.physics.blower import efficiency_from_power, equivalent_curve, power_curve_problems
 from airtaper.layout.reader import (
     Collector, LayoutWarning, Table, UnreadableInput, check_number, did_you_mean, fixed, is_number, read_input_file,
     valid_id,
@@ -29,6 +29,7 @@ from airtaper.layout.types import (
     Blower, Clarifier, DiffuserGrid, DiffuserType, EfficiencyPoint, Header, HeadlossPoint,
     Horizon, Influent, InletAir, Kinetics, Layout, Limits, Operation, Plant, PowerPoint, Recycle, ReturnSludge, Settling,
     SotePoint, StepFeed, Tariff, Wasting, Zone,
+    RangePoint,
 )
 
 ZONE_KINDS = ("aerated", "anoxic", "swing")
@@ -397,6 +398,10 @@ class _Parser:
         valve = t.number("valve_capacity_Sm3_h", None, gt=0.0)
         kla = t.number("fixed_kla_per_d", None, gt=0.0, le=5000.0)
         do_sat = t.number("fixed_do_sat_mg_L", None, gt=0.0, le=60.0)
+        switches = t.integer("max_switches_per_day", None, ge=0, le=1000)
+        if switches is not None and kind != "swing":
+            col.error(t.key("max_switches_per_day"), "only a swing zone is switched on and off", switches,
+                      'no such key, or kind = "swing"')
         grid_t = t.table("grid")
         grid = self.section(grid_t, self.grid, depth, types) if grid_t is not None else None
         if kind == "anoxic":
@@ -406,7 +411,7 @@ class _Parser:
                     col.error(t.key(k), "an anoxic zone takes no air", None,
                               'no such key, or kind = "swing" for a zone that can be aerated')
         elif kind in ("aerated", "swing"):
-            if kind == "aerated" and do_min is None and "do_min_mg_L" not in t.data:
+            if do_min is None and "do_min_mg_L" not in t.data:  # a swing zone holds it while aerated
                 do_min = self.do_min_default
             has_grid = "grid" in t.data
             if not has_grid and kla is None and "fixed_kla_per_d" not in t.data:
@@ -432,7 +437,8 @@ class _Parser:
         if kind == "anoxic":
             do_min = do_max = None
         return Zone(ident, kind, volume, depth, area, do_min, do_max, vals["alpha"], vals["fouling"], vals["beta"],
-                    grid, valve, vals["drop_leg_k_kPa_per_Sm3_h2"], vals["mixing_airflow_min_Sm3_h_m2"], kla, do_sat)
+                    grid, valve, vals["drop_leg_k_kPa_per_Sm3_h2"], vals["mixing_airflow_min_Sm3_h_m2"], kla, do_sat,
+                    switches if kind == "swing" else None)
 
     def grid(self, t: Table, depth, types: dict) -> DiffuserGrid:
         type_id = t.string("type")
@@ -616,7 +622,41 @@ class _Parser:
             if p is not None and self._increasing_airflow(t, "power_points", p, qmin, qmax):
                 pts = self._efficiency_from_power_points(t, p)
                 power_pts = p if pts else ()
-        return Blower(ident, kind, qmin, qmax, pmax, eff, pts, power_pts)
+        if qmin is not None and qmax is not None and qmax > qmin and (eff is not None or pts):
+            curve = equivalent_curve(qmin, qmax, eff, [(e.airflow_Sm3_h, e.efficiency) for e in pts])
+            for why in power_curve_problems(curve):
+                col.error(t.key(given[0]), why, [round(v, 1) for v in curve.airflow_Sm3_h],
+                          "wire power positive and rising at a non-falling rate (convex) over the airflow range")
+        ranges = ()
+        if t.has("airflow_range_points"):
+            ranges = self._range_points(t, qmin, qmax) or ()
+        oos = t.boolean("out_of_service", False)
+        up = t.number("min_up_h", D.BLOWER_MIN_UP_h, ge=0.0, le=24.0)
+        down = t.number("min_down_h", D.BLOWER_MIN_DOWN_h, ge=0.0, le=24.0)
+        starts = t.integer("max_starts_per_day", None, ge=0, le=1000)
+        start_cost = t.number("start_cost", D.BLOWER_START_COST, ge=0.0)
+        return Blower(ident, kind, qmin, qmax, pmax, eff, pts, power_pts, oos, up, down, starts, start_cost, ranges)
+
+    def _range_points(self, t: Table, qmin, qmax):
+        """Airflow range vs discharge pressure: pressure increasing, each range inside the nominal one."""
+        key = t.key("airflow_range_points")
+        pts = self._points(t, "airflow_range_points", {"discharge_gauge_kPa": {"gt": 0.0, "le": 300.0},
+                                                      "airflow_min_Sm3_h": {"ge": 0.0},
+                                                      "airflow_max_Sm3_h": {"gt": 0.0}}, RangePoint)
+        if pts is None:
+            return None
+        before = self.col.count
+        for i, r in enumerate(pts, start=1):
+            if i > 1 and r.discharge_gauge_kPa <= pts[i - 2].discharge_gauge_kPa:
+                self.col.error(f"{key}[{i}].discharge_gauge_kPa", "pressure must increase from point to point",
+                               r.discharge_gauge_kPa, f"> {pts[i - 2].discharge_gauge_kPa:g}")
+            if r.airflow_max_Sm3_h <= r.airflow_min_Sm3_h:
+                self.col.error(f"{key}[{i}].airflow_max_Sm3_h", "must exceed the point's airflow_min_Sm3_h",
+                               r.airflow_max_Sm3_h, f"> {r.airflow_min_Sm3_h:g}")
+            elif qmin is not None and qmax is not None and (r.airflow_min_Sm3_h < qmin or r.airflow_max_Sm3_h > qmax):
+                self.col.error(f"{key}[{i}]", "range outside the blower's airflow_min_Sm3_h-airflow_max_Sm3_h",
+                               f"{r.airflow_min_Sm3_h:g}-{r.airflow_max_Sm3_h:g}", f"within {qmin:g}-{qmax:g}")
+        return None if self.col.count > before else pts
 
     def _increasing_airflow(self, t: Table, name: str, p, qmin, qmax) -> bool:
         col = self.col
@@ -824,8 +864,11 @@ class _Parser:
                               f"> {fixed(static, 1)} kPa")
             if len(zones) == n_zones and all(z.grid is None or z.grid.type_id in types for z in zones):
                 need = sum(_airflow_range(z, types[z.grid.type_id])[0] for z in gridded if z.kind == "aerated")
-                have = sum(b.airflow_max_Sm3_h for b in blowers)
-                if have < need:
+                have = sum(b.airflow_max_Sm3_h for b in blowers if not b.out_of_service)
+                if all(b.out_of_service for b in blowers):
+                    col.error("blowers", "every blower is out of service", f"{len(blowers)} out of service",
+                              "at least one blower in service")
+                elif have < need:
                     col.error("blowers", "all blowers together cannot supply the zones' minimum airflow",
                               f"{have:g} Sm3/h", f">= {fixed(need, 0)} Sm3/h")
         if influent is not None:

@@ -79,6 +79,7 @@ class Zone:
     mixing_airflow_min_Sm3_h_m2: float  # mixing minimum per floor area (aerated zones)
     fixed_kla_per_d: float | None  # benchmark plants, mechanical aerators
     fixed_do_sat_mg_L: float | None
+    max_switches_per_day: int | None = None  # swing zones: on/off changes per day (cyclic), None = no limit
 
     @property
     def aerated(self) -> bool:
@@ -164,6 +165,15 @@ class PowerPoint:
 
 
 @dataclass(frozen=True)
+class RangePoint:
+    """A blower's airflow range when running at one discharge pressure (turndown and capacity)."""
+
+    discharge_gauge_kPa: float  # above site atmosphere
+    airflow_min_Sm3_h: float
+    airflow_max_Sm3_h: float
+
+
+@dataclass(frozen=True)
 class Blower:
     id: str
     kind: str  # e.g. "centrifugal", "turbo", "positive_displacement", "screw"
@@ -173,6 +183,13 @@ class Blower:
     efficiency: float | None  # constant wire-to-air efficiency, or
     efficiency_points: tuple[EfficiencyPoint, ...]  # a curve vs airflow (derived when power points are given)
     power_points: tuple[PowerPoint, ...] = ()  # as given in the layout, if the curve came from power points
+    out_of_service: bool = False  # never dispatched
+    min_up_h: float = 0.0  # once started, runs at least this long
+    min_down_h: float = 0.0  # once stopped, stays off at least this long
+    max_starts_per_day: int | None = None  # None = no limit (starts counted around the periodic day)
+    start_cost: float = 0.0  # currency per start (wear, inrush), added to the cost objective
+    range_points: tuple[RangePoint, ...] = ()  # airflow range vs discharge pressure (empty: the range above);
+    # linear between points, held beyond the ends (airtaper.optimize.dispatch.Machine.range_at)
 
 
 @dataclass(frozen=True)
@@ -325,12 +342,11 @@ class Layout:
         return 100.0 * zone.grid.count * dtype.membrane_area_m2 / zone.area_m2
 
     def zone_airflow_range_Sm3_h(self, zone: Zone) -> tuple[float, float]:
-        """(min, max) zone airflow allowed by its diffusers, mixing and valve."""
+        """(min, max) zone airflow allowed by its diffusers, mixing and valve (a swing zone's when on)."""
         if zone.grid is None or not zone.aerated:
             return (0.0, 0.0)
         dtype = self.diffuser_type(zone.grid.type_id)
-        lo = max(zone.grid.count * dtype.airflow_min_Sm3_h,
-                 zone.mixing_airflow_min_Sm3_h_m2 * zone.area_m2 if zone.kind == "aerated" else 0.0)
+        lo = max(zone.grid.count * dtype.airflow_min_Sm3_h, zone.mixing_airflow_min_Sm3_h_m2 * zone.area_m2)
         hi = zone.grid.count * dtype.airflow_max_Sm3_h
         if zone.valve_capacity_Sm3_h is not None:
             hi = min(hi, zone.valve_capacity_Sm3_h)

@@ -112,10 +112,15 @@ class AirSide:
     def header_pressure_kPa(self, airflow_by_zone: dict) -> np.ndarray:
         """Header gauge pressure by the most-open-valve rule (numbers only), kPa.
 
-        ``airflow_by_zone``: zone id -> airflow array (same shape for every zone).
+        ``airflow_by_zone``: zone id -> airflow array (same shape for every zone). Zones
+        with no air do not count (their valve is shut).
         """
-        req = [np.asarray(self.zone_required_pressure_kPa(z, np.asarray(airflow_by_zone[z.id], dtype=float)))
-               for z in self.zones]
+        req = []
+        for z in self.zones:  # a zone with no air (a swing zone switched off) has its valve shut
+            q = np.asarray(airflow_by_zone[z.id], dtype=float)
+            lo = self.layout.diffuser_type(z.grid.type_id).airflow_min_Sm3_h * z.grid.count
+            p = np.asarray(self.zone_required_pressure_kPa(z, np.where(q > 0.0, q, lo)))
+            req.append(np.where(q > 0.0, p, 0.0))
         return np.max(np.stack(req), axis=0) + self.layout.header.min_valve_loss_kPa
 
     def discharge_pressure_kPa(self, header_kPa, total_airflow_Sm3_h):

@@ -37,6 +37,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+import numpy as np
 import pyomo.environ as pyo
 
 from airtaper import units
@@ -44,6 +45,8 @@ from airtaper.errors import ModelError
 from airtaper.layout.types import Layout
 from airtaper.model.data import GridAeration
 from airtaper.optimize.airside import AirSide
+from airtaper.optimize.dispatch import envelope_lines, machines_of, max_lines
+from airtaper.physics.blower import blower_power_kW
 from airtaper.physics.transfer import field_kla_per_h
 
 #: Numerical box on airflow, as a multiple of the zone's hardware maximum: wide enough
@@ -93,11 +96,12 @@ class ProblemSettings:
     smoothing_weight: float
     reference: float  # objective normaliser (baseline energy, kWh/d, or cost/d)
     mixing_airflow_min_Sm3_h_m2: dict = field(default_factory=dict)  # zone -> value (override)
+    staging: bool = True  # False: the blowers as one machine at the aggregate efficiency, swing zones relaxed
 
 
 def settings_for(layout: Layout, reference: float, *, objective: str | None = None,
-                 smoothing_weight: float | None = None, mixing_airflow_min_Sm3_h_m2: float | None = None
-                 ) -> ProblemSettings:
+                 smoothing_weight: float | None = None, mixing_airflow_min_Sm3_h_m2: float | None = None,
+                 staging: bool = True) -> ProblemSettings:
     """Settings from the layout's [operation], with optional overrides."""
     obj = objective or layout.operation.objective
     if obj == "cost" and layout.tariff is None:
@@ -110,7 +114,7 @@ def settings_for(layout: Layout, reference: float, *, objective: str | None = No
                 else float(mixing_airflow_min_Sm3_h_m2)
     if not reference > 0:
         raise ModelError(f"objective reference must be positive, got {reference!r}")
-    return ProblemSettings(obj, w, float(reference), mix)
+    return ProblemSettings(obj, w, float(reference), mix, bool(staging))
 
 
 # --- helpers read by rules ----------------------------------------------------------------
@@ -186,14 +190,33 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
     b.air = air
     b.settings = settings
     b.ZONES = pyo.Set(initialize=grid, ordered=True)
-    do_zones = [z for z in grid if layout.zone(z).kind == "aerated" and layout.zone(z).do_min_mg_L is not None]
+    do_zones = [z for z in grid if layout.zone(z).do_min_mg_L is not None]
     do_max_zones = [z for z in grid if layout.zone(z).do_max_mg_L is not None]
     b.DO_ZONES = pyo.Set(initialize=do_zones, ordered=True)
     b.DO_MAX_ZONES = pyo.Set(initialize=do_max_zones, ordered=True)
-    b.MIN_ZONES = pyo.Set(initialize=[z for z in grid if layout.zone(z).kind == "aerated"], ordered=True)
+    b.MIN_ZONES = pyo.Set(initialize=grid, ordered=True)
+    b.SWING_ZONES = pyo.Set(initialize=[z for z in grid if layout.zone(z).kind == "swing"], ordered=True)
     b.VALVE_ZONES = pyo.Set(initialize=[z for z in grid if layout.zone(z).valve_capacity_Sm3_h is not None],
                             ordered=True)
     P = list(m.PERIODS)
+
+    # --- swing zones: on/off per period as fixed 0/1 variables (a relaxed solve has them 0 and the
+    # airflow free from 0; :mod:`airtaper.optimize.staging` fixes the states and re-solves) ------
+    b.swing_states = None  # zone -> (n_periods,) bool once decided
+    b.swing_on = pyo.Var(b.SWING_ZONES, m.PERIODS, bounds=(0.0, 1.0), initialize=0.0)
+    b.swing_do_on = pyo.Var(m.STEPS, b.SWING_ZONES, bounds=(0.0, 1.0), initialize=0.0)  # DO minimum held
+    for v in list(b.swing_on.values()) + list(b.swing_do_on.values()):
+        v.fix()
+
+    b.swing_air = pyo.Var(b.SWING_ZONES, m.PERIODS, bounds=(0.0, 1.0), initialize=1.0)  # 0: off, valve shut
+    for v in b.swing_air.values():
+        v.fix()
+
+    def on(z, p):
+        return b.swing_on[z, p] if z in b.SWING_ZONES else 1.0
+
+    def air_on(z, p):
+        return b.swing_air[z, p] if z in b.SWING_ZONES else 1.0
 
     # --- decisions ------------------------------------------------------------------------
     b.diffuser_count = pyo.Param(b.ZONES, mutable=True, initialize={z: float(layout.zone(z).grid.count) for z in grid})
@@ -216,11 +239,42 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
         rule=lambda b, z, p: air.zone_required_pressure_kPa(layout.zone(z), m.airflow_Sm3_h[z, p], b.diffuser_count[z]))
     b.header_kPa = pyo.Var(m.PERIODS, bounds=(0.0, None), initialize=lambda b, p: max(
         pyo.value(b.zone_pressure_kPa[z, p]) for z in grid) + layout.header.min_valve_loss_kPa)
-    b.valve_loss = pyo.Constraint(
-        b.ZONES, m.PERIODS,
-        rule=lambda b, z, p: b.header_kPa[p] - b.zone_pressure_kPa[z, p] >= layout.header.min_valve_loss_kPa)
-    b.power_kW = pyo.Expression(
-        m.PERIODS, rule=lambda b, p: air.power_kW(b.total_airflow_Sm3_h[p], b.header_kPa[p], p - 1))
+    b.valve_loss = pyo.Constraint(  # a swing zone switched off has its valve shut (swing_air 0)
+        b.ZONES, m.PERIODS, rule=lambda b, z, p: b.header_kPa[p] - air_on(z, p) * b.zone_pressure_kPa[z, p]
+        >= air_on(z, p) * layout.header.min_valve_loss_kPa)
+    # --- blower power --------------------------------------------------------------------
+    # Staged: the power of the period's running machines is the largest of the lines of their
+    # least-power curve (convex, see airtaper.optimize.dispatch), in equivalent airflow
+    # a + b Q, times the isentropic kW per Sm3/h at the period's discharge pressure. The line
+    # coefficients and the set's airflow range and pressure limit are fixed variables (values
+    # change between staging rounds, the derivative structure does not); the first solve uses
+    # the convex envelope over every set of machines (and no air).
+    b.machines = machines_of(layout)
+    in_service = any(not mm.out_of_service for mm in b.machines)
+    b.staged = in_service and settings.staging
+    b.LINES = pyo.RangeSet(max_lines(b.machines) if b.staged else 1)
+    b.line_a = pyo.Var(m.PERIODS, b.LINES, initialize=0.0)
+    b.line_b = pyo.Var(m.PERIODS, b.LINES, initialize=0.0)
+    avail = [mm for mm in b.machines if not mm.out_of_service]
+    b.staging_min_Sm3_h = pyo.Var(m.PERIODS, initialize=min((mm.airflow_min_Sm3_h for mm in avail), default=0.0))
+    b.staging_max_Sm3_h = pyo.Var(m.PERIODS, initialize=sum(mm.airflow_max_Sm3_h for mm in avail))
+    b.staging_pressure_max_kPa = pyo.Var(
+        m.PERIODS, initialize=max((mm.pressure_max_gauge_kPa for mm in avail), default=0.0))
+    for comp in (b.line_a, b.line_b, b.staging_min_Sm3_h, b.staging_max_Sm3_h, b.staging_pressure_max_kPa):
+        for v in comp.values():
+            v.fix()
+    if b.staged:
+        set_power_lines(b, {p: envelope_lines(b.machines) for p in P})
+        b.power_kW = pyo.Var(m.PERIODS, bounds=(0.0, None))
+        b.power_line_kW = pyo.Expression(m.PERIODS, b.LINES, rule=lambda b, p, k: blower_power_kW(
+            b.line_a[p, k] + b.line_b[p, k] * b.total_airflow_Sm3_h[p], float(layout.inlet_air.temperature_C[p - 1]),
+            air.inlet_pressure_kPa, air.discharge_pressure_kPa(b.header_kPa[p], b.total_airflow_Sm3_h[p]), 1.0))
+        b.power_curve = pyo.Constraint(m.PERIODS, b.LINES, rule=lambda b, p, k: b.power_kW[p] >= b.power_line_kW[p, k])
+        for p in P:
+            b.power_kW[p].set_value(max_power_line_kW(b, p))
+    else:
+        b.power_kW = pyo.Expression(
+            m.PERIODS, rule=lambda b, p: air.power_kW(b.total_airflow_Sm3_h[p], b.header_kPa[p], p - 1))
     b.energy_kWh_per_day = pyo.Expression(expr=sum(b.power_kW[p] for p in P) * air.period_h)
 
     # --- limits, each with a slack fixed at zero ---------------------------------------
@@ -240,7 +294,8 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
     b.do_backoff_mg_L = pyo.Param(b.DO_ZONES, m.PERIODS, mutable=True, initialize=0.0)
     s = slack("do_min_slack", m.STEPS, b.DO_ZONES)
     b.do_min = pyo.Constraint(m.STEPS, b.DO_ZONES, rule=lambda b, t, z: (
-        so(t, z) + s[t, z] >= b.do_min_mg_L[z] + b.do_backoff_mg_L[z, m.period_of_step[t]]))
+        so(t, z) + s[t, z] >= (b.do_min_mg_L[z] + b.do_backoff_mg_L[z, m.period_of_step[t]])
+        * (b.swing_do_on[t, z] if z in b.SWING_ZONES else 1.0)))
     b.do_max_mg_L = pyo.Param(b.DO_MAX_ZONES, mutable=True,
                               initialize={z: float(layout.zone(z).do_max_mg_L) for z in do_max_zones})
     b.do_max_backoff_mg_L = pyo.Param(b.DO_MAX_ZONES, m.PERIODS, mutable=True, initialize=0.0)
@@ -278,24 +333,24 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
         q[z, p] <= b.diffuser_count[z] * dtype(z).airflow_max_Sm3_h * (1.0 + s6[z, p])))
     s7 = slack("diffuser_min_slack", b.MIN_ZONES, m.PERIODS)
     b.diffuser_min = pyo.Constraint(b.MIN_ZONES, m.PERIODS, rule=lambda b, z, p: (
-        q[z, p] >= b.diffuser_count[z] * dtype(z).airflow_min_Sm3_h * (1.0 - s7[z, p])))
+        q[z, p] >= on(z, p) * b.diffuser_count[z] * dtype(z).airflow_min_Sm3_h * (1.0 - s7[z, p])))
     s8 = slack("mixing_min_slack", b.MIN_ZONES, m.PERIODS)
     b.mixing_min = pyo.Constraint(b.MIN_ZONES, m.PERIODS, rule=lambda b, z, p: (
-        q[z, p] >= settings.mixing_airflow_min_Sm3_h_m2[z] * layout.zone(z).area_m2 * (1.0 - s8[z, p])))
+        q[z, p] >= on(z, p) * settings.mixing_airflow_min_Sm3_h_m2[z] * layout.zone(z).area_m2 * (1.0 - s8[z, p])))
     s9 = slack("valve_max_slack", b.VALVE_ZONES, m.PERIODS)
     b.valve_max = pyo.Constraint(b.VALVE_ZONES, m.PERIODS, rule=lambda b, z, p: (
         q[z, p] <= layout.zone(z).valve_capacity_Sm3_h * (1.0 + s9[z, p])))
     s10 = slack("blower_max_slack", m.PERIODS)
     s11 = slack("blower_min_slack", m.PERIODS)
     s12 = slack("pressure_max_slack", m.PERIODS)
-    if layout.blowers:
+    if in_service:
         b.blower_max = pyo.Constraint(m.PERIODS, rule=lambda b, p: (
-            b.total_airflow_Sm3_h[p] <= air.blower_capacity_Sm3_h * (1.0 + s10[p])))
+            b.total_airflow_Sm3_h[p] <= b.staging_max_Sm3_h[p] * (1.0 + s10[p])))
         b.blower_min = pyo.Constraint(m.PERIODS, rule=lambda b, p: (
-            b.total_airflow_Sm3_h[p] >= air.blower_turndown_Sm3_h * (1.0 - s11[p])))
+            b.total_airflow_Sm3_h[p] >= b.staging_min_Sm3_h[p] * (1.0 - s11[p])))
         b.pressure_max = pyo.Constraint(m.PERIODS, rule=lambda b, p: (
             air.discharge_gauge_kPa(b.header_kPa[p], b.total_airflow_Sm3_h[p]) - s12[p]
-            <= air.blower_pressure_max_kPa))
+            <= b.staging_pressure_max_kPa[p]))
 
     # --- objective --------------------------------------------------------------------------
     if settings.objective == "cost":
@@ -318,6 +373,54 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
     b.objective = pyo.Objective(expr=b.goal / settings.reference + b.smoothing_weight * b.smoothing,
                                 sense=pyo.minimize)
     return b
+
+
+def set_swing_states(m, states: dict | None) -> None:
+    """Fix the on/off state of every swing zone per period (None: relaxed, airflow free from 0).
+
+    Off: airflow fixed at 0 (no air: the zone's kinetics are anoxic by the ASM1 switching
+    functions). On: the diffuser and mixing minima hold, and the DO minimum holds from the
+    second integration step of a spell (the first step after switching on is the DO's
+    rise from about 0; its length is a fraction of the period).
+    """
+    b = m.opt
+    b.swing_states = None if states is None else {z: np.asarray(states[z], dtype=bool) for z in b.SWING_ZONES}
+    n = len(m.PERIODS)
+    for z in b.SWING_ZONES:
+        on = np.zeros(n, dtype=bool) if states is None else b.swing_states[z]
+        for p in m.PERIODS:
+            b.swing_on[z, p].fix(float(on[p - 1]))
+            b.swing_air[z, p].fix(float(states is None or on[p - 1]))
+            v = m.airflow_Sm3_h[z, p]
+            if states is not None and not on[p - 1]:
+                v.fix(0.0)
+            elif v.fixed:
+                v.unfix()
+        for t in m.STEPS:
+            p = m.period_of_step[t]
+            hold = on[p - 1] and (on[p - 2] or t not in m.step_points.get(_first_step(m, p), ()))
+            b.swing_do_on[t, z].fix(float(hold))
+
+
+def _first_step(m, p):
+    """The first point of period ``p``'s first step (key of ``m.step_points``)."""
+    return min(steps_of_period(m, p))
+
+
+def set_power_lines(b, lines_by_period: dict) -> None:
+    """Set the power-curve lines of every period (unused rows get the zero line, ``power >= 0``)."""
+    for p, lines in lines_by_period.items():
+        if len(lines) > len(b.LINES):
+            raise ModelError(f"period {p}: {len(lines)} power-curve lines, room for {len(b.LINES)}")
+        for k in b.LINES:
+            a, c = lines[k - 1] if k <= len(lines) else (0.0, 0.0)
+            b.line_a[p, k].fix(float(a))
+            b.line_b[p, k].fix(float(c))
+
+
+def max_power_line_kW(b, p) -> float:
+    """The largest power line of period ``p`` at the current airflow and header pressure, kW."""
+    return max(0.0, max(float(pyo.value(b.power_line_kW[p, k])) for k in b.LINES))
 
 
 def active_limit_groups(b):

@@ -38,10 +38,12 @@ from airtaper.optimize.baseline import Baseline, complying_baseline, run_baselin
 from airtaper.optimize.figures import day_figures
 from airtaper.optimize.initialise import BASE_OPTIONS, LADDER, Rung, point_hours, start_airflow, start_from_day
 from airtaper.optimize.marginal import marginal_costs
-from airtaper.optimize.problem import attach_problem, fix_slacks, point_weights, settings_for
+from airtaper.optimize.problem import attach_problem, fix_slacks, max_power_line_kW, point_weights, settings_for
 from airtaper.optimize.prescreen import outside_tested_range, prescreen
 from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.scaling import apply_scaling
+from airtaper.optimize.staging import (day_dispatch, dispatch_summary, dispatch_table, feasibility_check,
+                                       final_dispatch, run_staging)
 from airtaper.optimize.verify import verify_day
 from airtaper.solve import solve_nlp
 
@@ -66,6 +68,7 @@ class StudyOptions:
     complying_baseline: bool = True  # when the baseline breaks a limit, search the lowest complying setpoint
     marginal: bool = True
     prescreen: bool = True  # equipment bounds and a full-air day before anything else (optimize/prescreen.py)
+    staging: bool = True  # False: blowers as one machine, swing zones relaxed (the comparison in benchmarks/)
     ipopt_options: dict = field(default_factory=dict)
     ladder: tuple[Rung, ...] = LADDER
 
@@ -78,6 +81,7 @@ class StudyResult:
     summary: dict
     exit_code: int
     study: "DiurnalOptimisation" = field(repr=False, default=None)
+    blowers: pd.DataFrame | None = None  # blowers.csv: one row per period and blower (staged layouts)
 
 
 def model_steps_per_period(layout: Layout, options: StudyOptions) -> int:
@@ -140,7 +144,8 @@ class DiurnalOptimisation:
         start_from_day(m, base.day, start_airflow(m, base.day))
         settings = settings_for(self.layout, self.reference(), objective=self.options.objective,
                                 smoothing_weight=self.options.smoothing_weight,
-                                mixing_airflow_min_Sm3_h_m2=self.options.mixing_airflow_min_Sm3_h_m2)
+                                mixing_airflow_min_Sm3_h_m2=self.options.mixing_airflow_min_Sm3_h_m2,
+                                staging=self.options.staging)
         attach_problem(m, self.layout, settings)
         self.timings["initialise_s"] = time.perf_counter() - t
         self.progress.phase("converting the model and building derivatives")
@@ -173,9 +178,15 @@ class DiurnalOptimisation:
         for z in b.ZONES:
             for p in m.PERIODS:
                 m.airflow_Sm3_h[z, p].unfix()
+        for z, on in (b.swing_states or {}).items():  # a swing zone switched off gets no air
+            for p in m.PERIODS:
+                if not on[p - 1]:
+                    m.airflow_Sm3_h[z, p].fix(0.0)
         for p in m.PERIODS:
             b.header_kPa[p].set_value(max(pyo.value(b.zone_pressure_kPa[z, p]) for z in b.ZONES)
                                       + self.layout.header.min_valve_loss_kPa)
+            if b.staged:
+                b.power_kW[p].set_value(max_power_line_kW(b, p))
         if b.component("peak_kW") is not None and not b.peak_kW.fixed:
             b.peak_kW.set_value(max(pyo.value(b.power_kW[p]) for p in m.PERIODS))
 
@@ -293,6 +304,7 @@ class DiurnalOptimisation:
         sched = []
         w = point_weights(m)
         hours = point_hours(m)
+        states = b.swing_states or {}
         for p in m.PERIODS:
             steps = [t for t in m.STEPS if m.period_of_step[t] == p]
             wp = np.array([w[t] for t in steps])
@@ -302,6 +314,7 @@ class DiurnalOptimisation:
                 do = np.array([pyo.value(m.conc[t, z, "SO"]) for t in steps])
                 sched.append({
                     "period_start_h": (p - 1) * period_h, "period_end_h": p * period_h, "zone": z,
+                    "aerated": bool(states[z][p - 1]) if z in states else q > 0.0,
                     "airflow_Sm3_h": q, "airflow_per_diffuser_Sm3_h": q / pyo.value(b.diffuser_count[z]),
                     "do_min_mg_L": float(do.min()), "do_mean_mg_L": float(wp @ do),
                     "nh4_mean_mg_L": float(wp @ np.array([pyo.value(m.conc[t, z, "SNH"]) for t in steps])),
@@ -384,6 +397,15 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     messages = [] if screen is None or not screen["note"] else [f"pre-screen: {screen['note']}"]
     infeasibility = []
     status = "optimal"
+    staging = None
+    objective = study.m.opt.settings.objective
+    if result is not None and study.m.opt.staged:
+        staging = run_staging(study, result)
+        result = staging.result
+        if staging.findings:
+            status = "infeasible"
+            infeasibility = staging.findings
+            messages.extend(f["message"] for f in staging.findings)
     if result is None:
         r, infeasibility = study.elastic()
         if not r.ok:
@@ -427,6 +449,35 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     energy = study.energy_kWh_per_day()
     power = study.power_by_period()
     cost = study.m.opt.air.cost(power)
+    blowers_table, dispatch = None, None
+    if staging is not None and staging.dispatch is not None:
+        dp = staging.dispatch if staging.findings else final_dispatch(study.m, staging.dispatch)
+        blowers_table = dispatch_table(layout, dp)
+        dispatch = dispatch_summary(layout, dp)
+        energy = dispatch["energy_kWh_per_day"]
+        cost = dispatch["cost_per_day"]
+        dispatch["rounds"] = staging.rounds
+        dispatch["converged"] = staging.converged
+        dispatch["stopped"] = staging.reason
+        dispatch["swing_zones"] = {z: {"aerated_periods": [int(i) + 1 for i in np.flatnonzero(on)],
+                                       "switches": int(np.sum(on != np.roll(on, 1)))}
+                                   for z, on in (staging.swing_states or {}).items()}
+        if status == "optimal" and result is not None:
+            breaches = feasibility_check(study.m, dp)
+            dispatch["feasibility_breaches"] = breaches
+            if breaches:
+                status = "unverified"
+                messages.append("WARNING: the schedule breaks a machine or grid range: " + "; ".join(breaches))
+        bd = day_dispatch(layout, base.day, objective)
+        if bd is not None:  # the baseline billed by the same dispatch rule: like with like
+            bill = bd.bill(layout)
+            base.day.energy_kWh_per_day = bill["energy_kWh_per_day"]
+            base.day.cost_per_day = bill["cost_per_day"]
+            header["baseline_power_kW"] = bd.total_power_kW
+            base_dispatch = dispatch_summary(layout, bd)
+            base_dispatch["shortfall"] = [f["message"] for f in bd.findings]
+            messages.extend(f"baseline: {f['message']}" for f in bd.findings)
+            dispatch["baseline"] = base_dispatch
     marginal = []
     if opts.marginal and status == "optimal" and result is not None and result.ok:
         marginal = marginal_costs(study.m, result, energy_kWh_per_day=energy, cost_per_day=cost)
@@ -461,8 +512,10 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         "currency": layout.tariff.currency if layout.tariff else "",
         "energy_kWh_per_day": energy,
         "cost_per_day": cost,
-        "baseline": base.summary(),
+        "baseline": dict(base.summary(), **({"dispatch": dispatch.pop("baseline")}
+                                              if dispatch and "baseline" in dispatch else {})),
         **savings,
+        "dispatch": dispatch,
         "effluent": {k: figs[k] for k in ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L")},
         # the re-simulated day's margins (continuous time) when verified, else the optimiser's
         "min_do_margin_mg_L": figs["min_do_margin_mg_L"] if verification is None
@@ -495,7 +548,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         "messages": messages,
     }
     return StudyResult(schedule=schedule, header=header, timeseries=timeseries, summary=_jsonable(summary),
-                       exit_code=exit_code, study=study)
+                       exit_code=exit_code, study=study, blowers=blowers_table)
 
 
 def _node_airflow(day) -> dict:

@@ -255,3 +255,170 @@ def blower_power_textbook_kW(airflow_Sm3_h, inlet_temperature_C, inlet_pressure_
 def energy_kWh(power_kW, hours):
     """Energy over a period, kWh: ``E = P t`` (elementwise; sum over periods yourself)."""
     return units.kW_h_to_kWh(power_kW, hours)
+
+
+# --- per-machine power curves for staging -----------------------------------------------------
+#
+# At one discharge pressure and inlet temperature the isentropic power is linear in the
+# airflow, so a machine's wire power is ``P = w(T1, p2/p1) x g(q)`` with the
+# *equivalent airflow* ``g(q) = q / eta(q)`` (Sm3/h): the airflow an ideal machine would
+# compress for the same power. The wire-to-air efficiency is taken as independent of the
+# discharge pressure over the operating band (the efficiency points are one curve), so the
+# same ``g`` serves every period's header pressure; ``w`` carries the pressure and
+# temperature. ``g`` is the piecewise-linear interpolation of the efficiency points,
+# extended linearly to the machine's airflow range. It must be convex (power rising at a
+# non-falling rate): then the best split of a total airflow among running machines fills
+# the cheapest segments first, the aggregate curve of a set of machines is convex too,
+# and the dispatch needs no special-ordered sets.
+
+
+@dataclass(frozen=True)
+class EquivalentCurve:
+    """Convex piecewise-linear equivalent airflow ``g(q) = q / eta(q)`` of one machine, Sm3/h.
+
+    ``airflow_Sm3_h`` are the breakpoints (increasing, first the machine's minimum, last
+    its maximum), ``equivalent_Sm3_h`` the values of ``g`` there.
+    """
+
+    airflow_Sm3_h: tuple[float, ...]
+    equivalent_Sm3_h: tuple[float, ...]
+
+    @property
+    def airflow_min_Sm3_h(self) -> float:
+        return self.airflow_Sm3_h[0]
+
+    @property
+    def airflow_max_Sm3_h(self) -> float:
+        return self.airflow_Sm3_h[-1]
+
+    def slopes(self) -> np.ndarray:
+        q, g = np.asarray(self.airflow_Sm3_h), np.asarray(self.equivalent_Sm3_h)
+        return np.diff(g) / np.diff(q)
+
+    def equivalent(self, airflow_Sm3_h):
+        """``g(q)`` (numbers or arrays), linear between the breakpoints and beyond the ends."""
+        q = np.asarray(airflow_Sm3_h, dtype=float)
+        xs, gs = np.asarray(self.airflow_Sm3_h), np.asarray(self.equivalent_Sm3_h)
+        if xs.size == 1:
+            return np.full_like(q, gs[0]) if q.ndim else float(gs[0])
+        s = self.slopes()
+        out = np.interp(q, xs, gs)
+        out = np.where(q < xs[0], gs[0] + s[0] * (q - xs[0]), out)
+        out = np.where(q > xs[-1], gs[-1] + s[-1] * (q - xs[-1]), out)
+        return out if out.ndim else float(out)
+
+    def efficiency(self, airflow_Sm3_h):
+        """Wire-to-air efficiency ``q / g(q)`` consistent with the curve (q > 0)."""
+        q = np.asarray(airflow_Sm3_h, dtype=float)
+        return q / self.equivalent(q)
+
+
+def equivalent_curve(airflow_min_Sm3_h: float, airflow_max_Sm3_h: float, efficiency=None,
+                     points=()) -> EquivalentCurve:
+    """The equivalent-airflow curve of a machine from a constant efficiency or efficiency points.
+
+    Parameters
+    ----------
+    airflow_min_Sm3_h, airflow_max_Sm3_h : float
+        The machine's airflow range when running, Sm3/h.
+    efficiency : float, optional
+        Constant wire-to-air efficiency (then ``g = q / eta``, a straight line).
+    points : sequence of (airflow_Sm3_h, efficiency)
+        Efficiency points with increasing airflow; ``g`` is interpolated through
+        ``q_i / eta_i`` and extended along the end segments to the range.
+
+    Notes
+    -----
+    Not checked here: :func:`power_curve_problems` says whether the curve can be used.
+    """
+    lo, hi = float(airflow_min_Sm3_h), float(airflow_max_Sm3_h)
+    if efficiency is not None:
+        return EquivalentCurve((lo, hi), (lo / efficiency, hi / efficiency))
+    q = np.array([p[0] for p in points], dtype=float)
+    g = q / np.array([p[1] for p in points], dtype=float)
+    base = EquivalentCurve(tuple(q.tolist()), tuple(g.tolist()))
+    inside = (q > lo) & (q < hi)
+    xs = np.concatenate([[lo], q[inside], [hi]])
+    return EquivalentCurve(tuple(float(x) for x in xs), tuple(float(v) for v in base.equivalent(xs)))
+
+
+#: Relative tolerance of the convexity check of a power curve (round-off of the points).
+CONVEXITY_RTOL = 1e-9
+
+
+def power_curve_problems(curve: EquivalentCurve) -> list[str]:
+    """Why a machine's power curve cannot be used for staging (empty when it can).
+
+    The wire power must be positive over the range, rise with airflow, and rise at a
+    non-falling rate (convex); see the notes above :class:`EquivalentCurve`.
+    """
+    q, g = np.asarray(curve.airflow_Sm3_h), np.asarray(curve.equivalent_Sm3_h)
+    out = []
+    if g[0] < 0 or (g[0] == 0 and q[0] > 0) or (g <= 0)[1:].any():
+        out.append(f"wire power is not positive over the range (at {q[int(np.argmin(g))]:g} Sm3/h)")
+        return out
+    s = curve.slopes()
+    if (s <= 0).any():
+        i = int(np.argmax(s <= 0))
+        out.append(f"wire power does not rise with airflow between {q[i]:g} and {q[i + 1]:g} Sm3/h")
+        return out
+    for i in range(1, s.size):
+        if s[i] < s[i - 1] * (1.0 - CONVEXITY_RTOL):
+            out.append(f"wire power rises more slowly above {q[i]:g} Sm3/h than below it (not convex: "
+                       f"efficiency climbs too steeply there)")
+            break
+    return out
+
+
+def aggregate_curve(curves) -> EquivalentCurve:
+    """Least equivalent airflow of a set of running machines sharing a total airflow (convex PWL).
+
+    Every machine starts at its minimum; the extra airflow fills the machines' segments
+    in order of rising slope (optimal for convex curves: the infimal convolution).
+    """
+    curves = list(curves)
+    q0 = sum(c.airflow_min_Sm3_h for c in curves)
+    g0 = sum(c.equivalent_Sm3_h[0] for c in curves)
+    segs = sorted((s, dq) for c in curves for s, dq in zip(c.slopes(), np.diff(c.airflow_Sm3_h)))
+    xs, gs = [q0], [g0]
+    for s, dq in segs:
+        xs.append(xs[-1] + float(dq))
+        gs.append(gs[-1] + float(s * dq))
+    return EquivalentCurve(tuple(xs), tuple(gs))
+
+
+def split_airflow(curves, total_Sm3_h: float) -> np.ndarray:
+    """Airflow of each running machine at the least total power for a total airflow, Sm3/h.
+
+    The total is clipped into the set's range; fills segments by rising slope as
+    :func:`aggregate_curve`.
+    """
+    curves = list(curves)
+    q = np.array([c.airflow_min_Sm3_h for c in curves], dtype=float)
+    rest = max(0.0, float(total_Sm3_h) - float(q.sum()))
+    segs = sorted((s, j, dq) for j, c in enumerate(curves) for s, dq in zip(c.slopes(), np.diff(c.airflow_Sm3_h)))
+    for _, j, dq in segs:
+        take = min(rest, float(dq))
+        q[j] += take
+        rest -= take
+        if rest <= 0:
+            break
+    return q
+
+
+def lower_convex_hull(points) -> list[tuple[float, float]]:
+    """Lower convex hull of (x, y) points, by increasing x (Andrew's monotone chain)."""
+    lowest: dict[float, float] = {}
+    for x, y in points:
+        x, y = float(x), float(y)
+        lowest[x] = min(y, lowest.get(x, y))
+    hull: list[tuple[float, float]] = []
+    for p in sorted(lowest.items()):
+        while len(hull) >= 2:
+            (x1, y1), (x2, y2) = hull[-2], hull[-1]
+            if (x2 - x1) * (p[1] - y1) - (y2 - y1) * (p[0] - x1) <= 0:
+                hull.pop()
+            else:
+                break
+        hull.append(p)
+    return hull

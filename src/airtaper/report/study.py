@@ -56,6 +56,30 @@ def _do_margin_line(optimiser, resimulated) -> str:
     return f"min DO margin     {fmt_margin(resimulated)} mg/L re-simulated (optimiser {fmt_margin(optimiser)} mg/L)"
 
 
+def _dispatch_lines(dp: dict | None, cur: str) -> list[str]:
+    """The blower dispatch in a few console lines."""
+    if not dp:
+        return []
+    blowers = dp.get("blowers") or {}
+    used = [f"{b} {_fmt(v.get('running_h'), 0)} h ({v.get('starts')} start{'s' if v.get('starts') != 1 else ''})"
+            for b, v in blowers.items() if v.get("running_h")]
+    idle = [b + (" (out of service)" if v.get("out_of_service") else "") for b, v in blowers.items()
+            if not v.get("running_h")]
+    lines = [f"blowers           {', '.join(used) or 'none running'}"
+             + (f"; idle {', '.join(idle)}" if idle else "")
+             + f"; peak {_fmt(dp.get('peak_kW'), 1)} kW in period {dp.get('peak_period')}"]
+    if dp.get("cost_per_day") is not None:
+        lines.append(f"bill              energy {_fmt(dp.get('energy_cost'), 2)} + demand {_fmt(dp.get('demand_charge'), 2)}"
+                     f" + starts {_fmt(dp.get('start_costs'), 2)} = {_fmt(dp.get('cost_per_day'), 2)} {cur}/d")
+    rounds = [r for r in dp.get("rounds") or [] if isinstance(r, dict) and "cost" in r]
+    lines.append(f"staging           {len(rounds)} dispatch round{'s' if len(rounds) != 1 else ''}"
+                 f" ({dp.get('stopped', '')})")
+    for z, v in (dp.get("swing_zones") or {}).items():
+        lines.append(f"swing zone        {z} aerated in {len(v.get('aerated_periods') or [])} periods, "
+                     f"{v.get('switches')} switches per day")
+    return lines
+
+
 def console_summary(summary: dict) -> str:
     """A short plain-text summary for the terminal."""
     base = summary.get("baseline", {}) or {}
@@ -81,6 +105,7 @@ def console_summary(summary: dict) -> str:
                         ver.get("min_do_margin_mg_L")),
         f"verified          {_fmt(ver.get('verified'))}",
     ]
+    lines.extend(_dispatch_lines(summary.get("dispatch"), cur))
     for item in summary.get("marginal_costs") or []:
         slack = "" if item.get("binding", True) else " (not binding)"
         lines.append(f"marginal          {item.get('limit')} {item.get('where', '')}: "

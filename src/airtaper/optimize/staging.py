@@ -1,0 +1,357 @@
+"""The outer loop that settles the integer decisions (blower staging, swing zones) with the process.
+
+Scheme (docs/optimization.md, "Blower staging and swing zones"):
+
+0. **relaxed solve** (done by :meth:`DiurnalOptimisation.solve`): swing zones free from 0 to
+   their maximum with no minimum, and the blower power the convex envelope of the least
+   power over every set of machines in service (and of no air) - a convex under-estimate
+   of the staged power, so the relaxed optimum is a lower bound of the cost it can reach;
+2. **swing states**: each swing zone's relaxed airflow rounded to on/off within its
+   switches limit (:func:`airtaper.optimize.dispatch.swing_states`, leaning to "on",
+   :data:`SWING_ON_FRACTION`), then fixed and the schedule re-solved warm with the blowers
+   still relaxed (the states change the air demand the dispatch will see); if that fails,
+   the swing zones are aerated all day and it is solved again;
+3. **dispatch round** ``r = 1, 2, ...``: the machines chosen by the MILP
+   (:func:`airtaper.optimize.dispatch.solve_dispatch`) on the current airflow and
+   discharge pressure of every period are fixed in the nonlinear schedule (their
+   least-power curve, airflow range and pressure limit) and the schedule is re-solved
+   warm. The loop stops when the dispatch repeats (nothing left to change), when the
+   total cost changes by less than :data:`COST_RTOL` between rounds, after
+   :data:`MAX_ROUNDS` rounds, or when a round costs more than the best so far (that round
+   is undone: the result never costs more than the best round).
+
+Why this scheme: the process model is nonlinear and large (tens of thousands of
+variables), the integer decisions are few and enter only through the air side; a
+mixed-integer nonlinear solve of the whole day is out of reach, while each dispatch is
+a MILP of a few hundred binaries solved to proven optimality in well under a second. Each
+nonlinear re-solve starts from the previous round (warm), so later rounds are cheap.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+import pyomo.environ as pyo
+
+from airtaper.layout.types import Layout
+from airtaper.optimize.airside import AirSide
+from airtaper.optimize.dispatch import Bill, Dispatch, evaluate, machines_of, set_lines, solve_dispatch, swing_states
+from airtaper.optimize.initialise import Rung
+from airtaper.optimize.problem import max_power_line_kW, set_power_lines, set_swing_states
+from airtaper.physics.blower import blower_power_kW
+
+#: Relative change of the total cost below which the rounds stop (0.5 %).
+COST_RTOL = 0.005
+#: Most dispatch rounds (each one a warm re-solve of the nonlinear schedule).
+MAX_ROUNDS = 4
+#: Relaxed airflow, as a fraction of a swing zone's minimum when on, at which rounding leans to "on":
+#: the relaxed fraction f is mapped to min(1, f / (2 x this)) before rounding at 1/2. Rounding
+#: up is the safe side (an aerated spell at its minimum gives at least the relaxed oxygen); a
+#: zone is switched off only where the relaxed schedule barely aerates it. Common practice (no source).
+SWING_ON_FRACTION = 0.1
+#: The solve with the rounded swing states: one warm attempt with an iteration cap (a feasible pattern
+#: converges in a few tens of iterations; an infeasible one would wander for hundreds before the
+#: fallback, every swing zone aerated all day, is tried down the whole retry ladder).
+SWING_RUNG = Rung("swing states", {"mu_strategy": "adaptive", "max_iter": 150})
+#: Relative tolerance of the post-solve feasibility check of machines and grids.
+CHECK_RTOL = 1e-4
+
+
+@dataclass
+class StagingOutcome:
+    result: object  # solver result of the accepted round (None: the fixed problem failed)
+    dispatch: Dispatch | None
+    rounds: list = field(default_factory=list)
+    findings: list = field(default_factory=list)
+    converged: bool = False
+    reason: str = ""
+    swing_states: dict | None = None
+
+
+# --- air state of a schedule -----------------------------------------------------------------
+def kw_per_equivalent(layout: Layout, air: AirSide, discharge_gauge_kPa) -> np.ndarray:
+    """Isentropic kW per Sm3/h of equivalent airflow at each period's discharge pressure and inlet temperature."""
+    d = np.asarray(discharge_gauge_kPa, dtype=float)
+    t_in = np.asarray(layout.inlet_air.temperature_C, dtype=float)
+    return np.asarray(blower_power_kW(1.0, t_in, air.inlet_pressure_kPa, air.site_pressure_kPa + d, 1.0), dtype=float)
+
+
+def model_air_state(m) -> dict:
+    """Per period: total airflow, discharge gauge pressure, kW per equivalent Sm3/h, air the zones could still take."""
+    b = m.opt
+    layout, air = b.layout, b.air
+    P = list(m.PERIODS)
+    q = np.array([float(pyo.value(b.total_airflow_Sm3_h[p])) for p in P])
+    header = np.array([float(b.header_kPa[p].value) for p in P])
+    d = np.asarray(air.discharge_gauge_kPa(header, q), dtype=float)
+    room = np.zeros(len(P))
+    for z in b.ZONES:
+        hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))[1]
+        for i, p in enumerate(P):
+            if not (b.swing_states is not None and z in b.swing_states and not b.swing_states[z][i]):
+                room[i] += max(0.0, hi - float(m.airflow_Sm3_h[z, p].value))
+    return {"demand_Sm3_h": q, "discharge_gauge_kPa": d, "kw_per_equivalent": kw_per_equivalent(layout, air, d),
+            "excess_max_Sm3_h": room}
+
+
+def day_dispatch(layout: Layout, day, objective: str) -> Dispatch | None:
+    """The same dispatch rule applied to a simulated day (the baseline): per-period mean airflow and pressure."""
+    machines = machines_of(layout)
+    air = AirSide(layout)
+    if not air.zones or not any(not mm.out_of_service for mm in machines):
+        return None
+    n = layout.horizon.n_periods
+    flows = {z.id: np.asarray(day.airflow[z.id], dtype=float) for z in air.zones}
+    header = air.header_pressure_kPa(flows)
+    total = np.sum([flows[z] for z in flows], axis=0)
+    d_step = np.asarray(air.discharge_gauge_kPa(header, total), dtype=float)
+    per = np.asarray(day.period, dtype=int)
+    q = np.array([total[per == k].mean() for k in range(n)])
+    d = np.array([d_step[per == k].mean() for k in range(n)])
+    room = np.zeros(n)
+    for z in air.zones:
+        if z.kind == "aerated":
+            hi = layout.zone_airflow_range_Sm3_h(z)[1]
+            room += np.maximum(0.0, hi - np.array([flows[z.id][per == k].mean() for k in range(n)]))
+    return solve_dispatch(machines, q, d, kw_per_equivalent(layout, air, d), Bill.of(layout, objective),
+                          layout.horizon.period_h, room)
+
+
+# --- applying decisions ------------------------------------------------------------------------
+def apply_dispatch(m, dp: Dispatch) -> None:
+    """Fix the running machines of every period in the nonlinear schedule (see module notes)."""
+    b = m.opt
+    lines = {}
+    for i, p in enumerate(m.PERIODS):
+        on = dp.running[:, i]
+        sel = [mm for mm, r in zip(dp.machines, on) if r]
+        d = float(dp.discharge_gauge_kPa[i])
+        lines[p] = set_lines(dp.machines, on, d) if sel else []
+        b.staging_min_Sm3_h[p].fix(sum(mm.range_at(d)[0] for mm in sel))
+        b.staging_max_Sm3_h[p].fix(sum(mm.range_at(d)[1] for mm in sel))
+        b.staging_pressure_max_kPa[p].fix(min((mm.pressure_max_gauge_kPa for mm in sel), default=0.0))
+    set_power_lines(b, lines)
+    for p in m.PERIODS:
+        b.power_kW[p].set_value(max_power_line_kW(b, p))
+    if b.component("peak_kW") is not None and not b.peak_kW.fixed:
+        b.peak_kW.set_value(max(b.power_kW[p].value for p in m.PERIODS))
+
+
+def final_dispatch(m, dp: Dispatch) -> Dispatch:
+    """The accepted on/off decisions evaluated at the solved schedule's airflow and pressure."""
+    s = model_air_state(m)
+    return evaluate(dp.machines, dp.running, s["demand_Sm3_h"], s["discharge_gauge_kPa"], s["kw_per_equivalent"],
+                    float(m.opt.air.period_h), status=dp.status, seconds=dp.seconds)
+
+
+def round_cost(layout: Layout, dp: Dispatch, objective: str) -> float:
+    bill = dp.bill(layout)
+    return bill["cost_per_day"] if objective == "cost" and bill["cost_per_day"] is not None \
+        else bill["energy_kWh_per_day"]
+
+
+def _snapshot(m):
+    return [(v, v.value, v.fixed) for v in m.component_data_objects(pyo.Var, descend_into=True)]
+
+
+def _restore(snap) -> None:
+    for v, val, fixed in snap:
+        v.set_value(val, skip_validation=True)
+        if fixed and not v.fixed:
+            v.fix()
+        elif not fixed and v.fixed:
+            v.unfix()
+
+
+# --- the loop ----------------------------------------------------------------------------------
+def relaxed_swing_fractions(m) -> dict:
+    """Swing zone -> relaxed airflow per period as a fraction of its minimum when on."""
+    b = m.opt
+    out = {}
+    for z in b.SWING_ZONES:
+        zone = b.layout.zone(z)
+        dt = b.layout.diffuser_type(zone.grid.type_id)
+        qmin = max(pyo.value(b.diffuser_count[z]) * dt.airflow_min_Sm3_h,
+                   b.settings.mixing_airflow_min_Sm3_h_m2[z] * zone.area_m2)
+        out[z] = np.array([float(m.airflow_Sm3_h[z, p].value) for p in m.PERIODS]) / max(qmin, 1e-9)
+    return out
+
+
+def run_staging(study, first_result) -> StagingOutcome:
+    """Settle the swing states and the blower dispatch on a relaxed solve (module notes)."""
+    m = study.m
+    b = m.opt
+    layout = study.layout
+    objective = b.settings.objective
+    bill = Bill.of(layout, objective)
+    prog = study.progress
+    out = StagingOutcome(result=first_result, dispatch=None)
+    rounds = out.rounds
+    if b.SWING_ZONES:
+        # the swing states change the air demand (minimum when on, none when off): re-solve with them
+        # fixed and the blowers still relaxed before the first dispatch
+        t0 = time.perf_counter()
+        frac = relaxed_swing_fractions(m)
+        states = {z: swing_states(np.minimum(1.0, frac[z] / (2.0 * SWING_ON_FRACTION)),
+                                  layout.zone(z).max_switches_per_day) for z in b.SWING_ZONES}
+        set_swing_states(m, states)
+        prog.phase("swing zones: " + ", ".join(f"{z} aerated in {int(v.sum())} periods" for z, v in states.items()))
+        res = study._ipopt(SWING_RUNG, warm_start=True)
+        rounds.append({"round": 0, "step": "swing states fixed, blowers relaxed", "status": res.status.value if res
+                       else "failed", "seconds": time.perf_counter() - t0})
+        if (res is None or not res.ok) and not all(v.all() for v in states.values()):
+            # the rounding switched a swing zone off where the process needs it: keep it on all day
+            t0 = time.perf_counter()
+            set_swing_states(m, {z: np.ones(len(m.PERIODS), dtype=bool) for z in b.SWING_ZONES})
+            res = study.resolve(warm=False)
+            rounds.append({"round": 0, "step": "swing zones aerated all day", "status": res.status.value if res
+                           else "failed", "seconds": time.perf_counter() - t0})
+        out.swing_states = b.swing_states
+        if res is None or not res.ok:
+            out.result = None
+            out.reason = "the schedule with the swing states fixed could not be solved"
+            return out
+        out.result = res
+    best = None  # (cost, snapshot, dispatch, result, swing states)
+    last_cost = None
+    r = 1
+    while r <= MAX_ROUNDS:
+        t0 = time.perf_counter()
+        state = model_air_state(m)
+        dp = solve_dispatch(b.machines, state["demand_Sm3_h"], state["discharge_gauge_kPa"],
+                            state["kw_per_equivalent"], bill, float(b.air.period_h), state["excess_max_Sm3_h"])
+        if dp.findings:
+            out.findings = dp.findings
+            out.dispatch = dp
+            out.reason = "the blowers cannot meet the air demand"
+            rounds.append({"round": r, "dispatch_s": dp.seconds, "shortfall_periods": len(dp.findings)})
+            return out
+        if best is not None and dp.same_decisions(best[2]):
+            out.converged = True
+            out.reason = "the dispatch repeats"
+            break
+        apply_dispatch(m, dp)
+        prog.phase(f"staging round {r}: " + ", ".join(
+            f"{mm.id} {int(dp.running[j].sum())} periods" for j, mm in enumerate(dp.machines)))
+        # round 1 may go down the retry ladder; later rounds get one warm attempt (the best round stands)
+        res = study.resolve(warm=True) if best is None else study._ipopt(study.options.ladder[0], warm_start=True)
+        if res is None or not res.ok:
+            rounds.append({"round": r, "status": "failed", "seconds": time.perf_counter() - t0})
+            if best is None:
+                out.result = None
+                out.dispatch = dp
+                out.reason = "the schedule with the machines fixed could not be solved"
+                return out
+            out.reason = "a round failed; the best round is kept"
+            break
+        fd = final_dispatch(m, dp)
+        cost = round_cost(layout, fd, objective)
+        rounds.append({"round": r, "status": res.status.value, "cost": cost, "iterations": res.iterations,
+                       "running": {mm.id: int(fd.running[j].sum()) for j, mm in enumerate(fd.machines)},
+                       "starts": int(fd.starts.sum()), "seconds": time.perf_counter() - t0})
+        if best is not None and cost > best[0]:
+            rounds[-1]["accepted"] = False
+            out.reason = "a round cost more than the best; undone"
+            break
+        rounds[-1]["accepted"] = True
+        best = (cost, _snapshot(m), dp, res, b.swing_states)
+        if last_cost is not None and abs(cost - last_cost) <= COST_RTOL * abs(last_cost):
+            out.converged = True
+            out.reason = f"the cost changed by less than {100 * COST_RTOL:g} %"
+            break
+        last_cost = cost
+        r += 1
+    else:
+        out.reason = f"{MAX_ROUNDS} rounds"
+    cost, snap, dp, res, swing = best
+    _restore(snap)
+    b.swing_states = swing
+    out.result = res
+    study.result = res
+    out.dispatch = final_dispatch(m, dp)
+    out.swing_states = swing
+    return out
+
+
+def feasibility_check(m, dp: Dispatch) -> list[str]:
+    """Every running machine within its airflow range and pressure limit; every grid within its range when on,
+    at no air when off. Returns the breaches (empty when feasible)."""
+    b = m.opt
+    layout = b.layout
+    bad = []
+    tol = CHECK_RTOL
+    for i, p in enumerate(m.PERIODS):
+        if dp.shortfall_Sm3_h[i] > tol * max(dp.demand_Sm3_h[i], 1.0):
+            bad.append(f"period {p}: {dp.shortfall_Sm3_h[i]:.1f} Sm3/h beyond the running blowers' range")
+        delivered = dp.airflow_Sm3_h[:, i].sum()
+        if delivered > dp.demand_Sm3_h[i] * (1 + tol) + 1e-6:
+            bad.append(f"period {p}: the running blowers' minimum {delivered:.0f} Sm3/h exceeds the schedule's "
+                       f"{dp.demand_Sm3_h[i]:.0f} Sm3/h")
+        for j, mm in enumerate(dp.machines):
+            if not dp.running[j, i]:
+                continue
+            q = dp.airflow_Sm3_h[j, i]
+            lo, hi = mm.range_at(float(dp.discharge_gauge_kPa[i]))
+            if q < lo * (1 - tol) or q > hi * (1 + tol):
+                bad.append(f"period {p}: blower {mm.id} at {q:.0f} Sm3/h outside {lo:.0f}-{hi:.0f} at "
+                           f"{dp.discharge_gauge_kPa[i]:.1f} kPa")
+            if dp.discharge_gauge_kPa[i] > mm.pressure_max_gauge_kPa * (1 + tol):
+                bad.append(f"period {p}: blower {mm.id} at {dp.discharge_gauge_kPa[i]:.1f} kPa above its "
+                           f"{mm.pressure_max_gauge_kPa:g} kPa limit")
+        for z in b.ZONES:
+            zone = layout.zone(z)
+            q = float(m.airflow_Sm3_h[z, p].value)
+            off = b.swing_states is not None and z in b.swing_states and not b.swing_states[z][i]
+            if off:
+                if abs(q) > 1e-6:
+                    bad.append(f"period {p}: swing zone {z} is off but gets {q:.1f} Sm3/h")
+                continue
+            lo, hi = layout.zone_airflow_range_Sm3_h(zone)
+            dt = layout.diffuser_type(zone.grid.type_id)
+            lo = max(lo, zone.grid.count * dt.airflow_min_Sm3_h,
+                     b.settings.mixing_airflow_min_Sm3_h_m2[z] * zone.area_m2)
+            if zone.kind == "swing" and b.swing_states is None:
+                lo = 0.0
+            if q < lo * (1 - tol) or q > hi * (1 + tol):
+                bad.append(f"period {p}: zone {z} at {q:.1f} Sm3/h outside its grid range {lo:.0f}-{hi:.0f}")
+    return bad
+
+
+def dispatch_table(layout: Layout, dp: Dispatch) -> "pd.DataFrame":
+    """blowers.csv: one row per period and blower."""
+    import pandas as pd
+
+    h = layout.horizon.period_h
+    starts = dp.starts
+    rows = []
+    for i in range(dp.running.shape[1]):
+        for j, mm in enumerate(dp.machines):
+            on = bool(dp.running[j, i])
+            q = float(dp.airflow_Sm3_h[j, i])
+            rows.append({"period_start_h": i * h, "period_end_h": (i + 1) * h, "blower": mm.id, "running": on,
+                         "airflow_Sm3_h": q, "power_kW": float(dp.power_kW[j, i]),
+                         "efficiency": float(mm.curve.efficiency(q)) if on and q > 0 else float("nan"),
+                         "discharge_gauge_kPa": float(dp.discharge_gauge_kPa[i]), "starts": int(starts[j, i])})
+    return pd.DataFrame(rows)
+
+
+def dispatch_summary(layout: Layout, dp: Dispatch) -> dict:
+    """Bill split, peak and per-blower running hours and starts, for summary.json."""
+    bill = dp.bill(layout)
+    h = layout.horizon.period_h
+    return {
+        "energy_kWh_per_day": bill["energy_kWh_per_day"],
+        "energy_cost": bill["energy_cost"], "demand_charge": bill["demand_charge"],
+        "start_costs": bill["start_costs"], "cost_per_day": bill["cost_per_day"],
+        "peak_kW": bill["peak_kW"], "peak_period": bill["peak_period"] + 1,
+        "peak_period_start_h": bill["peak_period"] * h,
+        "blowers": {mm.id: {"running_h": bill["running_h"][mm.id], "starts": bill["starts"][mm.id],
+                            "out_of_service": mm.out_of_service} for mm in dp.machines},
+    }
+
+
+__all__ = ["COST_RTOL", "MAX_ROUNDS", "StagingOutcome", "apply_dispatch", "day_dispatch", "dispatch_summary",
+           "dispatch_table", "feasibility_check", "final_dispatch", "kw_per_equivalent", "model_air_state",
+           "run_staging"]
