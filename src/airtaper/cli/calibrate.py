@@ -10,10 +10,9 @@ Reads the layout (optionally with ``--overrides``) and the plant-data CSV
 
 from __future__ import annotations
 
-import math
 import sys
 
-from airtaper.cli.main import add_output_options
+from airtaper.cli.main import add_output_options, number_option_problems
 from airtaper.errors import EXIT_FAILURE, EXIT_OK, InputError, Problem
 from airtaper.layout import layout_input_files
 from airtaper.layout.overrides import load_layout_with_overrides
@@ -49,11 +48,8 @@ def register(subparsers) -> None:
 
 
 def _check(args) -> list[Problem]:
-    problems = []
-    for key, v, lo in (("--do-sd", args.do_sd, 1e-9), ("--nh4-sd", args.nh4_sd, 1e-9), ("--warmup-h", args.warmup_h,
-                                                                                        0.0)):
-        if not (math.isfinite(v) and v >= lo):
-            problems.append(Problem("<command line>", key, "must be a finite number", v, f">= {lo:g}"))
+    problems = number_option_problems((("--do-sd", args.do_sd, 1e-9), ("--nh4-sd", args.nh4_sd, 1e-9),
+                                       ("--warmup-h", args.warmup_h, 0.0)))
     if args.steps_per_period is not None and not 1 <= args.steps_per_period <= 60:
         problems.append(Problem("<command line>", "--steps-per-period", "out of range", args.steps_per_period,
                                 "1 to 60"))

@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import math
 import os
 import signal
 import sys
@@ -45,6 +46,15 @@ def build_parser() -> argparse.ArgumentParser:
     for name in COMMANDS:
         importlib.import_module(f"airtaper.cli.{name}").register(subparsers)
     return parser
+
+
+def number_option_problems(checks) -> list:
+    """Problems of numeric command-line options: ``checks`` holds (option, value, lowest allowed); an option
+    not given (None) passes. One form for every command: ``must be a finite number (got .., expected >= ..)``."""
+    from airtaper.errors import Problem
+
+    return [Problem("<command line>", key, "must be a finite number", v, f">= {lo:g}")
+            for key, v, lo in checks if v is not None and not (math.isfinite(v) and v >= lo)]
 
 
 def add_output_options(parser: argparse.ArgumentParser) -> None:

@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import sys
 
-from airtaper.cli.main import add_output_options
+from airtaper.cli.main import add_output_options, number_option_problems
 from airtaper.errors import InputError, Problem
 from airtaper.layout import layout_input_files
 from airtaper.layout.overrides import load_layout_with_overrides
@@ -46,12 +46,8 @@ def register(subparsers) -> None:
 
 
 def _check(args) -> list[Problem]:
-    problems = []
-    for key, v, lo in (("--smoothing-weight", args.smoothing_weight, 0.0), ("--mixing-min", args.mixing_min, 0.0),
-                       ("--baseline-do", args.baseline_do, 1e-9)):
-        if v is not None and not (v >= lo and v == v and v != float("inf")):
-            problems.append(Problem("<command line>", key, "must be a finite number >= " + f"{lo:g}", v))
-    return problems
+    return number_option_problems((("--smoothing-weight", args.smoothing_weight, 0.0),
+                                   ("--mixing-min", args.mixing_min, 0.0), ("--baseline-do", args.baseline_do, 1e-9)))
 
 
 def run(args) -> int:
