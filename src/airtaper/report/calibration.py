@@ -94,7 +94,7 @@ def residual_figure_png(table) -> bytes:
     a1.set_ylabel("fitted - measured (mg/L)")
     a1.legend(fontsize=7, ncol=3, markerscale=3)
     a1.set_title("residuals over time (look for drift or a daily pattern)")
-    a2.boxplot([e for _, e in groups], vert=True)
+    a2.boxplot([e for _, e in groups])
     a2.set_xticks(range(1, len(groups) + 1), [n for n, _ in groups], rotation=60, fontsize=7)
     a2.axhline(0.0, color="k", lw=0.8)
     a2.set_title("spread")
