@@ -27,11 +27,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 import pyomo.environ as pyo
 
-from airtaper import units
 from airtaper.layout.plantdata import EFFLUENT, PlantRecord
-from airtaper.model.data import GridAeration
-from airtaper.model.train import AIRFLOW_FLOOR_Sm3_h
-from airtaper.physics.transfer import field_kla_per_h
 from airtaper.process.asm1 import layout_parameters
 from airtaper.model.asm1_rates import asm1_process_rates
 from airtaper.process.stoichiometry import PROCESSES
@@ -115,11 +111,9 @@ def _model_value(m, ob: Observation):
 
 
 def _kla_with_alpha_f(m, z, p, alpha_f):
-    a: GridAeration = m.aeration[z]
-    q = m.airflow_Sm3_h[z, p]
-    sote = a.sote.sote_fraction((q + AIRFLOW_FLOOR_Sm3_h) / a.diffusers, a.density_percent, a.submergence_m)
-    kla_h = field_kla_per_h(q, sote, m.zone_volume_m3[z], alpha_f, 1.0, m.temperature_C[p], a.c_inf20_mg_L)
-    return units.per_hour_to_per_day(kla_h)
+    """The plant's kLa rule with alpha x F as the fitted parameter."""
+    return m.aeration[z].kla_per_d(m.airflow_Sm3_h[z, p], m.temperature_C[p], m.diffuser_count[z],
+                                   alpha_fouling=alpha_f)
 
 
 def attach_fit(m, record: PlantRecord, spec: FitSpec):

@@ -15,7 +15,7 @@ import sys
 from airtaper.cli.main import add_output_options, number_option_problems
 from airtaper.errors import EXIT_FAILURE, EXIT_OK, InputError, Problem
 from airtaper.layout import layout_input_files
-from airtaper.layout.overrides import load_layout_with_overrides
+from airtaper.plant import load_plant
 from airtaper.layout.plantdata import load_plant_data
 from airtaper.report.calibration import console_summary, write_calibration_outputs
 from airtaper.report.outputs import output_folder
@@ -63,7 +63,7 @@ def run(args) -> int:
     if problems:
         raise InputError(problems)
     warnings: list = []
-    layout = load_layout_with_overrides(args.layout, args.overrides, warnings=warnings)
+    layout = load_plant(args.layout, args.overrides, warnings=warnings).layout
     record = load_plant_data(args.data, layout, warnings=warnings)
     for w in warnings:
         print(str(w), file=sys.stderr)

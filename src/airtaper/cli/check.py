@@ -15,7 +15,8 @@ from __future__ import annotations
 import sys
 
 from airtaper.errors import EXIT_INFEASIBLE, EXIT_OK
-from airtaper.layout import Layout, load_layout
+from airtaper.layout import Layout
+from airtaper.plant import load_plant
 
 
 def register(subparsers) -> None:
@@ -29,7 +30,7 @@ def register(subparsers) -> None:
 
 def run(args) -> int:
     warnings: list = []
-    layout = load_layout(args.layout, warnings=warnings)
+    layout = load_plant(args.layout, warnings=warnings).layout  # resolving runs every check past the parser
     for w in warnings:
         print(str(w), file=sys.stderr)
     print(train_report(layout))

@@ -154,7 +154,8 @@ def read_schedule(path: str, layout, warnings: list | None = None):
 
 
 def run(args) -> int:
-    from airtaper.layout import layout_input_files, load_layout
+    from airtaper.layout import layout_input_files
+    from airtaper.plant import load_plant
     from airtaper.simulate import periodic
     from airtaper.simulate.summary import summarize
 
@@ -167,7 +168,7 @@ def run(args) -> int:
     if not 0.0 < args.tol < 1.0:
         raise InputError(Problem("<command line>", "--tol", "out of range", got=args.tol, expected="0 < tol < 1"))
     warnings: list = []
-    layout = load_layout(args.layout, warnings=warnings)
+    layout = load_plant(args.layout, warnings=warnings).layout
     for w in warnings:
         print(str(w), file=sys.stderr)
     inputs = layout_input_files(args.layout, layout) + ([args.schedule] if args.schedule else [])

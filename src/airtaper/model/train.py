@@ -56,12 +56,8 @@ from airtaper.layout.types import ASM1_COMPONENTS, Layout
 from airtaper.model.asm1_rates import asm1_process_rates
 from airtaper.model.clarifier import attach_ideal_separator, attach_layered_settler
 from airtaper.model.data import FixedAeration, GridAeration, TrainData, mean_load, single_period, train_data
-from airtaper.physics.transfer import field_kla_per_h
 from airtaper.process.stoichiometry import PARTICULATES, PROCESSES, SOLIDS_COD, n_composition
 
-#: Airflow added inside the SOTE curve only (not to the air supplied), Sm3/h, so that a
-#: zone with zero airflow has zero kLa with finite derivatives. Common practice (no source).
-AIRFLOW_FLOOR_Sm3_h = 1e-6
 
 
 @dataclass(frozen=True)
@@ -190,11 +186,8 @@ def attach_sets(m, data: TrainData, steady: bool, scheme: str = "radau2") -> Non
 
 # --- aeration -------------------------------------------------------------------------
 def _grid_kla_rule(m, z, p):
-    a: GridAeration = m.aeration[z]
-    q = m.airflow_Sm3_h[z, p]
-    sote = a.sote.sote_fraction((q + AIRFLOW_FLOOR_Sm3_h) / a.diffusers, a.density_percent, a.submergence_m)
-    kla_h = field_kla_per_h(q, sote, m.zone_volume_m3[z], a.alpha, a.fouling, m.temperature_C[p], a.c_inf20_mg_L)
-    return units.per_hour_to_per_day(kla_h)
+    """The plant's kLa rule (:meth:`airtaper.plant.DiffusedZone.kla_per_d`) on the airflow Var."""
+    return m.aeration[z].kla_per_d(m.airflow_Sm3_h[z, p], m.temperature_C[p], m.diffuser_count[z])
 
 
 def _kla_rule(m, z, p):
@@ -230,7 +223,7 @@ def attach_aeration(m, data: TrainData, airflow=None) -> None:
     m.AERATED_ZONES = pyo.Set(initialize=[z for z in data.zones if z in m.aeration], ordered=True)
 
     def bounds(m, z, p):
-        lo, hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))
+        hi = m.aeration[z].airflow_max_Sm3_h
         return (0.0, hi if hi > 0 else None)
 
     m.airflow_Sm3_h = pyo.Var(m.GRID_ZONES, m.PERIODS, bounds=bounds, doc="zone airflow, Sm3/h")
@@ -239,7 +232,7 @@ def attach_aeration(m, data: TrainData, airflow=None) -> None:
         for p in m.PERIODS:
             m.kla_fixed_per_d[z, p].fix(m.aeration[z].kla_per_d)
     for z in grid:
-        lo, hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))
+        lo, hi = m.aeration[z].airflow_range_Sm3_h
         given = None if airflow is None else airflow.get(z)
         for p in m.PERIODS:
             if given is None:
@@ -249,6 +242,8 @@ def attach_aeration(m, data: TrainData, airflow=None) -> None:
             else:
                 v = float(given[p - 1])
             m.airflow_Sm3_h[z, p].fix(v)
+    # the diffuser count of each grid: the layout's, a parameter a design study may change
+    m.diffuser_count = pyo.Param(m.GRID_ZONES, mutable=True, initialize={z: float(m.aeration[z].diffusers) for z in grid})
     m.kla_per_d = pyo.Expression(m.AERATED_ZONES, m.PERIODS, rule=_kla_rule)
     m.do_sat_mg_L = pyo.Param(m.AERATED_ZONES, m.PERIODS, initialize=_do_sat_init, mutable=False)
 

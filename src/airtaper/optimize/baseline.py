@@ -4,7 +4,7 @@ Every aerated zone with diffusers is held at one DO setpoint (the layout's
 ``operation.baseline_do_setpoint_mg_L``, 2.0 mg/L unless set; a zone's own DO
 range clips it) by the simulator's ideal DO control; the simulator returns the
 airflow that control needs at every step, and the blower energy and cost follow
-from :class:`~airtaper.optimize.airside.AirSide` step by step. Its figures are
+from :class:`~airtaper.plant.AirSide` step by step. Its figures are
 compared with the same limits as the optimum (:mod:`airtaper.optimize.figures`).
 A setpoint the control cannot hold (the zone at full air below it) is simulated at
 full air and listed with its zone and hours (``setpoint_not_held``).

@@ -7,9 +7,9 @@ schedule (docs/optimization.md gives the full statement):
 Decisions
     ``airflow_Sm3_h[z, p]`` of every diffused zone (the model's Var, unfixed) and
     ``header_kPa[p]``, the header gauge pressure. The diffuser count of every grid is
-    the mutable Param ``diffuser_count[z]``; the zone kLa expressions are re-stated on
-    it (airflow per diffuser and diffuser density both follow the count), and so are
-    the per-diffuser airflow limits and the diffuser headloss. The value of one more
+    the model's mutable Param ``diffuser_count[z]``; the model's kLa expressions follow
+    it (airflow per diffuser and diffuser density, :meth:`airtaper.plant.DiffusedZone.kla_per_d`),
+    and so do the per-diffuser airflow limits and the diffuser headloss. The value of one more
     diffuser is the sensitivity of the optimum to this parameter, from the duals
     (:func:`airtaper.optimize.marginal.parameter_sensitivity`). A count *variable* held
     by an equality (whose dual is the same number) gave the same values but doubled the
@@ -40,21 +40,16 @@ from dataclasses import dataclass, field
 import numpy as np
 import pyomo.environ as pyo
 
-from airtaper import units
 from airtaper.errors import ModelError
 from airtaper.layout.types import Layout
-from airtaper.model.data import GridAeration
-from airtaper.optimize.airside import AirSide
 from airtaper.optimize.dispatch import envelope_lines, machines_of, max_lines
 from airtaper.physics.blower import blower_power_kW
-from airtaper.physics.transfer import field_kla_per_h
+from airtaper.plant import resolve_plant
 
 #: Numerical box on airflow, as a multiple of the zone's hardware maximum: wide enough
 #: that the elastic solve can ask for more air than the hardware passes, and keeps
 #: Ipopt away from absurd values. Common practice (no source).
 AIRFLOW_BOX_FACTOR = 3.0
-#: Airflow added inside the SOTE curve (not to the air supplied), as in the model.
-_AIRFLOW_FLOOR_Sm3_h = 1e-6
 
 
 @dataclass(frozen=True)
@@ -122,17 +117,6 @@ def _zone(m, z):
     return m.opt.layout.zone(z)
 
 
-def _kla_on_diffusers(m, z, p):
-    """Field kLa (1/d) of a diffused zone with the diffuser count as the Param ``diffuser_count[z]``."""
-    a: GridAeration = m.aeration[z]
-    n = m.opt.diffuser_count[z]
-    q = m.airflow_Sm3_h[z, p]
-    density = a.density_percent * n / a.diffusers
-    sote = a.sote.sote_fraction((q + _AIRFLOW_FLOOR_Sm3_h) / n, density, a.submergence_m)
-    kla_h = field_kla_per_h(q, sote, m.zone_volume_m3[z], a.alpha, a.fouling, m.temperature_C[p], a.c_inf20_mg_L)
-    return units.per_hour_to_per_day(kla_h)
-
-
 def steps_of_period(m, p) -> list[int]:
     """Time points of period ``p`` (collocation points or step ends, see the model's notes)."""
     return [t for t in m.STEPS if m.period_of_step[t] == p]
@@ -181,7 +165,7 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
         raise ModelError("the diurnal optimisation needs the cyclic model (build_cyclic_model)")
     if hasattr(m, "opt"):
         raise ModelError("the model already has an optimisation block")
-    air = AirSide(layout)
+    air = resolve_plant(layout).air
     grid = [z for z in m.GRID_ZONES]
     if not grid:
         raise ModelError("the layout has no diffused zones: there is no airflow to optimise")
@@ -219,9 +203,8 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
         return b.swing_air[z, p] if z in b.SWING_ZONES else 1.0
 
     # --- decisions ------------------------------------------------------------------------
-    b.diffuser_count = pyo.Param(b.ZONES, mutable=True, initialize={z: float(layout.zone(z).grid.count) for z in grid})
     for z in grid:
-        lo, hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))
+        lo, hi = air.zone(z).airflow_range_Sm3_h
         for p in P:
             v = m.airflow_Sm3_h[z, p]
             v.unfix()
@@ -229,14 +212,11 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
             v.setub(AIRFLOW_BOX_FACTOR * hi)
             if v.value is None:
                 v.set_value(0.5 * (lo + hi))
-    for z in grid:  # kLa on the diffuser-count parameter
-        for p in P:
-            m.kla_per_d[z, p].set_value(_kla_on_diffusers(m, z, p))
 
     b.total_airflow_Sm3_h = pyo.Expression(m.PERIODS, rule=lambda b, p: sum(m.airflow_Sm3_h[z, p] for z in grid))
     b.zone_pressure_kPa = pyo.Expression(
         b.ZONES, m.PERIODS,
-        rule=lambda b, z, p: air.zone_required_pressure_kPa(layout.zone(z), m.airflow_Sm3_h[z, p], b.diffuser_count[z]))
+        rule=lambda b, z, p: air.zone_required_pressure_kPa(z, m.airflow_Sm3_h[z, p], m.diffuser_count[z]))
     b.header_kPa = pyo.Var(m.PERIODS, bounds=(0.0, None), initialize=lambda b, p: max(
         pyo.value(b.zone_pressure_kPa[z, p]) for z in grid) + layout.header.min_valve_loss_kPa)
     b.valve_loss = pyo.Constraint(  # a swing zone switched off has its valve shut (swing_air 0)
@@ -267,7 +247,7 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
         set_power_lines(b, {p: envelope_lines(b.machines) for p in P})
         b.power_kW = pyo.Var(m.PERIODS, bounds=(0.0, None))
         b.power_line_kW = pyo.Expression(m.PERIODS, b.LINES, rule=lambda b, p, k: blower_power_kW(
-            b.line_a[p, k] + b.line_b[p, k] * b.total_airflow_Sm3_h[p], float(layout.inlet_air.temperature_C[p - 1]),
+            b.line_a[p, k] + b.line_b[p, k] * b.total_airflow_Sm3_h[p], float(air.inlet_temperature_C[p - 1]),
             air.inlet_pressure_kPa, air.discharge_pressure_kPa(b.header_kPa[p], b.total_airflow_Sm3_h[p]), 1.0))
         b.power_curve = pyo.Constraint(m.PERIODS, b.LINES, rule=lambda b, p, k: b.power_kW[p] >= b.power_line_kW[p, k])
         for p in P:
@@ -324,16 +304,13 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
     if lim.tn_mean_mg_L is None:
         b.tn_mean.deactivate()
 
-    def dtype(z):
-        return layout.diffuser_type(layout.zone(z).grid.type_id)
-
     q = m.airflow_Sm3_h
     s6 = slack("diffuser_max_slack", b.ZONES, m.PERIODS)
     b.diffuser_max = pyo.Constraint(b.ZONES, m.PERIODS, rule=lambda b, z, p: (
-        q[z, p] <= b.diffuser_count[z] * dtype(z).airflow_max_Sm3_h * (1.0 + s6[z, p])))
+        q[z, p] <= m.diffuser_count[z] * air.zone(z).diffuser_airflow_max_Sm3_h * (1.0 + s6[z, p])))
     s7 = slack("diffuser_min_slack", b.MIN_ZONES, m.PERIODS)
     b.diffuser_min = pyo.Constraint(b.MIN_ZONES, m.PERIODS, rule=lambda b, z, p: (
-        q[z, p] >= on(z, p) * b.diffuser_count[z] * dtype(z).airflow_min_Sm3_h * (1.0 - s7[z, p])))
+        q[z, p] >= on(z, p) * m.diffuser_count[z] * air.zone(z).diffuser_airflow_min_Sm3_h * (1.0 - s7[z, p])))
     s8 = slack("mixing_min_slack", b.MIN_ZONES, m.PERIODS)
     b.mixing_min = pyo.Constraint(b.MIN_ZONES, m.PERIODS, rule=lambda b, z, p: (
         q[z, p] >= on(z, p) * settings.mixing_airflow_min_Sm3_h_m2[z] * layout.zone(z).area_m2 * (1.0 - s8[z, p])))
@@ -364,7 +341,7 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
                                 + tariff.demand_charge_per_kW / tariff.demand_period_days * b.peak_kW)
     else:
         b.goal = pyo.Expression(expr=b.energy_kWh_per_day)
-    qmax = {z: layout.zone_airflow_range_Sm3_h(layout.zone(z))[1] for z in grid}
+    qmax = {z: air.zone(z).airflow_max_Sm3_h for z in grid}
     prev = {p: (p - 1 if p > 1 else P[-1]) for p in P}
     b.smoothing_weight = pyo.Param(mutable=True, initialize=settings.smoothing_weight)
     b.smoothing = pyo.Expression(expr=sum(((q[z, p] - q[z, prev[p]]) / qmax[z]) ** 2 for z in grid for p in P)

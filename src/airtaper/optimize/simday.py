@@ -4,7 +4,7 @@
 schedule or ideal DO control) and returns a :class:`SimDay`: per-step airflow and
 DO of every zone, effluent NH4-N, TN and flow, the compliance figures of
 :mod:`airtaper.optimize.figures`, and the blower power, energy and cost of the day
-from :class:`~airtaper.optimize.airside.AirSide` at every output step.
+from :class:`~airtaper.plant.AirSide` at every output step.
 
 The compliance figures and the energy integrate the simulated day, not samples of
 it: effluent means and period means by Gauss-Legendre quadrature of the solver's
@@ -31,7 +31,7 @@ import numpy as np
 import pandas as pd
 
 from airtaper.layout.types import ASM1_COMPONENTS, Layout
-from airtaper.optimize.airside import AirSide
+from airtaper.plant import resolve_plant
 from airtaper.optimize.figures import day_figures
 from airtaper.simulate.summary import setpoint_shortfalls
 
@@ -133,7 +133,7 @@ def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=
     airflow = {zid: air[:, i] for i, zid in enumerate(zone_ids)}
     do = {zid: so[:, i] for i, zid in enumerate(zone_ids)}
     quad, ex = res.quadrature, res.do_extremes
-    side = AirSide(layout)
+    side = resolve_plant(layout).air
     node_air = {zid: quad.airflow_Sm3_h[:, i] for i, zid in enumerate(zone_ids)}
     with warnings.catch_warnings():  # curve extrapolation is reported where the airflow is chosen
         warnings.simplefilter("ignore")

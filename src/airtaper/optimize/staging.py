@@ -36,7 +36,7 @@ import numpy as np
 import pyomo.environ as pyo
 
 from airtaper.layout.types import Layout
-from airtaper.optimize.airside import AirSide
+from airtaper.plant import AirSide, resolve_plant
 from airtaper.optimize.dispatch import Bill, Dispatch, evaluate, machines_of, set_lines, solve_dispatch, swing_states
 from airtaper.optimize.initialise import Rung
 from airtaper.optimize.problem import max_power_line_kW, set_power_lines, set_swing_states
@@ -71,35 +71,35 @@ class StagingOutcome:
 
 
 # --- air state of a schedule -----------------------------------------------------------------
-def kw_per_equivalent(layout: Layout, air: AirSide, discharge_gauge_kPa) -> np.ndarray:
+def kw_per_equivalent(air: AirSide, discharge_gauge_kPa) -> np.ndarray:
     """Isentropic kW per Sm3/h of equivalent airflow at each period's discharge pressure and inlet temperature."""
     d = np.asarray(discharge_gauge_kPa, dtype=float)
-    t_in = np.asarray(layout.inlet_air.temperature_C, dtype=float)
+    t_in = air.inlet_temperature_C
     return np.asarray(blower_power_kW(1.0, t_in, air.inlet_pressure_kPa, air.site_pressure_kPa + d, 1.0), dtype=float)
 
 
 def model_air_state(m) -> dict:
     """Per period: total airflow, discharge gauge pressure, kW per equivalent Sm3/h, air the zones could still take."""
     b = m.opt
-    layout, air = b.layout, b.air
+    air = resolve_plant(b.layout).air
     P = list(m.PERIODS)
     q = np.array([float(pyo.value(b.total_airflow_Sm3_h[p])) for p in P])
     header = np.array([float(b.header_kPa[p].value) for p in P])
     d = np.asarray(air.discharge_gauge_kPa(header, q), dtype=float)
     room = np.zeros(len(P))
     for z in b.ZONES:
-        hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))[1]
+        hi = air.zone(z).airflow_max_Sm3_h
         for i, p in enumerate(P):
             if not (b.swing_states is not None and z in b.swing_states and not b.swing_states[z][i]):
                 room[i] += max(0.0, hi - float(m.airflow_Sm3_h[z, p].value))
-    return {"demand_Sm3_h": q, "discharge_gauge_kPa": d, "kw_per_equivalent": kw_per_equivalent(layout, air, d),
+    return {"demand_Sm3_h": q, "discharge_gauge_kPa": d, "kw_per_equivalent": kw_per_equivalent(air, d),
             "excess_max_Sm3_h": room}
 
 
 def day_dispatch(layout: Layout, day, objective: str) -> Dispatch | None:
     """The same dispatch rule applied to a simulated day (the baseline): per-period mean airflow and pressure."""
     machines = machines_of(layout)
-    air = AirSide(layout)
+    air = resolve_plant(layout).air
     if not air.zones or not any(not mm.out_of_service for mm in machines):
         return None
     n = layout.horizon.n_periods
@@ -113,9 +113,9 @@ def day_dispatch(layout: Layout, day, objective: str) -> Dispatch | None:
     room = np.zeros(n)
     for z in air.zones:
         if z.kind == "aerated":
-            hi = layout.zone_airflow_range_Sm3_h(z)[1]
+            hi = z.airflow_max_Sm3_h
             room += np.maximum(0.0, hi - np.array([flows[z.id][per == k].mean() for k in range(n)]))
-    return solve_dispatch(machines, q, d, kw_per_equivalent(layout, air, d), Bill.of(layout, objective),
+    return solve_dispatch(machines, q, d, kw_per_equivalent(air, d), Bill.of(layout, objective),
                           layout.horizon.period_h, room)
 
 
@@ -171,10 +171,9 @@ def relaxed_swing_fractions(m) -> dict:
     b = m.opt
     out = {}
     for z in b.SWING_ZONES:
-        zone = b.layout.zone(z)
-        dt = b.layout.diffuser_type(zone.grid.type_id)
-        qmin = max(pyo.value(b.diffuser_count[z]) * dt.airflow_min_Sm3_h,
-                   b.settings.mixing_airflow_min_Sm3_h_m2[z] * zone.area_m2)
+        d = resolve_plant(b.layout).air.zone(z)
+        qmin = max(pyo.value(m.diffuser_count[z]) * d.diffuser_airflow_min_Sm3_h,
+                   b.settings.mixing_airflow_min_Sm3_h_m2[z] * d.zone.area_m2)
         out[z] = np.array([float(m.airflow_Sm3_h[z, p].value) for p in m.PERIODS]) / max(qmin, 1e-9)
     return out
 

@@ -262,7 +262,7 @@ class DiurnalOptimisation:
         if name == "do_min":
             b.do_min_mg_L[zone] = float(value)
         elif name == "diffusers":
-            b.diffuser_count[zone] = float(value)
+            self.m.diffuser_count[zone] = float(value)
         elif name in ("nh4_mean", "nh4_max", "tn_mean"):
             if not b.component(name).active:
                 raise ModelError(f"the layout sets no {name} limit")
@@ -315,7 +315,7 @@ class DiurnalOptimisation:
                 sched.append({
                     "period_start_h": (p - 1) * period_h, "period_end_h": p * period_h, "zone": z,
                     "aerated": bool(states[z][p - 1]) if z in states else q > 0.0,
-                    "airflow_Sm3_h": q, "airflow_per_diffuser_Sm3_h": q / pyo.value(b.diffuser_count[z]),
+                    "airflow_Sm3_h": q, "airflow_per_diffuser_Sm3_h": q / pyo.value(m.diffuser_count[z]),
                     "do_min_mg_L": float(do.min()), "do_mean_mg_L": float(wp @ do),
                     "nh4_mean_mg_L": float(wp @ np.array([pyo.value(m.conc[t, z, "SNH"]) for t in steps])),
                     "otr_kg_h": float(wp @ np.array([pyo.value(m.otr_kg_h[t, z]) for t in steps])),
