@@ -103,7 +103,7 @@ def test_no_command_and_usage_errors_exit_2(capsys):
 def test_internal_failure_is_reported_without_traceback(monkeypatch, capsys):
     def boom(*args, **kwargs):
         raise RuntimeError("simulated")
-    monkeypatch.setattr(check_cmd, "load_layout", boom)
+    monkeypatch.setattr(check_cmd, "load_plant", boom)
     monkeypatch.delenv("AIRTAPER_DEBUG", raising=False)
     assert main(["check", str(DEMO)]) == EXIT_FAILURE
     err = capsys.readouterr().err

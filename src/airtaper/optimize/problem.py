@@ -113,8 +113,6 @@ def settings_for(layout: Layout, reference: float, *, objective: str | None = No
 
 
 # --- helpers read by rules ----------------------------------------------------------------
-def _zone(m, z):
-    return m.opt.layout.zone(z)
 
 
 def steps_of_period(m, p) -> list[int]:
@@ -124,11 +122,7 @@ def steps_of_period(m, p) -> list[int]:
 
 def point_weights(m) -> dict:
     """Quadrature weight of every time point as a fraction of the day (sum 1)."""
-    w = getattr(m, "point_weight", None)
-    if w is None:  # a one-point-per-step scheme without weights: equal steps
-        n = len(m.STEPS)
-        return {t: 1.0 / n for t in m.STEPS}
-    return {t: float(w[t]) for t in m.STEPS}
+    return {t: float(m.point_weight[t]) for t in m.STEPS}
 
 
 def effluent_weights(m) -> dict:
@@ -203,15 +197,13 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
         return b.swing_air[z, p] if z in b.SWING_ZONES else 1.0
 
     # --- decisions ------------------------------------------------------------------------
-    for z in grid:
-        lo, hi = air.zone(z).airflow_range_Sm3_h
+    for z in grid:  # every airflow has a value: the model fixes each one when it is built
+        hi = air.zone(z).airflow_max_Sm3_h
         for p in P:
             v = m.airflow_Sm3_h[z, p]
             v.unfix()
             v.setlb(0.0)
             v.setub(AIRFLOW_BOX_FACTOR * hi)
-            if v.value is None:
-                v.set_value(0.5 * (lo + hi))
 
     b.total_airflow_Sm3_h = pyo.Expression(m.PERIODS, rule=lambda b, p: sum(m.airflow_Sm3_h[z, p] for z in grid))
     b.zone_pressure_kPa = pyo.Expression(

@@ -56,10 +56,6 @@ class Inputs:
     airflow_Sm3_h: np.ndarray  # scheduled airflow (MODE_FIXED diffused zones), else 0
     tables: tuple[TransferTable | None, ...] = field(default=())
 
-    @property
-    def q_clarifier_feed(self) -> float:
-        return float(self.q_forward[-1])
-
 
 def _network(plant: ResolvedPlant, k: int | None):
     """Influent share, flow matrix, forward and total flow per zone of period ``k`` (None: the mean day)."""
