@@ -65,7 +65,7 @@ def test_every_step_of_the_march_conserves_cod_and_nitrogen(marched, plant_balan
     from airtaper.process.stoichiometry import cod_composition, n_composition
 
     m = marched
-    par = m._train_data.params[0]
+    par = m.train_data.params[0]
     wc, wn = cod_composition(par), n_composition(par)
     comps = list(m.COMPONENTS)
 

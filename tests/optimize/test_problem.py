@@ -20,7 +20,7 @@ from airtaper.physics.blower import blower_power_kW
 def attached(three_tank_6):
     m = build_cyclic_model(three_tank_6, airflow={"T1": 900.0, "T2": 600.0, "T3": 450.0})
     before = {k: pyo.value(v) for k, v in m.kla_per_d.items()}
-    attach_problem(m, three_tank_6, settings_for(three_tank_6, 1000.0))
+    attach_problem(m, settings_for(three_tank_6, 1000.0))
     return m, before
 
 

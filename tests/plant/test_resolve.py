@@ -218,3 +218,48 @@ def _demo_text_with_three_sote_points() -> str:
     start = text.index("sote_points = [")
     end = text.index("headloss_points = [")
     return text[:start] + THREE_POINTS_TOML + text[end:]
+
+
+def test_the_mean_day_flows_are_the_flows_of_the_mean_inputs():
+    """Flows are linear in the inputs: the daily mean of the resolved flows is the resolution of the daily means."""
+    layout = _demo_layout()
+    plant = resolve_plant(layout)
+    mean = plant.hydraulics.over(lambda a: a.mean(axis=0, keepdims=True))
+    flat = resolve_plant(replace(
+        layout, influent=replace(layout.influent, flow_m3_d=(float(np.mean(layout.influent.flow_m3_d)),) * 24),
+        recycles=tuple(replace(r, flow_m3_d=(float(np.mean(r.flow_m3_d)),) * 24) for r in layout.recycles),
+        return_sludge=replace(layout.return_sludge,
+                              flow_m3_d=(float(np.mean(layout.return_sludge.flow_m3_d)),) * 24)))
+    np.testing.assert_allclose(mean.forward_m3_d[0], flat.hydraulics.forward_m3_d[0], rtol=1e-12)
+    np.testing.assert_allclose(mean.zone_flow_m3_d[0], flat.hydraulics.zone_flow_m3_d[0], rtol=1e-12)
+
+
+def test_one_cost_formula_for_numbers_and_the_dispatch_bill():
+    """The day's cost: energy at each period's price plus the billing period's demand charge spread over its days."""
+    from airtaper.optimize.dispatch import Bill
+
+    plant = resolve_plant(_demo_layout())
+    air = plant.air
+    power = np.linspace(80.0, 140.0, plant.n_periods)
+    t = plant.tariff
+    by_hand = sum(pr * p * plant.period_h for pr, p in zip(t.price_per_kWh, power)) \
+        + t.demand_charge_per_kW / t.demand_period_days * power.max()
+    assert air.cost(power) == pytest.approx(by_hand, rel=1e-12)
+    assert Bill.of(plant.layout, "cost").demand_per_kW_day == pytest.approx(t.demand_charge_per_kW / t.demand_period_days)
+
+
+def test_every_load_day_is_checked_as_a_plant_of_its_own():
+    """A bypass recycle given as a flow keeps its flow on a low-flow day: that day leaves Z2 no forward flow."""
+    from airtaper.layout.loaddays import base_day
+
+    layout = _demo_layout()
+    fwd = resolve_plant(layout).hydraulics.forward_m3_d[:, layout.zone_index("Z2")]
+    bypass = Recycle("BY", "Z2", "Z4", tuple(0.5 * float(q) for q in fwd), None)  # half of Z2's flow: fine
+    base = replace(layout, path="bad.toml", recycles=layout.recycles + (bypass,), load_days=())
+    assert resolve_plant(base).hydraulics.forward_m3_d.min() > 0.0
+    low = replace(base_day(base), id="low", flow_factor=0.3, load_factor=0.3)
+    with pytest.raises(InputError) as info:
+        resolve_plant(replace(base, load_days=(low,)))
+    lines = [str(p) for p in info.value.problems]
+    assert lines[0].startswith(E + "load_days.low, zones.Z2: the recycles drawn from this zone exceed")
+    assert all(line.startswith(E + "load_days.low, zones.") for line in lines)

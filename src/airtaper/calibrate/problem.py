@@ -28,7 +28,6 @@ import numpy as np
 import pyomo.environ as pyo
 
 from airtaper.layout.plantdata import EFFLUENT, PlantRecord
-from airtaper.process.asm1 import layout_parameters
 from airtaper.model.asm1_rates import asm1_process_rates
 from airtaper.process.stoichiometry import PROCESSES
 
@@ -122,18 +121,18 @@ def attach_fit(m, record: PlantRecord, spec: FitSpec):
     The parameters start at the layout's values and are *fixed*; :func:`free_parameters`
     frees them for the fit.
     """
-    data = m._train_data
-    layout = data.layout
+    data = m.train_data
+    plant = data.plant
     m.fit = b = pyo.Block()
     b.spec = spec
     b.ZONES = pyo.Set(initialize=list(spec.zones), ordered=True)
-    start = {z: layout.zone(z).alpha * layout.zone(z).fouling for z in spec.zones}
+    start = {z: plant.zone(z).alpha * plant.zone(z).fouling for z in spec.zones}
     b.alpha_F = pyo.Var(b.ZONES, bounds=BOUNDS["alpha_F"], initialize=start)
     for z in spec.zones:
         b.alpha_F[z].fix()
         for p in m.PERIODS:
             m.kla_per_d[z, p].set_value(_kla_with_alpha_f(m, z, p, b.alpha_F[z]))
-    base = layout_parameters(layout)
+    base = plant.base_params
     b.mu_A = pyo.Var(bounds=BOUNDS["mu_A"], initialize=base.mu_A)
     b.K_OH = pyo.Var(bounds=BOUNDS["K_OH"], initialize=base.K_OH)
     b.mu_A.fix()

@@ -12,14 +12,12 @@ from __future__ import annotations
 import os
 import re
 import tomllib
-from types import SimpleNamespace
 
 from airtaper import units
 from airtaper.errors import InputError, Problem
 from airtaper.layout import defaults as D
 from airtaper.layout import graph
 from airtaper.layout.influent import csv_display_path, read_day_influent, read_influent
-from airtaper.physics.atmosphere import barometric_pressure_kPa
 from airtaper.physics.blower import efficiency_from_power, equivalent_curve, power_curve_problems
 from airtaper.layout.reader import (
     Collector, LayoutWarning, Table, UnreadableInput, check_number, did_you_mean, fixed, is_number, read_input_file,
@@ -950,7 +948,7 @@ class _Parser:
             if not min(subs) <= z.grid.submergence_m <= max(subs):
                 col.warn(f"{key}.grid.submergence_m", f"submergence {z.grid.submergence_m:g} m is outside the "
                                                       f"tested {min(subs):g}-{max(subs):g} m: SOTE is extrapolated")
-            lo, hi = _airflow_range(z, dt)
+            lo, hi = z.airflow_range_Sm3_h(dt)
             if lo > hi:
                 col.error(f"{key}.grid", "no feasible airflow: the minimum exceeds what grid and valve pass",
                           f"minimum {fixed(lo, 0)} Sm3/h", f"<= maximum {fixed(hi, 0)} Sm3/h")
@@ -975,7 +973,7 @@ class _Parser:
                               f"{deepest.grid.submergence_m:g} m)", b.pressure_max_gauge_kPa,
                               f"> {fixed(static, 1)} kPa")
             if len(zones) == n_zones and all(z.grid is None or z.grid.type_id in types for z in zones):
-                need = sum(_airflow_range(z, types[z.grid.type_id])[0] for z in gridded if z.kind == "aerated")
+                need = sum(z.airflow_range_Sm3_h(types[z.grid.type_id])[0] for z in gridded if z.kind == "aerated")
                 have = sum(b.airflow_max_Sm3_h for b in blowers if not b.out_of_service)
                 if all(b.out_of_service for b in blowers):
                     col.error("blowers", "every blower is out of service", f"{len(blowers)} out of service",
@@ -1009,20 +1007,12 @@ _ZONE_NUMBER_BOUNDS = {
 }
 
 
-def _airflow_range(z: Zone, dt: DiffuserType) -> tuple[float, float]:
-    """Same rule as Layout.zone_airflow_range_Sm3_h, for a zone before the Layout exists."""
-    view = SimpleNamespace(diffuser_type=lambda _id: dt)
-    return Layout.zone_airflow_range_Sm3_h(view, z)
-
-
 def _duty_point_conditions(plant: Plant | None, inlet: InletAir | None):
     """(inlet temperature degC, absolute inlet pressure kPa, site pressure kPa) for converting power points."""
     if plant is None or inlet is None:
         return None
-    site = (plant.barometric_pressure_kPa if plant.barometric_pressure_kPa is not None
-            else float(barometric_pressure_kPa(plant.elevation_m)))
-    inlet_p = (inlet.pressure_kPa if inlet.pressure_kPa is not None else site) - inlet.filter_loss_kPa
-    return sum(inlet.temperature_C) / len(inlet.temperature_C), inlet_p, site
+    site = plant.site_pressure_kPa
+    return sum(inlet.temperature_C) / len(inlet.temperature_C), inlet.blower_inlet_pressure_kPa(site), site
 
 
 def _blower_mean_efficiency(b: Blower) -> float | None:

@@ -137,13 +137,9 @@ def _known_names(layout: Layout) -> list[str]:
         names.append(f"nh4_{z.id}_mg_L")
         if z.aerated:
             names.append(f"do_{z.id}_mg_L")
-        if _diffused(z):
+        if z.has_diffusers:
             names.append(f"airflow_{z.id}_Sm3_h")
     return names
-
-
-def _diffused(z) -> bool:
-    return z.grid is not None and z.aerated and z.fixed_kla_per_d is None
 
 
 def _is_missing(cell: str) -> bool:
@@ -215,9 +211,9 @@ def _check_header(col: Collector, hrow: int, names: list[str], layout: Layout) -
                           "one of " + ", ".join(zone_ids))
                 continue
             z = layout.zone(zone)
-            if kind == "airflow" and not _diffused(z):
+            if kind == "airflow" and not z.has_diffusers:
                 col.error(key, "this zone has no diffuser grid to take an airflow", zone,
-                          "zones with a [zones.grid]: " + ", ".join(x.id for x in layout.zones if _diffused(x)))
+                          "zones with a [zones.grid]: " + ", ".join(x.id for x in layout.zones if x.has_diffusers))
                 continue
             if kind == "do" and not z.aerated:
                 col.error(key, "DO is fitted only in aerated or swing zones (this one is anoxic)", zone,
@@ -229,7 +225,7 @@ def _check_header(col: Collector, hrow: int, names: list[str], layout: Layout) -
     if FLOW not in seen:
         col.error(f"row {hrow}", f"missing column {FLOW}", None, "the influent flow, m3/d")
     for z in layout.zones:
-        if _diffused(z) and f"airflow_{z.id}_Sm3_h" not in seen:
+        if z.has_diffusers and f"airflow_{z.id}_Sm3_h" not in seen:
             col.error(f"row {hrow}", f"missing column airflow_{z.id}_Sm3_h", None,
                       "the measured airflow of every zone with diffusers (it is imposed on the model)")
     if not any(k == "do" for k, _ in out.values()):

@@ -28,7 +28,7 @@ import numpy as np
 
 from airtaper.layout.types import Layout
 from airtaper.units import HOURS_PER_DAY
-from airtaper.plant import DiffusedZone, FixedKla, ResolvedPlant, resolve_plant
+from airtaper.plant import DiffusedZone, FixedKla, Hydraulics, ResolvedPlant, resolve_plant
 from airtaper.process.asm1 import ASM1Parameters, at_temperature
 from airtaper.process.stoichiometry import petersen_matrix
 
@@ -51,16 +51,8 @@ class TrainData:
     temperature_C: np.ndarray  # (P,)
     params: tuple[ASM1Parameters, ...]  # (P,)
     nu: np.ndarray  # (P, 8, 13) Petersen matrix per period
-    influent_m3_d: np.ndarray  # (P,)
     influent_conc: np.ndarray  # (P, 13)
-    feed_fraction: np.ndarray  # (Z,) share of the influent entering each zone
-    recycles: tuple[tuple[int, int, np.ndarray], ...]  # (from zone, to zone, flow (P,))
-    ras_zone: int
-    ras_m3_d: np.ndarray  # (P,)
-    zone_flow_m3_d: np.ndarray  # (P, Z) flow through each zone (in = out)
-    forward_m3_d: np.ndarray  # (P, Z) flow from zone z to z+1 / to the clarifier
-    waste_m3_d: np.ndarray | None  # (P,) fixed waste flow, or None with an SRT target
-    srt_d: float | None
+    hydraulics: Hydraulics  # flows per period (the plant's, or their daily mean / one period)
     aeration: tuple[GridAeration | FixedAeration | None, ...]  # (Z,)
 
     @property
@@ -76,23 +68,57 @@ class TrainData:
     def clarifier(self):
         return self.plant.clarifier
 
+    # --- the flows (airtaper.plant.Hydraulics) ---------------------------------------------
+    @property
+    def influent_m3_d(self) -> np.ndarray:  # (P,)
+        return self.hydraulics.influent_m3_d
+
+    @property
+    def feed_fraction(self) -> np.ndarray:  # (Z,) share of the influent entering each zone
+        return self.hydraulics.feed_fraction
+
+    @property
+    def recycles(self) -> tuple:  # (from zone, to zone, flow (P,))
+        return self.hydraulics.recycles
+
+    @property
+    def ras_zone(self) -> int:
+        return self.hydraulics.ras_zone
+
+    @property
+    def ras_m3_d(self) -> np.ndarray:  # (P,)
+        return self.hydraulics.ras_m3_d
+
+    @property
+    def zone_flow_m3_d(self) -> np.ndarray:  # (P, Z) flow through each zone (in = out)
+        return self.hydraulics.zone_flow_m3_d
+
+    @property
+    def forward_m3_d(self) -> np.ndarray:  # (P, Z) flow from zone z to z+1 / to the clarifier
+        return self.hydraulics.forward_m3_d
+
+    @property
+    def waste_m3_d(self) -> np.ndarray | None:  # (P,) fixed waste flow, or None with an SRT target
+        return self.hydraulics.waste_m3_d
+
+    @property
+    def srt_d(self) -> float | None:
+        return self.hydraulics.srt_d
+
     @property
     def feed_m3_d(self) -> np.ndarray:
         """Clarifier feed per period (forward flow of the last zone), m3/d."""
-        return self.forward_m3_d[:, -1]
+        return self.hydraulics.feed_m3_d
 
 
 def train_data(plant: ResolvedPlant | Layout) -> TrainData:
     """The per-period numbers of a resolved plant (a layout is resolved first), see the module notes."""
     plant = resolve_plant(plant)
-    h = plant.hydraulics
     return TrainData(
         plant=plant, zones=plant.zone_ids, volume_m3=plant.volume_m3, n_periods=plant.n_periods,
         period_h=plant.period_h, steps_per_period=plant.horizon.steps_per_period, temperature_C=plant.temperature_C,
         params=plant.params, nu=np.stack([petersen_matrix(p) for p in plant.params]),
-        influent_m3_d=h.influent_m3_d, influent_conc=plant.influent_conc, feed_fraction=h.feed_fraction,
-        recycles=h.recycles, ras_zone=h.ras_zone, ras_m3_d=h.ras_m3_d, zone_flow_m3_d=h.zone_flow_m3_d,
-        forward_m3_d=h.forward_m3_d, waste_m3_d=h.waste_m3_d, srt_d=h.srt_d, aeration=plant.aeration)
+        influent_conc=plant.influent_conc, hydraulics=plant.hydraulics, aeration=plant.aeration)
 
 
 def _mean(x: np.ndarray) -> np.ndarray:
@@ -125,10 +151,8 @@ def mean_load(data: TrainData) -> TrainData:
             aeration.append(a)
     return replace(
         data, n_periods=1, period_h=HOURS_PER_DAY, steps_per_period=1, temperature_C=np.array([t_mean]), params=params,
-        nu=np.stack([petersen_matrix(params[0])]), influent_m3_d=_mean(q), influent_conc=conc,
-        recycles=tuple((s, d, _mean(f)) for s, d, f in data.recycles), ras_m3_d=_mean(data.ras_m3_d),
-        zone_flow_m3_d=_mean(data.zone_flow_m3_d), forward_m3_d=_mean(data.forward_m3_d),
-        waste_m3_d=None if data.waste_m3_d is None else _mean(data.waste_m3_d), aeration=tuple(aeration))
+        nu=np.stack([petersen_matrix(params[0])]), influent_conc=conc, hydraulics=data.hydraulics.over(_mean),
+        aeration=tuple(aeration))
 
 
 def single_period(data: TrainData, period: int) -> TrainData:
@@ -138,8 +162,6 @@ def single_period(data: TrainData, period: int) -> TrainData:
                      for a in data.aeration)
     return replace(
         data, n_periods=1, period_h=HOURS_PER_DAY, steps_per_period=1, temperature_C=data.temperature_C[sl],
-        params=(data.params[period],), nu=data.nu[sl], influent_m3_d=data.influent_m3_d[sl],
-        influent_conc=data.influent_conc[sl], recycles=tuple((s, d, f[sl]) for s, d, f in data.recycles),
-        ras_m3_d=data.ras_m3_d[sl], zone_flow_m3_d=data.zone_flow_m3_d[sl], forward_m3_d=data.forward_m3_d[sl],
-        waste_m3_d=None if data.waste_m3_d is None else data.waste_m3_d[sl], aeration=aeration)
+        params=(data.params[period],), nu=data.nu[sl], influent_conc=data.influent_conc[sl],
+        hydraulics=data.hydraulics.over(lambda a: a[sl]), aeration=aeration)
 

@@ -425,9 +425,15 @@ def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: st
         Zone id -> airflow (Sm3/h) or per-period airflows, fixed in ``airflow_Sm3_h``.
     scheme : "radau2" (default), "radau3", "euler" or "bdf2"
         Time discretisation of the cyclic model (ignored for a steady point).
+
+    Notes
+    -----
+    ``m.train_data`` is ``data``: the numbers the model was built from, and through
+    ``m.train_data.plant`` the resolved plant, which is all a layer attaching to the
+    model (the optimiser, the calibration) reads about the plant.
     """
     m = pyo.ConcreteModel(name=name)
-    m._train_data = data
+    m.train_data = data
     attach_sets(m, data, steady, scheme)
     attach_aeration(m, data, airflow)
     attach_flows(m, data)

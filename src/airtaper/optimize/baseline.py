@@ -103,7 +103,7 @@ def baseline_setpoints(layout: Layout, setpoint_mg_L: float | None = None) -> di
     sp = layout.operation.baseline_do_setpoint_mg_L if setpoint_mg_L is None else float(setpoint_mg_L)
     out = {}
     for z in layout.zones:
-        if z.kind != "aerated" or z.grid is None or z.fixed_kla_per_d is not None:
+        if z.kind != "aerated" or not z.has_diffusers:
             continue
         v = sp
         if z.do_max_mg_L is not None:

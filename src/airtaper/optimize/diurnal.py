@@ -146,7 +146,7 @@ class DiurnalOptimisation:
                                 smoothing_weight=self.options.smoothing_weight,
                                 mixing_airflow_min_Sm3_h_m2=self.options.mixing_airflow_min_Sm3_h_m2,
                                 staging=self.options.staging)
-        attach_problem(m, self.layout, settings)
+        attach_problem(m, settings)
         self.timings["initialise_s"] = time.perf_counter() - t
         self.progress.phase("converting the model and building derivatives")
         t = time.perf_counter()
@@ -448,7 +448,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     figs = study.figures()
     energy = study.energy_kWh_per_day()
     power = study.power_by_period()
-    cost = study.m.opt.air.cost(power)
+    cost = study.m.train_data.plant.air.cost(power)
     blowers_table, dispatch = None, None
     if staging is not None and staging.dispatch is not None:
         dp = staging.dispatch if staging.findings else final_dispatch(study.m, staging.dispatch)

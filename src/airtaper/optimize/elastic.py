@@ -71,7 +71,7 @@ def enter_elastic(m) -> None:
     for g, slack in active_limit_groups(b):
         w = _weights(m, g, slack)
         terms.extend(w[k] * v for k, v in slack.items())
-    normal = {z: v for z, v in normal_do_mg_L(b.layout).items() if z in b.ZONES}
+    normal = {z: v for z, v in normal_do_mg_L(m.train_data.plant.layout).items() if z in b.ZONES}
     for name in ("elastic_do_excess_def", "elastic_do_excess", "ELASTIC_DO_ZONES"):
         if b.component(name) is not None:
             b.del_component(name)
@@ -156,7 +156,7 @@ def findings(m) -> list[dict]:
     (``start_h``, ``end_h``, ``amount``, ``unit``), each with its own largest relaxation.
     """
     b = m.opt
-    period_h = m._train_data.period_h
+    period_h = m.train_data.period_h
     step_h = m.step_hours
     out = []
     for g, slack in active_limit_groups(b):

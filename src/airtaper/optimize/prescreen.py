@@ -60,7 +60,7 @@ FULL_AIR_DAYS = 1
 
 
 def _grid_zones(layout: Layout):
-    return [z for z in layout.zones if z.grid is not None and z.aerated and z.fixed_kla_per_d is None]
+    return [z for z in layout.zones if z.has_diffusers]
 
 
 def _finding(limit, zone, spans, message) -> dict:

@@ -44,7 +44,6 @@ from airtaper.errors import ModelError
 from airtaper.layout.types import Layout
 from airtaper.optimize.dispatch import envelope_lines, machines_of, max_lines
 from airtaper.physics.blower import blower_power_kW
-from airtaper.plant import resolve_plant
 
 #: Numerical box on airflow, as a multiple of the zone's hardware maximum: wide enough
 #: that the elastic solve can ask for more air than the hardware passes, and keeps
@@ -153,28 +152,30 @@ def period_mean(m, expr, p):
 
 
 # --- the attachment -----------------------------------------------------------------------
-def attach_problem(m, layout: Layout, settings: ProblemSettings):
-    """Add decisions, limits and objective to a cyclic model (see module notes); returns ``m.opt``."""
+def attach_problem(m, settings: ProblemSettings):
+    """Add decisions, limits and objective to a cyclic model (see module notes); returns ``m.opt``.
+
+    Everything about the plant is read from the model's resolved plant (``m.train_data.plant``).
+    """
     if m.steady:
         raise ModelError("the diurnal optimisation needs the cyclic model (build_cyclic_model)")
     if hasattr(m, "opt"):
         raise ModelError("the model already has an optimisation block")
-    air = resolve_plant(layout).air
+    plant = m.train_data.plant
+    air = plant.air
     grid = [z for z in m.GRID_ZONES]
     if not grid:
         raise ModelError("the layout has no diffused zones: there is no airflow to optimise")
     m.opt = b = pyo.Block()
-    b.layout = layout
-    b.air = air
     b.settings = settings
     b.ZONES = pyo.Set(initialize=grid, ordered=True)
-    do_zones = [z for z in grid if layout.zone(z).do_min_mg_L is not None]
-    do_max_zones = [z for z in grid if layout.zone(z).do_max_mg_L is not None]
+    do_zones = [z for z in grid if plant.zone(z).do_min_mg_L is not None]
+    do_max_zones = [z for z in grid if plant.zone(z).do_max_mg_L is not None]
     b.DO_ZONES = pyo.Set(initialize=do_zones, ordered=True)
     b.DO_MAX_ZONES = pyo.Set(initialize=do_max_zones, ordered=True)
     b.MIN_ZONES = pyo.Set(initialize=grid, ordered=True)
-    b.SWING_ZONES = pyo.Set(initialize=[z for z in grid if layout.zone(z).kind == "swing"], ordered=True)
-    b.VALVE_ZONES = pyo.Set(initialize=[z for z in grid if layout.zone(z).valve_capacity_Sm3_h is not None],
+    b.SWING_ZONES = pyo.Set(initialize=[z for z in grid if plant.zone(z).kind == "swing"], ordered=True)
+    b.VALVE_ZONES = pyo.Set(initialize=[z for z in grid if plant.zone(z).valve_capacity_Sm3_h is not None],
                             ordered=True)
     P = list(m.PERIODS)
 
@@ -210,10 +211,10 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
         b.ZONES, m.PERIODS,
         rule=lambda b, z, p: air.zone_required_pressure_kPa(z, m.airflow_Sm3_h[z, p], m.diffuser_count[z]))
     b.header_kPa = pyo.Var(m.PERIODS, bounds=(0.0, None), initialize=lambda b, p: max(
-        pyo.value(b.zone_pressure_kPa[z, p]) for z in grid) + layout.header.min_valve_loss_kPa)
+        pyo.value(b.zone_pressure_kPa[z, p]) for z in grid) + air.header.min_valve_loss_kPa)
     b.valve_loss = pyo.Constraint(  # a swing zone switched off has its valve shut (swing_air 0)
         b.ZONES, m.PERIODS, rule=lambda b, z, p: b.header_kPa[p] - air_on(z, p) * b.zone_pressure_kPa[z, p]
-        >= air_on(z, p) * layout.header.min_valve_loss_kPa)
+        >= air_on(z, p) * air.header.min_valve_loss_kPa)
     # --- blower power --------------------------------------------------------------------
     # Staged: the power of the period's running machines is the largest of the lines of their
     # least-power curve (convex, see airtaper.optimize.dispatch), in equivalent airflow
@@ -221,7 +222,7 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
     # coefficients and the set's airflow range and pressure limit are fixed variables (values
     # change between staging rounds, the derivative structure does not); the first solve uses
     # the convex envelope over every set of machines (and no air).
-    b.machines = machines_of(layout)
+    b.machines = machines_of(plant)
     in_service = any(not mm.out_of_service for mm in b.machines)
     b.staged = in_service and settings.staging
     b.LINES = pyo.RangeSet(max_lines(b.machines) if b.staged else 1)
@@ -260,7 +261,7 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
 
     so = lambda t, z: m.conc[t, z, "SO"]  # noqa: E731
     b.do_min_mg_L = pyo.Param(b.DO_ZONES, mutable=True,
-                              initialize={z: float(layout.zone(z).do_min_mg_L) for z in do_zones})
+                              initialize={z: float(plant.zone(z).do_min_mg_L) for z in do_zones})
     # back-offs inside the DO range per zone and period (0 unless the re-simulation asks for
     # them: airtaper.optimize.backoff holds the range between the time points)
     b.do_backoff_mg_L = pyo.Param(b.DO_ZONES, m.PERIODS, mutable=True, initialize=0.0)
@@ -269,13 +270,13 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
         so(t, z) + s[t, z] >= (b.do_min_mg_L[z] + b.do_backoff_mg_L[z, m.period_of_step[t]])
         * (b.swing_do_on[t, z] if z in b.SWING_ZONES else 1.0)))
     b.do_max_mg_L = pyo.Param(b.DO_MAX_ZONES, mutable=True,
-                              initialize={z: float(layout.zone(z).do_max_mg_L) for z in do_max_zones})
+                              initialize={z: float(plant.zone(z).do_max_mg_L) for z in do_max_zones})
     b.do_max_backoff_mg_L = pyo.Param(b.DO_MAX_ZONES, m.PERIODS, mutable=True, initialize=0.0)
     s2 = slack("do_max_slack", m.STEPS, b.DO_MAX_ZONES)
     b.do_max = pyo.Constraint(m.STEPS, b.DO_MAX_ZONES, rule=lambda b, t, z: (
         so(t, z) - s2[t, z] <= b.do_max_mg_L[z] - b.do_max_backoff_mg_L[z, m.period_of_step[t]]))
 
-    lim = layout.limits
+    lim = plant.limits
     b.effluent_weights = effluent_weights(m)
     b.nh4_mean_expr = pyo.Expression(expr=flow_weighted_mean(m, m.effluent_nh4_mg_L, b.effluent_weights))
     b.nh4_period_expr = pyo.Expression(m.PERIODS, rule=lambda b, p: period_mean(m, m.effluent_nh4_mg_L, p))
@@ -305,10 +306,10 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
         q[z, p] >= on(z, p) * m.diffuser_count[z] * air.zone(z).diffuser_airflow_min_Sm3_h * (1.0 - s7[z, p])))
     s8 = slack("mixing_min_slack", b.MIN_ZONES, m.PERIODS)
     b.mixing_min = pyo.Constraint(b.MIN_ZONES, m.PERIODS, rule=lambda b, z, p: (
-        q[z, p] >= on(z, p) * settings.mixing_airflow_min_Sm3_h_m2[z] * layout.zone(z).area_m2 * (1.0 - s8[z, p])))
+        q[z, p] >= on(z, p) * settings.mixing_airflow_min_Sm3_h_m2[z] * plant.zone(z).area_m2 * (1.0 - s8[z, p])))
     s9 = slack("valve_max_slack", b.VALVE_ZONES, m.PERIODS)
     b.valve_max = pyo.Constraint(b.VALVE_ZONES, m.PERIODS, rule=lambda b, z, p: (
-        q[z, p] <= layout.zone(z).valve_capacity_Sm3_h * (1.0 + s9[z, p])))
+        q[z, p] <= plant.zone(z).valve_capacity_Sm3_h * (1.0 + s9[z, p])))
     s10 = slack("blower_max_slack", m.PERIODS)
     s11 = slack("blower_min_slack", m.PERIODS)
     s12 = slack("pressure_max_slack", m.PERIODS)
@@ -323,14 +324,12 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
 
     # --- objective --------------------------------------------------------------------------
     if settings.objective == "cost":
-        tariff = layout.tariff
         b.peak_kW = pyo.Var(bounds=(0.0, None), initialize=max(pyo.value(b.power_kW[p]) for p in P))
         b.peak = pyo.Constraint(m.PERIODS, rule=lambda b, p: b.peak_kW >= b.power_kW[p])
-        if tariff.demand_charge_per_kW == 0.0:
+        if air.demand_rate_per_kW_day == 0.0:
             b.peak.deactivate()
             b.peak_kW.fix(0.0)
-        b.goal = pyo.Expression(expr=sum(tariff.price_per_kWh[p - 1] * b.power_kW[p] * air.period_h for p in P)
-                                + tariff.demand_charge_per_kW / tariff.demand_period_days * b.peak_kW)
+        b.goal = pyo.Expression(expr=air.day_cost([b.power_kW[p] for p in P], air.period_h, peak_kW=b.peak_kW))
     else:
         b.goal = pyo.Expression(expr=b.energy_kWh_per_day)
     qmax = {z: air.zone(z).airflow_max_Sm3_h for z in grid}

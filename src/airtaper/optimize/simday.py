@@ -34,6 +34,7 @@ from airtaper.layout.types import ASM1_COMPONENTS, Layout
 from airtaper.optimize.compliance import day_figures
 from airtaper.plant import resolve_plant
 from airtaper.simulate.summary import setpoint_shortfalls
+from airtaper.units import HOURS_PER_DAY
 
 
 @dataclass
@@ -139,12 +140,10 @@ def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=
         warnings.simplefilter("ignore")
         power = side.step_power_kW(airflow, period) if side.zones else np.zeros(n)
         node_power = side.step_power_kW(node_air, quad.period) if side.zones else np.zeros(quad.period.size)
-    energy = float(24.0 * quad.weight @ node_power)
+    energy = float(HOURS_PER_DAY * quad.weight @ node_power)
     cost = None
-    if layout.tariff is not None:
-        price = np.asarray(layout.tariff.price_per_kWh, dtype=float)[quad.period]
-        cost = float(24.0 * quad.weight @ (price * node_power)) + \
-            layout.tariff.demand_charge_per_kW / layout.tariff.demand_period_days * float(node_power.max())
+    if side.tariff is not None:
+        cost = float(side.day_cost([float(x) for x in node_power], HOURS_PER_DAY * quad.weight, quad.period))
     qe = quad.effluent
     # DO margins from the continuous extremes: the lowest and highest DO of every period
     do_extreme = {zid: np.concatenate((g["do_min_mg_L"].to_numpy(), g["do_max_mg_L"].to_numpy()))

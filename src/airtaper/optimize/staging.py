@@ -81,7 +81,7 @@ def kw_per_equivalent(air: AirSide, discharge_gauge_kPa) -> np.ndarray:
 def model_air_state(m) -> dict:
     """Per period: total airflow, discharge gauge pressure, kW per equivalent Sm3/h, air the zones could still take."""
     b = m.opt
-    air = resolve_plant(b.layout).air
+    air = m.train_data.plant.air
     P = list(m.PERIODS)
     q = np.array([float(pyo.value(b.total_airflow_Sm3_h[p])) for p in P])
     header = np.array([float(b.header_kPa[p].value) for p in P])
@@ -143,7 +143,7 @@ def final_dispatch(m, dp: Dispatch) -> Dispatch:
     """The accepted on/off decisions evaluated at the solved schedule's airflow and pressure."""
     s = model_air_state(m)
     return evaluate(dp.machines, dp.running, s["demand_Sm3_h"], s["discharge_gauge_kPa"], s["kw_per_equivalent"],
-                    float(m.opt.air.period_h), status=dp.status, seconds=dp.seconds)
+                    float(m.train_data.period_h), status=dp.status, seconds=dp.seconds)
 
 
 def round_cost(layout: Layout, dp: Dispatch, objective: str) -> float:
@@ -171,7 +171,7 @@ def relaxed_swing_fractions(m) -> dict:
     b = m.opt
     out = {}
     for z in b.SWING_ZONES:
-        d = resolve_plant(b.layout).air.zone(z)
+        d = m.aeration[z]
         qmin = max(pyo.value(m.diffuser_count[z]) * d.diffuser_airflow_min_Sm3_h,
                    b.settings.mixing_airflow_min_Sm3_h_m2[z] * d.zone.area_m2)
         out[z] = np.array([float(m.airflow_Sm3_h[z, p].value) for p in m.PERIODS]) / max(qmin, 1e-9)
@@ -220,7 +220,7 @@ def run_staging(study, first_result) -> StagingOutcome:
         t0 = time.perf_counter()
         state = model_air_state(m)
         dp = solve_dispatch(b.machines, state["demand_Sm3_h"], state["discharge_gauge_kPa"],
-                            state["kw_per_equivalent"], bill, float(b.air.period_h), state["excess_max_Sm3_h"])
+                            state["kw_per_equivalent"], bill, float(m.train_data.period_h), state["excess_max_Sm3_h"])
         if dp.findings:
             out.findings = dp.findings
             out.dispatch = dp
@@ -278,7 +278,6 @@ def feasibility_check(m, dp: Dispatch) -> list[str]:
     """Every running machine within its airflow range and pressure limit; every grid within its range when on,
     at no air when off. Returns the breaches (empty when feasible)."""
     b = m.opt
-    layout = b.layout
     bad = []
     tol = CHECK_RTOL
     for i, p in enumerate(m.PERIODS):
@@ -300,18 +299,17 @@ def feasibility_check(m, dp: Dispatch) -> list[str]:
                 bad.append(f"period {p}: blower {mm.id} at {dp.discharge_gauge_kPa[i]:.1f} kPa above its "
                            f"{mm.pressure_max_gauge_kPa:g} kPa limit")
         for z in b.ZONES:
-            zone = layout.zone(z)
+            d = m.aeration[z]
             q = float(m.airflow_Sm3_h[z, p].value)
             off = b.swing_states is not None and z in b.swing_states and not b.swing_states[z][i]
             if off:
                 if abs(q) > 1e-6:
                     bad.append(f"period {p}: swing zone {z} is off but gets {q:.1f} Sm3/h")
                 continue
-            lo, hi = layout.zone_airflow_range_Sm3_h(zone)
-            dt = layout.diffuser_type(zone.grid.type_id)
-            lo = max(lo, zone.grid.count * dt.airflow_min_Sm3_h,
-                     b.settings.mixing_airflow_min_Sm3_h_m2[z] * zone.area_m2)
-            if zone.kind == "swing" and b.swing_states is None:
+            lo, hi = d.airflow_range_Sm3_h
+            lo = max(lo, d.diffusers * d.diffuser_airflow_min_Sm3_h,
+                     b.settings.mixing_airflow_min_Sm3_h_m2[z] * d.zone.area_m2)
+            if d.kind == "swing" and b.swing_states is None:
                 lo = 0.0
             if q < lo * (1 - tol) or q > hi * (1 + tol):
                 bad.append(f"period {p}: zone {z} at {q:.1f} Sm3/h outside its grid range {lo:.0f}-{hi:.0f}")

@@ -17,16 +17,18 @@ from __future__ import annotations
 import os
 import warnings as _warnings
 from collections import OrderedDict
+from dataclasses import replace
 
 import numpy as np
 
 from airtaper.errors import InputError, Problem
+from airtaper.layout.graph import forward_flows
+from airtaper.layout.loaddays import day_layout
 from airtaper.layout.overrides import blame_overrides, load_layout_with_overrides
 from airtaper.layout.reader import LayoutWarning
 from airtaper.layout.types import Layout
-from airtaper.physics.atmosphere import barometric_pressure_kPa
 from airtaper.physics.depth import c_inf20_mg_L
-from airtaper.physics.pressure import blower_inlet_pressure_kPa, fit_headloss_curve
+from airtaper.physics.pressure import fit_headloss_curve
 from airtaper.physics.sote import SoteFitWarning, fit_sote_curve
 from airtaper.plant.resolved import AirSide, DiffusedZone, FixedKla, Hydraulics, ResolvedPlant, frozen_array
 from airtaper.process.asm1 import at_temperature, parameter_set, with_overrides
@@ -38,12 +40,6 @@ _cache: OrderedDict = OrderedDict()
 
 
 # --------------------------------------------------------------------------- pieces
-def site_pressure_kPa(layout: Layout) -> float:
-    """Site barometric pressure, kPa absolute: as given, or from elevation (US Standard Atmosphere 1976)."""
-    given = layout.plant.barometric_pressure_kPa
-    return float(given) if given is not None else float(barometric_pressure_kPa(layout.plant.elevation_m))
-
-
 def _hydraulics(layout: Layout, problems: list) -> Hydraulics:
     zones = [z.id for z in layout.zones]
     nz = len(zones)
@@ -52,27 +48,18 @@ def _hydraulics(layout: Layout, problems: list) -> Hydraulics:
     frac = np.zeros(nz)
     for sf in layout.step_feed:
         frac[zones.index(sf.zone)] += sf.fraction
-    frac[0] += max(1.0 - frac.sum(), 0.0)
     recycles = tuple((zones.index(r.from_zone), zones.index(r.to_zone), frozen_array(r.flow_m3_d))
                      for r in layout.recycles)
     ras_zone = zones.index(layout.return_sludge.to_zone)
     ras = frozen_array(layout.return_sludge.flow_m3_d)
-    through = np.zeros((n_p, nz))
-    forward = np.zeros((n_p, nz))
-    for i in range(nz):
-        q_in = frac[i] * influent + (forward[:, i - 1] if i else 0.0)
-        q_out = np.zeros(n_p)
-        for src, dst, q in recycles:
-            if dst == i:
-                q_in = q_in + q
-            if src == i:
-                q_out = q_out + q
-        if ras_zone == i:
-            q_in = q_in + ras
-        through[:, i] = q_in
-        forward[:, i] = q_in - q_out
-    for j, zid in enumerate(zones):  # the parser allows 0; a reactor needs flow through it
-        bad = np.nonzero(forward[:, j] <= 0.0)[0]
+    # the forward flows have one home, the train graph's water balance (the parser checks them there)
+    forward = np.array(forward_flows(zones, layout.step_feed, layout.recycles, layout.return_sludge,
+                                     layout.influent.flow_m3_d), dtype=float).reshape(nz, n_p).T
+    through = forward.copy()  # a zone's inflow = its outflow = forward flow + recycles drawn from it
+    for src, _, q in recycles:
+        through[:, src] += q
+    for j, zid in enumerate(zones):  # the parser allows 0; a reactor needs flow through it (a millionth of
+        bad = np.nonzero(forward[:, j] <= 1e-6 * through[:, j])[0]  # its throughflow is none: round-off)
         if bad.size:
             k = int(bad[0])
             problems.append(Problem(layout.path, f"zones.{zid}",
@@ -88,7 +75,7 @@ def _fits(layout: Layout, problems: list, notes: list) -> tuple[dict, dict]:
     """SOTE and headloss curves of every diffuser type a diffused zone uses."""
     sote, headloss = {}, {}
     for z in layout.zones:
-        if not _diffused(z) or z.grid.type_id in sote:
+        if not z.has_diffusers or z.grid.type_id in sote:
             continue
         dt = layout.diffuser_type(z.grid.type_id)
         key = f"diffuser_types.{dt.id}"
@@ -115,48 +102,47 @@ def _fits(layout: Layout, problems: list, notes: list) -> tuple[dict, dict]:
     return sote, headloss
 
 
-def _diffused(zone) -> bool:
-    """A zone that takes air from the header: aerated or swing, with a diffuser grid (no fixed kLa)."""
-    return zone.aerated and zone.grid is not None and zone.fixed_kla_per_d is None
-
-
-def _airflow_range(layout: Layout, zone) -> tuple[float, float]:
-    dt = layout.diffuser_type(zone.grid.type_id)
-    lo = max(zone.grid.count * dt.airflow_min_Sm3_h, zone.mixing_airflow_min_Sm3_h_m2 * zone.area_m2)
-    hi = zone.grid.count * dt.airflow_max_Sm3_h
-    if zone.valve_capacity_Sm3_h is not None:
-        hi = min(hi, zone.valve_capacity_Sm3_h)
-    return float(lo), float(hi)
-
-
 def _aeration(layout: Layout, temperature, pressure, sote, headloss):
     out = []
     for i, z in enumerate(layout.zones):
-        if not z.aerated:
-            out.append(None)
-        elif z.fixed_kla_per_d is not None:
+        if z.aerated and z.fixed_kla_per_d is not None:
             out.append(FixedKla(z, i, float(z.fixed_kla_per_d),
                                 None if z.fixed_do_sat_mg_L is None else float(z.fixed_do_sat_mg_L)))
-        elif z.grid is not None:
+        elif z.has_diffusers:
             dt = layout.diffuser_type(z.grid.type_id)
             c20 = float(c_inf20_mg_L(z.grid.submergence_m, dt.effective_depth_fraction))
-            lo, hi = _airflow_range(layout, z)
+            lo, hi = z.airflow_range_Sm3_h(dt)
             d = DiffusedZone(
                 zone=z, index=i, sote=sote[dt.id], headloss=headloss[dt.id], diffusers=z.grid.count,
-                density_percent=100.0 * z.grid.count * dt.membrane_area_m2 / z.area_m2,
+                density_percent=z.diffuser_density_percent(dt),
                 submergence_m=z.grid.submergence_m, effective_depth_fraction=dt.effective_depth_fraction,
                 c_inf20_mg_L=c20, pressure_kPa=pressure, do_sat_mg_L=frozen_array([]), airflow_min_Sm3_h=lo,
                 airflow_max_Sm3_h=hi, diffuser_airflow_min_Sm3_h=float(dt.airflow_min_Sm3_h),
                 diffuser_airflow_max_Sm3_h=float(dt.airflow_max_Sm3_h))
-            sat = frozen_array([float(d.do_sat_at(t)) for t in temperature])
-            object.__setattr__(d, "do_sat_mg_L", sat)  # still being built: frozen once returned
-            out.append(d)
+            out.append(replace(d, do_sat_mg_L=frozen_array([float(d.do_sat_at(t)) for t in temperature])))
         else:
             out.append(None)
     return tuple(out)
 
 
 # --------------------------------------------------------------------------- the step
+def _day_problems(layout: Layout, day, base) -> list[Problem]:
+    """The resolution problems of one load day's plant, keyed by the day (``load_days.<id>, <key>``).
+
+    A day with its own influent has its fractionation checked (a scaled base profile keeps the
+    base's signs: every concentration scales by the same factor); every day its flows.
+    """
+    day_lay = day_layout(layout, day)
+    problems: list[Problem] = []
+    if day.influent is not None and base is not None:
+        try:
+            influent_components(day_lay.influent, base, layout.path)
+        except InputError as exc:
+            problems.extend(exc.problems)
+    _hydraulics(day_lay, problems)
+    return [Problem(p.file, f"load_days.{day.id}, {p.key}", p.problem, p.got, p.expected) for p in problems]
+
+
 def _resolve(layout: Layout) -> tuple[ResolvedPlant, tuple]:
     problems: list[Problem] = []
     notes: list[LayoutWarning] = []
@@ -176,15 +162,16 @@ def _resolve(layout: Layout) -> tuple[ResolvedPlant, tuple]:
             problems.extend(exc.problems)
     hydraulics = _hydraulics(layout, problems)
     sote, headloss = _fits(layout, problems, notes)
+    for day in layout.load_days:  # every load day is a plant of its own: its influent and flows are checked too
+        problems.extend(_day_problems(layout, day, base))
     if problems:
         raise InputError(problems)
-    pressure = site_pressure_kPa(layout)
+    pressure = layout.plant.site_pressure_kPa
     aeration = _aeration(layout, temperature, pressure, sote, headloss)
     inlet = layout.inlet_air
     air = AirSide(
         site_pressure_kPa=pressure,
-        inlet_pressure_kPa=float(blower_inlet_pressure_kPa(
-            inlet.pressure_kPa if inlet.pressure_kPa is not None else pressure, inlet.filter_loss_kPa)),
+        inlet_pressure_kPa=inlet.blower_inlet_pressure_kPa(pressure),
         inlet_temperature_C=frozen_array(inlet.temperature_C),
         zones=tuple(a for a in aeration if isinstance(a, DiffusedZone)),
         header=layout.header, blowers=layout.blowers, tariff=layout.tariff, period_h=float(layout.horizon.period_h))
@@ -244,4 +231,4 @@ def load_plant(path: str | os.PathLike, overrides_path=None, warnings: list | No
         raise InputError(blame_overrides(exc.problems, overrides_path)) from None
 
 
-__all__ = ["load_plant", "resolve_plant", "site_pressure_kPa"]
+__all__ = ["load_plant", "resolve_plant"]

@@ -192,6 +192,14 @@ class Hydraulics:
         """Clarifier feed per period, m3/d."""
         return self.forward_m3_d[:, -1]
 
+    def over(self, fn) -> "Hydraulics":
+        """The same flows with ``fn`` applied to every per-period array (period axis first): a daily mean, a slice."""
+        return Hydraulics(
+            influent_m3_d=fn(self.influent_m3_d), feed_fraction=self.feed_fraction,
+            recycles=tuple((s, d, fn(f)) for s, d, f in self.recycles), ras_zone=self.ras_zone,
+            ras_m3_d=fn(self.ras_m3_d), zone_flow_m3_d=fn(self.zone_flow_m3_d), forward_m3_d=fn(self.forward_m3_d),
+            waste_m3_d=None if self.waste_m3_d is None else fn(self.waste_m3_d), srt_d=self.srt_d)
+
 
 @dataclass(frozen=True, eq=False)
 class AirSide:
@@ -229,7 +237,7 @@ class AirSide:
         return self._by_id[zone if isinstance(zone, str) else zone.id]
 
     def has_diffusers(self, zone) -> bool:
-        """True for a zone that takes air from the header (the project's one "zone has diffusers" predicate)."""
+        """True for a zone (id or :class:`Zone`) that takes air from the header (:attr:`Zone.has_diffusers`)."""
         return (zone if isinstance(zone, str) else zone.id) in self._by_id
 
     @property
@@ -315,13 +323,38 @@ class AirSide:
         """Energy over the day, kWh (numbers)."""
         return float(np.sum(energy_kWh(np.asarray(power_by_period, dtype=float), self.period_h)))
 
+    # --- the day's bill: the one cost formula -------------------------------------------------
+    @property
+    def demand_rate_per_kW_day(self) -> float:
+        """Demand charge per kW of the day's peak and per day (the billing period's charge spread over its days)."""
+        return 0.0 if self.tariff is None else self.tariff.demand_charge_per_kW / self.tariff.demand_period_days
+
+    def energy_cost(self, power_kW, hours, period=None):
+        """Energy cost of power samples: sum of price(period) x power x hours (numbers or Pyomo expressions).
+
+        ``hours``: the duration each sample stands for (one number or one per sample);
+        ``period``: each sample's 0-based period (default: sample k is period k).
+        """
+        price = self.tariff.price_per_kWh
+        n = len(power_kW)
+        hrs = np.broadcast_to(np.asarray(hours, dtype=float), (n,))
+        per = range(n) if period is None else np.asarray(period, dtype=int)
+        return sum(float(price[k]) * p * float(h) for p, h, k in zip(power_kW, hrs, per))
+
+    def demand_charge(self, peak_kW):
+        """The day's share of the demand charge at a peak power (a number or a Pyomo variable)."""
+        return self.demand_rate_per_kW_day * peak_kW
+
+    def day_cost(self, power_kW, hours, period=None, peak_kW=None):
+        """Cost of a day: energy cost + the day's demand charge at the peak (the samples' largest by default)."""
+        peak = max(power_kW) if peak_kW is None else peak_kW
+        return self.energy_cost(power_kW, hours, period) + self.demand_charge(peak)
+
     def cost(self, power_by_period) -> float | None:
-        """Energy cost of the day under the tariff (with the demand charge per day), or None."""
+        """Cost of a day of per-period powers under the tariff (with the demand charge per day), or None."""
         if self.tariff is None:
             return None
-        p = np.asarray(power_by_period, dtype=float)
-        energy_cost = float(np.sum(np.asarray(self.tariff.price_per_kWh) * energy_kWh(p, self.period_h)))
-        return energy_cost + self.tariff.demand_charge_per_kW / self.tariff.demand_period_days * float(p.max())
+        return float(self.day_cost([float(x) for x in np.asarray(power_by_period, dtype=float)], self.period_h))
 
     def schedule_figures(self, airflow_by_zone: dict) -> dict:
         """Header pressure, total airflow, power, energy and cost of a per-period schedule (numbers).

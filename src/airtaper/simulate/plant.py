@@ -58,20 +58,19 @@ class Inputs:
 
 
 def _network(plant: ResolvedPlant, k: int | None):
-    """Influent share, flow matrix, forward and total flow per zone of period ``k`` (None: the mean day)."""
-    h = plant.hydraulics
-    pick = (lambda a: float(np.mean(a))) if k is None else (lambda a: float(a[k]))
-    q_inf = pick(h.influent_m3_d)
+    """Influent, influent share, flow matrix, forward and total flow per zone of period ``k`` (None: the mean day)."""
+    h = plant.hydraulics.over(lambda a: a.mean(axis=0, keepdims=True) if k is None else a[k:k + 1])
+    q_inf = float(h.influent_m3_d[0])
     nz = plant.n_zones
     q_feed = h.feed_fraction * q_inf
     flow = np.zeros((nz, nz))
     for src, dst, q in h.recycles:
-        flow[dst, src] += pick(q)
-    q_fwd = h.forward_m3_d.mean(axis=0) if k is None else h.forward_m3_d[k].copy()
+        flow[dst, src] += float(q[0])
+    q_fwd = np.array(h.forward_m3_d[0])
     for i in range(nz - 1):
         flow[i + 1, i] += q_fwd[i]
-    q_in_total = h.zone_flow_m3_d.mean(axis=0) if k is None else h.zone_flow_m3_d[k].copy()
-    return q_inf, q_feed, flow, q_fwd, q_in_total
+    return q_inf, q_feed, flow, q_fwd, np.array(h.zone_flow_m3_d[0]), float(h.ras_m3_d[0]), \
+        None if h.waste_m3_d is None else float(h.waste_m3_d[0])
 
 
 class PlantData:
@@ -122,15 +121,11 @@ class PlantData:
             temp = float(self.temperature_C.mean())
             params = at_temperature(self.base_params, temp) if plant.kinetics.temperature_correction \
                 else self.base_params
-            q_ret = float(np.mean(h.ras_m3_d))
-            q_w = None if h.waste_m3_d is None else float(np.mean(h.waste_m3_d))
         else:
             c_in = self.c_influent[k]
             temp = float(self.temperature_C[k])
             params = self.params[k]
-            q_ret = float(h.ras_m3_d[k])
-            q_w = None if h.waste_m3_d is None else float(h.waste_m3_d[k])
-        q_inf, q_feed, flow, q_fwd, q_tot = _network(plant, k)
+        q_inf, q_feed, flow, q_fwd, q_tot, q_ret, q_w = _network(plant, k)
         r_to = h.ras_zone
         nz = self.nz
         air = np.zeros(nz) if airflow_Sm3_h is None else np.asarray(airflow_Sm3_h, dtype=float)

@@ -91,10 +91,10 @@ def resolve_aeration(layout, schedule=None, do_setpoint_mg_L=None):
             raise InputError(Problem(layout.path, "schedule", "airflows must be finite and not negative"))
     if do_setpoint_mg_L is None and schedule is None:
         do_setpoint_mg_L = {z.id: layout.operation.baseline_do_setpoint_mg_L for z in layout.zones
-                            if z.kind == "aerated" and z.grid is not None and z.fixed_kla_per_d is None}
+                            if z.kind == "aerated" and z.has_diffusers}
     if isinstance(do_setpoint_mg_L, (int, float)):
         do_setpoint_mg_L = {z.id: float(do_setpoint_mg_L) for z in layout.zones
-                            if z.kind == "aerated" and (z.grid is not None or z.fixed_kla_per_d is not None)}
+                            if z.kind == "aerated" and (z.has_diffusers or z.fixed_kla_per_d is not None)}
     sp = _per_zone(layout, do_setpoint_mg_L, "do_setpoint")
     for i, z in enumerate(layout.zones):
         if np.isfinite(sp[i]) and not z.aerated:
