@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import sys
 
+from airtaper import units
 from airtaper.errors import EXIT_INFEASIBLE, EXIT_OK
 from airtaper.layout import Layout, load_layout
 
@@ -67,7 +68,7 @@ def zone_table(layout: Layout) -> list[list[str]]:
     rows = [["zone", "kind", "volume m3", "HRT h", "diffusers", "density %", "airflow Sm3/h"]]
     total_v = total_n = lo_sum = hi_sum = 0.0
     for z in layout.zones:
-        hrt = z.volume_m3 / q * 24.0
+        hrt = z.volume_m3 / q * units.HOURS_PER_DAY
         total_v += z.volume_m3
         if z.grid is not None:
             diff = f"{z.grid.count:,} x {z.grid.type_id}"
@@ -82,7 +83,8 @@ def zone_table(layout: Layout) -> list[list[str]]:
         else:
             diff, dens, air = "-", "-", "-"
         rows.append([z.id, z.kind, _n(z.volume_m3), f"{hrt:.2f}", diff, dens, air])
-    rows.append(["total", "", _n(total_v), f"{total_v / q * 24.0:.2f}", _n(total_n) if total_n else "-", "",
+    hrt_total = total_v / q * units.HOURS_PER_DAY
+    rows.append(["total", "", _n(total_v), f"{hrt_total:.2f}", _n(total_n) if total_n else "-", "",
                  f"{_n(lo_sum)}-{_n(hi_sum)}" if hi_sum else "-"])
     return rows
 

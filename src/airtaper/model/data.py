@@ -26,6 +26,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from airtaper import units
 from airtaper.errors import ModelError
 from airtaper.layout.types import Layout
 from airtaper.physics.atmosphere import barometric_pressure_kPa
@@ -220,7 +221,8 @@ def mean_load(data: TrainData) -> TrainData:
         else:
             aeration.append(a)
     return replace(
-        data, n_periods=1, period_h=24.0, steps_per_period=1, temperature_C=np.array([t_mean]), params=params,
+        data, n_periods=1, period_h=units.HOURS_PER_DAY, steps_per_period=1, temperature_C=np.array([t_mean]),
+        params=params,
         nu=np.stack([petersen_matrix(params[0])]), influent_m3_d=_mean(q), influent_conc=conc,
         recycles=tuple((s, d, _mean(f)) for s, d, f in data.recycles), ras_m3_d=_mean(data.ras_m3_d),
         zone_flow_m3_d=_mean(data.zone_flow_m3_d), forward_m3_d=_mean(data.forward_m3_d),
@@ -233,7 +235,7 @@ def single_period(data: TrainData, period: int) -> TrainData:
     aeration = tuple(replace(a, do_sat_mg_L=a.do_sat_mg_L[sl]) if isinstance(a, GridAeration) else a
                      for a in data.aeration)
     return replace(
-        data, n_periods=1, period_h=24.0, steps_per_period=1, temperature_C=data.temperature_C[sl],
+        data, n_periods=1, period_h=units.HOURS_PER_DAY, steps_per_period=1, temperature_C=data.temperature_C[sl],
         params=(data.params[period],), nu=data.nu[sl], influent_m3_d=data.influent_m3_d[sl],
         influent_conc=data.influent_conc[sl], recycles=tuple((s, d, f[sl]) for s, d, f in data.recycles),
         ras_m3_d=data.ras_m3_d[sl], zone_flow_m3_d=data.zone_flow_m3_d[sl], forward_m3_d=data.forward_m3_d[sl],

@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 import pyomo.environ as pyo
 
+from airtaper import units
 from airtaper.layout.types import ASM1_COMPONENTS
 
 
@@ -96,5 +97,5 @@ def summary(m) -> dict:
         "effluent_nh4_mean_mg_L": mean("NH4_N"),
         "effluent_tn_mean_mg_L": mean("TN"),
         "effluent_tss_mean_mg_L": mean("TSS"),
-        "oxygen_kg_d": float((otr * weight).sum() * 24.0),
+        "oxygen_kg_d": float((otr * weight).sum() * units.HOURS_PER_DAY),
     }

@@ -30,6 +30,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from airtaper import units
 from airtaper.layout.types import ASM1_COMPONENTS, Layout
 from airtaper.optimize.airside import AirSide
 from airtaper.optimize.compliance import day_figures
@@ -91,8 +92,8 @@ class SimDay:
     def state_at(self, hour: float) -> np.ndarray:
         """Zone concentrations (zones, 13) at a time of day, linear between samples, periodic."""
         n = len(self.time_h)
-        step = 24.0 / n
-        x = (hour % 24.0) / step
+        step = units.HOURS_PER_DAY / n
+        x = (hour % units.HOURS_PER_DAY) / step
         i = int(np.floor(x)) % n
         f = x - np.floor(x)
         return (1.0 - f) * self.conc[i] + f * self.conc[(i + 1) % n]
@@ -139,11 +140,11 @@ def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=
         warnings.simplefilter("ignore")
         power = side.step_power_kW(airflow, period) if side.zones else np.zeros(n)
         node_power = side.step_power_kW(node_air, quad.period) if side.zones else np.zeros(quad.period.size)
-    energy = float(24.0 * quad.weight @ node_power)
+    energy = float(units.HOURS_PER_DAY * quad.weight @ node_power)
     cost = None
     if layout.tariff is not None:
         price = np.asarray(layout.tariff.price_per_kWh, dtype=float)[quad.period]
-        cost = float(24.0 * quad.weight @ (price * node_power)) + \
+        cost = float(units.HOURS_PER_DAY * quad.weight @ (price * node_power)) + \
             layout.tariff.demand_charge_per_kW / layout.tariff.demand_period_days * float(node_power.max())
     qe = quad.effluent
     # DO margins from the continuous extremes: the lowest and highest DO of every period

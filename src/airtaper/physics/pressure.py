@@ -16,7 +16,8 @@ from scipy.optimize import least_squares
 
 from airtaper import units
 from airtaper.errors import InputError, Problem
-from airtaper.physics.backend import any_pyomo, power, smooth_max
+from airtaper.physics.backend import any_pyomo, power
+from airtaper.physics.smooth import smooth_max
 from airtaper.physics.extrapolation import HeadlossExtrapolationWarning, warn_if_outside
 
 #: Headloss exponent used when too few points are given to fit it: the
@@ -243,7 +244,7 @@ def header_pressure_kPa(zone_required_pressures_kPa, min_valve_loss_kPa, smoothi
         keeps control authority), kPa >= 0.
     smoothing_kPa : float, default 0
         0 gives the exact maximum (numeric inputs only). A positive value uses
-        the smooth maximum of :func:`airtaper.physics.backend.smooth_max`
+        the smooth maximum of :func:`airtaper.physics.smooth.smooth_max`
         (at most ``(n_zones - 1) * smoothing_kPa / 2`` above the exact one),
         which Pyomo expressions need.
 

@@ -16,6 +16,7 @@ from typing import Callable
 
 import numpy as np
 
+from airtaper import units
 from airtaper.report.folder import StudyFolder
 
 #: Line styles per zone: colour, dash pattern and marker all differ (greyscale-readable).
@@ -41,7 +42,7 @@ def _style(i: int) -> dict:
 def _hour_axis(ax, edges) -> None:
     ax.set_xlim(edges[0], edges[-1])
     span = edges[-1] - edges[0]
-    step = 2 if span <= 24 else 4
+    step = 2 if span <= units.HOURS_PER_DAY else 4
     ax.set_xticks(np.arange(edges[0], edges[-1] + 1e-9, step))
     ax.set_xlabel("hour of day (h)")
     ax.grid(True, axis="both", color="#dddddd", linewidth=0.6)
@@ -126,7 +127,7 @@ def airflow_figure(folder: StudyFolder):
                 label=f"above the zone's maximum ({int(over.sum())} cells)")
         ax.legend(loc="upper right", fontsize=8, framealpha=0.9)
     ax.set_xlim(edges[0], edges[-1])
-    ax.set_xticks(np.arange(edges[0], edges[-1] + 1e-9, 2 if edges[-1] - edges[0] <= 24 else 4))
+    ax.set_xticks(np.arange(edges[0], edges[-1] + 1e-9, 2 if edges[-1] - edges[0] <= units.HOURS_PER_DAY else 4))
     ax.set_xlabel("hour of day (h)")
 
     if per_diff is not None:

@@ -18,6 +18,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from airtaper import units
 from airtaper.errors import InputError, Problem
 from airtaper.layout.types import Layout
 
@@ -50,7 +51,7 @@ class StudyFolder:
         """Period boundaries over the day, h (n_periods + 1 values)."""
         if not len(self.schedule):  # no schedule (a run stopped before solving): the layout's periods
             if self.layout is None:
-                return np.array([0.0, 24.0])
+                return np.array([0.0, units.HOURS_PER_DAY])
             h = self.layout.horizon
             return np.arange(h.n_periods + 1) * h.period_h
         first = self.schedule.drop_duplicates("period_start_h").sort_values("period_start_h")

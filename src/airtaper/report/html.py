@@ -17,6 +17,7 @@ import math
 import numpy as np
 import pandas as pd
 
+from airtaper import units
 from airtaper.report.folder import StudyFolder
 from airtaper.report.text import CAUTION, EFFLUENT_LIMITS, fmt, fmt_margin, marginal_sentence
 
@@ -254,7 +255,7 @@ def _inputs(f: StudyFolder, images: dict) -> str:
     # train table
     rows = []
     for z in lay.zones:
-        hrt = z.volume_m3 / q * 24.0
+        hrt = z.volume_m3 / q * units.HOURS_PER_DAY
         if z.grid is not None:
             lo, hi = lay.zone_airflow_range_Sm3_h(z)
             grid = [f"{z.grid.count:,} x {esc(z.grid.type_id)}", fmt(lay.diffuser_density_percent(z)),

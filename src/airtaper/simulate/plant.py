@@ -14,6 +14,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from airtaper import units
 from airtaper.errors import InputError, Problem
 from airtaper.process.asm1 import ASM1Parameters, at_temperature, layout_parameters, period_parameters
 from airtaper.process.fractionation import influent_components
@@ -97,7 +98,7 @@ class PlantData:
         self.nz = len(layout.zones)
         self.volume = np.array([z.volume_m3 for z in layout.zones])
         self.n_periods = layout.horizon.n_periods
-        self.period_d = layout.horizon.period_h / 24.0
+        self.period_d = layout.horizon.period_h / units.HOURS_PER_DAY
         self.base_params = layout_parameters(layout)
         self.params = period_parameters(layout)
         self.c_influent = influent_components(layout.influent, self.base_params, layout.path)

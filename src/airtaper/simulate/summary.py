@@ -25,6 +25,7 @@ from functools import lru_cache
 
 import numpy as np
 
+from airtaper import units
 from airtaper.physics import blower as blower_phys
 from airtaper.physics import pressure
 from airtaper.simulate.aeration import site_pressure_kPa
@@ -79,7 +80,7 @@ def blower_power_kW(layout, airflow_by_zone_Sm3_h: np.ndarray, inlet_temperature
 
 
 def _clock(hours: float) -> str:
-    total = int(round(hours * 60.0)) % 1440 if hours < 24.0 else 1440
+    total = int(round(hours * 60.0)) % 1440 if hours < units.HOURS_PER_DAY else 1440
     return f"{total // 60:02d}:{total % 60:02d}"
 
 
@@ -157,8 +158,8 @@ def summarize(result) -> dict:
             "do_max_mg_L": float(e["do_max_mg_L"].max()),
             "do_mean_mg_L": float(w @ quad.do[:, i]),
             "airflow_mean_Sm3_h": float(w @ quad.airflow_Sm3_h[:, i]),
-            "air_Sm3_per_day": float(24.0 * w @ quad.airflow_Sm3_h[:, i]),
-            "oxygen_kg_per_day": float(24.0 * w @ quad.otr_kg_h[:, i]),
+            "air_Sm3_per_day": float(units.HOURS_PER_DAY * w @ quad.airflow_Sm3_h[:, i]),
+            "oxygen_kg_per_day": float(units.HOURS_PER_DAY * w @ quad.otr_kg_h[:, i]),
         }
     shortfalls = setpoint_shortfalls(lay, ex, result.setpoints_mg_L)
     return {
@@ -176,9 +177,9 @@ def summarize(result) -> dict:
         "zones": zones,
         "do_setpoint_mg_L": dict(result.setpoints_mg_L),
         "setpoint_not_held": shortfalls,
-        "air_Sm3_per_day": float(24.0 * w @ quad.airflow_Sm3_h.sum(axis=1)),
-        "oxygen_kg_per_day": float(24.0 * w @ quad.otr_kg_h.sum(axis=1)),
-        "blower_kWh_per_day": float(24.0 * w @ power),
+        "air_Sm3_per_day": float(units.HOURS_PER_DAY * w @ quad.airflow_Sm3_h.sum(axis=1)),
+        "oxygen_kg_per_day": float(units.HOURS_PER_DAY * w @ quad.otr_kg_h.sum(axis=1)),
+        "blower_kWh_per_day": float(units.HOURS_PER_DAY * w @ power),
         "blower_kW_max": float(power.max()) if power.size else 0.0,
         "balance": {k: float(v) for k, v in result.balance.items()},
     }
