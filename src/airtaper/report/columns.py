@@ -8,7 +8,6 @@ from __future__ import annotations
 
 #: column -> (unit for a heading, "" when none)
 UNITS: dict[str, str] = {
-    "period": "",
     "period_start_h": "h",
     "period_end_h": "h",
     "time_h": "h",
@@ -24,7 +23,7 @@ UNITS: dict[str, str] = {
     "baseline_do_mean_mg_L": "mg/L",
     "nh4_mean_mg_L": "mg N/L",
     "otr_kg_h": "kg O2/h",
-    "pressure_kPa": "kPa gauge",
+    "pressure_gauge_kPa": "kPa gauge",
     "discharge_gauge_kPa": "kPa gauge",
     "power_kW": "kW",
     "baseline_power_kW": "kW",

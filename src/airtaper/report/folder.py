@@ -21,6 +21,7 @@ import pandas as pd
 from airtaper import units
 from airtaper.errors import InputError, Problem
 from airtaper.layout.types import Layout
+from airtaper.optimize.results import StudySummary
 
 #: Files the report reads, in the order docs/outputs.md lists them.
 REQUIRED = ("summary.json", "schedule.csv")
@@ -41,6 +42,11 @@ class StudyFolder:
     notes: list[str] = field(default_factory=list)  # what could not be read, for the report
 
     # -- derived views -------------------------------------------------------------------------
+    @property
+    def study(self) -> StudySummary:
+        """``summary.json`` as the study's typed summary (:class:`~airtaper.optimize.results.StudySummary`)."""
+        return StudySummary.from_dict(self.summary)
+
     @property
     def zones(self) -> list[str]:
         """Zones of the schedule, in the schedule's (flow) order."""
@@ -66,15 +72,13 @@ class StudyFolder:
         return table.reindex(self.zones)
 
     def header_by_period(self) -> pd.DataFrame | None:
-        """header.csv with ``period_start_h`` and ``period_end_h`` added (one row per period, in order)."""
-        if self.header is None:
+        """header.csv in period order, or None when it is absent or its periods are not the schedule's."""
+        if self.header is None or "period_start_h" not in self.header:
             return None
+        out = self.header.sort_values("period_start_h", kind="stable").reset_index(drop=True)
         edges = self.period_edges_h
-        if len(edges) - 1 != len(self.header):
+        if len(edges) - 1 != len(out) or not np.allclose(out["period_start_h"].to_numpy(float), edges[:-1]):
             return None
-        out = self.header.copy()
-        out.insert(0, "period_end_h", edges[1:])
-        out.insert(0, "period_start_h", edges[:-1])
         return out
 
     def _layout_zones(self) -> dict:

@@ -353,7 +353,7 @@ def _results(f: StudyFolder, images: dict, captions: dict) -> str:
     head = f.header_by_period()
     if head is not None:
         table = {}
-        for col, label in (("pressure_kPa", "header pressure (kPa gauge)"), ("airflow_Sm3_h", "total airflow (Sm3/h)"),
+        for col, label in (("pressure_gauge_kPa", "header pressure (kPa gauge)"), ("airflow_Sm3_h", "total airflow (Sm3/h)"),
                            ("power_kW", "blower power (kW)"), ("baseline_power_kW", "baseline power (kW)")):
             if col in head:
                 table[label] = head[col].to_numpy(float)
