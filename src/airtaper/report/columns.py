@@ -29,6 +29,7 @@ UNITS: dict[str, str] = {
     "baseline_power_kW": "kW",
     "efficiency": "-",
     "tn_mg_L": "mg N/L",
+    "kla_per_h": "1/h",
     # ASM1 state variables (docs/model.md)
     "SI": "g COD/m3", "SS": "g COD/m3", "XI": "g COD/m3", "XS": "g COD/m3", "XBH": "g COD/m3",
     "XBA": "g COD/m3", "XP": "g COD/m3", "SO": "g O2/m3", "SNO": "g N/m3", "SNH": "g N/m3", "SND": "g N/m3",

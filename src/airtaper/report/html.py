@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 
 from airtaper import units
+from airtaper.optimize.results import EffluentFigures, Limits
 from airtaper.report.folder import StudyFolder
 from airtaper.report.text import CAUTION, EFFLUENT_LIMITS, fmt, fmt_margin, marginal_sentence
 
@@ -159,9 +160,10 @@ def _headline(f: StudyFolder) -> str:
     s = f.summary
     cur = s.get("currency") or ""
     base = s.get("baseline") or {}
-    eff = s.get("effluent") or {}
+    study = f.study  # the typed summary
+    eff = study.effluent or EffluentFigures()
     ver = s.get("verification") or {}
-    lim = s.get("limits") or {}
+    lim = study.limits or Limits()
     infeasible = s.get("status") in ("infeasible", "failed")
     rows = [("status", _status_html(s))]
     rows.append(("blower energy", f"{fmt(s.get('energy_kWh_per_day'))} kWh/d"))
@@ -190,9 +192,9 @@ def _headline(f: StudyFolder) -> str:
         rows.append(("peak blower power", f"{fmt(head['power_kW'].iloc[k])} kW{when}"))
     for key, label in (("nh4_mean_mg_L", "effluent NH4-N, daily mean"), ("nh4_max_mg_L", "effluent NH4-N, largest period mean"),
                        ("tn_mean_mg_L", "effluent TN, daily mean")):
-        if eff.get(key) is not None:
-            limit = lim.get(key)
-            rows.append((label, f"{fmt(eff[key], 2)} mg/L" + (f" (limit {limit:g})" if limit is not None else "")))
+        value, limit = getattr(eff, key), getattr(lim, key)
+        if value is not None:
+            rows.append((label, f"{fmt(value, 2)} mg/L" + (f" (limit {limit:g})" if limit is not None else "")))
     margin = ver.get("min_do_margin_mg_L", s.get("min_do_margin_mg_L"))
     if margin is not None:
         cls = " class='finding'" if margin < 0 else ""
