@@ -30,6 +30,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from airtaper import units
 from airtaper.layout.types import ASM1_COMPONENTS, Layout
 from airtaper.optimize.compliance import day_figures
 from airtaper.plant import resolve_plant
@@ -92,8 +93,8 @@ class SimDay:
     def state_at(self, hour: float) -> np.ndarray:
         """Zone concentrations (zones, 13) at a time of day, linear between samples, periodic."""
         n = len(self.time_h)
-        step = 24.0 / n
-        x = (hour % 24.0) / step
+        step = units.HOURS_PER_DAY / n
+        x = (hour % units.HOURS_PER_DAY) / step
         i = int(np.floor(x)) % n
         f = x - np.floor(x)
         return (1.0 - f) * self.conc[i] + f * self.conc[(i + 1) % n]

@@ -19,7 +19,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from airtaper.physics.backend import exp, is_pyomo, smooth_max
+from airtaper.physics.backend import exp, is_pyomo
+from airtaper.physics.smooth import smooth_max
 
 
 def takacs_velocity_m_d(tss_g_m3, tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g, smoothing_m_d=0.0):
