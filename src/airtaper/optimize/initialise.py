@@ -31,7 +31,7 @@ import numpy as np
 
 from airtaper.errors import ModelError, NoSteadyStateError
 from airtaper.layout.types import ASM1_COMPONENTS
-from airtaper.model.initialise import initialise_cyclic
+from airtaper.model.initialise import initialise_cyclic, set_layer_state
 from airtaper.optimize.simday import SimDay
 
 
@@ -102,6 +102,7 @@ def start_from_day(m, day: SimDay, airflow: dict) -> None:
     zones = list(m.ZONES)
     index = {c: k for k, c in enumerate(ASM1_COMPONENTS)}
     hours = point_hours(m)
+    layered = hasattr(m, "settler_conc") and day.layers is not None
     for t in m.STEPS:
         state = day.state_at(hours[t])
         for i, z in enumerate(zones):
@@ -109,6 +110,8 @@ def start_from_day(m, day: SimDay, airflow: dict) -> None:
                 v = m.conc[t, z, c]
                 if not v.fixed:
                     v.set_value(max(float(state[i, index[c]]), 0.0), skip_validation=True)
+        if layered:  # the simulated day's layers, consistent with its zones (not the mean-load settler)
+            set_layer_state(m, t, day.layers_at(hours[t]))
     waste = day.extra.get("waste_m3_d")
     if waste is not None and not m.waste_m3_d[1].fixed:
         mean = float(np.mean(waste))
