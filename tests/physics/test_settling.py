@@ -46,3 +46,15 @@ def test_no_limit_when_the_underflow_velocity_dominates():
     # with u above the steepest fall of vs X the total flux only grows: nothing limits thickening
     g, x = limiting_solids_flux_g_m2_d(500.0, 0.0, v0_max_m_d=1e9, v0_m_d=400.0, rh_m3_g=4e-4, rp_m3_g=50.0)
     assert g == float("inf") and np.isnan(x)
+
+
+@pytest.mark.parametrize("smoothing", [0.0, 0.01])
+def test_velocity_is_finite_for_any_iterate(smoothing):
+    # A root solve's Newton step may overshoot to solids far below 0: the velocity there is the clamp's
+    # 0 (Takacs et al. 1991, eq. 4: below the non-settleable solids the double exponential is negative),
+    # with no overflow and no NaN on the way (raised as errors here; underflow to 0 is exact enough).
+    x = np.array([-1e12, -1e6, -3e5, -1e3, 0.0, 7.5, 1e3, 1e6, 1e12])
+    with np.errstate(over="raise", invalid="raise", divide="raise"):
+        v = takacs_velocity_m_d(x, 7.5, **BSM1, smoothing_m_d=smoothing)
+    assert np.all(np.isfinite(v)) and np.all(v >= -smoothing) and np.all(v <= 250.0 + smoothing)
+    np.testing.assert_allclose(v[:4], 0.0, atol=smoothing)
