@@ -3,12 +3,17 @@
 Start from the baseline (:func:`start_from_day`): the airflow of every zone and
 period is the baseline's period-mean airflow (clipped into the zone's range), the
 zone concentrations at every model step are the simulated baseline states at the
-same time of day, the waste flow is the simulated one; the clarifier (a layered
-settler has states of its own) and everything else come from the model layer's
-cyclic initialisation (the steady state at mean load). Should the model's own
-continuation not settle, that steady state starts from the independent
-simulator's at the same mean airflows (:func:`simulated_steady_start`). Optionally a square solve
-of the model at those airflows makes the start satisfy the model equations.
+same time of day, the waste flow is the simulated one, and a layered clarifier's
+layers are the simulated day's at the same time of day too (the layers and the
+zones of one simulated trajectory: pairing the day's zones with the mean-load
+steady settler left return-sludge solids off by up to 5e3 g/m3/d, and Ipopt
+stalled in restoration on the layered demo). Everything else comes from the model
+layer's cyclic initialisation (the steady state at mean load). Should the model's
+own continuation not settle, that steady state starts from the independent
+simulator's at the same mean airflows (:func:`simulated_steady_start`); should that
+not settle either, the simulated day alone is the start (it gives every state).
+Optionally a square solve of the model at those airflows makes the start satisfy
+the model equations.
 
 Retry ladder (:data:`LADDER`): when a solve fails, the next rung changes one thing:
 
@@ -95,7 +100,14 @@ def start_from_day(m, day: SimDay, airflow: dict) -> None:
         if clarifier is not None and not clarifier["srt_held"]:
             raise NoSteadyStateError(f"{m._train_data.layout.path}: clarifier: no steady state at the target "
                                      f"sludge age: {clarifier['message']}", cause="overloaded") from None
-        initialise_cyclic(m, start=start)
+        try:
+            initialise_cyclic(m, start=start)
+        except ModelError:
+            # Every state the mean-load steady state would give is replaced by the simulated day's
+            # below (zones, clarifier layers, waste flow): the day alone is a start. A plant whose
+            # day lacks some of them (a layered model without the day's layers) has no start.
+            if hasattr(m, "settler_conc") and day.layers is None:
+                raise
     zones = list(m.ZONES)
     index = {c: k for k, c in enumerate(ASM1_COMPONENTS)}
     hours = point_hours(m)
