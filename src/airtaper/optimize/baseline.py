@@ -15,9 +15,10 @@ meets the limits. It brackets both ways from the baseline's setpoint: upward fir
 when effluent NH4-N is broken (more oxygen nitrifies more), downward first otherwise
 (a TN limit or a DO maximum broken by too much oxygen), the other way when the first
 finds nothing; steps of :data:`SEARCH_STEPS_mg_L` between :data:`SEARCH_MIN_mg_L` and
-:data:`SEARCH_MAX_mg_L` (narrowed by the zones' DO ranges, :func:`search_range`). A complying setpoint found below the baseline is followed
-further down until the limits break again; the bracket (breaking below, complying
-above) is then bisected to :data:`SEARCH_TOL_mg_L`. Within one bracket it assumes
+:data:`SEARCH_MAX_mg_L` (narrowed by the zones' DO ranges, :func:`search_range`). A
+complying setpoint found below the baseline is followed further down until the limits
+break again; the bracket (breaking below, complying above) is then bisected to
+:data:`SEARCH_TOL_mg_L`. Within one bracket it assumes
 compliance is one interval of setpoints (true of NH4-N alone and of TN alone).
 """
 
