@@ -85,3 +85,15 @@ def test_smooth_velocity_stays_within_the_smoothing_of_the_published_equation(py
     hard = np.array([_takacs_by_hand(x, x_min, 250.0, 474.0, 0.000576, 0.00286) for x in xs])
     assert np.all(np.abs(smooth - hard) <= s + 1e-12)  # two clamps, each at most s / 2 away
     pyomo_check(lambda x: takacs_velocity_m_d(x, x_min, **BSM1, smoothing_m_d=s), xs[:, None], rtol=1e-13)
+
+
+@pytest.mark.parametrize("smoothing", [0.0, 0.01])
+def test_velocity_is_finite_for_any_iterate(smoothing):
+    # A root solve's Newton step may overshoot to solids far below 0: the velocity there is the clamp's
+    # 0 (Takacs et al. 1991, eq. 4: below the non-settleable solids the double exponential is negative),
+    # with no overflow and no NaN on the way (raised as errors here; underflow to 0 is exact enough).
+    x = np.array([-1e12, -1e6, -3e5, -1e3, 0.0, 7.5, 1e3, 1e6, 1e12])
+    with np.errstate(over="raise", invalid="raise", divide="raise"):
+        v = takacs_velocity_m_d(x, 7.5, **BSM1, smoothing_m_d=smoothing)
+    assert np.all(np.isfinite(v)) and np.all(v >= -smoothing) and np.all(v <= 250.0 + smoothing)
+    np.testing.assert_allclose(v[:4], 0.0, atol=smoothing)

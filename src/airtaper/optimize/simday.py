@@ -62,6 +62,7 @@ class SimDay:
     node_weight: np.ndarray | None = None  # (nodes,) quadrature weight of every node (fractions of the day)
     node_power_kW: np.ndarray | None = None  # (nodes,) blower power at the quadrature nodes, kW
     setpoint_shortfalls: list = field(default_factory=list)  # DO setpoints the control could not hold
+    layers: np.ndarray | None = None  # (N, layers, 13) clarifier layers from the top (layered only)
 
     def start_state(self) -> tuple[dict, float | None]:
         """The state at 0 h of this periodic day, and its waste flow (target SRT), to start another day from."""
@@ -92,12 +93,19 @@ class SimDay:
 
     def state_at(self, hour: float) -> np.ndarray:
         """Zone concentrations (zones, 13) at a time of day, linear between samples, periodic."""
+        return self._interpolate(self.conc, hour)
+
+    def layers_at(self, hour: float) -> np.ndarray | None:
+        """Clarifier layers (layers, 13) at a time of day as :meth:`state_at`; None for an ideal separator."""
+        return None if self.layers is None else self._interpolate(self.layers, hour)
+
+    def _interpolate(self, samples: np.ndarray, hour: float) -> np.ndarray:
         n = len(self.time_h)
         step = units.HOURS_PER_DAY / n
         x = (hour % units.HOURS_PER_DAY) / step
         i = int(np.floor(x)) % n
         f = x - np.floor(x)
-        return (1.0 - f) * self.conc[i] + f * self.conc[(i + 1) % n]
+        return (1.0 - f) * samples[i] + f * samples[(i + 1) % n]
 
 
 def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=None, *, start_state=None,
@@ -158,7 +166,7 @@ def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=
                   extra={"waste_m3_d": eff["q_waste_m3_d"].to_numpy(), "y_end": res.y_end}, do_extremes=ex,
                   node_airflow=quad.airflow_Sm3_h, node_period=quad.period, node_weight=quad.weight,
                   node_power_kW=node_power,
-                  setpoint_shortfalls=shortfalls)
+                  setpoint_shortfalls=shortfalls, layers=res.layer_states)
 
 
 __all__ = ["SimDay", "simulate_day"]

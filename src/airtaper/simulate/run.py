@@ -241,6 +241,9 @@ class PeriodicResult:
     quadrature: "DayQuadrature | None" = field(repr=False, default=None)
     do_extremes: pd.DataFrame | None = field(repr=False, default=None)
     setpoints_mg_L: dict = field(default_factory=dict)  # zone id -> DO setpoint of the DO-controlled zones
+    #: clarifier layers (top first) at the output times of ``timeseries``, (times, layers, 13); None for an
+    #: ideal separator
+    layer_states: np.ndarray | None = field(repr=False, default=None)
 
 
 def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30, tol: float = 1e-3,
@@ -338,13 +341,17 @@ def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30
         n_closure=abs(float(z_end[-1]) - d_n) / n_in,
     )
     ts, eff = _tables(system, inputs, records)
+    layer_states = None
+    if system.layered:
+        layer_states = np.array([system.blocks(y_i)[system.nz:] for y_i in records[1]])
     quad = day_quadrature(system, inputs, dense)
     extremes = do_extremes(system, dense)
     return PeriodicResult(timeseries=ts, effluent=eff, days=days, converged=converged, day_change=change,
                           balance=balance, start=start, seconds=time.perf_counter() - t_start,
                           y_start=y0_day, y_end=y1_day, period_h=layout.horizon.period_h, layout=layout,
                           quadrature=quad, do_extremes=extremes,
-                          setpoints_mg_L={z.id: float(v) for z, v in zip(layout.zones, sp) if np.isfinite(v)})
+                          setpoints_mg_L={z.id: float(v) for z, v in zip(layout.zones, sp) if np.isfinite(v)},
+                          layer_states=layer_states)
 
 
 def _state_vector(system: System, state) -> np.ndarray:
