@@ -174,6 +174,9 @@ def attach_sets(m, data: TrainData, steady: bool, scheme: str = "radau2") -> Non
     else:
         nodes, a = np.array([1.0]), np.array([[1.0]])
     m.collocation_matrix = a.tolist()
+    # length of the sub-step that ends at each stage (from the step's start or the stage before), d:
+    # the positive-preserving balance of switched zones (see switched_balance)
+    m.substep_d = [float(c - (nodes[i - 1] if i > 0 else 0.0)) * m.dt_d for i, c in enumerate(nodes)]
     step_of = {t: (t - 1) // k + 1 for t in range(1, n_points + 1)}
     m.stage_of_point = {t: (t - 1) % k for t in range(1, n_points + 1)}
     m.period_of_step = {t: (step_of[t] - 1) // spp + 1 for t in range(1, n_points + 1)}
@@ -315,8 +318,30 @@ def time_balance(m, t, state, rhs):
     return sum(w * rhs[j] for w, j in zip(row, m.step_points[t])) - acc == 0.0
 
 
+def switched_balance(m, t, state, rhs):
+    """Backward Euler from time point to time point: the balance of a zone whose air switches off.
+
+    ``(x_t - x_t-1) / (t - t_prev) = rhs_t``, the previous point being the step's start
+    for the first stage. Used for the states of a swing zone under a Radau scheme: when
+    the air stops, the DO (and then the nitrate) decays with a time constant of minutes,
+    far inside one step. The stability function of 2-point Radau IIA,
+    ``R(z) = (1 + z/3) / (1 - 2z/3 + z^2/6)``, is negative for ``z < -3``, so the
+    collocation solution of so fast a decay passes below zero (by up to about 10 % of the
+    starting value), which the non-negative concentrations forbid: the schedule with the
+    zone switched off has no solution at all. Backward Euler, ``R(z) = 1 / (1 - z)``, stays
+    positive for every step (Hairer, E., Wanner, G. (1996). Solving Ordinary Differential
+    Equations II, 2nd ed., section IV.3, stability functions of implicit Runge-Kutta
+    methods; section IV.5, Radau IIA). Order 1 for these states only, on sub-steps of a
+    third and two thirds of a step; the independent simulator checks the schedule.
+    """
+    prev = m.prev_step[t]
+    return rhs[t] - (state[t] - state[prev]) / m.substep_d[m.stage_of_point[t]] == 0.0
+
+
 def _zone_mass_balance_rule(m, t, z, c):
     """Completely mixed zone: inflows - outflow + reactions (+ aeration for SO) = accumulation."""
+    if z in m.switched_zones and not m.steady and m.scheme.startswith("radau"):
+        return switched_balance(m, t, _Slice(m.conc, z, c), _Slice(m.zone_rhs, z, c))
     return time_balance(m, t, _Slice(m.conc, z, c), _Slice(m.zone_rhs, z, c))
 
 
@@ -449,7 +474,7 @@ def attach_outputs(m) -> None:
 
 
 def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: str = "radau2",
-                      name: str = "airtaper_train"):
+                      name: str = "airtaper_train", switched_zones=()):
     """The Pyomo model of a train from resolved data (see the module notes).
 
     Parameters
@@ -463,9 +488,13 @@ def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: st
         Zone id -> airflow (Sm3/h) or per-period airflows, fixed in ``airflow_Sm3_h``.
     scheme : "radau2" (default), "radau3", "euler" or "bdf2"
         Time discretisation of the cyclic model (ignored for a steady point).
+    switched_zones : sequence of zone ids, optional
+        Zones whose air may switch off (swing zones): their balances are
+        :func:`switched_balance` under a Radau scheme.
     """
     m = pyo.ConcreteModel(name=name)
     m._train_data = data
+    m.switched_zones = frozenset(switched_zones)
     attach_sets(m, data, steady, scheme)
     attach_aeration(m, data, airflow)
     attach_flows(m, data)
@@ -501,12 +530,13 @@ def build_cyclic_model(layout: Layout, *, airflow=None, scheme: str = "radau2", 
 
     ``scheme``: "radau2" (Radau IIA, 2 points per step, order 3; default), "radau3"
     (order 5), "euler" (backward Euler) or "bdf2";
-    ``steps_per_period`` overrides the layout's.
+    ``steps_per_period`` overrides the layout's. Swing zones get :func:`switched_balance`.
     """
     data = train_data(layout)
     if steps_per_period is not None:
         data = replace(data, steps_per_period=int(steps_per_period))
-    return build_train_model(data, steady=False, airflow=airflow, scheme=scheme, name="airtaper_cyclic")
+    return build_train_model(data, steady=False, airflow=airflow, scheme=scheme, name="airtaper_cyclic",
+                             switched_zones=[z.id for z in layout.zones if z.kind == "swing"])
 
 
 def set_airflow(m, airflow) -> None:
