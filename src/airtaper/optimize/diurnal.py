@@ -445,9 +445,9 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
             messages.append("WARNING: the re-simulated schedule breaks a limit: " + "; ".join(verification["violations"]))
     blowers_table, dispatch = None, None
     redispatched = False
-    if staging is not None and staging.dispatch is not None and not staging.findings and hold is not None \
-            and hold["rounds"]:
-        # the back-off moved the airflow after the machines were chosen: the cheapest machines for it
+    if staging is not None and staging.dispatch is not None and not staging.findings and result is not None \
+            and status == "optimal":
+        # the last re-solves moved the airflow after the machines were chosen: the cheapest machines for it
         staging.dispatch, redispatched = redispatch(study.m, staging.dispatch)
     schedule, header, timeseries = study.tables()
     schedule, header = base.add_columns(schedule, header)
@@ -464,7 +464,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         dispatch["rounds"] = staging.rounds
         dispatch["converged"] = staging.converged
         dispatch["stopped"] = staging.reason
-        dispatch["redispatched_after_backoff"] = redispatched
+        dispatch["redispatched_at_final_schedule"] = redispatched
         dispatch["swing_zones"] = {z: {"aerated_periods": [int(i) + 1 for i in np.flatnonzero(on)],
                                        "switches": int(np.sum(on != np.roll(on, 1)))}
                                    for z, on in (staging.swing_states or {}).items()}

@@ -342,13 +342,15 @@ def run_staging(study, first_result) -> StagingOutcome:
 
 
 def redispatch(m, dp: Dispatch) -> tuple[Dispatch, bool]:
-    """The least-cost machines for the final schedule's airflow and pressure (after the DO back-off).
+    """The least-cost machines for the final schedule's airflow and pressure.
 
-    The back-off re-solves move the airflow after the machines were chosen, so the machines of
-    the last dispatch round may no longer be the cheapest set for it. The dispatch is solved
-    again on the final airflow, delivering it exactly (no excess air, so the verified schedule
-    is not changed); when it costs less than the old machines at that airflow, it replaces
-    them and the model's power curve follows. Returns ``(dispatch, replaced)``.
+    The last re-solves (the dispatch round's own, then the DO back-off's) move the airflow and
+    the discharge pressure after the machines were chosen, so the machines of the last round
+    may no longer be the cheapest set for the final schedule, or (when a machine's airflow
+    range narrows with pressure) no longer cover its airflow. The dispatch is solved again on
+    the final airflow and pressure, delivering them exactly (no excess air: the verified
+    schedule is not changed); it replaces the old machines when they no longer cover the
+    airflow or cost more, and the model's power curve follows. Returns ``(dispatch, replaced)``.
     """
     b = m.opt
     old = final_dispatch(m, dp)
@@ -358,7 +360,9 @@ def redispatch(m, dp: Dispatch) -> tuple[Dispatch, bool]:
     if new.findings or new.same_decisions(old):
         return old, False
     objective = b.settings.objective
-    if round_cost(b.layout, new, objective) >= round_cost(b.layout, old, objective) * (1.0 - 1e-9):
+    uncovered = bool(np.any(old.shortfall_Sm3_h > CHECK_RTOL * np.maximum(old.demand_Sm3_h, 1.0))) or bool(
+        np.any(old.airflow_Sm3_h.sum(axis=0) > old.demand_Sm3_h * (1 + CHECK_RTOL) + 1e-6))
+    if not uncovered and round_cost(b.layout, new, objective) >= round_cost(b.layout, old, objective) * (1.0 - 1e-9):
         return old, False
     apply_dispatch(m, new)
     return new, True
