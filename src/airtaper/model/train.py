@@ -56,7 +56,7 @@ from airtaper.layout.types import ASM1_COMPONENTS, Layout
 from airtaper.model.asm1_rates import asm1_process_rates
 from airtaper.model.clarifier import attach_ideal_separator, attach_layered_settler
 from airtaper.model.data import FixedAeration, GridAeration, TrainData, mean_load, single_period, train_data
-from airtaper.model.discretisation import StepSlice, time_balance
+from airtaper.model.discretisation import StepSlice, switched_balance, time_balance
 from airtaper.process.stoichiometry import PARTICULATES, PROCESSES, SOLIDS_COD, n_composition
 
 
@@ -171,6 +171,9 @@ def attach_sets(m, data: TrainData, steady: bool, scheme: str = "radau2") -> Non
     else:
         nodes, a = np.array([1.0]), np.array([[1.0]])
     m.collocation_matrix = a.tolist()
+    # length of the sub-step that ends at each stage (from the step's start or the stage before), d:
+    # the positive-preserving balance of switched zones (see switched_balance)
+    m.substep_d = [float(c - (nodes[i - 1] if i > 0 else 0.0)) * m.dt_d for i, c in enumerate(nodes)]
     step_of = {t: (t - 1) // k + 1 for t in range(1, n_points + 1)}
     m.stage_of_point = {t: (t - 1) % k for t in range(1, n_points + 1)}
     m.period_of_step = {t: (step_of[t] - 1) // spp + 1 for t in range(1, n_points + 1)}
@@ -291,6 +294,8 @@ def _zone_rhs_rule(m, t, z, c):
 
 def _zone_mass_balance_rule(m, t, z, c):
     """Completely mixed zone: inflows - outflow + reactions (+ aeration for SO) = accumulation."""
+    if z in m.switched_zones and not m.steady and m.scheme.startswith("radau"):
+        return switched_balance(m, t, StepSlice(m.conc, z, c), StepSlice(m.zone_rhs, z, c))
     return time_balance(m, t, StepSlice(m.conc, z, c), StepSlice(m.zone_rhs, z, c))
 
 
@@ -411,7 +416,7 @@ def attach_outputs(m) -> None:
 
 
 def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: str = "radau2",
-                      name: str = "airtaper_train"):
+                      name: str = "airtaper_train", switched_zones=()):
     """The Pyomo model of a train from resolved data (see the module notes).
 
     Parameters
@@ -425,6 +430,9 @@ def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: st
         Zone id -> airflow (Sm3/h) or per-period airflows, fixed in ``airflow_Sm3_h``.
     scheme : "radau2" (default), "radau3", "euler" or "bdf2"
         Time discretisation of the cyclic model (ignored for a steady point).
+    switched_zones : sequence of zone ids, optional
+        Zones whose air may switch off (swing zones): their balances are
+        :func:`switched_balance` under a Radau scheme.
 
     Notes
     -----
@@ -434,6 +442,7 @@ def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: st
     """
     m = pyo.ConcreteModel(name=name)
     m.train_data = data
+    m.switched_zones = frozenset(switched_zones)
     attach_sets(m, data, steady, scheme)
     attach_aeration(m, data, airflow)
     attach_flows(m, data)
@@ -469,12 +478,13 @@ def build_cyclic_model(layout: Layout, *, airflow=None, scheme: str = "radau2", 
 
     ``scheme``: "radau2" (Radau IIA, 2 points per step, order 3; default), "radau3"
     (order 5), "euler" (backward Euler) or "bdf2";
-    ``steps_per_period`` overrides the layout's.
+    ``steps_per_period`` overrides the layout's. Swing zones get :func:`switched_balance`.
     """
     data = train_data(layout)
     if steps_per_period is not None:
         data = replace(data, steps_per_period=int(steps_per_period))
-    return build_train_model(data, steady=False, airflow=airflow, scheme=scheme, name="airtaper_cyclic")
+    return build_train_model(data, steady=False, airflow=airflow, scheme=scheme, name="airtaper_cyclic",
+                             switched_zones=[z.id for z in layout.zones if z.kind == "swing"])
 
 
 def set_airflow(m, airflow) -> None:

@@ -44,8 +44,8 @@ from airtaper.optimize.prescreen import outside_tested_range, prescreen
 from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.results import EffluentFigures, Limits, Smoothing, StudySummary, empty_tables, study_tables
 from airtaper.optimize.gradient_scaling import apply_scaling
-from airtaper.optimize.staging import (day_dispatch, dispatch_summary, dispatch_table, feasibility_check,
-                                       final_dispatch, run_staging)
+from airtaper.optimize.staging import (bill_day_by_dispatch, dispatch_summary, dispatch_table, feasibility_check,
+                                       final_dispatch, redispatch, run_staging)
 from airtaper.optimize.verify import verify_day
 from airtaper.solve import solve_nlp
 
@@ -403,13 +403,18 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         study.timings["verification_s"] = time.perf_counter() - t
         if not verification["verified"]:
             messages.append("WARNING: the re-simulated schedule breaks a limit: " + "; ".join(verification["violations"]))
+    blowers_table, dispatch = None, None
+    redispatched = False
+    if staging is not None and staging.dispatch is not None and not staging.findings and result is not None \
+            and status == "optimal":
+        # the last re-solves moved the airflow after the machines were chosen: the cheapest machines for it
+        staging.dispatch, redispatched = redispatch(study.m, staging.dispatch)
     schedule, header, timeseries = study_tables(study)
     schedule, header = base.add_columns(schedule, header)
     figs = study.figures()
     energy = study.energy_kWh_per_day()
     power = study.power_by_period()
     cost = study.m.train_data.plant.air.cost(power)
-    blowers_table, dispatch = None, None
     if staging is not None and staging.dispatch is not None:
         dp = staging.dispatch if staging.findings else final_dispatch(study.m, staging.dispatch)
         blowers_table = dispatch_table(layout, dp)
@@ -419,6 +424,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         dispatch["rounds"] = staging.rounds
         dispatch["converged"] = staging.converged
         dispatch["stopped"] = staging.reason
+        dispatch["redispatched_at_final_schedule"] = redispatched
         dispatch["swing_zones"] = {z: {"aerated_periods": [int(i) + 1 for i in np.flatnonzero(on)],
                                        "switches": int(np.sum(on != np.roll(on, 1)))}
                                    for z, on in (staging.swing_states or {}).items()}
@@ -428,11 +434,8 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
             if breaches:
                 status = "unverified"
                 messages.append("WARNING: the schedule breaks a machine or grid range: " + "; ".join(breaches))
-        bd = day_dispatch(layout, base.day, objective)
+        bd = bill_day_by_dispatch(layout, base.day, objective)
         if bd is not None:  # the baseline billed by the same dispatch rule: like with like
-            bill = bd.bill(layout)
-            base.day.energy_kWh_per_day = bill["energy_kWh_per_day"]
-            base.day.cost_per_day = bill["cost_per_day"]
             header["baseline_power_kW"] = bd.total_power_kW
             base_dispatch = dispatch_summary(layout, bd)
             base_dispatch["shortfall"] = [f["message"] for f in bd.findings]
@@ -452,8 +455,17 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         prog.phase("the uniform-DO baseline breaks a limit: finding the lowest uniform setpoint that complies")
         t = time.perf_counter()
         complying = complying_baseline(layout, base)
+        if complying is not None and dispatch is not None and "baseline" in dispatch:
+            # billed by the same dispatch rule as the baseline and the optimum
+            cd = bill_day_by_dispatch(layout, complying.day, objective)
+            if cd is not None:
+                dispatch["complying_baseline"] = dispatch_summary(layout, cd)
         study.timings["complying_baseline_s"] = time.perf_counter() - t
     savings = saving_figures(base, complying, energy, cost, status)
+    if dispatch and "complying_baseline" in dispatch:
+        cd = dispatch.pop("complying_baseline")
+        if savings["complying_baseline"] is not None:
+            savings["complying_baseline"]["dispatch"] = cd
     messages.extend(savings.pop("notes"))
     periods = np.arange(layout.horizon.n_periods)
     untested = outside_tested_range(layout, study.schedule_by_zone(), periods,

@@ -108,6 +108,15 @@ class SimDay:
         return (1.0 - f) * samples[i] + f * samples[(i + 1) % n]
 
 
+def step_airflow(layout: Layout, res) -> tuple[dict, np.ndarray]:
+    """Zone id -> airflow at every output step of a simulated periodic day, and each step's 0-based period."""
+    n = len(res.effluent)
+    time_h = res.effluent["time_h"].to_numpy()
+    period = np.minimum((time_h / layout.horizon.period_h + 1e-9).astype(int), layout.horizon.n_periods - 1)
+    air = res.timeseries["airflow_Sm3_h"].to_numpy().reshape(n, len(layout.zones))
+    return {z.id: air[:, i] for i, z in enumerate(layout.zones)}, period
+
+
 def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=None, *, start_state=None,
                  start_waste_m3_d: float | None = None, tol: float | None = None,
                  max_days: int | None = None) -> SimDay:
@@ -136,11 +145,9 @@ def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=
     nz = len(zone_ids)
     n = len(eff)
     time_h = eff["time_h"].to_numpy()
-    period = np.minimum((time_h / layout.horizon.period_h + 1e-9).astype(int), layout.horizon.n_periods - 1)
-    air = ts["airflow_Sm3_h"].to_numpy().reshape(n, nz)
+    airflow, period = step_airflow(layout, res)
     conc = ts[list(ASM1_COMPONENTS)].to_numpy().reshape(n, nz, len(ASM1_COMPONENTS))
     so = ts["SO"].to_numpy().reshape(n, nz)
-    airflow = {zid: air[:, i] for i, zid in enumerate(zone_ids)}
     do = {zid: so[:, i] for i, zid in enumerate(zone_ids)}
     quad, ex = res.quadrature, res.do_extremes
     side = resolve_plant(layout).air
@@ -169,4 +176,4 @@ def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=
                   setpoint_shortfalls=shortfalls, layers=res.layer_states)
 
 
-__all__ = ["SimDay", "simulate_day"]
+__all__ = ["SimDay", "simulate_day", "step_airflow"]
