@@ -175,8 +175,12 @@ def period_mean(m, expr, p):
 
 
 # --- the attachment -----------------------------------------------------------------------
-def attach_problem(m, layout: Layout, settings: ProblemSettings):
-    """Add decisions, limits and objective to a cyclic model (see module notes); returns ``m.opt``."""
+def attach_problem(m, layout: Layout, settings: ProblemSettings, diffuser_count=None):
+    """Add decisions, limits and objective to a cyclic model (see module notes); returns ``m.opt``.
+
+    ``diffuser_count``: an indexed Var (zone -> count) held outside ``m`` to use instead of the
+    Param, so that several models share their grids as decisions (airtaper.optimize.design).
+    """
     if m.steady:
         raise ModelError("the diurnal optimisation needs the cyclic model (build_cyclic_model)")
     if hasattr(m, "opt"):
@@ -219,7 +223,11 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
         return b.swing_air[z, p] if z in b.SWING_ZONES else 1.0
 
     # --- decisions ------------------------------------------------------------------------
-    b.diffuser_count = pyo.Param(b.ZONES, mutable=True, initialize={z: float(layout.zone(z).grid.count) for z in grid})
+    if diffuser_count is None:
+        b.diffuser_count = pyo.Param(b.ZONES, mutable=True,
+                                     initialize={z: float(layout.zone(z).grid.count) for z in grid})
+    else:
+        b.diffuser_count = pyo.Reference(diffuser_count)
     for z in grid:
         lo, hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))
         for p in P:

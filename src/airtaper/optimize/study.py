@@ -130,8 +130,11 @@ class DiurnalOptimisation:
         value = base.cost_per_day if objective == "cost" else base.energy_kWh_per_day
         return float(value) if value and value > 0 else 1.0
 
-    def build(self) -> None:
-        """Build the model, start it from the baseline, attach the problem and scale it."""
+    def build(self, diffuser_count=None) -> None:
+        """Build the model, start it from the baseline, attach the problem and scale it.
+
+        ``diffuser_count``: a count Var shared with other models (see :func:`attach_problem`).
+        """
         base = self.run_baseline()
         self.progress.phase("building the cyclic model")
         t = time.perf_counter()
@@ -146,7 +149,7 @@ class DiurnalOptimisation:
                                 smoothing_weight=self.options.smoothing_weight,
                                 mixing_airflow_min_Sm3_h_m2=self.options.mixing_airflow_min_Sm3_h_m2,
                                 staging=self.options.staging)
-        attach_problem(m, self.layout, settings)
+        attach_problem(m, self.layout, settings, diffuser_count)
         self.timings["initialise_s"] = time.perf_counter() - t
         self.progress.phase("converting the model and building derivatives")
         t = time.perf_counter()
