@@ -2,7 +2,7 @@
 
 An added zone, a swing conversion, another blower set or another grid is just another
 layout. Each layout is optimised exactly as ``airtaper optimize`` does it
-(:func:`airtaper.optimize.study.run_optimization`: blower staging, verification by the
+(:func:`airtaper.optimize.diurnal.run_optimization`: blower staging, verification by the
 independent simulator, marginal costs) on each of its load days
 (:func:`airtaper.layout.loaddays.layout_days`: the base profile as the one day of the
 year when it names none), and the year is summed with the days' weights. The first
@@ -19,9 +19,9 @@ import pandas as pd
 from airtaper.errors import EXIT_FAILURE, EXIT_INFEASIBLE, EXIT_OK, EXIT_UNVERIFIED
 from airtaper.layout.loaddays import day_layout, layout_days
 from airtaper.layout.types import Layout
+from airtaper.optimize.diurnal import StudyOptions, _jsonable, run_optimization
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.progress import Progress, Silent
-from airtaper.optimize.study import StudyOptions, _jsonable, run_optimization
 
 #: Figures of compare.csv that get a difference against the first layout (name -> column).
 DIFFERENCE_COLUMNS = ("energy_kWh_per_year", "cost_per_year", "diffusers", "aerated_volume_m3", "blowers_in_service",

@@ -8,7 +8,7 @@ day's oxygen demand, turn down on the minimum day and keep the mixing minimum.
 Relaxed problem (one NLP)
     One cyclic model per load day (:func:`airtaper.layout.loaddays.day_layout`), each
     with its own schedule, limits and objective terms exactly as ``optimize`` builds them
-    (:class:`~airtaper.optimize.study.DiurnalOptimisation`), hung as sub-blocks of one
+    (:class:`~airtaper.optimize.diurnal.DiurnalOptimisation`), hung as sub-blocks of one
     Pyomo model. The diffuser count of every diffused zone is one continuous variable
     ``count[z]`` shared by every day (the days couple only through it: the problem grows
     linearly with the number of days). Objective::
@@ -55,10 +55,10 @@ from airtaper.errors import EXIT_FAILURE, EXIT_INFEASIBLE, EXIT_OK, EXIT_UNVERIF
 from airtaper.layout import defaults as D
 from airtaper.layout.loaddays import day_layout, layout_days, with_grid_counts
 from airtaper.layout.types import Layout
+from airtaper.optimize.attempts import BASE_OPTIONS, LADDER
+from airtaper.optimize.diurnal import DiurnalOptimisation, StudyOptions, _jsonable
 from airtaper.optimize.horizon import with_periods
-from airtaper.optimize.initialise import BASE_OPTIONS, LADDER
 from airtaper.optimize.progress import Progress, Silent
-from airtaper.optimize.study import DiurnalOptimisation, StudyOptions, _jsonable
 from airtaper.optimize.verify import verify_day
 from airtaper.solve import solve_nlp
 
