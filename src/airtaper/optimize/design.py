@@ -237,7 +237,9 @@ class GridDesign:
                 break
         self.relaxed_result = r
         if r.ok:
-            self.relaxed = {z: float(M.count[z].value) for z in self.ids}
+            # within the range (Ipopt may end a hair outside a bound, inside its tolerance)
+            self.relaxed = {z: min(max(float(M.count[z].value), self.ranges[z][0]), self.ranges[z][1])
+                            for z in self.ids}
             self._relaxed_state = self._snapshot()
         return r
 
