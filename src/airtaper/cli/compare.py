@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import sys
 
+from airtaper.cli.design import grid_problems, periods_problems
 from airtaper.cli.main import add_output_options
 from airtaper.errors import InputError, Problem
 from airtaper.layout import layout_input_files, load_layout
@@ -45,14 +46,8 @@ def run(args) -> int:
         except InputError as exc:
             problems.extend(exc.problems)
             continue
-        n = args.periods
-        have = layout.horizon.n_periods
-        if n is not None and (n < 1 or n > 288 or (have % n and n % have)):
-            problems.append(Problem("<command line>", "--periods", f"must divide or be a multiple of {path}'s "
-                                    "periods", n, f"a divisor or multiple of {have}, at most 288"))
-        if not any(z.grid is not None and z.aerated for z in layout.zones):
-            problems.append(Problem(path, "zones", "no zone has a diffuser grid: there is no airflow to optimise",
-                                    None, "at least one aerated zone with a [zones.grid]"))
+        problems += periods_problems(args.periods, layout, f"{path}'s") + grid_problems(path, layout,
+                                                                                        "no airflow to optimise")
         layouts.append((path, layout))
         inputs += [f for f in layout_input_files(path, layout) if f not in inputs]
     for w in warnings:

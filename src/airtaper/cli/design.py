@@ -40,26 +40,30 @@ def register(subparsers) -> None:
     p.set_defaults(handler=run)
 
 
+def grid_problems(path: str, layout, what: str) -> list[Problem]:
+    """A layout with no diffuser grid, for a command that needs one (``what`` it would do)."""
+    if any(z.grid is not None and z.aerated for z in layout.zones):
+        return []
+    return [Problem(path, "zones", f"no zone has a diffuser grid: there is {what}", None,
+                    "at least one aerated zone with a [zones.grid]")]
+
+
 def layout_problems(path: str, layout) -> list[Problem]:
     """What a layout lacks for a design (one line each)."""
     out = []
     if layout.capital is None:
         out.append(Problem(path, "capital", "a design weighs capital against energy: the layout gives no costs", None,
                            "a [capital] table with cost_per_diffuser"))
-    if not any(z.grid is not None and z.aerated for z in layout.zones):
-        out.append(Problem(path, "zones", "no zone has a diffuser grid: there is nothing to design", None,
-                           "at least one aerated zone with a [zones.grid]"))
-    return out
+    return out + grid_problems(path, layout, "nothing to design")
 
 
-def periods_problem(args, layout) -> list[Problem]:
-    n, have = args.periods, layout.horizon.n_periods
-    if n is None:
+def periods_problems(n: int | None, layout, whose: str = "the layout's") -> list[Problem]:
+    """``--periods N``: the layout's diurnal grid must map onto N periods (optimize.horizon.with_periods)."""
+    have = layout.horizon.n_periods
+    if n is None or (1 <= n <= 288 and (have % n == 0 or n % have == 0)):
         return []
-    if n < 1 or (have % n and n % have) or n > 288:
-        return [Problem("<command line>", "--periods", "must divide or be a multiple of the layout's periods", n,
-                        f"a divisor or multiple of {have}, at most 288")]
-    return []
+    return [Problem("<command line>", "--periods", f"must divide or be a multiple of {whose} periods", n,
+                    f"a divisor or multiple of {have}, at most 288")]
 
 
 def run(args) -> int:
@@ -71,7 +75,7 @@ def run(args) -> int:
     layout = load_layout_with_overrides(args.layout, args.overrides, warnings=warnings)
     for w in warnings:
         print(str(w), file=sys.stderr)
-    problems = layout_problems(args.layout, layout) + periods_problem(args, layout)
+    problems = layout_problems(args.layout, layout) + periods_problems(args.periods, layout)
     if problems:
         raise InputError(problems)
     inputs = layout_input_files(args.layout, layout) + ([args.overrides] if args.overrides else [])
