@@ -50,7 +50,8 @@ def _separate(g: GridDesign) -> tuple[float, int]:
     for st in g.studies:
         m = st.m
         for z in g.ids:
-            g.model.count[z].fix(g.relaxed[z])
+            g.model.count[z].set_value(g.relaxed[z], skip_validation=True)
+            g.model.count[z].fix()
         m.opt.objective.activate()  # the day's own objective, alone
         st._restart(LADDER[0])
         r = solve_nlp(m, dict(BASE_OPTIONS, **LADDER[0].options))

@@ -261,8 +261,7 @@ class GridDesign:
             self.build()
         M = self.model
         t0 = time.perf_counter()
-        for z in self.ids:
-            M.count[z].fix(float(counts[z]))
+        self._fix_counts(counts)
         if getattr(self, "_relaxed_state", None) is not None:
             self._restore(self._relaxed_state)
         else:
@@ -284,9 +283,14 @@ class GridDesign:
     def load(self, counts: dict[str, int]) -> None:
         """Put the solved state of an evaluated grid back into the model."""
         key = tuple(int(counts[z]) for z in self.ids)
-        for z in self.ids:
-            self.model.count[z].fix(float(counts[z]))
+        self._fix_counts(counts)
         self._restore(self._states[key])
+
+    def _fix_counts(self, counts: dict[str, int]) -> None:
+        """Fix the counts (the current grid may lie outside the design range: no bound check)."""
+        for z in self.ids:
+            self.model.count[z].set_value(float(counts[z]), skip_validation=True)
+            self.model.count[z].fix()
 
     def _nearest(self) -> dict[str, int]:
         out = {}
