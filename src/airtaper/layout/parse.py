@@ -960,7 +960,7 @@ class _Parser:
                 col.warn(f"blowers.{b.id}", f"wire-to-air efficiency {min(effs):.3g} is unusually low (usual above "
                                             f"{D.WARN_BLOWER_EFFICIENCY_MIN:g}): was it divided by 100?")
         gridded = [z for z in zones if z.grid is not None]
-        if gridded and not blowers and "blowers" not in self.root.data:
+        if gridded and not blowers and not self.root.data.get("blowers"):  # absent or empty; bad ones are reported
             col.error("blowers", "zones have diffuser grids but there are no blowers", None,
                       "at least one [[blowers]] table")
         if gridded and blowers:

@@ -208,13 +208,16 @@ def _do_sat_init(m, z, p):
     return float(a.do_sat_mg_L)
 
 
-def attach_aeration(m, data: TrainData, airflow=None) -> None:
+def attach_aeration(m, data: TrainData, airflow=None, diffuser_count=None) -> None:
     """Airflow (grid zones) and fixed-kLa handles, the field kLa and saturation per zone and period.
 
     ``airflow_Sm3_h[zone, period]`` is a Var, fixed to the schedule for simulation
     (``airflow``: mapping zone -> number or per-period sequence; default the middle
     of the zone's allowed range). ``kla_fixed_per_d[zone, period]`` is a Var fixed
     to the layout's kLa (freed when a DO setpoint is imposed on such a zone).
+    ``diffuser_count``: an indexed Var (grid zone -> count) held outside ``m`` that the
+    kLa and the grid limits follow instead of the layout's counts (a design study shares
+    one such Var between the models of its load days).
     """
     layout = data.layout
     m.aeration = {z: a for z, a in zip(data.zones, data.aeration) if a is not None}
@@ -247,7 +250,11 @@ def attach_aeration(m, data: TrainData, airflow=None) -> None:
                 v = float(given[p - 1])
             m.airflow_Sm3_h[z, p].fix(v)
     # the diffuser count of each grid: the layout's, a parameter a design study may change
-    m.diffuser_count = pyo.Param(m.GRID_ZONES, mutable=True, initialize={z: float(m.aeration[z].diffusers) for z in grid})
+    if diffuser_count is None:
+        m.diffuser_count = pyo.Param(m.GRID_ZONES, mutable=True,
+                                     initialize={z: float(m.aeration[z].diffusers) for z in grid})
+    else:
+        m.diffuser_count = pyo.Reference(diffuser_count)
     m.kla_per_d = pyo.Expression(m.AERATED_ZONES, m.PERIODS, rule=_kla_rule)
     m.do_sat_mg_L = pyo.Param(m.AERATED_ZONES, m.PERIODS, initialize=_do_sat_init, mutable=False)
 
@@ -416,7 +423,7 @@ def attach_outputs(m) -> None:
 
 
 def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: str = "radau2",
-                      name: str = "airtaper_train", switched_zones=()):
+                      name: str = "airtaper_train", switched_zones=(), diffuser_count=None):
     """The Pyomo model of a train from resolved data (see the module notes).
 
     Parameters
@@ -444,7 +451,7 @@ def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: st
     m.train_data = data
     m.switched_zones = frozenset(switched_zones)
     attach_sets(m, data, steady, scheme)
-    attach_aeration(m, data, airflow)
+    attach_aeration(m, data, airflow, diffuser_count)
     attach_flows(m, data)
     attach_zone_states(m, data)
     attach_clarifier(m, data)
@@ -473,7 +480,8 @@ def build_steady_model(layout: Layout, *, period: int | None = None, airflow=Non
     return build_train_model(steady, steady=True, airflow=airflow, name="airtaper_steady")
 
 
-def build_cyclic_model(layout: Layout, *, airflow=None, scheme: str = "radau2", steps_per_period: int | None = None):
+def build_cyclic_model(layout: Layout, *, airflow=None, scheme: str = "radau2", steps_per_period: int | None = None,
+                       diffuser_count=None):
     """The cyclic diurnal model of ``layout`` (periods and steps from ``layout.horizon``).
 
     ``scheme``: "radau2" (Radau IIA, 2 points per step, order 3; default), "radau3"
@@ -484,7 +492,8 @@ def build_cyclic_model(layout: Layout, *, airflow=None, scheme: str = "radau2", 
     if steps_per_period is not None:
         data = replace(data, steps_per_period=int(steps_per_period))
     return build_train_model(data, steady=False, airflow=airflow, scheme=scheme, name="airtaper_cyclic",
-                             switched_zones=[z.id for z in layout.zones if z.kind == "swing"])
+                             switched_zones=[z.id for z in layout.zones if z.kind == "swing"],
+                             diffuser_count=diffuser_count)
 
 
 def set_airflow(m, airflow) -> None:

@@ -132,15 +132,19 @@ class DiurnalOptimisation:
         value = base.cost_per_day if objective == "cost" else base.energy_kWh_per_day
         return float(value) if value and value > 0 else 1.0
 
-    def build(self) -> None:
-        """Build the model, start it from the baseline, attach the problem and scale it."""
+    def build(self, diffuser_count=None) -> None:
+        """Build the model, start it from the baseline, attach the problem and scale it.
+
+        ``diffuser_count``: a count Var shared with other models (see
+        :func:`airtaper.model.train.attach_aeration`).
+        """
         base = self.run_baseline()
         self.progress.phase("building the cyclic model")
         t = time.perf_counter()
         kwargs = {"steps_per_period": model_steps_per_period(self.layout, self.options)}
         if self.options.scheme is not None:
             kwargs["scheme"] = self.options.scheme
-        m = build_cyclic_model(self.layout, **kwargs)
+        m = build_cyclic_model(self.layout, diffuser_count=diffuser_count, **kwargs)
         self.timings["build_s"] = time.perf_counter() - t
         t = time.perf_counter()
         start_from_day(m, base.day, start_airflow(m, base.day))
