@@ -41,6 +41,8 @@ def register(subparsers) -> None:
                    help="mixing minimum airflow per floor area for every aerated zone, Sm3/(m2 h)")
     p.add_argument("--baseline-do", type=float, metavar="MG_L", help="DO setpoint of the baseline (default 2.0)")
     p.add_argument("--no-figure", action="store_true", help="skip schedule.png")
+    p.add_argument("--no-report", action="store_true",
+                   help="write the tables and summary.json only (build the report later with `airtaper report DIR`)")
     p.add_argument("--quiet", action="store_true", help="no progress display")
     p.set_defaults(handler=run)
 
@@ -77,7 +79,7 @@ def run(args) -> int:
         summary = {**result.summary, **out.provenance()}
         write_study_outputs(out.staging, schedule=result.schedule, header=result.header,
                             timeseries=result.timeseries, summary=summary, figure=not args.no_figure,
-                            blowers=result.blowers)
+                            blowers=result.blowers, report=not args.no_report)
     print(console_summary(summary))
     if summary.get("status") == "unverified":
         print("WARNING: the optimised schedule breaks a limit when re-simulated by the independent simulator; "
