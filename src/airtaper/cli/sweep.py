@@ -181,8 +181,7 @@ def _options(args) -> list[str]:
 
 
 def check_cluster_options(args) -> None:
-    problems = number_option_problems((("--workers", float(args.workers) if args.workers is not None else None,
-                                        1.0),))
+    problems = number_option_problems((("--workers", args.workers, 1),))
     if problems:
         raise InputError(problems)
 
