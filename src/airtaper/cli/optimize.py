@@ -34,6 +34,8 @@ def register(subparsers) -> None:
     add_output_options(p)
     p.add_argument("--overrides", metavar="FILE",
                    help="override file (e.g. from `airtaper calibrate`) applied to the layout before validation")
+    p.add_argument("--day", metavar="ID", help="optimise the layout's load day ID ([[load_days]]) instead of its "
+                                               "base profile")
     p.add_argument("--objective", choices=("energy", "cost"), help="override the layout's objective")
     p.add_argument("--smoothing-weight", type=float, metavar="W",
                    help="weight of the penalty on period-to-period airflow change (default: the layout's)")
@@ -52,6 +54,18 @@ def _check(args) -> list[Problem]:
                                    ("--mixing-min", args.mixing_min, 0.0), ("--baseline-do", args.baseline_do, 1e-9)))
 
 
+def _load_day(path, layout, day_id: str):
+    """The Layout of the load day ``day_id`` (bad input when the layout names no such day)."""
+    from airtaper.layout.loaddays import day_layout
+
+    for day in layout.load_days:
+        if day.id == day_id:
+            return day_layout(layout, day)
+    ids = ", ".join(d.id for d in layout.load_days)
+    raise InputError(Problem(path, "--day", "no load day with that id", day_id,
+                             f"one of {ids}" if ids else "a layout with [[load_days]]"))
+
+
 def run(args) -> int:
     from airtaper.optimize.progress import Progress
     from airtaper.optimize.study import StudyOptions, run_optimization
@@ -63,6 +77,8 @@ def run(args) -> int:
     layout = load_layout_with_overrides(args.layout, args.overrides, warnings=warnings)
     for w in warnings:
         print(str(w), file=sys.stderr)
+    if args.day is not None:
+        layout = _load_day(args.layout, layout, args.day)
     if not any(z.grid is not None and z.aerated and z.fixed_kla_per_d is None for z in layout.zones):
         raise InputError(Problem(args.layout, "zones", "no zone has a diffuser grid: there is no airflow to optimise",
                                  None, "at least one aerated zone with a [zones.grid]"))

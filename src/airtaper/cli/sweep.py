@@ -77,8 +77,8 @@ def optimize_scenario(task: dict) -> dict:
     out = Path(task["out"])
     if out.exists():  # an earlier run of a scenario that did not finish (no row): ours, start it again
         shutil.rmtree(out)
-    argv = ["optimize", task["layout"], "--overrides", task["overrides"], "--out", str(out), "--quiet",
-            *task["options"]]
+    argv = ["optimize", task["layout"], *(["--overrides", task["overrides"]] if task["overrides"] else []),
+            "--out", str(out), "--quiet", *task["options"]]
     err = io.StringIO()
     with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(err):
         code = main(argv)
@@ -109,7 +109,7 @@ def _refuse_inputs_inside(out: str, files: list[str]) -> None:
                                      "a folder that holds no input"))
 
 
-def plan(layout_path: str, grid, folder: Path, options: list[str], stream=sys.stderr):
+def plan(layout_path: str, grid, folder: Path, options: list[str], stream=sys.stderr, kind: str = "sweep"):
     """(rows known before any solve, tasks to run): bad scenarios and finished ones are rows already.
 
     Every scenario's layout is validated here; its values are written as
@@ -124,14 +124,15 @@ def plan(layout_path: str, grid, folder: Path, options: list[str], stream=sys.st
     known, tasks = {}, []
     resumed = 0
     for sc in grid.scenarios:
-        inputs = {k: sc.values.get(k) for k in sc.swept}
+        inputs = sc.inputs()
+        run_options = [*options, *sc.options]
         try:
             layout = check_scenario(layout_path, grid.path, sc)
             files = layout_input_files(layout_path, layout)
         except InputError as exc:
             for p in exc.problems:
                 print(str(p), file=stream)
-            fp = fingerprint([layout_path, grid.path], sc.values, options)
+            fp = fingerprint([layout_path, grid.path], sc.values, run_options)
             row = finished_row(folder, sc.id, fp)
             if row is None:
                 row = {"scenario": sc.id, "inputs": inputs, "status": "bad input", "exit_code": EXIT_INPUT,
@@ -139,18 +140,22 @@ def plan(layout_path: str, grid, folder: Path, options: list[str], stream=sys.st
                 write_row(row_path(folder, sc.id), row)
             known[sc.id] = row
             continue
-        fp = fingerprint(files, sc.values, options)
+        fp = fingerprint(files, sc.values, run_options)
         row = finished_row(folder, sc.id, fp)
         if row is not None:
             known[sc.id] = row
             resumed += 1
             continue
-        overrides = folder / SCENARIOS / f"{sc.id}.toml"
-        write_text_atomic(overrides, overrides_to_toml(
-            sc.values, header=f"scenario {sc.id} of the sweep of {layout_path} by {grid.path}"))
+        overrides = None
+        if sc.values:
+            overrides = folder / SCENARIOS / f"{sc.id}.toml"
+            write_text_atomic(overrides, overrides_to_toml(
+                sc.values, header=f"scenario {sc.id} of the {kind} of {layout_path}" +
+                (f" by {grid.path}" if grid.path else "")))
         tasks.append({"id": sc.id, "inputs": inputs, "layout": os.path.abspath(layout_path),
-                      "overrides": str(overrides), "out": str(folder / RUNS / sc.id), "root": str(folder),
-                      "row": str(row_path(folder, sc.id)), "fingerprint": fp, "options": list(options)})
+                      "overrides": None if overrides is None else str(overrides),
+                      "out": str(folder / RUNS / sc.id), "root": str(folder),
+                      "row": str(row_path(folder, sc.id)), "fingerprint": fp, "options": run_options})
     if resumed and stream is not None:
         print(f"{resumed} of {len(grid.scenarios)} scenarios already have their row from an earlier run "
               f"({len(tasks)} to run)", file=stream)

@@ -52,6 +52,11 @@ class Scenario:
     id: str
     values: dict
     swept: tuple[str, ...]  # the key paths that vary between scenarios (the table's input columns)
+    options: tuple[str, ...] = ()  # further `optimize` options of this scenario (a year's `--day ID`)
+    shown: dict | None = None  # the table's input cells when they are not the values (a year's month)
+
+    def inputs(self) -> dict:
+        return dict(self.shown) if self.shown is not None else {k: self.values.get(k) for k in self.swept}
 
 
 @dataclass(frozen=True)
