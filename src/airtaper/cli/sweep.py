@@ -109,7 +109,7 @@ def _refuse_inputs_inside(out: str, files: list[str]) -> None:
                                      "a folder that holds no input"))
 
 
-def plan(layout_path: str, grid, folder: Path, options: list[str], stream=sys.stderr, kind: str = "sweep"):
+def plan(layout_path: str, grid, folder: Path, options: list[str], stream=None, kind: str = "sweep"):
     """(rows known before any solve, tasks to run): bad scenarios and finished ones are rows already.
 
     Every scenario's layout is validated here; its values are written as
@@ -121,6 +121,7 @@ def plan(layout_path: str, grid, folder: Path, options: list[str], stream=sys.st
     from airtaper.sweep.grid import check_scenario
     from airtaper.sweep.journal import RUNS, SCENARIOS, finished_row, fingerprint, row_path, write_row
 
+    stream = stream if stream is not None else sys.stderr
     known, tasks = {}, []
     resumed = 0
     for sc in grid.scenarios:
@@ -156,7 +157,7 @@ def plan(layout_path: str, grid, folder: Path, options: list[str], stream=sys.st
                       "overrides": None if overrides is None else str(overrides),
                       "out": str(folder / RUNS / sc.id), "root": str(folder),
                       "row": str(row_path(folder, sc.id)), "fingerprint": fp, "options": run_options})
-    if resumed and stream is not None:
+    if resumed:
         print(f"{resumed} of {len(grid.scenarios)} scenarios already have their row from an earlier run "
               f"({len(tasks)} to run)", file=stream)
     return known, tasks
