@@ -119,7 +119,7 @@ def _real_model(path: str):
 
     from airtaper.layout import load_layout
     from airtaper.model import build_cyclic_model, initialise_cyclic
-    from airtaper.model.initialise import march_cyclic
+    from airtaper.model.initial_point import march_cyclic
 
     lay = load_layout(path)
     airflow = None

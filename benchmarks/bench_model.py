@@ -22,7 +22,7 @@ sys.path.insert(0, str(ROOT / "src"))
 from airtaper.layout.parse import load_layout  # noqa: E402
 from airtaper.layout.types import DiffuserGrid, Horizon, Recycle  # noqa: E402
 from airtaper.model import build_cyclic_model, check_square, initialise_cyclic  # noqa: E402
-from airtaper.model.initialise import march_cyclic  # noqa: E402
+from airtaper.model.initial_point import march_cyclic  # noqa: E402
 
 
 def _resampled(values, n):

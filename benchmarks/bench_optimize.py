@@ -41,11 +41,11 @@ sys.path.insert(0, str(ROOT / "src"))
 from airtaper.layout import load_layout  # noqa: E402
 from airtaper.layout.types import DiffuserGrid  # noqa: E402
 from airtaper.optimize.airside import AirSide  # noqa: E402
-from airtaper.optimize.figures import violations  # noqa: E402
+from airtaper.optimize.compliance import violations  # noqa: E402
 from airtaper.optimize.horizon import with_periods  # noqa: E402
 from airtaper.optimize.simday import simulate_day  # noqa: E402
-from airtaper.optimize.study import StudyOptions, run_optimization  # noqa: E402
-from airtaper.report.study import write_study_outputs  # noqa: E402
+from airtaper.optimize.diurnal import StudyOptions, run_optimization  # noqa: E402
+from airtaper.report.study_files import write_study_outputs  # noqa: E402
 
 #: An invented diurnal flow shape over six 4-hour periods (x mean), for the reduced instance.
 FLOW_SHAPE = (0.6, 0.8, 1.15, 1.5, 1.1, 0.85)

@@ -33,7 +33,7 @@ from airtaper.layout import load_layout  # noqa: E402
 from airtaper.optimize.dispatch import Bill, solve_dispatch  # noqa: E402
 from airtaper.optimize.horizon import with_periods  # noqa: E402
 from airtaper.optimize.staging import model_air_state  # noqa: E402
-from airtaper.optimize.study import StudyOptions, run_optimization  # noqa: E402
+from airtaper.optimize.diurnal import StudyOptions, run_optimization  # noqa: E402
 
 
 def load(path, periods):

@@ -115,12 +115,12 @@ def test_influent_csv_named_like_an_output_is_never_overwritten(tmp_path, capsys
 
 @pytest.mark.parametrize("case", ["existing file", "earlier run without --overwrite", "under a file"])
 def test_output_folder_problems_are_found_before_the_solve(tmp_path, capsys, monkeypatch, case):
-    import airtaper.optimize.study as study
+    import airtaper.optimize.diurnal as diurnal
 
     def no_solve(*args, **kwargs):
         raise AssertionError("the solve started before the output folder was checked")
 
-    monkeypatch.setattr(study, "run_optimization", no_solve)
+    monkeypatch.setattr(diurnal, "run_optimization", no_solve)
     lay = _short_layout(tmp_path)
     if case == "existing file":
         out = tmp_path / "report.html"

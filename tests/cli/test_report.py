@@ -32,9 +32,9 @@ def test_report_reproduces_the_html_of_optimize_without_solving(finished, capsys
     book = pd.read_excel(finished / "results.xlsx", sheet_name=None)
     (finished / "report.html").unlink()
     (finished / "results.xlsx").unlink()
-    import airtaper.optimize.study as study
+    import airtaper.optimize.diurnal as diurnal
 
-    monkeypatch.setattr(study, "run_optimization", lambda *a, **k: pytest.fail("report must not solve"))
+    monkeypatch.setattr(diurnal, "run_optimization", lambda *a, **k: pytest.fail("report must not solve"))
     assert main(["report", str(finished)]) == EXIT_OK
     assert (finished / "report.html").read_bytes() == first
     again = pd.read_excel(finished / "results.xlsx", sheet_name=None)

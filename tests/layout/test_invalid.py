@@ -45,6 +45,7 @@ def _anoxic_grid(d):
 
 def _no_tariff(d):
     del d["tariff"]
+    del d["capital"]  # its own need of a tariff is tested in test_loaddays.py
 
 
 def _rename_blowers(d):

@@ -5,7 +5,7 @@ import pytest
 
 from airtaper.model import build_cyclic_model, check_square, initialise_cyclic, solve_square
 from airtaper.model import results
-from airtaper.model.initialise import march_cyclic
+from airtaper.model.initial_point import march_cyclic
 
 #: An invented diurnal schedule: the demo's tapered airflows swung +-50 % around the day.
 _BASE = {"Z2": 2750.0, "Z3": 1860.0, "Z4": 1410.0, "Z5": 1000.0, "Z6": 800.0}

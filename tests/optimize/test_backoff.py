@@ -7,7 +7,7 @@ import pytest
 
 from airtaper.errors import EXIT_OK
 from airtaper.optimize.backoff import ACCEPT_mg_L, shortfalls
-from airtaper.optimize.study import StudyOptions, run_optimization
+from airtaper.optimize.diurnal import StudyOptions, run_optimization
 
 #: The issue's acceptance: the re-simulated DO, over continuous time, at least the minimum less this.
 DO_ACCEPT_mg_L = 0.01

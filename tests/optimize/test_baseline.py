@@ -8,7 +8,7 @@ import pytest
 
 from airtaper.optimize.baseline import SEARCH_TOL_mg_L, complying_baseline, run_baseline
 from airtaper.optimize.horizon import with_periods
-from airtaper.optimize.study import saving_figures
+from airtaper.optimize.diurnal import saving_figures
 
 
 @pytest.fixture(scope="module")

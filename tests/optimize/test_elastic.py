@@ -50,7 +50,7 @@ def test_elastic_solve_does_not_over_aerate_other_zones(demo):
     from airtaper.errors import EXIT_INFEASIBLE
     from airtaper.optimize.elastic import normal_do_mg_L
     from airtaper.optimize.horizon import with_periods
-    from airtaper.optimize.study import StudyOptions, run_optimization
+    from airtaper.optimize.diurnal import StudyOptions, run_optimization
 
     lay = with_periods(demo, 6, steps_per_period=2)
     lay = replace(lay, zones=tuple(replace(z, grid=replace(z.grid, count=200)) if z.id == "Z2" else z

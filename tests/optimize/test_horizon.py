@@ -25,6 +25,20 @@ def test_daily_volume_and_load_are_kept(demo, n):
         assert b == pytest.approx(a, rel=1e-12)
 
 
+@pytest.mark.parametrize("n", [6, 48])
+def test_load_days_follow_the_grid(demo, n):
+    from airtaper.layout.loaddays import day_layout
+    new = with_periods(demo, n)
+    assert [d.id for d in new.load_days] == [d.id for d in demo.load_days]
+    for day_old, day_new in zip(demo.load_days, new.load_days):
+        one = day_layout(new, day_new)  # a day of the mapped layout is the mapped day of the layout
+        ref = with_periods(day_layout(demo, day_old), n)
+        assert one.plant.temperature_C == pytest.approx(ref.plant.temperature_C)
+        assert one.inlet_air.temperature_C == pytest.approx(ref.inlet_air.temperature_C)
+        for a, b in zip(_daily(one), _daily(ref)):
+            assert a == pytest.approx(b, rel=1e-12)
+
+
 def test_grids_that_do_not_nest_are_refused(demo):
     with pytest.raises(ModelError):
         with_periods(demo, 7)

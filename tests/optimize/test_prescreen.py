@@ -12,7 +12,7 @@ from airtaper.cli.main import main
 from airtaper.errors import EXIT_INFEASIBLE, EXIT_OK
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.prescreen import equipment_findings, outside_tested_range, prescreen
-from airtaper.optimize.study import StudyOptions, run_optimization
+from airtaper.optimize.diurnal import StudyOptions, run_optimization
 
 from .conftest import DEMO
 

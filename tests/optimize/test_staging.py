@@ -20,7 +20,7 @@ from airtaper.layout import load_layout
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.dispatch import evaluate, machines_of
 from airtaper.optimize.staging import COST_RTOL, MAX_ROUNDS, feasibility_check, model_air_state
-from airtaper.optimize.study import run_optimization
+from airtaper.optimize.diurnal import run_optimization
 
 pytestmark = pytest.mark.solver
 

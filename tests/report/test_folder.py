@@ -13,9 +13,9 @@ from hypothesis import strategies as st
 from airtaper.errors import InputError
 from airtaper.report.build import render
 from airtaper.report.folder import SUMMARY_SHAPE, read_study_folder
-from airtaper.report.study import write_study_outputs
+from airtaper.report.study_files import write_study_outputs
 
-from .test_study import _tables
+from .test_study_files import _tables
 
 #: Examples of the fuzz below; AIRTAPER_FUZZ_EXAMPLES=2000 for a longer hunt.
 N_EXAMPLES = min(int(os.environ.get("AIRTAPER_FUZZ_EXAMPLES", "40")), 5000)

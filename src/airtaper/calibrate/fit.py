@@ -36,8 +36,8 @@ from airtaper.errors import ModelError
 from airtaper.layout.plantdata import PlantRecord, period_inputs
 from airtaper.layout.types import Layout
 from airtaper.model.data import GridAeration, train_data
-from airtaper.model.initialise import initialise_cyclic, march_cyclic
-from airtaper.model.scaling import apply_scaling
+from airtaper.model.initial_point import initialise_cyclic, march_cyclic
+from airtaper.model.state_scaling import apply_scaling
 from airtaper.model.train import build_train_model
 from airtaper.process.asm1 import layout_parameters
 from airtaper.solve import solve_nlp

@@ -1,6 +1,6 @@
 """`airtaper optimize LAYOUT --out DIR`: the diurnal tapered-aeration schedule at least blower energy or cost.
 
-Runs :func:`airtaper.optimize.study.run_optimization` (baseline under uniform DO
+Runs :func:`airtaper.optimize.diurnal.run_optimization` (baseline under uniform DO
 control, the optimisation on the cyclic model, verification by the independent
 simulator, marginal costs) with a progress display on stderr, writes
 ``schedule.csv``, ``header.csv``, ``blowers.csv``, ``timeseries.csv``, ``summary.json``,
@@ -21,7 +21,7 @@ from airtaper.errors import InputError, Problem
 from airtaper.layout import layout_input_files
 from airtaper.layout.overrides import load_layout_with_overrides
 from airtaper.report.outputs import output_folder
-from airtaper.report.study import console_summary, write_study_outputs
+from airtaper.report.study_files import console_summary, write_study_outputs
 
 
 def register(subparsers) -> None:
@@ -68,7 +68,7 @@ def _load_day(path, layout, day_id: str):
 
 def run(args) -> int:
     from airtaper.optimize.progress import Progress
-    from airtaper.optimize.study import StudyOptions, run_optimization
+    from airtaper.optimize.diurnal import StudyOptions, run_optimization
 
     problems = _check(args)
     if problems:

@@ -10,6 +10,7 @@ import os
 
 from airtaper.layout.dump import layout_to_data
 from airtaper.layout.influent import influent_csv_path
+from airtaper.layout.loaddays import day_layout, layout_days
 from airtaper.layout.parse import load_layout, parse_layout, parse_toml_text
 from airtaper.layout.reader import LayoutWarning
 from airtaper.layout.types import Layout
@@ -20,8 +21,13 @@ def layout_input_files(layout_path: str | os.PathLike, layout: Layout) -> list[s
     files = [str(layout_path)]
     if layout.influent.source != "constant":
         files.append(influent_csv_path(layout_path, layout.influent.source))
+    for day in layout.load_days:
+        if day.influent is not None:
+            path = influent_csv_path(layout_path, day.influent.source)
+            if path not in files:
+                files.append(path)
     return files
 
 
-__all__ = ["Layout", "LayoutWarning", "layout_input_files", "load_layout", "parse_layout", "parse_toml_text",
+__all__ = ["Layout", "LayoutWarning", "day_layout", "layout_days", "layout_input_files", "load_layout", "parse_layout", "parse_toml_text",
            "layout_to_data"]

@@ -201,3 +201,45 @@ WARN_ALKALINITY_MIN_mol_m3 = 0.5
 WARN_LAST_ROW_FACTOR = 4.0
 #: Shallowest usual clean-water test submergence of a diffuser test point, m (warning below).
 WARN_TEST_SUBMERGENCE_MIN_m = 0.5
+
+# --- load days ([[load_days]]) ----------------------------------------------
+#: Named days a [[load_days]] table may start from (``basis``): (flow factor, load factor) against the annual
+#: average day. Peaking factors of municipal plants reported in design handbooks: maximum month about
+#: 1.2-1.4 x, peak day about 1.5-2.5 x (loads, ammonia above all, peak more than flow), minimum day about
+#: 0.5-0.7 x (from memory; the ranges discussed in Metcalf & Eddy, Wastewater Engineering: Treatment and
+#: Resource Recovery, 5th ed., 2014, ch. 3). The values are the low end of those ranges for dry-weather days;
+#: a site's own records replace them. "winter" and "summer" keep the average flow and load and need the day's
+#: water temperature (common practice (no source)).
+LOAD_DAY_BASES = {
+    "average_day": (1.0, 1.0),
+    "maximum_month": (1.2, 1.3),
+    "peak_day": (1.5, 1.8),
+    "minimum_day": (0.7, 0.6),
+    "winter": (1.0, 1.0),
+    "summer": (1.0, 1.0),
+}
+#: Bases that say nothing without the day's own water temperature.
+LOAD_DAY_BASES_NEEDING_TEMPERATURE = ("winter", "summer")
+#: Flow or load factor when neither the day nor its basis gives one: the base profile as it is.
+LOAD_DAY_FACTOR = 1.0
+#: Factor on every zone's alpha for the day; 1 = the zones' own alpha. Common practice (no source).
+LOAD_DAY_ALPHA_FACTOR = 1.0
+#: Largest flow or load factor; a value above it is a typing slip (120 for 1.2 x).
+LOAD_DAY_FACTOR_MAX = 10.0
+#: Days in a year: the load days' weights should add up to this (warning when they miss by more than
+#: WARN_LOAD_DAYS_YEAR_TOLERANCE days). Common practice (no source).
+DAYS_PER_YEAR = 365.0
+WARN_LOAD_DAYS_YEAR_TOLERANCE = 1.0
+
+# --- capital costs ([capital]) ----------------------------------------------
+#: Interest rate per year for annualising capital (capital recovery factor). Common practice (no source).
+INTEREST_RATE = 0.05
+#: Economic life of a diffuser grid, years (from memory: membranes are replaced after about 7-10 years,
+#: holders and pipework last longer).
+GRID_LIFE_YEARS = 15.0
+#: Fixed cost of installing a grid in one zone when none is given. Common practice (no source).
+COST_PER_ZONE = 0.0
+#: An interest rate above this (as a fraction) was typed in percent (5 for 5 %): error.
+INTEREST_RATE_MAX = 1.0
+#: Whole increment of a grid's diffuser count when none is given (any whole count). Common practice (no source).
+GRID_COUNT_STEP = 1

@@ -55,7 +55,8 @@ def layout_to_data(layout: Layout) -> dict:
                                   "valve_capacity_Sm3_h": z.valve_capacity_Sm3_h,
                                   "fixed_kla_per_d": z.fixed_kla_per_d, "fixed_do_sat_mg_L": z.fixed_do_sat_mg_L}))
             if z.grid is not None:
-                zd["grid"] = {"type": z.grid.type_id, "count": z.grid.count, "submergence_m": z.grid.submergence_m}
+                zd["grid"] = {"type": z.grid.type_id, "count": z.grid.count, "submergence_m": z.grid.submergence_m,
+                              "count_step": z.grid.count_step}
             if z.max_switches_per_day is not None:
                 zd["max_switches_per_day"] = z.max_switches_per_day
         zones.append(zd)
@@ -138,4 +139,28 @@ def layout_to_data(layout: Layout) -> dict:
     o = layout.operation
     data["operation"] = {"baseline_do_setpoint_mg_L": o.baseline_do_setpoint_mg_L, "objective": o.objective,
                          "smoothing_weight": o.smoothing_weight}
+    if layout.capital is not None:
+        c = layout.capital
+        data["capital"] = {"cost_per_diffuser": c.cost_per_diffuser, "cost_per_zone": c.cost_per_zone,
+                           "interest_rate": c.interest_rate, "life_years": c.life_years}
+    if layout.load_days:
+        data["load_days"] = [_load_day(d) for d in layout.load_days]
     return data
+
+
+def _load_day(d) -> dict:
+    out: dict = {"id": d.id, "days_per_year": d.days_per_year}
+    if d.basis is not None:
+        out["basis"] = d.basis
+    if d.influent is not None:
+        out["influent_csv"] = d.influent.source
+    else:
+        out.update({"flow_factor": d.flow_factor, "load_factor": d.load_factor})
+    if d.water_temperature_C is not None:
+        out["water_temperature_C"] = _pp(d.water_temperature_C)
+    if d.air_temperature_C is not None:
+        out["air_temperature_C"] = _pp(d.air_temperature_C)
+    out["alpha_factor"] = d.alpha_factor
+    out["limits"] = _drop_none({"nh4_mean_mg_L": d.limits.nh4_mean_mg_L, "nh4_max_mg_L": d.limits.nh4_max_mg_L,
+                                "tn_mean_mg_L": d.limits.tn_mean_mg_L})
+    return out

@@ -341,6 +341,17 @@ def read_influent(t: Table, n: int, base_dir: str | None, tss_per_cod: float,
     return result
 
 
+def read_day_influent(col: Collector, key: str, csv_name, n: int, base_dir: str | None,
+                      frac: Fractionation | None) -> Influent | None:
+    """A load day's own influent profile: a CSV of the same columns as [influent], with the base fractionation."""
+    if not isinstance(csv_name, str) or not csv_name:
+        col.error(key, "must be a file name", csv_name, "a CSV file name relative to the layout")
+        return None
+    if frac is None:
+        return None  # the fractionation's problem is reported under [influent]
+    return _from_csv(col, csv_name, n, base_dir, frac, key)
+
+
 def csv_display_path(file_label: str, base_dir: str | None, csv_name: str) -> str:
     """The CSV path shown in messages: next to the layout file as the user named it."""
     if os.path.isabs(csv_name):
@@ -358,10 +369,10 @@ def influent_csv_path(layout_path: str | os.PathLike, csv_name: str) -> str:
     return os.path.join(os.path.dirname(os.path.abspath(layout_path)), csv_name)
 
 
-def _from_csv(col: Collector, csv_name: str, n: int, base_dir: str | None, frac):
+def _from_csv(col: Collector, csv_name: str, n: int, base_dir: str | None, frac, key: str = "influent.csv"):
     shown = csv_display_path(col.file, base_dir, csv_name)
     if base_dir is None:
-        col.error("influent.csv", "a CSV influent needs the layout's folder", csv_name,
+        col.error(key, "a CSV influent needs the layout's folder", csv_name,
                   "load the layout from a file, or pass base_dir")
         return None
     full = csv_name if os.path.isabs(csv_name) else os.path.join(str(base_dir), csv_name)
@@ -369,7 +380,7 @@ def _from_csv(col: Collector, csv_name: str, n: int, base_dir: str | None, frac)
         raw = read_input_file(full, MAX_CSV_BYTES, "the influent CSV")
     except UnreadableInput as exc:
         if exc.problem.startswith("cannot read") and exc.got is None:
-            col.error("influent.csv", exc.problem, csv_name, "an existing file relative to the layout's folder")
+            col.error(key, exc.problem, csv_name, "an existing file relative to the layout's folder")
         else:
             col.error("(file)", exc.problem, exc.got, exc.expected, file=shown)
         return None

@@ -18,7 +18,7 @@ from airtaper import units
 from airtaper.errors import InputError, Problem
 from airtaper.layout import defaults as D
 from airtaper.layout import graph
-from airtaper.layout.influent import csv_display_path, read_influent
+from airtaper.layout.influent import csv_display_path, read_day_influent, read_influent
 from airtaper.physics.atmosphere import barometric_pressure_kPa
 from airtaper.physics.blower import efficiency_from_power, equivalent_curve, power_curve_problems
 from airtaper.layout.reader import (
@@ -26,8 +26,8 @@ from airtaper.layout.reader import (
     valid_id,
 )
 from airtaper.layout.types import (
-    Blower, Clarifier, DiffuserGrid, DiffuserType, EfficiencyPoint, Header, HeadlossPoint,
-    Horizon, Influent, InletAir, Kinetics, Layout, Limits, Operation, Plant, PowerPoint, Recycle, ReturnSludge, Settling,
+    Blower, Capital, Clarifier, DiffuserGrid, DiffuserType, EfficiencyPoint, Header, HeadlossPoint,
+    Horizon, Influent, InletAir, Kinetics, Layout, Limits, LoadDay, Operation, Plant, PowerPoint, Recycle, ReturnSludge, Settling,
     SotePoint, StepFeed, Tariff, Wasting, Zone,
     RangePoint,
 )
@@ -200,6 +200,8 @@ class _Parser:
         header = self.section(root.table("header"), self.header, blowers)
         tariff = self.section(root.table("tariff"), self.tariff)
         operation = self.section(root.table("operation"), self.operation, "tariff" in root.data)
+        capital = self.section(root.table("capital"), self.capital, "tariff" in root.data)
+        load_days = self.load_days(plant, zones, influent, flows, limits)
         root.finish()
 
         valid_zones = [z for z in zones if z is not None]
@@ -212,6 +214,7 @@ class _Parser:
             step_feed=tuple(step_feed), recycles=tuple(recycles), return_sludge=ras, wasting=wasting,
             clarifier=clarifier, blowers=tuple(blowers), header=header, inlet_air=inlet, influent=influent,
             limits=limits, tariff=tariff, horizon=horizon, kinetics=kinetics, operation=operation, notes=notes,
+            load_days=load_days, capital=capital,
         )
 
     # -- sections ----------------------------------------------------------------
@@ -444,6 +447,7 @@ class _Parser:
         type_id = t.string("type")
         count = t.integer("count", ge=1, le=10_000_000)
         sub = t.number("submergence_m", gt=0.0)
+        step = t.integer("count_step", D.GRID_COUNT_STEP, ge=1, le=10_000_000)
         if isinstance(type_id, str) and type_id not in self.declared_types:
             hint = did_you_mean(type_id, sorted(self.declared_types))
             problem = f"no such diffuser type, did you mean {hint!r}?" if hint else "no such diffuser type"
@@ -455,7 +459,7 @@ class _Parser:
                            sub, f"< depth_m = {depth:g}")
         elif sub is not None and depth is not None and depth - sub > D.WARN_GRID_ABOVE_FLOOR_m:
             self.col.warn(t.key("submergence_m"), f"grid sits {fixed(depth - sub, 2)} m above the floor")
-        return DiffuserGrid(type_id, count, sub)
+        return DiffuserGrid(type_id, count, sub, step)
 
     def clarifier(self, t: Table | None) -> Clarifier:
         if t is None:
@@ -800,6 +804,114 @@ class _Parser:
             self.col.error(t.key("objective"), "a cost objective needs a [tariff]", obj, '"energy", or add [tariff]')
         w = t.number("smoothing_weight", D.SMOOTHING_WEIGHT, ge=0.0)
         return Operation(sp, obj, w)
+
+    # -- design: capital costs and load days --------------------------------------
+    def capital(self, t: Table | None, has_tariff: bool) -> Capital | None:
+        if t is None:
+            return None
+        per_diffuser = t.number("cost_per_diffuser", ge=0.0)
+        per_zone = t.number("cost_per_zone", D.COST_PER_ZONE, ge=0.0)
+        rate = None
+        raw = t.raw("interest_rate")
+        if is_number(raw) and D.INTEREST_RATE_MAX < raw <= 100.0:
+            self.col.error(t.key("interest_rate"), f"interest rate {raw:g}: was it typed in percent?", raw,
+                           f"a fraction ({raw / 100.0:g} for {raw:g} %)")
+        else:
+            rate = t.number("interest_rate", D.INTEREST_RATE, ge=0.0, le=D.INTEREST_RATE_MAX)
+        life = t.number("life_years", D.GRID_LIFE_YEARS, gt=0.0, le=100.0)
+        if not has_tariff:
+            self.col.error(t.path, "capital costs are weighed against the energy bill, which needs prices", None,
+                           "a [tariff] (its currency and price_per_kWh) as well")
+        return Capital(per_diffuser, per_zone, rate, life)
+
+    def load_days(self, plant, zones, influent, flows, limits) -> tuple[LoadDay, ...]:
+        arr = self.root.array("load_days")
+        if arr is not None and not arr:
+            self.col.error("load_days", "empty", None, "at least one [[load_days]] table, or none at all")
+        items = self._items_of(arr, "load_days")
+        days = []
+        for t, ident in items:
+            day = self.section(t, self.load_day, ident, zones, influent, flows, limits)
+            if day is not None and ident is not None:
+                days.append(day)
+        if days and len(days) == len(items):
+            total = sum(d.days_per_year for d in days)
+            if abs(total - D.DAYS_PER_YEAR) > D.WARN_LOAD_DAYS_YEAR_TOLERANCE:
+                self.col.warn("load_days", f"the days stand for {total:g} days, not a year ({D.DAYS_PER_YEAR:g}): "
+                                           "annual sums scale with their weights")
+        return tuple(days)
+
+    def _factor(self, t: Table, name: str, default: float):
+        raw = t.raw(name)
+        if is_number(raw) and D.LOAD_DAY_FACTOR_MAX < raw <= 1000.0:
+            self.col.error(t.key(name), f"factor {raw:g}: was it typed in percent?", raw,
+                           f"a factor ({raw / 100.0:g} for {raw:g} %)")
+            return None
+        return t.number(name, default, gt=0.0, le=D.LOAD_DAY_FACTOR_MAX)
+
+    def load_day(self, t: Table, ident, zones, influent, flows, limits) -> LoadDay | None:
+        col = self.col
+        basis = t.string("basis", None, choices=tuple(D.LOAD_DAY_BASES))
+        weight = t.number("days_per_year", gt=0.0, le=366.0)
+        base_flow, base_load = D.LOAD_DAY_BASES.get(basis, (D.LOAD_DAY_FACTOR, D.LOAD_DAY_FACTOR))
+        csv_name = t.raw("influent_csv")
+        own = None
+        if csv_name is not None:
+            for k in ("flow_factor", "load_factor"):
+                t.allow(k)
+                if k in t.data:
+                    col.error(t.key(k), "scales the base profile, and this day has its own influent_csv", None,
+                              "influent_csv alone, or flow_factor / load_factor alone")
+            flow_f = load_f = 1.0
+            own = read_day_influent(col, t.key("influent_csv"), csv_name, self.n, self.base_dir,
+                                    influent.fractionation if influent is not None else None)
+        else:
+            flow_f = self._factor(t, "flow_factor", base_flow)
+            load_f = self._factor(t, "load_factor", base_load)
+        water = t.per_period("water_temperature_C", self.n, None, ge=0.0, le=45.0)
+        if basis in D.LOAD_DAY_BASES_NEEDING_TEMPERATURE and not t.has("water_temperature_C"):
+            col.error(t.key("water_temperature_C"), f"a {basis} day needs its own water temperature", None,
+                      "a number, or one per period, in degC")
+        if water is not None:
+            lo, hi = D.WARN_WATER_TEMPERATURE_C
+            odd = [x for x in water if not lo <= x <= hi]
+            if odd:
+                col.warn(t.key("water_temperature_C"),
+                         f"water temperature {odd[0]:g} C is outside the usual {lo:g}-{hi:g} C")
+        air = t.per_period("air_temperature_C", self.n, None, ge=-50.0, le=60.0)
+        alpha_f = t.number("alpha_factor", D.LOAD_DAY_ALPHA_FACTOR, gt=0.0, le=2.0)
+        top = _ZONE_NUMBER_BOUNDS["alpha"]["le"]
+        if alpha_f is not None:
+            for z in zones:
+                if z is not None and z.alpha * alpha_f > top:
+                    col.error(t.key("alpha_factor"), f"makes zone {z.id}'s alpha {z.alpha * alpha_f:.3g}, above "
+                                                     f"{top:g}", alpha_f, f"<= {fixed(top / z.alpha, 3)}")
+                    break
+        lim_t = t.table("limits")
+        day_limits = limits
+        if lim_t is not None:
+            day_limits = self.section(lim_t, self.day_limits, limits)
+        wasting = flows[3]
+        if (wasting is not None and wasting.flow_m3_d is not None and influent is not None and flow_f is not None
+                and (csv_name is None or own is not None)):
+            q = own.flow_m3_d if own is not None else tuple(flow_f * x for x in influent.flow_m3_d)
+            bad = [p for p in range(self.n) if wasting.flow_m3_d[p] >= q[p]]
+            if bad:
+                col.error(t.key("influent_csv" if own is not None else "flow_factor"),
+                          f"the day's influent flow is not above the waste flow (period {bad[0] + 1})",
+                          round(q[bad[0]], 1), f"> flows.waste.flow_m3_d = {wasting.flow_m3_d[bad[0]]:g} m3/d")
+        return LoadDay(ident, weight, basis, flow_f, load_f, own, water, air, alpha_f, day_limits)
+
+    def day_limits(self, t: Table, limits: Limits | None) -> Limits | None:
+        given = {k: t.number(k, None, gt=0.0) for k in ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L")}
+        if limits is None:
+            return None
+        merged = Limits(**{k: (v if v is not None else getattr(limits, k)) for k, v in given.items()})
+        if (merged.nh4_mean_mg_L is not None and merged.nh4_max_mg_L is not None
+                and merged.nh4_max_mg_L < merged.nh4_mean_mg_L):
+            self.col.error(t.key("nh4_max_mg_L"), "the maximum period mean must not be below the daily mean",
+                           merged.nh4_max_mg_L, f">= nh4_mean_mg_L = {merged.nh4_mean_mg_L:g}")
+        return merged
 
     # -- checks across sections --------------------------------------------------
     def cross_checks(self, plant, zones: list[Zone], n_zones: int, types: dict, blowers, header, influent, flows,

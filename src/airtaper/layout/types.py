@@ -59,6 +59,7 @@ class DiffuserGrid:
     type_id: str
     count: int
     submergence_m: float
+    count_step: int = 1  # whole increment of the count a design may choose (a row or module of diffusers)
 
 
 @dataclass(frozen=True)
@@ -270,6 +271,40 @@ class Horizon:
 
 
 @dataclass(frozen=True)
+class LoadDay:
+    """One named day of the year the plant must treat, and how many days of the year it stands for.
+
+    The day's influent is either its own profile (``influent``) or the layout's base
+    profile with its flow times ``flow_factor`` and its loads (COD, TSS, nitrogen)
+    times ``load_factor``, so that concentrations scale by ``load_factor / flow_factor``.
+    ``None`` in a per-period field means the layout's own value. ``limits`` is the
+    layout's limits with the day's changes applied. See
+    :func:`airtaper.layout.loaddays.day_layout`, which gives the Layout of one day.
+    """
+
+    id: str
+    days_per_year: float  # weight of the day in annual sums
+    basis: str | None  # the named day of defaults.LOAD_DAY_BASES the factors started from, as given
+    flow_factor: float
+    load_factor: float
+    influent: Influent | None  # own profile (then both factors are 1)
+    water_temperature_C: tuple[float, ...] | None
+    air_temperature_C: tuple[float, ...] | None
+    alpha_factor: float  # multiplies every zone's alpha
+    limits: "Limits"
+
+
+@dataclass(frozen=True)
+class Capital:
+    """Diffuser-grid capital costs, in the tariff's currency, for design studies."""
+
+    cost_per_diffuser: float  # supplied and installed, one diffuser
+    cost_per_zone: float  # fixed cost of installing a grid in one zone (pipework, drop leg, valve)
+    interest_rate: float  # per year, as a fraction (0.05 = 5 %)
+    life_years: float  # economic life of the grid
+
+
+@dataclass(frozen=True)
 class Kinetics:
     parameter_set: str  # "asm1_20C" or "bsm1_15C"
     overrides: tuple[tuple[str, float], ...]  # (name, value) pairs
@@ -315,6 +350,8 @@ class Layout:
     kinetics: Kinetics
     operation: Operation
     notes: str = field(default="")
+    load_days: tuple[LoadDay, ...] = ()  # empty: the base profile stands for every day of the year
+    capital: Capital | None = None
 
     def zone(self, zone_id: str) -> Zone:
         for z in self.zones:

@@ -58,6 +58,7 @@ from __future__ import annotations
 
 import pyomo.environ as pyo
 
+from airtaper.model.discretisation import StepSlice, time_balance
 from airtaper.physics import settling as settling_physics
 from airtaper.physics.backend import smooth_max
 from airtaper.process.stoichiometry import PARTICULATES, SOLIDS_COD
@@ -192,9 +193,7 @@ def _settler_rhs_rule(m, t, layer, c):
 
 def _settler_layer_balance_rule(m, t, layer, c):
     """Mass balance of component ``c`` in one settler layer (bulk flow + settling = accumulation)."""
-    from airtaper.model.train import _Slice, time_balance
-
-    return time_balance(m, t, _Slice(m.settler_conc, layer, c), _Slice(m.settler_rhs, layer, c))
+    return time_balance(m, t, StepSlice(m.settler_conc, layer, c), StepSlice(m.settler_rhs, layer, c))
 
 
 def _layered_effluent_rule(m, t, c):

@@ -10,8 +10,8 @@ import time
 from dataclasses import dataclass
 
 from airtaper.errors import ModelError
-from airtaper.model.initialise import InitReport, initialise_cyclic, initialise_steady
-from airtaper.model.scaling import apply_scaling
+from airtaper.model.initial_point import InitReport, initialise_cyclic, initialise_steady
+from airtaper.model.state_scaling import apply_scaling
 from airtaper.model.structure import StructureReport, check_square
 
 #: Ipopt options for square (simulation) solves. Common practice (no source).
@@ -38,8 +38,8 @@ def solve_square(m, solve, *, initialise: bool = True, steady=None, options: dic
         ``solve(model, options) -> result`` with a ``result.ok`` flag (e.g.
         :func:`airtaper.solve.ipopt.solve_nlp`).
     initialise : bool
-        Run :func:`~airtaper.model.initialise.initialise_steady` (steady model) or
-        :func:`~airtaper.model.initialise.initialise_cyclic` (cyclic model) first;
+        Run :func:`~airtaper.model.initial_point.initialise_steady` (steady model) or
+        :func:`~airtaper.model.initial_point.initialise_cyclic` (cyclic model) first;
         False starts from the model's current values.
     steady : model, optional
         For a cyclic model, a solved steady model at mean load to start from.

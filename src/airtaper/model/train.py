@@ -19,7 +19,7 @@ reported oxygen transfer in kg O2/h. The cyclic day has ``n_periods *
 steps_per_period`` steps of length ``h = period_h / steps_per_period`` (d inside
 the balances); the time points ``t = 1..N`` are the collocation points of the
 steps (Radau IIA: 2 or 3 per step, the last at the step end) or the step ends
-(backward Euler, BDF2), see :func:`time_balance`. Influent, temperature, flows and
+(backward Euler, BDF2), see :func:`~airtaper.model.discretisation.time_balance`. Influent, temperature, flows and
 airflow hold over each period. Points wrap around the day (the step before the
 first is the last), which is the periodic condition ``x(0) = x(24 h)`` with no
 extra variables or equations. In a steady model there is one point and the time
@@ -56,6 +56,7 @@ from airtaper.layout.types import ASM1_COMPONENTS, Layout
 from airtaper.model.asm1_rates import asm1_process_rates
 from airtaper.model.clarifier import attach_ideal_separator, attach_layered_settler
 from airtaper.model.data import FixedAeration, GridAeration, TrainData, mean_load, single_period, train_data
+from airtaper.model.discretisation import StepSlice, time_balance
 from airtaper.physics.transfer import field_kla_per_h
 from airtaper.process.stoichiometry import PARTICULATES, PROCESSES, SOLIDS_COD, n_composition
 
@@ -293,43 +294,9 @@ def _zone_rhs_rule(m, t, z, c):
     return zone_rhs(m, t, m.period_of_step[t], z, c, {j: m.rate[t, z, j] for j in PROCESSES})
 
 
-def time_balance(m, t, state, rhs):
-    """The time-discretised balance of one state at time point t (see the module notes).
-
-    ``state[t]`` and ``rhs[t]`` indexable by time point. Steady: ``rhs = 0``. Radau IIA
-    collocation, stage k of a step of length h starting at point s:
-    ``(x_t - x_s) / h = sum_j A[k, j] rhs_j`` over the points j of the step. Backward
-    Euler: ``(x_t - x_t-1) / h = rhs_t``; BDF2: ``(3/2 x_t - 2 x_t-1 + 1/2 x_t-2) / h = rhs_t``.
-    Points wrap around the periodic day.
-    """
-    if m.steady:
-        return rhs[t] == 0.0
-    if m.scheme == "bdf2":
-        prev = m.prev_step[t]
-        acc = (1.5 * state[t] - 2.0 * state[prev] + 0.5 * state[m.prev_step[prev]]) / m.dt_d
-        return rhs[t] - acc == 0.0
-    row = m.collocation_matrix[m.stage_of_point[t]]
-    acc = (state[t] - state[m.step_start[t]]) / m.dt_d
-    if len(row) == 1:
-        return rhs[t] - acc == 0.0
-    return sum(w * rhs[j] for w, j in zip(row, m.step_points[t])) - acc == 0.0
-
-
 def _zone_mass_balance_rule(m, t, z, c):
     """Completely mixed zone: inflows - outflow + reactions (+ aeration for SO) = accumulation."""
-    return time_balance(m, t, _Slice(m.conc, z, c), _Slice(m.zone_rhs, z, c))
-
-
-class _Slice:
-    """``obj[t, *rest]`` seen as a sequence indexed by the step only."""
-
-    __slots__ = ("obj", "rest")
-
-    def __init__(self, obj, *rest):
-        self.obj, self.rest = obj, rest
-
-    def __getitem__(self, t):
-        return self.obj[(t,) + self.rest]
+    return time_balance(m, t, StepSlice(m.conc, z, c), StepSlice(m.zone_rhs, z, c))
 
 
 def attach_zone_states(m, data: TrainData) -> None:

@@ -91,7 +91,7 @@ def _keep_band_open(layout, values) -> None:
 
 
 def hold_do(study, verify, progress=None) -> dict:
-    """Back-off rounds on a solved :class:`~airtaper.optimize.study.DiurnalOptimisation`.
+    """Back-off rounds on a solved :class:`~airtaper.optimize.diurnal.DiurnalOptimisation`.
 
     ``verify()`` re-simulates the current schedule and returns ``(verification dict,
     SimDay)``. Returns ``{"verification", "rounds", "backoff_mg_L", "backoff_max_mg_L",

@@ -5,7 +5,7 @@ Every aerated zone with diffusers is held at one DO setpoint (the layout's
 range clips it) by the simulator's ideal DO control; the simulator returns the
 airflow that control needs at every step, and the blower energy and cost follow
 from :class:`~airtaper.optimize.airside.AirSide` step by step. Its figures are
-compared with the same limits as the optimum (:mod:`airtaper.optimize.figures`).
+compared with the same limits as the optimum (:mod:`airtaper.optimize.compliance`).
 A setpoint the control cannot hold (the zone at full air below it) is simulated at
 full air and listed with its zone and hours (``setpoint_not_held``).
 
@@ -26,7 +26,7 @@ import numpy as np
 import pandas as pd
 
 from airtaper.layout.types import Layout
-from airtaper.optimize.figures import violations
+from airtaper.optimize.compliance import violations
 from airtaper.optimize.simday import SimDay, simulate_day
 
 

@@ -33,7 +33,7 @@ from __future__ import annotations
 
 import pyomo.environ as pyo
 
-from airtaper.optimize.figures import clock
+from airtaper.optimize.compliance import clock
 from airtaper.optimize.problem import active_limit_groups, fix_slacks, free_slacks, point_weights
 
 #: Penalty per unit slack (fraction of the limit, or kPa) of equipment limits, in
@@ -184,7 +184,7 @@ def findings(m) -> list[dict]:
                 if g.index == "scalar":
                     start, end = 0.0, 24.0
                 elif g.index == "zone_step":
-                    k = getattr(m, "points_per_step", 1)
+                    k = m.points_per_step
                     start, end = ((first - 1) // k) * step_h, ((last - 1) // k + 1) * step_h
                 else:
                     start, end = (first - 1) * period_h, last * period_h

@@ -42,15 +42,22 @@ def _mapper(old: int, new: int):
     raise ModelError(f"cannot map {old} periods onto {new}: one must divide the other")
 
 
+def _influent(inf, f):
+    q = inf.flow_m3_d
+    return replace(inf, flow_m3_d=f(q), **{c: f(getattr(inf, c), q) for c in _CONCENTRATIONS},
+                   asm1_mg_L=None if inf.asm1_mg_L is None else tuple(
+                       zip(*[f(col, q) for col in zip(*inf.asm1_mg_L)])))
+
+
 def with_periods(layout: Layout, n_periods: int, steps_per_period: int | None = None) -> Layout:
     """``layout`` on a grid of ``n_periods`` periods per day (see module notes)."""
     old = layout.horizon.n_periods
     f = _mapper(old, n_periods)
-    inf = layout.influent
-    q = inf.flow_m3_d
-    influent = replace(inf, flow_m3_d=f(q), **{c: f(getattr(inf, c), q) for c in _CONCENTRATIONS},
-                       asm1_mg_L=None if inf.asm1_mg_L is None else tuple(
-                           zip(*[f(col, q) for col in zip(*inf.asm1_mg_L)])))
+    influent = _influent(layout.influent, f)
+    days = tuple(replace(
+        d, influent=None if d.influent is None else _influent(d.influent, f),
+        water_temperature_C=None if d.water_temperature_C is None else f(d.water_temperature_C),
+        air_temperature_C=None if d.air_temperature_C is None else f(d.air_temperature_C)) for d in layout.load_days)
     tariff = layout.tariff
     if tariff is not None:
         tariff = replace(tariff, price_per_kWh=f(tariff.price_per_kWh))
@@ -67,6 +74,7 @@ def with_periods(layout: Layout, n_periods: int, steps_per_period: int | None = 
         wasting=wasting,
         inlet_air=replace(layout.inlet_air, temperature_C=f(layout.inlet_air.temperature_C)),
         tariff=tariff,
+        load_days=days,
         horizon=replace(layout.horizon, n_periods=int(n_periods), period_h=24.0 / n_periods, steps_per_period=spp),
     )
 

@@ -135,14 +135,4 @@ def marginal_costs(m, result, *, energy_kWh_per_day: float, cost_per_day: float 
     return out
 
 
-def marginal_lines(entries: list[dict], currency: str = "") -> list[str]:
-    """Plain-text lines for the console."""
-    lines = []
-    for e in entries:
-        kwh = "-" if e["kWh_per_day"] is None else f"{e['kWh_per_day']:+.1f} kWh/d"
-        cost = "" if e["cost_per_day"] is None else f", {e['cost_per_day']:+.2f} {currency}/d"
-        lines.append(f"{e['limit']:<14} {e['where']:<9} {kwh}{cost} {e['per']}")
-    return lines
-
-
-__all__ = ["PARAMETER_STEP", "STEP_mg_L", "marginal_costs", "marginal_lines", "parameter_sensitivity", "raw_derivatives"]
+__all__ = ["PARAMETER_STEP", "STEP_mg_L", "marginal_costs", "parameter_sensitivity", "raw_derivatives"]

@@ -47,7 +47,7 @@ import numpy as np
 
 from airtaper.layout.types import Layout
 from airtaper.optimize.airside import AirSide
-from airtaper.optimize.figures import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE
+from airtaper.optimize.compliance import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE
 from airtaper.simulate.aeration import zone_transfer
 from airtaper.simulate.steady import SteadyStateError
 from airtaper.simulate.summary import period_runs, span_text

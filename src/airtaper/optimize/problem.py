@@ -118,10 +118,6 @@ def settings_for(layout: Layout, reference: float, *, objective: str | None = No
 
 
 # --- helpers read by rules ----------------------------------------------------------------
-def _zone(m, z):
-    return m.opt.layout.zone(z)
-
-
 def _kla_on_diffusers(m, z, p):
     """Field kLa (1/d) of a diffused zone with the diffuser count as the Param ``diffuser_count[z]``."""
     a: GridAeration = m.aeration[z]
@@ -140,11 +136,7 @@ def steps_of_period(m, p) -> list[int]:
 
 def point_weights(m) -> dict:
     """Quadrature weight of every time point as a fraction of the day (sum 1)."""
-    w = getattr(m, "point_weight", None)
-    if w is None:  # a one-point-per-step scheme without weights: equal steps
-        n = len(m.STEPS)
-        return {t: 1.0 / n for t in m.STEPS}
-    return {t: float(w[t]) for t in m.STEPS}
+    return {t: float(m.point_weight[t]) for t in m.STEPS}
 
 
 def effluent_weights(m) -> dict:
@@ -220,15 +212,13 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
 
     # --- decisions ------------------------------------------------------------------------
     b.diffuser_count = pyo.Param(b.ZONES, mutable=True, initialize={z: float(layout.zone(z).grid.count) for z in grid})
-    for z in grid:
-        lo, hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))
+    for z in grid:  # every airflow has a value: the model fixes each one when it is built
+        hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))[1]
         for p in P:
             v = m.airflow_Sm3_h[z, p]
             v.unfix()
             v.setlb(0.0)
             v.setub(AIRFLOW_BOX_FACTOR * hi)
-            if v.value is None:
-                v.set_value(0.5 * (lo + hi))
     for z in grid:  # kLa on the diffuser-count parameter
         for p in P:
             m.kla_per_d[z, p].set_value(_kla_on_diffusers(m, z, p))

@@ -3,7 +3,7 @@
 :func:`simulate_day` runs :func:`airtaper.simulate.periodic` (under an airflow
 schedule or ideal DO control) and returns a :class:`SimDay`: per-step airflow and
 DO of every zone, effluent NH4-N, TN and flow, the compliance figures of
-:mod:`airtaper.optimize.figures`, and the blower power, energy and cost of the day
+:mod:`airtaper.optimize.compliance`, and the blower power, energy and cost of the day
 from :class:`~airtaper.optimize.airside.AirSide` at every output step.
 
 The compliance figures and the energy integrate the simulated day, not samples of
@@ -32,7 +32,7 @@ import pandas as pd
 
 from airtaper.layout.types import ASM1_COMPONENTS, Layout
 from airtaper.optimize.airside import AirSide
-from airtaper.optimize.figures import day_figures
+from airtaper.optimize.compliance import day_figures
 from airtaper.simulate.summary import setpoint_shortfalls
 
 

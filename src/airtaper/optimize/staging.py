@@ -38,7 +38,7 @@ import pyomo.environ as pyo
 from airtaper.layout.types import Layout
 from airtaper.optimize.airside import AirSide
 from airtaper.optimize.dispatch import Bill, Dispatch, evaluate, machines_of, set_lines, solve_dispatch, swing_states
-from airtaper.optimize.initialise import Rung
+from airtaper.optimize.attempts import Rung
 from airtaper.optimize.problem import max_power_line_kW, set_power_lines, set_swing_states
 from airtaper.physics.blower import blower_power_kW
 

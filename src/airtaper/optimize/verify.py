@@ -9,7 +9,7 @@ tolerance tightened to :data:`DAY_REPEAT_TOL` (its default is 1e-3) so that a st
 near the periodic state cannot stop after one day on a slow drift. On the demo this
 takes 2 simulated days (about 1 s) instead of 13 from the mean-load steady state, and
 the two agree within 0.3 % on the effluent means. Rule
-(:mod:`airtaper.optimize.figures`): the result is **verified** unless the simulated
+(:mod:`airtaper.optimize.compliance`): the result is **verified** unless the simulated
 day breaks an effluent limit by more than 2 % of the limit, or a zone's DO range
 by more than 0.05 mg/L.
 
@@ -22,7 +22,7 @@ are reported as they are, negative when the DO leaves its range.
 from __future__ import annotations
 
 from airtaper.layout.types import Layout
-from airtaper.optimize.figures import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE, violations
+from airtaper.optimize.compliance import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE, violations
 from airtaper.optimize.simday import simulate_day
 
 _KEYS = ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L")

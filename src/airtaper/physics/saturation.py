@@ -153,15 +153,9 @@ def do_sat_mg_L(temperature_C, pressure_kPa, salinity_g_kg=0.0):
     return c_1atm * salinity_factor(temperature_C, salinity_g_kg) * pressure_factor(temperature_C, pressure_kPa)
 
 
-def ln_do_sat_1atm(temperature_C):
-    """Natural log of :func:`do_sat_1atm_mg_L` (ln of mg/L); Benson & Krause (1984) eq. 32."""
-    return _ln_do_sat_1atm(temperature_C)
-
-
 __all__ = [
     "do_sat_1atm_mg_L",
     "do_sat_mg_L",
-    "ln_do_sat_1atm",
     "pressure_factor",
     "salinity_factor",
     "theta0_per_atm",

@@ -96,11 +96,6 @@ class ASM1Parameters:
     theta: Mapping[str, float] = field(default_factory=dict)
     source: str = ""
 
-    def as_dict(self) -> dict[str, float]:
-        """Numeric parameters by name (no name, theta or source)."""
-        return {f.name: getattr(self, f.name) for f in dataclasses.fields(self)
-                if f.name not in ("name", "theta", "source")}
-
 
 #: Names that a layout's ``kinetics`` overrides may set.
 PARAMETER_NAMES: tuple[str, ...] = tuple(

@@ -178,11 +178,3 @@ def tss_composition(tss_per_cod: float) -> np.ndarray:
     for name in SOLIDS_COD:
         v[IDX[name]] = tss_per_cod
     return v
-
-
-def particulate_mask() -> np.ndarray:
-    """Boolean (13,), True for the settling components."""
-    m = np.zeros(N_COMPONENTS, dtype=bool)
-    for name in PARTICULATES:
-        m[IDX[name]] = True
-    return m

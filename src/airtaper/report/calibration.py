@@ -23,7 +23,7 @@ from pathlib import Path
 import numpy as np
 
 from airtaper.layout.overrides import overrides_to_toml
-from airtaper.optimize.study import _jsonable
+from airtaper.optimize.diurnal import _jsonable
 from airtaper.report.atomic import write_bytes_atomic, write_csv_atomic, write_json_atomic, write_text_atomic
 
 CAUTION = (

@@ -79,10 +79,3 @@ def process_rates(c: np.ndarray, p: ASM1Parameters) -> np.ndarray:
     return rho
 
 
-def reaction_rates(c: np.ndarray, p: ASM1Parameters, nu_T: np.ndarray) -> np.ndarray:
-    """Conversion rates of the 13 components, shape like ``c``: ``nu.T @ rho``.
-
-    ``nu_T`` is the transposed Petersen matrix (13, 8).
-    """
-    rho = process_rates(c, p)
-    return np.tensordot(nu_T, rho, axes=(1, 0))

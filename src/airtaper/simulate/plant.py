@@ -53,10 +53,6 @@ class Inputs:
     airflow_Sm3_h: np.ndarray  # scheduled airflow (MODE_FIXED diffused zones), else 0
     tables: tuple[TransferTable | None, ...] = field(default=())
 
-    @property
-    def q_clarifier_feed(self) -> float:
-        return float(self.q_forward[-1])
-
 
 def _network(layout, q_inf: float, recycle_flows: list[float], q_return: float, k: int | None):
     nz = len(layout.zones)

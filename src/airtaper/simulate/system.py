@@ -65,7 +65,6 @@ from airtaper.simulate.plant import MODE_DO, Inputs, PlantData
 NC = len(ASM1_COMPONENTS)
 PART = np.array([IDX[k] for k in PARTICULATES])
 COD_PART = np.array([IDX[k] for k in SOLIDS_COD])
-SOL = np.array([i for i in range(NC) if i not in set(PART.tolist())])
 SO = IDX["SO"]
 #: Time constant of the ideal DO control response, d (1 minute).
 TAU_DO_d = 1.0 / 1440.0

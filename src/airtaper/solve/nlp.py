@@ -394,10 +394,6 @@ class EvaluatorView:
         else:
             self.full.x[self.free] = x
 
-    def full_x(self) -> np.ndarray:
-        """The point of the last call, over all columns (free and fixed)."""
-        return self.full.x
-
     def objective(self, x) -> float:
         self.set_x(x)
         call = self.full._f

@@ -57,7 +57,6 @@ UNARY_NAMES = (
 )
 UNARY_BASE = 32
 UNARY_CODE = {name: UNARY_BASE + i for i, name in enumerate(UNARY_NAMES)}
-BINARY_CODES = (MUL, DIV, POW, FMAX, FMIN, LE, LT, EQ, AND)
 
 _MATH = {
     "exp": math.exp, "log": math.log, "log10": math.log10, "sqrt": math.sqrt,

@@ -3,7 +3,7 @@ import json
 import numpy as np
 import pandas as pd
 
-from airtaper.report.study import CAUTION, OUTPUT_NAMES, console_summary, write_study_outputs
+from airtaper.report.study_files import CAUTION, OUTPUT_NAMES, console_summary, write_study_outputs
 
 
 def _tables(n_periods=4, zones=("Z2", "Z3")):

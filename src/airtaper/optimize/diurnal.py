@@ -5,16 +5,16 @@
 1. **baseline** - uniform DO-setpoint control simulated by the independent simulator
    (:mod:`airtaper.optimize.baseline`);
 2. **build** - the cyclic model (:func:`airtaper.model.train.build_cyclic_model`),
-   started from the baseline (:mod:`airtaper.optimize.initialise`), with the
+   started from the baseline (:mod:`airtaper.optimize.attempts`), with the
    decisions, limits and objective attached (:mod:`airtaper.optimize.problem`) and
-   scaled (:mod:`airtaper.optimize.scaling`);
+   scaled (:mod:`airtaper.optimize.gradient_scaling`);
 3. **solve** - Ipopt through the bridge, down the retry ladder on failure; when every
    rung fails, the elastic solve (:mod:`airtaper.optimize.elastic`) says which limit
    cannot be met (exit code 3);
 4. **verify** - the schedule re-simulated (:mod:`airtaper.optimize.verify`; exit
    code 4 when it breaks a limit beyond the tolerances);
 5. **marginal costs** from the duals (:mod:`airtaper.optimize.marginal`);
-6. the tables and the summary for :func:`airtaper.report.study.write_study_outputs`.
+6. the tables and the summary for :func:`airtaper.report.study_files.write_study_outputs`.
 
 :class:`DiurnalOptimisation` keeps the built model so that limits can be moved and
 the problem re-solved warm (tests, sensitivity studies).
@@ -35,13 +35,13 @@ from airtaper.model.train import build_cyclic_model
 from airtaper.optimize import elastic as _elastic
 from airtaper.optimize.backoff import hold_do
 from airtaper.optimize.baseline import Baseline, complying_baseline, run_baseline
-from airtaper.optimize.figures import day_figures
-from airtaper.optimize.initialise import BASE_OPTIONS, LADDER, Rung, point_hours, start_airflow, start_from_day
+from airtaper.optimize.compliance import day_figures
+from airtaper.optimize.attempts import BASE_OPTIONS, LADDER, Rung, point_hours, start_airflow, start_from_day
 from airtaper.optimize.marginal import marginal_costs
 from airtaper.optimize.problem import attach_problem, fix_slacks, max_power_line_kW, point_weights, settings_for
 from airtaper.optimize.prescreen import outside_tested_range, prescreen
 from airtaper.optimize.progress import Progress, Silent
-from airtaper.optimize.scaling import apply_scaling
+from airtaper.optimize.gradient_scaling import apply_scaling
 from airtaper.optimize.staging import (day_dispatch, dispatch_summary, dispatch_table, feasibility_check,
                                        final_dispatch, run_staging)
 from airtaper.optimize.verify import verify_day

@@ -31,7 +31,7 @@ import numpy as np
 
 from airtaper.errors import ModelError, NoSteadyStateError
 from airtaper.layout.types import ASM1_COMPONENTS
-from airtaper.model.initialise import initialise_cyclic
+from airtaper.model.initial_point import initialise_cyclic
 from airtaper.optimize.simday import SimDay
 
 
@@ -74,10 +74,7 @@ def start_airflow(m, day: SimDay, factor: float = 1.0) -> dict:
 
 def point_hours(m) -> dict:
     """Time of day of every model time point, h."""
-    hours = getattr(m, "point_hour", None)
-    if hours is None:
-        return {t: t * m.step_hours for t in m.STEPS}
-    return dict(hours)
+    return dict(m.point_hour)
 
 
 def start_from_day(m, day: SimDay, airflow: dict) -> None:
@@ -109,9 +106,8 @@ def start_from_day(m, day: SimDay, airflow: dict) -> None:
                 v = m.conc[t, z, c]
                 if not v.fixed:
                     v.set_value(max(float(state[i, index[c]]), 0.0), skip_validation=True)
-    waste = day.extra.get("waste_m3_d")
-    if waste is not None and not m.waste_m3_d[1].fixed:
-        mean = float(np.mean(waste))
+    if not m.waste_m3_d[1].fixed:  # a target SRT: the waste flow is a variable
+        mean = float(np.mean(day.extra["waste_m3_d"]))
         for p in m.PERIODS:
             m.waste_m3_d[p].set_value(mean)
 
@@ -120,7 +116,7 @@ def simulated_steady_start(layout, airflow: dict) -> tuple[dict, dict | None]:
     """The simulator's steady state at each zone's daily-mean airflow, as a start for the model.
 
     Returns ``({"zones": {zone_id: 13 components}, "layers": (layers, 13) or None, "waste_m3_d"},
-    clarifier)``: the start (:func:`airtaper.model.initialise.set_start_state`) and the layered
+    clarifier)``: the start (:func:`airtaper.model.initial_point.set_start_state`) and the layered
     clarifier's check at that state (None for an ideal separator).
     """
     from airtaper.simulate import steady_state

@@ -13,10 +13,10 @@ import numpy as np
 import pytest
 
 from airtaper.errors import EXIT_INFEASIBLE, EXIT_OK
-from airtaper.optimize.figures import violations
+from airtaper.optimize.compliance import violations
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.marginal import raw_derivatives
-from airtaper.optimize.study import StudyOptions, run_optimization
+from airtaper.optimize.diurnal import StudyOptions, run_optimization
 
 pytestmark = pytest.mark.solver
 
@@ -160,7 +160,7 @@ def test_tapered_shape_on_the_plug_flow_demo(demo):
 
 
 def test_retry_ladder_moves_to_the_next_rung_after_a_failure(three_tank_6):
-    from airtaper.optimize.initialise import LADDER, Rung
+    from airtaper.optimize.attempts import LADDER, Rung
 
     ladder = (Rung("starved", {"max_iter": 2}), LADDER[2])  # the second rung starts from a square solve
     res = run_optimization(three_tank_6, StudyOptions(marginal=False, ladder=ladder, staging=False))

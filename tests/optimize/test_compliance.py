@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from airtaper.optimize.figures import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE, clock, day_figures, do_limits, violations
+from airtaper.optimize.compliance import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE, clock, day_figures, do_limits, violations
 
 
 def test_flow_weighted_means_and_period_maxima(three_tank_6):
