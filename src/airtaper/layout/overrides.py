@@ -185,6 +185,8 @@ def _toml_value(v) -> str:
         return '"' + "".join(_escape(c) for c in v) + '"'
     if isinstance(v, (list, tuple)):
         return "[" + ", ".join(_toml_value(x) for x in v) + "]"
+    if isinstance(v, dict):  # an inline table (a table inside an array: a year's month as one load day)
+        return "{ " + ", ".join(f"{_toml_key(str(k))} = {_toml_value(x)}" for k, x in v.items()) + " }"
     raise ValueError(f"cannot write {type(v).__name__} to an override file")
 
 
