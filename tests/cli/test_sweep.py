@@ -103,7 +103,7 @@ def test_sweep_rows_equal_one_by_one_runs_and_a_bad_override_is_one_failed_row(t
 def cluster():
     from dask.distributed import Client, LocalCluster
 
-    c = LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None)
+    c = LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0")
     client = Client(c)
     yield c, client
     client.close()

@@ -88,7 +88,7 @@ def _client(scheduler: str | None, workers: int | None):
                                      scheduler, "the address of a running scheduler, e.g. tcp://host:8786")) \
                 from None
     cluster = LocalCluster(n_workers=workers or machine_workers(), threads_per_worker=1, processes=True,
-                           dashboard_address=None, silence_logs=logging.ERROR)
+                           dashboard_address=":0", silence_logs=logging.ERROR)  # a free port: never a clash
     return Client(cluster), cluster
 
 
