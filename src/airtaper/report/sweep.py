@@ -17,6 +17,8 @@ import base64
 import math
 from pathlib import Path
 
+import pandas as pd
+
 from airtaper.report.atomic import write_bytes_atomic, write_text_atomic
 from airtaper.report.figures import _plt, figure_png
 from airtaper.report.html import _CSS, esc
@@ -108,6 +110,8 @@ def _img(name: str, png: bytes, caption: str) -> str:
 
 
 def _cell(v) -> str:
+    if v is None or v is pd.NA:
+        return "-"
     if isinstance(v, float):
         if math.isnan(v):
             return "-"
@@ -118,7 +122,7 @@ def _cell(v) -> str:
 def _table(frame, columns: list[str]) -> str:
     cols = [c for c in columns if c in frame]
     head = "".join(f"<th>{esc(c)}</th>" for c in cols)
-    body = "".join("<tr>" + "".join(f'<td class="{"left" if j == 0 else ""}">{_cell(r[c])}</td>'
+    body = "".join("<tr>" + "".join(('<td class="left">' if j == 0 else "<td>") + f"{_cell(r[c])}</td>"
                                     for j, c in enumerate(cols)) + "</tr>"
                    for r in frame.to_dict("records"))
     return f'<table class="nowrap"><tr>{head}</tr>{body}</table>'
@@ -146,7 +150,7 @@ def write_sweep_report(folder: str | Path, frame, summary: dict, months=None) ->
     kind = summary.get("kind", "sweep")
     facts = [("layout", summary.get("layout")), ("scenarios", summary.get("scenarios")),
              ("statuses", summary.get("statuses")), ("workers", summary.get("workers")),
-             ("wall time, s", fmt(summary.get("wall_s"), 1))]
+             ("wall time of this run, s", fmt(summary.get("wall_s"), 1))]
     if summary.get("grid"):
         facts.insert(1, ("grid", summary.get("grid")))
     year = ""

@@ -181,6 +181,7 @@ def gather_table(rows: list[dict], inputs: tuple[str, ...]):
         rec.update({k: row.get(k) for k in RESULT_COLUMNS})
         records.append(rec)
     frame = pd.DataFrame(records, columns=["scenario", *inputs, *RESULT_COLUMNS])
+    frame["exit_code"] = frame["exit_code"].astype("Int64")  # whole numbers, missing only for a lost row
     for col in inputs:  # a column of mixed numbers and text (or lists) is text in Parquet
         kinds = {type(v) for v in frame[col] if v is not None}
         if len(kinds) > 1 and not kinds <= {int, float}:
