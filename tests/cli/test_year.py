@@ -78,3 +78,40 @@ def test_year_with_a_bad_months_table_or_day_is_bad_input(tmp_path, capsys):
     assert main(["optimize", str(lay), "--day", "winter", "--out", str(tmp_path / "o")]) == EXIT_INPUT
     assert capsys.readouterr().err.strip() == (f"error: {lay}: --day: no load day with that id (got 'winter', "
                                                "expected a layout with [[load_days]])")
+
+
+@pytest.mark.solver
+@pytest.mark.slow
+def test_load_days_are_optimised_one_by_one_and_weighted_by_their_days(tmp_path, capsys):
+    lay = tmp_path / "days.toml"
+    lay.write_text(_layout(tmp_path).read_text() + """
+[[load_days]]
+id = "usual"
+days_per_year = 300.0
+
+[[load_days]]
+id = "cold-heavy"
+days_per_year = 65.0
+water_temperature_C = 10.0
+flow_factor = 1.1
+load_factor = 1.2
+""")
+    out = tmp_path / "year"
+    assert main(["year", str(lay), "--out", str(out), "--workers", "2", "--quiet"]) == EXIT_OK
+    days = {}
+    for d in ("usual", "cold-heavy"):
+        one = tmp_path / f"one-{d}"
+        assert main(["optimize", str(lay), "--day", d, "--out", str(one), "--quiet", "--no-report"]) == EXIT_OK
+        days[d] = json.loads((one / "summary.json").read_text())
+    capsys.readouterr()
+    # a heavier, colder day needs more air than the usual one
+    assert days["cold-heavy"]["energy_kWh_per_day"] > days["usual"]["energy_kWh_per_day"]
+    tot = json.loads((out / "year.json").read_text())["year"]
+    assert tot["energy_kWh"] == pytest.approx(300 * days["usual"]["energy_kWh_per_day"]
+                                              + 65 * days["cold-heavy"]["energy_kWh_per_day"], rel=1e-6)
+    top = max(d["dispatch"]["peak_kW"] for d in days.values())
+    assert tot["demand_charge"] == pytest.approx(12 * 9.0 * top, rel=1e-6)  # every month at the top peak
+    assert tot["compliant_days"] == 365
+    table = pd.read_csv(out / "results.csv")
+    assert list(table["scenario"]) == ["usual", "cold-heavy"]
+    assert table["load_factor"].tolist() == [1.0, 1.2]
