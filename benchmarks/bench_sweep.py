@@ -111,7 +111,7 @@ def section_ratio(layout: str, rows: list[dict], tmp: pathlib.Path, repeats: int
     t = cli[len(cli) // 2][2]
     parts = ", ".join(f"{k} {v:.1f}" for k, v in t.items() if isinstance(v, float) and v >= 0.05)
     print(f"   inside the run (s): {parts}")
-    ok = [r for r in rows if r.get("ipopt_s")][1:]  # the first row of a worker pays its imports
+    ok = [r for r in rows if r.get("ipopt_s")]  # (a worker's first scenario pays its imports: read the median)
     if ok:
         ratios = sorted(r["run_s"] / r["ipopt_s"] for r in ok)
         print(f"   sweep scenarios ({len(ok)}): run_s / ipopt_s median {statistics.median(ratios):.2f}, "
