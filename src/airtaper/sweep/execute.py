@@ -87,6 +87,12 @@ def _client(scheduler: str | None, workers: int | None):
             raise InputError(Problem("<command line>", "--scheduler", f"cannot reach the Dask scheduler: {exc}",
                                      scheduler, "the address of a running scheduler, e.g. tcp://host:8786")) \
                 from None
+    # A cluster stopped by Ctrl-C or SIGTERM leaves multiprocessing's tracker a raw "leaked semaphore" warning to
+    # print at exit: the interruption is reported in words already, so the tracker (started with this process's
+    # -W options) is told to keep it to itself.
+    quiet = "ignore::UserWarning:multiprocessing.resource_tracker"
+    if quiet not in sys.warnoptions:
+        sys.warnoptions.append(quiet)
     cluster = LocalCluster(n_workers=workers or machine_workers(), threads_per_worker=1, processes=True,
                            dashboard_address=":0", silence_logs=logging.ERROR)  # a free port: never a clash
     return Client(cluster), cluster
