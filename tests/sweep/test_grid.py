@@ -50,7 +50,7 @@ set = { "plant.water_temperature_C" = 8.0, "limits.nh4_mean_mg_L" = 1.5 }
      "expected [value, value, ...])"),
     ("[grid]\n'a.b' = []\n", "error: {g}: grid.a.b: must be a list of the values to sweep (got [], "
                               "expected [value, value, ...])"),
-    ("[grids]\n'a.b' = [1]\n", "error: {g}: grids: unknown key (got 'grids', expected common, grid or scenarios)"),
+    ("[grids]\n'a.b' = [1]\n", "error: {g}: grids: unknown key (got 'grids', expected day, common, grid or scenarios)"),
     ("[[scenarios]]\nid = 'a b'\nset = { x = 1 }\n",
      "error: {g}: scenarios[0].id: must be a short name of letters, digits, - and _ (got 'a b', "
      "expected an id such as \"winter-fouled\")"),
@@ -134,3 +134,17 @@ def test_scenario_count_is_the_product_of_the_axes(tmp_path_factory, axes):
     combos = list(itertools.product(*axes))
     assert len(g.scenarios) == len(combos)
     assert [tuple(s.values[f"a{i}.x"] for i in range(len(axes))) for s in g.scenarios] == combos
+
+
+def test_a_grid_on_a_load_day_sweeps_its_load_factor(tmp_path):
+    """`day` makes every scenario optimise that load day; its factors are key paths like any other."""
+    demo = ROOT / "layouts" / "demo.toml"
+    g = read_grid(_grid(tmp_path, 'day = "peak"\n[grid]\n"load_days.peak.load_factor" = [1.3, 1.7]\n'))
+    assert g.day == "peak" and all(s.options == ("--day", "peak") for s in g.scenarios)
+    layouts = [check_scenario(demo, g.path, s) for s in g.scenarios]
+    assert [next(d for d in lay.load_days if d.id == "peak").load_factor for lay in layouts] == [1.3, 1.7]
+    g = read_grid(_grid(tmp_path, 'day = "peek"\n[grid]\n"plant.water_temperature_C" = [12.0]\n'))
+    with pytest.raises(InputError) as exc:
+        check_scenario(demo, g.path, g.scenarios[0])
+    assert str(exc.value.problems[0]).startswith(f"error: {g.path}: scenario g001: day: no load day with that id "
+                                                 "(got 'peek', expected one of average, ")

@@ -13,6 +13,10 @@ A grid file is TOML with up to three parts::
     id = "winter-fouled"
     set = { "plant.water_temperature_C" = 9.0, "zones.Z2.alpha" = 0.35 }
 
+A top-level ``day = "ID"`` makes every scenario optimise the layout's load day ID
+(``optimize --day ID``) instead of its base profile; its values are then swept by
+key path too (``"load_days.peak.load_factor" = [1.3, 1.5, 1.7]``).
+
 Key paths are those of override files (:mod:`airtaper.layout.overrides`): arrays of
 tables in the layout are addressed by ``id``. Keys may be quoted (``"a.b" = ...``)
 or written as nested tables; both give the same path. The grid's scenarios come
@@ -42,7 +46,7 @@ MAX_GRID_BYTES = 2_000_000
 #: five others would otherwise queue a year of solves).
 MAX_SCENARIOS = 20_000
 _ID = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]{0,63}$")
-_PARTS = ("common", "grid", "scenarios")
+_PARTS = ("day", "common", "grid", "scenarios")
 
 
 @dataclass(frozen=True)
@@ -65,6 +69,7 @@ class Grid:
     scenarios: tuple[Scenario, ...]
     axes: tuple[str, ...]  # key paths of [grid], in file order
     inputs: tuple[str, ...]  # every key path some scenario sets apart from [common]
+    day: str | None = None  # the load day every scenario optimises (`day = "ID"`; None: the base profile)
 
 
 def _values_table(node, label: str, key: str, problems: list) -> dict:
@@ -81,7 +86,11 @@ def read_grid(path) -> Grid:
     problems: list[Problem] = []
     for key in data:
         if key not in _PARTS:
-            problems.append(Problem(label, key, "unknown key", key, "common, grid or scenarios"))
+            problems.append(Problem(label, key, "unknown key", key, "day, common, grid or scenarios"))
+    day = data.get("day")
+    if day is not None and not (isinstance(day, str) and _ID.match(day)):
+        problems.append(Problem(label, "day", "must be the id of one of the layout's load days", day,
+                                'a string such as "peak"'))
     common = _values_table(data.get("common", {}), label, "common", problems)
     axes = _values_table(data.get("grid", {}), label, "grid", problems)
     for key, values in axes.items():
@@ -128,16 +137,17 @@ def read_grid(path) -> Grid:
         raise InputError(problems)
 
     names = list(axes)
+    opts = ("--day", day) if day else ()
     listed_keys = [k for _, v in own for k in v if k not in names]
     inputs = tuple(dict.fromkeys(names + listed_keys))
     scenarios = []
     if axes:
         width = max(3, len(str(n_grid)))
         for i, combo in enumerate(itertools.product(*(axes[k] for k in names)), start=1):
-            scenarios.append(Scenario(f"g{i:0{width}d}", {**common, **dict(zip(names, combo))}, inputs))
+            scenarios.append(Scenario(f"g{i:0{width}d}", {**common, **dict(zip(names, combo))}, inputs, opts))
     for sid, values in own:
-        scenarios.append(Scenario(sid, {**common, **values}, inputs))
-    return Grid(label, tuple(scenarios), tuple(names), inputs)
+        scenarios.append(Scenario(sid, {**common, **values}, inputs, opts))
+    return Grid(label, tuple(scenarios), tuple(names), inputs, day)
 
 
 def scenario_problem(grid_path: str, scenario_id: str, problem: Problem, values_label: str) -> Problem:
@@ -160,10 +170,17 @@ def check_scenario(layout_path, grid_path: str, scenario: Scenario, warnings: li
     """
     label = f"{grid_path} [{scenario.id}]"
     try:
-        return load_layout_with_values(layout_path, scenario.values, label, warnings=warnings)
+        layout = load_layout_with_values(layout_path, scenario.values, label, warnings=warnings)
     except InputError as exc:
         raise InputError([scenario_problem(grid_path, scenario.id, p, label) for p in exc.problems],
                          warnings=exc.warnings) from None
+    if "--day" in scenario.options:
+        day = scenario.options[scenario.options.index("--day") + 1]
+        ids = [d.id for d in layout.load_days]
+        if day not in ids:
+            raise InputError(Problem(grid_path, f"scenario {scenario.id}: day", "no load day with that id", day,
+                                     f"one of {', '.join(ids)}" if ids else "a layout with [[load_days]]"))
+    return layout
 
 
 __all__ = ["Grid", "MAX_SCENARIOS", "Scenario", "check_scenario", "read_grid", "scenario_problem"]
