@@ -32,11 +32,12 @@ OUTPUT_NAMES = ("schedule.csv", "header.csv", "blowers.csv", "timeseries.csv", "
 
 def write_study_outputs(out_dir: str | Path, *, schedule: pd.DataFrame, header: pd.DataFrame,
                         timeseries: pd.DataFrame, summary: dict, figure: bool = True,
-                        blowers: pd.DataFrame | None = None) -> list[Path]:
+                        blowers: pd.DataFrame | None = None, report: bool = True) -> list[Path]:
     """Write the study's tables and summary into ``out_dir``, then its report from them; return the paths.
 
     The report (the figures' PNG files, ``report.html``, ``results.xlsx``) is built from the files just
-    written, by the same :func:`~airtaper.report.build.write_report` that ``airtaper report`` runs.
+    written, by the same :func:`~airtaper.report.build.write_report` that ``airtaper report`` runs;
+    ``report`` False leaves it for a later ``airtaper report DIR`` (a sweep's scenarios).
     """
     out = Path(out_dir)
     written = [
@@ -46,7 +47,7 @@ def write_study_outputs(out_dir: str | Path, *, schedule: pd.DataFrame, header: 
         write_csv_atomic(out / "timeseries.csv", timeseries),
         write_json_atomic(out / "summary.json", summary),
     ]
-    return written + write_report(out, figures=figure)
+    return written + (write_report(out, figures=figure) if report else [])
 
 
 def _do_margin_line(optimiser, resimulated) -> str:
