@@ -31,7 +31,9 @@ Whole counts (a small integer search)
     From the relaxed optimum rounded to the nearest step, each zone is moved one step up
     and one step down, every candidate re-solved (the counts fixed, the days' schedules
     free, warm from the relaxed solution); the best improving move is taken until none
-    improves. Every candidate and its annual cost are kept (``candidates``).
+    improves (when the rounded grid fails a day's limits, the search starts from every count rounded up, then
+    down). A candidate the warm start cannot solve is solved once more from every day's baseline start. Every
+    candidate and its annual cost are kept (``candidates``).
 
 Verification and economics
     The chosen grid's schedule of every day is re-simulated by the independent simulator
@@ -56,7 +58,8 @@ from airtaper.layout import defaults as D
 from airtaper.layout.loaddays import day_layout, layout_days, with_grid_counts
 from airtaper.layout.types import Layout
 from airtaper.optimize.attempts import BASE_OPTIONS, LADDER
-from airtaper.optimize.diurnal import DiurnalOptimisation, StudyOptions, _jsonable
+from airtaper.optimize.diurnal import DiurnalOptimisation, StudyOptions
+from airtaper.optimize.results import jsonable, study_tables
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.verify import verify_day
@@ -269,7 +272,7 @@ class GridDesign:
                 st._free_decisions()
         self.progress.phase("grid " + ", ".join(f"{z} {counts[z]}" for z in self.ids))
         r = self._solve(LADDER[0].options)
-        if not r.ok and r.status.value != "infeasible":
+        if not r.ok:  # not from the relaxed design's point: once more from every day's baseline start
             for st in self.studies:
                 st._restart(LADDER[1])
             r = self._solve(LADDER[1].options)
@@ -305,10 +308,11 @@ class GridDesign:
         if self.relaxed is None:
             raise ModelError("solve the relaxed design first")
         best = self.evaluate(self._nearest())
-        if best.annual_cost is None:  # rounding down lost capacity somewhere: start from every count rounded up
-            up = {z.id: int(min(z.grid.count_step * math.ceil(self.relaxed[z.id] / z.grid.count_step - 1e-9),
-                                self.ranges[z.id][1])) for z in self.zones}
-            best = self.evaluate(up)
+        for rounding in (math.ceil, math.floor):  # when the nearest grid fails a day: every count up, then down
+            if best.annual_cost is not None:
+                break
+            steps = {z.id: z.grid.count_step * rounding(self.relaxed[z.id] / z.grid.count_step) for z in self.zones}
+            best = self.evaluate({z: int(min(max(n, self.ranges[z][0]), self.ranges[z][1])) for z, n in steps.items()})
         if best.annual_cost is None:
             return None
         for _ in range(self.options.max_moves):
@@ -391,7 +395,8 @@ def _day_rows(g: GridDesign, label: str) -> dict[str, dict]:
     rows = {}
     for f in g.day_figures():
         d = f["day"]
-        rows[d.id] = {f"energy_kWh_per_day_{label}": f["energy_kWh_per_day"], f"cost_per_day_{label}": f["cost_per_day"],
+        rows[d.id] = {f"energy_kWh_per_day_{label}": f["energy_kWh_per_day"],
+                      f"cost_per_day_{label}": f["cost_per_day"],
                       f"nh4_mean_mg_L_{label}": f["figures"]["nh4_mean_mg_L"],
                       f"tn_mean_mg_L_{label}": f["figures"]["tn_mean_mg_L"]}
     return rows
@@ -457,7 +462,7 @@ def run_design(layout: Layout, options: DesignOptions | None = None, progress: P
         days.append(row)
     sched = []
     for d, st in zip(g.days, g.studies):
-        table, _header, _ts = st.tables()
+        table, _header, _ts = study_tables(st)
         table.insert(0, "load_day", d.id)
         sched.append(table[["load_day", "period_start_h", "period_end_h", "zone", "airflow_Sm3_h",
                             "airflow_per_diffuser_Sm3_h", "do_min_mg_L", "do_mean_mg_L", "nh4_mean_mg_L",
@@ -500,7 +505,7 @@ def run_design(layout: Layout, options: DesignOptions | None = None, progress: P
                           "timings": {k: v for k, v in g.timings.items() if k != "iterations"}},
                "messages": messages}
     code = EXIT_OK if status == "optimal" else EXIT_UNVERIFIED
-    return DesignResult(pd.DataFrame(zones), pd.DataFrame(days), schedule, candidates, _jsonable(summary), code,
+    return DesignResult(pd.DataFrame(zones), pd.DataFrame(days), schedule, candidates, jsonable(summary), code,
                         designed, g)
 
 
@@ -514,7 +519,7 @@ def _no_design(g: GridDesign, base: dict, status: str, messages: list[str], t0: 
     code = EXIT_INFEASIBLE if status == "infeasible" else EXIT_FAILURE
     candidates = pd.DataFrame([{**{f"count_{z}": c.counts[z] for z in g.ids}, "annual_cost": c.annual_cost,
                                 "status": c.status, "seconds": c.seconds} for c in g.candidates])
-    return DesignResult(pd.DataFrame(), pd.DataFrame(), pd.DataFrame(), candidates, _jsonable(summary), code,
+    return DesignResult(pd.DataFrame(), pd.DataFrame(), pd.DataFrame(), candidates, jsonable(summary), code,
                         g.layout, g)
 
 
@@ -523,5 +528,6 @@ def density_percent(layout: Layout, zone, count: float) -> float:
     return 100.0 * float(count) * layout.diffuser_type(zone.grid.type_id).membrane_area_m2 / zone.area_m2
 
 
-__all__ = ["Candidate", "DesignOptions", "DesignResult", "GridDesign", "run_design", "capital_recovery_factor", "count_range", "density_percent",
+__all__ = ["Candidate", "DesignOptions", "DesignResult", "GridDesign", "run_design", "capital_recovery_factor",
+           "count_range", "density_percent",
            "grid_capital", "net_present_value", "simple_payback_years"]

@@ -142,7 +142,8 @@ def design_html(summary: dict, zones, days, images: dict) -> str:
         rows = []
         for r in days.to_dict("records"):
             row = [r["load_day"], fmt(r["days_per_year"], 0), fmt(r["energy_kWh_per_day_design"], 0),
-                   fmt(r["cost_per_day_design"], 1), fmt(r["nh4_mean_mg_L_design"], 2), fmt(r["tn_mean_mg_L_design"], 2)]
+                   fmt(r["cost_per_day_design"], 1), fmt(r["nh4_mean_mg_L_design"], 2),
+                   fmt(r["tn_mean_mg_L_design"], 2)]
             if has_cur:
                 row += [fmt(r["energy_kWh_per_day_current"], 0), fmt(r["cost_per_day_current"], 1)]
             if has_ver:
@@ -258,4 +259,5 @@ def compare_console(summary: dict) -> str:
     return "\n".join(lines)
 
 
-__all__ = ["compare_console", "compare_html", "write_compare_outputs", "design_console", "design_html", "taper_figure_png", "train_png", "write_design_outputs"]
+__all__ = ["compare_console", "compare_html", "design_console", "design_html", "taper_figure_png", "train_png",
+           "write_compare_outputs", "write_design_outputs"]
