@@ -59,9 +59,9 @@ from airtaper.layout.loaddays import day_layout, layout_days, with_grid_counts
 from airtaper.layout.types import Layout
 from airtaper.optimize.attempts import BASE_OPTIONS, LADDER
 from airtaper.optimize.diurnal import DiurnalOptimisation, StudyOptions
-from airtaper.optimize.results import jsonable, study_tables
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.progress import Progress, Silent
+from airtaper.optimize.results import jsonable, study_tables
 from airtaper.optimize.verify import verify_day
 from airtaper.solve import solve_nlp
 
