@@ -161,4 +161,20 @@ def train_report(plant: ResolvedPlant) -> str:
         parts.append(f"TN daily mean {lim.tn_mean_mg_L:g} mg/L")
     lines.append("limits: " + ("; ".join(parts) if parts else "none"))
     lines.append(f"objective: {layout.operation.objective}")
+    if layout.load_days:
+        total = sum(d.days_per_year for d in layout.load_days)
+        lines.append(f"load days ({total:g} days in all):")
+        for d in layout.load_days:
+            what = (f"own influent {d.influent.source}" if d.influent is not None
+                    else f"flow x {d.flow_factor:g}, load x {d.load_factor:g}")
+            temp = "" if d.water_temperature_C is None else f", water {min(d.water_temperature_C):g}" + (
+                f"-{max(d.water_temperature_C):g}" if max(d.water_temperature_C) > min(d.water_temperature_C) else "") \
+                + " C"
+            alpha = "" if d.alpha_factor == 1.0 else f", alpha x {d.alpha_factor:g}"
+            lines.append(f"  {d.id} {d.days_per_year:g} d: {what}{temp}{alpha}")
+    if layout.capital is not None:
+        c = layout.capital
+        cur = layout.tariff.currency if layout.tariff else ""
+        lines.append(f"capital: {c.cost_per_diffuser:g} {cur} per diffuser, {c.cost_per_zone:g} {cur} per zone, "
+                     f"{100 * c.interest_rate:g} % over {c.life_years:g} years")
     return "\n".join(lines)

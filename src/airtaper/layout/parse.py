@@ -218,10 +218,10 @@ class _Parser:
     # -- sections ----------------------------------------------------------------
     def horizon(self, t: Table | None) -> Horizon:
         if t is None:
-            return Horizon(D.N_PERIODS, 24.0 / D.N_PERIODS, D.STEPS_PER_PERIOD)
+            return Horizon(D.N_PERIODS, units.HOURS_PER_DAY / D.N_PERIODS, D.STEPS_PER_PERIOD)
         n = t.integer("n_periods", D.N_PERIODS, ge=1, le=288)
         steps = t.integer("steps_per_period", D.STEPS_PER_PERIOD, ge=1, le=60)
-        return Horizon(n, 24.0 / n, steps) if n is not None else None
+        return Horizon(n, units.HOURS_PER_DAY / n, steps) if n is not None else None
 
     def plant(self, t: Table | None) -> Plant | None:
         if t is None:
@@ -633,8 +633,8 @@ class _Parser:
         if t.has("airflow_range_points"):
             ranges = self._range_points(t, qmin, qmax) or ()
         oos = t.boolean("out_of_service", False)
-        up = t.number("min_up_h", D.BLOWER_MIN_UP_h, ge=0.0, le=24.0)
-        down = t.number("min_down_h", D.BLOWER_MIN_DOWN_h, ge=0.0, le=24.0)
+        up = t.number("min_up_h", D.BLOWER_MIN_UP_h, ge=0.0, le=units.HOURS_PER_DAY)
+        down = t.number("min_down_h", D.BLOWER_MIN_DOWN_h, ge=0.0, le=units.HOURS_PER_DAY)
         starts = t.integer("max_starts_per_day", None, ge=0, le=1000)
         start_cost = t.number("start_cost", D.BLOWER_START_COST, ge=0.0)
         return Blower(ident, kind, qmin, qmax, pmax, eff, pts, power_pts, oos, up, down, starts, start_cost, ranges)
@@ -748,7 +748,7 @@ class _Parser:
             if len(b) != 2:
                 col.error(k, "a band is [start_h, price]", f"{len(b)} values", "2 values")
                 continue
-            s = check_number(col, f"{k}[1]", b[0], ge=0.0, lt=24.0)
+            s = check_number(col, f"{k}[1]", b[0], ge=0.0, lt=units.HOURS_PER_DAY)
             p = check_number(col, f"{k}[2]", b[1], ge=0.0)
             if s is not None and p is not None:
                 starts.append((i, s))
@@ -763,8 +763,8 @@ class _Parser:
         if col.count > before:
             return None
         times = [s for _, s in starts]
-        ends = times[1:] + [24.0]
-        h = 24.0 / self.n
+        ends = times[1:] + [units.HOURS_PER_DAY]
+        h = units.HOURS_PER_DAY / self.n
         out = []
         for p in range(self.n):
             a, b = p * h, (p + 1) * h
@@ -960,7 +960,7 @@ class _Parser:
                 col.warn(f"blowers.{b.id}", f"wire-to-air efficiency {min(effs):.3g} is unusually low (usual above "
                                             f"{D.WARN_BLOWER_EFFICIENCY_MIN:g}): was it divided by 100?")
         gridded = [z for z in zones if z.grid is not None]
-        if gridded and not blowers and "blowers" not in self.root.data:
+        if gridded and not blowers and not self.root.data.get("blowers"):  # absent or empty; bad ones are reported
             col.error("blowers", "zones have diffuser grids but there are no blowers", None,
                       "at least one [[blowers]] table")
         if gridded and blowers:
@@ -991,7 +991,7 @@ class _Parser:
                              file=csv_display_path(col.file, self.base_dir, influent.source))
             # the measured forms (CSV rows, constant values) are checked for unit slips where they are read
             if zones and len(zones) == n_zones:
-                hrt = sum(z.volume_m3 for z in zones) / qm * 24.0
+                hrt = sum(z.volume_m3 for z in zones) / qm * units.HOURS_PER_DAY
                 if not D.WARN_TRAIN_HRT_h[0] <= hrt <= D.WARN_TRAIN_HRT_h[1]:
                     col.warn("zones", f"train HRT {fixed(hrt, 1)} h at the mean influent flow is unusual "
                                       f"(usual {D.WARN_TRAIN_HRT_h[0]:g}-{D.WARN_TRAIN_HRT_h[1]:g} h): "

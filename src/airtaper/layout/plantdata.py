@@ -34,6 +34,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from airtaper import units
 from airtaper.errors import InputError
 from airtaper.layout.influent import CONCENTRATIONS, check_measured
 from airtaper.layout.reader import Collector, LayoutWarning, did_you_mean
@@ -94,7 +95,7 @@ class PlantRecord:
 
     @property
     def days(self) -> float:
-        return (self.end_h - self.start_h) / 24.0
+        return (self.end_h - self.start_h) / units.HOURS_PER_DAY
 
     def __eq__(self, other):  # arrays: compare by value
         if not isinstance(other, PlantRecord):
@@ -296,7 +297,7 @@ def read_plant_csv_text(col: Collector, text: str, layout: Layout) -> PlantRecor
         return None
     dt = np.diff(t)
     interval = float(np.median(dt))
-    span_d = (t[-1] + interval - t[0]) / 24.0
+    span_d = (t[-1] + interval - t[0]) / units.HOURS_PER_DAY
     if span_d > MAX_DAYS:
         col.error(f"row {linenos[-1]}, column {TIME}", "record too long for one fit", round(span_d, 3),
                   f"at most {MAX_DAYS:g} days (fit a shorter stretch)")
@@ -304,7 +305,7 @@ def read_plant_csv_text(col: Collector, text: str, layout: Layout) -> PlantRecor
     if interval < 1.0 / 600.0:
         col.warn(f"column {TIME}", f"median interval {interval * 3600:.3g} s: is time_h in minutes or seconds "
                                    "instead of hours? (expected hours from midnight of day 1)")
-    if t[-1] > 24.0 * MAX_DAYS and interval >= 1.0:
+    if t[-1] > units.HOURS_PER_DAY * MAX_DAYS and interval >= 1.0:
         col.warn(f"column {TIME}", "times run past the record limit: minutes instead of hours?")
     for i in np.flatnonzero(dt > GAP_FACTOR * interval):
         col.warn(f"rows {linenos[i]}-{linenos[i + 1]}, column {TIME}",

@@ -132,6 +132,23 @@ def _settler_estimate(m, data, feed: np.ndarray) -> None:
             calculate_variable_from_constraint(m.settler_velocity[t, layer], m.settler_flux_definition[t, layer])
 
 
+def set_layer_state(m, t, layers) -> None:
+    """Put known clarifier layers (layers, 13) from the top into time point ``t`` of a layered model.
+
+    Concentrations are clipped at 0; the layers' solids and effective settling velocities follow
+    from their own definitions (so those equations hold exactly at ``t``).
+    """
+    solids = [IDX[k] for k in ("XI", "XS", "XBH", "XBA", "XP")]
+    for layer, row in zip(m.LAYERS, np.asarray(layers, dtype=float)):
+        for k, c in enumerate(ASM1_COMPONENTS):
+            m.settler_conc[t, layer, c].set_value(max(float(row[k]), 0.0), skip_validation=True)
+        m.settler_tss[t, layer].set_value(max(float(m.tss_per_cod * row[solids].sum()), 1e-6),
+                                          skip_validation=True)
+    for layer in m.INTERFACES:
+        m.settler_velocity[t, layer].set_value(0.0)
+        calculate_variable_from_constraint(m.settler_velocity[t, layer], m.settler_flux_definition[t, layer])
+
+
 def set_start_state(m, start: dict) -> None:
     """Put a known steady state into a steady model's states (for example the simulator's).
 
@@ -146,15 +163,7 @@ def set_start_state(m, start: dict) -> None:
                 if not var.fixed:
                     var.set_value(max(float(row[k]), 0.0), skip_validation=True)
         if hasattr(m, "settler_conc") and start.get("layers") is not None:
-            solids = [IDX[k] for k in ("XI", "XS", "XBH", "XBA", "XP")]
-            for layer, row in zip(m.LAYERS, np.asarray(start["layers"], dtype=float)):
-                for k, c in enumerate(ASM1_COMPONENTS):
-                    m.settler_conc[t, layer, c].set_value(max(float(row[k]), 0.0), skip_validation=True)
-                m.settler_tss[t, layer].set_value(max(float(m.tss_per_cod * row[solids].sum()), 1e-6),
-                                                  skip_validation=True)
-            for layer in m.INTERFACES:
-                m.settler_velocity[t, layer].set_value(0.0)
-                calculate_variable_from_constraint(m.settler_velocity[t, layer], m.settler_flux_definition[t, layer])
+            set_layer_state(m, t, start["layers"])
     if start.get("waste_m3_d") is not None and not m.waste_m3_d[1].fixed:
         for p in m.PERIODS:
             m.waste_m3_d[p].set_value(float(start["waste_m3_d"]))

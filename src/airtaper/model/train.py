@@ -56,7 +56,7 @@ from airtaper.layout.types import ASM1_COMPONENTS, Layout
 from airtaper.model.asm1_rates import asm1_process_rates
 from airtaper.model.clarifier import attach_ideal_separator, attach_layered_settler
 from airtaper.model.data import FixedAeration, GridAeration, TrainData, mean_load, single_period, train_data
-from airtaper.model.discretisation import StepSlice, time_balance
+from airtaper.model.discretisation import StepSlice, switched_balance, time_balance
 from airtaper.process.stoichiometry import PARTICULATES, PROCESSES, SOLIDS_COD, n_composition
 
 
@@ -171,6 +171,9 @@ def attach_sets(m, data: TrainData, steady: bool, scheme: str = "radau2") -> Non
     else:
         nodes, a = np.array([1.0]), np.array([[1.0]])
     m.collocation_matrix = a.tolist()
+    # length of the sub-step that ends at each stage (from the step's start or the stage before), d:
+    # the positive-preserving balance of switched zones (see switched_balance)
+    m.substep_d = [float(c - (nodes[i - 1] if i > 0 else 0.0)) * m.dt_d for i, c in enumerate(nodes)]
     step_of = {t: (t - 1) // k + 1 for t in range(1, n_points + 1)}
     m.stage_of_point = {t: (t - 1) % k for t in range(1, n_points + 1)}
     m.period_of_step = {t: (step_of[t] - 1) // spp + 1 for t in range(1, n_points + 1)}
@@ -205,13 +208,16 @@ def _do_sat_init(m, z, p):
     return float(a.do_sat_mg_L)
 
 
-def attach_aeration(m, data: TrainData, airflow=None) -> None:
+def attach_aeration(m, data: TrainData, airflow=None, diffuser_count=None) -> None:
     """Airflow (grid zones) and fixed-kLa handles, the field kLa and saturation per zone and period.
 
     ``airflow_Sm3_h[zone, period]`` is a Var, fixed to the schedule for simulation
     (``airflow``: mapping zone -> number or per-period sequence; default the middle
     of the zone's allowed range). ``kla_fixed_per_d[zone, period]`` is a Var fixed
     to the layout's kLa (freed when a DO setpoint is imposed on such a zone).
+    ``diffuser_count``: an indexed Var (grid zone -> count) held outside ``m`` that the
+    kLa and the grid limits follow instead of the layout's counts (a design study shares
+    one such Var between the models of its load days).
     """
     layout = data.layout
     m.aeration = {z: a for z, a in zip(data.zones, data.aeration) if a is not None}
@@ -244,7 +250,11 @@ def attach_aeration(m, data: TrainData, airflow=None) -> None:
                 v = float(given[p - 1])
             m.airflow_Sm3_h[z, p].fix(v)
     # the diffuser count of each grid: the layout's, a parameter a design study may change
-    m.diffuser_count = pyo.Param(m.GRID_ZONES, mutable=True, initialize={z: float(m.aeration[z].diffusers) for z in grid})
+    if diffuser_count is None:
+        m.diffuser_count = pyo.Param(m.GRID_ZONES, mutable=True,
+                                     initialize={z: float(m.aeration[z].diffusers) for z in grid})
+    else:
+        m.diffuser_count = pyo.Reference(diffuser_count)
     m.kla_per_d = pyo.Expression(m.AERATED_ZONES, m.PERIODS, rule=_kla_rule)
     m.do_sat_mg_L = pyo.Param(m.AERATED_ZONES, m.PERIODS, initialize=_do_sat_init, mutable=False)
 
@@ -291,6 +301,8 @@ def _zone_rhs_rule(m, t, z, c):
 
 def _zone_mass_balance_rule(m, t, z, c):
     """Completely mixed zone: inflows - outflow + reactions (+ aeration for SO) = accumulation."""
+    if z in m.switched_zones and not m.steady and m.scheme.startswith("radau"):
+        return switched_balance(m, t, StepSlice(m.conc, z, c), StepSlice(m.zone_rhs, z, c))
     return time_balance(m, t, StepSlice(m.conc, z, c), StepSlice(m.zone_rhs, z, c))
 
 
@@ -411,7 +423,7 @@ def attach_outputs(m) -> None:
 
 
 def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: str = "radau2",
-                      name: str = "airtaper_train"):
+                      name: str = "airtaper_train", switched_zones=(), diffuser_count=None):
     """The Pyomo model of a train from resolved data (see the module notes).
 
     Parameters
@@ -425,6 +437,9 @@ def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: st
         Zone id -> airflow (Sm3/h) or per-period airflows, fixed in ``airflow_Sm3_h``.
     scheme : "radau2" (default), "radau3", "euler" or "bdf2"
         Time discretisation of the cyclic model (ignored for a steady point).
+    switched_zones : sequence of zone ids, optional
+        Zones whose air may switch off (swing zones): their balances are
+        :func:`switched_balance` under a Radau scheme.
 
     Notes
     -----
@@ -434,8 +449,9 @@ def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: st
     """
     m = pyo.ConcreteModel(name=name)
     m.train_data = data
+    m.switched_zones = frozenset(switched_zones)
     attach_sets(m, data, steady, scheme)
-    attach_aeration(m, data, airflow)
+    attach_aeration(m, data, airflow, diffuser_count)
     attach_flows(m, data)
     attach_zone_states(m, data)
     attach_clarifier(m, data)
@@ -464,17 +480,20 @@ def build_steady_model(layout: Layout, *, period: int | None = None, airflow=Non
     return build_train_model(steady, steady=True, airflow=airflow, name="airtaper_steady")
 
 
-def build_cyclic_model(layout: Layout, *, airflow=None, scheme: str = "radau2", steps_per_period: int | None = None):
+def build_cyclic_model(layout: Layout, *, airflow=None, scheme: str = "radau2", steps_per_period: int | None = None,
+                       diffuser_count=None):
     """The cyclic diurnal model of ``layout`` (periods and steps from ``layout.horizon``).
 
     ``scheme``: "radau2" (Radau IIA, 2 points per step, order 3; default), "radau3"
     (order 5), "euler" (backward Euler) or "bdf2";
-    ``steps_per_period`` overrides the layout's.
+    ``steps_per_period`` overrides the layout's. Swing zones get :func:`switched_balance`.
     """
     data = train_data(layout)
     if steps_per_period is not None:
         data = replace(data, steps_per_period=int(steps_per_period))
-    return build_train_model(data, steady=False, airflow=airflow, scheme=scheme, name="airtaper_cyclic")
+    return build_train_model(data, steady=False, airflow=airflow, scheme=scheme, name="airtaper_cyclic",
+                             switched_zones=[z.id for z in layout.zones if z.kind == "swing"],
+                             diffuser_count=diffuser_count)
 
 
 def set_airflow(m, airflow) -> None:

@@ -321,6 +321,10 @@ def shortfall_findings(dp: Dispatch) -> list[dict]:
         elif dp.demand_Sm3_h[p] > sum(mm.range_at(d)[1] for mm in allowed):
             why = (f"above the capacity of the blowers that can run at {d:.1f} kPa "
                    f"({sum(mm.range_at(d)[1] for mm in allowed):.0f} Sm3/h)")
+        elif dp.demand_Sm3_h[p] < min(mm.range_at(d)[0] for mm in allowed):
+            smallest = min(allowed, key=lambda mm: mm.range_at(d)[0])
+            why = (f"below the smallest blower's minimum ({smallest.id} {smallest.range_at(d)[0]:.0f} Sm3/h at "
+                   f"{d:.1f} kPa) and no other zone can take the extra air")
         else:
             why = "blocked by the blowers' minimum run/rest times or starts limit"
         out.append({"limit": "blower_staging", "period": int(p) + 1, "shortfall_Sm3_h": float(dp.shortfall_Sm3_h[p]),

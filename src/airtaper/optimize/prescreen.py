@@ -45,6 +45,7 @@ import time
 
 import numpy as np
 
+from airtaper import units
 from airtaper.layout.types import Layout
 from airtaper.optimize.compliance import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE
 from airtaper.plant import resolve_plant
@@ -68,7 +69,7 @@ def _finding(limit, zone, spans, message) -> dict:
 
 
 def _all_day(layout: Layout, amount: float, unit: str) -> list[dict]:
-    return [{"start_h": 0.0, "end_h": 24.0, "amount": float(amount), "unit": unit}]
+    return [{"start_h": 0.0, "end_h": units.HOURS_PER_DAY, "amount": float(amount), "unit": unit}]
 
 
 def equipment_findings(layout: Layout) -> list[dict]:

@@ -18,8 +18,10 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from airtaper import units
 from airtaper.errors import InputError, Problem
 from airtaper.layout.types import Layout
+from airtaper.optimize.results import StudySummary
 from airtaper.plant import ResolvedPlant
 
 #: Files the report reads, in the order docs/outputs.md lists them.
@@ -47,6 +49,11 @@ class StudyFolder:
 
     # -- derived views -------------------------------------------------------------------------
     @property
+    def study(self) -> StudySummary:
+        """``summary.json`` as the study's typed summary (:class:`~airtaper.optimize.results.StudySummary`)."""
+        return StudySummary.from_dict(self.summary)
+
+    @property
     def zones(self) -> list[str]:
         """Zones of the schedule, in the schedule's (flow) order."""
         return list(dict.fromkeys(self.schedule["zone"]))
@@ -56,7 +63,7 @@ class StudyFolder:
         """Period boundaries over the day, h (n_periods + 1 values)."""
         if not len(self.schedule):  # no schedule (a run stopped before solving): the layout's periods
             if self.layout is None:
-                return np.array([0.0, 24.0])
+                return np.array([0.0, units.HOURS_PER_DAY])
             h = self.layout.horizon
             return np.arange(h.n_periods + 1) * h.period_h
         first = self.schedule.drop_duplicates("period_start_h").sort_values("period_start_h")
@@ -71,15 +78,13 @@ class StudyFolder:
         return table.reindex(self.zones)
 
     def header_by_period(self) -> pd.DataFrame | None:
-        """header.csv with ``period_start_h`` and ``period_end_h`` added (one row per period, in order)."""
-        if self.header is None:
+        """header.csv in period order, or None when it is absent or its periods are not the schedule's."""
+        if self.header is None or "period_start_h" not in self.header:
             return None
+        out = self.header.sort_values("period_start_h", kind="stable").reset_index(drop=True)
         edges = self.period_edges_h
-        if len(edges) - 1 != len(self.header):
+        if len(edges) - 1 != len(out) or not np.allclose(out["period_start_h"].to_numpy(float), edges[:-1]):
             return None
-        out = self.header.copy()
-        out.insert(0, "period_end_h", edges[1:])
-        out.insert(0, "period_start_h", edges[:-1])
         return out
 
     def _layout_zones(self) -> dict:

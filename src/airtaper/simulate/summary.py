@@ -33,7 +33,7 @@ _EFFLUENT_KEYS = ("SNH", "SNO", "tkn_mg_L", "tn_mg_L", "cod_mg_L", "tss_mg_L", "
 
 
 def _clock(hours: float) -> str:
-    total = int(round(hours * 60.0)) % 1440 if hours < 24.0 else 1440
+    total = int(round(hours * 60.0)) % 1440 if hours < HOURS_PER_DAY else 1440
     return f"{total // 60:02d}:{total % 60:02d}"
 
 
