@@ -17,6 +17,8 @@
 * :mod:`~airtaper.optimize.prescreen` - limits that surely cannot be met, found without an optimisation
 * :mod:`~airtaper.optimize.horizon` - a layout on another diurnal grid
 * :mod:`~airtaper.optimize.progress` - the progress display
+* :mod:`~airtaper.optimize.design` - diffuser-grid design over load days
+* :mod:`~airtaper.optimize.compare` - layouts side by side over their load days
 
 docs/optimization.md gives the formulation, the start, the ladder and the verification rule.
 """
