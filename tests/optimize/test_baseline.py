@@ -6,7 +6,7 @@ from dataclasses import replace
 
 import pytest
 
-from airtaper.optimize.baseline import SEARCH_TOL_mg_L, complying_baseline, run_baseline
+from airtaper.optimize.baseline import SEARCH_TOL_mg_L, complying_baseline, run_baseline, search_range
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.diurnal import saving_figures
 
@@ -68,3 +68,79 @@ def test_a_setpoint_the_grid_cannot_hold_is_reported_with_zone_and_hours(demo6):
         k = int(h["start_h"] // short.horizon.period_h)
         assert base.day.period_mean_airflow()["Z2"][k] == pytest.approx(hi, rel=1e-6)
     assert base.summary()["setpoint_not_held"] == held
+
+
+class _FakeDay:
+    def __init__(self, setpoint, figures=None):
+        self.setpoint, self.figures = setpoint, figures or {}
+
+    def start_state(self):
+        return ({"setpoint": self.setpoint}, None)
+
+
+class _FakeBaseline:
+    def __init__(self, setpoint, violations, figures=None):
+        self.setpoint_mg_L, self.violations, self.day = setpoint, violations, _FakeDay(setpoint, figures)
+
+
+def _search(monkeypatch, layout, base_setpoint, complies, nh4_broken):
+    """complying_baseline over a plant whose days comply exactly for the setpoints ``complies`` accepts.
+
+    The simulator is replaced by that rule (a test of the search, not of the plant); returns the
+    setpoint found (or None) and the setpoints tried.
+    """
+    import airtaper.optimize.baseline as bl
+
+    tried = []
+
+    def fake_try(layout_, sp, start):
+        tried.append(sp)
+        return _FakeBaseline(sp, [] if complies(sp) else ["a limit"])
+
+    monkeypatch.setattr(bl, "_try", fake_try)
+    limit = layout.limits.nh4_mean_mg_L
+    figures = {"nh4_mean_mg_L": 2.0 * limit if nh4_broken else 0.5 * limit, "nh4_max_mg_L": 0.0}
+    found = bl.complying_baseline(layout, _FakeBaseline(base_setpoint, ["a limit"], figures))
+    return (None if found is None else found.setpoint_mg_L), tried
+
+
+@pytest.mark.parametrize("base_sp, interval, nh4_broken", [
+    (2.0, (2.6, 6.0), True),    # NH4-N broken at 2 mg/L: more oxygen complies (upward)
+    (2.0, (1.05, 1.6), False),  # TN broken at 2 mg/L: less oxygen complies, NH4-N breaks again below 1.05
+    (2.0, (0.5, 1.7), False),   # complies down to the lowest setpoint tried
+    (1.0, (1.3, 1.5), False),   # TN is not the cure here: nothing below complies, the search turns upward
+    (3.0, (1.0, 2.0), True),    # NH4-N reported broken but only lower setpoints comply: the search turns down
+])
+def test_complying_search_brackets_both_ways(monkeypatch, demo6, base_sp, interval, nh4_broken):
+    from airtaper.optimize.baseline import search_range
+
+    a, b = interval
+    found, tried = _search(monkeypatch, demo6, base_sp, lambda sp: a <= sp <= b, nh4_broken)
+    assert found is not None and a <= found <= b
+    # the lowest complying setpoint to the search's tolerance (or the lowest it tries)
+    assert found - SEARCH_TOL_mg_L <= max(a, search_range(demo6)[0])
+    assert len(tried) <= 16  # each trial is a simulated day
+
+
+def test_complying_search_without_a_complying_setpoint(monkeypatch, demo6):
+    found, tried = _search(monkeypatch, demo6, 2.0, lambda sp: False, nh4_broken=True)
+    assert found is None
+    lo, hi = search_range(demo6)
+    assert min(tried) == lo and max(tried) == hi and lo < 2.0 < hi  # both ways, to the ends of the range
+
+
+@pytest.mark.slow
+def test_lowest_complying_setpoint_below_a_baseline_that_breaks_tn(demo6):
+    # The demo (invented) with a TN limit between the TN of uniform 1.5 and 2 mg/L (less oxygen
+    # carried to the anoxic zone denitrifies more): the complying setpoint is found below 2 mg/L.
+    b15, b20 = run_baseline(demo6, 1.5), run_baseline(demo6, 2.0)
+    tn15, tn20 = b15.day.figures["tn_mean_mg_L"], b20.day.figures["tn_mean_mg_L"]
+    assert tn15 < tn20  # the premise of this test, on this plant
+    plant = replace(demo6, limits=replace(demo6.limits, tn_mean_mg_L=0.5 * (tn15 + tn20)))
+    base = run_baseline(plant, 2.0)
+    assert base.violations and "TN daily mean" in base.violations[0]
+    found = complying_baseline(plant, base)
+    assert found is not None and not found.violations and found.setpoint_mg_L < 2.0
+    below = found.setpoint_mg_L - SEARCH_TOL_mg_L
+    if below >= search_range(plant)[0]:  # the lowest to the search's tolerance
+        assert run_baseline(plant, below, start_state=found.day.start_state()).violations

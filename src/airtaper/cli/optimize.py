@@ -19,7 +19,7 @@ import sys
 from airtaper.cli.main import add_output_options, number_option_problems
 from airtaper.errors import InputError, Problem
 from airtaper.layout import layout_input_files
-from airtaper.layout.overrides import load_layout_with_overrides
+from airtaper.plant import load_plant, resolve_plant
 from airtaper.report.outputs import output_folder
 from airtaper.report.study_files import console_summary, write_study_outputs
 
@@ -74,12 +74,14 @@ def run(args) -> int:
     if problems:
         raise InputError(problems)
     warnings: list = []
-    layout = load_layout_with_overrides(args.layout, args.overrides, warnings=warnings)
+    plant = load_plant(args.layout, args.overrides, warnings=warnings)
+    layout = plant.layout
     for w in warnings:
         print(str(w), file=sys.stderr)
     if args.day is not None:
         layout = _load_day(args.layout, layout, args.day)
-    if not any(z.grid is not None and z.aerated and z.fixed_kla_per_d is None for z in layout.zones):
+        plant = resolve_plant(layout)
+    if not plant.diffused:
         raise InputError(Problem(args.layout, "zones", "no zone has a diffuser grid: there is no airflow to optimise",
                                  None, "at least one aerated zone with a [zones.grid]"))
     if args.objective == "cost" and layout.tariff is None:

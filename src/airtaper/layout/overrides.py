@@ -128,6 +128,13 @@ def _blame(problem: Problem, overrides: dict, created: set[str], file: str) -> P
     return problem
 
 
+def blame_overrides(problems, overrides_path) -> list[Problem]:
+    """Problems found after validation (the plant's resolution), the ones at overridden keys naming the override file."""
+    file = os.fspath(overrides_path)
+    overrides = read_overrides(file)
+    return [_blame(p, overrides, set(), file) for p in problems]
+
+
 def load_layout_with_overrides(path, overrides_path=None, warnings: list | None = None) -> Layout:
     """:func:`~airtaper.layout.load_layout` with an override file applied before validation.
 
@@ -213,4 +220,5 @@ def overrides_to_toml(values: dict, header: str = "", comments: dict | None = No
     return "\n".join(lines) + "\n"
 
 
-__all__ = ["apply_overrides", "flatten", "load_layout_with_overrides", "load_layout_with_values", "overrides_to_toml", "read_overrides"]
+__all__ = ["apply_overrides", "blame_overrides", "flatten", "load_layout_with_overrides", "load_layout_with_values",
+           "overrides_to_toml", "read_overrides"]

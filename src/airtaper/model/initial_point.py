@@ -132,6 +132,23 @@ def _settler_estimate(m, data, feed: np.ndarray) -> None:
             calculate_variable_from_constraint(m.settler_velocity[t, layer], m.settler_flux_definition[t, layer])
 
 
+def set_layer_state(m, t, layers) -> None:
+    """Put known clarifier layers (layers, 13) from the top into time point ``t`` of a layered model.
+
+    Concentrations are clipped at 0; the layers' solids and effective settling velocities follow
+    from their own definitions (so those equations hold exactly at ``t``).
+    """
+    solids = [IDX[k] for k in ("XI", "XS", "XBH", "XBA", "XP")]
+    for layer, row in zip(m.LAYERS, np.asarray(layers, dtype=float)):
+        for k, c in enumerate(ASM1_COMPONENTS):
+            m.settler_conc[t, layer, c].set_value(max(float(row[k]), 0.0), skip_validation=True)
+        m.settler_tss[t, layer].set_value(max(float(m.tss_per_cod * row[solids].sum()), 1e-6),
+                                          skip_validation=True)
+    for layer in m.INTERFACES:
+        m.settler_velocity[t, layer].set_value(0.0)
+        calculate_variable_from_constraint(m.settler_velocity[t, layer], m.settler_flux_definition[t, layer])
+
+
 def set_start_state(m, start: dict) -> None:
     """Put a known steady state into a steady model's states (for example the simulator's).
 
@@ -146,15 +163,7 @@ def set_start_state(m, start: dict) -> None:
                 if not var.fixed:
                     var.set_value(max(float(row[k]), 0.0), skip_validation=True)
         if hasattr(m, "settler_conc") and start.get("layers") is not None:
-            solids = [IDX[k] for k in ("XI", "XS", "XBH", "XBA", "XP")]
-            for layer, row in zip(m.LAYERS, np.asarray(start["layers"], dtype=float)):
-                for k, c in enumerate(ASM1_COMPONENTS):
-                    m.settler_conc[t, layer, c].set_value(max(float(row[k]), 0.0), skip_validation=True)
-                m.settler_tss[t, layer].set_value(max(float(m.tss_per_cod * row[solids].sum()), 1e-6),
-                                                  skip_validation=True)
-            for layer in m.INTERFACES:
-                m.settler_velocity[t, layer].set_value(0.0)
-                calculate_variable_from_constraint(m.settler_velocity[t, layer], m.settler_flux_definition[t, layer])
+            set_layer_state(m, t, start["layers"])
     if start.get("waste_m3_d") is not None and not m.waste_m3_d[1].fixed:
         for p in m.PERIODS:
             m.waste_m3_d[p].set_value(float(start["waste_m3_d"]))
@@ -162,7 +171,7 @@ def set_start_state(m, start: dict) -> None:
 
 def sequential_pass(m) -> None:
     """Step 1 of :func:`initialise_steady`: estimates zone by zone, then the clarifier."""
-    data = m._train_data
+    data = m.train_data
     est = _zone_estimate(m, data, _assumed_srt(m, data))
     for t in m.STEPS:
         for i, z in enumerate(data.zones):
@@ -175,7 +184,7 @@ def sequential_pass(m) -> None:
     for z in m.GRID_ZONES:  # DO setpoint mode: airflow unknown
         for p in m.PERIODS:
             if m.airflow_Sm3_h[z, p].value is None:
-                lo, hi = data.layout.zone_airflow_range_Sm3_h(data.layout.zone(z))
+                lo, hi = m.aeration[z].airflow_range_Sm3_h
                 m.airflow_Sm3_h[z, p].set_value(0.5 * (lo + hi))
     if not m.waste_m3_d[1].fixed:
         for p in m.PERIODS:
@@ -401,7 +410,7 @@ def initialise_cyclic(m, steady=None, start: dict | None = None) -> InitReport:
     report = None
     if steady is None:
         airflow = {z: [m.airflow_Sm3_h[z, p].value for p in m.PERIODS] for z in m.GRID_ZONES}
-        steady = build_steady_model(m._train_data.layout, airflow=airflow)
+        steady = build_steady_model(m.train_data.plant, airflow=airflow)
         report = initialise_steady(steady, start=start)
     copy_steady_to_cyclic(steady, m)
     if report is None:

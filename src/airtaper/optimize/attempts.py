@@ -3,12 +3,17 @@
 Start from the baseline (:func:`start_from_day`): the airflow of every zone and
 period is the baseline's period-mean airflow (clipped into the zone's range), the
 zone concentrations at every model step are the simulated baseline states at the
-same time of day, the waste flow is the simulated one; the clarifier (a layered
-settler has states of its own) and everything else come from the model layer's
-cyclic initialisation (the steady state at mean load). Should the model's own
-continuation not settle, that steady state starts from the independent
-simulator's at the same mean airflows (:func:`simulated_steady_start`). Optionally a square solve
-of the model at those airflows makes the start satisfy the model equations.
+same time of day, the waste flow is the simulated one, and a layered clarifier's
+layers are the simulated day's at the same time of day too (the layers and the
+zones of one simulated trajectory: pairing the day's zones with the mean-load
+steady settler left return-sludge solids off by up to 5e3 g/m3/d, and Ipopt
+stalled in restoration on the layered demo). Everything else comes from the model
+layer's cyclic initialisation (the steady state at mean load). Should the model's
+own continuation not settle, that steady state starts from the independent
+simulator's at the same mean airflows (:func:`simulated_steady_start`); should that
+not settle either, the simulated day alone is the start (it gives every state).
+Optionally a square solve of the model at those airflows makes the start satisfy
+the model equations.
 
 Retry ladder (:data:`LADDER`): when a solve fails, the next rung changes one thing:
 
@@ -31,7 +36,7 @@ import numpy as np
 
 from airtaper.errors import ModelError, NoSteadyStateError
 from airtaper.layout.types import ASM1_COMPONENTS
-from airtaper.model.initial_point import initialise_cyclic
+from airtaper.model.initial_point import initialise_cyclic, set_layer_state
 from airtaper.optimize.simday import SimDay
 
 
@@ -63,11 +68,10 @@ LADDER: tuple[Rung, ...] = (
 
 def start_airflow(m, day: SimDay, factor: float = 1.0) -> dict:
     """Zone id -> per-period start airflow: baseline period means x factor, clipped to the zone's range."""
-    layout = m._train_data.layout
     means = day.period_mean_airflow()
     out = {}
     for z in m.GRID_ZONES:
-        lo, hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))
+        lo, hi = m.aeration[z].airflow_range_Sm3_h
         out[z] = np.clip(np.asarray(means[z]) * factor, lo, hi)
     return out
 
@@ -91,14 +95,23 @@ def start_from_day(m, day: SimDay, airflow: dict) -> None:
         # the model's own continuation did not settle: start it from the independent
         # simulator's steady state at the same mean airflows (a root solve that cannot stall),
         # unless that state shows the plant cannot hold its target sludge age at all
-        start, clarifier = simulated_steady_start(m._train_data.layout, airflow)
+        plant = m.train_data.plant
+        start, clarifier = simulated_steady_start(plant.layout, airflow)
         if clarifier is not None and not clarifier["srt_held"]:
-            raise NoSteadyStateError(f"{m._train_data.layout.path}: clarifier: no steady state at the target "
+            raise NoSteadyStateError(f"{plant.path}: clarifier: no steady state at the target "
                                      f"sludge age: {clarifier['message']}", cause="overloaded") from None
-        initialise_cyclic(m, start=start)
+        try:
+            initialise_cyclic(m, start=start)
+        except ModelError:
+            # Every state the mean-load steady state would give is replaced by the simulated day's
+            # below (zones, clarifier layers, waste flow): the day alone is a start. A plant whose
+            # day lacks some of them (a layered model without the day's layers) has no start.
+            if hasattr(m, "settler_conc") and day.layers is None:
+                raise
     zones = list(m.ZONES)
     index = {c: k for k, c in enumerate(ASM1_COMPONENTS)}
     hours = point_hours(m)
+    layered = hasattr(m, "settler_conc") and day.layers is not None
     for t in m.STEPS:
         state = day.state_at(hours[t])
         for i, z in enumerate(zones):
@@ -106,6 +119,8 @@ def start_from_day(m, day: SimDay, airflow: dict) -> None:
                 v = m.conc[t, z, c]
                 if not v.fixed:
                     v.set_value(max(float(state[i, index[c]]), 0.0), skip_validation=True)
+        if layered:  # the simulated day's layers, consistent with its zones (not the mean-load settler)
+            set_layer_state(m, t, day.layers_at(hours[t]))
     if not m.waste_m3_d[1].fixed:  # a target SRT: the waste flow is a variable
         mean = float(np.mean(day.extra["waste_m3_d"]))
         for p in m.PERIODS:

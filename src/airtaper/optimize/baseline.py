@@ -4,18 +4,22 @@ Every aerated zone with diffusers is held at one DO setpoint (the layout's
 ``operation.baseline_do_setpoint_mg_L``, 2.0 mg/L unless set; a zone's own DO
 range clips it) by the simulator's ideal DO control; the simulator returns the
 airflow that control needs at every step, and the blower energy and cost follow
-from :class:`~airtaper.optimize.airside.AirSide` step by step. Its figures are
+from :class:`~airtaper.plant.AirSide` step by step. Its figures are
 compared with the same limits as the optimum (:mod:`airtaper.optimize.compliance`).
 A setpoint the control cannot hold (the zone at full air below it) is simulated at
 full air and listed with its zone and hours (``setpoint_not_held``).
 
 When the baseline breaks a limit, a saving against it flatters the optimum:
 :func:`complying_baseline` finds the lowest uniform setpoint whose simulated day
-meets the limits, by bracketing upward from the baseline's setpoint (steps of
-:data:`SEARCH_STEPS_mg_L`, up to :data:`SEARCH_MAX_mg_L`) and bisecting the bracket to
-:data:`SEARCH_TOL_mg_L`. It assumes compliance does not get lost again at higher
-setpoints (true of NH4-N; a TN limit broken by too much DO is not cured upward, and
-the search then reports no complying setpoint).
+meets the limits. It brackets both ways from the baseline's setpoint: upward first
+when effluent NH4-N is broken (more oxygen nitrifies more), downward first otherwise
+(a TN limit or a DO maximum broken by too much oxygen), the other way when the first
+finds nothing; steps of :data:`SEARCH_STEPS_mg_L` between :data:`SEARCH_MIN_mg_L` and
+:data:`SEARCH_MAX_mg_L` (narrowed by the zones' DO ranges, :func:`search_range`). A
+complying setpoint found below the baseline is followed further down until the limits
+break again; the bracket (breaking below, complying above) is then bisected to
+:data:`SEARCH_TOL_mg_L`. Within one bracket it assumes
+compliance is one interval of setpoints (true of NH4-N alone and of TN alone).
 """
 
 from __future__ import annotations
@@ -35,8 +39,11 @@ from airtaper.optimize.simday import SimDay, simulate_day
 #: (ideal control, 1-minute time constant); the same as the optimum's continuous-time
 #: acceptance (:mod:`airtaper.optimize.backoff`). Effluent limits are exact.
 DO_TOLERANCE_mg_L = 0.01
-#: Steps of the upward bracketing search above the baseline setpoint, mg/L (cumulative).
+#: Steps of the bracketing search away from the baseline setpoint, mg/L (cumulative).
 SEARCH_STEPS_mg_L = (0.25, 0.5, 1.0, 2.0, 4.0)
+#: Lowest uniform setpoint tried, mg/L; common practice (no source): diffused aeration is
+#: not controlled to a DO setpoint much below about 0.5 mg/L.
+SEARCH_MIN_mg_L = 0.5
 #: Highest uniform setpoint tried, mg/L; common practice (no source): DO above about
 #: 6 mg/L is not an operating point of diffused aeration.
 SEARCH_MAX_mg_L = 6.0
@@ -103,7 +110,7 @@ def baseline_setpoints(layout: Layout, setpoint_mg_L: float | None = None) -> di
     sp = layout.operation.baseline_do_setpoint_mg_L if setpoint_mg_L is None else float(setpoint_mg_L)
     out = {}
     for z in layout.zones:
-        if z.kind != "aerated" or z.grid is None or z.fixed_kla_per_d is not None:
+        if z.kind != "aerated" or not z.has_diffusers:
             continue
         v = sp
         if z.do_max_mg_L is not None:
@@ -125,29 +132,66 @@ def run_baseline(layout: Layout, setpoint_mg_L: float | None = None, start_state
 
 
 def complying_baseline(layout: Layout, base: Baseline) -> Baseline | None:
-    """The lowest uniform DO setpoint above ``base``'s whose day meets the limits (module notes); None if none."""
-    lo = base.setpoint_mg_L
-    start = base.day.start_state()
-    found = None
+    """The lowest uniform DO setpoint whose day meets the limits, bracketed both ways (module notes); None if none."""
+    f, lim = base.day.figures, layout.limits
+    nh4_broken = any(limit is not None and f[key] > limit
+                     for key, limit in (("nh4_mean_mg_L", lim.nh4_mean_mg_L), ("nh4_max_mg_L", lim.nh4_max_mg_L)))
+    for direction in ((1.0, -1.0) if nh4_broken else (-1.0, 1.0)):
+        found = _bracket(layout, base, direction)
+        if found is not None:
+            return found
+    return None
+
+
+def search_range(layout: Layout) -> tuple[float, float]:
+    """Lowest and highest uniform setpoint the search tries, mg/L: :data:`SEARCH_MIN_mg_L` and
+    :data:`SEARCH_MAX_mg_L`, narrowed to where the zones' own DO ranges still let the setpoint change
+    something (below every zone's DO minimum, or above every zone's DO maximum, the days are the same)."""
+    zones = [z for z in layout.zones if z.id in baseline_setpoints(layout, 1.0)]
+    lo, hi = SEARCH_MIN_mg_L, SEARCH_MAX_mg_L
+    if zones and all(z.do_min_mg_L is not None for z in zones):
+        lo = max(lo, min(z.do_min_mg_L for z in zones))
+    if zones and all(z.do_max_mg_L is not None for z in zones):
+        hi = min(hi, max(z.do_max_mg_L for z in zones))
+    return lo, max(hi, lo)
+
+
+def _steps_from(layout: Layout, origin: Baseline, direction: float, last_complies: bool):
+    """Trials stepping away from ``origin`` in ``direction`` until compliance changes from ``last_complies``.
+
+    Returns (the last trial like ``origin``, the first trial unlike it or None): the first is
+    ``origin`` itself when the first step already changes.
+    """
+    same, start = origin, origin.day.start_state()
+    lo, hi = search_range(layout)
     for step in SEARCH_STEPS_mg_L:
-        sp = min(base.setpoint_mg_L + step, SEARCH_MAX_mg_L)
-        if sp <= lo:
+        sp = float(np.clip(origin.setpoint_mg_L + direction * step, lo, hi))
+        if direction * (sp - same.setpoint_mg_L) <= 0.0:  # at the end of the range
             break
         trial = _try(layout, sp, start)
         if trial is None:
             break
-        if not trial.violations:
-            found = trial
-            break
-        lo, start = sp, trial.day.start_state()
-    if found is None:
+        if (not trial.violations) != last_complies:
+            return same, trial
+        same, start = trial, trial.day.start_state()
+    return same, None
+
+
+def _bracket(layout: Layout, base: Baseline, direction: float) -> Baseline | None:
+    """Search one direction from the (breaking) baseline; the lowest complying setpoint found, or None."""
+    breaking, complying = _steps_from(layout, base, direction, last_complies=False)
+    if complying is None:
         return None
-    hi = found.setpoint_mg_L
-    while hi - lo > SEARCH_TOL_mg_L:
-        mid = 0.5 * (lo + hi)
+    if direction < 0:  # complying below the baseline: go on down to where the limits break again
+        complying, breaking = _steps_from(layout, complying, -1.0, last_complies=True)
+        if breaking is None:  # complies down to the end of the range
+            return complying
+    lo, found = breaking.setpoint_mg_L, complying
+    while found.setpoint_mg_L - lo > SEARCH_TOL_mg_L:
+        mid = 0.5 * (lo + found.setpoint_mg_L)
         trial = _try(layout, mid, found.day.start_state())
         if trial is not None and not trial.violations:
-            found, hi = trial, mid
+            found = trial
         else:
             lo = mid
     return found
@@ -160,4 +204,4 @@ def _try(layout: Layout, setpoint_mg_L: float, start) -> Baseline | None:
         return None
 
 
-__all__ = ["Baseline", "baseline_setpoints", "complying_baseline", "run_baseline"]
+__all__ = ["Baseline", "baseline_setpoints", "complying_baseline", "run_baseline", "search_range"]

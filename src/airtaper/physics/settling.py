@@ -19,7 +19,12 @@ from __future__ import annotations
 
 import numpy as np
 
-from airtaper.physics.backend import exp, is_pyomo, smooth_max
+from airtaper.physics.backend import exp, is_pyomo
+from airtaper.physics.smooth import smooth_max
+
+
+#: Largest exponent the velocity evaluates for numbers (e**40 ~ 2e17: finite, and its square too).
+_EXPONENT_FLOOR = 40.0
 
 
 def takacs_velocity_m_d(tss_g_m3, tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g, smoothing_m_d=0.0):
@@ -45,6 +50,11 @@ def takacs_velocity_m_d(tss_g_m3, tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_
     ``vs = max(0, min(v0', v0 (exp(-rh (X - Xmin)) - exp(-rp (X - Xmin)))))``.
     """
     x = tss_g_m3 - tss_min_g_m3
+    if not is_pyomo(x):
+        # far below the non-settleable solids the velocity is clamped to 0 whatever x is; the floor
+        # keeps exp(-rp x) finite for any iterate (a Newton step of a root solve may overshoot far
+        # below 0 before it is corrected), so no overflow turns into inf - inf = nan
+        x = np.maximum(x, -_EXPONENT_FLOOR / max(rh_m3_g, rp_m3_g))
     v = v0_m_d * (exp(-rh_m3_g * x) - exp(-rp_m3_g * x))
     if smoothing_m_d > 0.0 or is_pyomo(v):
         s = smoothing_m_d if smoothing_m_d > 0.0 else 1e-2

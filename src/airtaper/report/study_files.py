@@ -6,8 +6,8 @@ ones the optimisation produces:
 * ``schedule`` — one row per period and aerated zone: ``period_start_h``,
   ``period_end_h``, ``zone``, ``airflow_Sm3_h``, ``airflow_per_diffuser_Sm3_h``,
   ``do_min_mg_L``, ``do_mean_mg_L``, ``nh4_mean_mg_L``, ``otr_kg_h``;
-* ``header`` — one row per period: ``period``, ``pressure_kPa``,
-  ``airflow_Sm3_h``, ``power_kW``;
+* ``header`` — one row per period: ``period_start_h``, ``period_end_h``,
+  ``pressure_gauge_kPa``, ``airflow_Sm3_h``, ``power_kW``;
 * ``blowers`` — one row per period and blower, when the run stages blowers;
 * ``timeseries`` — one row per time step and zone (states, airflow, OTR);
 * ``summary`` — a JSON-serialisable dict (see docs and :func:`console_summary`).
@@ -25,7 +25,7 @@ from airtaper.report.atomic import write_csv_atomic, write_json_atomic
 from airtaper.report.build import REPORT_NAMES, write_report
 from airtaper.report.text import CAUTION
 from airtaper.report.text import fmt as _fmt
-from airtaper.report.text import fmt_margin
+from airtaper.report.text import fmt_margin, marginal_sentence
 
 OUTPUT_NAMES = ("schedule.csv", "header.csv", "blowers.csv", "timeseries.csv", "summary.json") + REPORT_NAMES
 
@@ -107,11 +107,8 @@ def console_summary(summary: dict) -> str:
         f"verified          {_fmt(ver.get('verified'))}",
     ]
     lines.extend(_dispatch_lines(summary.get("dispatch"), cur))
-    for item in summary.get("marginal_costs") or []:
-        slack = "" if item.get("binding", True) else " (not binding)"
-        lines.append(f"marginal          {item.get('limit')} {item.get('where', '')}: "
-                     f"{_fmt(item.get('kWh_per_day'), 1)} kWh/d, {_fmt(item.get('cost_per_day'), 2)} {cur}/d "
-                     f"{item.get('per', '')}{slack}")
+    for item in summary.get("marginal_costs") or []:  # in the report's words (report.text)
+        lines.append(f"marginal          {marginal_sentence(item, cur)}")
     for m in summary.get("messages", []) or []:
         lines.append(f"note              {m}")
     lines.append("caution           " + CAUTION)
