@@ -6,4 +6,6 @@
 * :mod:`~airtaper.cli.optimize` - ``airtaper optimize``: the diurnal schedule, verified, with its report
 * :mod:`~airtaper.cli.report` - ``airtaper report``: rebuild the report of a finished output folder
 * :mod:`~airtaper.cli.calibrate` - ``airtaper calibrate``: alpha x F (and mu_A, K_OH) fitted to plant data
+* :mod:`~airtaper.cli.sweep` - ``airtaper sweep``: a grid of scenarios, each an ``optimize`` run on Dask, one table
+* :mod:`~airtaper.cli.year` - ``airtaper year``: representative days on the sweep's Dask path, weighted into a year
 """

@@ -32,7 +32,7 @@ from airtaper.errors import EXIT_FAILURE, EXIT_INPUT, EXIT_OK, AirtaperError, In
 
 #: Subcommand modules under airtaper.cli, in the order `airtaper --help` lists them.
 COMMANDS: tuple[str, ...] = ("check", "simulate", "optimize", "report", "calibrate", "design", "compare", "sweep",
-                             "year")
+                            "year")
 
 #: Exit codes of a run stopped by a signal (the shell's 128 + signal number).
 EXIT_INTERRUPTED = 128 + signal.SIGINT

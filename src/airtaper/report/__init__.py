@@ -11,6 +11,7 @@
 * :mod:`~airtaper.report.columns` - units of the output columns, for headings
 * :mod:`~airtaper.report.text` - the caution, number formats, marginal costs in words
 * :mod:`~airtaper.report.calibration` - the outputs of ``airtaper calibrate``
+* :mod:`~airtaper.report.sweep` - the report of ``airtaper sweep`` and ``airtaper year`` (table and figures)
 
 docs/outputs.md lists every file, column and summary key.
 """
