@@ -8,4 +8,6 @@
 * :mod:`~airtaper.cli.calibrate` - ``airtaper calibrate``: alpha x F (and mu_A, K_OH) fitted to plant data
 * :mod:`~airtaper.cli.sweep` - ``airtaper sweep``: a grid of scenarios, each an ``optimize`` run on Dask, one table
 * :mod:`~airtaper.cli.year` - ``airtaper year``: representative days on the sweep's Dask path, weighted into a year
+* :mod:`~airtaper.cli.sweep` - ``airtaper sweep``: a grid of scenarios, each an ``optimize`` run on Dask, one table
+* :mod:`~airtaper.cli.year` - ``airtaper year``: representative days on the sweep's Dask path, weighted into a year
 """

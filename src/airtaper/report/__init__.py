@@ -12,6 +12,7 @@
 * :mod:`~airtaper.report.text` - the caution, number formats, marginal costs in words
 * :mod:`~airtaper.report.calibration` - the outputs of ``airtaper calibrate``
 * :mod:`~airtaper.report.sweep` - the report of ``airtaper sweep`` and ``airtaper year`` (table and figures)
+* :mod:`~airtaper.report.sweep` - the report of ``airtaper sweep`` and ``airtaper year`` (table and figures)
 
 docs/outputs.md lists every file, column and summary key.
 """
