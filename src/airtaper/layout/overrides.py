@@ -131,7 +131,11 @@ def _blame(problem: Problem, overrides: dict, created: set[str], file: str) -> P
 def blame_overrides(problems, overrides_path) -> list[Problem]:
     """Problems found after validation (the plant's resolution), the ones at overridden keys naming the override file."""
     file = os.fspath(overrides_path)
-    overrides = read_overrides(file)
+    return blame_values(problems, read_overrides(file), file)
+
+
+def blame_values(problems, overrides: dict, file: str) -> list[Problem]:
+    """:func:`blame_overrides` for overrides given as ``{key path: value}``, labelled ``file``."""
     return [_blame(p, overrides, set(), file) for p in problems]
 
 
@@ -220,5 +224,5 @@ def overrides_to_toml(values: dict, header: str = "", comments: dict | None = No
     return "\n".join(lines) + "\n"
 
 
-__all__ = ["apply_overrides", "blame_overrides", "flatten", "load_layout_with_overrides", "load_layout_with_values",
+__all__ = ["apply_overrides", "blame_overrides", "blame_values", "flatten", "load_layout_with_overrides", "load_layout_with_values",
            "overrides_to_toml", "read_overrides"]

@@ -25,7 +25,8 @@ varies fastest), then the listed ones under their own ids.
 
 :func:`read_grid` checks the file's own shape (one :class:`InputError` naming the
 file and key). :func:`check_scenario` then validates each scenario's layout through
-the layout's parser; a problem there names the grid file, the scenario and the key,
+the layout's parser and the plant's resolution (:func:`airtaper.plant.resolve_plant`,
+the checks ``optimize`` runs); a problem there names the grid file, the scenario and the key,
 and is that scenario's failed row rather than the end of the sweep.
 """
 
@@ -36,10 +37,12 @@ import re
 from dataclasses import dataclass
 
 from airtaper.errors import InputError, Problem
-from airtaper.layout.overrides import flatten, load_layout_with_values
+from airtaper.layout.loaddays import day_layout
+from airtaper.layout.overrides import blame_values, flatten, load_layout_with_values
 from airtaper.layout.parse import parse_toml_text
 from airtaper.layout.textfile import read_text_file
 from airtaper.layout.types import Layout
+from airtaper.plant import resolve_plant
 
 MAX_GRID_BYTES = 2_000_000
 #: Most scenarios one grid file may describe (a typo such as a 1000-value axis times
@@ -174,12 +177,20 @@ def check_scenario(layout_path, grid_path: str, scenario: Scenario, warnings: li
     except InputError as exc:
         raise InputError([scenario_problem(grid_path, scenario.id, p, label) for p in exc.problems],
                          warnings=exc.warnings) from None
+    studied = layout
     if "--day" in scenario.options:
         day = scenario.options[scenario.options.index("--day") + 1]
         ids = [d.id for d in layout.load_days]
         if day not in ids:
             raise InputError(Problem(grid_path, f"scenario {scenario.id}: day", "no load day with that id", day,
                                      f"one of {', '.join(ids)}" if ids else "a layout with [[load_days]]"))
+        studied = day_layout(layout, next(d for d in layout.load_days if d.id == day))
+    try:  # the checks of the plant's resolution, as `optimize` runs them
+        resolve_plant(studied, warnings)
+    except InputError as exc:
+        raise InputError([scenario_problem(grid_path, scenario.id, p, label)
+                          for p in blame_values(exc.problems, scenario.values, label)], warnings=exc.warnings) \
+            from None
     return layout
 
 
