@@ -40,7 +40,7 @@ sys.path.insert(0, str(ROOT / "src"))
 
 from airtaper.layout import load_layout  # noqa: E402
 from airtaper.layout.types import DiffuserGrid  # noqa: E402
-from airtaper.optimize.airside import AirSide  # noqa: E402
+from airtaper.plant import resolve_plant  # noqa: E402
 from airtaper.optimize.compliance import violations  # noqa: E402
 from airtaper.optimize.horizon import with_periods  # noqa: E402
 from airtaper.optimize.simday import simulate_day  # noqa: E402
@@ -184,7 +184,7 @@ def black_box(quick: bool) -> None:
     print("3. black box (scipy SLSQP over the independent simulator) against the optimiser, "
           "three tanks x 6 periods")
     lay = reduced_instance()
-    side = AirSide(lay)
+    side = resolve_plant(lay).air
     zones = [z.id for z in side.zones]
     n_p = lay.horizon.n_periods
     t0 = time.perf_counter()

@@ -92,6 +92,10 @@ def report(name, layout):
     if d.get("swing_zones"):
         for z, v in d["swing_zones"].items():
             print(f"swing zone {z}: aerated in periods {v['aerated_periods']}, {v['switches']} switches")
+        for x in d["rounds"]:
+            if x.get("round") == 0 and "status" in x:
+                obj = "-" if x.get("objective") is None else f"{x['objective']:.5f}"
+                print(f"  {x['step']}: {x['status']}, objective {obj}, {x['seconds']:.1f} s")
     return 0 if s2["status"] == "optimal" else 1
 
 

@@ -94,3 +94,15 @@ def test_the_package_has_no_import_circle():
     graph = import_graph()
     assert "airtaper.model.train" in graph and "airtaper.model.clarifier" in graph["airtaper.model.train"]
     assert circles(graph) == []
+
+
+def test_every_package_docstring_maps_its_modules():
+    # each package's __init__ names every module of the package (``airtaper.<package>.<module>``)
+    missing = []
+    for init in sorted(ROOT.glob("*/__init__.py")):
+        package = init.parent.name
+        doc = ast.get_docstring(ast.parse(init.read_text(encoding="utf-8"))) or ""
+        for module in sorted(init.parent.glob("*.py")):
+            if module.name != "__init__.py" and f"airtaper.{package}.{module.stem}`" not in doc:
+                missing.append(f"airtaper.{package}.{module.stem}")
+    assert missing == []

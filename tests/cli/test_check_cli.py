@@ -48,6 +48,10 @@ def test_check_demo_prints_the_train(capsys):
     assert rows["Z6"] == ["Z6", "aerated", "900", "1.80", "380", "x", "disc_040", "9.3", "380-2,660"]
     assert rows["total"] == ["total", "5,600", "11.20", "2,880", "2,880-20,160"]
     assert "recycle IR Z6 -> Z1 2.5 x Q" in out and "objective: cost" in out
+    assert "load days (365 days in all):" in lines
+    assert "  peak 1 d: flow x 1.3, load x 1.5, alpha x 0.9" in lines
+    assert "  winter 90 d: flow x 1, load x 1, water 12 C" in lines
+    assert "capital: 90 EUR per diffuser, 15000 EUR per zone, 5 % over 15 years" in lines
 
 
 def test_check_three_tank(capsys):
@@ -103,7 +107,7 @@ def test_no_command_and_usage_errors_exit_2(capsys):
 def test_internal_failure_is_reported_without_traceback(monkeypatch, capsys):
     def boom(*args, **kwargs):
         raise RuntimeError("simulated")
-    monkeypatch.setattr(check_cmd, "load_layout", boom)
+    monkeypatch.setattr(check_cmd, "load_plant", boom)
     monkeypatch.delenv("AIRTAPER_DEBUG", raising=False)
     assert main(["check", str(DEMO)]) == EXIT_FAILURE
     err = capsys.readouterr().err

@@ -495,3 +495,11 @@ def test_pipe_given_as_layout_is_refused_without_waiting(tmp_path):
     os.mkfifo(fifo)  # opening it would wait for a writer forever
     assert _load_errors(fifo) == [f"error: {fifo}: (file): cannot read the layout: not a regular file (got 'a pipe', "
                                   "expected a regular file)"]
+
+
+def test_an_empty_blowers_list_is_no_blowers(demo_data, errors_of):
+    # found by the parser fuzz: `blowers = []` parsed, but its dump (no blowers key) did not
+    demo_data["blowers"] = []
+    assert errors_of(demo_data) == [
+        "error: bad.toml: blowers: zones have diffuser grids but there are no blowers (expected at least one "
+        "[[blowers]] table)"]

@@ -96,7 +96,10 @@ def test_apply_does_not_change_its_input():
 
 _keys = st.text("abcdefgXYZ_-0123456789", min_size=1, max_size=8)
 _values = st.one_of(st.floats(allow_nan=False, allow_infinity=False), st.integers(-10**6, 10**6), st.booleans(),
-                    st.text(max_size=12), st.lists(st.floats(allow_nan=False, allow_infinity=False), max_size=3))
+                    st.text(max_size=12), st.lists(st.floats(allow_nan=False, allow_infinity=False), max_size=3),
+                    # arrays of inline tables (a year writes a month as one [[load_days]] table)
+                    st.lists(st.dictionaries(_keys, st.one_of(st.floats(allow_nan=False, allow_infinity=False),
+                                                              st.text(max_size=5)), max_size=3), max_size=2))
 
 
 @settings(max_examples=FUZZ, deadline=None)

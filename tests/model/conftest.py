@@ -48,7 +48,7 @@ def plant_balance(m, t, p=None):
     removes COD and N2 formation adds ``-cod_of_n2`` per g N2-N (Henze et al. 1987 ThOD
     convention); at steady state, or summed over a periodic day, both must vanish.
     """
-    d = m._train_data
+    d = m.train_data
     p = m.period_of_step[t] if p is None else p
     par = d.params[p - 1]
     cod, n = cod_composition(par), n_composition(par)

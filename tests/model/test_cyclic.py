@@ -65,7 +65,7 @@ def test_every_step_of_the_march_conserves_cod_and_nitrogen(marched, plant_balan
     from airtaper.process.stoichiometry import cod_composition, n_composition
 
     m = marched
-    par = m._train_data.params[0]
+    par = m.train_data.params[0]
     wc, wn = cod_composition(par), n_composition(par)
     comps = list(m.COMPONENTS)
 
@@ -124,8 +124,8 @@ def test_constant_load_cyclic_day_is_the_steady_state(bsm1_layered, bsm1_steady)
         v.set_value(v.value * 1.05)
     run = solve_square(m, solve_nlp, initialise=False)
     assert run.result.ok
-    zc = results.zone_concentrations(m).drop(columns=["hour", "period"])
-    ref = results.zone_concentrations(bsm1_steady).drop(columns=["hour", "period"]).xs(1, level="step")
+    zc = results.zone_concentrations(m).drop(columns=["time_h", "period"])
+    ref = results.zone_concentrations(bsm1_steady).drop(columns=["time_h", "period"]).xs(1, level="step")
     for t in (1, 7, 24):
         assert np.allclose(zc.xs(t, level="step").to_numpy(), ref.to_numpy(), rtol=1e-6, atol=1e-8)
 

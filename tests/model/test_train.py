@@ -34,7 +34,7 @@ BSM1_REACTORS = {
                SNO=10.415, SNH=1.733, SND=0.68828, XND=3.5269, SALK=4.1256),
 }
 BSM1_EFFLUENT = dict(SI=30, SS=0.88949, XI=4.3918, XS=0.18812, XBH=9.7828, XBA=0.57252, SO=0.49094,
-                     SNO=10.415, SNH=1.733, SND=0.68828, XND=0.013473, SALK=4.1256, TSS=12.497)
+                     SNO=10.415, SNH=1.733, SND=0.68828, XND=0.013473, SALK=4.1256, tss_mg_L=12.497)
 BSM1_EFFLUENT["XP"] = BSM1_REACTORS["R5"]["XP"] * BSM1_EFFLUENT["XI"] / BSM1_REACTORS["R5"]["XI"]
 
 
@@ -89,11 +89,11 @@ def _ideal(tss):
 
 def test_ideal_separator_with_the_layered_effluent_tss_reproduces_the_layered_plant(bsm1_steady):
     # at steady state the layered settler is a non-reactive separator: only its effluent TSS matters
-    tss = float(results.effluent(bsm1_steady).loc[1, "TSS"])
+    tss = float(results.effluent(bsm1_steady).loc[1, "tss_mg_L"])
     m = build_steady_model(_ideal(tss))
     initialise_steady(m)
-    a = results.zone_concentrations(m).drop(columns=["hour", "period"]).to_numpy()
-    b = results.zone_concentrations(bsm1_steady).drop(columns=["hour", "period"]).to_numpy()
+    a = results.zone_concentrations(m).drop(columns=["time_h", "period"]).to_numpy()
+    b = results.zone_concentrations(bsm1_steady).drop(columns=["time_h", "period"]).to_numpy()
     assert np.allclose(a, b, rtol=1e-6, atol=1e-8)
 
 

@@ -47,3 +47,9 @@ def three_tank_diurnal(three_tank_6):
 @pytest.fixture(scope="session")
 def demo():
     return _load(DEMO)
+
+
+@pytest.fixture(scope="session")
+def fenwhistle():
+    """The invented plant with a swing zone and three unlike blowers (layouts/fenwhistle.toml)."""
+    return _load(ROOT / "layouts" / "fenwhistle.toml")

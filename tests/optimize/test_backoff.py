@@ -26,6 +26,17 @@ def test_shortfalls_name_only_the_zone_periods_below_the_minimum(demo):
     assert low == found and high == {("Z6", 4): pytest.approx(0.3)}
 
 
+def test_a_swing_zone_is_backed_off_only_in_periods_aerated_after_an_aerated_period(demo):
+    """Off, a swing zone has no DO minimum; in the period it is switched on its DO rises from nothing (the
+    optimiser holds the minimum from that period's second step): no back-off can help there."""
+    lows = {"Z2": np.full(6, 0.0)}
+    on = np.array([False, True, True, True, False, False])
+    backoff = {("Z2", p): 0.0 for p in range(1, 7)}
+    assert set(shortfalls(demo, lows, backoff, list(range(1, 7)))) == {("Z2", p) for p in range(1, 7)}
+    found = shortfalls(demo, lows, backoff, list(range(1, 7)), swing_states={"Z2": on})
+    assert set(found) == {("Z2", 3), ("Z2", 4)}  # period 2 is the switch-on, 1, 5 and 6 are off
+
+
 def test_back_offs_leave_half_of_a_zone_s_do_range_open(demo):
     from airtaper.optimize.backoff import OPEN_SHARE, _keep_band_open
 

@@ -214,7 +214,9 @@ def test_unmeetable_demand_is_a_finding_with_periods_and_shortfall():
     assert periods[2]["shortfall_Sm3_h"] == pytest.approx(500.0)  # 5000 asked, 4500 installed
     assert "capacity" in periods[2]["message"]
     assert periods[3]["shortfall_Sm3_h"] == pytest.approx(400.0)  # below every machine's minimum, no room
-    assert "90.0 kPa" in periods[4]["message"]
+    assert "below the smallest blower's minimum (X 1000 Sm3/h" in periods[3]["message"]
+    assert "90.0 kPa" in periods[4]["message"] and "no blower in service" in periods[4]["message"]
+    assert periods[4]["shortfall_Sm3_h"] == pytest.approx(1500.0)  # nothing can run at 90 kPa
 
 
 def test_out_of_service_machine_never_runs():

@@ -17,6 +17,7 @@ from airtaper.optimize.compliance import violations
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.marginal import raw_derivatives
 from airtaper.optimize.diurnal import StudyOptions, run_optimization
+from airtaper.optimize.results import SUMMARY_KEYS
 
 pytestmark = pytest.mark.solver
 
@@ -53,7 +54,10 @@ def test_outputs_have_the_promised_columns(solved):
                                              "airflow_per_diffuser_Sm3_h", "do_min_mg_L", "do_mean_mg_L",
                                              "nh4_mean_mg_L", "otr_kg_h", "baseline_airflow_Sm3_h",
                                              "baseline_do_mean_mg_L"]
-    assert list(solved.header.columns) == ["period", "pressure_kPa", "airflow_Sm3_h", "power_kW", "baseline_power_kW"]
+    assert list(solved.header.columns) == ["period_start_h", "period_end_h", "pressure_gauge_kPa", "airflow_Sm3_h",
+                                           "power_kW", "baseline_power_kW"]
+    # the summary is the typed structure's JSON: its keys, in its order
+    assert list(solved.summary) == list(SUMMARY_KEYS)
     # the baseline beside the optimum: its period means give back the baseline's day
     base = solved.summary["baseline"]["energy_kWh_per_day"]
     period_h = solved.schedule["period_end_h"].iloc[0] - solved.schedule["period_start_h"].iloc[0]

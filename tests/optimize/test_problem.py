@@ -9,7 +9,7 @@ import pyomo.environ as pyo
 import pytest
 
 from airtaper.model.train import build_cyclic_model
-from airtaper.optimize.airside import AirSide
+from airtaper.plant import resolve_plant
 from airtaper.optimize.dispatch import evaluate
 from airtaper.optimize.problem import LIMIT_GROUPS, attach_problem, max_power_line_kW, settings_for
 from airtaper.optimize.staging import apply_dispatch, model_air_state
@@ -20,7 +20,7 @@ from airtaper.physics.blower import blower_power_kW
 def attached(three_tank_6):
     m = build_cyclic_model(three_tank_6, airflow={"T1": 900.0, "T2": 600.0, "T3": 450.0})
     before = {k: pyo.value(v) for k, v in m.kla_per_d.items()}
-    attach_problem(m, three_tank_6, settings_for(three_tank_6, 1000.0))
+    attach_problem(m, settings_for(three_tank_6, 1000.0))
     return m, before
 
 
@@ -33,7 +33,7 @@ def test_kla_on_the_count_parameter_equals_the_models_own(attached):
 def test_more_diffusers_raise_kla_at_the_same_airflow(attached):
     """SOTE falls with airflow per diffuser and rises with density (the fitted curve's exponents)."""
     m, before = attached
-    m.opt.diffuser_count["T1"] = 500.0
+    m.diffuser_count["T1"] = 500.0
     assert pyo.value(m.kla_per_d["T1", 1]) > before["T1", 1]
     assert pyo.value(m.kla_per_d["T2", 1]) == pytest.approx(before["T2", 1], rel=1e-12)
 
@@ -54,7 +54,7 @@ def test_staged_power_lines_match_the_dispatch_and_the_pinned_formula(attached, 
     every set's power."""
     m, _ = attached
     b = m.opt
-    side = AirSide(three_tank_6)
+    side = resolve_plant(three_tank_6).air
     sched = {z: [m.airflow_Sm3_h[z, p].value for p in m.PERIODS] for z in b.ZONES}
     figs = side.schedule_figures(sched)
     for p in m.PERIODS:

@@ -118,13 +118,42 @@ def test_swing_zone_gets_no_air_below_its_grid_or_mixing_minimum(swing_run, fenw
     on = rows["aerated"].to_numpy(dtype=bool)
     assert int(np.sum(on != np.roll(on, 1))) <= zone.max_switches_per_day
     _machines_within_their_ranges(swing_run, fenwhistle_6)
-    # the independent simulator agrees with the schedule: the effluent limits hold within 2 %; on this
-    # coarse grid (4-h periods, DO tight at 1 mg/L at every collocation point) the simulated DO may dip
-    # below a zone's minimum by up to about 0.15 mg/L between points (on the layout's own 24 one-hour
-    # periods the schedule verifies within 0.05 mg/L)
+    # the independent simulator agrees with the schedule: the effluent limits and the aerated zones' DO
+    # ranges hold in continuous time (after the DO back-off)
     v = s["verification"]
-    assert not [x for x in v["violations"] if "DO" not in x], v["violations"]
-    assert min(v["do_margin_mg_L"].values()) > -0.15, v["do_margin_mg_L"]
+    assert v["violations"] == [] and s["verified"] is True, v["violations"]
+    # the swing zone's own DO minimum is checked by the simulator while it is aerated (optimize/verify.py)
+    assert "Z2" in v["swing_do_margin_mg_L"], v
+
+
+def test_swing_zone_switches_off_when_that_pays(swing_run, fenwhistle_6):
+    """On Fenwhistle the swing zone is off at night (the relaxed optimum wants little air there): the
+    schedule switches it off in some periods and holds it on in others, verified by the simulator."""
+    s = swing_run.summary
+    assert swing_run.exit_code == EXIT_OK and s["status"] == "optimal" and s["verified"] is True, s["messages"]
+    states = s["dispatch"]["swing_zones"]["Z2"]
+    assert 0 < len(states["aerated_periods"]) < fenwhistle_6.horizon.n_periods, states
+    rows = swing_run.schedule[swing_run.schedule["zone"] == "Z2"]
+    off = rows[~rows["aerated"].astype(bool)]
+    assert len(off) > 0 and (off["airflow_Sm3_h"] == 0.0).all()
+    # the zone is anoxic while off: its DO stays near zero (ASM1 switching functions, no air)
+    assert (off["do_mean_mg_L"] < 0.05).all(), off
+    # the chosen pattern's objective is no higher than the all-day-aerated reference the loop solved
+    steps = [r for r in s["dispatch"]["rounds"] if r.get("round") == 0]
+    reference = next(r["objective"] for r in steps if r["step"] == "swing zones aerated all day")
+    chosen = next(r["objective"] for r in steps if r["step"] == "swing pattern chosen")
+    assert chosen < reference
+
+
+@pytest.mark.slow
+def test_switching_off_costs_no_more_than_aerating_all_day(swing_run, fenwhistle_6):
+    """An independent run with the swing zone made an ordinary aerated zone (same DO minimum, always on)
+    costs at least as much as the switching schedule (up to the staging loop's tolerance)."""
+    always = replace(fenwhistle_6, zones=tuple(replace(z, kind="aerated") if z.kind == "swing" else z
+                                               for z in fenwhistle_6.zones))
+    r = run_optimization(always)
+    assert r.summary["status"] == "optimal", r.summary["messages"]
+    assert swing_run.summary["cost_per_day"] <= r.summary["cost_per_day"] * (1 + COST_RTOL)
 
 
 @pytest.mark.slow
@@ -145,11 +174,10 @@ def test_demo_with_a_blower_out_of_service_is_feasible_and_costs_no_less(demo):
     assert less.summary["dispatch"]["blowers"]["B3"]["running_h"] == 0.0
     assert (less.blowers[less.blowers["blower"] == "B3"]["running"] == False).all()  # noqa: E712
     _machines_within_their_ranges(less, out)
-    # a subset of the machines cannot do better (up to the loop's tolerance): the staged optimum, the best
-    # accepted round, before the DO back-off re-solves (which move the two days differently)
-    def staged_cost(r):
-        return min(x["cost"] for x in r.summary["dispatch"]["rounds"] if x.get("accepted"))
-    assert staged_cost(less) >= staged_cost(full) * (1 - COST_RTOL)
+    # a subset of the machines cannot do better (up to the loop's tolerance), on the final result: after
+    # the DO back-off and the re-dispatch on its airflow, as reported and verified
+    assert less.summary["cost_per_day"] >= full.summary["cost_per_day"] * (1 - COST_RTOL)
+    assert full.summary["cost_per_day"] == pytest.approx(full.summary["dispatch"]["cost_per_day"], rel=1e-12)
 
 
 @pytest.mark.slow
@@ -178,7 +206,7 @@ def test_staging_that_cannot_meet_the_demand_is_a_finding(three_tank_diurnal):
     assert r.exit_code == EXIT_INFEASIBLE and s["status"] == "infeasible"
     found = [f for f in s["infeasibility"] if f["limit"] == "blower_staging"]
     assert found and all(f["shortfall_Sm3_h"] > 0 for f in found)
-    header = r.header.set_index("period")
+    header = r.header.set_index(np.arange(1, len(r.header) + 1))  # findings count periods from 1
     for f in found:  # the shortfall is the schedule's air above what PD2 can give
         assert f["shortfall_Sm3_h"] == pytest.approx(header.loc[f["period"], "airflow_Sm3_h"] - 1500.0, rel=1e-6)
         assert "capacity" in f["message"]

@@ -5,8 +5,6 @@ import math
 import numpy as np
 import pyomo.environ as pyo
 import pytest
-from hypothesis import given
-from hypothesis import strategies as st
 
 from airtaper.physics import backend as be
 
@@ -43,9 +41,3 @@ def test_power(model):
         assert math.isnan(be.power(-2.0, 0.5))  # not a Python complex
     assert pyo.value(be.power(model.x, 0.3)) == pytest.approx(1.7**0.3, rel=1e-15)
     assert pyo.value(be.power(model.p, model.x)) == pytest.approx(2.0**1.7, rel=1e-15)
-
-
-@given(st.floats(-100, 100), st.floats(-100, 100), st.floats(1e-3, 10.0))
-def test_smooth_max_bounds(a, b, s):
-    m = be.smooth_max(a, b, s)
-    assert max(a, b) - 1e-9 <= m <= max(a, b) + s / 2 + 1e-9

@@ -39,7 +39,7 @@ def _blowers_csv(folder) -> pd.DataFrame:
             rows.append(dict(period_start_h=r["period_start_h"], period_end_h=r["period_end_h"], blower=name,
                              running=bool(on), airflow_Sm3_h=r["airflow_Sm3_h"] * share if on else 0.0,
                              power_kW=r["power_kW"] * share if on else 0.0, efficiency=0.7 if on else None,
-                             discharge_gauge_kPa=r["pressure_kPa"] + 1.0, starts=0))
+                             discharge_gauge_kPa=r["pressure_gauge_kPa"] + 1.0, starts=0))
     return pd.DataFrame(rows)
 
 

@@ -40,7 +40,7 @@ def test_table_sheets_match_the_csvs(book, demo_dir, name):
 
 def test_headings_carry_units(book):
     assert "airflow_Sm3_h (Sm3/h)" in book["schedule"].columns
-    assert "pressure_kPa (kPa gauge)" in book["header"].columns
+    assert "pressure_gauge_kPa (kPa gauge)" in book["header"].columns
     assert "SNH (g N/m3)" in book["timeseries"].columns
     assert unit_of("energy_kWh_per_day") == "kWh/d" and unit_of("zone") == ""
 

@@ -20,6 +20,7 @@ from dataclasses import replace
 
 import numpy as np
 
+from airtaper import units
 from airtaper.layout.influent import CONCENTRATIONS
 from airtaper.layout.plantdata import PeriodInputs
 from airtaper.layout.types import Horizon, Layout
@@ -28,7 +29,7 @@ from airtaper.layout.types import Horizon, Layout
 def time_of_day_index(layout: Layout, start_h: float, period_h: float, n_periods: int) -> np.ndarray:
     """The layout period holding the middle of each record period (by time of day)."""
     mid = start_h + (np.arange(n_periods) + 0.5) * period_h
-    hours = np.mod(mid, 24.0)
+    hours = np.mod(mid, units.HOURS_PER_DAY)
     return (np.floor(hours / layout.horizon.period_h).astype(int)) % layout.horizon.n_periods
 
 

@@ -27,12 +27,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 import pyomo.environ as pyo
 
-from airtaper import units
 from airtaper.layout.plantdata import EFFLUENT, PlantRecord
-from airtaper.model.data import GridAeration
-from airtaper.model.train import AIRFLOW_FLOOR_Sm3_h
-from airtaper.physics.transfer import field_kla_per_h
-from airtaper.process.asm1 import layout_parameters
 from airtaper.model.asm1_rates import asm1_process_rates
 from airtaper.process.stoichiometry import PROCESSES
 
@@ -115,11 +110,9 @@ def _model_value(m, ob: Observation):
 
 
 def _kla_with_alpha_f(m, z, p, alpha_f):
-    a: GridAeration = m.aeration[z]
-    q = m.airflow_Sm3_h[z, p]
-    sote = a.sote.sote_fraction((q + AIRFLOW_FLOOR_Sm3_h) / a.diffusers, a.density_percent, a.submergence_m)
-    kla_h = field_kla_per_h(q, sote, m.zone_volume_m3[z], alpha_f, 1.0, m.temperature_C[p], a.c_inf20_mg_L)
-    return units.per_hour_to_per_day(kla_h)
+    """The plant's kLa rule with alpha x F as the fitted parameter."""
+    return m.aeration[z].kla_per_d(m.airflow_Sm3_h[z, p], m.temperature_C[p], m.diffuser_count[z],
+                                   alpha_fouling=alpha_f)
 
 
 def attach_fit(m, record: PlantRecord, spec: FitSpec):
@@ -128,18 +121,18 @@ def attach_fit(m, record: PlantRecord, spec: FitSpec):
     The parameters start at the layout's values and are *fixed*; :func:`free_parameters`
     frees them for the fit.
     """
-    data = m._train_data
-    layout = data.layout
+    data = m.train_data
+    plant = data.plant
     m.fit = b = pyo.Block()
     b.spec = spec
     b.ZONES = pyo.Set(initialize=list(spec.zones), ordered=True)
-    start = {z: layout.zone(z).alpha * layout.zone(z).fouling for z in spec.zones}
+    start = {z: plant.zone(z).alpha * plant.zone(z).fouling for z in spec.zones}
     b.alpha_F = pyo.Var(b.ZONES, bounds=BOUNDS["alpha_F"], initialize=start)
     for z in spec.zones:
         b.alpha_F[z].fix()
         for p in m.PERIODS:
             m.kla_per_d[z, p].set_value(_kla_with_alpha_f(m, z, p, b.alpha_F[z]))
-    base = layout_parameters(layout)
+    base = plant.base_params
     b.mu_A = pyo.Var(bounds=BOUNDS["mu_A"], initialize=base.mu_A)
     b.K_OH = pyo.Var(bounds=BOUNDS["K_OH"], initialize=base.K_OH)
     b.mu_A.fix()

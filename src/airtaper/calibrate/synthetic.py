@@ -70,7 +70,7 @@ def synthetic_plant_data(layout: Layout, *, days: int, alpha_F: dict, mu_A: floa
     # airflow of uniform DO control on the layout's own day
     day = periodic(true, do_setpoint_mg_L=do_setpoint_mg_L, tol=1e-4)
     ts = day.timeseries
-    grid = [z.id for z in true.zones if z.grid is not None and z.aerated and z.fixed_kla_per_d is None]
+    grid = [z.id for z in true.zones if z.has_diffusers]
     base = {}
     for z in grid:
         a = ts[ts["zone"] == z]["airflow_Sm3_h"].to_numpy().reshape(n_day, -1).mean(axis=1)

@@ -1,1 +1,9 @@
-"""airtaper.cli"""
+"""airtaper.cli: the `airtaper` command, one module per subcommand.
+
+* :mod:`~airtaper.cli.main` - argument parsing, the subcommand list, errors and warnings to one-line messages
+* :mod:`~airtaper.cli.check` - ``airtaper check``: validate a layout, print its train and the pre-screen
+* :mod:`~airtaper.cli.simulate` - ``airtaper simulate``: the periodic day by the independent simulator
+* :mod:`~airtaper.cli.optimize` - ``airtaper optimize``: the diurnal schedule, verified, with its report
+* :mod:`~airtaper.cli.report` - ``airtaper report``: rebuild the report of a finished output folder
+* :mod:`~airtaper.cli.calibrate` - ``airtaper calibrate``: alpha x F (and mu_A, K_OH) fitted to plant data
+"""

@@ -12,10 +12,11 @@ from __future__ import annotations
 
 import sys
 
+from airtaper import units
 from airtaper.cli.main import add_output_options, number_option_problems
 from airtaper.errors import EXIT_FAILURE, EXIT_OK, InputError, Problem
 from airtaper.layout import layout_input_files
-from airtaper.layout.overrides import load_layout_with_overrides
+from airtaper.plant import load_plant
 from airtaper.layout.plantdata import load_plant_data
 from airtaper.report.calibration import console_summary, write_calibration_outputs
 from airtaper.report.outputs import output_folder
@@ -63,7 +64,7 @@ def run(args) -> int:
     if problems:
         raise InputError(problems)
     warnings: list = []
-    layout = load_layout_with_overrides(args.layout, args.overrides, warnings=warnings)
+    layout = load_plant(args.layout, args.overrides, warnings=warnings).layout
     record = load_plant_data(args.data, layout, warnings=warnings)
     for w in warnings:
         print(str(w), file=sys.stderr)
@@ -73,9 +74,9 @@ def run(args) -> int:
                                  "an nh4_effluent_mg_L or nh4_<zone>_mg_L column"))
     options = CalibrationOptions(mu_A=args.mu_a, K_OH=args.k_oh, do_sd_mg_L=args.do_sd, nh4_sd_mg_L=args.nh4_sd,
                                  warmup_h=args.warmup_h, steps_per_period=args.steps_per_period)
-    if args.warmup_h >= 24.0 * record.days:
+    if args.warmup_h >= units.HOURS_PER_DAY * record.days:
         raise InputError(Problem("<command line>", "--warmup-h", "the warm-up covers the whole record",
-                                 args.warmup_h, f"< {24.0 * record.days:g} h"))
+                                 args.warmup_h, f"< {units.HOURS_PER_DAY * record.days:g} h"))
     progress = (lambda text: None) if args.quiet else (lambda text: print(f"... {text}", file=sys.stderr))
     with output_folder(args.out, inputs=inputs, overwrite=args.overwrite) as out:
         result = run_calibration(layout, record, options, progress)

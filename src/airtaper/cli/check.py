@@ -15,7 +15,8 @@ from __future__ import annotations
 import sys
 
 from airtaper.errors import EXIT_INFEASIBLE, EXIT_OK
-from airtaper.layout import Layout, load_layout
+from airtaper.plant import ResolvedPlant, load_plant
+from airtaper.units import HOURS_PER_DAY
 
 
 def register(subparsers) -> None:
@@ -29,15 +30,15 @@ def register(subparsers) -> None:
 
 def run(args) -> int:
     warnings: list = []
-    layout = load_layout(args.layout, warnings=warnings)
+    plant = load_plant(args.layout, warnings=warnings)  # resolving runs every check past the parser
     for w in warnings:
         print(str(w), file=sys.stderr)
-    print(train_report(layout))
+    print(train_report(plant))
     if getattr(args, "no_prescreen", False):
         return EXIT_OK
     from airtaper.optimize.prescreen import prescreen
 
-    screen = prescreen(layout)
+    screen = prescreen(plant.layout)
     if screen["note"]:
         print(f"pre-screen: {screen['note']}")
     if screen["feasible"]:
@@ -61,18 +62,19 @@ def _flow_text(ratio, flow, mean_q: float) -> str:
     return f"{_n(mean)} m3/d ({mean / mean_q:.2f} x Q)"
 
 
-def zone_table(layout: Layout) -> list[list[str]]:
+def zone_table(plant: ResolvedPlant) -> list[list[str]]:
     """Rows of the train table, header first, totals last."""
-    q = layout.influent.mean_flow_m3_d
+    q = float(plant.hydraulics.influent_m3_d.mean())
     rows = [["zone", "kind", "volume m3", "HRT h", "diffusers", "density %", "airflow Sm3/h"]]
     total_v = total_n = lo_sum = hi_sum = 0.0
-    for z in layout.zones:
-        hrt = z.volume_m3 / q * 24.0
+    for z in plant.zones:
+        hrt = z.volume_m3 / q * HOURS_PER_DAY
         total_v += z.volume_m3
-        if z.grid is not None:
+        if plant.has_diffusers(z):
+            d = plant.air.zone(z)
             diff = f"{z.grid.count:,} x {z.grid.type_id}"
-            dens = f"{layout.diffuser_density_percent(z):.1f}"
-            lo, hi = layout.zone_airflow_range_Sm3_h(z)
+            dens = f"{d.density_percent:.1f}"
+            lo, hi = d.airflow_range_Sm3_h
             air = f"{_n(lo)}-{_n(hi)}"
             total_n += z.grid.count
             lo_sum += lo
@@ -82,7 +84,7 @@ def zone_table(layout: Layout) -> list[list[str]]:
         else:
             diff, dens, air = "-", "-", "-"
         rows.append([z.id, z.kind, _n(z.volume_m3), f"{hrt:.2f}", diff, dens, air])
-    rows.append(["total", "", _n(total_v), f"{total_v / q * 24.0:.2f}", _n(total_n) if total_n else "-", "",
+    rows.append(["total", "", _n(total_v), f"{total_v / q * HOURS_PER_DAY:.2f}", _n(total_n) if total_n else "-", "",
                  f"{_n(lo_sum)}-{_n(hi_sum)}" if hi_sum else "-"])
     return rows
 
@@ -99,8 +101,9 @@ def _format_table(rows: list[list[str]]) -> str:
     return "\n".join(lines)
 
 
-def train_report(layout: Layout) -> str:
-    """The text `airtaper check` prints."""
+def train_report(plant: ResolvedPlant) -> str:
+    """The text `airtaper check` prints: the layout as given, the zone table from the resolved plant."""
+    layout = plant.layout
     p, h, inf = layout.plant, layout.horizon, layout.influent
     q = inf.mean_flow_m3_d
     temps = sorted(set(p.temperature_C))
@@ -113,7 +116,7 @@ def train_report(layout: Layout) -> str:
         f"influent: {inf.source}, mean {_n(q)} m3/d (period means {_n(min(inf.flow_m3_d))}-"
         f"{_n(max(inf.flow_m3_d))})",
         "",
-        _format_table(zone_table(layout)),
+        _format_table(zone_table(plant)),
         "",
     ]
     feeds = ", ".join(f"{s.zone} {100 * s.fraction:g} %" for s in layout.step_feed)
@@ -158,4 +161,20 @@ def train_report(layout: Layout) -> str:
         parts.append(f"TN daily mean {lim.tn_mean_mg_L:g} mg/L")
     lines.append("limits: " + ("; ".join(parts) if parts else "none"))
     lines.append(f"objective: {layout.operation.objective}")
+    if layout.load_days:
+        total = sum(d.days_per_year for d in layout.load_days)
+        lines.append(f"load days ({total:g} days in all):")
+        for d in layout.load_days:
+            what = (f"own influent {d.influent.source}" if d.influent is not None
+                    else f"flow x {d.flow_factor:g}, load x {d.load_factor:g}")
+            temp = "" if d.water_temperature_C is None else f", water {min(d.water_temperature_C):g}" + (
+                f"-{max(d.water_temperature_C):g}" if max(d.water_temperature_C) > min(d.water_temperature_C) else "") \
+                + " C"
+            alpha = "" if d.alpha_factor == 1.0 else f", alpha x {d.alpha_factor:g}"
+            lines.append(f"  {d.id} {d.days_per_year:g} d: {what}{temp}{alpha}")
+    if layout.capital is not None:
+        c = layout.capital
+        cur = layout.tariff.currency if layout.tariff else ""
+        lines.append(f"capital: {c.cost_per_diffuser:g} {cur} per diffuser, {c.cost_per_zone:g} {cur} per zone, "
+                     f"{100 * c.interest_rate:g} % over {c.life_years:g} years")
     return "\n".join(lines)

@@ -9,7 +9,9 @@ Every handler runs through :func:`run_handler`: an
 :class:`~airtaper.errors.InputError` becomes one ``error: <file>: <key>: ...``
 line per problem on stderr (after the warnings found in the same input, which
 often name the cause) and exit code 2; no traceback reaches the user (set
-``AIRTAPER_DEBUG=1`` to see one for an internal failure). A reader that stops
+``AIRTAPER_DEBUG=1`` to see one for an internal failure). A Python warning raised
+during the run (a fitted curve used beyond its tested range, say) is printed once
+as one ``warning: ...`` line, never with Python's source path and code line. A reader that stops
 reading (``airtaper check ... | head``) ends the command quietly; SIGTERM is
 handled like Ctrl-C, so a command writing an output folder removes its
 unfinished copy (:mod:`airtaper.report.outputs`).
@@ -23,12 +25,14 @@ import math
 import os
 import signal
 import sys
+import warnings
 
 from airtaper import __version__
-from airtaper.errors import EXIT_FAILURE, EXIT_INPUT, EXIT_OK, AirtaperError, InputError
+from airtaper.errors import EXIT_FAILURE, EXIT_INPUT, EXIT_OK, AirtaperError, InputError, one_line
 
 #: Subcommand modules under airtaper.cli, in the order `airtaper --help` lists them.
-COMMANDS: tuple[str, ...] = ("check", "simulate", "optimize", "report", "calibrate")
+COMMANDS: tuple[str, ...] = ("check", "simulate", "optimize", "report", "calibrate", "design", "compare", "sweep",
+                            "year")
 
 #: Exit codes of a run stopped by a signal (the shell's 128 + signal number).
 EXIT_INTERRUPTED = 128 + signal.SIGINT
@@ -87,8 +91,36 @@ def _quiet_stdout() -> None:
         pass
 
 
+def warning_line(message, category) -> str:
+    """A Python warning in the command's one form: ``warning: <message>`` (airtaper's own warnings name the
+    curve or input they concern first); a warning from a library also names its kind."""
+    text = one_line(str(message))
+    if category.__module__.split(".")[0] == "airtaper":
+        return f"warning: {text}"
+    return f"warning: {category.__name__}: {text}"
+
+
+class _WarningPrinter:
+    """``warnings.showwarning`` for a command: each distinct warning once, as :func:`warning_line`."""
+
+    def __init__(self):
+        self.shown: set[str] = set()
+
+    def __call__(self, message, category, filename, lineno, file=None, line=None):
+        text = warning_line(message, category)
+        if text not in self.shown:
+            self.shown.add(text)
+            print(text, file=sys.stderr)
+
+
 def run_handler(handler, args) -> int:
     """Run a subcommand handler, turning the project's errors into messages and exit codes."""
+    with warnings.catch_warnings():  # restores the caller's warning filters and printer afterwards
+        warnings.showwarning = _WarningPrinter()
+        return _run(handler, args)
+
+
+def _run(handler, args) -> int:
     try:
         code = handler(args)
         sys.stdout.flush()  # a closed pipe shows here, not at interpreter exit

@@ -19,7 +19,7 @@ import sys
 from airtaper.cli.main import add_output_options, number_option_problems
 from airtaper.errors import InputError, Problem
 from airtaper.layout import layout_input_files
-from airtaper.layout.overrides import load_layout_with_overrides
+from airtaper.plant import load_plant, resolve_plant
 from airtaper.report.outputs import output_folder
 from airtaper.report.study_files import console_summary, write_study_outputs
 
@@ -34,6 +34,8 @@ def register(subparsers) -> None:
     add_output_options(p)
     p.add_argument("--overrides", metavar="FILE",
                    help="override file (e.g. from `airtaper calibrate`) applied to the layout before validation")
+    p.add_argument("--day", metavar="ID", help="optimise the layout's load day ID ([[load_days]]) instead of its "
+                                               "base profile")
     p.add_argument("--objective", choices=("energy", "cost"), help="override the layout's objective")
     p.add_argument("--smoothing-weight", type=float, metavar="W",
                    help="weight of the penalty on period-to-period airflow change (default: the layout's)")
@@ -41,6 +43,8 @@ def register(subparsers) -> None:
                    help="mixing minimum airflow per floor area for every aerated zone, Sm3/(m2 h)")
     p.add_argument("--baseline-do", type=float, metavar="MG_L", help="DO setpoint of the baseline (default 2.0)")
     p.add_argument("--no-figure", action="store_true", help="skip schedule.png")
+    p.add_argument("--no-report", action="store_true",
+                   help="write the tables and summary.json only (build the report later with `airtaper report DIR`)")
     p.add_argument("--quiet", action="store_true", help="no progress display")
     p.set_defaults(handler=run)
 
@@ -48,6 +52,18 @@ def register(subparsers) -> None:
 def _check(args) -> list[Problem]:
     return number_option_problems((("--smoothing-weight", args.smoothing_weight, 0.0),
                                    ("--mixing-min", args.mixing_min, 0.0), ("--baseline-do", args.baseline_do, 1e-9)))
+
+
+def _load_day(path, layout, day_id: str):
+    """The Layout of the load day ``day_id`` (bad input when the layout names no such day)."""
+    from airtaper.layout.loaddays import day_layout
+
+    for day in layout.load_days:
+        if day.id == day_id:
+            return day_layout(layout, day)
+    ids = ", ".join(d.id for d in layout.load_days)
+    raise InputError(Problem(path, "--day", "no load day with that id", day_id,
+                             f"one of {ids}" if ids else "a layout with [[load_days]]"))
 
 
 def run(args) -> int:
@@ -58,10 +74,14 @@ def run(args) -> int:
     if problems:
         raise InputError(problems)
     warnings: list = []
-    layout = load_layout_with_overrides(args.layout, args.overrides, warnings=warnings)
+    plant = load_plant(args.layout, args.overrides, warnings=warnings)
+    layout = plant.layout
     for w in warnings:
         print(str(w), file=sys.stderr)
-    if not any(z.grid is not None and z.aerated and z.fixed_kla_per_d is None for z in layout.zones):
+    if args.day is not None:
+        layout = _load_day(args.layout, layout, args.day)
+        plant = resolve_plant(layout)
+    if not plant.diffused:
         raise InputError(Problem(args.layout, "zones", "no zone has a diffuser grid: there is no airflow to optimise",
                                  None, "at least one aerated zone with a [zones.grid]"))
     if args.objective == "cost" and layout.tariff is None:
@@ -77,7 +97,7 @@ def run(args) -> int:
         summary = {**result.summary, **out.provenance()}
         write_study_outputs(out.staging, schedule=result.schedule, header=result.header,
                             timeseries=result.timeseries, summary=summary, figure=not args.no_figure,
-                            blowers=result.blowers)
+                            blowers=result.blowers, report=not args.no_report)
     print(console_summary(summary))
     if summary.get("status") == "unverified":
         print("WARNING: the optimised schedule breaks a limit when re-simulated by the independent simulator; "

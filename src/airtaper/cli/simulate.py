@@ -154,7 +154,10 @@ def read_schedule(path: str, layout, warnings: list | None = None):
 
 
 def run(args) -> int:
-    from airtaper.layout import layout_input_files, load_layout
+    from airtaper.layout import layout_input_files
+    from airtaper.optimize.simday import step_airflow
+    from airtaper.optimize.staging import dispatch_summary, steps_dispatch
+    from airtaper.plant import load_plant
     from airtaper.simulate import periodic
     from airtaper.simulate.summary import summarize
 
@@ -167,7 +170,7 @@ def run(args) -> int:
     if not 0.0 < args.tol < 1.0:
         raise InputError(Problem("<command line>", "--tol", "out of range", got=args.tol, expected="0 < tol < 1"))
     warnings: list = []
-    layout = load_layout(args.layout, warnings=warnings)
+    layout = load_plant(args.layout, warnings=warnings).layout
     for w in warnings:
         print(str(w), file=sys.stderr)
     inputs = layout_input_files(args.layout, layout) + ([args.schedule] if args.schedule else [])
@@ -181,7 +184,14 @@ def run(args) -> int:
         clarifier = result.start.clarifier if result.start is not None else None
         if clarifier is not None and clarifier["overloaded"]:
             print(f"warning: {args.layout}: clarifier: {clarifier['message']}", file=sys.stderr)
-        summary = {**summarize(result), **out.provenance()}
+        summary = summarize(result)
+        dp = steps_dispatch(layout, *step_airflow(layout, result), layout.operation.objective)
+        if dp is not None:  # the blowers billed one by one, by the optimiser's dispatch rule
+            summary["dispatch"] = dispatch_summary(layout, dp)
+            summary["dispatch"]["shortfall"] = [f["message"] for f in dp.findings]
+            summary["blower_kWh_per_day"] = summary["dispatch"]["energy_kWh_per_day"]
+            summary["blower_kW_max"] = summary["dispatch"]["peak_kW"]
+        summary = {**summary, **out.provenance()}
         write_csv_atomic(out.file("timeseries.csv"), result.timeseries)
         write_csv_atomic(out.file("effluent.csv"), result.effluent)
         write_json_atomic(out.file("summary.json"), summary)
@@ -191,6 +201,12 @@ def run(args) -> int:
     print(f"  effluent NH4-N mean {eff['SNH']['mean']:.2f} max {eff['SNH']['max']:.2f} mg/L, "
           f"TN mean {eff['tn_mg_L']['mean']:.2f} mg/L")
     print(f"  air {summary['air_Sm3_per_day']:,.0f} Sm3/d, blower {summary['blower_kWh_per_day']:,.0f} kWh/d")
+    if "dispatch" in summary:
+        d = summary["dispatch"]
+        print("  blowers (dispatched one by one): " + ", ".join(
+            f"{b} {v['running_h']:g} h" for b, v in d["blowers"].items() if not v["out_of_service"]))
+        for short in d["shortfall"]:
+            print(f"WARNING: {short}", file=sys.stderr)
     for short in summary["setpoint_not_held"]:
         print(f"WARNING: {short['message']}", file=sys.stderr)
     print(f"  wrote {', '.join(OUTPUT_NAMES)} to {args.out}")

@@ -4,6 +4,19 @@ The input boundary: :func:`load_layout` reads and checks a file, reporting every
 problem at once as one :class:`~airtaper.errors.InputError`;
 :func:`graph.build_graph` gives the train as a networkx DiGraph;
 :func:`layout_to_data` writes a Layout back as a dict in the file's own keys.
+
+* :mod:`~airtaper.layout.parse` - the layout TOML to a :class:`Layout`, every check, cross-section checks
+* :mod:`~airtaper.layout.reader` - typed, path-aware reading of the TOML tree, collecting problems
+* :mod:`~airtaper.layout.textfile` - reading an input file as text (size, kind, UTF-8)
+* :mod:`~airtaper.layout.influent` - the ``[influent]`` section and its diurnal CSV
+* :mod:`~airtaper.layout.loaddays` - the layout of one named load day (``[[load_days]]``)
+* :mod:`~airtaper.layout.plantdata` - logged plant data (CSV) for calibration
+* :mod:`~airtaper.layout.overrides` - override files applied to a layout's data before validation
+* :mod:`~airtaper.layout.defaults` - every default with its source
+* :mod:`~airtaper.layout.types` - the frozen dataclasses later layers rely on
+* :mod:`~airtaper.layout.graph` - the train graph and its topology checks
+* :mod:`~airtaper.layout.dump` - a Layout back to the file's keys
+* :mod:`~airtaper.layout.bsm1` - the BSM1 benchmark plant built in code
 """
 
 import os

@@ -24,6 +24,7 @@ clarification-thickening process. Water Research 25(10), 1263-1271.
 
 from __future__ import annotations
 
+from airtaper import units
 from airtaper.layout.types import (
     ASM1_COMPONENTS,
     Clarifier,
@@ -186,7 +187,7 @@ def bsm1_layout(clarifier: str = "layered", n_periods: int = 24) -> Layout:
         influent=influent,
         limits=Limits(nh4_mean_mg_L=None, nh4_max_mg_L=None, tn_mean_mg_L=None),
         tariff=None,
-        horizon=Horizon(n_periods=n, period_h=24.0 / n, steps_per_period=4),
+        horizon=Horizon(n_periods=n, period_h=units.HOURS_PER_DAY / n, steps_per_period=4),
         kinetics=Kinetics(parameter_set="bsm1_15C", overrides=(), temperature_correction=False),
         operation=Operation(baseline_do_setpoint_mg_L=2.0, objective="energy", smoothing_weight=0.0),
         notes="IWA Benchmark Simulation Model no. 1, open loop, constant influent (Alex et al. 2008).",

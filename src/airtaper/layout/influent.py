@@ -220,7 +220,7 @@ def read_csv_text(col: Collector, file: str, text: str, frac: Fractionation | No
                 col.error(key, "not a number", cell, "a number", file=file)
                 ok = False
                 continue
-            bounds = {"ge": 0.0, "lt": 24.0} if name == "time_h" else _bounds(name)
+            bounds = {"ge": 0.0, "lt": units.HOURS_PER_DAY} if name == "time_h" else _bounds(name)
             checked = check_number(_FileCollector(col, file), key, value, **bounds)
             if checked is None:
                 ok = False
@@ -244,7 +244,7 @@ def read_csv_text(col: Collector, file: str, text: str, frac: Fractionation | No
         return None
     if len(times) > 2:
         spans = sorted(b - a for a, b in zip(times, times[1:]))
-        last = 24.0 - times[-1]
+        last = units.HOURS_PER_DAY - times[-1]
         if last > defaults.WARN_LAST_ROW_FACTOR * spans[len(spans) // 2]:
             col.warn(f"row {linenos[-1]}, column time_h", f"the last row holds from {times[-1]:g} h until 24 h, "
                      f"{last / spans[len(spans) // 2]:.0f} times longer than the others: were the times in another "
@@ -272,8 +272,8 @@ def resample(times: list[float], rows: list[dict], n_periods: int) -> dict[str, 
 
     Flow: time mean. Concentrations: flow-weighted mean (same load).
     """
-    period_h = 24.0 / n_periods
-    ends = list(times[1:]) + [24.0]
+    period_h = units.HOURS_PER_DAY / n_periods
+    ends = list(times[1:]) + [units.HOURS_PER_DAY]
     out: dict[str, list[float]] = {c: [] for c in MEASURED}
     for p in range(n_periods):
         a, b = p * period_h, (p + 1) * period_h

@@ -128,6 +128,13 @@ def _blame(problem: Problem, overrides: dict, created: set[str], file: str) -> P
     return problem
 
 
+def blame_overrides(problems, overrides_path) -> list[Problem]:
+    """Problems found after validation (the plant's resolution), the ones at overridden keys naming the override file."""
+    file = os.fspath(overrides_path)
+    overrides = read_overrides(file)
+    return [_blame(p, overrides, set(), file) for p in problems]
+
+
 def load_layout_with_overrides(path, overrides_path=None, warnings: list | None = None) -> Layout:
     """:func:`~airtaper.layout.load_layout` with an override file applied before validation.
 
@@ -136,11 +143,19 @@ def load_layout_with_overrides(path, overrides_path=None, warnings: list | None 
     """
     if overrides_path is None:
         return load_layout(path, warnings=warnings)
+    file = os.fspath(overrides_path)
+    return load_layout_with_values(path, read_overrides(file), file, warnings=warnings)
+
+
+def load_layout_with_values(path, overrides: dict, file: str, warnings: list | None = None) -> Layout:
+    """The layout at ``path`` with ``overrides`` ({key path: value}) applied before validation.
+
+    ``file`` labels the problems found at overridden keys (the override file, or a
+    sweep's grid file and scenario); all others name the layout file.
+    """
     label, text = read_text_file(path, MAX_LAYOUT_BYTES, "layout", "TOML")
     data = parse_toml_text(text, label)
     base_dir = os.path.dirname(os.path.abspath(label))
-    file = os.fspath(overrides_path)
-    overrides = read_overrides(file)
     if not isinstance(data, dict):
         return parse_layout(data, label, base_dir, warnings=warnings)
     new, created = apply_overrides(data, overrides, file)
@@ -177,6 +192,8 @@ def _toml_value(v) -> str:
         return '"' + "".join(_escape(c) for c in v) + '"'
     if isinstance(v, (list, tuple)):
         return "[" + ", ".join(_toml_value(x) for x in v) + "]"
+    if isinstance(v, dict):  # an inline table (a table inside an array: a year's month as one load day)
+        return "{ " + ", ".join(f"{_toml_key(str(k))} = {_toml_value(x)}" for k, x in v.items()) + " }"
     raise ValueError(f"cannot write {type(v).__name__} to an override file")
 
 
@@ -203,4 +220,5 @@ def overrides_to_toml(values: dict, header: str = "", comments: dict | None = No
     return "\n".join(lines) + "\n"
 
 
-__all__ = ["apply_overrides", "flatten", "load_layout_with_overrides", "overrides_to_toml", "read_overrides"]
+__all__ = ["apply_overrides", "blame_overrides", "flatten", "load_layout_with_overrides", "load_layout_with_values",
+           "overrides_to_toml", "read_overrides"]

@@ -12,14 +12,12 @@ from __future__ import annotations
 import os
 import re
 import tomllib
-from types import SimpleNamespace
 
 from airtaper import units
 from airtaper.errors import InputError, Problem
 from airtaper.layout import defaults as D
 from airtaper.layout import graph
 from airtaper.layout.influent import csv_display_path, read_day_influent, read_influent
-from airtaper.physics.atmosphere import barometric_pressure_kPa
 from airtaper.physics.blower import efficiency_from_power, equivalent_curve, power_curve_problems
 from airtaper.layout.reader import (
     Collector, LayoutWarning, Table, UnreadableInput, check_number, did_you_mean, fixed, is_number, read_input_file,
@@ -220,10 +218,10 @@ class _Parser:
     # -- sections ----------------------------------------------------------------
     def horizon(self, t: Table | None) -> Horizon:
         if t is None:
-            return Horizon(D.N_PERIODS, 24.0 / D.N_PERIODS, D.STEPS_PER_PERIOD)
+            return Horizon(D.N_PERIODS, units.HOURS_PER_DAY / D.N_PERIODS, D.STEPS_PER_PERIOD)
         n = t.integer("n_periods", D.N_PERIODS, ge=1, le=288)
         steps = t.integer("steps_per_period", D.STEPS_PER_PERIOD, ge=1, le=60)
-        return Horizon(n, 24.0 / n, steps) if n is not None else None
+        return Horizon(n, units.HOURS_PER_DAY / n, steps) if n is not None else None
 
     def plant(self, t: Table | None) -> Plant | None:
         if t is None:
@@ -635,8 +633,8 @@ class _Parser:
         if t.has("airflow_range_points"):
             ranges = self._range_points(t, qmin, qmax) or ()
         oos = t.boolean("out_of_service", False)
-        up = t.number("min_up_h", D.BLOWER_MIN_UP_h, ge=0.0, le=24.0)
-        down = t.number("min_down_h", D.BLOWER_MIN_DOWN_h, ge=0.0, le=24.0)
+        up = t.number("min_up_h", D.BLOWER_MIN_UP_h, ge=0.0, le=units.HOURS_PER_DAY)
+        down = t.number("min_down_h", D.BLOWER_MIN_DOWN_h, ge=0.0, le=units.HOURS_PER_DAY)
         starts = t.integer("max_starts_per_day", None, ge=0, le=1000)
         start_cost = t.number("start_cost", D.BLOWER_START_COST, ge=0.0)
         return Blower(ident, kind, qmin, qmax, pmax, eff, pts, power_pts, oos, up, down, starts, start_cost, ranges)
@@ -750,7 +748,7 @@ class _Parser:
             if len(b) != 2:
                 col.error(k, "a band is [start_h, price]", f"{len(b)} values", "2 values")
                 continue
-            s = check_number(col, f"{k}[1]", b[0], ge=0.0, lt=24.0)
+            s = check_number(col, f"{k}[1]", b[0], ge=0.0, lt=units.HOURS_PER_DAY)
             p = check_number(col, f"{k}[2]", b[1], ge=0.0)
             if s is not None and p is not None:
                 starts.append((i, s))
@@ -765,8 +763,8 @@ class _Parser:
         if col.count > before:
             return None
         times = [s for _, s in starts]
-        ends = times[1:] + [24.0]
-        h = 24.0 / self.n
+        ends = times[1:] + [units.HOURS_PER_DAY]
+        h = units.HOURS_PER_DAY / self.n
         out = []
         for p in range(self.n):
             a, b = p * h, (p + 1) * h
@@ -950,7 +948,7 @@ class _Parser:
             if not min(subs) <= z.grid.submergence_m <= max(subs):
                 col.warn(f"{key}.grid.submergence_m", f"submergence {z.grid.submergence_m:g} m is outside the "
                                                       f"tested {min(subs):g}-{max(subs):g} m: SOTE is extrapolated")
-            lo, hi = _airflow_range(z, dt)
+            lo, hi = z.airflow_range_Sm3_h(dt)
             if lo > hi:
                 col.error(f"{key}.grid", "no feasible airflow: the minimum exceeds what grid and valve pass",
                           f"minimum {fixed(lo, 0)} Sm3/h", f"<= maximum {fixed(hi, 0)} Sm3/h")
@@ -962,7 +960,7 @@ class _Parser:
                 col.warn(f"blowers.{b.id}", f"wire-to-air efficiency {min(effs):.3g} is unusually low (usual above "
                                             f"{D.WARN_BLOWER_EFFICIENCY_MIN:g}): was it divided by 100?")
         gridded = [z for z in zones if z.grid is not None]
-        if gridded and not blowers and "blowers" not in self.root.data:
+        if gridded and not blowers and not self.root.data.get("blowers"):  # absent or empty; bad ones are reported
             col.error("blowers", "zones have diffuser grids but there are no blowers", None,
                       "at least one [[blowers]] table")
         if gridded and blowers:
@@ -975,7 +973,7 @@ class _Parser:
                               f"{deepest.grid.submergence_m:g} m)", b.pressure_max_gauge_kPa,
                               f"> {fixed(static, 1)} kPa")
             if len(zones) == n_zones and all(z.grid is None or z.grid.type_id in types for z in zones):
-                need = sum(_airflow_range(z, types[z.grid.type_id])[0] for z in gridded if z.kind == "aerated")
+                need = sum(z.airflow_range_Sm3_h(types[z.grid.type_id])[0] for z in gridded if z.kind == "aerated")
                 have = sum(b.airflow_max_Sm3_h for b in blowers if not b.out_of_service)
                 if all(b.out_of_service for b in blowers):
                     col.error("blowers", "every blower is out of service", f"{len(blowers)} out of service",
@@ -993,7 +991,7 @@ class _Parser:
                              file=csv_display_path(col.file, self.base_dir, influent.source))
             # the measured forms (CSV rows, constant values) are checked for unit slips where they are read
             if zones and len(zones) == n_zones:
-                hrt = sum(z.volume_m3 for z in zones) / qm * 24.0
+                hrt = sum(z.volume_m3 for z in zones) / qm * units.HOURS_PER_DAY
                 if not D.WARN_TRAIN_HRT_h[0] <= hrt <= D.WARN_TRAIN_HRT_h[1]:
                     col.warn("zones", f"train HRT {fixed(hrt, 1)} h at the mean influent flow is unusual "
                                       f"(usual {D.WARN_TRAIN_HRT_h[0]:g}-{D.WARN_TRAIN_HRT_h[1]:g} h): "
@@ -1009,20 +1007,12 @@ _ZONE_NUMBER_BOUNDS = {
 }
 
 
-def _airflow_range(z: Zone, dt: DiffuserType) -> tuple[float, float]:
-    """Same rule as Layout.zone_airflow_range_Sm3_h, for a zone before the Layout exists."""
-    view = SimpleNamespace(diffuser_type=lambda _id: dt)
-    return Layout.zone_airflow_range_Sm3_h(view, z)
-
-
 def _duty_point_conditions(plant: Plant | None, inlet: InletAir | None):
     """(inlet temperature degC, absolute inlet pressure kPa, site pressure kPa) for converting power points."""
     if plant is None or inlet is None:
         return None
-    site = (plant.barometric_pressure_kPa if plant.barometric_pressure_kPa is not None
-            else float(barometric_pressure_kPa(plant.elevation_m)))
-    inlet_p = (inlet.pressure_kPa if inlet.pressure_kPa is not None else site) - inlet.filter_loss_kPa
-    return sum(inlet.temperature_C) / len(inlet.temperature_C), inlet_p, site
+    site = plant.site_pressure_kPa
+    return sum(inlet.temperature_C) / len(inlet.temperature_C), inlet.blower_inlet_pressure_kPa(site), site
 
 
 def _blower_mean_efficiency(b: Blower) -> float | None:

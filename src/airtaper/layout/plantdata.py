@@ -34,6 +34,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from airtaper import units
 from airtaper.errors import InputError
 from airtaper.layout.influent import CONCENTRATIONS, check_measured
 from airtaper.layout.reader import Collector, LayoutWarning, did_you_mean
@@ -94,7 +95,7 @@ class PlantRecord:
 
     @property
     def days(self) -> float:
-        return (self.end_h - self.start_h) / 24.0
+        return (self.end_h - self.start_h) / units.HOURS_PER_DAY
 
     def __eq__(self, other):  # arrays: compare by value
         if not isinstance(other, PlantRecord):
@@ -137,13 +138,9 @@ def _known_names(layout: Layout) -> list[str]:
         names.append(f"nh4_{z.id}_mg_L")
         if z.aerated:
             names.append(f"do_{z.id}_mg_L")
-        if _diffused(z):
+        if z.has_diffusers:
             names.append(f"airflow_{z.id}_Sm3_h")
     return names
-
-
-def _diffused(z) -> bool:
-    return z.grid is not None and z.aerated and z.fixed_kla_per_d is None
 
 
 def _is_missing(cell: str) -> bool:
@@ -215,9 +212,9 @@ def _check_header(col: Collector, hrow: int, names: list[str], layout: Layout) -
                           "one of " + ", ".join(zone_ids))
                 continue
             z = layout.zone(zone)
-            if kind == "airflow" and not _diffused(z):
+            if kind == "airflow" and not z.has_diffusers:
                 col.error(key, "this zone has no diffuser grid to take an airflow", zone,
-                          "zones with a [zones.grid]: " + ", ".join(x.id for x in layout.zones if _diffused(x)))
+                          "zones with a [zones.grid]: " + ", ".join(x.id for x in layout.zones if x.has_diffusers))
                 continue
             if kind == "do" and not z.aerated:
                 col.error(key, "DO is fitted only in aerated or swing zones (this one is anoxic)", zone,
@@ -229,7 +226,7 @@ def _check_header(col: Collector, hrow: int, names: list[str], layout: Layout) -
     if FLOW not in seen:
         col.error(f"row {hrow}", f"missing column {FLOW}", None, "the influent flow, m3/d")
     for z in layout.zones:
-        if _diffused(z) and f"airflow_{z.id}_Sm3_h" not in seen:
+        if z.has_diffusers and f"airflow_{z.id}_Sm3_h" not in seen:
             col.error(f"row {hrow}", f"missing column airflow_{z.id}_Sm3_h", None,
                       "the measured airflow of every zone with diffusers (it is imposed on the model)")
     if not any(k == "do" for k, _ in out.values()):
@@ -300,7 +297,7 @@ def read_plant_csv_text(col: Collector, text: str, layout: Layout) -> PlantRecor
         return None
     dt = np.diff(t)
     interval = float(np.median(dt))
-    span_d = (t[-1] + interval - t[0]) / 24.0
+    span_d = (t[-1] + interval - t[0]) / units.HOURS_PER_DAY
     if span_d > MAX_DAYS:
         col.error(f"row {linenos[-1]}, column {TIME}", "record too long for one fit", round(span_d, 3),
                   f"at most {MAX_DAYS:g} days (fit a shorter stretch)")
@@ -308,7 +305,7 @@ def read_plant_csv_text(col: Collector, text: str, layout: Layout) -> PlantRecor
     if interval < 1.0 / 600.0:
         col.warn(f"column {TIME}", f"median interval {interval * 3600:.3g} s: is time_h in minutes or seconds "
                                    "instead of hours? (expected hours from midnight of day 1)")
-    if t[-1] > 24.0 * MAX_DAYS and interval >= 1.0:
+    if t[-1] > units.HOURS_PER_DAY * MAX_DAYS and interval >= 1.0:
         col.warn(f"column {TIME}", "times run past the record limit: minutes instead of hours?")
     for i in np.flatnonzero(dt > GAP_FACTOR * interval):
         col.warn(f"rows {linenos[i]}-{linenos[i + 1]}, column {TIME}",

@@ -15,6 +15,9 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Literal
 
+from airtaper.physics.atmosphere import barometric_pressure_kPa
+from airtaper.physics.pressure import blower_inlet_pressure_kPa
+
 ZoneKind = Literal["aerated", "anoxic", "swing"]
 ClarifierKind = Literal["ideal", "layered"]
 ObjectiveKind = Literal["energy", "cost"]
@@ -86,6 +89,33 @@ class Zone:
     def aerated(self) -> bool:
         """True when the zone can receive air (aerated or swing)."""
         return self.kind != "anoxic"
+
+    @property
+    def has_diffusers(self) -> bool:
+        """True when the zone takes air from the header: aerated or swing, with a diffuser grid.
+
+        The project's one "zone has diffusers" predicate (a fixed-kLa zone has no grid).
+        """
+        return self.aerated and self.grid is not None and self.fixed_kla_per_d is None
+
+    def airflow_range_Sm3_h(self, dtype: "DiffuserType") -> tuple[float, float]:
+        """(min, max) zone airflow allowed by its diffusers (of type ``dtype``), mixing and valve.
+
+        A swing zone's range when it is on; (0, 0) for a zone without diffusers.
+        """
+        if not self.has_diffusers:
+            return (0.0, 0.0)
+        lo = max(self.grid.count * dtype.airflow_min_Sm3_h, self.mixing_airflow_min_Sm3_h_m2 * self.area_m2)
+        hi = self.grid.count * dtype.airflow_max_Sm3_h
+        if self.valve_capacity_Sm3_h is not None:
+            hi = min(hi, self.valve_capacity_Sm3_h)
+        return (lo, hi)
+
+    def diffuser_density_percent(self, dtype: "DiffuserType") -> float:
+        """Membrane area of the zone's grid (of type ``dtype``) over its floor area, in percent."""
+        if self.grid is None:
+            return 0.0
+        return 100.0 * self.grid.count * dtype.membrane_area_m2 / self.area_m2
 
 
 @dataclass(frozen=True)
@@ -205,6 +235,11 @@ class InletAir:
     temperature_C: tuple[float, ...]  # per period
     pressure_kPa: float | None  # absolute; None = site barometric pressure
     filter_loss_kPa: float
+
+    def blower_inlet_pressure_kPa(self, site_pressure_kPa: float) -> float:
+        """Blower inlet pressure, kPa absolute: the inlet air's (or the site's) minus the filter loss."""
+        given = self.pressure_kPa if self.pressure_kPa is not None else site_pressure_kPa
+        return float(blower_inlet_pressure_kPa(given, self.filter_loss_kPa))
 
 
 @dataclass(frozen=True)
@@ -328,6 +363,13 @@ class Plant:
     barometric_pressure_kPa: float | None  # None = from elevation
     salinity_g_kg: float
 
+    @property
+    def site_pressure_kPa(self) -> float:
+        """Site barometric pressure, kPa absolute: as given, or from the elevation (US Standard Atmosphere 1976)."""
+        if self.barometric_pressure_kPa is not None:
+            return float(self.barometric_pressure_kPa)
+        return float(barometric_pressure_kPa(self.elevation_m))
+
 
 @dataclass(frozen=True)
 class Layout:
@@ -372,19 +414,9 @@ class Layout:
         raise KeyError(type_id)
 
     def diffuser_density_percent(self, zone: Zone) -> float:
-        """Membrane area of the zone's grid over its floor area, in percent."""
-        if zone.grid is None:
-            return 0.0
-        dtype = self.diffuser_type(zone.grid.type_id)
-        return 100.0 * zone.grid.count * dtype.membrane_area_m2 / zone.area_m2
+        """Membrane area of the zone's grid over its floor area, in percent (:meth:`Zone.diffuser_density_percent`)."""
+        return 0.0 if zone.grid is None else zone.diffuser_density_percent(self.diffuser_type(zone.grid.type_id))
 
     def zone_airflow_range_Sm3_h(self, zone: Zone) -> tuple[float, float]:
-        """(min, max) zone airflow allowed by its diffusers, mixing and valve (a swing zone's when on)."""
-        if zone.grid is None or not zone.aerated:
-            return (0.0, 0.0)
-        dtype = self.diffuser_type(zone.grid.type_id)
-        lo = max(zone.grid.count * dtype.airflow_min_Sm3_h, zone.mixing_airflow_min_Sm3_h_m2 * zone.area_m2)
-        hi = zone.grid.count * dtype.airflow_max_Sm3_h
-        if zone.valve_capacity_Sm3_h is not None:
-            hi = min(hi, zone.valve_capacity_Sm3_h)
-        return (lo, hi)
+        """(min, max) zone airflow (:meth:`Zone.airflow_range_Sm3_h`)."""
+        return (0.0, 0.0) if not zone.has_diffusers else zone.airflow_range_Sm3_h(self.diffuser_type(zone.grid.type_id))

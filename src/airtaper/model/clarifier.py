@@ -60,7 +60,7 @@ import pyomo.environ as pyo
 
 from airtaper.model.discretisation import StepSlice, time_balance
 from airtaper.physics import settling as settling_physics
-from airtaper.physics.backend import smooth_max
+from airtaper.physics.smooth import smooth_max, smooth_min, smooth_step
 from airtaper.process.stoichiometry import PARTICULATES, SOLIDS_COD
 
 #: Smoothing of the velocity clamps (0 and v0'), m/d. Common practice (no source).
@@ -69,16 +69,6 @@ SMOOTH_VELOCITY_m_d = 0.01
 SMOOTH_FLUX_g_m2_d = 1.0
 #: Width of the smooth threshold switch at Xt, g/m3. Common practice (no source).
 THRESHOLD_WIDTH_g_m3 = 1.0
-
-
-def smooth_min(a, b, smoothing):
-    """Smooth lower approximation of ``min(a, b)``, at most ``smoothing / 2`` below it."""
-    return 0.5 * (a + b - pyo.sqrt((a - b) ** 2 + smoothing**2))
-
-
-def smooth_step(x, width):
-    """Smooth 0 -> 1 switch at ``x = 0`` of the given width (algebraic sigmoid)."""
-    return 0.5 * (1.0 + x / pyo.sqrt(x**2 + width**2))
 
 
 def takacs_velocity_m_d(tss_g_m3, tss_min_g_m3, settling):

@@ -2,7 +2,8 @@
 
 :func:`time_balance` turns ``d state / dt = rhs`` into the algebraic equation of the
 model's scheme (steady, Radau IIA collocation, backward Euler, BDF2) at one time point;
-:class:`StepSlice` lets it read an indexed Pyomo component as a sequence over the time
+:func:`switched_balance` is the positive-preserving balance of a zone whose air switches
+off; :class:`StepSlice` lets them read an indexed Pyomo component as a sequence over the time
 points. Both :mod:`airtaper.model.train` (zone balances) and
 :mod:`airtaper.model.clarifier` (settler layer balances) use them, so neither imports
 the other for them.
@@ -31,6 +32,26 @@ def time_balance(m, t, state, rhs):
     if len(row) == 1:
         return rhs[t] - acc == 0.0
     return sum(w * rhs[j] for w, j in zip(row, m.step_points[t])) - acc == 0.0
+
+
+def switched_balance(m, t, state, rhs):
+    """Backward Euler from time point to time point: the balance of a zone whose air switches off.
+
+    ``(x_t - x_t-1) / (t - t_prev) = rhs_t``, the previous point being the step's start
+    for the first stage. Used for the states of a swing zone under a Radau scheme: when
+    the air stops, the DO (and then the nitrate) decays with a time constant of minutes,
+    far inside one step. The stability function of 2-point Radau IIA,
+    ``R(z) = (1 + z/3) / (1 - 2z/3 + z^2/6)``, is negative for ``z < -3``, so the
+    collocation solution of so fast a decay passes below zero (by up to about 10 % of the
+    starting value), which the non-negative concentrations forbid: the schedule with the
+    zone switched off has no solution at all. Backward Euler, ``R(z) = 1 / (1 - z)``, stays
+    positive for every step (Hairer, E., Wanner, G. (1996). Solving Ordinary Differential
+    Equations II, 2nd ed., section IV.3, stability functions of implicit Runge-Kutta
+    methods; section IV.5, Radau IIA). Order 1 for these states only, on sub-steps of a
+    third and two thirds of a step; the independent simulator checks the schedule.
+    """
+    prev = m.prev_step[t]
+    return rhs[t] - (state[t] - state[prev]) / m.substep_d[m.stage_of_point[t]] == 0.0
 
 
 class StepSlice:

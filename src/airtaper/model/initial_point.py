@@ -171,7 +171,7 @@ def set_start_state(m, start: dict) -> None:
 
 def sequential_pass(m) -> None:
     """Step 1 of :func:`initialise_steady`: estimates zone by zone, then the clarifier."""
-    data = m._train_data
+    data = m.train_data
     est = _zone_estimate(m, data, _assumed_srt(m, data))
     for t in m.STEPS:
         for i, z in enumerate(data.zones):
@@ -184,7 +184,7 @@ def sequential_pass(m) -> None:
     for z in m.GRID_ZONES:  # DO setpoint mode: airflow unknown
         for p in m.PERIODS:
             if m.airflow_Sm3_h[z, p].value is None:
-                lo, hi = data.layout.zone_airflow_range_Sm3_h(data.layout.zone(z))
+                lo, hi = m.aeration[z].airflow_range_Sm3_h
                 m.airflow_Sm3_h[z, p].set_value(0.5 * (lo + hi))
     if not m.waste_m3_d[1].fixed:
         for p in m.PERIODS:
@@ -410,7 +410,7 @@ def initialise_cyclic(m, steady=None, start: dict | None = None) -> InitReport:
     report = None
     if steady is None:
         airflow = {z: [m.airflow_Sm3_h[z, p].value for p in m.PERIODS] for z in m.GRID_ZONES}
-        steady = build_steady_model(m._train_data.layout, airflow=airflow)
+        steady = build_steady_model(m.train_data.plant, airflow=airflow)
         report = initialise_steady(steady, start=start)
     copy_steady_to_cyclic(steady, m)
     if report is None:

@@ -21,12 +21,13 @@ def _factor(value, floor):
 def apply_scaling(m) -> None:
     """Fill ``m.scaling_factor`` from the current values (see the module notes)."""
     sf = m.scaling_factor
-    a = m._aux
+    data = m.train_data
+    index = {z: i for i, z in enumerate(data.zones)}
     for (t, z, c), v in m.conc.items():
         sf[v] = _factor(v.value, CONC_FLOOR_g_m3)
-        i = a.zone_index[z]
+        i = index[z]
         p = m.period_of_step[t] - 1
-        dilution = a.through[p][i] / a.volume[i]
+        dilution = float(data.zone_flow_m3_d[p, i]) / float(data.volume_m3[i])
         sf[m.zone_balance[t, z, c]] = _factor(v.value, CONC_FLOOR_g_m3) / dilution
     if hasattr(m, "settler_conc"):
         height = m.settler_layer_height_m

@@ -56,13 +56,9 @@ from airtaper.layout.types import ASM1_COMPONENTS, Layout
 from airtaper.model.asm1_rates import asm1_process_rates
 from airtaper.model.clarifier import attach_ideal_separator, attach_layered_settler
 from airtaper.model.data import FixedAeration, GridAeration, TrainData, mean_load, single_period, train_data
-from airtaper.model.discretisation import StepSlice, time_balance
-from airtaper.physics.transfer import field_kla_per_h
+from airtaper.model.discretisation import StepSlice, switched_balance, time_balance
 from airtaper.process.stoichiometry import PARTICULATES, PROCESSES, SOLIDS_COD, n_composition
 
-#: Airflow added inside the SOTE curve only (not to the air supplied), Sm3/h, so that a
-#: zone with zero airflow has zero kLa with finite derivatives. Common practice (no source).
-AIRFLOW_FLOOR_Sm3_h = 1e-6
 
 
 @dataclass(frozen=True)
@@ -175,6 +171,9 @@ def attach_sets(m, data: TrainData, steady: bool, scheme: str = "radau2") -> Non
     else:
         nodes, a = np.array([1.0]), np.array([[1.0]])
     m.collocation_matrix = a.tolist()
+    # length of the sub-step that ends at each stage (from the step's start or the stage before), d:
+    # the positive-preserving balance of switched zones (see switched_balance)
+    m.substep_d = [float(c - (nodes[i - 1] if i > 0 else 0.0)) * m.dt_d for i, c in enumerate(nodes)]
     step_of = {t: (t - 1) // k + 1 for t in range(1, n_points + 1)}
     m.stage_of_point = {t: (t - 1) % k for t in range(1, n_points + 1)}
     m.period_of_step = {t: (step_of[t] - 1) // spp + 1 for t in range(1, n_points + 1)}
@@ -191,11 +190,8 @@ def attach_sets(m, data: TrainData, steady: bool, scheme: str = "radau2") -> Non
 
 # --- aeration -------------------------------------------------------------------------
 def _grid_kla_rule(m, z, p):
-    a: GridAeration = m.aeration[z]
-    q = m.airflow_Sm3_h[z, p]
-    sote = a.sote.sote_fraction((q + AIRFLOW_FLOOR_Sm3_h) / a.diffusers, a.density_percent, a.submergence_m)
-    kla_h = field_kla_per_h(q, sote, m.zone_volume_m3[z], a.alpha, a.fouling, m.temperature_C[p], a.c_inf20_mg_L)
-    return units.per_hour_to_per_day(kla_h)
+    """The plant's kLa rule (:meth:`airtaper.plant.DiffusedZone.kla_per_d`) on the airflow Var."""
+    return m.aeration[z].kla_per_d(m.airflow_Sm3_h[z, p], m.temperature_C[p], m.diffuser_count[z])
 
 
 def _kla_rule(m, z, p):
@@ -212,13 +208,16 @@ def _do_sat_init(m, z, p):
     return float(a.do_sat_mg_L)
 
 
-def attach_aeration(m, data: TrainData, airflow=None) -> None:
+def attach_aeration(m, data: TrainData, airflow=None, diffuser_count=None) -> None:
     """Airflow (grid zones) and fixed-kLa handles, the field kLa and saturation per zone and period.
 
     ``airflow_Sm3_h[zone, period]`` is a Var, fixed to the schedule for simulation
     (``airflow``: mapping zone -> number or per-period sequence; default the middle
     of the zone's allowed range). ``kla_fixed_per_d[zone, period]`` is a Var fixed
     to the layout's kLa (freed when a DO setpoint is imposed on such a zone).
+    ``diffuser_count``: an indexed Var (grid zone -> count) held outside ``m`` that the
+    kLa and the grid limits follow instead of the layout's counts (a design study shares
+    one such Var between the models of its load days).
     """
     layout = data.layout
     m.aeration = {z: a for z, a in zip(data.zones, data.aeration) if a is not None}
@@ -231,7 +230,7 @@ def attach_aeration(m, data: TrainData, airflow=None) -> None:
     m.AERATED_ZONES = pyo.Set(initialize=[z for z in data.zones if z in m.aeration], ordered=True)
 
     def bounds(m, z, p):
-        lo, hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))
+        hi = m.aeration[z].airflow_max_Sm3_h
         return (0.0, hi if hi > 0 else None)
 
     m.airflow_Sm3_h = pyo.Var(m.GRID_ZONES, m.PERIODS, bounds=bounds, doc="zone airflow, Sm3/h")
@@ -240,7 +239,7 @@ def attach_aeration(m, data: TrainData, airflow=None) -> None:
         for p in m.PERIODS:
             m.kla_fixed_per_d[z, p].fix(m.aeration[z].kla_per_d)
     for z in grid:
-        lo, hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))
+        lo, hi = m.aeration[z].airflow_range_Sm3_h
         given = None if airflow is None else airflow.get(z)
         for p in m.PERIODS:
             if given is None:
@@ -250,6 +249,12 @@ def attach_aeration(m, data: TrainData, airflow=None) -> None:
             else:
                 v = float(given[p - 1])
             m.airflow_Sm3_h[z, p].fix(v)
+    # the diffuser count of each grid: the layout's, a parameter a design study may change
+    if diffuser_count is None:
+        m.diffuser_count = pyo.Param(m.GRID_ZONES, mutable=True,
+                                     initialize={z: float(m.aeration[z].diffusers) for z in grid})
+    else:
+        m.diffuser_count = pyo.Reference(diffuser_count)
     m.kla_per_d = pyo.Expression(m.AERATED_ZONES, m.PERIODS, rule=_kla_rule)
     m.do_sat_mg_L = pyo.Param(m.AERATED_ZONES, m.PERIODS, initialize=_do_sat_init, mutable=False)
 
@@ -296,6 +301,8 @@ def _zone_rhs_rule(m, t, z, c):
 
 def _zone_mass_balance_rule(m, t, z, c):
     """Completely mixed zone: inflows - outflow + reactions (+ aeration for SO) = accumulation."""
+    if z in m.switched_zones and not m.steady and m.scheme.startswith("radau"):
+        return switched_balance(m, t, StepSlice(m.conc, z, c), StepSlice(m.zone_rhs, z, c))
     return time_balance(m, t, StepSlice(m.conc, z, c), StepSlice(m.zone_rhs, z, c))
 
 
@@ -416,7 +423,7 @@ def attach_outputs(m) -> None:
 
 
 def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: str = "radau2",
-                      name: str = "airtaper_train"):
+                      name: str = "airtaper_train", switched_zones=(), diffuser_count=None):
     """The Pyomo model of a train from resolved data (see the module notes).
 
     Parameters
@@ -430,11 +437,21 @@ def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: st
         Zone id -> airflow (Sm3/h) or per-period airflows, fixed in ``airflow_Sm3_h``.
     scheme : "radau2" (default), "radau3", "euler" or "bdf2"
         Time discretisation of the cyclic model (ignored for a steady point).
+    switched_zones : sequence of zone ids, optional
+        Zones whose air may switch off (swing zones): their balances are
+        :func:`switched_balance` under a Radau scheme.
+
+    Notes
+    -----
+    ``m.train_data`` is ``data``: the numbers the model was built from, and through
+    ``m.train_data.plant`` the resolved plant, which is all a layer attaching to the
+    model (the optimiser, the calibration) reads about the plant.
     """
     m = pyo.ConcreteModel(name=name)
-    m._train_data = data
+    m.train_data = data
+    m.switched_zones = frozenset(switched_zones)
     attach_sets(m, data, steady, scheme)
-    attach_aeration(m, data, airflow)
+    attach_aeration(m, data, airflow, diffuser_count)
     attach_flows(m, data)
     attach_zone_states(m, data)
     attach_clarifier(m, data)
@@ -463,17 +480,20 @@ def build_steady_model(layout: Layout, *, period: int | None = None, airflow=Non
     return build_train_model(steady, steady=True, airflow=airflow, name="airtaper_steady")
 
 
-def build_cyclic_model(layout: Layout, *, airflow=None, scheme: str = "radau2", steps_per_period: int | None = None):
+def build_cyclic_model(layout: Layout, *, airflow=None, scheme: str = "radau2", steps_per_period: int | None = None,
+                       diffuser_count=None):
     """The cyclic diurnal model of ``layout`` (periods and steps from ``layout.horizon``).
 
     ``scheme``: "radau2" (Radau IIA, 2 points per step, order 3; default), "radau3"
     (order 5), "euler" (backward Euler) or "bdf2";
-    ``steps_per_period`` overrides the layout's.
+    ``steps_per_period`` overrides the layout's. Swing zones get :func:`switched_balance`.
     """
     data = train_data(layout)
     if steps_per_period is not None:
         data = replace(data, steps_per_period=int(steps_per_period))
-    return build_train_model(data, steady=False, airflow=airflow, scheme=scheme, name="airtaper_cyclic")
+    return build_train_model(data, steady=False, airflow=airflow, scheme=scheme, name="airtaper_cyclic",
+                             switched_zones=[z.id for z in layout.zones if z.kind == "swing"],
+                             diffuser_count=diffuser_count)
 
 
 def set_airflow(m, airflow) -> None:

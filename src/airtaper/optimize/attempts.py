@@ -68,11 +68,10 @@ LADDER: tuple[Rung, ...] = (
 
 def start_airflow(m, day: SimDay, factor: float = 1.0) -> dict:
     """Zone id -> per-period start airflow: baseline period means x factor, clipped to the zone's range."""
-    layout = m._train_data.layout
     means = day.period_mean_airflow()
     out = {}
     for z in m.GRID_ZONES:
-        lo, hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))
+        lo, hi = m.aeration[z].airflow_range_Sm3_h
         out[z] = np.clip(np.asarray(means[z]) * factor, lo, hi)
     return out
 
@@ -96,9 +95,10 @@ def start_from_day(m, day: SimDay, airflow: dict) -> None:
         # the model's own continuation did not settle: start it from the independent
         # simulator's steady state at the same mean airflows (a root solve that cannot stall),
         # unless that state shows the plant cannot hold its target sludge age at all
-        start, clarifier = simulated_steady_start(m._train_data.layout, airflow)
+        plant = m.train_data.plant
+        start, clarifier = simulated_steady_start(plant.layout, airflow)
         if clarifier is not None and not clarifier["srt_held"]:
-            raise NoSteadyStateError(f"{m._train_data.layout.path}: clarifier: no steady state at the target "
+            raise NoSteadyStateError(f"{plant.path}: clarifier: no steady state at the target "
                                      f"sludge age: {clarifier['message']}", cause="overloaded") from None
         try:
             initialise_cyclic(m, start=start)

@@ -45,18 +45,26 @@ OPEN_SHARE = 0.5
 
 
 def shortfalls(layout, day_do_min: dict, backoff: dict, periods, day_do_max: dict | None = None,
-               backoff_max: dict | None = None) -> tuple[dict, dict] | dict:
+               backoff_max: dict | None = None, swing_states: dict | None = None) -> tuple[dict, dict] | dict:
     """(zone, period) -> excursion (positive, mg/L) below the minimum [and above the maximum].
 
     Only the zones the optimiser holds to the bound (keys of ``backoff`` / ``backoff_max``).
-    Without ``day_do_max`` returns the minimum's dict only.
+    A swing zone's minimum counts only in periods it is aerated after an aerated period
+    (``swing_states``: zone -> on/off per period): off it has no minimum, and in the
+    period it is switched on its DO rises from nothing (the optimiser does not hold the
+    minimum in that period's first step either). Without ``day_do_max`` returns the
+    minimum's dict only.
     """
     low = {}
+    swing_states = swing_states or {}
     for z, lows in day_do_min.items():
         zone = layout.zone(z)
         if zone.do_min_mg_L is None or (z, periods[0]) not in backoff:
             continue
         for p in periods:
+            on = swing_states.get(z)
+            if on is not None and not (on[p - 1] and on[p - 2]):
+                continue
             short = zone.do_min_mg_L - float(lows[p - 1])
             if short > ACCEPT_mg_L:
                 low[z, p] = short
@@ -111,7 +119,7 @@ def hold_do(study, verify, progress=None) -> dict:
     while rounds < MAX_ROUNDS:
         ex = day.do_extremes
         highs = {z: g.sort_values("period")["do_max_mg_L"].to_numpy() for z, g in ex.groupby("zone", sort=False)}
-        found = shortfalls(study.layout, day.do_min_by_period(), values[0], periods, highs, values[1])
+        found = shortfalls(study.layout, day.do_min_by_period(), values[0], periods, highs, values[1], b.swing_states)
         if not any(found):
             break
         rounds += 1

@@ -4,7 +4,7 @@ Every aerated zone with diffusers is held at one DO setpoint (the layout's
 ``operation.baseline_do_setpoint_mg_L``, 2.0 mg/L unless set; a zone's own DO
 range clips it) by the simulator's ideal DO control; the simulator returns the
 airflow that control needs at every step, and the blower energy and cost follow
-from :class:`~airtaper.optimize.airside.AirSide` step by step. Its figures are
+from :class:`~airtaper.plant.AirSide` step by step. Its figures are
 compared with the same limits as the optimum (:mod:`airtaper.optimize.compliance`).
 A setpoint the control cannot hold (the zone at full air below it) is simulated at
 full air and listed with its zone and hours (``setpoint_not_held``).
@@ -110,7 +110,7 @@ def baseline_setpoints(layout: Layout, setpoint_mg_L: float | None = None) -> di
     sp = layout.operation.baseline_do_setpoint_mg_L if setpoint_mg_L is None else float(setpoint_mg_L)
     out = {}
     for z in layout.zones:
-        if z.kind != "aerated" or z.grid is None or z.fixed_kla_per_d is not None:
+        if z.kind != "aerated" or not z.has_diffusers:
             continue
         v = sp
         if z.do_max_mg_L is not None:

@@ -29,7 +29,7 @@ def do_limits(layout: Layout) -> dict[str, tuple[float | None, float | None]]:
     """Zone id -> (DO minimum, DO maximum) for the zones the optimiser holds to them."""
     out = {}
     for z in layout.zones:
-        if z.grid is None or z.fixed_kla_per_d is not None or not z.aerated:
+        if not z.has_diffusers:
             continue
         lo = z.do_min_mg_L if z.kind == "aerated" else None
         if lo is None and z.do_max_mg_L is None:

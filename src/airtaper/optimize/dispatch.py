@@ -40,6 +40,7 @@ import pyomo.environ as pyo
 
 from airtaper.errors import SolverError
 from airtaper.layout.types import Layout
+from airtaper.plant import resolve_plant
 from airtaper.physics.blower import (EquivalentCurve, aggregate_curve, equivalent_curve, lower_convex_hull,
                                     split_airflow)
 from airtaper.solve.highs import solve_milp
@@ -94,12 +95,14 @@ class Machine:
         return EquivalentCurve(tuple(float(x) for x in xs), tuple(float(v) for v in self.curve.equivalent(xs)))
 
 
-def machines_of(layout: Layout) -> tuple[Machine, ...]:
-    """The layout's blowers as dispatch machines (min up/down times rounded up to whole periods)."""
-    h = layout.horizon.period_h
-    n = layout.horizon.n_periods
+def machines_of(plant) -> tuple[Machine, ...]:
+    """The plant's blowers (a resolved plant or its layout) as dispatch machines (min up/down times rounded up
+    to whole periods)."""
+    plant = resolve_plant(plant)
+    h = plant.period_h
+    n = plant.n_periods
     out = []
-    for b in layout.blowers:
+    for b in plant.air.blowers:
         curve = equivalent_curve(b.airflow_min_Sm3_h, b.airflow_max_Sm3_h, b.efficiency,
                                  [(e.airflow_Sm3_h, e.efficiency) for e in b.efficiency_points])
         out.append(Machine(b.id, curve, b.pressure_max_gauge_kPa, b.out_of_service,
@@ -122,10 +125,9 @@ class Bill:
     @classmethod
     def of(cls, layout: Layout, objective: str) -> "Bill":
         n = layout.horizon.n_periods
-        t = layout.tariff
-        if objective == "cost" and t is not None:
-            return cls(np.asarray(t.price_per_kWh, dtype=float), t.demand_charge_per_kW / t.demand_period_days,
-                       True, True)
+        air = resolve_plant(layout).air
+        if objective == "cost" and air.tariff is not None:
+            return cls(np.asarray(air.tariff.price_per_kWh, dtype=float), air.demand_rate_per_kW_day, True, True)
         return cls(np.ones(n), 0.0, False, False)
 
 
@@ -162,12 +164,12 @@ class Dispatch:
         out = {"energy_kWh_per_day": energy, "peak_kW": float(p.max()), "peak_period": int(np.argmax(p)),
                "starts": {m.id: int(s) for m, s in zip(self.machines, starts)},
                "running_h": {m.id: float(r.sum() * self.period_h) for m, r in zip(self.machines, self.running)}}
-        t = layout.tariff
-        if t is None:
+        air = resolve_plant(layout).air
+        if air.tariff is None:
             out.update(energy_cost=None, demand_charge=None, start_costs=None, cost_per_day=None)
             return out
-        ec = float(np.sum(np.asarray(t.price_per_kWh) * p * self.period_h))
-        dc = t.demand_charge_per_kW / t.demand_period_days * float(p.max())
+        ec = float(air.energy_cost([float(x) for x in p], self.period_h))
+        dc = float(air.demand_charge(float(p.max())))
         sc = float(sum(m.start_cost * s for m, s in zip(self.machines, starts)))
         out.update(energy_cost=ec, demand_charge=dc, start_costs=sc, cost_per_day=ec + dc + sc)
         return out
@@ -320,6 +322,10 @@ def shortfall_findings(dp: Dispatch) -> list[dict]:
         elif dp.demand_Sm3_h[p] > sum(mm.range_at(d)[1] for mm in allowed):
             why = (f"above the capacity of the blowers that can run at {d:.1f} kPa "
                    f"({sum(mm.range_at(d)[1] for mm in allowed):.0f} Sm3/h)")
+        elif dp.demand_Sm3_h[p] < min(mm.range_at(d)[0] for mm in allowed):
+            smallest = min(allowed, key=lambda mm: mm.range_at(d)[0])
+            why = (f"below the smallest blower's minimum ({smallest.id} {smallest.range_at(d)[0]:.0f} Sm3/h at "
+                   f"{d:.1f} kPa) and no other zone can take the extra air")
         else:
             why = "blocked by the blowers' minimum run/rest times or starts limit"
         out.append({"limit": "blower_staging", "period": int(p) + 1, "shortfall_Sm3_h": float(dp.shortfall_Sm3_h[p]),

@@ -14,7 +14,8 @@
 4. **verify** - the schedule re-simulated (:mod:`airtaper.optimize.verify`; exit
    code 4 when it breaks a limit beyond the tolerances);
 5. **marginal costs** from the duals (:mod:`airtaper.optimize.marginal`);
-6. the tables and the summary for :func:`airtaper.report.study_files.write_study_outputs`.
+6. the tables and the summary (:mod:`airtaper.optimize.results`) for
+   :func:`airtaper.report.study_files.write_study_outputs`.
 
 :class:`DiurnalOptimisation` keeps the built model so that limits can be moved and
 the problem re-solved warm (tests, sensitivity studies).
@@ -30,20 +31,21 @@ import pandas as pd
 import pyomo.environ as pyo
 
 from airtaper.errors import EXIT_FAILURE, EXIT_INFEASIBLE, EXIT_OK, EXIT_UNVERIFIED, ModelError
-from airtaper.layout.types import ASM1_COMPONENTS, Layout
+from airtaper.layout.types import Layout
 from airtaper.model.train import build_cyclic_model
 from airtaper.optimize import elastic as _elastic
 from airtaper.optimize.backoff import hold_do
 from airtaper.optimize.baseline import Baseline, complying_baseline, run_baseline
 from airtaper.optimize.compliance import day_figures
-from airtaper.optimize.attempts import BASE_OPTIONS, LADDER, Rung, point_hours, start_airflow, start_from_day
+from airtaper.optimize.attempts import BASE_OPTIONS, LADDER, Rung, start_airflow, start_from_day
 from airtaper.optimize.marginal import marginal_costs
 from airtaper.optimize.problem import attach_problem, fix_slacks, max_power_line_kW, point_weights, settings_for
 from airtaper.optimize.prescreen import outside_tested_range, prescreen
 from airtaper.optimize.progress import Progress, Silent
+from airtaper.optimize.results import EffluentFigures, Limits, Smoothing, StudySummary, empty_tables, study_tables
 from airtaper.optimize.gradient_scaling import apply_scaling
-from airtaper.optimize.staging import (day_dispatch, dispatch_summary, dispatch_table, feasibility_check,
-                                       final_dispatch, run_staging)
+from airtaper.optimize.staging import (bill_day_by_dispatch, dispatch_summary, dispatch_table, feasibility_check,
+                                       final_dispatch, redispatch, run_staging)
 from airtaper.optimize.verify import verify_day
 from airtaper.solve import solve_nlp
 
@@ -130,15 +132,19 @@ class DiurnalOptimisation:
         value = base.cost_per_day if objective == "cost" else base.energy_kWh_per_day
         return float(value) if value and value > 0 else 1.0
 
-    def build(self) -> None:
-        """Build the model, start it from the baseline, attach the problem and scale it."""
+    def build(self, diffuser_count=None) -> None:
+        """Build the model, start it from the baseline, attach the problem and scale it.
+
+        ``diffuser_count``: a count Var shared with other models (see
+        :func:`airtaper.model.train.attach_aeration`).
+        """
         base = self.run_baseline()
         self.progress.phase("building the cyclic model")
         t = time.perf_counter()
         kwargs = {"steps_per_period": model_steps_per_period(self.layout, self.options)}
         if self.options.scheme is not None:
             kwargs["scheme"] = self.options.scheme
-        m = build_cyclic_model(self.layout, **kwargs)
+        m = build_cyclic_model(self.layout, diffuser_count=diffuser_count, **kwargs)
         self.timings["build_s"] = time.perf_counter() - t
         t = time.perf_counter()
         start_from_day(m, base.day, start_airflow(m, base.day))
@@ -146,7 +152,7 @@ class DiurnalOptimisation:
                                 smoothing_weight=self.options.smoothing_weight,
                                 mixing_airflow_min_Sm3_h_m2=self.options.mixing_airflow_min_Sm3_h_m2,
                                 staging=self.options.staging)
-        attach_problem(m, self.layout, settings)
+        attach_problem(m, settings)
         self.timings["initialise_s"] = time.perf_counter() - t
         self.progress.phase("converting the model and building derivatives")
         t = time.perf_counter()
@@ -262,7 +268,7 @@ class DiurnalOptimisation:
         if name == "do_min":
             b.do_min_mg_L[zone] = float(value)
         elif name == "diffusers":
-            b.diffuser_count[zone] = float(value)
+            self.m.diffuser_count[zone] = float(value)
         elif name in ("nh4_mean", "nh4_max", "tn_mean"):
             if not b.component(name).active:
                 raise ModelError(f"the layout sets no {name} limit")
@@ -296,48 +302,6 @@ class DiurnalOptimisation:
         do = {z: [pyo.value(m.conc[t, z, "SO"]) for t in steps] for z in m.ZONES}
         w = point_weights(m)
         return day_figures(self.layout, nh4, tn, q, per, do, weights=[w[t] for t in steps])
-
-    def tables(self) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
-        m, b = self.m, self.m.opt
-        layout = self.layout
-        period_h = layout.horizon.period_h
-        sched = []
-        w = point_weights(m)
-        hours = point_hours(m)
-        states = b.swing_states or {}
-        for p in m.PERIODS:
-            steps = [t for t in m.STEPS if m.period_of_step[t] == p]
-            wp = np.array([w[t] for t in steps])
-            wp = wp / wp.sum()
-            for z in b.ZONES:
-                q = float(m.airflow_Sm3_h[z, p].value)
-                do = np.array([pyo.value(m.conc[t, z, "SO"]) for t in steps])
-                sched.append({
-                    "period_start_h": (p - 1) * period_h, "period_end_h": p * period_h, "zone": z,
-                    "aerated": bool(states[z][p - 1]) if z in states else q > 0.0,
-                    "airflow_Sm3_h": q, "airflow_per_diffuser_Sm3_h": q / pyo.value(b.diffuser_count[z]),
-                    "do_min_mg_L": float(do.min()), "do_mean_mg_L": float(wp @ do),
-                    "nh4_mean_mg_L": float(wp @ np.array([pyo.value(m.conc[t, z, "SNH"]) for t in steps])),
-                    "otr_kg_h": float(wp @ np.array([pyo.value(m.otr_kg_h[t, z]) for t in steps])),
-                })
-        header = pd.DataFrame([{
-            "period": p, "pressure_kPa": float(b.header_kPa[p].value),
-            "airflow_Sm3_h": float(pyo.value(b.total_airflow_Sm3_h[p])), "power_kW": float(pyo.value(b.power_kW[p])),
-        } for p in m.PERIODS])
-        rows = []
-        for t in m.STEPS:
-            p = m.period_of_step[t]
-            for z in m.ZONES:
-                row = {"time_h": hours[t], "zone": z}
-                row.update({c: float(m.conc[t, z, c].value) for c in ASM1_COMPONENTS})
-                row["airflow_Sm3_h"] = float(m.airflow_Sm3_h[z, p].value) if z in b.ZONES else 0.0
-                row["otr_kg_h"] = float(pyo.value(m.otr_kg_h[t, z])) if z in m.AERATED_ZONES else 0.0
-                rows.append(row)
-            row = {"time_h": hours[t], "zone": "effluent"}
-            row.update({c: float(pyo.value(m.effluent_conc[t, c])) for c in ASM1_COMPONENTS})
-            row["tn_mg_L"] = float(pyo.value(m.effluent_tn_mg_L[t]))
-            rows.append(row)
-        return pd.DataFrame(sched), header, pd.DataFrame(rows)
 
 
 def _saving(base, value):
@@ -443,13 +407,18 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         study.timings["verification_s"] = time.perf_counter() - t
         if not verification["verified"]:
             messages.append("WARNING: the re-simulated schedule breaks a limit: " + "; ".join(verification["violations"]))
-    schedule, header, timeseries = study.tables()
+    blowers_table, dispatch = None, None
+    redispatched = False
+    if staging is not None and staging.dispatch is not None and not staging.findings and result is not None \
+            and status == "optimal":
+        # the last re-solves moved the airflow after the machines were chosen: the cheapest machines for it
+        staging.dispatch, redispatched = redispatch(study.m, staging.dispatch)
+    schedule, header, timeseries = study_tables(study)
     schedule, header = base.add_columns(schedule, header)
     figs = study.figures()
     energy = study.energy_kWh_per_day()
     power = study.power_by_period()
-    cost = study.m.opt.air.cost(power)
-    blowers_table, dispatch = None, None
+    cost = study.m.train_data.plant.air.cost(power)
     if staging is not None and staging.dispatch is not None:
         dp = staging.dispatch if staging.findings else final_dispatch(study.m, staging.dispatch)
         blowers_table = dispatch_table(layout, dp)
@@ -459,6 +428,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         dispatch["rounds"] = staging.rounds
         dispatch["converged"] = staging.converged
         dispatch["stopped"] = staging.reason
+        dispatch["redispatched_at_final_schedule"] = redispatched
         dispatch["swing_zones"] = {z: {"aerated_periods": [int(i) + 1 for i in np.flatnonzero(on)],
                                        "switches": int(np.sum(on != np.roll(on, 1)))}
                                    for z, on in (staging.swing_states or {}).items()}
@@ -468,11 +438,8 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
             if breaches:
                 status = "unverified"
                 messages.append("WARNING: the schedule breaks a machine or grid range: " + "; ".join(breaches))
-        bd = day_dispatch(layout, base.day, objective)
+        bd = bill_day_by_dispatch(layout, base.day, objective)
         if bd is not None:  # the baseline billed by the same dispatch rule: like with like
-            bill = bd.bill(layout)
-            base.day.energy_kWh_per_day = bill["energy_kWh_per_day"]
-            base.day.cost_per_day = bill["cost_per_day"]
             header["baseline_power_kW"] = bd.total_power_kW
             base_dispatch = dispatch_summary(layout, bd)
             base_dispatch["shortfall"] = [f["message"] for f in bd.findings]
@@ -492,8 +459,17 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         prog.phase("the uniform-DO baseline breaks a limit: finding the lowest uniform setpoint that complies")
         t = time.perf_counter()
         complying = complying_baseline(layout, base)
+        if complying is not None and dispatch is not None and "baseline" in dispatch:
+            # billed by the same dispatch rule as the baseline and the optimum
+            cd = bill_day_by_dispatch(layout, complying.day, objective)
+            if cd is not None:
+                dispatch["complying_baseline"] = dispatch_summary(layout, cd)
         study.timings["complying_baseline_s"] = time.perf_counter() - t
     savings = saving_figures(base, complying, energy, cost, status)
+    if dispatch and "complying_baseline" in dispatch:
+        cd = dispatch.pop("complying_baseline")
+        if savings["complying_baseline"] is not None:
+            savings["complying_baseline"]["dispatch"] = cd
     messages.extend(savings.pop("notes"))
     periods = np.arange(layout.horizon.n_periods)
     untested = outside_tested_range(layout, study.schedule_by_zone(), periods,
@@ -503,39 +479,34 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     exit_code = {"optimal": EXIT_OK, "infeasible": EXIT_INFEASIBLE, "unverified": EXIT_UNVERIFIED,
                  "failed": EXIT_FAILURE}[status]
     study.timings["total_s"] = time.perf_counter() - t0
-    lim = layout.limits
-    summary = {
-        "status": status,
-        "plant": layout.plant.name,
-        "layout": layout.path,
-        "objective": study.m.opt.settings.objective,
-        "currency": layout.tariff.currency if layout.tariff else "",
-        "energy_kWh_per_day": energy,
-        "cost_per_day": cost,
-        "baseline": dict(base.summary(), **({"dispatch": dispatch.pop("baseline")}
-                                              if dispatch and "baseline" in dispatch else {})),
+    summary = StudySummary(
+        status=status,
+        plant=layout.plant.name,
+        layout=layout.path,
+        objective=study.m.opt.settings.objective,
+        currency=layout.tariff.currency if layout.tariff else "",
+        energy_kWh_per_day=energy,
+        cost_per_day=cost,
+        baseline=dict(base.summary(), **({"dispatch": dispatch.pop("baseline")}
+                                         if dispatch and "baseline" in dispatch else {})),
         **savings,
-        "dispatch": dispatch,
-        "effluent": {k: figs[k] for k in ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L")},
+        dispatch=dispatch,
+        effluent=EffluentFigures.of(figs),
         # the re-simulated day's margins (continuous time) when verified, else the optimiser's
-        "min_do_margin_mg_L": figs["min_do_margin_mg_L"] if verification is None
+        min_do_margin_mg_L=figs["min_do_margin_mg_L"] if verification is None
         else verification["min_do_margin_mg_L"],
-        "do_margin_mg_L": figs["do_margin_mg_L"] if verification is None else verification["do_margin_mg_L"],
-        "optimiser_min_do_margin_mg_L": figs["min_do_margin_mg_L"],
-        "do_hold": None if hold is None else {k: v for k, v in hold.items() if k != "verification"},
-        "limits": {"nh4_mean_mg_L": lim.nh4_mean_mg_L, "nh4_max_mg_L": lim.nh4_max_mg_L,
-                   "tn_mean_mg_L": lim.tn_mean_mg_L,
-                   "do_min_mg_L": {z.id: z.do_min_mg_L for z in layout.zones if z.do_min_mg_L is not None},
-                   "do_max_mg_L": {z.id: z.do_max_mg_L for z in layout.zones if z.do_max_mg_L is not None}},
-        "verification": verification if verification is not None else {"verified": None, "skipped": True},
-        "verified": None if verification is None else verification["verified"],
-        "marginal_costs": marginal,
-        "infeasibility": infeasibility,
-        "prescreen": screen,
-        "outside_tested_range": untested,
-        "smoothing": {"weight": study.m.opt.settings.smoothing_weight,
-                      "penalty": float(pyo.value(study.m.opt.smoothing))},
-        "solver": {
+        do_margin_mg_L=figs["do_margin_mg_L"] if verification is None else verification["do_margin_mg_L"],
+        optimiser_min_do_margin_mg_L=figs["min_do_margin_mg_L"],
+        do_hold=None if hold is None else {k: v for k, v in hold.items() if k != "verification"},
+        limits=Limits.of_layout(layout),
+        verification=verification if verification is not None else {"verified": None, "skipped": True},
+        verified=None if verification is None else verification["verified"],
+        marginal_costs=marginal,
+        infeasibility=infeasibility,
+        prescreen=screen,
+        outside_tested_range=untested,
+        smoothing=Smoothing(study.m.opt.settings.smoothing_weight, float(pyo.value(study.m.opt.smoothing))),
+        solver={
             "status": None if result is None else result.status.value,
             "message": None if result is None else result.message,
             "iterations": int(study.timings.get("iterations", 0)),
@@ -545,9 +516,9 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
             "scaling": study.scaling,
             "timings": {k: v for k, v in study.timings.items() if k != "iterations"},
         },
-        "messages": messages,
-    }
-    return StudyResult(schedule=schedule, header=header, timeseries=timeseries, summary=_jsonable(summary),
+        messages=messages,
+    )
+    return StudyResult(schedule=schedule, header=header, timeseries=timeseries, summary=summary.to_dict(),
                        exit_code=exit_code, study=study, blowers=blowers_table)
 
 
@@ -558,52 +529,22 @@ def _node_airflow(day) -> dict:
 
 def _screened_out(layout: Layout, screen: dict, seconds: float) -> StudyResult:
     """The result of a run the pre-screen stops: no schedule, the findings, exit code 3."""
-    schedule = pd.DataFrame(columns=["period_start_h", "period_end_h", "zone", "airflow_Sm3_h",
-                                     "airflow_per_diffuser_Sm3_h", "do_min_mg_L", "do_mean_mg_L", "nh4_mean_mg_L",
-                                     "otr_kg_h"])
-    header = pd.DataFrame(columns=["period", "pressure_kPa", "airflow_Sm3_h", "power_kW"])
-    timeseries = pd.DataFrame(columns=["time_h", "zone", *ASM1_COMPONENTS, "airflow_Sm3_h", "otr_kg_h"])
-    lim = layout.limits
-    summary = {
-        "status": "infeasible",
-        "plant": layout.plant.name,
-        "layout": layout.path,
-        "objective": layout.operation.objective,
-        "currency": layout.tariff.currency if layout.tariff else "",
-        "energy_kWh_per_day": None, "cost_per_day": None, "baseline": None,
-        "saving_percent": None, "cost_saving_percent": None, "baseline_compliant": None, "complying_baseline": None,
-        "effluent": None, "min_do_margin_mg_L": None, "do_margin_mg_L": None,
-        "limits": {"nh4_mean_mg_L": lim.nh4_mean_mg_L, "nh4_max_mg_L": lim.nh4_max_mg_L,
-                   "tn_mean_mg_L": lim.tn_mean_mg_L,
-                   "do_min_mg_L": {z.id: z.do_min_mg_L for z in layout.zones if z.do_min_mg_L is not None},
-                   "do_max_mg_L": {z.id: z.do_max_mg_L for z in layout.zones if z.do_max_mg_L is not None}},
-        "verification": {"verified": None, "skipped": True}, "verified": None,
-        "marginal_costs": [],
-        "infeasibility": screen["findings"],
-        "prescreen": screen,
-        "outside_tested_range": [],
-        "solver": {"status": None, "timings": {"prescreen_s": screen["seconds"], "total_s": seconds}},
-        "messages": ["the pre-screen shows the limits cannot all be met (no optimisation was run): "
-                     + f["message"] for f in screen["findings"]] + ["no saving is given: the limits cannot be met"],
-    }
-    return StudyResult(schedule=schedule, header=header, timeseries=timeseries, summary=_jsonable(summary),
+    schedule, header, timeseries = empty_tables()
+    summary = StudySummary(
+        status="infeasible",
+        plant=layout.plant.name,
+        layout=layout.path,
+        objective=layout.operation.objective,
+        currency=layout.tariff.currency if layout.tariff else "",
+        limits=Limits.of_layout(layout),
+        infeasibility=screen["findings"],
+        prescreen=screen,
+        solver={"status": None, "timings": {"prescreen_s": screen["seconds"], "total_s": seconds}},
+        messages=["the pre-screen shows the limits cannot all be met (no optimisation was run): "
+                  + f["message"] for f in screen["findings"]] + ["no saving is given: the limits cannot be met"],
+    )
+    return StudyResult(schedule=schedule, header=header, timeseries=timeseries, summary=summary.to_dict(),
                        exit_code=EXIT_INFEASIBLE)
-
-
-def _jsonable(obj):
-    """Plain JSON types (numpy scalars to Python, non-finite floats to None)."""
-    if isinstance(obj, dict):
-        return {str(k): _jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_jsonable(v) for v in obj]
-    if isinstance(obj, (np.floating, float)):
-        v = float(obj)
-        return v if np.isfinite(v) else None
-    if isinstance(obj, (np.integer,)):
-        return int(obj)
-    if isinstance(obj, np.bool_):
-        return bool(obj)
-    return obj
 
 
 __all__ = ["DiurnalOptimisation", "StudyOptions", "StudyResult", "run_optimization"]

@@ -33,6 +33,7 @@ from __future__ import annotations
 
 import pyomo.environ as pyo
 
+from airtaper import units
 from airtaper.optimize.compliance import clock
 from airtaper.optimize.problem import active_limit_groups, fix_slacks, free_slacks, point_weights
 
@@ -52,7 +53,7 @@ def _weights(m, group, slack) -> dict:
     w = PROCESS_WEIGHT if group.kind == "process" else EQUIPMENT_WEIGHT
     if group.index == "zone_step":
         pw = point_weights(m)
-        return {k: w * 24.0 * pw[k[0]] for k in slack}
+        return {k: w * units.HOURS_PER_DAY * pw[k[0]] for k in slack}
     return {k: w for k in slack}
 
 
@@ -71,7 +72,7 @@ def enter_elastic(m) -> None:
     for g, slack in active_limit_groups(b):
         w = _weights(m, g, slack)
         terms.extend(w[k] * v for k, v in slack.items())
-    normal = {z: v for z, v in normal_do_mg_L(b.layout).items() if z in b.ZONES}
+    normal = {z: v for z, v in normal_do_mg_L(m.train_data.plant.layout).items() if z in b.ZONES}
     for name in ("elastic_do_excess_def", "elastic_do_excess", "ELASTIC_DO_ZONES"):
         if b.component(name) is not None:
             b.del_component(name)
@@ -81,7 +82,8 @@ def enter_elastic(m) -> None:
     b.elastic_do_excess_def = pyo.Constraint(m.STEPS, b.ELASTIC_DO_ZONES, rule=lambda b, t, z: (
         b.elastic_do_excess[t, z] >= m.conc[t, z, "SO"] - normal[z]))
     pw = point_weights(m)
-    terms.extend(EXCESS_DO_WEIGHT * 24.0 * pw[t] * b.elastic_do_excess[t, z] for t in m.STEPS for z in normal)
+    terms.extend(EXCESS_DO_WEIGHT * units.HOURS_PER_DAY * pw[t] * b.elastic_do_excess[t, z]
+                 for t in m.STEPS for z in normal)
     if b.component("elastic_objective") is not None:
         b.del_component("elastic_objective")
     b.elastic_objective = pyo.Objective(expr=b.objective.expr + sum(terms), sense=pyo.minimize)
@@ -156,7 +158,7 @@ def findings(m) -> list[dict]:
     (``start_h``, ``end_h``, ``amount``, ``unit``), each with its own largest relaxation.
     """
     b = m.opt
-    period_h = m._train_data.period_h
+    period_h = m.train_data.period_h
     step_h = m.step_hours
     out = []
     for g, slack in active_limit_groups(b):
@@ -182,7 +184,7 @@ def findings(m) -> list[dict]:
             for first, last in _runs(list(values)):
                 amount = max(values[k] for k in range(first, last + 1))
                 if g.index == "scalar":
-                    start, end = 0.0, 24.0
+                    start, end = 0.0, units.HOURS_PER_DAY
                 elif g.index == "zone_step":
                     k = m.points_per_step
                     start, end = ((first - 1) // k) * step_h, ((last - 1) // k + 1) * step_h
@@ -216,7 +218,7 @@ def _merge_touching(spans: list[dict]) -> list[dict]:
 
 def _wrap_midnight(spans: list[dict]) -> list[dict]:
     """A span ending at 24:00 and one starting at 00:00 are one span through midnight (listed first)."""
-    if len(spans) > 1 and spans[0]["start_h"] <= 1e-9 and spans[-1]["end_h"] >= 24.0 - 1e-9:
+    if len(spans) > 1 and spans[0]["start_h"] <= 1e-9 and spans[-1]["end_h"] >= units.HOURS_PER_DAY - 1e-9:
         last = spans.pop()
         spans[0] = {"start_h": last["start_h"], "end_h": spans[0]["end_h"],
                     "amount": max(last["amount"], spans[0]["amount"])}

@@ -34,8 +34,7 @@ def _typical(m, var) -> float:
     comp = var.parent_component()
     if comp is m.airflow_Sm3_h:
         z = var.index()[0]
-        lo, hi = m.opt.layout.zone_airflow_range_Sm3_h(m.opt.layout.zone(z))
-        return max(hi, 1.0)
+        return max(m.aeration[z].airflow_max_Sm3_h, 1.0)
     if comp is getattr(m.opt, "header_kPa", None):
         return 10.0
     return 1.0

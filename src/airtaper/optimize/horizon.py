@@ -17,6 +17,7 @@ from dataclasses import replace
 
 import numpy as np
 
+from airtaper import units
 from airtaper.errors import ModelError
 from airtaper.layout.types import Layout
 
@@ -75,7 +76,8 @@ def with_periods(layout: Layout, n_periods: int, steps_per_period: int | None = 
         inlet_air=replace(layout.inlet_air, temperature_C=f(layout.inlet_air.temperature_C)),
         tariff=tariff,
         load_days=days,
-        horizon=replace(layout.horizon, n_periods=int(n_periods), period_h=24.0 / n_periods, steps_per_period=spp),
+        horizon=replace(layout.horizon, n_periods=int(n_periods), period_h=units.HOURS_PER_DAY / n_periods,
+                        steps_per_period=spp),
     )
 
 

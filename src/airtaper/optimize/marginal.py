@@ -92,7 +92,7 @@ def raw_derivatives(m, result) -> dict:
     for z in b.DO_ZONES:
         out[("do_min_mg_L", z)] = ref * sum(_dual(result, b.do_min[t, z]) for t in m.STEPS)
     zones = list(b.ZONES)
-    for z, d in zip(zones, parameter_sensitivity(m, result, [b.diffuser_count[z] for z in zones])):
+    for z, d in zip(zones, parameter_sensitivity(m, result, [m.diffuser_count[z] for z in zones])):
         out[("diffusers", z)] = ref * d
     return out
 

@@ -45,9 +45,10 @@ import time
 
 import numpy as np
 
+from airtaper import units
 from airtaper.layout.types import Layout
-from airtaper.optimize.airside import AirSide
 from airtaper.optimize.compliance import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE
+from airtaper.plant import resolve_plant
 from airtaper.simulate.aeration import zone_transfer
 from airtaper.simulate.steady import SteadyStateError
 from airtaper.simulate.summary import period_runs, span_text
@@ -60,7 +61,7 @@ FULL_AIR_DAYS = 1
 
 
 def _grid_zones(layout: Layout):
-    return [z for z in layout.zones if z.grid is not None and z.aerated and z.fixed_kla_per_d is None]
+    return [z for z in layout.zones if z.has_diffusers]
 
 
 def _finding(limit, zone, spans, message) -> dict:
@@ -68,7 +69,7 @@ def _finding(limit, zone, spans, message) -> dict:
 
 
 def _all_day(layout: Layout, amount: float, unit: str) -> list[dict]:
-    return [{"start_h": 0.0, "end_h": 24.0, "amount": float(amount), "unit": unit}]
+    return [{"start_h": 0.0, "end_h": units.HOURS_PER_DAY, "amount": float(amount), "unit": unit}]
 
 
 def equipment_findings(layout: Layout) -> list[dict]:
@@ -87,7 +88,7 @@ def equipment_findings(layout: Layout) -> list[dict]:
                                 f"{100.0 * (lo / hi - 1.0):.0f} %"))
     if not layout.blowers:
         return out
-    air = AirSide(layout)
+    air = resolve_plant(layout).air
     lo_total = sum(r[0] for r in ranges.values())
     hi_total = sum(r[1] for r in ranges.values())
     cap, turndown = air.blower_capacity_Sm3_h, air.blower_turndown_Sm3_h
@@ -158,7 +159,8 @@ def full_air_findings(layout: Layout, day) -> list[dict]:
 
 def _oxygen_shortfall(layout: Layout, zone, airflow_Sm3_h: float, period: int, do_low_mg_L: float) -> float:
     """Lower bound of the extra oxygen transfer a zone needs, as a fraction (module notes)."""
-    _, sat = zone_transfer(layout, zone, airflow_Sm3_h, layout.plant.temperature_C[period])
+    plant = resolve_plant(layout)
+    _, sat = zone_transfer(plant, plant.zone_index(zone.id), airflow_Sm3_h, plant.temperature_C[period])
     c_star = float(np.asarray(sat))
     return max(0.0, (zone.do_min_mg_L - do_low_mg_L) / max(c_star - zone.do_min_mg_L, 1e-9))
 

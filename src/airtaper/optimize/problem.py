@@ -7,9 +7,9 @@ schedule (docs/optimization.md gives the full statement):
 Decisions
     ``airflow_Sm3_h[z, p]`` of every diffused zone (the model's Var, unfixed) and
     ``header_kPa[p]``, the header gauge pressure. The diffuser count of every grid is
-    the mutable Param ``diffuser_count[z]``; the zone kLa expressions are re-stated on
-    it (airflow per diffuser and diffuser density both follow the count), and so are
-    the per-diffuser airflow limits and the diffuser headloss. The value of one more
+    the model's mutable Param ``diffuser_count[z]``; the model's kLa expressions follow
+    it (airflow per diffuser and diffuser density, :meth:`airtaper.plant.DiffusedZone.kla_per_d`),
+    and so do the per-diffuser airflow limits and the diffuser headloss. The value of one more
     diffuser is the sensitivity of the optimum to this parameter, from the duals
     (:func:`airtaper.optimize.marginal.parameter_sensitivity`). A count *variable* held
     by an equality (whose dual is the same number) gave the same values but doubled the
@@ -40,21 +40,15 @@ from dataclasses import dataclass, field
 import numpy as np
 import pyomo.environ as pyo
 
-from airtaper import units
 from airtaper.errors import ModelError
 from airtaper.layout.types import Layout
-from airtaper.model.data import GridAeration
-from airtaper.optimize.airside import AirSide
 from airtaper.optimize.dispatch import envelope_lines, machines_of, max_lines
 from airtaper.physics.blower import blower_power_kW
-from airtaper.physics.transfer import field_kla_per_h
 
 #: Numerical box on airflow, as a multiple of the zone's hardware maximum: wide enough
 #: that the elastic solve can ask for more air than the hardware passes, and keeps
 #: Ipopt away from absurd values. Common practice (no source).
 AIRFLOW_BOX_FACTOR = 3.0
-#: Airflow added inside the SOTE curve (not to the air supplied), as in the model.
-_AIRFLOW_FLOOR_Sm3_h = 1e-6
 
 
 @dataclass(frozen=True)
@@ -118,15 +112,6 @@ def settings_for(layout: Layout, reference: float, *, objective: str | None = No
 
 
 # --- helpers read by rules ----------------------------------------------------------------
-def _kla_on_diffusers(m, z, p):
-    """Field kLa (1/d) of a diffused zone with the diffuser count as the Param ``diffuser_count[z]``."""
-    a: GridAeration = m.aeration[z]
-    n = m.opt.diffuser_count[z]
-    q = m.airflow_Sm3_h[z, p]
-    density = a.density_percent * n / a.diffusers
-    sote = a.sote.sote_fraction((q + _AIRFLOW_FLOOR_Sm3_h) / n, density, a.submergence_m)
-    kla_h = field_kla_per_h(q, sote, m.zone_volume_m3[z], a.alpha, a.fouling, m.temperature_C[p], a.c_inf20_mg_L)
-    return units.per_hour_to_per_day(kla_h)
 
 
 def steps_of_period(m, p) -> list[int]:
@@ -167,28 +152,30 @@ def period_mean(m, expr, p):
 
 
 # --- the attachment -----------------------------------------------------------------------
-def attach_problem(m, layout: Layout, settings: ProblemSettings):
-    """Add decisions, limits and objective to a cyclic model (see module notes); returns ``m.opt``."""
+def attach_problem(m, settings: ProblemSettings):
+    """Add decisions, limits and objective to a cyclic model (see module notes); returns ``m.opt``.
+
+    Everything about the plant is read from the model's resolved plant (``m.train_data.plant``).
+    """
     if m.steady:
         raise ModelError("the diurnal optimisation needs the cyclic model (build_cyclic_model)")
     if hasattr(m, "opt"):
         raise ModelError("the model already has an optimisation block")
-    air = AirSide(layout)
+    plant = m.train_data.plant
+    air = plant.air
     grid = [z for z in m.GRID_ZONES]
     if not grid:
         raise ModelError("the layout has no diffused zones: there is no airflow to optimise")
     m.opt = b = pyo.Block()
-    b.layout = layout
-    b.air = air
     b.settings = settings
     b.ZONES = pyo.Set(initialize=grid, ordered=True)
-    do_zones = [z for z in grid if layout.zone(z).do_min_mg_L is not None]
-    do_max_zones = [z for z in grid if layout.zone(z).do_max_mg_L is not None]
+    do_zones = [z for z in grid if plant.zone(z).do_min_mg_L is not None]
+    do_max_zones = [z for z in grid if plant.zone(z).do_max_mg_L is not None]
     b.DO_ZONES = pyo.Set(initialize=do_zones, ordered=True)
     b.DO_MAX_ZONES = pyo.Set(initialize=do_max_zones, ordered=True)
     b.MIN_ZONES = pyo.Set(initialize=grid, ordered=True)
-    b.SWING_ZONES = pyo.Set(initialize=[z for z in grid if layout.zone(z).kind == "swing"], ordered=True)
-    b.VALVE_ZONES = pyo.Set(initialize=[z for z in grid if layout.zone(z).valve_capacity_Sm3_h is not None],
+    b.SWING_ZONES = pyo.Set(initialize=[z for z in grid if plant.zone(z).kind == "swing"], ordered=True)
+    b.VALVE_ZONES = pyo.Set(initialize=[z for z in grid if plant.zone(z).valve_capacity_Sm3_h is not None],
                             ordered=True)
     P = list(m.PERIODS)
 
@@ -211,27 +198,23 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
         return b.swing_air[z, p] if z in b.SWING_ZONES else 1.0
 
     # --- decisions ------------------------------------------------------------------------
-    b.diffuser_count = pyo.Param(b.ZONES, mutable=True, initialize={z: float(layout.zone(z).grid.count) for z in grid})
     for z in grid:  # every airflow has a value: the model fixes each one when it is built
-        hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))[1]
+        hi = air.zone(z).airflow_max_Sm3_h
         for p in P:
             v = m.airflow_Sm3_h[z, p]
             v.unfix()
             v.setlb(0.0)
             v.setub(AIRFLOW_BOX_FACTOR * hi)
-    for z in grid:  # kLa on the diffuser-count parameter
-        for p in P:
-            m.kla_per_d[z, p].set_value(_kla_on_diffusers(m, z, p))
 
     b.total_airflow_Sm3_h = pyo.Expression(m.PERIODS, rule=lambda b, p: sum(m.airflow_Sm3_h[z, p] for z in grid))
     b.zone_pressure_kPa = pyo.Expression(
         b.ZONES, m.PERIODS,
-        rule=lambda b, z, p: air.zone_required_pressure_kPa(layout.zone(z), m.airflow_Sm3_h[z, p], b.diffuser_count[z]))
+        rule=lambda b, z, p: air.zone_required_pressure_kPa(z, m.airflow_Sm3_h[z, p], m.diffuser_count[z]))
     b.header_kPa = pyo.Var(m.PERIODS, bounds=(0.0, None), initialize=lambda b, p: max(
-        pyo.value(b.zone_pressure_kPa[z, p]) for z in grid) + layout.header.min_valve_loss_kPa)
+        pyo.value(b.zone_pressure_kPa[z, p]) for z in grid) + air.header.min_valve_loss_kPa)
     b.valve_loss = pyo.Constraint(  # a swing zone switched off has its valve shut (swing_air 0)
         b.ZONES, m.PERIODS, rule=lambda b, z, p: b.header_kPa[p] - air_on(z, p) * b.zone_pressure_kPa[z, p]
-        >= air_on(z, p) * layout.header.min_valve_loss_kPa)
+        >= air_on(z, p) * air.header.min_valve_loss_kPa)
     # --- blower power --------------------------------------------------------------------
     # Staged: the power of the period's running machines is the largest of the lines of their
     # least-power curve (convex, see airtaper.optimize.dispatch), in equivalent airflow
@@ -239,7 +222,7 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
     # coefficients and the set's airflow range and pressure limit are fixed variables (values
     # change between staging rounds, the derivative structure does not); the first solve uses
     # the convex envelope over every set of machines (and no air).
-    b.machines = machines_of(layout)
+    b.machines = machines_of(plant)
     in_service = any(not mm.out_of_service for mm in b.machines)
     b.staged = in_service and settings.staging
     b.LINES = pyo.RangeSet(max_lines(b.machines) if b.staged else 1)
@@ -257,7 +240,7 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
         set_power_lines(b, {p: envelope_lines(b.machines) for p in P})
         b.power_kW = pyo.Var(m.PERIODS, bounds=(0.0, None))
         b.power_line_kW = pyo.Expression(m.PERIODS, b.LINES, rule=lambda b, p, k: blower_power_kW(
-            b.line_a[p, k] + b.line_b[p, k] * b.total_airflow_Sm3_h[p], float(layout.inlet_air.temperature_C[p - 1]),
+            b.line_a[p, k] + b.line_b[p, k] * b.total_airflow_Sm3_h[p], float(air.inlet_temperature_C[p - 1]),
             air.inlet_pressure_kPa, air.discharge_pressure_kPa(b.header_kPa[p], b.total_airflow_Sm3_h[p]), 1.0))
         b.power_curve = pyo.Constraint(m.PERIODS, b.LINES, rule=lambda b, p, k: b.power_kW[p] >= b.power_line_kW[p, k])
         for p in P:
@@ -278,7 +261,7 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
 
     so = lambda t, z: m.conc[t, z, "SO"]  # noqa: E731
     b.do_min_mg_L = pyo.Param(b.DO_ZONES, mutable=True,
-                              initialize={z: float(layout.zone(z).do_min_mg_L) for z in do_zones})
+                              initialize={z: float(plant.zone(z).do_min_mg_L) for z in do_zones})
     # back-offs inside the DO range per zone and period (0 unless the re-simulation asks for
     # them: airtaper.optimize.backoff holds the range between the time points)
     b.do_backoff_mg_L = pyo.Param(b.DO_ZONES, m.PERIODS, mutable=True, initialize=0.0)
@@ -287,13 +270,13 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
         so(t, z) + s[t, z] >= (b.do_min_mg_L[z] + b.do_backoff_mg_L[z, m.period_of_step[t]])
         * (b.swing_do_on[t, z] if z in b.SWING_ZONES else 1.0)))
     b.do_max_mg_L = pyo.Param(b.DO_MAX_ZONES, mutable=True,
-                              initialize={z: float(layout.zone(z).do_max_mg_L) for z in do_max_zones})
+                              initialize={z: float(plant.zone(z).do_max_mg_L) for z in do_max_zones})
     b.do_max_backoff_mg_L = pyo.Param(b.DO_MAX_ZONES, m.PERIODS, mutable=True, initialize=0.0)
     s2 = slack("do_max_slack", m.STEPS, b.DO_MAX_ZONES)
     b.do_max = pyo.Constraint(m.STEPS, b.DO_MAX_ZONES, rule=lambda b, t, z: (
         so(t, z) - s2[t, z] <= b.do_max_mg_L[z] - b.do_max_backoff_mg_L[z, m.period_of_step[t]]))
 
-    lim = layout.limits
+    lim = plant.limits
     b.effluent_weights = effluent_weights(m)
     b.nh4_mean_expr = pyo.Expression(expr=flow_weighted_mean(m, m.effluent_nh4_mg_L, b.effluent_weights))
     b.nh4_period_expr = pyo.Expression(m.PERIODS, rule=lambda b, p: period_mean(m, m.effluent_nh4_mg_L, p))
@@ -314,22 +297,19 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
     if lim.tn_mean_mg_L is None:
         b.tn_mean.deactivate()
 
-    def dtype(z):
-        return layout.diffuser_type(layout.zone(z).grid.type_id)
-
     q = m.airflow_Sm3_h
     s6 = slack("diffuser_max_slack", b.ZONES, m.PERIODS)
     b.diffuser_max = pyo.Constraint(b.ZONES, m.PERIODS, rule=lambda b, z, p: (
-        q[z, p] <= b.diffuser_count[z] * dtype(z).airflow_max_Sm3_h * (1.0 + s6[z, p])))
+        q[z, p] <= m.diffuser_count[z] * air.zone(z).diffuser_airflow_max_Sm3_h * (1.0 + s6[z, p])))
     s7 = slack("diffuser_min_slack", b.MIN_ZONES, m.PERIODS)
     b.diffuser_min = pyo.Constraint(b.MIN_ZONES, m.PERIODS, rule=lambda b, z, p: (
-        q[z, p] >= on(z, p) * b.diffuser_count[z] * dtype(z).airflow_min_Sm3_h * (1.0 - s7[z, p])))
+        q[z, p] >= on(z, p) * m.diffuser_count[z] * air.zone(z).diffuser_airflow_min_Sm3_h * (1.0 - s7[z, p])))
     s8 = slack("mixing_min_slack", b.MIN_ZONES, m.PERIODS)
     b.mixing_min = pyo.Constraint(b.MIN_ZONES, m.PERIODS, rule=lambda b, z, p: (
-        q[z, p] >= on(z, p) * settings.mixing_airflow_min_Sm3_h_m2[z] * layout.zone(z).area_m2 * (1.0 - s8[z, p])))
+        q[z, p] >= on(z, p) * settings.mixing_airflow_min_Sm3_h_m2[z] * plant.zone(z).area_m2 * (1.0 - s8[z, p])))
     s9 = slack("valve_max_slack", b.VALVE_ZONES, m.PERIODS)
     b.valve_max = pyo.Constraint(b.VALVE_ZONES, m.PERIODS, rule=lambda b, z, p: (
-        q[z, p] <= layout.zone(z).valve_capacity_Sm3_h * (1.0 + s9[z, p])))
+        q[z, p] <= plant.zone(z).valve_capacity_Sm3_h * (1.0 + s9[z, p])))
     s10 = slack("blower_max_slack", m.PERIODS)
     s11 = slack("blower_min_slack", m.PERIODS)
     s12 = slack("pressure_max_slack", m.PERIODS)
@@ -344,17 +324,15 @@ def attach_problem(m, layout: Layout, settings: ProblemSettings):
 
     # --- objective --------------------------------------------------------------------------
     if settings.objective == "cost":
-        tariff = layout.tariff
         b.peak_kW = pyo.Var(bounds=(0.0, None), initialize=max(pyo.value(b.power_kW[p]) for p in P))
         b.peak = pyo.Constraint(m.PERIODS, rule=lambda b, p: b.peak_kW >= b.power_kW[p])
-        if tariff.demand_charge_per_kW == 0.0:
+        if air.demand_rate_per_kW_day == 0.0:
             b.peak.deactivate()
             b.peak_kW.fix(0.0)
-        b.goal = pyo.Expression(expr=sum(tariff.price_per_kWh[p - 1] * b.power_kW[p] * air.period_h for p in P)
-                                + tariff.demand_charge_per_kW / tariff.demand_period_days * b.peak_kW)
+        b.goal = pyo.Expression(expr=air.day_cost([b.power_kW[p] for p in P], air.period_h, peak_kW=b.peak_kW))
     else:
         b.goal = pyo.Expression(expr=b.energy_kWh_per_day)
-    qmax = {z: layout.zone_airflow_range_Sm3_h(layout.zone(z))[1] for z in grid}
+    qmax = {z: air.zone(z).airflow_max_Sm3_h for z in grid}
     prev = {p: (p - 1 if p > 1 else P[-1]) for p in P}
     b.smoothing_weight = pyo.Param(mutable=True, initialize=settings.smoothing_weight)
     b.smoothing = pyo.Expression(expr=sum(((q[z, p] - q[z, prev[p]]) / qmax[z]) ** 2 for z in grid for p in P)

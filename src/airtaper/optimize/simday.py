@@ -4,7 +4,7 @@
 schedule or ideal DO control) and returns a :class:`SimDay`: per-step airflow and
 DO of every zone, effluent NH4-N, TN and flow, the compliance figures of
 :mod:`airtaper.optimize.compliance`, and the blower power, energy and cost of the day
-from :class:`~airtaper.optimize.airside.AirSide` at every output step.
+from :class:`~airtaper.plant.AirSide` at every output step.
 
 The compliance figures and the energy integrate the simulated day, not samples of
 it: effluent means and period means by Gauss-Legendre quadrature of the solver's
@@ -30,10 +30,12 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from airtaper import units
 from airtaper.layout.types import ASM1_COMPONENTS, Layout
-from airtaper.optimize.airside import AirSide
 from airtaper.optimize.compliance import day_figures
+from airtaper.plant import resolve_plant
 from airtaper.simulate.summary import setpoint_shortfalls
+from airtaper.units import HOURS_PER_DAY
 
 
 @dataclass
@@ -99,11 +101,20 @@ class SimDay:
 
     def _interpolate(self, samples: np.ndarray, hour: float) -> np.ndarray:
         n = len(self.time_h)
-        step = 24.0 / n
-        x = (hour % 24.0) / step
+        step = units.HOURS_PER_DAY / n
+        x = (hour % units.HOURS_PER_DAY) / step
         i = int(np.floor(x)) % n
         f = x - np.floor(x)
         return (1.0 - f) * samples[i] + f * samples[(i + 1) % n]
+
+
+def step_airflow(layout: Layout, res) -> tuple[dict, np.ndarray]:
+    """Zone id -> airflow at every output step of a simulated periodic day, and each step's 0-based period."""
+    n = len(res.effluent)
+    time_h = res.effluent["time_h"].to_numpy()
+    period = np.minimum((time_h / layout.horizon.period_h + 1e-9).astype(int), layout.horizon.n_periods - 1)
+    air = res.timeseries["airflow_Sm3_h"].to_numpy().reshape(n, len(layout.zones))
+    return {z.id: air[:, i] for i, z in enumerate(layout.zones)}, period
 
 
 def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=None, *, start_state=None,
@@ -134,25 +145,21 @@ def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=
     nz = len(zone_ids)
     n = len(eff)
     time_h = eff["time_h"].to_numpy()
-    period = np.minimum((time_h / layout.horizon.period_h + 1e-9).astype(int), layout.horizon.n_periods - 1)
-    air = ts["airflow_Sm3_h"].to_numpy().reshape(n, nz)
+    airflow, period = step_airflow(layout, res)
     conc = ts[list(ASM1_COMPONENTS)].to_numpy().reshape(n, nz, len(ASM1_COMPONENTS))
     so = ts["SO"].to_numpy().reshape(n, nz)
-    airflow = {zid: air[:, i] for i, zid in enumerate(zone_ids)}
     do = {zid: so[:, i] for i, zid in enumerate(zone_ids)}
     quad, ex = res.quadrature, res.do_extremes
-    side = AirSide(layout)
+    side = resolve_plant(layout).air
     node_air = {zid: quad.airflow_Sm3_h[:, i] for i, zid in enumerate(zone_ids)}
     with warnings.catch_warnings():  # curve extrapolation is reported where the airflow is chosen
         warnings.simplefilter("ignore")
         power = side.step_power_kW(airflow, period) if side.zones else np.zeros(n)
         node_power = side.step_power_kW(node_air, quad.period) if side.zones else np.zeros(quad.period.size)
-    energy = float(24.0 * quad.weight @ node_power)
+    energy = float(HOURS_PER_DAY * quad.weight @ node_power)
     cost = None
-    if layout.tariff is not None:
-        price = np.asarray(layout.tariff.price_per_kWh, dtype=float)[quad.period]
-        cost = float(24.0 * quad.weight @ (price * node_power)) + \
-            layout.tariff.demand_charge_per_kW / layout.tariff.demand_period_days * float(node_power.max())
+    if side.tariff is not None:
+        cost = float(side.day_cost([float(x) for x in node_power], HOURS_PER_DAY * quad.weight, quad.period))
     qe = quad.effluent
     # DO margins from the continuous extremes: the lowest and highest DO of every period
     do_extreme = {zid: np.concatenate((g["do_min_mg_L"].to_numpy(), g["do_max_mg_L"].to_numpy()))
@@ -169,4 +176,4 @@ def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=
                   setpoint_shortfalls=shortfalls, layers=res.layer_states)
 
 
-__all__ = ["SimDay", "simulate_day"]
+__all__ = ["SimDay", "simulate_day", "step_airflow"]

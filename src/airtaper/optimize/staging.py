@@ -6,11 +6,16 @@ Scheme (docs/optimization.md, "Blower staging and swing zones"):
    their maximum with no minimum, and the blower power the convex envelope of the least
    power over every set of machines in service (and of no air) - a convex under-estimate
    of the staged power, so the relaxed optimum is a lower bound of the cost it can reach;
-2. **swing states**: each swing zone's relaxed airflow rounded to on/off within its
-   switches limit (:func:`airtaper.optimize.dispatch.swing_states`, leaning to "on",
-   :data:`SWING_ON_FRACTION`), then fixed and the schedule re-solved warm with the blowers
-   still relaxed (the states change the air demand the dispatch will see); if that fails,
-   the swing zones are aerated all day and it is solved again;
+2. **swing states** (:func:`settle_swing_states`): the schedule is re-solved warm with every
+   swing zone aerated all day (the reference pattern, feasible whenever aerating helps at
+   all). Then a few candidate patterns are solved warm from it, each switching a zone off
+   in the periods where the relaxed airflow is below a threshold fraction of its minimum
+   when on (:data:`SWING_THRESHOLDS`, rounded to the switches limit by
+   :func:`airtaper.optimize.dispatch.swing_states`). The pattern with the lowest objective
+   is kept, so the result never costs more than aerating all day (at the relaxed blower
+   power). While on, the diffuser, mixing and DO minima hold; while off, the zone gets no
+   air and its kinetics are anoxic (the ASM1 switching functions at no oxygen); its
+   balances are positive-preserving (:func:`airtaper.model.train.switched_balance`);
 3. **dispatch round** ``r = 1, 2, ...``: the machines chosen by the MILP
    (:func:`airtaper.optimize.dispatch.solve_dispatch`) on the current airflow and
    discharge pressure of every period are fixed in the nonlinear schedule (their
@@ -19,6 +24,13 @@ Scheme (docs/optimization.md, "Blower staging and swing zones"):
    total cost changes by less than :data:`COST_RTOL` between rounds, after
    :data:`MAX_ROUNDS` rounds, or when a round costs more than the best so far (that round
    is undone: the result never costs more than the best round).
+
+Why the swing scheme: the relaxed optimum ranks the periods by how much air the process
+wants in the swing zone, so the patterns worth trying switch it off where that air is least;
+enumerating every pattern (over ten thousand in 24 periods under four switches) is out of
+reach at a nonlinear solve each, and a penalty continuation on 0/1 variables inside the
+nonlinear solve makes every solve non-convex with weights to tune. Each candidate costs
+one warm solve, and the reference pattern bounds the result.
 
 Why this scheme: the process model is nonlinear and large (tens of thousands of
 variables), the integer decisions are few and enter only through the air side; a
@@ -36,7 +48,7 @@ import numpy as np
 import pyomo.environ as pyo
 
 from airtaper.layout.types import Layout
-from airtaper.optimize.airside import AirSide
+from airtaper.plant import AirSide, resolve_plant
 from airtaper.optimize.dispatch import Bill, Dispatch, evaluate, machines_of, set_lines, solve_dispatch, swing_states
 from airtaper.optimize.attempts import Rung
 from airtaper.optimize.problem import max_power_line_kW, set_power_lines, set_swing_states
@@ -46,15 +58,13 @@ from airtaper.physics.blower import blower_power_kW
 COST_RTOL = 0.005
 #: Most dispatch rounds (each one a warm re-solve of the nonlinear schedule).
 MAX_ROUNDS = 4
-#: Relaxed airflow, as a fraction of a swing zone's minimum when on, at which rounding leans to "on":
-#: the relaxed fraction f is mapped to min(1, f / (2 x this)) before rounding at 1/2. Rounding
-#: up is the safe side (an aerated spell at its minimum gives at least the relaxed oxygen); a
-#: zone is switched off only where the relaxed schedule barely aerates it. Common practice (no source).
-SWING_ON_FRACTION = 0.1
-#: The solve with the rounded swing states: one warm attempt with an iteration cap (a feasible pattern
-#: converges in a few tens of iterations; an infeasible one would wander for hundreds before the
-#: fallback, every swing zone aerated all day, is tried down the whole retry ladder).
-SWING_RUNG = Rung("swing states", {"mu_strategy": "adaptive", "max_iter": 150})
+#: Thresholds on a swing zone's relaxed airflow (as a fraction of its minimum when on) below which
+#: a period is tried off, most switching first: each gives one candidate on/off pattern (module notes).
+SWING_THRESHOLDS = (1.0, 0.5, 0.2)
+#: The solve of one candidate swing pattern: one warm attempt from the all-day-aerated schedule
+#: with an iteration cap (a pattern the process can live with converges in a few tens of
+#: iterations; one it cannot would wander for hundreds).
+SWING_RUNG = Rung("swing states", {"mu_strategy": "adaptive", "max_iter": 300})
 #: Relative tolerance of the post-solve feasibility check of machines and grids.
 CHECK_RTOL = 1e-4
 
@@ -71,52 +81,70 @@ class StagingOutcome:
 
 
 # --- air state of a schedule -----------------------------------------------------------------
-def kw_per_equivalent(layout: Layout, air: AirSide, discharge_gauge_kPa) -> np.ndarray:
+def kw_per_equivalent(air: AirSide, discharge_gauge_kPa) -> np.ndarray:
     """Isentropic kW per Sm3/h of equivalent airflow at each period's discharge pressure and inlet temperature."""
     d = np.asarray(discharge_gauge_kPa, dtype=float)
-    t_in = np.asarray(layout.inlet_air.temperature_C, dtype=float)
+    t_in = air.inlet_temperature_C
     return np.asarray(blower_power_kW(1.0, t_in, air.inlet_pressure_kPa, air.site_pressure_kPa + d, 1.0), dtype=float)
 
 
 def model_air_state(m) -> dict:
     """Per period: total airflow, discharge gauge pressure, kW per equivalent Sm3/h, air the zones could still take."""
     b = m.opt
-    layout, air = b.layout, b.air
+    air = m.train_data.plant.air
     P = list(m.PERIODS)
     q = np.array([float(pyo.value(b.total_airflow_Sm3_h[p])) for p in P])
     header = np.array([float(b.header_kPa[p].value) for p in P])
     d = np.asarray(air.discharge_gauge_kPa(header, q), dtype=float)
     room = np.zeros(len(P))
     for z in b.ZONES:
-        hi = layout.zone_airflow_range_Sm3_h(layout.zone(z))[1]
+        hi = air.zone(z).airflow_max_Sm3_h
         for i, p in enumerate(P):
             if not (b.swing_states is not None and z in b.swing_states and not b.swing_states[z][i]):
                 room[i] += max(0.0, hi - float(m.airflow_Sm3_h[z, p].value))
-    return {"demand_Sm3_h": q, "discharge_gauge_kPa": d, "kw_per_equivalent": kw_per_equivalent(layout, air, d),
+    return {"demand_Sm3_h": q, "discharge_gauge_kPa": d, "kw_per_equivalent": kw_per_equivalent(air, d),
             "excess_max_Sm3_h": room}
 
 
 def day_dispatch(layout: Layout, day, objective: str) -> Dispatch | None:
     """The same dispatch rule applied to a simulated day (the baseline): per-period mean airflow and pressure."""
+    return steps_dispatch(layout, day.airflow, day.period, objective)
+
+
+def steps_dispatch(layout: Layout, airflow_by_zone: dict, period_of_step, objective: str) -> Dispatch | None:
+    """The dispatch of a simulated day given per step: zone id -> airflow (Sm3/h) at every step and the
+    0-based period of every step. Each period's mean airflow and discharge pressure go to the MILP, as
+    for the optimised schedule. None when the layout has no diffused zone or no blower in service."""
     machines = machines_of(layout)
-    air = AirSide(layout)
+    air = resolve_plant(layout).air
     if not air.zones or not any(not mm.out_of_service for mm in machines):
         return None
     n = layout.horizon.n_periods
-    flows = {z.id: np.asarray(day.airflow[z.id], dtype=float) for z in air.zones}
+    flows = {z.id: np.asarray(airflow_by_zone[z.id], dtype=float) for z in air.zones}
     header = air.header_pressure_kPa(flows)
     total = np.sum([flows[z] for z in flows], axis=0)
     d_step = np.asarray(air.discharge_gauge_kPa(header, total), dtype=float)
-    per = np.asarray(day.period, dtype=int)
+    per = np.asarray(period_of_step, dtype=int)
     q = np.array([total[per == k].mean() for k in range(n)])
     d = np.array([d_step[per == k].mean() for k in range(n)])
     room = np.zeros(n)
     for z in air.zones:
         if z.kind == "aerated":
-            hi = layout.zone_airflow_range_Sm3_h(z)[1]
+            hi = z.airflow_max_Sm3_h
             room += np.maximum(0.0, hi - np.array([flows[z.id][per == k].mean() for k in range(n)]))
-    return solve_dispatch(machines, q, d, kw_per_equivalent(layout, air, d), Bill.of(layout, objective),
+    return solve_dispatch(machines, q, d, kw_per_equivalent(air, d), Bill.of(layout, objective),
                           layout.horizon.period_h, room)
+
+
+def bill_day_by_dispatch(layout: Layout, day, objective: str) -> Dispatch | None:
+    """Bill a simulated day (a baseline) by the dispatch rule: its energy and cost replaced by the
+    dispatch's (like with like against the staged optimum). Returns the dispatch (None: left as it was)."""
+    bd = day_dispatch(layout, day, objective)
+    if bd is not None:
+        bill = bd.bill(layout)
+        day.energy_kWh_per_day = bill["energy_kWh_per_day"]
+        day.cost_per_day = bill["cost_per_day"]
+    return bd
 
 
 # --- applying decisions ------------------------------------------------------------------------
@@ -143,7 +171,7 @@ def final_dispatch(m, dp: Dispatch) -> Dispatch:
     """The accepted on/off decisions evaluated at the solved schedule's airflow and pressure."""
     s = model_air_state(m)
     return evaluate(dp.machines, dp.running, s["demand_Sm3_h"], s["discharge_gauge_kPa"], s["kw_per_equivalent"],
-                    float(m.opt.air.period_h), status=dp.status, seconds=dp.seconds)
+                    float(m.train_data.period_h), status=dp.status, seconds=dp.seconds)
 
 
 def round_cost(layout: Layout, dp: Dispatch, objective: str) -> float:
@@ -171,12 +199,66 @@ def relaxed_swing_fractions(m) -> dict:
     b = m.opt
     out = {}
     for z in b.SWING_ZONES:
-        zone = b.layout.zone(z)
-        dt = b.layout.diffuser_type(zone.grid.type_id)
-        qmin = max(pyo.value(b.diffuser_count[z]) * dt.airflow_min_Sm3_h,
-                   b.settings.mixing_airflow_min_Sm3_h_m2[z] * zone.area_m2)
+        d = m.aeration[z]
+        qmin = max(pyo.value(m.diffuser_count[z]) * d.diffuser_airflow_min_Sm3_h,
+                   b.settings.mixing_airflow_min_Sm3_h_m2[z] * d.zone.area_m2)
         out[z] = np.array([float(m.airflow_Sm3_h[z, p].value) for p in m.PERIODS]) / max(qmin, 1e-9)
     return out
+
+
+def swing_candidates(fractions: dict, layout: Layout) -> list[dict]:
+    """Candidate on/off patterns from the relaxed fractions (:data:`SWING_THRESHOLDS`), distinct, none all-on."""
+    out = []
+    for theta in SWING_THRESHOLDS:
+        states = {z: swing_states((f >= theta).astype(float), layout.zone(z).max_switches_per_day)
+                  for z, f in fractions.items()}
+        if all(v.all() for v in states.values()) or any(
+                all((states[z] == c[z]).all() for z in states) for c in out):
+            continue
+        out.append(states)
+    return out
+
+
+def settle_swing_states(study, rounds: list):
+    """Choose the swing zones' on/off pattern on the relaxed solve (module notes); returns the solver
+    result of the chosen pattern (None: not even the all-day-aerated schedule solves)."""
+    m = study.m
+    b = m.opt
+    prog = study.progress
+    fractions = relaxed_swing_fractions(m)
+    t0 = time.perf_counter()
+    set_swing_states(m, {z: np.ones(len(m.PERIODS), dtype=bool) for z in b.SWING_ZONES})
+    prog.phase("swing zones: aerated all day (the reference pattern)")
+    res = study.resolve(warm=True)
+    ok = res is not None and res.ok
+    rounds.append({"round": 0, "step": "swing zones aerated all day", "status": res.status.value if res
+                   else "failed", "objective": float(pyo.value(b.objective)) if ok else None,
+                   "seconds": time.perf_counter() - t0})
+    if not ok:
+        return None
+    best = (float(pyo.value(b.objective)), _snapshot(m), b.swing_states, res)
+    reference = best[1]
+    for states in swing_candidates(fractions, study.layout):
+        t0 = time.perf_counter()
+        _restore(reference)
+        set_swing_states(m, states)
+        prog.phase("swing zones: " + ", ".join(
+            f"{z} off in periods {', '.join(str(int(i) + 1) for i in np.flatnonzero(~v))}" for z, v in states.items()))
+        r = study._ipopt(SWING_RUNG, warm_start=True)
+        obj = float(pyo.value(b.objective)) if r.ok else None
+        rounds.append({"round": 0, "step": "swing pattern " + "; ".join(
+            f"{z} aerated in periods {[int(i) + 1 for i in np.flatnonzero(v)]}" for z, v in states.items()),
+            "status": r.status.value, "objective": obj, "iterations": r.iterations,
+            "seconds": time.perf_counter() - t0})
+        if r.ok and obj < best[0]:
+            best = (obj, _snapshot(m), b.swing_states, r)
+    obj, snap, states, res = best
+    set_swing_states(m, states)
+    _restore(snap)
+    rounds.append({"round": 0, "step": "swing pattern chosen", "objective": obj,
+                   "aerated_periods": {z: [int(i) + 1 for i in np.flatnonzero(v)] for z, v in states.items()}})
+    study.result = res
+    return res
 
 
 def run_staging(study, first_result) -> StagingOutcome:
@@ -190,24 +272,7 @@ def run_staging(study, first_result) -> StagingOutcome:
     out = StagingOutcome(result=first_result, dispatch=None)
     rounds = out.rounds
     if b.SWING_ZONES:
-        # the swing states change the air demand (minimum when on, none when off): re-solve with them
-        # fixed and the blowers still relaxed before the first dispatch
-        t0 = time.perf_counter()
-        frac = relaxed_swing_fractions(m)
-        states = {z: swing_states(np.minimum(1.0, frac[z] / (2.0 * SWING_ON_FRACTION)),
-                                  layout.zone(z).max_switches_per_day) for z in b.SWING_ZONES}
-        set_swing_states(m, states)
-        prog.phase("swing zones: " + ", ".join(f"{z} aerated in {int(v.sum())} periods" for z, v in states.items()))
-        res = study._ipopt(SWING_RUNG, warm_start=True)
-        rounds.append({"round": 0, "step": "swing states fixed, blowers relaxed", "status": res.status.value if res
-                       else "failed", "seconds": time.perf_counter() - t0})
-        if (res is None or not res.ok) and not all(v.all() for v in states.values()):
-            # the rounding switched a swing zone off where the process needs it: keep it on all day
-            t0 = time.perf_counter()
-            set_swing_states(m, {z: np.ones(len(m.PERIODS), dtype=bool) for z in b.SWING_ZONES})
-            res = study.resolve(warm=False)
-            rounds.append({"round": 0, "step": "swing zones aerated all day", "status": res.status.value if res
-                           else "failed", "seconds": time.perf_counter() - t0})
+        res = settle_swing_states(study, rounds)
         out.swing_states = b.swing_states
         if res is None or not res.ok:
             out.result = None
@@ -221,7 +286,7 @@ def run_staging(study, first_result) -> StagingOutcome:
         t0 = time.perf_counter()
         state = model_air_state(m)
         dp = solve_dispatch(b.machines, state["demand_Sm3_h"], state["discharge_gauge_kPa"],
-                            state["kw_per_equivalent"], bill, float(b.air.period_h), state["excess_max_Sm3_h"])
+                            state["kw_per_equivalent"], bill, float(m.train_data.period_h), state["excess_max_Sm3_h"])
         if dp.findings:
             out.findings = dp.findings
             out.dispatch = dp
@@ -275,11 +340,37 @@ def run_staging(study, first_result) -> StagingOutcome:
     return out
 
 
+def redispatch(m, dp: Dispatch) -> tuple[Dispatch, bool]:
+    """The least-cost machines for the final schedule's airflow and pressure.
+
+    The last re-solves (the dispatch round's own, then the DO back-off's) move the airflow and
+    the discharge pressure after the machines were chosen, so the machines of the last round
+    may no longer be the cheapest set for the final schedule, or (when a machine's airflow
+    range narrows with pressure) no longer cover its airflow. The dispatch is solved again on
+    the final airflow and pressure, delivering them exactly (no excess air: the verified
+    schedule is not changed); it replaces the old machines when they no longer cover the
+    airflow or cost more, and the model's power curve follows. Returns ``(dispatch, replaced)``.
+    """
+    b = m.opt
+    old = final_dispatch(m, dp)
+    s = model_air_state(m)
+    new = solve_dispatch(b.machines, s["demand_Sm3_h"], s["discharge_gauge_kPa"], s["kw_per_equivalent"],
+                         Bill.of(b.layout, b.settings.objective), float(b.air.period_h))
+    if new.findings or new.same_decisions(old):
+        return old, False
+    objective = b.settings.objective
+    uncovered = bool(np.any(old.shortfall_Sm3_h > CHECK_RTOL * np.maximum(old.demand_Sm3_h, 1.0))) or bool(
+        np.any(old.airflow_Sm3_h.sum(axis=0) > old.demand_Sm3_h * (1 + CHECK_RTOL) + 1e-6))
+    if not uncovered and round_cost(b.layout, new, objective) >= round_cost(b.layout, old, objective) * (1.0 - 1e-9):
+        return old, False
+    apply_dispatch(m, new)
+    return new, True
+
+
 def feasibility_check(m, dp: Dispatch) -> list[str]:
     """Every running machine within its airflow range and pressure limit; every grid within its range when on,
     at no air when off. Returns the breaches (empty when feasible)."""
     b = m.opt
-    layout = b.layout
     bad = []
     tol = CHECK_RTOL
     for i, p in enumerate(m.PERIODS):
@@ -301,18 +392,17 @@ def feasibility_check(m, dp: Dispatch) -> list[str]:
                 bad.append(f"period {p}: blower {mm.id} at {dp.discharge_gauge_kPa[i]:.1f} kPa above its "
                            f"{mm.pressure_max_gauge_kPa:g} kPa limit")
         for z in b.ZONES:
-            zone = layout.zone(z)
+            d = m.aeration[z]
             q = float(m.airflow_Sm3_h[z, p].value)
             off = b.swing_states is not None and z in b.swing_states and not b.swing_states[z][i]
             if off:
                 if abs(q) > 1e-6:
                     bad.append(f"period {p}: swing zone {z} is off but gets {q:.1f} Sm3/h")
                 continue
-            lo, hi = layout.zone_airflow_range_Sm3_h(zone)
-            dt = layout.diffuser_type(zone.grid.type_id)
-            lo = max(lo, zone.grid.count * dt.airflow_min_Sm3_h,
-                     b.settings.mixing_airflow_min_Sm3_h_m2[z] * zone.area_m2)
-            if zone.kind == "swing" and b.swing_states is None:
+            lo, hi = d.airflow_range_Sm3_h
+            lo = max(lo, d.diffusers * d.diffuser_airflow_min_Sm3_h,
+                     b.settings.mixing_airflow_min_Sm3_h_m2[z] * d.zone.area_m2)
+            if d.kind == "swing" and b.swing_states is None:
                 lo = 0.0
             if q < lo * (1 - tol) or q > hi * (1 + tol):
                 bad.append(f"period {p}: zone {z} at {q:.1f} Sm3/h outside its grid range {lo:.0f}-{hi:.0f}")
@@ -352,6 +442,6 @@ def dispatch_summary(layout: Layout, dp: Dispatch) -> dict:
     }
 
 
-__all__ = ["COST_RTOL", "MAX_ROUNDS", "StagingOutcome", "apply_dispatch", "day_dispatch", "dispatch_summary",
+__all__ = ["COST_RTOL", "MAX_ROUNDS", "StagingOutcome", "apply_dispatch", "bill_day_by_dispatch", "day_dispatch", "dispatch_summary",
            "dispatch_table", "feasibility_check", "final_dispatch", "kw_per_equivalent", "model_air_state",
-           "run_staging"]
+           "redispatch", "run_staging", "steps_dispatch"]

@@ -59,6 +59,12 @@ def verify_day(layout: Layout, schedule: dict, optimiser_figures: dict, m=None):
     f = day.figures
     lows = day.do_extremes.loc[day.do_extremes.groupby("zone")["do_min_mg_L"].idxmin()]
     broken = violations(layout, f, effluent_tolerance=EFFLUENT_TOLERANCE, do_tolerance_mg_L=DO_TOLERANCE_mg_L)
+    swing_margins = swing_do_margins(layout, day.do_min_by_period(), getattr(getattr(m, "opt", None),
+                                                                             "swing_states", None))
+    for z, (margin, periods) in swing_margins.items():
+        if margin < -DO_TOLERANCE_mg_L:
+            broken.append(f"swing zone {z} while aerated: DO below its minimum of {layout.zone(z).do_min_mg_L:g} mg/L "
+                          f"by {-margin:.3f} mg/L (periods {', '.join(str(p) for p in periods)})")
     return {
         "verified": not broken,
         "rule": f"effluent limits within {100 * EFFLUENT_TOLERANCE:g} %, DO ranges within {DO_TOLERANCE_mg_L:g} mg/L",
@@ -68,6 +74,7 @@ def verify_day(layout: Layout, schedule: dict, optimiser_figures: dict, m=None):
         "optimiser_min_do_margin_mg_L": optimiser_figures["min_do_margin_mg_L"],
         "do_margin_mg_L": f["do_margin_mg_L"],
         "optimiser_do_margin_mg_L": optimiser_figures["do_margin_mg_L"],
+        "swing_do_margin_mg_L": {z: v[0] for z, v in swing_margins.items()},
         "do_lowest": {r.zone: {"do_mg_L": float(r.do_min_mg_L), "time_h": float(r.do_min_time_h)}
                       for r in lows.itertuples()},
         "do_lowest_by_period": {z: [float(v) for v in lows_z] for z, lows_z in day.do_min_by_period().items()},
@@ -86,4 +93,23 @@ def verify_day(layout: Layout, schedule: dict, optimiser_figures: dict, m=None):
     }, day
 
 
-__all__ = ["DAY_REPEAT_TOL", "start_state_of", "verify_day", "verify_schedule"]
+def swing_do_margins(layout: Layout, lows_by_period: dict, swing_states: dict | None) -> dict:
+    """Swing zone -> (smallest DO margin over its aerated periods, 1-based periods short of the minimum).
+
+    The DO minimum of a swing zone holds while it is aerated, from the period after the one it is
+    switched on in (there its DO rises from nothing; the optimiser holds the minimum from that
+    period's second step). Zones without a DO minimum or never aerated after an aerated period
+    are left out.
+    """
+    out = {}
+    for z, on in (swing_states or {}).items():
+        lo = layout.zone(z).do_min_mg_L
+        held = [k for k in range(len(on)) if on[k] and on[k - 1]]
+        if lo is None or not held:
+            continue
+        margins = {k + 1: float(lows_by_period[z][k]) - lo for k in held}
+        out[z] = (min(margins.values()), [k for k, v in margins.items() if v < -DO_TOLERANCE_mg_L])
+    return out
+
+
+__all__ = ["DAY_REPEAT_TOL", "start_state_of", "swing_do_margins", "verify_day", "verify_schedule"]

@@ -11,8 +11,15 @@ units and the pinned conventions are listed in docs/physics.md.
 * :mod:`~airtaper.physics.sote` - fitted clean-water SOTE curves
 * :mod:`~airtaper.physics.pressure` - static head, diffuser and pipe losses, header pressure
 * :mod:`~airtaper.physics.blower` - blower power, efficiency curves, energy
+* :mod:`~airtaper.physics.settling` - Takacs settling velocity, limiting solids flux
+* :mod:`~airtaper.physics.smooth` - smooth max, min and step (for Ipopt)
+* :mod:`~airtaper.physics.extrapolation` - warnings for curves used beyond their tested range
+* :mod:`~airtaper.physics.backend` - exp, log, sqrt, power on floats, numpy and Pyomo alike
 """
 
-from airtaper.physics import atmosphere, backend, blower, depth, extrapolation, pressure, saturation, sote, transfer
+from airtaper.physics import (
+    atmosphere, backend, blower, depth, extrapolation, pressure, saturation, settling, smooth, sote, transfer,
+)
 
-__all__ = ["atmosphere", "backend", "blower", "depth", "extrapolation", "pressure", "saturation", "sote", "transfer"]
+__all__ = ["atmosphere", "backend", "blower", "depth", "extrapolation", "pressure", "saturation", "settling", "smooth",
+           "sote", "transfer"]

@@ -80,16 +80,3 @@ def value(x):
     if is_pyomo(x):
         return _pyomo().value(x)
     return np.asarray(x, dtype=float)[()]
-
-
-def smooth_max(a, b, smoothing):
-    """Smooth upper approximation of ``max(a, b)``.
-
-    Notes
-    -----
-    ``smax(a, b) = (a + b + sqrt((a - b)**2 + s**2)) / 2`` with ``s > 0``. It is
-    infinitely differentiable, never below ``max(a, b)`` and at most ``s / 2``
-    above it (the excess is largest at ``a == b``). Common practice in smooth
-    nonlinear programming (no source).
-    """
-    return 0.5 * (a + b + sqrt((a - b) ** 2 + smoothing**2))

@@ -1,10 +1,15 @@
 """Air-side pressures: static head, diffuser headloss, pipe losses, zone and header pressure.
 
-Conventions (see docs/physics.md): pressures named ``*_kPa`` here are gauge
-pressures (above the atmosphere at the water surface) unless the name says
-``absolute``; the blower works on absolute pressures
-(:func:`blower_discharge_pressure_kPa`). Water column is the conventional one
-(1 m = 9.80665 kPa, :mod:`airtaper.units`).
+Conventions (the project's, docs/glossary.md): a pressure named ``*_kPa`` is
+absolute and one named ``*_gauge_kPa`` is above the atmosphere at the site. Heads,
+headlosses and valve losses (``static_head_kPa``, ``pipe_loss_kPa``,
+``valve_loss_kPa``, ``headloss_kPa``) are pressure differences, so neither. The
+zone and header pressures (:func:`zone_required_pressure_kPa`,
+:func:`header_pressure_kPa`) are sums of such differences above the water surface:
+gauge pressures, as their docstrings say; outputs name them ``*_gauge_kPa``
+(``header.csv``: ``pressure_gauge_kPa``). The blower works on absolute pressures
+(:func:`blower_discharge_pressure_kPa`, :func:`blower_inlet_pressure_kPa`). Water
+column is the conventional one (1 m = 9.80665 kPa, :mod:`airtaper.units`).
 """
 
 from __future__ import annotations
@@ -16,7 +21,8 @@ from scipy.optimize import least_squares
 
 from airtaper import units
 from airtaper.errors import InputError, Problem
-from airtaper.physics.backend import any_pyomo, power, smooth_max
+from airtaper.physics.backend import any_pyomo, power
+from airtaper.physics.smooth import smooth_max
 from airtaper.physics.extrapolation import HeadlossExtrapolationWarning, warn_if_outside
 
 #: Headloss exponent used when too few points are given to fit it: the
@@ -243,7 +249,7 @@ def header_pressure_kPa(zone_required_pressures_kPa, min_valve_loss_kPa, smoothi
         keeps control authority), kPa >= 0.
     smoothing_kPa : float, default 0
         0 gives the exact maximum (numeric inputs only). A positive value uses
-        the smooth maximum of :func:`airtaper.physics.backend.smooth_max`
+        the smooth maximum of :func:`airtaper.physics.smooth.smooth_max`
         (at most ``(n_zones - 1) * smoothing_kPa / 2`` above the exact one),
         which Pyomo expressions need.
 

@@ -19,7 +19,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from airtaper.physics.backend import exp, is_pyomo, smooth_max
+from airtaper.physics.backend import exp, is_pyomo
+from airtaper.physics.smooth import smooth_max
 
 
 #: Largest exponent the velocity evaluates for numbers (e**40 ~ 2e17: finite, and its square too).

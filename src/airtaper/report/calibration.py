@@ -23,7 +23,7 @@ from pathlib import Path
 import numpy as np
 
 from airtaper.layout.overrides import overrides_to_toml
-from airtaper.optimize.diurnal import _jsonable
+from airtaper.optimize.results import jsonable
 from airtaper.report.atomic import write_bytes_atomic, write_csv_atomic, write_json_atomic, write_text_atomic
 
 CAUTION = (
@@ -171,7 +171,7 @@ def write_calibration_outputs(out_dir: str | Path, result, *, figures: bool = Tr
         written.append(write_text_atomic(out / "overrides.toml", overrides_text(result)))
     written.append(write_csv_atomic(out / "parameters.csv", result.estimates))
     written.append(write_csv_atomic(out / "fit.csv", result.observations))
-    written.append(write_json_atomic(out / "summary.json", _jsonable(result.summary)))
+    written.append(write_json_atomic(out / "summary.json", jsonable(result.summary)))
     fit_png = res_png = None
     if figures and len(result.observations):
         fit_png = fit_figure_png(result.observations, f"{result.summary['plant']}: measured and fitted")

@@ -8,7 +8,6 @@ from __future__ import annotations
 
 #: column -> (unit for a heading, "" when none)
 UNITS: dict[str, str] = {
-    "period": "",
     "period_start_h": "h",
     "period_end_h": "h",
     "time_h": "h",
@@ -24,12 +23,13 @@ UNITS: dict[str, str] = {
     "baseline_do_mean_mg_L": "mg/L",
     "nh4_mean_mg_L": "mg N/L",
     "otr_kg_h": "kg O2/h",
-    "pressure_kPa": "kPa gauge",
+    "pressure_gauge_kPa": "kPa gauge",
     "discharge_gauge_kPa": "kPa gauge",
     "power_kW": "kW",
     "baseline_power_kW": "kW",
     "efficiency": "-",
     "tn_mg_L": "mg N/L",
+    "kla_per_h": "1/h",
     # ASM1 state variables (docs/model.md)
     "SI": "g COD/m3", "SS": "g COD/m3", "XI": "g COD/m3", "XS": "g COD/m3", "XBH": "g COD/m3",
     "XBA": "g COD/m3", "XP": "g COD/m3", "SO": "g O2/m3", "SNO": "g N/m3", "SNH": "g N/m3", "SND": "g N/m3",

@@ -16,6 +16,7 @@ from typing import Callable
 
 import numpy as np
 
+from airtaper import units
 from airtaper.report.folder import StudyFolder
 
 #: Line styles per zone: colour, dash pattern and marker all differ (greyscale-readable).
@@ -41,7 +42,7 @@ def _style(i: int) -> dict:
 def _hour_axis(ax, edges) -> None:
     ax.set_xlim(edges[0], edges[-1])
     span = edges[-1] - edges[0]
-    step = 2 if span <= 24 else 4
+    step = 2 if span <= units.HOURS_PER_DAY else 4
     ax.set_xticks(np.arange(edges[0], edges[-1] + 1e-9, step))
     ax.set_xlabel("hour of day (h)")
     ax.grid(True, axis="both", color="#dddddd", linewidth=0.6)
@@ -126,7 +127,7 @@ def airflow_figure(folder: StudyFolder):
                 label=f"above the zone's maximum ({int(over.sum())} cells)")
         ax.legend(loc="upper right", fontsize=8, framealpha=0.9)
     ax.set_xlim(edges[0], edges[-1])
-    ax.set_xticks(np.arange(edges[0], edges[-1] + 1e-9, 2 if edges[-1] - edges[0] <= 24 else 4))
+    ax.set_xticks(np.arange(edges[0], edges[-1] + 1e-9, 2 if edges[-1] - edges[0] <= units.HOURS_PER_DAY else 4))
     ax.set_xlabel("hour of day (h)")
 
     if per_diff is not None:
@@ -241,8 +242,8 @@ def effluent_figure(folder: StudyFolder):
         return None
     plt = _plt()
     edges = folder.period_edges_h
-    lim = folder.summary.get("limits", {}) or {}
-    means = folder.summary.get("effluent", {}) or {}
+    study = folder.study
+    lim, means = study.limits, study.effluent
     has_tn = "tn_mg_L" in eff and eff["tn_mg_L"].notna().any()
     fig, axes = plt.subplots(2 if has_tn else 1, 1, figsize=(10, 6.6 if has_tn else 3.6), sharex=True,
                              constrained_layout=True, squeeze=False)
@@ -252,12 +253,12 @@ def effluent_figure(folder: StudyFolder):
         tt, y = _cyclic(t, eff[col], edges)
         ax.plot(tt, y, color="black", linewidth=1.6, marker="o", markersize=2.5, label=f"effluent {name}")
         shown = [y]
-        mean = means.get(f"{key}_mean_mg_L")
+        mean = getattr(means, f"{key}_mean_mg_L", None)
         if mean is not None:
             ax.axhline(mean, color="#555555", linestyle=":", linewidth=1.2, label=f"daily mean {mean:.2f} mg/L")
         for lk, text, ls in ((f"{key}_mean_mg_L", "daily-mean limit", "--"),
                              (f"{key}_max_mg_L", "period-mean limit", "-.")):
-            v = lim.get(lk)
+            v = getattr(lim, lk, None)
             if v is not None:
                 ax.axhline(v, color="#b03a2e", linestyle=ls, linewidth=1.4, label=f"{text} {v:g} mg/L")
                 shown.append([v])
@@ -281,7 +282,7 @@ def air_side_figure(folder: StudyFolder):
     edges = folder.period_edges_h
     price = folder.tariff_price()
     currency = folder.summary.get("currency") or "currency"
-    has_p = "pressure_kPa" in head
+    has_p = "pressure_gauge_kPa" in head
     fig, axes = plt.subplots(2 if has_p else 1, 1, figsize=(10, 6.8 if has_p else 3.8), sharex=True,
                              constrained_layout=True, squeeze=False)
     ax = axes[0, 0]
@@ -319,7 +320,7 @@ def air_side_figure(folder: StudyFolder):
     _hour_axis(ax, edges)
     if has_p:
         ax = axes[1, 0]
-        p = head["pressure_kPa"].to_numpy(float)
+        p = head["pressure_gauge_kPa"].to_numpy(float)
         _steps(ax, p, edges, color="black", linewidth=2.0, label="header pressure, optimised")
         ax.plot(_period_mid(edges), p, color="black", marker="o", markersize=3, linestyle="none")
         _include(ax, p, pad=0.25, bottom=None)

@@ -18,8 +18,11 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from airtaper import units
 from airtaper.errors import InputError, Problem
 from airtaper.layout.types import Layout
+from airtaper.optimize.results import StudySummary
+from airtaper.plant import ResolvedPlant
 
 #: Files the report reads, in the order docs/outputs.md lists them.
 REQUIRED = ("summary.json", "schedule.csv")
@@ -36,10 +39,20 @@ class StudyFolder:
     header: pd.DataFrame | None = None
     timeseries: pd.DataFrame | None = None
     blowers: pd.DataFrame | None = None
-    layout: Layout | None = None
+    plant: ResolvedPlant | None = None  # the layout that summary.json names, resolved
     notes: list[str] = field(default_factory=list)  # what could not be read, for the report
 
+    @property
+    def layout(self) -> Layout | None:
+        """The layout as given (the inputs summary and the drawing describe it), or None."""
+        return None if self.plant is None else self.plant.layout
+
     # -- derived views -------------------------------------------------------------------------
+    @property
+    def study(self) -> StudySummary:
+        """``summary.json`` as the study's typed summary (:class:`~airtaper.optimize.results.StudySummary`)."""
+        return StudySummary.from_dict(self.summary)
+
     @property
     def zones(self) -> list[str]:
         """Zones of the schedule, in the schedule's (flow) order."""
@@ -50,7 +63,7 @@ class StudyFolder:
         """Period boundaries over the day, h (n_periods + 1 values)."""
         if not len(self.schedule):  # no schedule (a run stopped before solving): the layout's periods
             if self.layout is None:
-                return np.array([0.0, 24.0])
+                return np.array([0.0, units.HOURS_PER_DAY])
             h = self.layout.horizon
             return np.arange(h.n_periods + 1) * h.period_h
         first = self.schedule.drop_duplicates("period_start_h").sort_values("period_start_h")
@@ -65,15 +78,13 @@ class StudyFolder:
         return table.reindex(self.zones)
 
     def header_by_period(self) -> pd.DataFrame | None:
-        """header.csv with ``period_start_h`` and ``period_end_h`` added (one row per period, in order)."""
-        if self.header is None:
+        """header.csv in period order, or None when it is absent or its periods are not the schedule's."""
+        if self.header is None or "period_start_h" not in self.header:
             return None
+        out = self.header.sort_values("period_start_h", kind="stable").reset_index(drop=True)
         edges = self.period_edges_h
-        if len(edges) - 1 != len(self.header):
+        if len(edges) - 1 != len(out) or not np.allclose(out["period_start_h"].to_numpy(float), edges[:-1]):
             return None
-        out = self.header.copy()
-        out.insert(0, "period_end_h", edges[1:])
-        out.insert(0, "period_start_h", edges[:-1])
         return out
 
     def _layout_zones(self) -> dict:
@@ -85,16 +96,13 @@ class StudyFolder:
 
     def zone_airflow_range_Sm3_h(self) -> dict[str, tuple[float, float]]:
         """Zone -> (min, max) airflow its diffusers, mixing and valve allow (empty without the layout)."""
-        return {z: self.layout.zone_airflow_range_Sm3_h(zone) for z, zone in self._layout_zones().items()}
+        return {z: self.plant.air.zone(z).airflow_range_Sm3_h if self.plant.has_diffusers(z) else (0.0, 0.0)
+                for z in self._layout_zones()}
 
     def diffuser_range_Sm3_h(self) -> dict[str, tuple[float, float]]:
         """Zone -> (min, max) airflow per diffuser of its diffuser type (empty without the layout)."""
-        out = {}
-        for z, zone in self._layout_zones().items():
-            if zone.grid is not None:
-                d = self.layout.diffuser_type(zone.grid.type_id)
-                out[z] = (d.airflow_min_Sm3_h, d.airflow_max_Sm3_h)
-        return out
+        return {z: (self.plant.air.zone(z).diffuser_airflow_min_Sm3_h, self.plant.air.zone(z).diffuser_airflow_max_Sm3_h)
+                for z in self._layout_zones() if self.plant.has_diffusers(z)}
 
     def tariff_price(self) -> np.ndarray | None:
         """Energy price of every period (currency/kWh), or None."""
@@ -207,7 +215,7 @@ def _find_layout(folder: Path, summary: dict, layout_path: str | Path | None) ->
 
 def read_study_folder(path: str | Path, layout_path: str | Path | None = None) -> StudyFolder:
     """Read a finished output folder; raise :class:`InputError` when it is not one."""
-    from airtaper.layout import load_layout
+    from airtaper.plant import load_plant
 
     folder = Path(path)
     problems = []
@@ -253,13 +261,13 @@ def read_study_folder(path: str | Path, layout_path: str | Path | None = None) -
                 c for c in frame.columns if c not in ("zone", "blower", "running")))
     if problems:
         raise InputError(problems)
-    layout = None
+    plant = None
     where, why = _find_layout(folder, summary, layout_path)
     if where is not None:
         try:
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
-                layout = load_layout(where, warnings=[])
+                plant = load_plant(where, warnings=[])
         except InputError as exc:
             if layout_path is not None:
                 raise
@@ -267,7 +275,7 @@ def read_study_folder(path: str | Path, layout_path: str | Path | None = None) -
     if why:
         notes.append(why + "; the inputs summary, zone ranges and the drawing of the train are left out")
     return StudyFolder(path=folder, summary=summary, schedule=schedule, header=tables["header.csv"],
-                       timeseries=tables["timeseries.csv"], blowers=tables["blowers.csv"], layout=layout, notes=notes)
+                       timeseries=tables["timeseries.csv"], blowers=tables["blowers.csv"], plant=plant, notes=notes)
 
 
 __all__ = ["OPTIONAL_TABLES", "REQUIRED", "StudyFolder", "read_study_folder"]

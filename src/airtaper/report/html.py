@@ -17,6 +17,8 @@ import math
 import numpy as np
 import pandas as pd
 
+from airtaper import units
+from airtaper.optimize.results import EffluentFigures, Limits
 from airtaper.report.folder import StudyFolder
 from airtaper.report.text import CAUTION, EFFLUENT_LIMITS, fmt, fmt_margin, marginal_sentence
 
@@ -158,9 +160,10 @@ def _headline(f: StudyFolder) -> str:
     s = f.summary
     cur = s.get("currency") or ""
     base = s.get("baseline") or {}
-    eff = s.get("effluent") or {}
+    study = f.study  # the typed summary
+    eff = study.effluent or EffluentFigures()
     ver = s.get("verification") or {}
-    lim = s.get("limits") or {}
+    lim = study.limits or Limits()
     infeasible = s.get("status") in ("infeasible", "failed")
     rows = [("status", _status_html(s))]
     rows.append(("blower energy", f"{fmt(s.get('energy_kWh_per_day'))} kWh/d"))
@@ -189,9 +192,9 @@ def _headline(f: StudyFolder) -> str:
         rows.append(("peak blower power", f"{fmt(head['power_kW'].iloc[k])} kW{when}"))
     for key, label in (("nh4_mean_mg_L", "effluent NH4-N, daily mean"), ("nh4_max_mg_L", "effluent NH4-N, largest period mean"),
                        ("tn_mean_mg_L", "effluent TN, daily mean")):
-        if eff.get(key) is not None:
-            limit = lim.get(key)
-            rows.append((label, f"{fmt(eff[key], 2)} mg/L" + (f" (limit {limit:g})" if limit is not None else "")))
+        value, limit = getattr(eff, key), getattr(lim, key)
+        if value is not None:
+            rows.append((label, f"{fmt(value, 2)} mg/L" + (f" (limit {limit:g})" if limit is not None else "")))
     margin = ver.get("min_do_margin_mg_L", s.get("min_do_margin_mg_L"))
     if margin is not None:
         cls = " class='finding'" if margin < 0 else ""
@@ -254,7 +257,7 @@ def _inputs(f: StudyFolder, images: dict) -> str:
     # train table
     rows = []
     for z in lay.zones:
-        hrt = z.volume_m3 / q * 24.0
+        hrt = z.volume_m3 / q * units.HOURS_PER_DAY
         if z.grid is not None:
             lo, hi = lay.zone_airflow_range_Sm3_h(z)
             grid = [f"{z.grid.count:,} x {esc(z.grid.type_id)}", fmt(lay.diffuser_density_percent(z)),
@@ -352,7 +355,7 @@ def _results(f: StudyFolder, images: dict, captions: dict) -> str:
     head = f.header_by_period()
     if head is not None:
         table = {}
-        for col, label in (("pressure_kPa", "header pressure (kPa gauge)"), ("airflow_Sm3_h", "total airflow (Sm3/h)"),
+        for col, label in (("pressure_gauge_kPa", "header pressure (kPa gauge)"), ("airflow_Sm3_h", "total airflow (Sm3/h)"),
                            ("power_kW", "blower power (kW)"), ("baseline_power_kW", "baseline power (kW)")):
             if col in head:
                 table[label] = head[col].to_numpy(float)

@@ -6,8 +6,8 @@ ones the optimisation produces:
 * ``schedule`` — one row per period and aerated zone: ``period_start_h``,
   ``period_end_h``, ``zone``, ``airflow_Sm3_h``, ``airflow_per_diffuser_Sm3_h``,
   ``do_min_mg_L``, ``do_mean_mg_L``, ``nh4_mean_mg_L``, ``otr_kg_h``;
-* ``header`` — one row per period: ``period``, ``pressure_kPa``,
-  ``airflow_Sm3_h``, ``power_kW``;
+* ``header`` — one row per period: ``period_start_h``, ``period_end_h``,
+  ``pressure_gauge_kPa``, ``airflow_Sm3_h``, ``power_kW``;
 * ``blowers`` — one row per period and blower, when the run stages blowers;
 * ``timeseries`` — one row per time step and zone (states, airflow, OTR);
 * ``summary`` — a JSON-serialisable dict (see docs and :func:`console_summary`).
@@ -25,18 +25,19 @@ from airtaper.report.atomic import write_csv_atomic, write_json_atomic
 from airtaper.report.build import REPORT_NAMES, write_report
 from airtaper.report.text import CAUTION
 from airtaper.report.text import fmt as _fmt
-from airtaper.report.text import fmt_margin
+from airtaper.report.text import fmt_margin, marginal_sentence
 
 OUTPUT_NAMES = ("schedule.csv", "header.csv", "blowers.csv", "timeseries.csv", "summary.json") + REPORT_NAMES
 
 
 def write_study_outputs(out_dir: str | Path, *, schedule: pd.DataFrame, header: pd.DataFrame,
                         timeseries: pd.DataFrame, summary: dict, figure: bool = True,
-                        blowers: pd.DataFrame | None = None) -> list[Path]:
+                        blowers: pd.DataFrame | None = None, report: bool = True) -> list[Path]:
     """Write the study's tables and summary into ``out_dir``, then its report from them; return the paths.
 
     The report (the figures' PNG files, ``report.html``, ``results.xlsx``) is built from the files just
-    written, by the same :func:`~airtaper.report.build.write_report` that ``airtaper report`` runs.
+    written, by the same :func:`~airtaper.report.build.write_report` that ``airtaper report`` runs;
+    ``report`` False leaves it for a later ``airtaper report DIR`` (a sweep's scenarios).
     """
     out = Path(out_dir)
     written = [
@@ -46,7 +47,7 @@ def write_study_outputs(out_dir: str | Path, *, schedule: pd.DataFrame, header: 
         write_csv_atomic(out / "timeseries.csv", timeseries),
         write_json_atomic(out / "summary.json", summary),
     ]
-    return written + write_report(out, figures=figure)
+    return written + (write_report(out, figures=figure) if report else [])
 
 
 def _do_margin_line(optimiser, resimulated) -> str:
@@ -106,11 +107,8 @@ def console_summary(summary: dict) -> str:
         f"verified          {_fmt(ver.get('verified'))}",
     ]
     lines.extend(_dispatch_lines(summary.get("dispatch"), cur))
-    for item in summary.get("marginal_costs") or []:
-        slack = "" if item.get("binding", True) else " (not binding)"
-        lines.append(f"marginal          {item.get('limit')} {item.get('where', '')}: "
-                     f"{_fmt(item.get('kWh_per_day'), 1)} kWh/d, {_fmt(item.get('cost_per_day'), 2)} {cur}/d "
-                     f"{item.get('per', '')}{slack}")
+    for item in summary.get("marginal_costs") or []:  # in the report's words (report.text)
+        lines.append(f"marginal          {marginal_sentence(item, cur)}")
     for m in summary.get("messages", []) or []:
         lines.append(f"note              {m}")
     lines.append("caution           " + CAUTION)

@@ -1,11 +1,13 @@
-"""The layout as numbers for the simulator: flow network and inputs per period.
+"""The resolved plant as the simulator's inputs: flow network and inputs per period.
 
 Every zone is a completely mixed reactor of constant volume. Its inflows are
 the influent share (step feed; whatever the step feed does not place goes to
 the first zone), the forward flow from the zone before it, internal recycles
 and the return sludge; it sends the forward flow on (the last zone feeds the
 clarifier) and the recycles it is the source of. The forward flows follow from
-the water balance of each zone.
+the water balance of each zone (:class:`airtaper.plant.Hydraulics`, the one home
+of the flows; the simulator shares the plant's inputs and pure physics, its
+equations and integrator are its own).
 """
 
 from __future__ import annotations
@@ -14,10 +16,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from airtaper.errors import InputError, Problem
-from airtaper.process.asm1 import ASM1Parameters, at_temperature, layout_parameters, period_parameters
-from airtaper.process.fractionation import influent_components
+from airtaper.layout.types import Layout
+from airtaper.plant import ResolvedPlant, resolve_plant
+from airtaper.process.asm1 import ASM1Parameters, at_temperature
 from airtaper.process.stoichiometry import petersen_matrix
+from airtaper.units import HOURS_PER_DAY
 from airtaper.simulate.aeration import TransferTable, transfer_table, zone_transfer
 
 #: Aeration modes of a zone in one period.
@@ -54,56 +57,40 @@ class Inputs:
     tables: tuple[TransferTable | None, ...] = field(default=())
 
 
-def _network(layout, q_inf: float, recycle_flows: list[float], q_return: float, k: int | None):
-    nz = len(layout.zones)
-    q_feed = np.zeros(nz)
-    placed = 0.0
-    for sf in layout.step_feed:
-        q_feed[layout.zone_index(sf.zone)] += sf.fraction * q_inf
-        placed += sf.fraction
-    q_feed[0] += max(1.0 - placed, 0.0) * q_inf
+def _network(plant: ResolvedPlant, k: int | None):
+    """Influent, influent share, flow matrix, forward and total flow per zone of period ``k`` (None: the mean day)."""
+    h = plant.hydraulics.over(lambda a: a.mean(axis=0, keepdims=True) if k is None else a[k:k + 1])
+    q_inf = float(h.influent_m3_d[0])
+    nz = plant.n_zones
+    q_feed = h.feed_fraction * q_inf
     flow = np.zeros((nz, nz))
-    q_src_out = np.zeros(nz)  # recycles drawn from each zone
-    q_ext_in = q_feed.copy()
-    r_to = layout.zone_index(layout.return_sludge.to_zone)
-    q_ext_in[r_to] += q_return
-    for rec, q in zip(layout.recycles, recycle_flows):
-        i, j = layout.zone_index(rec.to_zone), layout.zone_index(rec.from_zone)
-        flow[i, j] += q
-        q_ext_in[i] += q
-        q_src_out[j] += q
-    q_fwd = np.zeros(nz)
-    upstream = 0.0
-    for i in range(nz):
-        q_fwd[i] = upstream + q_ext_in[i] - q_src_out[i]
-        if q_fwd[i] <= 0.0:
-            where = "" if k is None else f" in period {k + 1}"
-            raise InputError(Problem(layout.path, f"zones.{layout.zones[i].id}",
-                                     "the recycles drawn from this zone exceed the flow through it" + where,
-                                     got=round(float(q_fwd[i]), 3), expected="a positive forward flow"))
-        if i + 1 < nz:
-            flow[i + 1, i] += q_fwd[i]
-        upstream = q_fwd[i]
-    q_in_total = q_ext_in + np.concatenate(([0.0], q_fwd[:-1]))
-    return q_feed, flow, q_fwd, q_in_total, r_to
+    for src, dst, q in h.recycles:
+        flow[dst, src] += float(q[0])
+    q_fwd = np.array(h.forward_m3_d[0])
+    for i in range(nz - 1):
+        flow[i + 1, i] += q_fwd[i]
+    return q_inf, q_feed, flow, q_fwd, np.array(h.zone_flow_m3_d[0]), float(h.ras_m3_d[0]), \
+        None if h.waste_m3_d is None else float(h.waste_m3_d[0])
 
 
 class PlantData:
-    """Layout-derived constants and per-period :class:`Inputs` factories."""
+    """Plant constants and per-period :class:`Inputs` factories, from the resolved plant."""
 
-    def __init__(self, layout):
-        self.layout = layout
-        self.zones = layout.zones
-        self.nz = len(layout.zones)
-        self.volume = np.array([z.volume_m3 for z in layout.zones])
-        self.n_periods = layout.horizon.n_periods
-        self.period_d = layout.horizon.period_h / 24.0
-        self.base_params = layout_parameters(layout)
-        self.params = period_parameters(layout)
-        self.c_influent = influent_components(layout.influent, self.base_params, layout.path)
-        self.q_influent = np.asarray(layout.influent.flow_m3_d, dtype=float)
-        self.temperature_C = np.asarray(layout.plant.temperature_C, dtype=float)
-        clar = layout.clarifier
+    def __init__(self, plant: ResolvedPlant | Layout):
+        plant = resolve_plant(plant)
+        self.plant = plant
+        self.layout = plant.layout
+        self.zones = plant.zones
+        self.nz = plant.n_zones
+        self.volume = np.asarray(plant.volume_m3, dtype=float)
+        self.n_periods = plant.n_periods
+        self.period_d = plant.period_h / HOURS_PER_DAY
+        self.base_params = plant.base_params
+        self.params = plant.params
+        self.c_influent = plant.influent_conc
+        self.q_influent = plant.hydraulics.influent_m3_d
+        self.temperature_C = plant.temperature_C
+        clar = plant.clarifier
         self.layered = clar.kind == "layered"
         self.n_layers = clar.layers if self.layered else 0
         self.tss_per_cod = clar.tss_per_cod
@@ -113,7 +100,7 @@ class PlantData:
     def _table(self, zone_index: int, temperature_C: float):
         key = (zone_index, round(float(temperature_C), 9))
         if key not in self._tables:
-            self._tables[key] = transfer_table(self.layout, self.zones[zone_index], temperature_C)
+            self._tables[key] = transfer_table(self.plant, zone_index, temperature_C)
         return self._tables[key]
 
     def inputs(self, k: int | None, airflow_Sm3_h=None, do_setpoint_mg_L=None) -> Inputs:
@@ -127,25 +114,19 @@ class PlantData:
             DO setpoint per zone, nan where the zone is not DO-controlled.
             A controlled zone's airflow entry is ignored.
         """
-        lay = self.layout
+        plant = self.plant
+        h = plant.hydraulics
         if k is None:
-            q_inf = float(self.q_influent.mean())
             c_in = (self.q_influent[:, None] * self.c_influent).sum(axis=0) / self.q_influent.sum()
             temp = float(self.temperature_C.mean())
-            params = at_temperature(self.base_params, temp) if lay.kinetics.temperature_correction \
+            params = at_temperature(self.base_params, temp) if plant.kinetics.temperature_correction \
                 else self.base_params
-            rec = [float(np.mean(r.flow_m3_d)) for r in lay.recycles]
-            q_ret = float(np.mean(lay.return_sludge.flow_m3_d))
-            q_w = None if lay.wasting.flow_m3_d is None else float(np.mean(lay.wasting.flow_m3_d))
         else:
-            q_inf = float(self.q_influent[k])
             c_in = self.c_influent[k]
             temp = float(self.temperature_C[k])
             params = self.params[k]
-            rec = [float(r.flow_m3_d[k]) for r in lay.recycles]
-            q_ret = float(lay.return_sludge.flow_m3_d[k])
-            q_w = None if lay.wasting.flow_m3_d is None else float(lay.wasting.flow_m3_d[k])
-        q_feed, flow, q_fwd, q_tot, r_to = _network(lay, q_inf, rec, q_ret, k)
+        q_inf, q_feed, flow, q_fwd, q_tot, q_ret, q_w = _network(plant, k)
+        r_to = h.ras_zone
         nz = self.nz
         air = np.zeros(nz) if airflow_Sm3_h is None else np.asarray(airflow_Sm3_h, dtype=float)
         sp = np.full(nz, np.nan) if do_setpoint_mg_L is None else np.asarray(do_setpoint_mg_L, dtype=float)
@@ -159,7 +140,7 @@ class PlantData:
         for i, z in enumerate(self.zones):
             tab = self._table(i, temp)
             tables.append(tab)
-            k_i, s_i = zone_transfer(lay, z, air[i] if z.aerated else 0.0, temp)
+            k_i, s_i = zone_transfer(plant, i, air[i] if z.aerated else 0.0, temp)
             sat[i] = float(s_i)
             if not z.aerated:
                 continue
@@ -175,9 +156,9 @@ class PlantData:
                 air_used[i] = air[i] if z.fixed_kla_per_d is None else 0.0
         return Inputs(
             params=params, nu_T=petersen_matrix(params).T.copy(), temperature_C=temp,
-            q_influent=q_inf, c_influent=np.asarray(c_in, dtype=float), q_feed=q_feed, flow_matrix=flow,
+            q_influent=q_inf, c_influent=np.array(c_in, dtype=float), q_feed=q_feed, flow_matrix=flow,
             q_forward=q_fwd, q_in_total=q_tot, return_to=r_to, q_return=q_ret, q_waste=q_w,
-            srt_target_d=lay.wasting.srt_d, mode=mode, kla_per_d=kla, do_sat_mg_L=sat,
+            srt_target_d=h.srt_d, mode=mode, kla_per_d=kla, do_sat_mg_L=sat,
             do_setpoint_mg_L=sp, kla_min_per_d=kmin, kla_max_per_d=kmax, airflow_Sm3_h=air_used,
             tables=tuple(tables),
         )

@@ -91,10 +91,10 @@ def resolve_aeration(layout, schedule=None, do_setpoint_mg_L=None):
             raise InputError(Problem(layout.path, "schedule", "airflows must be finite and not negative"))
     if do_setpoint_mg_L is None and schedule is None:
         do_setpoint_mg_L = {z.id: layout.operation.baseline_do_setpoint_mg_L for z in layout.zones
-                            if z.kind == "aerated" and z.grid is not None and z.fixed_kla_per_d is None}
+                            if z.kind == "aerated" and z.has_diffusers}
     if isinstance(do_setpoint_mg_L, (int, float)):
         do_setpoint_mg_L = {z.id: float(do_setpoint_mg_L) for z in layout.zones
-                            if z.kind == "aerated" and (z.grid is not None or z.fixed_kla_per_d is not None)}
+                            if z.kind == "aerated" and (z.has_diffusers or z.fixed_kla_per_d is not None)}
     sp = _per_zone(layout, do_setpoint_mg_L, "do_setpoint")
     for i, z in enumerate(layout.zones):
         if np.isfinite(sp[i]) and not z.aerated:
@@ -513,9 +513,10 @@ def day_quadrature(system: System, inputs, dense, nodes: int = QUADRATURE_NODES)
     t = np.concatenate(t_all)
     weight = np.concatenate(w_all)
     eff = pd.concat(eff_rows, ignore_index=True)
-    eff.insert(0, "time_h", t * 24.0)
-    return DayQuadrature(time_h=t * 24.0, weight=weight / weight.sum(), period=np.concatenate(k_all), effluent=eff,
-                         do=np.concatenate(so), airflow_Sm3_h=np.concatenate(air), otr_kg_h=np.concatenate(otr))
+    eff.insert(0, "time_h", t * units.HOURS_PER_DAY)
+    return DayQuadrature(time_h=t * units.HOURS_PER_DAY, weight=weight / weight.sum(), period=np.concatenate(k_all),
+                         effluent=eff, do=np.concatenate(so), airflow_Sm3_h=np.concatenate(air),
+                         otr_kg_h=np.concatenate(otr))
 
 
 def do_extremes(system: System, dense) -> pd.DataFrame:
@@ -555,7 +556,7 @@ def do_extremes(system: System, dense) -> pd.DataFrame:
                     step = (hi - lo) / (_REFINE_SAMPLES - 1)
                     lo, hi = max(best_t - step, lo), min(best_t + step, hi)
                 out[f"{key}_mg_L"] = sign * best
-                out[f"{key}_time_h"] = best_t * 24.0
+                out[f"{key}_time_h"] = best_t * units.HOURS_PER_DAY
             rows.append(out)
     return pd.DataFrame(rows, columns=["period", "zone", "do_min_mg_L", "do_min_time_h", "do_max_mg_L",
                                        "do_max_time_h"])
@@ -578,14 +579,14 @@ def _tables(system: System, inputs, records):
         rows_otr.append(units.g_to_kg(units.kg_d_to_kg_h(info["otr_g_m3_d"] * system.V)))
         ce = info["c_effluent"]
         q = effluent_quantities(ce, inp.params, system.tss_per_cod)
-        eff_rows.append([t_i * 24.0, *ce, *(q[c] for c in EFFLUENT_COLUMNS),
+        eff_rows.append([t_i * units.HOURS_PER_DAY, *ce, *(q[c] for c in EFFLUENT_COLUMNS),
                          inp.q_influent, float(info["q_effluent_m3_d"]), float(info["q_waste_m3_d"]),
                          float(info["srt_d"])])
     nt = len(t)
     Yz = np.array(rows_y).reshape(nt * nz, NC)
     ts = pd.DataFrame(Yz, columns=list(ASM1_COMPONENTS))
     ts.insert(0, "zone", np.tile(zone_ids, nt))
-    ts.insert(0, "time_h", np.repeat(t * 24.0, nz))
+    ts.insert(0, "time_h", np.repeat(t * units.HOURS_PER_DAY, nz))
     ts["airflow_Sm3_h"] = np.array(rows_air).reshape(-1)
     ts["kla_per_h"] = np.array(rows_kla).reshape(-1)
     ts["otr_kg_h"] = np.array(rows_otr).reshape(-1)

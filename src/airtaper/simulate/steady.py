@@ -114,7 +114,7 @@ def initial_guess(system: System, inp: Inputs) -> np.ndarray:
 # --- washout: no nitrifying steady state -----------------------------------------------
 def aerable_fraction(system: System) -> float:
     """Share of the reactor volume in zones that can be aerated (diffusers or a fixed kLa)."""
-    can = np.array([z.aerated and (z.grid is not None or z.fixed_kla_per_d is not None)
+    can = np.array([z.has_diffusers or (z.aerated and z.fixed_kla_per_d is not None)
                     for z in system.plant.layout.zones])
     return float(system.V[can].sum() / system.V.sum())
 

@@ -10,24 +10,19 @@ A DO-controlled zone whose DO stays more than :data:`SETPOINT_TOLERANCE_mg_L` be
 its setpoint (the control clamps at the zone's maximum airflow and the zone runs at
 full air) is reported by :func:`setpoint_shortfalls`, with the hours.
 
-Blower energy: at each step the header pressure follows the most-open-valve
-rule over the zones receiving air (static head + diffuser headloss at the
-airflow per diffuser + drop-leg loss, plus the minimum valve loss), the main
-header loss ``k Q_total**2`` is added at the discharge, and the power is the
-isentropic ideal-gas power at the layout's aggregate wire-to-air efficiency
-(:mod:`airtaper.physics.pressure`, :mod:`airtaper.physics.blower`).
+Blower energy: the plant's one power chain at each quadrature node
+(:meth:`airtaper.plant.AirSide.step_power_kW`: the header pressure by the
+most-open-valve rule over the zones receiving air, the main header loss at the
+discharge, the isentropic power at the aggregate wire-to-air efficiency).
 """
 
 from __future__ import annotations
 
 import warnings
-from functools import lru_cache
 
-import numpy as np
 
-from airtaper.physics import blower as blower_phys
-from airtaper.physics import pressure
-from airtaper.simulate.aeration import site_pressure_kPa
+from airtaper.plant import resolve_plant
+from airtaper.units import HOURS_PER_DAY
 
 #: A DO-controlled zone counts as not holding its setpoint when its DO falls more than
 #: this below it. Ideal control follows the setpoint within a 1-minute time constant,
@@ -37,49 +32,8 @@ SETPOINT_TOLERANCE_mg_L = 0.05
 _EFFLUENT_KEYS = ("SNH", "SNO", "tkn_mg_L", "tn_mg_L", "cod_mg_L", "tss_mg_L", "SS", "SO")
 
 
-@lru_cache(maxsize=64)
-def _headloss_curve(dtype):
-    pts = dtype.headloss_points
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        return pressure.fit_headloss_curve([p.airflow_per_diffuser_Sm3_h for p in pts],
-                                           [p.headloss_kPa for p in pts], name=dtype.id)
-
-
-def blower_power_kW(layout, airflow_by_zone_Sm3_h: np.ndarray, inlet_temperature_C: np.ndarray) -> np.ndarray:
-    """Blower power at each step, kW, from zone airflows (steps, zones).
-
-    Zones without a diffuser grid (fixed kLa) add no air and no pressure demand.
-    Steps with no air give 0 kW.
-    """
-    Q = np.asarray(airflow_by_zone_Sm3_h, dtype=float)
-    baro = site_pressure_kPa(layout)
-    required = []
-    for i, z in enumerate(layout.zones):
-        if z.grid is None or not z.aerated:
-            continue
-        q = Q[:, i]
-        curve = _headloss_curve(layout.diffuser_type(z.grid.type_id))
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            dp = curve.headloss_kPa(np.maximum(q, 1e-9) / z.grid.count)
-        p = pressure.zone_required_pressure_kPa(z.grid.submergence_m, dp,
-                                                pressure.pipe_loss_kPa(z.drop_leg_k_kPa_per_Sm3_h2, q))
-        required.append(np.where(q > 0.0, p, 0.0))
-    total = Q.sum(axis=1)
-    if not required:
-        return np.zeros(Q.shape[0])
-    header = pressure.header_pressure_kPa(required, layout.header.min_valve_loss_kPa)
-    p2 = pressure.blower_discharge_pressure_kPa(header, baro,
-                                                pressure.pipe_loss_kPa(layout.header.loss_k_kPa_per_Sm3_h2, total))
-    p_in = layout.inlet_air.pressure_kPa if layout.inlet_air.pressure_kPa is not None else baro
-    p1 = pressure.blower_inlet_pressure_kPa(p_in, layout.inlet_air.filter_loss_kPa)
-    power = blower_phys.blower_power_kW(total, inlet_temperature_C, p1, p2, layout.header.aggregate_efficiency)
-    return np.where(total > 0.0, power, 0.0)
-
-
 def _clock(hours: float) -> str:
-    total = int(round(hours * 60.0)) % 1440 if hours < 24.0 else 1440
+    total = int(round(hours * 60.0)) % 1440 if hours < HOURS_PER_DAY else 1440
     return f"{total // 60:02d}:{total % 60:02d}"
 
 
@@ -145,8 +99,10 @@ def summarize(result) -> dict:
         effluent[key] = {"mean": quad.mean(qe[key], flow_weighted=True),
                          "max": float(max(qe[key].max(), eff[key].max()))}
     w = quad.weight
-    t_in = np.asarray(lay.inlet_air.temperature_C, dtype=float)[quad.period]
-    power = blower_power_kW(lay, quad.airflow_Sm3_h, t_in)
+    air = resolve_plant(lay).air
+    with warnings.catch_warnings():  # curve extrapolation is reported where the airflow is chosen
+        warnings.simplefilter("ignore")
+        power = air.step_power_kW({zid: quad.airflow_Sm3_h[:, i] for i, zid in enumerate(zone_ids)}, quad.period)
     zones = {}
     for i, zid in enumerate(zone_ids):
         e = ex[ex["zone"] == zid]
@@ -157,8 +113,8 @@ def summarize(result) -> dict:
             "do_max_mg_L": float(e["do_max_mg_L"].max()),
             "do_mean_mg_L": float(w @ quad.do[:, i]),
             "airflow_mean_Sm3_h": float(w @ quad.airflow_Sm3_h[:, i]),
-            "air_Sm3_per_day": float(24.0 * w @ quad.airflow_Sm3_h[:, i]),
-            "oxygen_kg_per_day": float(24.0 * w @ quad.otr_kg_h[:, i]),
+            "air_Sm3_per_day": float(HOURS_PER_DAY * w @ quad.airflow_Sm3_h[:, i]),
+            "oxygen_kg_per_day": float(HOURS_PER_DAY * w @ quad.otr_kg_h[:, i]),
         }
     shortfalls = setpoint_shortfalls(lay, ex, result.setpoints_mg_L)
     return {
@@ -176,9 +132,9 @@ def summarize(result) -> dict:
         "zones": zones,
         "do_setpoint_mg_L": dict(result.setpoints_mg_L),
         "setpoint_not_held": shortfalls,
-        "air_Sm3_per_day": float(24.0 * w @ quad.airflow_Sm3_h.sum(axis=1)),
-        "oxygen_kg_per_day": float(24.0 * w @ quad.otr_kg_h.sum(axis=1)),
-        "blower_kWh_per_day": float(24.0 * w @ power),
+        "air_Sm3_per_day": float(HOURS_PER_DAY * w @ quad.airflow_Sm3_h.sum(axis=1)),
+        "oxygen_kg_per_day": float(HOURS_PER_DAY * w @ quad.otr_kg_h.sum(axis=1)),
+        "blower_kWh_per_day": float(HOURS_PER_DAY * w @ power),
         "blower_kW_max": float(power.max()) if power.size else 0.0,
         "balance": {k: float(v) for k, v in result.balance.items()},
     }

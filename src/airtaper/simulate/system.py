@@ -54,8 +54,10 @@ from __future__ import annotations
 import numpy as np
 import scipy.sparse as sp
 
+from airtaper import units
 from airtaper.layout.types import ASM1_COMPONENTS
 from airtaper.physics.settling import limiting_solids_flux_g_m2_d, takacs_velocity_m_d
+from airtaper.physics.smooth import smooth_min
 from airtaper.process.stoichiometry import (
     IDX, PARTICULATES, SOLIDS_COD, cod_composition, cod_of_n2, n2_yield, n_composition,
 )
@@ -152,7 +154,7 @@ class System:
             vs = takacs_velocity_m_d(X, self.fns * xf, self.v0max, self.v0, self.rh, self.rp)
             js = vs * X
             a, b = js[:-1], js[1:]
-            jmin = 0.5 * (a + b - np.sqrt((a - b) ** 2 + _FLUX_SMOOTHING ** 2))
+            jmin = smooth_min(a, b, _FLUX_SMOOTHING)
             J = jmin.copy()
             if f > 0:
                 J[:f] = np.where(X[1:f + 1] <= self.xt, js[:f], jmin[:f])
@@ -260,11 +262,13 @@ class System:
         if over_flux or over_rate or over_blanket or not srt_held:
             parts = []
             if over_flux:
-                parts.append(f"solids loading {applied / 24000.0:.3g} kg/(m2 h) is above the limiting flux of its "
-                             f"thickening zone ({g_lim / 24000.0:.3g} kg/(m2 h))")
+                kg_m2_h = units.g_to_kg(np.array([applied, g_lim])) / units.HOURS_PER_DAY
+                parts.append(f"solids loading {kg_m2_h[0]:.3g} kg/(m2 h) is above the limiting flux of its "
+                             f"thickening zone ({kg_m2_h[1]:.3g} kg/(m2 h))")
             if over_rate:
-                parts.append(f"overflow rate {qe / A / 24.0:.3g} m/h is above the settling velocity of the feed "
-                             f"({v_feed / 24.0:.3g} m/h at {xf:.0f} g/m3)")
+                m_h = np.array([qe / A, v_feed]) / units.HOURS_PER_DAY
+                parts.append(f"overflow rate {m_h[0]:.3g} m/h is above the settling velocity of the feed "
+                             f"({m_h[1]:.3g} m/h at {xf:.0f} g/m3)")
             msg = ("clarifier overloaded at the mean load: " + "".join(p + "; " for p in parts)
                    + f"the sludge blanket reaches layer {blanket or 1} of {L} from the top (fed at layer "
                    f"{self.feed + 1}) and the effluent carries "

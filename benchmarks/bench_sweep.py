@@ -1,0 +1,142 @@
+"""Sweeps on Dask: serial against the local cluster, memory per worker, and a scenario's wall time against Ipopt's.
+
+Prints, measured side by side in one run:
+
+1. a 16-scenario sweep of the demo (4 water temperatures x 4 fouling factors), the
+   same tasks run one by one in this process (imports paid once, as in a worker) and
+   on a local Dask cluster with one worker per core: wall times, speed-up and parallel
+   efficiency (serial / (cluster x workers); target: as close to 1 as the machine
+   allows), and the peak resident memory of each worker;
+2. the demo's wall time against its Ipopt time: ``airtaper optimize`` from the
+   command line as a user runs it (a fresh interpreter: imports, report) and a
+   scenario inside a sweep worker (``run_s`` against ``ipopt_s`` of the rows; target:
+   run_s <= 1.5 x ipopt_s). Ipopt's time is the solver's own, summed over attempts.
+
+    python benchmarks/bench_sweep.py [--quick] [--layout L] [--scenarios N] [--sections 1,2]
+
+``--quick``: the three-tank plant on four periods, 8 scenarios. Numbers taken while
+other work runs on the machine are noisy; the ratios of one run are what to compare.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import pathlib
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+
+ROOT = pathlib.Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT / "src"))
+
+from airtaper.cli.sweep import optimize_scenario, plan  # noqa: E402
+from airtaper.sweep.execute import Execution, machine_workers, run_serial  # noqa: E402
+from airtaper.sweep.grid import Grid, Scenario  # noqa: E402
+from airtaper.sweep.journal import open_sweep_folder  # noqa: E402
+
+
+def _grid(n: int, common: dict) -> Grid:
+    temps = [10.0, 13.0, 16.0, 19.0, 22.0, 25.0]
+    fouls = [0.85, 0.8, 0.7, 0.6, 0.5, 0.45]
+    side = 1
+    while side * side < n:
+        side += 1
+    combos = [(t, f) for t in temps[:side] for f in fouls[:side]][:n]
+    keys = ("plant.water_temperature_C", "zone_defaults.fouling")
+    sc = tuple(Scenario(f"s{i:02d}", {**common, keys[0]: t, keys[1]: f}, keys) for i, (t, f) in enumerate(combos))
+    return Grid("<benchmark>", sc, keys, keys)
+
+
+def _tasks(layout: str, grid: Grid, folder: pathlib.Path) -> list[dict]:
+    open_sweep_folder(folder, "sweep", overwrite=True)
+    known, tasks = plan(layout, grid, folder, ["--no-report"])
+    if known:
+        raise SystemExit(f"scenarios refused: {sorted(known)}")
+    return tasks
+
+
+def section_sweep(layout: str, grid: Grid, tmp: pathlib.Path) -> list[dict]:
+    n = len(grid.scenarios)
+    workers = machine_workers()
+    print(f"1. {n} scenarios of {layout}, serial in one process against a local Dask cluster of {workers} workers")
+    tasks = _tasks(layout, grid, tmp / "serial")
+    t0 = time.perf_counter()
+    serial_rows = list(run_serial(tasks, optimize_scenario))
+    serial = time.perf_counter() - t0
+    tasks = _tasks(layout, grid, tmp / "cluster")
+    t0 = time.perf_counter()
+    ex = Execution(tasks, optimize_scenario, workers=workers, progress=False)
+    cluster_rows = list(ex.rows())
+    cluster = time.perf_counter() - t0
+    bad = [r["scenario"] for r in serial_rows + cluster_rows if r.get("status") not in ("optimal", "unverified")]
+    print(f"   serial  {serial:8.1f} s   ({serial / n:.1f} s per scenario)")
+    print(f"   cluster {cluster:8.1f} s   (cluster start and worker imports included)")
+    print(f"   speed-up {serial / cluster:.2f} on {workers} workers: parallel efficiency {serial / cluster / workers:.2f}")
+    for w, b in sorted(ex.peak_memory_bytes.items()):
+        print(f"   peak memory of worker {w}: {b / 2**20:.0f} MB")
+    same = all(abs(a["energy_kWh_per_day"] - b["energy_kWh_per_day"]) <= 1e-6 * abs(a["energy_kWh_per_day"])
+               for a, b in zip(sorted(serial_rows, key=lambda r: r["scenario"]),
+                               sorted(cluster_rows, key=lambda r: r["scenario"]))
+               if a.get("energy_kWh_per_day") is not None and b.get("energy_kWh_per_day") is not None)
+    print(f"   serial and cluster rows give the same energy: {same}; not optimal: {bad or 'none'}")
+    return serial_rows + cluster_rows
+
+
+def section_ratio(layout: str, rows: list[dict], tmp: pathlib.Path, repeats: int, common: dict) -> None:
+    print(f"2. wall time against Ipopt time, {layout}" + (f" with {common}" if common else ""))
+    cli = []
+    env = dict(os.environ, PYTHONPATH=str(ROOT / "src") + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    extra = []
+    if common:
+        from airtaper.layout.overrides import overrides_to_toml
+
+        (tmp / "common.toml").write_text(overrides_to_toml(common))
+        extra = ["--overrides", str(tmp / "common.toml")]
+    for i in range(repeats):
+        out = tmp / f"cli{i}"
+        t0 = time.perf_counter()
+        subprocess.run([sys.executable, "-m", "airtaper.cli.main", "optimize", layout, "--out", str(out), "--quiet",
+                        *extra], env=env, stdout=subprocess.DEVNULL, check=False)
+        wall = time.perf_counter() - t0
+        s = json.loads((out / "summary.json").read_text())
+        cli.append((wall, s["solver"]["timings"]["ipopt_s"], s["solver"]["timings"]))
+    wall = statistics.median(c[0] for c in cli)
+    ipopt = statistics.median(c[1] for c in cli)
+    print(f"   command line (fresh interpreter, report): wall {wall:.1f} s, Ipopt {ipopt:.1f} s, "
+          f"ratio {wall / ipopt:.2f} (median of {repeats})")
+    t = cli[len(cli) // 2][2]
+    parts = ", ".join(f"{k} {v:.1f}" for k, v in t.items() if isinstance(v, float) and v >= 0.05)
+    print(f"   inside the run (s): {parts}")
+    ok = [r for r in rows if r.get("ipopt_s")]  # (a worker's first scenario pays its imports: read the median)
+    if ok:
+        ratios = sorted(r["run_s"] / r["ipopt_s"] for r in ok)
+        print(f"   sweep scenarios ({len(ok)}): run_s / ipopt_s median {statistics.median(ratios):.2f}, "
+              f"min {ratios[0]:.2f}, max {ratios[-1]:.2f} (target <= 1.5); median run_s "
+              f"{statistics.median(r['run_s'] for r in ok):.1f} s, ipopt_s {statistics.median(r['ipopt_s'] for r in ok):.1f} s")
+
+
+def main() -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--quick", action="store_true")
+    ap.add_argument("--layout", default=None)
+    ap.add_argument("--scenarios", type=int, default=None)
+    ap.add_argument("--sections", default="1,2")
+    args = ap.parse_args()
+    layout = args.layout or str(ROOT / "layouts" / ("three_tank.toml" if args.quick else "demo.toml"))
+    n = args.scenarios or (8 if args.quick else 16)
+    common = {"horizon.n_periods": 4, "horizon.steps_per_period": 2} if args.quick else {}
+    sections = {int(s) for s in args.sections.split(",")}
+    with tempfile.TemporaryDirectory() as d:
+        tmp = pathlib.Path(d)
+        rows = section_sweep(layout, _grid(n, common), tmp) if 1 in sections else []
+        if 2 in sections:
+            section_ratio(layout, rows, tmp, 1 if args.quick else 3, common)
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

@@ -1,0 +1,219 @@
+"""The results of an aeration study: its tables from the solved model and its summary as a typed structure.
+
+:func:`study_tables` reads the solved model of a
+:class:`~airtaper.optimize.diurnal.DiurnalOptimisation` into the three tables of the
+output folder (``schedule``, ``header``, ``timeseries``; docs/outputs.md gives every
+column); :func:`empty_tables` gives the same tables with no rows, for a run stopped
+before it solved. :class:`StudySummary` is ``summary.json``: one field per top-level
+key, in the file's order, :meth:`StudySummary.to_dict` writes it and
+:meth:`StudySummary.from_dict` reads it back (the report reads a finished folder
+through it). Keys of the file that the structure does not know are kept aside
+(:attr:`StudySummary.extra`) so that a folder written by a later version still reads.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+import pyomo.environ as pyo
+
+from airtaper.layout.types import ASM1_COMPONENTS, Layout
+from airtaper.optimize.attempts import point_hours
+from airtaper.optimize.problem import point_weights
+
+#: Columns of ``schedule.csv`` as the optimiser writes them (the baseline's columns follow).
+SCHEDULE_COLUMNS = ("period_start_h", "period_end_h", "zone", "aerated", "airflow_Sm3_h", "airflow_per_diffuser_Sm3_h",
+                    "do_min_mg_L", "do_mean_mg_L", "nh4_mean_mg_L", "otr_kg_h")
+#: Columns of ``header.csv`` (``baseline_power_kW`` follows).
+HEADER_COLUMNS = ("period_start_h", "period_end_h", "pressure_gauge_kPa", "airflow_Sm3_h", "power_kW")
+#: Columns of ``timeseries.csv``; effluent rows add ``tn_mg_L``.
+TIMESERIES_COLUMNS = ("time_h", "zone", *ASM1_COMPONENTS, "airflow_Sm3_h", "otr_kg_h")
+
+
+def study_tables(study) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
+    """``schedule``, ``header`` and ``timeseries`` of a solved study (model values; docs/outputs.md)."""
+    m, b = study.m, study.m.opt
+    period_h = study.layout.horizon.period_h
+    sched = []
+    w = point_weights(m)
+    hours = point_hours(m)
+    states = b.swing_states or {}
+    for p in m.PERIODS:
+        steps = [t for t in m.STEPS if m.period_of_step[t] == p]
+        wp = np.array([w[t] for t in steps])
+        wp = wp / wp.sum()
+        for z in b.ZONES:
+            q = float(m.airflow_Sm3_h[z, p].value)
+            do = np.array([pyo.value(m.conc[t, z, "SO"]) for t in steps])
+            sched.append({
+                "period_start_h": (p - 1) * period_h, "period_end_h": p * period_h, "zone": z,
+                "aerated": bool(states[z][p - 1]) if z in states else q > 0.0,
+                "airflow_Sm3_h": q, "airflow_per_diffuser_Sm3_h": q / pyo.value(m.diffuser_count[z]),
+                "do_min_mg_L": float(do.min()), "do_mean_mg_L": float(wp @ do),
+                "nh4_mean_mg_L": float(wp @ np.array([pyo.value(m.conc[t, z, "SNH"]) for t in steps])),
+                "otr_kg_h": float(wp @ np.array([pyo.value(m.otr_kg_h[t, z]) for t in steps])),
+            })
+    header = pd.DataFrame([{
+        "period_start_h": (p - 1) * period_h, "period_end_h": p * period_h,
+        "pressure_gauge_kPa": float(b.header_kPa[p].value),
+        "airflow_Sm3_h": float(pyo.value(b.total_airflow_Sm3_h[p])), "power_kW": float(pyo.value(b.power_kW[p])),
+    } for p in m.PERIODS], columns=list(HEADER_COLUMNS))
+    rows = []
+    for t in m.STEPS:
+        p = m.period_of_step[t]
+        for z in m.ZONES:
+            row = {"time_h": hours[t], "zone": z}
+            row.update({c: float(m.conc[t, z, c].value) for c in ASM1_COMPONENTS})
+            row["airflow_Sm3_h"] = float(m.airflow_Sm3_h[z, p].value) if z in b.ZONES else 0.0
+            row["otr_kg_h"] = float(pyo.value(m.otr_kg_h[t, z])) if z in m.AERATED_ZONES else 0.0
+            rows.append(row)
+        row = {"time_h": hours[t], "zone": "effluent"}
+        row.update({c: float(pyo.value(m.effluent_conc[t, c])) for c in ASM1_COMPONENTS})
+        row["tn_mg_L"] = float(pyo.value(m.effluent_tn_mg_L[t]))
+        rows.append(row)
+    return pd.DataFrame(sched, columns=list(SCHEDULE_COLUMNS)), header, pd.DataFrame(rows)
+
+
+def empty_tables() -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
+    """The three tables with their columns and no rows (a run stopped before it solved)."""
+    return (pd.DataFrame(columns=[c for c in SCHEDULE_COLUMNS if c != "aerated"]),
+            pd.DataFrame(columns=list(HEADER_COLUMNS)), pd.DataFrame(columns=list(TIMESERIES_COLUMNS)))
+
+
+@dataclass
+class EffluentFigures:
+    """Effluent figures of a day, mg N/L: flow-weighted daily means and the largest period mean of NH4-N."""
+
+    nh4_mean_mg_L: float | None = None
+    nh4_max_mg_L: float | None = None
+    tn_mean_mg_L: float | None = None
+
+    @classmethod
+    def of(cls, figures: dict) -> EffluentFigures:
+        """From compliance figures (:func:`airtaper.optimize.compliance.day_figures`) or their JSON."""
+        return cls(**{f.name: figures.get(f.name) for f in dataclasses.fields(cls)})
+
+
+@dataclass
+class Limits:
+    """The limits of a run, mg/L: effluent (None when not set) and the DO range by zone."""
+
+    nh4_mean_mg_L: float | None = None
+    nh4_max_mg_L: float | None = None
+    tn_mean_mg_L: float | None = None
+    do_min_mg_L: dict[str, float] = field(default_factory=dict)
+    do_max_mg_L: dict[str, float] = field(default_factory=dict)
+
+    @classmethod
+    def of_layout(cls, layout: Layout) -> Limits:
+        lim = layout.limits
+        return cls(lim.nh4_mean_mg_L, lim.nh4_max_mg_L, lim.tn_mean_mg_L,
+                   {z.id: z.do_min_mg_L for z in layout.zones if z.do_min_mg_L is not None},
+                   {z.id: z.do_max_mg_L for z in layout.zones if z.do_max_mg_L is not None})
+
+
+@dataclass
+class Smoothing:
+    """The period-to-period airflow change term: its weight and its value at the optimum."""
+
+    weight: float | None = None
+    penalty: float | None = None
+
+
+#: Nested structures of :class:`StudySummary` by field name (read back by :meth:`StudySummary.from_dict`).
+_NESTED = {"effluent": EffluentFigures, "limits": Limits, "smoothing": Smoothing}
+
+
+@dataclass
+class StudySummary:
+    """``summary.json`` of ``airtaper optimize``: one field per top-level key, in the file's order.
+
+    docs/outputs.md gives every key's unit and meaning. Figures that a run did not reach are
+    None (written as null). ``baseline``, ``verification``, ``dispatch``, ``solver`` and the
+    lists keep the shape the modules that compute them give (docs/outputs.md);
+    ``report.folder.SUMMARY_SHAPE`` checks the parts the report relies on.
+    """
+
+    status: str
+    plant: str
+    layout: str
+    objective: str
+    currency: str = ""
+    energy_kWh_per_day: float | None = None
+    cost_per_day: float | None = None
+    baseline: dict | None = None
+    saving_percent: float | None = None
+    cost_saving_percent: float | None = None
+    baseline_compliant: bool | None = None
+    complying_baseline: dict | None = None
+    dispatch: dict | None = None
+    effluent: EffluentFigures | None = None
+    min_do_margin_mg_L: float | None = None
+    do_margin_mg_L: dict[str, float] | None = None
+    optimiser_min_do_margin_mg_L: float | None = None
+    do_hold: dict | None = None
+    limits: Limits = field(default_factory=Limits)
+    verification: dict = field(default_factory=lambda: {"verified": None, "skipped": True})
+    verified: bool | None = None
+    marginal_costs: list[dict] = field(default_factory=list)
+    infeasibility: list[dict] = field(default_factory=list)
+    prescreen: dict | None = None
+    outside_tested_range: list[dict] = field(default_factory=list)
+    smoothing: Smoothing | None = None
+    solver: dict = field(default_factory=dict)
+    messages: list[str] = field(default_factory=list)
+    #: keys of a read-back file this structure does not know (provenance, later additions), in the file's order
+    extra: dict = field(default_factory=dict)
+
+    def to_dict(self) -> dict:
+        """The JSON object: every field by name (nested structures as objects), then :attr:`extra`;
+        numpy numbers as Python ones and non-finite numbers as null."""
+        out = {}
+        for f in dataclasses.fields(self):
+            if f.name == "extra":
+                continue
+            value = getattr(self, f.name)
+            out[f.name] = dataclasses.asdict(value) if dataclasses.is_dataclass(value) else value
+        out.update(self.extra)
+        return jsonable(out)
+
+    @classmethod
+    def from_dict(cls, data: dict) -> StudySummary:
+        """Read a summary back (``summary.json``); unknown keys go to :attr:`extra`, missing ones take the
+        defaults (None, empty)."""
+        names = {f.name for f in dataclasses.fields(cls)} - {"extra"}
+        kwargs = {k: v for k, v in data.items() if k in names}
+        for key, kind in _NESTED.items():
+            if isinstance(kwargs.get(key), dict):
+                known = {f.name for f in dataclasses.fields(kind)}
+                kwargs[key] = kind(**{k: v for k, v in kwargs[key].items() if k in known})
+        for key in ("status", "plant", "layout", "objective"):
+            kwargs.setdefault(key, None)
+        return cls(**kwargs, extra={k: v for k, v in data.items() if k not in names})
+
+
+#: The top-level keys of ``summary.json`` that :class:`StudySummary` defines, in the file's order.
+SUMMARY_KEYS: tuple[str, ...] = tuple(f.name for f in dataclasses.fields(StudySummary) if f.name != "extra")
+
+
+def jsonable(obj):
+    """Plain JSON types (numpy scalars to Python, non-finite floats to None)."""
+    if isinstance(obj, dict):
+        return {str(k): jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [jsonable(v) for v in obj]
+    if isinstance(obj, (np.floating, float)):
+        v = float(obj)
+        return v if np.isfinite(v) else None
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, np.bool_):
+        return bool(obj)
+    return obj
+
+
+__all__ = ["EffluentFigures", "HEADER_COLUMNS", "Limits", "SCHEDULE_COLUMNS", "SUMMARY_KEYS", "Smoothing",
+           "StudySummary", "TIMESERIES_COLUMNS", "empty_tables", "jsonable", "study_tables"]

@@ -1,0 +1,13 @@
+"""airtaper.plant: the resolved plant, made once from a layout, that every later layer computes with.
+
+* ``resolve.py`` -- the one resolution step (:func:`resolve_plant`, :func:`load_plant`): every
+  check that needs more than the parser, reported in the layout's error form;
+* ``resolved.py`` -- the frozen result (:class:`ResolvedPlant`): pressures, hydraulics, ASM1
+  parameters and influent components per period, per zone its aeration (SOTE and headloss
+  curves, saturation, airflow range, the kLa rule), the air side and its power chain.
+"""
+
+from airtaper.plant.resolve import load_plant, resolve_plant
+from airtaper.plant.resolved import AirSide, DiffusedZone, FixedKla, Hydraulics, ResolvedPlant
+
+__all__ = ["AirSide", "DiffusedZone", "FixedKla", "Hydraulics", "ResolvedPlant", "load_plant", "resolve_plant"]
