@@ -352,16 +352,17 @@ def redispatch(m, dp: Dispatch) -> tuple[Dispatch, bool]:
     airflow or cost more, and the model's power curve follows. Returns ``(dispatch, replaced)``.
     """
     b = m.opt
+    layout = m.train_data.plant.layout
     old = final_dispatch(m, dp)
     s = model_air_state(m)
     new = solve_dispatch(b.machines, s["demand_Sm3_h"], s["discharge_gauge_kPa"], s["kw_per_equivalent"],
-                         Bill.of(b.layout, b.settings.objective), float(b.air.period_h))
+                         Bill.of(layout, b.settings.objective), float(m.train_data.period_h))
     if new.findings or new.same_decisions(old):
         return old, False
     objective = b.settings.objective
     uncovered = bool(np.any(old.shortfall_Sm3_h > CHECK_RTOL * np.maximum(old.demand_Sm3_h, 1.0))) or bool(
         np.any(old.airflow_Sm3_h.sum(axis=0) > old.demand_Sm3_h * (1 + CHECK_RTOL) + 1e-6))
-    if not uncovered and round_cost(b.layout, new, objective) >= round_cost(b.layout, old, objective) * (1.0 - 1e-9):
+    if not uncovered and round_cost(layout, new, objective) >= round_cost(layout, old, objective) * (1.0 - 1e-9):
         return old, False
     apply_dispatch(m, new)
     return new, True
