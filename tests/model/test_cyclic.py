@@ -151,3 +151,31 @@ def test_radau_collocation_integrates_polynomials_exactly():
         # stage order K: each row integrates degree K - 1 exactly up to its node
         for deg in range(k):
             assert np.allclose(a @ c**deg, c ** (deg + 1) / (deg + 1), rtol=1e-12)
+
+
+def test_a_march_step_reaches_the_same_state_from_perturbed_starts(marched):
+    # The damped Newton of one march step (model.initial_point._march_step), started from the marched
+    # state with every unknown scaled by a random factor in [0.5, 2] (fixed seed), lands on the same
+    # state: the step's equations have one nearby root and the damping does not stop short of it.
+    from airtaper.model.initial_point import _march_step, _StepTemplate
+
+    m = marched
+    rng = np.random.default_rng(5)
+    firsts = [t for t in m.STEPS if m.stage_of_point[t] == 0]
+    free = [v for v in m.waste_m3_d.values() if not v.fixed]
+    for v in free:  # held during the march, as march_cyclic holds it
+        v.fix()
+    try:
+        for t in firsts[1:: max(1, len(firsts) // 4)]:
+            tpl = _StepTemplate(m, t)
+            x_ref = np.array([v.value for v in tpl.variables(m, t)], dtype=float)
+            cur = tpl.current
+            for _ in range(3):
+                x = x_ref.copy()
+                x[cur] = x_ref[cur] * rng.uniform(0.5, 2.0, cur.size)
+                x, _iterations = _march_step(tpl, x, 1e-10, t)
+                rel = np.abs(x[cur] - x_ref[cur]) / np.maximum(np.abs(x_ref[cur]), 1e-3)
+                assert rel.max() < 1e-6, (t, rel.max())
+    finally:
+        for v in free:
+            v.unfix()

@@ -470,14 +470,62 @@ class _StepTemplate:
         return [getattr(m, name)[(at(rel),) + rest] for name, rest, rel in self.keys]
 
 
+#: Newton iterations one step of :func:`march_cyclic` may take.
+_MARCH_ITERATIONS = 50
+
+
+def _march_step(tpl, x, tol, t):
+    """Damped Newton on one step's equations (see :func:`march_cyclic`); returns (x, iterations)."""
+    cur = tpl.current
+    system = tpl.system
+    with np.errstate(all="ignore"):
+        f = system.residual(x)
+        jac = system.jacobian(x, cur)
+        scale = 1.0 / np.maximum((np.abs(jac) * np.maximum(np.abs(x[cur]), 1e-2)[None, :]).max(axis=1), 1e-8)
+        norm = float(np.linalg.norm(f * scale))
+        for it in range(1, _MARCH_ITERATIONS + 1):
+            if not np.isfinite(norm):
+                break
+            if float(np.max(np.abs(f * scale))) < tol:
+                return x, it - 1
+            try:
+                dx = _solve_linear(jac, -f)
+            except np.linalg.LinAlgError:
+                break
+            alpha = 1.0
+            while alpha > 1e-4:
+                x_try = x.copy()
+                x_try[cur] = np.maximum(x[cur] + alpha * dx, tpl.lb)
+                f_try = system.residual(x_try)
+                n_try = float(np.linalg.norm(f_try * scale))
+                if np.isfinite(n_try) and n_try < (1.0 - 1e-4 * alpha) * norm:
+                    break
+                alpha *= 0.5
+            else:
+                break  # no descent along the Newton direction
+            change = float(np.max(np.abs(x_try[cur] - x[cur]) / np.maximum(np.abs(x_try[cur]), 1e-2)))
+            x, f, norm = x_try, f_try, n_try
+            if change < tol and alpha == 1.0:
+                return x, it
+            jac = system.jacobian(x, cur)
+    raise ModelError(f"march_cyclic: Newton did not converge at step {t} (scaled residual {norm:.3g})")
+
+
 def march_cyclic(m, days: int = 1, tol: float = 1e-9) -> int:
     """March a cyclic model through the day(s), step by step, from its current values.
 
     Each step's equations (all its collocation points) are solved by Newton with
     the state before the step given (the waste flow held at its current value):
     a simulation with the model's own discretised equations. Started from the
-    mean-load steady state it lands close to the periodic solution. Returns the
-    number of Newton iterations.
+    mean-load steady state (or a simulated day) it lands close to the periodic
+    solution. Returns the number of Newton iterations.
+
+    Newton is damped: a step is halved until the scaled residual's 2-norm falls
+    (near the kinks of a layered clarifier's fluxes a full Newton step can
+    overshoot onto the other branch and cycle). A step ends when the Newton
+    change is below ``tol`` relative or every scaled residual below ``tol``; one
+    that cannot descend, or does not end in :data:`_MARCH_ITERATIONS`, raises
+    :class:`ModelError`, values left as they were before that step.
     """
     waste_free = [v for v in m.waste_m3_d.values() if not v.fixed]
     for v in waste_free:
@@ -495,17 +543,9 @@ def march_cyclic(m, days: int = 1, tol: float = 1e-9) -> int:
                 var = tpl.variables(m, t)
                 x = np.array([v.value for v in var], dtype=float)
                 x[tpl.predict_to] = x[tpl.predict_from]  # start from the state before the step
-                cur = tpl.current
-                for _it in range(50):
-                    f = tpl.system.residual(x)
-                    dx = _solve_linear(tpl.system.jacobian(x, cur), -f)
-                    x[cur] = np.maximum(x[cur] + dx, tpl.lb)
-                    total += 1
-                    if np.max(np.abs(dx) / np.maximum(np.abs(x[cur]), 1e-2)) < tol:
-                        break
-                else:
-                    raise ModelError(f"march_cyclic: Newton did not converge at step {t}")
-                for k in cur:
+                x, iterations = _march_step(tpl, x, tol, t)
+                total += iterations
+                for k in tpl.current:
                     var[k].set_value(float(x[k]), skip_validation=True)
     finally:
         for v in waste_free:

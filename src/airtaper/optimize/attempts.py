@@ -6,8 +6,8 @@ zone concentrations at every model step are the simulated baseline states at the
 same time of day, the waste flow is the simulated one, and a layered clarifier's
 layers are the simulated day's at the same time of day too (the layers and the
 zones of one simulated trajectory: pairing the day's zones with the mean-load
-steady settler left return-sludge solids off by up to 5e3 g/m3/d, and Ipopt
-stalled in restoration on the layered demo). Everything else comes from the model
+steady settler left the zones' balances off by up to 4.9e3 g/m3/d at the start
+on the layered demo, 70 g/m3/d with the day's layers). Everything else comes from the model
 layer's cyclic initialisation (the steady state at mean load). Should the model's
 own continuation not settle, that steady state starts from the independent
 simulator's at the same mean airflows (:func:`simulated_steady_start`); should that

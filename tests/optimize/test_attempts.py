@@ -1,0 +1,162 @@
+"""Starts of the optimisation: a layered clarifier started from the simulated day, solved from perturbed starts.
+
+The demo (an invented plant) with a layered clarifier of 1,200 m2, on six 4-hour periods to keep the
+test short. The start takes the clarifier layers of the simulated day (before, the day's zones were
+paired with the mean-load steady settler). On this horizon both starts converge (24 against 30
+Ipopt iterations); on the demo's own 24 one-hour periods the optimisation does not converge yet
+(issue 10, part (a), left open): these tests hold what works.
+"""
+
+from __future__ import annotations
+
+import shutil
+import warnings
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from airtaper.errors import EXIT_OK, EXIT_UNVERIFIED
+from airtaper.layout import load_layout
+from airtaper.optimize.attempts import BASE_OPTIONS, Rung, point_hours, start_airflow, start_from_day
+from airtaper.optimize.diurnal import DiurnalOptimisation, StudyOptions, run_optimization
+from airtaper.optimize.horizon import with_periods
+from airtaper.process.asm1 import PARAMETER_SETS
+
+ROOT = Path(__file__).resolve().parents[2]
+
+#: Relative agreement of optima reached from perturbed starts and parameters: Ipopt stops at a
+#: relative tolerance of 1e-7 on the objective normalised by the baseline's (attempts.BASE_OPTIONS).
+SAME_OPTIMUM_RTOL = 1e-5
+
+#: The kinetic parameters of ASM1 (Henze et al. 1987), each perturbed by a relative 1e-9 below.
+_KINETIC = ("mu_H", "K_S", "K_OH", "K_NO", "b_H", "eta_g", "eta_h", "k_h", "K_X", "mu_A", "K_NH", "b_A", "K_OA",
+            "k_a")
+
+
+@pytest.fixture(scope="module")
+def layered_demo(tmp_path_factory):
+    text = (ROOT / "layouts" / "demo.toml").read_text()
+    old = '[clarifier]\nkind = "ideal"\neffluent_tss_mg_L = 10.0'
+    assert old in text
+    folder = tmp_path_factory.mktemp("layered")
+    path = folder / "demo.toml"
+    path.write_text(text.replace(old, '[clarifier]\nkind = "layered"\narea_m2 = 1200.0\nheight_m = 4.0'))
+    shutil.copy(ROOT / "layouts" / "demo_influent.csv", folder / "demo_influent.csv")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return with_periods(load_layout(str(path)), 6, steps_per_period=2)
+
+
+@pytest.fixture(scope="module")
+def built(layered_demo):
+    """The optimisation built and started from the baseline's simulated day (not solved yet)."""
+    study = DiurnalOptimisation(layered_demo, StudyOptions())
+    study.build()
+    return study
+
+
+@pytest.fixture(scope="module")
+def reference(built):
+    """The optimisation solved from the default start: (study, goal)."""
+    r = built.solve()
+    assert r is not None and r.ok, built.attempts
+    return built, built.goal()
+
+
+def test_start_takes_the_clarifier_layers_of_the_simulated_day(built):
+    m, day = built.m, built.baseline.day
+    hours = point_hours(m)
+    for t in m.STEPS:
+        want = np.maximum(day.layers_at(hours[t]), 0.0)
+        got = np.array([[m.settler_conc[t, layer, c].value for c in m.COMPONENTS] for layer in m.LAYERS])
+        np.testing.assert_allclose(got, want, rtol=1e-12, atol=1e-12)
+        # the layers' solids and effective settling velocities satisfy their own definitions there
+        for layer in m.INTERFACES:
+            flux = m.settler_velocity[t, layer].value * m.settler_tss[t, layer].value
+            assert abs(m.settler_flux_definition[t, layer].body()) <= 1e-8 * max(flux, 1.0)
+    # the zones' balances at the start are those of one simulated trajectory: far smaller than when the
+    # day's zones were paired with the mean-load steady settler (the start before; return sludge off)
+    worst = max(abs(con.body()) for con in m.zone_balance.values())
+    layers, day.layers = day.layers, None  # the start as it was: the model's own mean-load clarifier
+    try:
+        start_from_day(m, day, start_airflow(m, day))
+        before = max(abs(con.body()) for con in m.zone_balance.values())
+    finally:
+        day.layers = layers
+        start_from_day(m, day, start_airflow(m, day))
+    assert worst < 0.25 * before, (worst, before)
+
+
+@pytest.mark.solver
+@pytest.mark.slow
+def test_layered_demo_optimises_and_is_verified_by_the_simulator(layered_demo):
+    # The whole job ends with a solved schedule that the simulator re-simulates; never exit 1.
+    # On this coarse horizon (4-hour periods, two collocation points each) the re-simulated DO of
+    # zone Z6 rises 0.36 mg/L above its 2.5 mg/L maximum (exit 4, said in the summary): measured
+    # on this branch, left open with issue 10 (a).
+    res = run_optimization(layered_demo)
+    s = res.summary
+    assert res.exit_code in (EXIT_OK, EXIT_UNVERIFIED) and s["status"] in ("optimal", "unverified"), s["messages"]
+    v = s["verification"]
+    assert v["verified"] is (res.exit_code == EXIT_OK)
+    assert all("DO leaves its range" in w or "exceeds the limit" in w for w in v["violations"])
+    assert s["energy_kWh_per_day"] < s["baseline"]["energy_kWh_per_day"]
+
+
+@pytest.mark.solver
+@pytest.mark.slow
+@pytest.mark.parametrize("factor", [0.85, 1.2])
+def test_layered_demo_reaches_the_same_optimum_from_perturbed_starts(layered_demo, reference, factor):
+    # every start airflow scaled (the states stay the simulated day's: a start off the model's equations)
+    _, goal = reference
+    study = DiurnalOptimisation(layered_demo, StudyOptions(), baseline=reference[0].baseline)
+    study.build()
+    study.options.ladder = (Rung("perturbed start", {"mu_strategy": "adaptive"}, airflow_factor=factor),)
+    study._restart(study.options.ladder[0])
+    r = study._ipopt(study.options.ladder[0])
+    assert r.ok, r.message
+    assert study.goal() == pytest.approx(goal, rel=SAME_OPTIMUM_RTOL)
+
+
+@pytest.mark.solver
+@pytest.mark.slow
+def test_layered_demo_optimum_does_not_depend_on_round_off_of_the_parameters(layered_demo, reference):
+    _, goal = reference
+    base = PARAMETER_SETS[layered_demo.kinetics.parameter_set]
+    rng = np.random.default_rng(11)
+    overrides = tuple((name, getattr(base, name) * (1.0 + 1e-9 * rng.choice([-1.0, 1.0]))) for name in _KINETIC)
+    plant = replace(layered_demo, kinetics=replace(layered_demo.kinetics, overrides=overrides))
+    study = DiurnalOptimisation(plant, StudyOptions())
+    r = study.solve()
+    assert r is not None and r.ok, study.attempts
+    assert study.goal() == pytest.approx(goal, rel=SAME_OPTIMUM_RTOL)
+    assert BASE_OPTIONS["tol"] <= 1e-7  # the agreement above presumes this tolerance
+
+
+def test_a_model_initialisation_that_fails_leaves_the_simulated_day_as_the_start(three_tank_6, monkeypatch):
+    # Extreme (in-range) kinetics once ended `optimize` in exit 1 when the model's steady continuation
+    # did not settle twice; the simulated day gives every state of an ideal-separator plant, so it is
+    # the start then (here the failure is forced, so the test does not depend on finding such a plant).
+    import airtaper.optimize.attempts as attempts
+    from airtaper.errors import ModelError
+    from airtaper.model.train import build_cyclic_model
+    from airtaper.optimize.baseline import run_baseline
+
+    calls = []
+
+    def failing(m, steady=None, start=None):
+        calls.append(start is not None)
+        raise ModelError("the train model's steady state was not found (forced by the test)")
+
+    monkeypatch.setattr(attempts, "initialise_cyclic", failing)
+    day = run_baseline(three_tank_6).day
+    m = build_cyclic_model(three_tank_6, steps_per_period=1)
+    attempts.start_from_day(m, day, attempts.start_airflow(m, day))
+    assert calls == [False, True]  # the model's own start, then the simulator's steady state, both failed
+    hours = point_hours(m)
+    for t in m.STEPS:
+        want = np.maximum(day.state_at(hours[t]), 0.0)
+        got = np.array([[m.conc[t, z, c].value for c in m.COMPONENTS] for z in m.ZONES])
+        np.testing.assert_allclose(got, want, rtol=1e-12, atol=1e-12)
