@@ -42,7 +42,7 @@ def register(subparsers) -> None:
 
 def grid_problems(path: str, layout, what: str) -> list[Problem]:
     """A layout with no diffuser grid, for a command that needs one (``what`` it would do)."""
-    if any(z.grid is not None and z.aerated for z in layout.zones):
+    if any(z.has_diffusers for z in layout.zones):
         return []
     return [Problem(path, "zones", f"no zone has a diffuser grid: there is {what}", None,
                     "at least one aerated zone with a [zones.grid]")]

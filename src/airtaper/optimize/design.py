@@ -152,7 +152,7 @@ class GridDesign:
         self.layout = layout
         self.progress = progress or Silent()
         self.days = layout_days(layout)
-        self.zones = [z for z in layout.zones if z.grid is not None and z.aerated]
+        self.zones = [z for z in layout.zones if z.has_diffusers]
         if not self.zones:
             raise ModelError("the layout has no diffuser grids to design")
         self.ids = [z.id for z in self.zones]

@@ -96,13 +96,12 @@ class Machine:
 
 
 def machines_of(plant) -> tuple[Machine, ...]:
-    """The plant's blowers (a resolved plant or its layout) as dispatch machines (min up/down times rounded up
-    to whole periods)."""
-    plant = resolve_plant(plant)
-    h = plant.period_h
-    n = plant.n_periods
+    """The blowers of a resolved plant (or a layout) as dispatch machines (min up/down times rounded up to whole
+    periods); reads ``horizon`` and ``blowers`` only."""
+    h = plant.horizon.period_h
+    n = plant.horizon.n_periods
     out = []
-    for b in plant.air.blowers:
+    for b in plant.blowers:
         curve = equivalent_curve(b.airflow_min_Sm3_h, b.airflow_max_Sm3_h, b.efficiency,
                                  [(e.airflow_Sm3_h, e.efficiency) for e in b.efficiency_points])
         out.append(Machine(b.id, curve, b.pressure_max_gauge_kPa, b.out_of_service,

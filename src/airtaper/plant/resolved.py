@@ -421,6 +421,10 @@ class ResolvedPlant:
         return self.air.tariff
 
     @property
+    def blowers(self) -> tuple[Blower, ...]:
+        return self.air.blowers
+
+    @property
     def diffused(self) -> tuple[DiffusedZone, ...]:
         """The zones that take air from the header, in train order."""
         return self.air.zones
