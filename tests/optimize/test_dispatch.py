@@ -262,15 +262,15 @@ def test_swing_rounding_against_enumeration(limit):
         assert int(np.sum(got != np.roll(got, 1))) <= limit
 
 
-def test_min_up_in_periods_rounds_up():
+def test_min_up_in_periods_rounds_up(three_tank_6):
+    from dataclasses import replace
+
+    from airtaper.layout.types import Blower
     from airtaper.optimize.dispatch import machines_of
 
-    class _L:  # the few layout fields machines_of reads
-        class horizon:
-            period_h = 4.0
-            n_periods = 6
-    from airtaper.layout.types import Blower
-    _L.blowers = (Blower("B", "turbo", 100.0, 200.0, 60.0, 0.7, (), (), False, 5.0, 4.0, 3, 2.0),)
-    m = machines_of(_L)[0]
+    assert three_tank_6.horizon.period_h == 4.0
+    layout = replace(three_tank_6, blowers=(Blower("B", "turbo", 100.0, 200.0, 60.0, 0.7, (), (), False, 5.0, 4.0, 3,
+                                                   2.0),))
+    m = machines_of(layout)[0]
     assert (m.min_up, m.min_down, m.max_starts, m.start_cost) == (math.ceil(5.0 / 4.0), 1, 3, 2.0)
     assert isinstance(m.curve, EquivalentCurve)

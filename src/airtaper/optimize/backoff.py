@@ -98,13 +98,17 @@ def _keep_band_open(layout, values) -> None:
         high[z, p] = min(b_hi, room - b_lo)
 
 
-def hold_do(study, verify, progress=None) -> dict:
+def hold_do(study, verify, progress=None, relax=None) -> dict:
     """Back-off rounds on a solved :class:`~airtaper.optimize.diurnal.DiurnalOptimisation`.
 
     ``verify()`` re-simulates the current schedule and returns ``(verification dict,
     SimDay)``. Returns ``{"verification", "rounds", "backoff_mg_L", "backoff_max_mg_L",
-    "largest_backoff_mg_L", "energy_before_kWh_per_day", "seconds", "resolve_failed"}``;
-    the model is left at the last schedule that solved.
+    "largest_backoff_mg_L", "energy_before_kWh_per_day", "seconds", "resolve_failed", "relaxed"}``;
+    the model is left at the last schedule that solved. ``relax()``, when given, is called once
+    when a re-solve fails, and the round re-solved: the staged blowers' fixed machine set caps the
+    airflow of every period, and a back-off that needs more air than that set gives has no
+    solution until the machines are chosen again (:func:`airtaper.optimize.staging.redispatch`
+    does that on the final schedule).
     """
     m = study.m
     b = m.opt
@@ -116,6 +120,7 @@ def hold_do(study, verify, progress=None) -> dict:
     ver, day = verify()
     rounds = 0
     failed = False
+    relaxed = False
     while rounds < MAX_ROUNDS:
         ex = day.do_extremes
         highs = {z: g.sort_values("period")["do_max_mg_L"].to_numpy() for z, g in ex.groupby("zone", sort=False)}
@@ -137,6 +142,10 @@ def hold_do(study, verify, progress=None) -> dict:
             for k, v in vals.items():
                 prm[k] = v
         r = study.resolve()
+        if (r is None or not r.ok) and relax is not None and not relaxed:
+            relaxed = True
+            relax()
+            r = study.resolve()
         if r is None or not r.ok:  # back to the last schedule that solved, as it was
             for prm, vals in zip(params, previous):
                 for k, v in vals.items():
@@ -148,7 +157,7 @@ def hold_do(study, verify, progress=None) -> dict:
             failed = True
             break
         ver, day = verify()
-    return {"verification": ver, "rounds": rounds, "resolve_failed": failed,
+    return {"verification": ver, "rounds": rounds, "resolve_failed": failed, "relaxed": relaxed,
             "backoff_mg_L": {f"{z}/{p}": v for (z, p), v in values[0].items() if v > 0.0},
             "backoff_max_mg_L": {f"{z}/{p}": v for (z, p), v in values[1].items() if v > 0.0},
             "largest_backoff_mg_L": float(max([*values[0].values(), *values[1].values()], default=0.0)),

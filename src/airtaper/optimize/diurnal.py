@@ -39,7 +39,8 @@ from airtaper.optimize.baseline import Baseline, complying_baseline, run_baselin
 from airtaper.optimize.compliance import day_figures
 from airtaper.optimize.attempts import BASE_OPTIONS, LADDER, Rung, start_airflow, start_from_day
 from airtaper.optimize.marginal import marginal_costs
-from airtaper.optimize.problem import attach_problem, fix_slacks, max_power_line_kW, point_weights, settings_for
+from airtaper.optimize.problem import (attach_problem, fix_slacks, max_power_line_kW, point_weights, relax_staging,
+                                      settings_for)
 from airtaper.optimize.prescreen import outside_tested_range, prescreen
 from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.results import EffluentFigures, Limits, Smoothing, StudySummary, empty_tables, study_tables
@@ -397,7 +398,8 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
             return verify_day(layout, study.schedule_by_zone(), study.figures(), study.m)
 
         if status == "optimal" and opts.hold_do:
-            hold = hold_do(study, verify, prog)
+            staged = staging is not None and staging.dispatch is not None and not staging.findings
+            hold = hold_do(study, verify, prog, relax=(lambda: relax_staging(study.m.opt)) if staged else None)
             verification = hold["verification"]
             result = study.result
             if hold["resolve_failed"]:
@@ -412,7 +414,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     if staging is not None and staging.dispatch is not None and not staging.findings and result is not None \
             and status == "optimal":
         # the last re-solves moved the airflow after the machines were chosen: the cheapest machines for it
-        staging.dispatch, redispatched = redispatch(study.m, staging.dispatch)
+        staging.dispatch, redispatched = redispatch(study.m, staging.dispatch, layout)
     schedule, header, timeseries = study_tables(study)
     schedule, header = base.add_columns(schedule, header)
     figs = study.figures()

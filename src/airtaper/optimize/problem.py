@@ -386,6 +386,23 @@ def set_power_lines(b, lines_by_period: dict) -> None:
             b.line_b[p, k].fix(float(c))
 
 
+def relax_staging(b) -> None:
+    """The blower side as before any dispatch: the convex envelope of the least power of every set of machines
+    in service (and of no air), the whole set's airflow range and its highest pressure limit (the relaxed
+    solve's; :mod:`airtaper.optimize.staging` fixes a dispatch over it)."""
+    avail = [mm for mm in b.machines if not mm.out_of_service]
+    periods = list(b.parent_block().PERIODS)
+    for p in periods:
+        b.staging_min_Sm3_h[p].fix(min((mm.airflow_min_Sm3_h for mm in avail), default=0.0))
+        b.staging_max_Sm3_h[p].fix(sum(mm.airflow_max_Sm3_h for mm in avail))
+        b.staging_pressure_max_kPa[p].fix(max((mm.pressure_max_gauge_kPa for mm in avail), default=0.0))
+    set_power_lines(b, {p: envelope_lines(b.machines) for p in periods})
+    for p in periods:
+        b.power_kW[p].set_value(max_power_line_kW(b, p))
+    if b.component("peak_kW") is not None and not b.peak_kW.fixed:
+        b.peak_kW.set_value(max(b.power_kW[p].value for p in periods))
+
+
 def max_power_line_kW(b, p) -> float:
     """The largest power line of period ``p`` at the current airflow and header pressure, kW."""
     return max(0.0, max(float(pyo.value(b.power_line_kW[p, k])) for k in b.LINES))
@@ -414,4 +431,4 @@ def fix_slacks(b) -> None:
 
 
 __all__ = ["LIMIT_GROUPS", "LimitGroup", "ProblemSettings", "active_limit_groups", "attach_problem", "fix_slacks", "free_slacks",
-           "effluent_weights", "flow_weighted_mean", "period_mean", "point_weights", "settings_for", "steps_of_period"]
+           "effluent_weights", "flow_weighted_mean", "period_mean", "point_weights", "relax_staging", "settings_for", "steps_of_period"]

@@ -340,7 +340,7 @@ def run_staging(study, first_result) -> StagingOutcome:
     return out
 
 
-def redispatch(m, dp: Dispatch) -> tuple[Dispatch, bool]:
+def redispatch(m, dp: Dispatch, layout: Layout) -> tuple[Dispatch, bool]:
     """The least-cost machines for the final schedule's airflow and pressure.
 
     The last re-solves (the dispatch round's own, then the DO back-off's) move the airflow and
@@ -349,24 +349,22 @@ def redispatch(m, dp: Dispatch) -> tuple[Dispatch, bool]:
     range narrows with pressure) no longer cover its airflow. The dispatch is solved again on
     the final airflow and pressure, delivering them exactly (no excess air: the verified
     schedule is not changed); it replaces the old machines when they no longer cover the
-    airflow or cost more, and the model's power curve follows. Returns ``(dispatch, replaced)``.
+    airflow or cost more. The model's power curve is set to the chosen machines' (the DO
+    back-off may have relaxed it to the envelope). Returns ``(dispatch, replaced)``.
     """
     b = m.opt
-    plant = m.train_data.plant
     old = final_dispatch(m, dp)
     s = model_air_state(m)
     new = solve_dispatch(b.machines, s["demand_Sm3_h"], s["discharge_gauge_kPa"], s["kw_per_equivalent"],
-                         Bill.of(plant.layout, b.settings.objective), float(plant.period_h))
-    if new.findings or new.same_decisions(old):
-        return old, False
+                         Bill.of(layout, b.settings.objective), float(m.train_data.period_h))
     objective = b.settings.objective
     uncovered = bool(np.any(old.shortfall_Sm3_h > CHECK_RTOL * np.maximum(old.demand_Sm3_h, 1.0))) or bool(
         np.any(old.airflow_Sm3_h.sum(axis=0) > old.demand_Sm3_h * (1 + CHECK_RTOL) + 1e-6))
-    if not uncovered and round_cost(plant.layout, new, objective) >= round_cost(plant.layout, old, objective) \
-            * (1.0 - 1e-9):
-        return old, False
-    apply_dispatch(m, new)
-    return new, True
+    replace = not new.findings and not new.same_decisions(old) and (
+        uncovered or round_cost(layout, new, objective) < round_cost(layout, old, objective) * (1.0 - 1e-9))
+    chosen = new if replace else old
+    apply_dispatch(m, chosen)  # the model's power curve is the chosen machines' (a relaxed back-off left the envelope)
+    return chosen, replace
 
 
 def feasibility_check(m, dp: Dispatch) -> list[str]:
