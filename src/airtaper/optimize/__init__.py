@@ -3,7 +3,6 @@
 * :mod:`~airtaper.optimize.diurnal` - the whole study (:func:`run_optimization`)
 * :mod:`~airtaper.optimize.results` - the study's tables from the solved model and its typed summary
 * :mod:`~airtaper.optimize.problem` - decisions, limits and objective attached to the cyclic model
-* :mod:`~airtaper.optimize.airside` - zone and header pressures, blower power and cost
 * :mod:`~airtaper.optimize.baseline` - the plant under uniform DO control, and the complying baseline
 * :mod:`~airtaper.optimize.simday` - a day simulated by the independent simulator, reduced to what the study needs
 * :mod:`~airtaper.optimize.compliance` - effluent and DO figures of a day and the limits they break
@@ -17,6 +16,8 @@
 * :mod:`~airtaper.optimize.prescreen` - limits that surely cannot be met, found without an optimisation
 * :mod:`~airtaper.optimize.horizon` - a layout on another diurnal grid
 * :mod:`~airtaper.optimize.progress` - the progress display
+* :mod:`~airtaper.optimize.design` - diffuser-grid design over load days (``airtaper design``)
+* :mod:`~airtaper.optimize.compare` - layouts side by side (``airtaper compare``)
 
 docs/optimization.md gives the formulation, the start, the ladder and the verification rule.
 """

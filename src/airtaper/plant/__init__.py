@@ -1,8 +1,8 @@
 """airtaper.plant: the resolved plant, made once from a layout, that every later layer computes with.
 
-* ``resolve.py`` -- the one resolution step (:func:`resolve_plant`, :func:`load_plant`): every
+* :mod:`~airtaper.plant.resolve` - the one resolution step (:func:`resolve_plant`, :func:`load_plant`): every
   check that needs more than the parser, reported in the layout's error form;
-* ``resolved.py`` -- the frozen result (:class:`ResolvedPlant`): pressures, hydraulics, ASM1
+* :mod:`~airtaper.plant.resolved` - the frozen result (:class:`ResolvedPlant`): pressures, hydraulics, ASM1
   parameters and influent components per period, per zone its aeration (SOTE and headloss
   curves, saturation, airflow range, the kLa rule), the air side and its power chain.
 """

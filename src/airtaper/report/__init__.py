@@ -11,6 +11,8 @@
 * :mod:`~airtaper.report.columns` - units of the output columns, for headings
 * :mod:`~airtaper.report.text` - the caution, number formats, marginal costs in words
 * :mod:`~airtaper.report.calibration` - the outputs of ``airtaper calibrate``
+* :mod:`~airtaper.report.design` - the outputs of ``airtaper design`` and ``airtaper compare``
+* :mod:`~airtaper.report.sweep` - the report of a sweep or a year
 
 docs/outputs.md lists every file, column and summary key.
 """
