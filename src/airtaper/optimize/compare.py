@@ -19,7 +19,8 @@ import pandas as pd
 from airtaper.errors import EXIT_FAILURE, EXIT_INFEASIBLE, EXIT_OK, EXIT_UNVERIFIED
 from airtaper.layout.loaddays import day_layout, layout_days
 from airtaper.layout.types import Layout
-from airtaper.optimize.diurnal import StudyOptions, _jsonable, run_optimization
+from airtaper.optimize.diurnal import StudyOptions, run_optimization
+from airtaper.optimize.results import jsonable
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.progress import Progress, Silent
 
@@ -115,7 +116,7 @@ def run_compare(layouts: list[tuple[str, Layout]], n_periods: int | None = None,
     messages = [f"{r['layout']}: {r['status']}" for r in rows if r["status"] != "optimal"]
     summary = {"status": worst, "currency": currency, "reference": first["layout"], "layouts": rows,
                "messages": messages}
-    return CompareResult(pd.DataFrame(rows), pd.DataFrame(day_rows), _jsonable(summary), code, plans)
+    return CompareResult(pd.DataFrame(rows), pd.DataFrame(day_rows), jsonable(summary), code, plans)
 
 
 __all__ = ["CompareResult", "DIFFERENCE_COLUMNS", "run_compare"]

@@ -56,7 +56,8 @@ from airtaper.layout import defaults as D
 from airtaper.layout.loaddays import day_layout, layout_days, with_grid_counts
 from airtaper.layout.types import Layout
 from airtaper.optimize.attempts import BASE_OPTIONS, LADDER
-from airtaper.optimize.diurnal import DiurnalOptimisation, StudyOptions, _jsonable
+from airtaper.optimize.diurnal import DiurnalOptimisation, StudyOptions
+from airtaper.optimize.results import jsonable
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.verify import verify_day
@@ -500,7 +501,7 @@ def run_design(layout: Layout, options: DesignOptions | None = None, progress: P
                           "timings": {k: v for k, v in g.timings.items() if k != "iterations"}},
                "messages": messages}
     code = EXIT_OK if status == "optimal" else EXIT_UNVERIFIED
-    return DesignResult(pd.DataFrame(zones), pd.DataFrame(days), schedule, candidates, _jsonable(summary), code,
+    return DesignResult(pd.DataFrame(zones), pd.DataFrame(days), schedule, candidates, jsonable(summary), code,
                         designed, g)
 
 
@@ -514,7 +515,7 @@ def _no_design(g: GridDesign, base: dict, status: str, messages: list[str], t0: 
     code = EXIT_INFEASIBLE if status == "infeasible" else EXIT_FAILURE
     candidates = pd.DataFrame([{**{f"count_{z}": c.counts[z] for z in g.ids}, "annual_cost": c.annual_cost,
                                 "status": c.status, "seconds": c.seconds} for c in g.candidates])
-    return DesignResult(pd.DataFrame(), pd.DataFrame(), pd.DataFrame(), candidates, _jsonable(summary), code,
+    return DesignResult(pd.DataFrame(), pd.DataFrame(), pd.DataFrame(), candidates, jsonable(summary), code,
                         g.layout, g)
 
 
