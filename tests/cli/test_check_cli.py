@@ -164,7 +164,7 @@ def test_sigterm_is_reported_like_an_interrupt(monkeypatch, capsys):
     def terminated(*args, **kwargs):
         os.kill(os.getpid(), signal.SIGTERM)
         raise AssertionError("SIGTERM did not stop the command")
-    monkeypatch.setattr(check_cmd, "load_layout", terminated)
+    monkeypatch.setattr(check_cmd, "load_plant", terminated)  # the command's first step
     assert main(["check", str(DEMO)]) == 128 + signal.SIGTERM
     assert capsys.readouterr().err == "error: terminated\n"
     assert signal.getsignal(signal.SIGTERM) is signal.SIG_DFL  # restored after the command

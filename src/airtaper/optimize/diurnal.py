@@ -412,7 +412,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     if staging is not None and staging.dispatch is not None and not staging.findings and result is not None \
             and status == "optimal":
         # the last re-solves moved the airflow after the machines were chosen: the cheapest machines for it
-        staging.dispatch, redispatched = redispatch(study.m, staging.dispatch)
+        staging.dispatch, redispatched = redispatch(study.m, staging.dispatch, layout)
     schedule, header, timeseries = study_tables(study)
     schedule, header = base.add_columns(schedule, header)
     figs = study.figures()

@@ -340,7 +340,7 @@ def run_staging(study, first_result) -> StagingOutcome:
     return out
 
 
-def redispatch(m, dp: Dispatch) -> tuple[Dispatch, bool]:
+def redispatch(m, dp: Dispatch, layout: Layout) -> tuple[Dispatch, bool]:
     """The least-cost machines for the final schedule's airflow and pressure.
 
     The last re-solves (the dispatch round's own, then the DO back-off's) move the airflow and
@@ -349,19 +349,20 @@ def redispatch(m, dp: Dispatch) -> tuple[Dispatch, bool]:
     range narrows with pressure) no longer cover its airflow. The dispatch is solved again on
     the final airflow and pressure, delivering them exactly (no excess air: the verified
     schedule is not changed); it replaces the old machines when they no longer cover the
-    airflow or cost more, and the model's power curve follows. Returns ``(dispatch, replaced)``.
+    airflow or cost more, and the model's power curve follows. ``layout`` is the study's (its tariff bills
+    the two sets; the model keeps no layout). Returns ``(dispatch, replaced)``.
     """
     b = m.opt
     old = final_dispatch(m, dp)
     s = model_air_state(m)
     new = solve_dispatch(b.machines, s["demand_Sm3_h"], s["discharge_gauge_kPa"], s["kw_per_equivalent"],
-                         Bill.of(b.layout, b.settings.objective), float(b.air.period_h))
+                         Bill.of(layout, b.settings.objective), float(b.air.period_h))
     if new.findings or new.same_decisions(old):
         return old, False
     objective = b.settings.objective
     uncovered = bool(np.any(old.shortfall_Sm3_h > CHECK_RTOL * np.maximum(old.demand_Sm3_h, 1.0))) or bool(
         np.any(old.airflow_Sm3_h.sum(axis=0) > old.demand_Sm3_h * (1 + CHECK_RTOL) + 1e-6))
-    if not uncovered and round_cost(b.layout, new, objective) >= round_cost(b.layout, old, objective) * (1.0 - 1e-9):
+    if not uncovered and round_cost(layout, new, objective) >= round_cost(layout, old, objective) * (1.0 - 1e-9):
         return old, False
     apply_dispatch(m, new)
     return new, True
