@@ -356,7 +356,7 @@ def redispatch(m, dp: Dispatch, layout: Layout) -> tuple[Dispatch, bool]:
     old = final_dispatch(m, dp)
     s = model_air_state(m)
     new = solve_dispatch(b.machines, s["demand_Sm3_h"], s["discharge_gauge_kPa"], s["kw_per_equivalent"],
-                         Bill.of(layout, b.settings.objective), float(b.air.period_h))
+                         Bill.of(layout, b.settings.objective), float(layout.horizon.period_h))
     if new.findings or new.same_decisions(old):
         return old, False
     objective = b.settings.objective
