@@ -70,8 +70,8 @@ def test_outputs_have_the_promised_columns(solved):
     study = solved.study
     b = study.m.opt
     for p in study.m.PERIODS:
-        need = max(b.zone_pressure_kPa[z, p]() for z in b.ZONES) + study.layout.header.min_valve_loss_kPa
-        assert b.header_kPa[p].value == pytest.approx(need, abs=1e-4)
+        need = max(b.zone_pressure_gauge_kPa[z, p]() for z in b.ZONES) + study.layout.header.min_valve_loss_kPa
+        assert b.header_gauge_kPa[p].value == pytest.approx(need, abs=1e-4)
 
 
 def _energy_at(study, name, value, zone=None):

@@ -58,7 +58,7 @@ def test_staged_power_lines_match_the_dispatch_and_the_pinned_formula(attached, 
     sched = {z: [m.airflow_Sm3_h[z, p].value for p in m.PERIODS] for z in b.ZONES}
     figs = side.schedule_figures(sched)
     for p in m.PERIODS:
-        b.header_kPa[p].set_value(float(figs["header_kPa"][p - 1]))
+        b.header_gauge_kPa[p].set_value(float(figs["header_gauge_kPa"][p - 1]))
     state = model_air_state(m)
     q, d, w = state["demand_Sm3_h"], state["discharge_gauge_kPa"], state["kw_per_equivalent"]
     n = len(q)

@@ -34,8 +34,9 @@ def plant(airflows, do, sote_curve, headloss):
         csat = transfer.field_do_sat_mg_L(16.0, c_inf, 0.96, baro)
         otr.append(transfer.oxygen_transfer_rate_g_m3_h(kla, csat, c))
         drop = pressure.pipe_loss_kPa(2e-7, q)
-        required.append(pressure.zone_required_pressure_kPa(SUBMERGENCE_m, headloss.headloss_kPa(per_diffuser), drop))
-    header = pressure.header_pressure_kPa(required, 1.0, smoothing_kPa=0.02)
+        required.append(pressure.zone_required_pressure_gauge_kPa(SUBMERGENCE_m, headloss.headloss_kPa(per_diffuser),
+                                                                  drop))
+    header = pressure.header_pressure_gauge_kPa(required, 1.0, smoothing_kPa=0.02)
     total = sum(airflows)
     p2 = pressure.blower_discharge_pressure_kPa(header, baro, pressure.pipe_loss_kPa(1e-8, total))
     power = blower.blower_power_kW(total, 20.0, pressure.blower_inlet_pressure_kPa(baro, 0.3), p2, 0.72)

@@ -57,25 +57,25 @@ def test_headloss_bad_points(q, h, message):
 
 def test_zone_required_pressure():
     # Pressure balance: static head + diffuser headloss + drop-leg loss.
-    got = pr.zone_required_pressure_kPa(5.0, 3.2, pr.pipe_loss_kPa(1e-6, 1000.0))
+    got = pr.zone_required_pressure_gauge_kPa(5.0, 3.2, pr.pipe_loss_kPa(1e-6, 1000.0))
     assert got == pytest.approx(5.0 * 9.80665 + 3.2 + 1.0, rel=1e-12)
 
 
 def test_header_most_open_valve_rule():
     zones = [52.0, 55.5, 50.1]
-    header = pr.header_pressure_kPa(zones, min_valve_loss_kPa=1.5)
+    header = pr.header_pressure_gauge_kPa(zones, min_valve_loss_kPa=1.5)
     assert header == pytest.approx(57.0)
     losses = [pr.valve_loss_kPa(header, z) for z in zones]
     assert min(losses) == pytest.approx(1.5)  # the most demanding zone's valve is the most open
     # Per-period arrays
-    per_period = pr.header_pressure_kPa([np.array([50.0, 53.0]), np.array([52.0, 51.0])], 1.0)
+    per_period = pr.header_pressure_gauge_kPa([np.array([50.0, 53.0]), np.array([52.0, 51.0])], 1.0)
     np.testing.assert_allclose(per_period, [53.0, 54.0])
 
 
 def test_header_smooth_max_bounds():
     zones = [52.0, 55.5, 55.5, 50.1]
-    exact = pr.header_pressure_kPa(zones, 1.0)
-    smooth = pr.header_pressure_kPa(zones, 1.0, smoothing_kPa=0.01)
+    exact = pr.header_pressure_gauge_kPa(zones, 1.0)
+    smooth = pr.header_pressure_gauge_kPa(zones, 1.0, smoothing_kPa=0.01)
     assert exact <= smooth <= exact + (len(zones) - 1) * 0.01 / 2 + 1e-12
 
 
@@ -83,9 +83,9 @@ def test_header_exact_max_refuses_pyomo():
     m = pyo.ConcreteModel()
     m.a = pyo.Var(initialize=50.0)
     with pytest.raises(ValueError, match="smoothing_kPa"):
-        pr.header_pressure_kPa([m.a, 51.0], 1.0)
+        pr.header_pressure_gauge_kPa([m.a, 51.0], 1.0)
     with pytest.raises(ValueError):
-        pr.header_pressure_kPa([], 1.0)
+        pr.header_pressure_gauge_kPa([], 1.0)
 
 
 def test_absolute_pressures():
@@ -96,7 +96,7 @@ def test_absolute_pressures():
 @settings(max_examples=50, deadline=None)
 @given(st.lists(st.floats(10.0, 100.0), min_size=1, max_size=8), st.floats(0.0, 5.0))
 def test_header_covers_every_zone(zones, min_loss):
-    header = pr.header_pressure_kPa(zones, min_loss)
+    header = pr.header_pressure_gauge_kPa(zones, min_loss)
     assert all(pr.valve_loss_kPa(header, z) >= min_loss - 1e-12 for z in zones)
 
 
@@ -107,6 +107,7 @@ def test_pyomo_matches_numpy(rng, pyomo_check):
         pyomo_check(curve.headloss_kPa, rng.uniform(0.5, 6.0, (10, 1)))
     pyomo_check(pr.static_head_kPa, rng.uniform(2.0, 8.0, (10, 1)))
     pyomo_check(pr.pipe_loss_kPa, np.column_stack([rng.uniform(1e-7, 1e-5, 10), rng.uniform(100.0, 5000.0, 10)]))
-    pyomo_check(pr.zone_required_pressure_kPa, rng.uniform(1.0, 6.0, (10, 3)))
-    pyomo_check(lambda a, b, c: pr.header_pressure_kPa([a, b, c], 1.2, smoothing_kPa=0.05), rng.uniform(40, 60, (10, 3)))
+    pyomo_check(pr.zone_required_pressure_gauge_kPa, rng.uniform(1.0, 6.0, (10, 3)))
+    pyomo_check(lambda a, b, c: pr.header_pressure_gauge_kPa([a, b, c], 1.2, smoothing_kPa=0.05),
+                rng.uniform(40, 60, (10, 3)))
     pyomo_check(pr.blower_discharge_pressure_kPa, rng.uniform(1.0, 100.0, (10, 3)))

@@ -12,8 +12,8 @@ from airtaper.physics import pressure
 def test_header_is_the_most_demanding_zone_plus_the_valve_loss(three_tank_6):
     side = three_tank_6.air
     air = {"T1": np.array([900.0, 1500.0]), "T2": np.array([600.0, 400.0]), "T3": np.array([400.0, 1200.0])}
-    req = {z.id: side.zone_required_pressure_kPa(z.id, air[z.id]) for z in side.zones}
-    header = side.header_pressure_kPa(air)
+    req = {z.id: side.zone_required_pressure_gauge_kPa(z.id, air[z.id]) for z in side.zones}
+    header = side.header_pressure_gauge_kPa(air)
     expect = np.max(np.stack(list(req.values())), axis=0) + side.header.min_valve_loss_kPa
     np.testing.assert_allclose(header, expect)
     # every zone needs at least its static head: 4.2 m of water (1 m = 9.80665 kPa, ISO 80000-4 convention)
@@ -55,7 +55,7 @@ def test_a_zone_with_no_air_leaves_the_header_rule(demo):
     p1 = pressure.blower_inlet_pressure_kPa(p_baro, lay.inlet_air.filter_loss_kPa)
     for k in range(n):
         on = [d for d in side.zones if by_zone[d.id][k] > 0.0]
-        req = [float(pressure.zone_required_pressure_kPa(
+        req = [float(pressure.zone_required_pressure_gauge_kPa(
             d.submergence_m, d.headloss.headloss_kPa(by_zone[d.id][k] / d.diffusers),
             pressure.pipe_loss_kPa(d.zone.drop_leg_k_kPa_per_Sm3_h2, by_zone[d.id][k]))) for d in on]
         total = sum(by_zone[d.id][k] for d in on)
@@ -64,7 +64,7 @@ def test_a_zone_with_no_air_leaves_the_header_rule(demo):
         expect = blower_phys.blower_power_kW(total, lay.inlet_air.temperature_C[k], p1, p2,
                                              lay.header.aggregate_efficiency)
         assert ours[k] == pytest.approx(float(expect), rel=1e-9)
-    assert np.all(np.diff(side.header_pressure_kPa(by_zone)) != 0.0)
+    assert np.all(np.diff(side.header_pressure_gauge_kPa(by_zone)) != 0.0)
 
 
 def test_cost_adds_the_demand_charge_per_day(demo):

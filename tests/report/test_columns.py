@@ -19,6 +19,8 @@ def test_unit_read_from_the_list_or_the_suffix():
     assert all(unit_of(c) for c in ASM1_COMPONENTS)  # the ASM1 symbols carry their units in the list
 
 
+@pytest.mark.solver
+@pytest.mark.slow
 @pytest.mark.parametrize("name", ["schedule.csv", "header.csv", "timeseries.csv", "blowers.csv"])
 def test_every_column_of_the_demo_outputs_has_a_unit(demo_dir, name):
     path = demo_dir / name

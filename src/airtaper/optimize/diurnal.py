@@ -190,7 +190,7 @@ class DiurnalOptimisation:
                 if not on[p - 1]:
                     m.airflow_Sm3_h[z, p].fix(0.0)
         for p in m.PERIODS:
-            b.header_kPa[p].set_value(max(pyo.value(b.zone_pressure_kPa[z, p]) for z in b.ZONES)
+            b.header_gauge_kPa[p].set_value(max(pyo.value(b.zone_pressure_gauge_kPa[z, p]) for z in b.ZONES)
                                       + self.layout.header.min_valve_loss_kPa)
             if b.staged:
                 b.power_kW[p].set_value(max_power_line_kW(b, p))

@@ -35,7 +35,7 @@ def _typical(m, var) -> float:
     if comp is m.airflow_Sm3_h:
         z = var.index()[0]
         return max(m.aeration[z].airflow_max_Sm3_h, 1.0)
-    if comp is getattr(m.opt, "header_kPa", None):
+    if comp is getattr(m.opt, "header_gauge_kPa", None):
         return 10.0
     return 1.0
 

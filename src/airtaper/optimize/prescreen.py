@@ -100,7 +100,7 @@ def equipment_findings(layout: Layout) -> list[dict]:
         out.append(_finding("blower_min", None, _all_day(layout, turndown / hi_total - 1.0, "fraction"),
                             f"the smallest blower's minimum ({turndown:,.0f} Sm3/h) exceeds what the grids take at "
                             f"their maximum ({hi_total:,.0f} Sm3/h)"))
-    need = max(float(air.zone_required_pressure_kPa(z, max(ranges[z.id][0], 1e-9))) for z in zones)
+    need = max(float(air.zone_required_pressure_gauge_kPa(z, max(ranges[z.id][0], 1e-9))) for z in zones)
     need = float(air.discharge_gauge_kPa(need + layout.header.min_valve_loss_kPa, lo_total))
     if need > air.blower_pressure_max_kPa + 1e-9:
         short = need - air.blower_pressure_max_kPa

@@ -6,7 +6,7 @@ schedule (docs/optimization.md gives the full statement):
 
 Decisions
     ``airflow_Sm3_h[z, p]`` of every diffused zone (the model's Var, unfixed) and
-    ``header_kPa[p]``, the header gauge pressure. The diffuser count of every grid is
+    ``header_gauge_kPa[p]``, the header gauge pressure. The diffuser count of every grid is
     the model's mutable Param ``diffuser_count[z]``; the model's kLa expressions follow
     it (airflow per diffuser and diffuser density, :meth:`airtaper.plant.DiffusedZone.kla_per_d`),
     and so do the per-diffuser airflow limits and the diffuser headloss. The value of one more
@@ -207,13 +207,14 @@ def attach_problem(m, settings: ProblemSettings):
             v.setub(AIRFLOW_BOX_FACTOR * hi)
 
     b.total_airflow_Sm3_h = pyo.Expression(m.PERIODS, rule=lambda b, p: sum(m.airflow_Sm3_h[z, p] for z in grid))
-    b.zone_pressure_kPa = pyo.Expression(
+    b.zone_pressure_gauge_kPa = pyo.Expression(
         b.ZONES, m.PERIODS,
-        rule=lambda b, z, p: air.zone_required_pressure_kPa(z, m.airflow_Sm3_h[z, p], m.diffuser_count[z]))
-    b.header_kPa = pyo.Var(m.PERIODS, bounds=(0.0, None), initialize=lambda b, p: max(
-        pyo.value(b.zone_pressure_kPa[z, p]) for z in grid) + air.header.min_valve_loss_kPa)
+        rule=lambda b, z, p: air.zone_required_pressure_gauge_kPa(z, m.airflow_Sm3_h[z, p], m.diffuser_count[z]))
+    b.header_gauge_kPa = pyo.Var(m.PERIODS, bounds=(0.0, None), initialize=lambda b, p: max(
+        pyo.value(b.zone_pressure_gauge_kPa[z, p]) for z in grid) + air.header.min_valve_loss_kPa)
     b.valve_loss = pyo.Constraint(  # a swing zone switched off has its valve shut (swing_air 0)
-        b.ZONES, m.PERIODS, rule=lambda b, z, p: b.header_kPa[p] - air_on(z, p) * b.zone_pressure_kPa[z, p]
+        b.ZONES, m.PERIODS,
+        rule=lambda b, z, p: b.header_gauge_kPa[p] - air_on(z, p) * b.zone_pressure_gauge_kPa[z, p]
         >= air_on(z, p) * air.header.min_valve_loss_kPa)
     # --- blower power --------------------------------------------------------------------
     # Staged: the power of the period's running machines is the largest of the lines of their
@@ -241,13 +242,14 @@ def attach_problem(m, settings: ProblemSettings):
         b.power_kW = pyo.Var(m.PERIODS, bounds=(0.0, None))
         b.power_line_kW = pyo.Expression(m.PERIODS, b.LINES, rule=lambda b, p, k: blower_power_kW(
             b.line_a[p, k] + b.line_b[p, k] * b.total_airflow_Sm3_h[p], float(air.inlet_temperature_C[p - 1]),
-            air.inlet_pressure_kPa, air.discharge_pressure_kPa(b.header_kPa[p], b.total_airflow_Sm3_h[p]), 1.0))
+            air.inlet_pressure_kPa, air.discharge_pressure_kPa(b.header_gauge_kPa[p], b.total_airflow_Sm3_h[p]),
+            1.0))
         b.power_curve = pyo.Constraint(m.PERIODS, b.LINES, rule=lambda b, p, k: b.power_kW[p] >= b.power_line_kW[p, k])
         for p in P:
             b.power_kW[p].set_value(max_power_line_kW(b, p))
     else:
         b.power_kW = pyo.Expression(
-            m.PERIODS, rule=lambda b, p: air.power_kW(b.total_airflow_Sm3_h[p], b.header_kPa[p], p - 1))
+            m.PERIODS, rule=lambda b, p: air.power_kW(b.total_airflow_Sm3_h[p], b.header_gauge_kPa[p], p - 1))
     b.energy_kWh_per_day = pyo.Expression(expr=sum(b.power_kW[p] for p in P) * air.period_h)
 
     # --- limits, each with a slack fixed at zero ---------------------------------------
@@ -319,7 +321,7 @@ def attach_problem(m, settings: ProblemSettings):
         b.blower_min = pyo.Constraint(m.PERIODS, rule=lambda b, p: (
             b.total_airflow_Sm3_h[p] >= b.staging_min_Sm3_h[p] * (1.0 - s11[p])))
         b.pressure_max = pyo.Constraint(m.PERIODS, rule=lambda b, p: (
-            air.discharge_gauge_kPa(b.header_kPa[p], b.total_airflow_Sm3_h[p]) - s12[p]
+            air.discharge_gauge_kPa(b.header_gauge_kPa[p], b.total_airflow_Sm3_h[p]) - s12[p]
             <= b.staging_pressure_max_kPa[p]))
 
     # --- objective --------------------------------------------------------------------------

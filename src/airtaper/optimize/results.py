@@ -58,7 +58,7 @@ def study_tables(study) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
             })
     header = pd.DataFrame([{
         "period_start_h": (p - 1) * period_h, "period_end_h": p * period_h,
-        "pressure_gauge_kPa": float(b.header_kPa[p].value),
+        "pressure_gauge_kPa": float(b.header_gauge_kPa[p].value),
         "airflow_Sm3_h": float(pyo.value(b.total_airflow_Sm3_h[p])), "power_kW": float(pyo.value(b.power_kW[p])),
     } for p in m.PERIODS], columns=list(HEADER_COLUMNS))
     rows = []

@@ -94,7 +94,7 @@ def model_air_state(m) -> dict:
     air = m.train_data.plant.air
     P = list(m.PERIODS)
     q = np.array([float(pyo.value(b.total_airflow_Sm3_h[p])) for p in P])
-    header = np.array([float(b.header_kPa[p].value) for p in P])
+    header = np.array([float(b.header_gauge_kPa[p].value) for p in P])
     d = np.asarray(air.discharge_gauge_kPa(header, q), dtype=float)
     room = np.zeros(len(P))
     for z in b.ZONES:
@@ -121,7 +121,7 @@ def steps_dispatch(layout: Layout, airflow_by_zone: dict, period_of_step, object
         return None
     n = layout.horizon.n_periods
     flows = {z.id: np.asarray(airflow_by_zone[z.id], dtype=float) for z in air.zones}
-    header = air.header_pressure_kPa(flows)
+    header = air.header_pressure_gauge_kPa(flows)
     total = np.sum([flows[z] for z in flows], axis=0)
     d_step = np.asarray(air.discharge_gauge_kPa(header, total), dtype=float)
     per = np.asarray(period_of_step, dtype=int)

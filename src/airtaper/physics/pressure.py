@@ -4,12 +4,13 @@ Conventions (the project's, docs/glossary.md): a pressure named ``*_kPa`` is
 absolute and one named ``*_gauge_kPa`` is above the atmosphere at the site. Heads,
 headlosses and valve losses (``static_head_kPa``, ``pipe_loss_kPa``,
 ``valve_loss_kPa``, ``headloss_kPa``) are pressure differences, so neither. The
-zone and header pressures (:func:`zone_required_pressure_kPa`,
-:func:`header_pressure_kPa`) are sums of such differences above the water surface:
-gauge pressures, as their docstrings say; outputs name them ``*_gauge_kPa``
-(``header.csv``: ``pressure_gauge_kPa``). The blower works on absolute pressures
-(:func:`blower_discharge_pressure_kPa`, :func:`blower_inlet_pressure_kPa`). Water
-column is the conventional one (1 m = 9.80665 kPa, :mod:`airtaper.units`).
+zone and header pressures (:func:`zone_required_pressure_gauge_kPa`,
+:func:`header_pressure_gauge_kPa`) are sums of such differences above the water
+surface: gauge pressures, and named so here, in the optimisation model
+(``opt.header_gauge_kPa``) and in the outputs (``header.csv``: ``pressure_gauge_kPa``).
+The blower works on absolute pressures (:func:`blower_discharge_pressure_kPa`,
+:func:`blower_inlet_pressure_kPa`). Water column is the conventional one
+(1 m = 9.80665 kPa, :mod:`airtaper.units`).
 """
 
 from __future__ import annotations
@@ -203,7 +204,7 @@ def fit_headloss_curve(
     )
 
 
-def zone_required_pressure_kPa(submergence_m, diffuser_headloss_kPa, drop_leg_loss_kPa=0.0):
+def zone_required_pressure_gauge_kPa(submergence_m, diffuser_headloss_kPa, drop_leg_loss_kPa=0.0):
     """Gauge pressure the header must deliver at a zone's control valve outlet, kPa.
 
     Parameters
@@ -227,21 +228,21 @@ def zone_required_pressure_kPa(submergence_m, diffuser_headloss_kPa, drop_leg_lo
     return static_head_kPa(submergence_m) + diffuser_headloss_kPa + drop_leg_loss_kPa
 
 
-def valve_loss_kPa(header_pressure_kPa, zone_required_pressure_kPa):
+def valve_loss_kPa(header_pressure_gauge_kPa, zone_required_pressure_gauge_kPa):
     """Pressure a zone's control valve must throttle, kPa: header minus zone requirement.
 
     A feasible schedule keeps this at or above the minimum valve loss for
     every zone (the model states ``valve_loss_kPa(...) >= min_valve_loss_kPa``).
     """
-    return header_pressure_kPa - zone_required_pressure_kPa
+    return header_pressure_gauge_kPa - zone_required_pressure_gauge_kPa
 
 
-def header_pressure_kPa(zone_required_pressures_kPa, min_valve_loss_kPa, smoothing_kPa=0.0):
+def header_pressure_gauge_kPa(zone_required_pressures_gauge_kPa, min_valve_loss_kPa, smoothing_kPa=0.0):
     """Header gauge pressure under the most-open-valve rule, kPa.
 
     Parameters
     ----------
-    zone_required_pressures_kPa : sequence
+    zone_required_pressures_gauge_kPa : sequence
         One entry per zone, each a float, an array (e.g. over periods, all the
         same shape) or a Pyomo expression.
     min_valve_loss_kPa : float
@@ -265,15 +266,15 @@ def header_pressure_kPa(zone_required_pressures_kPa, min_valve_loss_kPa, smoothi
     ----------
     Most-open-valve pressure control of aeration blowers (common practice (no source)).
     """
-    zones = list(zone_required_pressures_kPa)
+    zones = list(zone_required_pressures_gauge_kPa)
     if not zones:
-        raise ValueError("header_pressure_kPa: no zones given")
+        raise ValueError("header_pressure_gauge_kPa: no zones given")
     if smoothing_kPa < 0:
-        raise ValueError(f"header_pressure_kPa: smoothing_kPa must be >= 0, got {smoothing_kPa}")
+        raise ValueError(f"header_pressure_gauge_kPa: smoothing_kPa must be >= 0, got {smoothing_kPa}")
     if smoothing_kPa == 0:
         if any_pyomo(*zones):
             raise ValueError(
-                "header_pressure_kPa: the exact maximum is not smooth; pass smoothing_kPa > 0 for Pyomo "
+                "header_pressure_gauge_kPa: the exact maximum is not smooth; pass smoothing_kPa > 0 for Pyomo "
                 "expressions, or constrain header >= zone + min valve loss for each zone (valve_loss_kPa)"
             )
         stacked = np.stack(np.broadcast_arrays(*[np.asarray(z, dtype=float) for z in zones]))
@@ -284,20 +285,20 @@ def header_pressure_kPa(zone_required_pressures_kPa, min_valve_loss_kPa, smoothi
     return top + min_valve_loss_kPa
 
 
-def blower_discharge_pressure_kPa(header_pressure_kPa, barometric_pressure_kPa, discharge_loss_kPa=0.0):
+def blower_discharge_pressure_kPa(header_pressure_gauge_kPa, barometric_pressure_kPa, discharge_loss_kPa=0.0):
     """Absolute blower discharge pressure, kPa: ``p2 = p_baro + p_header + dp_discharge``.
 
     Parameters
     ----------
-    header_pressure_kPa : float, ndarray or Pyomo expression
-        Header gauge pressure (:func:`header_pressure_kPa`), kPa.
+    header_pressure_gauge_kPa : float, ndarray or Pyomo expression
+        Header gauge pressure (:func:`header_pressure_gauge_kPa`), kPa.
     barometric_pressure_kPa : float, ndarray or Pyomo expression
         Site barometric pressure, kPa absolute.
     discharge_loss_kPa : float, ndarray or Pyomo expression
         Loss between the blower outlet and the header (check valve, silencer,
         main), kPa (:func:`pipe_loss_kPa`).
     """
-    return barometric_pressure_kPa + header_pressure_kPa + discharge_loss_kPa
+    return barometric_pressure_kPa + header_pressure_gauge_kPa + discharge_loss_kPa
 
 
 def blower_inlet_pressure_kPa(barometric_pressure_kPa, inlet_loss_kPa=0.0):

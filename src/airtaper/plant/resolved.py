@@ -40,10 +40,10 @@ from airtaper.physics.blower import blower_power_kW, energy_kWh
 from airtaper.physics.pressure import (
     HeadlossCurve,
     blower_discharge_pressure_kPa,
-    header_pressure_kPa,
+    header_pressure_gauge_kPa,
     pipe_loss_kPa,
     static_head_kPa,
-    zone_required_pressure_kPa,
+    zone_required_pressure_gauge_kPa,
 )
 from airtaper.physics.saturation import do_sat_mg_L as surface_do_sat_mg_L
 from airtaper.physics.sote import SoteCurve
@@ -144,7 +144,7 @@ class DiffusedZone:
     def required_pressure_kPa(self, airflow_Sm3_h, diffusers=None):
         """Gauge pressure the zone needs at its valve outlet, kPa: static head, diffuser and drop-leg loss."""
         n = self.diffusers if diffusers is None else diffusers
-        return zone_required_pressure_kPa(self.submergence_m, self.headloss.headloss_kPa(airflow_Sm3_h / n),
+        return zone_required_pressure_gauge_kPa(self.submergence_m, self.headloss.headloss_kPa(airflow_Sm3_h / n),
                                           pipe_loss_kPa(self.zone.drop_leg_k_kPa_per_Sm3_h2, airflow_Sm3_h))
 
     @property
@@ -249,7 +249,7 @@ class AirSide:
         """Fitted headloss curve per diffuser type in use."""
         return {d.zone.grid.type_id: d.headloss for d in self.zones}
 
-    def zone_required_pressure_kPa(self, zone, airflow_Sm3_h, diffusers=None):
+    def zone_required_pressure_gauge_kPa(self, zone, airflow_Sm3_h, diffusers=None):
         """Gauge pressure a zone needs at its valve outlet, kPa (numbers, arrays or Pyomo)."""
         return self.zone(zone).required_pressure_kPa(airflow_Sm3_h, diffusers)
 
@@ -273,7 +273,7 @@ class AirSide:
         return float(max(x.pressure_max_gauge_kPa for x in self.blowers)) if self.blowers else float("inf")
 
     # --- header and power (numbers) ----------------------------------------------------------
-    def header_pressure_kPa(self, airflow_by_zone: dict) -> np.ndarray:
+    def header_pressure_gauge_kPa(self, airflow_by_zone: dict) -> np.ndarray:
         """Header gauge pressure by the most-open-valve rule (numbers), kPa.
 
         ``airflow_by_zone``: zone id -> airflow array (same shape for every diffused zone).
@@ -285,24 +285,24 @@ class AirSide:
             lo = d.diffuser_airflow_min_Sm3_h * d.diffusers
             p = np.asarray(d.required_pressure_kPa(np.where(q > 0.0, q, lo)), dtype=float)
             req.append(np.where(q > 0.0, p, 0.0))
-        return header_pressure_kPa(req, self.header.min_valve_loss_kPa)
+        return header_pressure_gauge_kPa(req, self.header.min_valve_loss_kPa)
 
-    def discharge_pressure_kPa(self, header_kPa, total_airflow_Sm3_h):
+    def discharge_pressure_kPa(self, header_gauge_kPa, total_airflow_Sm3_h):
         """Blower discharge pressure, kPa absolute: site + header + main-header loss."""
         loss = pipe_loss_kPa(self.header.loss_k_kPa_per_Sm3_h2, total_airflow_Sm3_h)
-        return blower_discharge_pressure_kPa(header_kPa, self.site_pressure_kPa, loss)
+        return blower_discharge_pressure_kPa(header_gauge_kPa, self.site_pressure_kPa, loss)
 
-    def discharge_gauge_kPa(self, header_kPa, total_airflow_Sm3_h):
+    def discharge_gauge_kPa(self, header_gauge_kPa, total_airflow_Sm3_h):
         """Blower discharge gauge pressure, kPa: header + main-header loss."""
-        return header_kPa + pipe_loss_kPa(self.header.loss_k_kPa_per_Sm3_h2, total_airflow_Sm3_h)
+        return header_gauge_kPa + pipe_loss_kPa(self.header.loss_k_kPa_per_Sm3_h2, total_airflow_Sm3_h)
 
-    def power_kW(self, total_airflow_Sm3_h, header_kPa, period):
+    def power_kW(self, total_airflow_Sm3_h, header_gauge_kPa, period):
         """Wire-to-air blower power at the inlet temperature of a period (0-based; int or int array), kW."""
         t_in = self.inlet_temperature_C[period]
         if np.ndim(t_in) == 0:
             t_in = float(t_in)
         return blower_power_kW(total_airflow_Sm3_h, t_in, self.inlet_pressure_kPa,
-                               self.discharge_pressure_kPa(header_kPa, total_airflow_Sm3_h),
+                               self.discharge_pressure_kPa(header_gauge_kPa, total_airflow_Sm3_h),
                                self.header.aggregate_efficiency)
 
     def step_power_kW(self, airflow_by_zone: dict, period_of_step) -> np.ndarray:
@@ -314,7 +314,7 @@ class AirSide:
         period = np.asarray(period_of_step, dtype=int)
         if not self.zones:
             return np.zeros(period.shape)
-        header = self.header_pressure_kPa(airflow_by_zone)
+        header = self.header_pressure_gauge_kPa(airflow_by_zone)
         total = np.sum([np.asarray(airflow_by_zone[d.id], dtype=float) for d in self.zones], axis=0)
         power = np.asarray(self.power_kW(total, header, period), dtype=float)
         return np.where(total > 0.0, power, 0.0)
@@ -361,10 +361,10 @@ class AirSide:
 
         ``airflow_by_zone``: zone id -> per-period airflow (n_periods,), Sm3/h.
         """
-        header = self.header_pressure_kPa(airflow_by_zone)
+        header = self.header_pressure_gauge_kPa(airflow_by_zone)
         total = np.sum([np.asarray(airflow_by_zone[d.id], dtype=float) for d in self.zones], axis=0)
         power = np.asarray(self.power_kW(total, header, np.arange(len(total))), dtype=float)
-        return dict(header_kPa=header, total_airflow_Sm3_h=total, power_kW=power,
+        return dict(header_gauge_kPa=header, total_airflow_Sm3_h=total, power_kW=power,
                     energy_kWh_per_day=self.energy_kWh(power), cost_per_day=self.cost(power))
 
 
