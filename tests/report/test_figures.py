@@ -137,7 +137,7 @@ def test_do_panels_show_each_zones_minimum_and_flag_dips(folder):
 def test_figures_need_only_the_files_they_use(folder):
     f = read_study_folder(folder.path)
     f.timeseries = None
-    f.layout = None
+    f.plant = None  # and with it the layout
     f.header = None
     if f.blowers is not None:  # a staged run writes blowers.csv: the run chart needs it and nothing else
         assert F.blower_figure(f) is not None

@@ -71,8 +71,13 @@ def optimize_scenario(task: dict) -> dict:
     out of the worker's log and its error lines go into the row's message.
     """
     from airtaper.cli.main import main
-    from airtaper.sweep.journal import summary_row, write_row
+    from airtaper.sweep.journal import finished_row, summary_row, write_row
 
+    done = finished_row(Path(task["root"]), task["id"], task["fingerprint"])
+    if done is not None:
+        # Dask runs a task again when the worker holding its result is lost: the scenario has finished and its
+        # row and folder stand (running it again would rewrite the row and remove the folder meanwhile).
+        return done
     t0 = time.perf_counter()
     out = Path(task["out"])
     if out.exists():  # an earlier run of a scenario that did not finish (no row): ours, start it again

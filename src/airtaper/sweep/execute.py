@@ -128,6 +128,10 @@ class Execution:
                     row = fut.result()
                 except Exception as exc:  # a worker lost again and again, or a failure outside the command
                     row = lost_row(task, f"{type(exc).__name__}: {exc}")
+                # the row is on disk: let the cluster forget the result, so a worker lost later does not make
+                # the scheduler compute this scenario again
+                futures.pop(fut.key, None)
+                fut.release()
                 self.progress.update(row)
                 yield row
             try:
