@@ -21,6 +21,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from airtaper.optimize.compliance import clock
 from airtaper.report.atomic import write_csv_atomic, write_json_atomic
 from airtaper.report.build import REPORT_NAMES, write_report
 from airtaper.report.text import CAUTION
@@ -57,6 +58,14 @@ def _do_margin_line(optimiser, resimulated) -> str:
     return f"min DO margin     {fmt_margin(resimulated)} mg/L re-simulated (optimiser {fmt_margin(optimiser)} mg/L)"
 
 
+def _peak_when(dp: dict) -> str:
+    """When the day's peak falls: the period's start as a clock time (its number when the start is missing)."""
+    start = dp.get("peak_period_start_h")
+    if isinstance(start, (int, float)):
+        return f"in the period from {clock(start)}"
+    return f"in period {dp.get('peak_period')}"
+
+
 def _dispatch_lines(dp: dict | None, cur: str) -> list[str]:
     """The blower dispatch in a few console lines."""
     if not dp:
@@ -68,7 +77,7 @@ def _dispatch_lines(dp: dict | None, cur: str) -> list[str]:
             if not v.get("running_h")]
     lines = [f"blowers           {', '.join(used) or 'none running'}"
              + (f"; idle {', '.join(idle)}" if idle else "")
-             + f"; peak {_fmt(dp.get('peak_kW'), 1)} kW in period {dp.get('peak_period')}"]
+             + f"; peak {_fmt(dp.get('peak_kW'), 1)} kW {_peak_when(dp)}"]
     if dp.get("cost_per_day") is not None:
         lines.append(f"bill              energy {_fmt(dp.get('energy_cost'), 2)} + demand {_fmt(dp.get('demand_charge'), 2)}"
                      f" + starts {_fmt(dp.get('start_costs'), 2)} = {_fmt(dp.get('cost_per_day'), 2)} {cur}/d")
