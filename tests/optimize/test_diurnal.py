@@ -112,7 +112,7 @@ def test_duals_agree_with_finite_differences_of_resolves(three_tank_diurnal):
         study.set_limit(name, value, zone)
         r = study.resolve()
         assert r.ok
-        dual = raw_derivatives(study.m, r)[key]
+        dual = raw_derivatives(study.problem, r)[key]
         up = _energy_at(study, name, value + d, zone)
         down = _energy_at(study, name, value - d, zone)
         fd = (up - down) / (2 * d)

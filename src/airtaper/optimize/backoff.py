@@ -124,7 +124,8 @@ def hold_do(study, verify, progress=None, relax=None) -> dict:
     while rounds < MAX_ROUNDS:
         ex = day.do_extremes
         highs = {z: g.sort_values("period")["do_max_mg_L"].to_numpy() for z, g in ex.groupby("zone", sort=False)}
-        found = shortfalls(study.layout, day.do_min_by_period(), values[0], periods, highs, values[1], b.swing_states)
+        found = shortfalls(study.layout, day.do_min_by_period(), values[0], periods, highs, values[1],
+                           study.problem.swing_states)
         if not any(found):
             break
         rounds += 1

@@ -190,7 +190,7 @@ class GridDesign:
         M.capital = pyo.Expression(expr=sum(cap.cost_per_diffuser * M.count[z] + cap.cost_per_zone for z in self.ids))
         M.energy_cost_per_year = pyo.Expression(expr=sum(d.days_per_year * st.m.opt.goal
                                                          for d, st in zip(self.days, self.studies)))
-        self.reference = sum(d.days_per_year * st.m.opt.reference for d, st in zip(self.days, self.studies)) \
+        self.reference = sum(d.days_per_year * st.problem.reference for d, st in zip(self.days, self.studies)) \
             + self.crf * grid_capital(self.layout, self.current)
         M.annual_cost = pyo.Expression(expr=self.crf * M.capital + M.energy_cost_per_year)
         M.objective = pyo.Objective(expr=M.annual_cost / self.reference + sum(
@@ -350,7 +350,7 @@ class GridDesign:
             n = counts[z.id]
             for day, st in zip(self.days, self.studies):
                 q = st.schedule_by_zone()[z.id]
-                mix = st.m.opt.settings.mixing_airflow_min_Sm3_h_m2[z.id] * z.area_m2
+                mix = st.problem.settings.mixing_airflow_min_Sm3_h_m2[z.id] * z.area_m2
                 tol = BINDING_TOLERANCE
                 if np.any(q >= n * dtype.airflow_max_Sm3_h * (1 - tol)):
                     reasons.append(f"{day.id}: transfer (air per diffuser at its maximum)")

@@ -17,8 +17,10 @@
 6. the tables and the summary (:mod:`airtaper.optimize.results`) for
    :func:`airtaper.report.study_files.write_study_outputs`.
 
-:class:`DiurnalOptimisation` keeps the built model so that limits can be moved and
-the problem re-solved warm (tests, sensitivity studies).
+:class:`DiurnalOptimisation` keeps the built model and its
+:class:`~airtaper.optimize.problem.Problem` (what the optimiser keeps beside the Pyomo
+block: settings, blowers, swing states) so that limits can be moved and the problem
+re-solved warm (tests, sensitivity studies).
 """
 
 from __future__ import annotations
@@ -39,8 +41,8 @@ from airtaper.optimize.baseline import Baseline, complying_baseline, run_baselin
 from airtaper.optimize.compliance import day_figures
 from airtaper.optimize.attempts import BASE_OPTIONS, LADDER, Rung, start_airflow, start_from_day
 from airtaper.optimize.marginal import marginal_costs
-from airtaper.optimize.problem import (attach_problem, fix_slacks, max_power_line_kW, point_weights, relax_staging,
-                                      settings_for)
+from airtaper.optimize.problem import (Problem, attach_problem, fix_slacks, max_power_line_kW, point_weights,
+                                      relax_staging, settings_for)
 from airtaper.optimize.prescreen import outside_tested_range, prescreen
 from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.results import EffluentFigures, Limits, Smoothing, StudySummary, empty_tables, study_tables
@@ -117,6 +119,7 @@ class DiurnalOptimisation:
         self.result = None
         self.baseline = baseline
         self.m = None
+        self.problem: Problem | None = None  # set by build()
 
     # --- setup ---------------------------------------------------------------------------
     def run_baseline(self) -> Baseline:
@@ -153,13 +156,14 @@ class DiurnalOptimisation:
                                 smoothing_weight=self.options.smoothing_weight,
                                 mixing_airflow_min_Sm3_h_m2=self.options.mixing_airflow_min_Sm3_h_m2,
                                 staging=self.options.staging)
-        attach_problem(m, settings)
+        problem = attach_problem(m, settings)
         self.timings["initialise_s"] = time.perf_counter() - t
         self.progress.phase("converting the model and building derivatives")
         t = time.perf_counter()
         self.scaling = apply_scaling(m)
         self.timings["conversion_derivatives_s"] = time.perf_counter() - t
         self.m = m
+        self.problem = problem
 
     # --- starts --------------------------------------------------------------------------
     def _restart(self, rung: Rung) -> None:
@@ -185,14 +189,14 @@ class DiurnalOptimisation:
         for z in b.ZONES:
             for p in m.PERIODS:
                 m.airflow_Sm3_h[z, p].unfix()
-        for z, on in (b.swing_states or {}).items():  # a swing zone switched off gets no air
+        for z, on in (self.problem.swing_states or {}).items():  # a swing zone switched off gets no air
             for p in m.PERIODS:
                 if not on[p - 1]:
                     m.airflow_Sm3_h[z, p].fix(0.0)
         for p in m.PERIODS:
             b.header_gauge_kPa[p].set_value(max(pyo.value(b.zone_pressure_gauge_kPa[z, p]) for z in b.ZONES)
                                       + self.layout.header.min_valve_loss_kPa)
-            if b.staged:
+            if self.problem.staged:
                 b.power_kW[p].set_value(max_power_line_kW(b, p))
         if b.component("peak_kW") is not None and not b.peak_kW.fixed:
             b.peak_kW.set_value(max(pyo.value(b.power_kW[p]) for p in m.PERIODS))
@@ -298,7 +302,7 @@ class DiurnalOptimisation:
         steps = list(m.STEPS)
         nh4 = [pyo.value(m.effluent_nh4_mg_L[t]) for t in steps]
         tn = [pyo.value(m.effluent_tn_mg_L[t]) for t in steps]
-        q = [b.effluent_weights[m.period_of_step[t]] for t in steps]
+        q = [self.problem.effluent_weights[m.period_of_step[t]] for t in steps]
         per = [m.period_of_step[t] - 1 for t in steps]
         do = {z: [pyo.value(m.conc[t, z, "SO"]) for t in steps] for z in m.ZONES}
         w = point_weights(m)
@@ -363,8 +367,9 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     infeasibility = []
     status = "optimal"
     staging = None
-    objective = study.m.opt.settings.objective
-    if result is not None and study.m.opt.staged:
+    problem = study.problem
+    objective = problem.objective
+    if result is not None and problem.staged:
         staging = run_staging(study, result)
         result = staging.result
         if staging.findings:
@@ -399,7 +404,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
 
         if status == "optimal" and opts.hold_do:
             staged = staging is not None and staging.dispatch is not None and not staging.findings
-            hold = hold_do(study, verify, prog, relax=(lambda: relax_staging(study.m.opt)) if staged else None)
+            hold = hold_do(study, verify, prog, relax=(lambda: relax_staging(problem)) if staged else None)
             verification = hold["verification"]
             result = study.result
             if hold["resolve_failed"]:
@@ -414,7 +419,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     if staging is not None and staging.dispatch is not None and not staging.findings and result is not None \
             and status == "optimal":
         # the last re-solves moved the airflow after the machines were chosen: the cheapest machines for it
-        staging.dispatch, redispatched = redispatch(study.m, staging.dispatch, layout)
+        staging.dispatch, redispatched = redispatch(problem, staging.dispatch, layout)
     schedule, header, timeseries = study_tables(study)
     schedule, header = base.add_columns(schedule, header)
     figs = study.figures()
@@ -422,7 +427,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     power = study.power_by_period()
     cost = study.m.train_data.plant.air.cost(power)
     if staging is not None and staging.dispatch is not None:
-        dp = staging.dispatch if staging.findings else final_dispatch(study.m, staging.dispatch)
+        dp = staging.dispatch if staging.findings else final_dispatch(problem, staging.dispatch)
         blowers_table = dispatch_table(layout, dp)
         dispatch = dispatch_summary(layout, dp)
         energy = dispatch["energy_kWh_per_day"]
@@ -435,7 +440,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
                                        "switches": int(np.sum(on != np.roll(on, 1)))}
                                    for z, on in (staging.swing_states or {}).items()}
         if status == "optimal" and result is not None:
-            breaches = feasibility_check(study.m, dp)
+            breaches = feasibility_check(problem, dp)
             dispatch["feasibility_breaches"] = breaches
             if breaches:
                 status = "unverified"
@@ -449,7 +454,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
             dispatch["baseline"] = base_dispatch
     marginal = []
     if opts.marginal and status == "optimal" and result is not None and result.ok:
-        marginal = marginal_costs(study.m, result, energy_kWh_per_day=energy, cost_per_day=cost)
+        marginal = marginal_costs(problem, result, energy_kWh_per_day=energy, cost_per_day=cost)
     for w in base.violations:
         messages.append(f"baseline: {w}")
     for short in base.day.setpoint_shortfalls:
@@ -485,7 +490,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         status=status,
         plant=layout.plant.name,
         layout=layout.path,
-        objective=study.m.opt.settings.objective,
+        objective=objective,
         currency=layout.tariff.currency if layout.tariff else "",
         energy_kWh_per_day=energy,
         cost_per_day=cost,
@@ -507,7 +512,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         infeasibility=infeasibility,
         prescreen=screen,
         outside_tested_range=untested,
-        smoothing=Smoothing(study.m.opt.settings.smoothing_weight, float(pyo.value(study.m.opt.smoothing))),
+        smoothing=Smoothing(problem.settings.smoothing_weight, float(pyo.value(study.m.opt.smoothing))),
         solver={
             "status": None if result is None else result.status.value,
             "message": None if result is None else result.message,

@@ -40,7 +40,7 @@ def study_tables(study) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
     sched = []
     w = point_weights(m)
     hours = point_hours(m)
-    states = b.swing_states or {}
+    states = study.problem.swing_states or {}
     for p in m.PERIODS:
         steps = [t for t in m.STEPS if m.period_of_step[t] == p]
         wp = np.array([w[t] for t in steps])
