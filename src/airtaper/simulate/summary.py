@@ -22,7 +22,7 @@ import warnings
 
 
 from airtaper.plant import resolve_plant
-from airtaper.units import HOURS_PER_DAY
+from airtaper.units import HOURS_PER_DAY, clock
 
 #: A DO-controlled zone counts as not holding its setpoint when its DO falls more than
 #: this below it. Ideal control follows the setpoint within a 1-minute time constant,
@@ -30,11 +30,6 @@ from airtaper.units import HOURS_PER_DAY
 SETPOINT_TOLERANCE_mg_L = 0.05
 
 _EFFLUENT_KEYS = ("SNH", "SNO", "tkn_mg_L", "tn_mg_L", "cod_mg_L", "tss_mg_L", "SS", "SO")
-
-
-def _clock(hours: float) -> str:
-    total = int(round(hours * 60.0)) % 1440 if hours < HOURS_PER_DAY else 1440
-    return f"{total // 60:02d}:{total % 60:02d}"
 
 
 def period_runs(periods, n_periods: int | None = None) -> list[list[int]]:
@@ -58,7 +53,7 @@ def period_runs(periods, n_periods: int | None = None) -> list[list[int]]:
 
 def span_text(runs_with_sizes, period_h: float) -> str:
     """``"0.41 mg/L 09:00-14:00, 0.2 mg/L 22:00-01:00"`` from ``[(run of 0-based periods, size text)]``."""
-    return ", ".join(f"{size} {_clock(r[0] * period_h)}-{_clock((r[-1] + 1) * period_h)}"
+    return ", ".join(f"{size} {clock(r[0] * period_h)}-{clock((r[-1] + 1) * period_h)}"
                      for r, size in runs_with_sizes)
 
 
@@ -83,7 +78,7 @@ def setpoint_shortfalls(layout, extremes, setpoints_mg_L: dict) -> list:
             out.append({"zone": zid, "setpoint_mg_L": float(sp), "start_h": start, "end_h": end,
                         "do_min_mg_L": lowest,
                         "message": f"zone {zid} cannot hold its DO setpoint of {sp:g} mg/L "
-                                   f"{_clock(start)}-{_clock(end)}: at full air its DO falls to {lowest:.2f} mg/L"})
+                                   f"{clock(start)}-{clock(end)}: at full air its DO falls to {lowest:.2f} mg/L"})
     return out
 
 
