@@ -7,6 +7,7 @@ monotonicity any correct optimum must show (a tighter limit never costs less).
 
 from __future__ import annotations
 
+import json
 from dataclasses import replace
 
 import numpy as np
@@ -17,7 +18,8 @@ from airtaper.optimize.compliance import violations
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.marginal import raw_derivatives
 from airtaper.optimize.diurnal import StudyOptions, run_optimization
-from airtaper.optimize.results import SUMMARY_KEYS
+from airtaper.optimize.results import (SUMMARY_KEYS, BaselineSummary, DispatchSummary, SolverSummary, StudySummary,
+                                      VerificationSummary)
 
 pytestmark = pytest.mark.solver
 
@@ -70,8 +72,20 @@ def test_outputs_have_the_promised_columns(solved):
     study = solved.study
     b = study.m.opt
     for p in study.m.PERIODS:
-        need = max(b.zone_pressure_gauge_kPa[z, p]() for z in b.ZONES) + study.layout.header.min_valve_loss_kPa
+        need = max(b.zone_pressure_gauge_kPa[z, p]() for z in b.ZONES) + study.plant.air.header.min_valve_loss_kPa
         assert b.header_gauge_kPa[p].value == pytest.approx(need, abs=1e-4)
+
+
+def test_the_summary_of_a_run_reads_back_typed_to_the_same_text(solved):
+    """summary.json's nested parts are typed structures: read back and written again, a real run's summary is
+    the same text (every key, at every level, in the same order)."""
+    text = json.dumps(solved.summary)
+    again = StudySummary.from_dict(json.loads(text))
+    assert isinstance(again.baseline, BaselineSummary) and isinstance(again.baseline.dispatch, DispatchSummary)
+    assert isinstance(again.dispatch, DispatchSummary) and again.dispatch.rounds
+    assert isinstance(again.verification, VerificationSummary) and again.verification.verified is True
+    assert isinstance(again.solver, SolverSummary) and again.solver.iterations > 0
+    assert json.dumps(again.to_dict()) == text
 
 
 def _energy_at(study, name, value, zone=None):

@@ -57,6 +57,8 @@ def test_swing_states_are_kept_on_the_problem_not_on_the_block(swing_run):
     aerated = swing_run.summary["dispatch"]["swing_zones"]
     for z, on in states.items():  # the summary reports the states the problem holds
         assert aerated[z]["aerated_periods"] == [int(i) + 1 for i in np.flatnonzero(on)]
+    # and the verification checks the swing zones' DO minimum while aerated by them
+    assert set(swing_run.summary["verification"]["swing_do_margin_mg_L"]) == set(states)
 
 
 def _machines_within_their_ranges(result, layout):
@@ -229,11 +231,11 @@ def test_post_solve_check_catches_a_machine_or_grid_out_of_range(staged):
     zone below its grid minimum, is reported."""
     m, problem = staged.study.m, staged.study.problem
     t = staged.blowers
-    machines = machines_of(staged.study.layout)
+    machines = machines_of(staged.study.plant)
     running = t.pivot(index="blower", columns="period_start_h", values="running").loc[[mm.id for mm in machines]]
     state = model_air_state(problem)
     dp = evaluate(machines, running.to_numpy(dtype=bool), state["demand_Sm3_h"], state["discharge_gauge_kPa"],
-                  state["kw_per_equivalent"], staged.study.layout.horizon.period_h)
+                  state["kw_per_equivalent"], staged.study.plant.period_h)
     assert feasibility_check(problem, dp) == []
     j, i = np.argwhere(dp.running)[0]
     bad = copy.deepcopy(dp)

@@ -35,6 +35,7 @@ import pyomo.environ as pyo
 from airtaper.errors import EXIT_FAILURE, EXIT_INFEASIBLE, EXIT_OK, EXIT_UNVERIFIED, ModelError
 from airtaper.layout.types import Layout
 from airtaper.model.train import build_cyclic_model
+from airtaper.plant import ResolvedPlant, resolve_plant
 from airtaper.optimize import elastic as _elastic
 from airtaper.optimize.backoff import hold_do
 from airtaper.optimize.baseline import Baseline, complying_baseline, run_baseline
@@ -45,7 +46,8 @@ from airtaper.optimize.problem import (Problem, attach_problem, fix_slacks, max_
                                       relax_staging, settings_for)
 from airtaper.optimize.prescreen import outside_tested_range, prescreen
 from airtaper.optimize.progress import Progress, Silent
-from airtaper.optimize.results import EffluentFigures, Limits, Smoothing, StudySummary, empty_tables, study_tables
+from airtaper.optimize.results import (BaselineSummary, DispatchSummary, EffluentFigures, Limits, Smoothing,
+                                      SolverSummary, StudySummary, VerificationSummary, empty_tables, study_tables)
 from airtaper.optimize.gradient_scaling import apply_scaling
 from airtaper.optimize.staging import (bill_day_by_dispatch, dispatch_summary, dispatch_table, feasibility_check,
                                        final_dispatch, redispatch, run_staging)
@@ -60,7 +62,7 @@ INFEASIBLE_STOP = 1
 
 @dataclass
 class StudyOptions:
-    """Choices of ``airtaper optimize`` (None: the layout's value)."""
+    """Choices of ``airtaper optimize`` (None: the plant's value)."""
 
     objective: str | None = None  # "energy" or "cost"
     smoothing_weight: float | None = None
@@ -89,29 +91,30 @@ class StudyResult:
     blowers: pd.DataFrame | None = None  # blowers.csv: one row per period and blower (staged layouts)
 
 
-def model_steps_per_period(layout: Layout, options: StudyOptions) -> int:
+def model_steps_per_period(plant: ResolvedPlant | Layout, options: StudyOptions) -> int:
     """Integration steps per period of the optimisation model.
 
     The layout's ``steps_per_period`` counts time points per period (backward Euler:
     one point per step). The model's default 2-point Radau IIA scheme (order 3) puts
     two points in each step, so the optimiser takes half as many steps, keeping the
     number of points (and the problem size) while raising the order from 1 to 3; the
-    verification against the independent simulator checks the accuracy.
+    verification against the independent simulator checks the accuracy. Reads ``plant.horizon`` only
+    (a layout's is the same).
     """
     if options.steps_per_period is not None:
         return int(options.steps_per_period)
-    spp = layout.horizon.steps_per_period
+    spp = plant.horizon.steps_per_period
     scheme = options.scheme or "radau2"
     points = int(scheme[-1]) if scheme.startswith("radau") else 1
     return max(1, spp // points)
 
 
 class DiurnalOptimisation:
-    """A built optimisation of one layout; see the module notes."""
+    """A built optimisation of one plant (a layout is resolved first); see the module notes."""
 
-    def __init__(self, layout: Layout, options: StudyOptions | None = None, progress: Progress | None = None,
-                 baseline: Baseline | None = None):
-        self.layout = layout
+    def __init__(self, plant: ResolvedPlant | Layout, options: StudyOptions | None = None,
+                 progress: Progress | None = None, baseline: Baseline | None = None):
+        self.plant = resolve_plant(plant)
         self.options = options or StudyOptions()
         self.progress = progress or Silent()
         self.timings: dict[str, float] = {}
@@ -130,9 +133,15 @@ class DiurnalOptimisation:
             self.timings["baseline_s"] = time.perf_counter() - t
         return self.baseline
 
+    @property
+    def layout(self) -> Layout:
+        """The plant's layout, for the modules that still take one (the baseline, the verification, the DO
+        back-off and the design: they move onto the resolved plant with their owners' changes)."""
+        return self.plant.layout
+
     def reference(self) -> float:
         base = self.run_baseline()
-        objective = self.options.objective or self.layout.operation.objective
+        objective = self.options.objective or self.plant.operation.objective
         value = base.cost_per_day if objective == "cost" else base.energy_kWh_per_day
         return float(value) if value and value > 0 else 1.0
 
@@ -145,14 +154,14 @@ class DiurnalOptimisation:
         base = self.run_baseline()
         self.progress.phase("building the cyclic model")
         t = time.perf_counter()
-        kwargs = {"steps_per_period": model_steps_per_period(self.layout, self.options)}
+        kwargs = {"steps_per_period": model_steps_per_period(self.plant, self.options)}
         if self.options.scheme is not None:
             kwargs["scheme"] = self.options.scheme
-        m = build_cyclic_model(self.layout, diffuser_count=diffuser_count, **kwargs)
+        m = build_cyclic_model(self.plant, diffuser_count=diffuser_count, **kwargs)
         self.timings["build_s"] = time.perf_counter() - t
         t = time.perf_counter()
         start_from_day(m, base.day, start_airflow(m, base.day))
-        settings = settings_for(self.layout, self.reference(), objective=self.options.objective,
+        settings = settings_for(self.plant, self.reference(), objective=self.options.objective,
                                 smoothing_weight=self.options.smoothing_weight,
                                 mixing_airflow_min_Sm3_h_m2=self.options.mixing_airflow_min_Sm3_h_m2,
                                 staging=self.options.staging)
@@ -195,7 +204,7 @@ class DiurnalOptimisation:
                     m.airflow_Sm3_h[z, p].fix(0.0)
         for p in m.PERIODS:
             b.header_gauge_kPa[p].set_value(max(pyo.value(b.zone_pressure_gauge_kPa[z, p]) for z in b.ZONES)
-                                      + self.layout.header.min_valve_loss_kPa)
+                                      + self.plant.air.header.min_valve_loss_kPa)
             if self.problem.staged:
                 b.power_kW[p].set_value(max_power_line_kW(b, p))
         if b.component("peak_kW") is not None and not b.peak_kW.fixed:
@@ -306,7 +315,7 @@ class DiurnalOptimisation:
         per = [m.period_of_step[t] - 1 for t in steps]
         do = {z: [pyo.value(m.conc[t, z, "SO"]) for t in steps] for z in m.ZONES}
         w = point_weights(m)
-        return day_figures(self.layout, nh4, tn, q, per, do, weights=[w[t] for t in steps])
+        return day_figures(self.plant, nh4, tn, q, per, do, weights=[w[t] for t in steps])
 
 
 def _saving(base, value):
@@ -315,13 +324,15 @@ def _saving(base, value):
     return 100.0 * (base - value) / base
 
 
-def saving_figures(base: Baseline, complying: Baseline | None, energy: float, cost, status: str) -> dict:
+def saving_figures(base: Baseline, complying: Baseline | None, energy: float, cost, status: str,
+                   complying_dispatch: DispatchSummary | None = None) -> dict:
     """The summary's saving entries, and notes for the console.
 
     No saving for a run whose limits cannot all be met (or that failed). When the
     uniform-DO baseline breaks a limit the saving against it is kept, marked as such
     (``baseline_compliant`` False), beside the saving against the lowest uniform
-    setpoint that complies (``complying_baseline``), when one was found.
+    setpoint that complies (``complying_baseline``, with ``complying_dispatch``: its day billed
+    by the dispatch rule), when one was found.
     """
     out = {"saving_percent": None, "cost_saving_percent": None, "baseline_compliant": not base.violations,
            "complying_baseline": None, "notes": []}
@@ -335,11 +346,13 @@ def saving_figures(base: Baseline, complying: Baseline | None, energy: float, co
         out["notes"].append(f"the saving of {out['saving_percent']:.1f} % is against a uniform DO baseline "
                             f"({sp} mg/L) that breaks a limit")
         if complying is not None:
-            c = complying.summary()
-            c["saving_percent"] = _saving(complying.energy_kWh_per_day, energy)
-            c["cost_saving_percent"] = _saving(complying.cost_per_day, cost)
+            c = BaselineSummary.from_dict(complying.summary())
+            c.saving_percent = _saving(complying.energy_kWh_per_day, energy)
+            c.cost_saving_percent = _saving(complying.cost_per_day, cost)
+            if complying_dispatch is not None:
+                c.dispatch = complying_dispatch
             out["complying_baseline"] = c
-            out["notes"].append(f"saving {c['saving_percent']:.1f} % against the lowest uniform DO setpoint that "
+            out["notes"].append(f"saving {c.saving_percent:.1f} % against the lowest uniform DO setpoint that "
                                 f"meets the limits ({complying.setpoint_mg_L:.2f} mg/L, "
                                 f"{complying.energy_kWh_per_day:,.1f} kWh/d)")
         else:
@@ -347,10 +360,15 @@ def saving_figures(base: Baseline, complying: Baseline | None, energy: float, co
     return out
 
 
-def run_optimization(layout: Layout, options: StudyOptions | None = None, progress: Progress | None = None
-                     ) -> StudyResult:
-    """The whole study (module notes); never raises for an infeasible or failed solve."""
+def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None = None,
+                     progress: Progress | None = None) -> StudyResult:
+    """The whole study of a plant (module notes; a layout is resolved first); never raises for an infeasible or
+    failed solve."""
     t0 = time.perf_counter()
+    plant = resolve_plant(plant)
+    # the modules that still take a Layout (pre-screen, baseline, verification: they move onto the plant
+    # with their owners' changes) get the plant's own
+    layout = plant.layout
     opts = options or StudyOptions()
     prog = progress or Silent()
     screen = None
@@ -358,8 +376,8 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         prog.phase("pre-screen: equipment bounds and every grid at full air")
         screen = prescreen(layout)
         if not screen["feasible"]:
-            return _screened_out(layout, screen, time.perf_counter() - t0)
-    study = DiurnalOptimisation(layout, opts, prog)
+            return _screened_out(plant, screen, time.perf_counter() - t0)
+    study = DiurnalOptimisation(plant, opts, prog)
     base = study.run_baseline()
     study.build()
     result = study.solve()
@@ -400,7 +418,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         t = time.perf_counter()
 
         def verify():
-            return verify_day(layout, study.schedule_by_zone(), study.figures(), study.m)
+            return verify_day(layout, study.schedule_by_zone(), study.figures(), study.m, problem.swing_states)
 
         if status == "optimal" and opts.hold_do:
             staged = staging is not None and staging.dispatch is not None and not staging.findings
@@ -414,44 +432,43 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         study.timings["verification_s"] = time.perf_counter() - t
         if not verification["verified"]:
             messages.append("WARNING: the re-simulated schedule breaks a limit: " + "; ".join(verification["violations"]))
-    blowers_table, dispatch = None, None
+    blowers_table, dispatch, base_dispatch, complying_dispatch = None, None, None, None
     redispatched = False
     if staging is not None and staging.dispatch is not None and not staging.findings and result is not None \
             and status == "optimal":
         # the last re-solves moved the airflow after the machines were chosen: the cheapest machines for it
-        staging.dispatch, redispatched = redispatch(problem, staging.dispatch, layout)
+        staging.dispatch, redispatched = redispatch(problem, staging.dispatch)
     schedule, header, timeseries = study_tables(study)
     schedule, header = base.add_columns(schedule, header)
     figs = study.figures()
     energy = study.energy_kWh_per_day()
     power = study.power_by_period()
-    cost = study.m.train_data.plant.air.cost(power)
+    cost = plant.air.cost(power)
     if staging is not None and staging.dispatch is not None:
         dp = staging.dispatch if staging.findings else final_dispatch(problem, staging.dispatch)
-        blowers_table = dispatch_table(layout, dp)
-        dispatch = dispatch_summary(layout, dp)
-        energy = dispatch["energy_kWh_per_day"]
-        cost = dispatch["cost_per_day"]
-        dispatch["rounds"] = staging.rounds
-        dispatch["converged"] = staging.converged
-        dispatch["stopped"] = staging.reason
-        dispatch["redispatched_at_final_schedule"] = redispatched
-        dispatch["swing_zones"] = {z: {"aerated_periods": [int(i) + 1 for i in np.flatnonzero(on)],
-                                       "switches": int(np.sum(on != np.roll(on, 1)))}
-                                   for z, on in (staging.swing_states or {}).items()}
+        blowers_table = dispatch_table(plant, dp)
+        dispatch = DispatchSummary.from_dict(dispatch_summary(plant, dp))
+        energy = dispatch.energy_kWh_per_day
+        cost = dispatch.cost_per_day
+        dispatch.rounds = staging.rounds
+        dispatch.converged = staging.converged
+        dispatch.stopped = staging.reason
+        dispatch.redispatched_at_final_schedule = redispatched
+        dispatch.swing_zones = {z: {"aerated_periods": [int(i) + 1 for i in np.flatnonzero(on)],
+                                    "switches": int(np.sum(on != np.roll(on, 1)))}
+                                for z, on in (staging.swing_states or {}).items()}
         if status == "optimal" and result is not None:
             breaches = feasibility_check(problem, dp)
-            dispatch["feasibility_breaches"] = breaches
+            dispatch.feasibility_breaches = breaches
             if breaches:
                 status = "unverified"
                 messages.append("WARNING: the schedule breaks a machine or grid range: " + "; ".join(breaches))
-        bd = bill_day_by_dispatch(layout, base.day, objective)
+        bd = bill_day_by_dispatch(plant, base.day, objective)
         if bd is not None:  # the baseline billed by the same dispatch rule: like with like
             header["baseline_power_kW"] = bd.total_power_kW
-            base_dispatch = dispatch_summary(layout, bd)
-            base_dispatch["shortfall"] = [f["message"] for f in bd.findings]
+            base_dispatch = DispatchSummary.from_dict(dispatch_summary(plant, bd))
+            base_dispatch.shortfall = [f["message"] for f in bd.findings]
             messages.extend(f"baseline: {f['message']}" for f in bd.findings)
-            dispatch["baseline"] = base_dispatch
     marginal = []
     if opts.marginal and status == "optimal" and result is not None and result.ok:
         marginal = marginal_costs(problem, result, energy_kWh_per_day=energy, cost_per_day=cost)
@@ -466,36 +483,32 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         prog.phase("the uniform-DO baseline breaks a limit: finding the lowest uniform setpoint that complies")
         t = time.perf_counter()
         complying = complying_baseline(layout, base)
-        if complying is not None and dispatch is not None and "baseline" in dispatch:
+        if complying is not None and base_dispatch is not None:
             # billed by the same dispatch rule as the baseline and the optimum
-            cd = bill_day_by_dispatch(layout, complying.day, objective)
+            cd = bill_day_by_dispatch(plant, complying.day, objective)
             if cd is not None:
-                dispatch["complying_baseline"] = dispatch_summary(layout, cd)
+                complying_dispatch = DispatchSummary.from_dict(dispatch_summary(plant, cd))
         study.timings["complying_baseline_s"] = time.perf_counter() - t
-    savings = saving_figures(base, complying, energy, cost, status)
-    if dispatch and "complying_baseline" in dispatch:
-        cd = dispatch.pop("complying_baseline")
-        if savings["complying_baseline"] is not None:
-            savings["complying_baseline"]["dispatch"] = cd
+    savings = saving_figures(base, complying, energy, cost, status, complying_dispatch)
     messages.extend(savings.pop("notes"))
-    periods = np.arange(layout.horizon.n_periods)
+    periods = np.arange(plant.n_periods)
     untested = outside_tested_range(layout, study.schedule_by_zone(), periods,
                                     "optimum" if status in ("optimal", "unverified") else "elastic solution") + \
-        outside_tested_range(layout, _node_airflow(base.day), base.day.node_period, "baseline")
+        outside_tested_range(layout, _node_airflow(plant, base.day), base.day.node_period, "baseline")
     messages.extend(u["message"] for u in untested)
     exit_code = {"optimal": EXIT_OK, "infeasible": EXIT_INFEASIBLE, "unverified": EXIT_UNVERIFIED,
                  "failed": EXIT_FAILURE}[status]
     study.timings["total_s"] = time.perf_counter() - t0
     summary = StudySummary(
         status=status,
-        plant=layout.plant.name,
-        layout=layout.path,
+        plant=plant.name,
+        layout=plant.path,
         objective=objective,
-        currency=layout.tariff.currency if layout.tariff else "",
+        currency=plant.tariff.currency if plant.tariff else "",
         energy_kWh_per_day=energy,
         cost_per_day=cost,
-        baseline=dict(base.summary(), **({"dispatch": dispatch.pop("baseline")}
-                                         if dispatch and "baseline" in dispatch else {})),
+        baseline=BaselineSummary.from_dict(
+            dict(base.summary(), **({} if base_dispatch is None else {"dispatch": base_dispatch}))),
         **savings,
         dispatch=dispatch,
         effluent=EffluentFigures.of(figs),
@@ -505,48 +518,49 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         do_margin_mg_L=figs["do_margin_mg_L"] if verification is None else verification["do_margin_mg_L"],
         optimiser_min_do_margin_mg_L=figs["min_do_margin_mg_L"],
         do_hold=None if hold is None else {k: v for k, v in hold.items() if k != "verification"},
-        limits=Limits.of_layout(layout),
-        verification=verification if verification is not None else {"verified": None, "skipped": True},
+        limits=Limits.of_plant(plant),
+        verification=VerificationSummary.from_dict(verification) if verification is not None
+        else VerificationSummary(verified=None, skipped=True),
         verified=None if verification is None else verification["verified"],
         marginal_costs=marginal,
         infeasibility=infeasibility,
         prescreen=screen,
         outside_tested_range=untested,
         smoothing=Smoothing(problem.settings.smoothing_weight, float(pyo.value(study.m.opt.smoothing))),
-        solver={
-            "status": None if result is None else result.status.value,
-            "message": None if result is None else result.message,
-            "iterations": int(study.timings.get("iterations", 0)),
-            "attempts": study.attempts,
-            "variables": None if result is None else result.n_variables,
-            "constraints": None if result is None else result.n_constraints,
-            "scaling": study.scaling,
-            "timings": {k: v for k, v in study.timings.items() if k != "iterations"},
-        },
+        solver=SolverSummary(
+            status=None if result is None else result.status.value,
+            message=None if result is None else result.message,
+            iterations=int(study.timings.get("iterations", 0)),
+            attempts=study.attempts,
+            variables=None if result is None else result.n_variables,
+            constraints=None if result is None else result.n_constraints,
+            scaling=study.scaling,
+            timings={k: v for k, v in study.timings.items() if k != "iterations"},
+        ),
         messages=messages,
     )
     return StudyResult(schedule=schedule, header=header, timeseries=timeseries, summary=summary.to_dict(),
                        exit_code=exit_code, study=study, blowers=blowers_table)
 
 
-def _node_airflow(day) -> dict:
+def _node_airflow(plant: ResolvedPlant, day) -> dict:
     """Zone id -> airflow at the simulated day's quadrature nodes."""
-    return {z.id: day.node_airflow[:, i] for i, z in enumerate(day.layout.zones)}
+    return {z.id: day.node_airflow[:, i] for i, z in enumerate(plant.zones)}
 
 
-def _screened_out(layout: Layout, screen: dict, seconds: float) -> StudyResult:
+def _screened_out(plant: ResolvedPlant, screen: dict, seconds: float) -> StudyResult:
     """The result of a run the pre-screen stops: no schedule, the findings, exit code 3."""
     schedule, header, timeseries = empty_tables()
     summary = StudySummary(
         status="infeasible",
-        plant=layout.plant.name,
-        layout=layout.path,
-        objective=layout.operation.objective,
-        currency=layout.tariff.currency if layout.tariff else "",
-        limits=Limits.of_layout(layout),
+        plant=plant.name,
+        layout=plant.path,
+        objective=plant.operation.objective,
+        currency=plant.tariff.currency if plant.tariff else "",
+        limits=Limits.of_plant(plant),
         infeasibility=screen["findings"],
         prescreen=screen,
-        solver={"status": None, "timings": {"prescreen_s": screen["seconds"], "total_s": seconds}},
+        solver=SolverSummary(status=None, timings={"prescreen_s": screen["seconds"], "total_s": seconds}),
         messages=["the pre-screen shows the limits cannot all be met (no optimisation was run): "
                   + f["message"] for f in screen["findings"]] + ["no saving is given: the limits cannot be met"],
     )

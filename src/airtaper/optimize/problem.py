@@ -48,6 +48,7 @@ import pyomo.environ as pyo
 
 from airtaper.errors import ModelError
 from airtaper.layout.types import Layout
+from airtaper.plant import ResolvedPlant, resolve_plant
 from airtaper.optimize.dispatch import envelope_lines, machines_of, max_lines
 from airtaper.physics.blower import blower_power_kW
 
@@ -90,7 +91,7 @@ LIMIT_GROUPS: tuple[LimitGroup, ...] = (
 
 @dataclass
 class ProblemSettings:
-    """Choices of one optimisation (defaults from the layout)."""
+    """Choices of one optimisation (defaults from the plant's [operation] and zones)."""
 
     objective: str  # "energy" or "cost"
     smoothing_weight: float
@@ -99,16 +100,17 @@ class ProblemSettings:
     staging: bool = True  # False: the blowers as one machine at the aggregate efficiency, swing zones relaxed
 
 
-def settings_for(layout: Layout, reference: float, *, objective: str | None = None,
+def settings_for(plant: ResolvedPlant | Layout, reference: float, *, objective: str | None = None,
                  smoothing_weight: float | None = None, mixing_airflow_min_Sm3_h_m2: float | None = None,
                  staging: bool = True) -> ProblemSettings:
-    """Settings from the layout's [operation], with optional overrides."""
-    obj = objective or layout.operation.objective
-    if obj == "cost" and layout.tariff is None:
+    """Settings from the plant's [operation], with optional overrides (a layout is resolved first)."""
+    plant = resolve_plant(plant)
+    obj = objective or plant.operation.objective
+    if obj == "cost" and plant.tariff is None:
         raise ModelError("a cost objective needs a tariff in the layout")
-    w = layout.operation.smoothing_weight if smoothing_weight is None else float(smoothing_weight)
+    w = plant.operation.smoothing_weight if smoothing_weight is None else float(smoothing_weight)
     mix = {}
-    for z in layout.zones:
+    for z in plant.zones:
         if z.aerated:
             mix[z.id] = z.mixing_airflow_min_Sm3_h_m2 if mixing_airflow_min_Sm3_h_m2 is None \
                 else float(mixing_airflow_min_Sm3_h_m2)

@@ -48,7 +48,7 @@ import numpy as np
 import pyomo.environ as pyo
 
 from airtaper.layout.types import Layout
-from airtaper.plant import AirSide, resolve_plant
+from airtaper.plant import AirSide, ResolvedPlant, resolve_plant
 from airtaper.optimize.dispatch import Bill, Dispatch, evaluate, machines_of, set_lines, solve_dispatch, swing_states
 from airtaper.optimize.attempts import Rung
 from airtaper.optimize.problem import Problem, max_power_line_kW, set_power_lines, set_swing_states
@@ -106,20 +106,23 @@ def model_air_state(prob: Problem) -> dict:
             "excess_max_Sm3_h": room}
 
 
-def day_dispatch(layout: Layout, day, objective: str) -> Dispatch | None:
+def day_dispatch(plant: ResolvedPlant | Layout, day, objective: str) -> Dispatch | None:
     """The same dispatch rule applied to a simulated day (the baseline): per-period mean airflow and pressure."""
-    return steps_dispatch(layout, day.airflow, day.period, objective)
+    return steps_dispatch(plant, day.airflow, day.period, objective)
 
 
-def steps_dispatch(layout: Layout, airflow_by_zone: dict, period_of_step, objective: str) -> Dispatch | None:
+def steps_dispatch(plant: ResolvedPlant | Layout, airflow_by_zone: dict, period_of_step, objective: str
+                   ) -> Dispatch | None:
     """The dispatch of a simulated day given per step: zone id -> airflow (Sm3/h) at every step and the
     0-based period of every step. Each period's mean airflow and discharge pressure go to the MILP, as
-    for the optimised schedule. None when the layout has no diffused zone or no blower in service."""
-    machines = machines_of(layout)
-    air = resolve_plant(layout).air
+    for the optimised schedule. None when the plant has no diffused zone or no blower in service (a layout
+    is resolved first)."""
+    plant = resolve_plant(plant)
+    machines = machines_of(plant)
+    air = plant.air
     if not air.zones or not any(not mm.out_of_service for mm in machines):
         return None
-    n = layout.horizon.n_periods
+    n = plant.n_periods
     flows = {z.id: np.asarray(airflow_by_zone[z.id], dtype=float) for z in air.zones}
     header = air.header_pressure_gauge_kPa(flows)
     total = np.sum([flows[z] for z in flows], axis=0)
@@ -132,16 +135,15 @@ def steps_dispatch(layout: Layout, airflow_by_zone: dict, period_of_step, object
         if z.kind == "aerated":
             hi = z.airflow_max_Sm3_h
             room += np.maximum(0.0, hi - np.array([flows[z.id][per == k].mean() for k in range(n)]))
-    return solve_dispatch(machines, q, d, kw_per_equivalent(air, d), Bill.of(layout, objective),
-                          layout.horizon.period_h, room)
+    return solve_dispatch(machines, q, d, kw_per_equivalent(air, d), Bill.of(plant, objective), plant.period_h, room)
 
 
-def bill_day_by_dispatch(layout: Layout, day, objective: str) -> Dispatch | None:
+def bill_day_by_dispatch(plant: ResolvedPlant | Layout, day, objective: str) -> Dispatch | None:
     """Bill a simulated day (a baseline) by the dispatch rule: its energy and cost replaced by the
     dispatch's (like with like against the staged optimum). Returns the dispatch (None: left as it was)."""
-    bd = day_dispatch(layout, day, objective)
+    bd = day_dispatch(plant, day, objective)
     if bd is not None:
-        bill = bd.bill(layout)
+        bill = bd.bill(plant)
         day.energy_kWh_per_day = bill["energy_kWh_per_day"]
         day.cost_per_day = bill["cost_per_day"]
     return bd
@@ -174,8 +176,8 @@ def final_dispatch(prob: Problem, dp: Dispatch) -> Dispatch:
                     float(prob.m.train_data.period_h), status=dp.status, seconds=dp.seconds)
 
 
-def round_cost(layout: Layout, dp: Dispatch, objective: str) -> float:
-    bill = dp.bill(layout)
+def round_cost(plant: ResolvedPlant, dp: Dispatch, objective: str) -> float:
+    bill = dp.bill(plant)
     return bill["cost_per_day"] if objective == "cost" and bill["cost_per_day"] is not None \
         else bill["energy_kWh_per_day"]
 
@@ -206,11 +208,11 @@ def relaxed_swing_fractions(prob: Problem) -> dict:
     return out
 
 
-def swing_candidates(fractions: dict, layout: Layout) -> list[dict]:
+def swing_candidates(fractions: dict, plant: ResolvedPlant) -> list[dict]:
     """Candidate on/off patterns from the relaxed fractions (:data:`SWING_THRESHOLDS`), distinct, none all-on."""
     out = []
     for theta in SWING_THRESHOLDS:
-        states = {z: swing_states((f >= theta).astype(float), layout.zone(z).max_switches_per_day)
+        states = {z: swing_states((f >= theta).astype(float), plant.zone(z).max_switches_per_day)
                   for z, f in fractions.items()}
         if all(v.all() for v in states.values()) or any(
                 all((states[z] == c[z]).all() for z in states) for c in out):
@@ -238,7 +240,7 @@ def settle_swing_states(study, rounds: list):
         return None
     best = (float(pyo.value(b.objective)), _snapshot(m), prob.swing_states, res)
     reference = best[1]
-    for states in swing_candidates(fractions, study.layout):
+    for states in swing_candidates(fractions, study.plant):
         t0 = time.perf_counter()
         _restore(reference)
         set_swing_states(prob, states)
@@ -265,9 +267,9 @@ def run_staging(study, first_result) -> StagingOutcome:
     """Settle the swing states and the blower dispatch on a relaxed solve (module notes)."""
     prob = study.problem
     m, b = prob.m, prob.block
-    layout = study.layout
+    plant = study.plant
     objective = prob.objective
-    bill = Bill.of(layout, objective)
+    bill = Bill.of(plant, objective)
     prog = study.progress
     out = StagingOutcome(result=first_result, dispatch=None)
     rounds = out.rounds
@@ -312,7 +314,7 @@ def run_staging(study, first_result) -> StagingOutcome:
             out.reason = "a round failed; the best round is kept"
             break
         fd = final_dispatch(prob, dp)
-        cost = round_cost(layout, fd, objective)
+        cost = round_cost(plant, fd, objective)
         rounds.append({"round": r, "status": res.status.value, "cost": cost, "iterations": res.iterations,
                        "running": {mm.id: int(fd.running[j].sum()) for j, mm in enumerate(fd.machines)},
                        "starts": int(fd.starts.sum()), "seconds": time.perf_counter() - t0})
@@ -340,7 +342,7 @@ def run_staging(study, first_result) -> StagingOutcome:
     return out
 
 
-def redispatch(prob: Problem, dp: Dispatch, layout: Layout) -> tuple[Dispatch, bool]:
+def redispatch(prob: Problem, dp: Dispatch) -> tuple[Dispatch, bool]:
     """The least-cost machines for the final schedule's airflow and pressure.
 
     The last re-solves (the dispatch round's own, then the DO back-off's) move the airflow and
@@ -353,15 +355,16 @@ def redispatch(prob: Problem, dp: Dispatch, layout: Layout) -> tuple[Dispatch, b
     back-off may have relaxed it to the envelope). Returns ``(dispatch, replaced)``.
     """
     m = prob.m
+    plant = m.train_data.plant
     objective = prob.objective
     old = final_dispatch(prob, dp)
     s = model_air_state(prob)
     new = solve_dispatch(prob.machines, s["demand_Sm3_h"], s["discharge_gauge_kPa"], s["kw_per_equivalent"],
-                         Bill.of(layout, objective), float(m.train_data.period_h))
+                         Bill.of(plant, objective), float(m.train_data.period_h))
     uncovered = bool(np.any(old.shortfall_Sm3_h > CHECK_RTOL * np.maximum(old.demand_Sm3_h, 1.0))) or bool(
         np.any(old.airflow_Sm3_h.sum(axis=0) > old.demand_Sm3_h * (1 + CHECK_RTOL) + 1e-6))
     replace = not new.findings and not new.same_decisions(old) and (
-        uncovered or round_cost(layout, new, objective) < round_cost(layout, old, objective) * (1.0 - 1e-9))
+        uncovered or round_cost(plant, new, objective) < round_cost(plant, old, objective) * (1.0 - 1e-9))
     chosen = new if replace else old
     apply_dispatch(m, chosen)  # the model's power curve is the chosen machines' (a relaxed back-off left the envelope)
     return chosen, replace
@@ -409,11 +412,11 @@ def feasibility_check(prob: Problem, dp: Dispatch) -> list[str]:
     return bad
 
 
-def dispatch_table(layout: Layout, dp: Dispatch) -> "pd.DataFrame":
+def dispatch_table(plant: ResolvedPlant, dp: Dispatch) -> "pd.DataFrame":
     """blowers.csv: one row per period and blower."""
     import pandas as pd
 
-    h = layout.horizon.period_h
+    h = plant.period_h
     starts = dp.starts
     rows = []
     for i in range(dp.running.shape[1]):
@@ -427,10 +430,11 @@ def dispatch_table(layout: Layout, dp: Dispatch) -> "pd.DataFrame":
     return pd.DataFrame(rows)
 
 
-def dispatch_summary(layout: Layout, dp: Dispatch) -> dict:
-    """Bill split, peak and per-blower running hours and starts, for summary.json."""
-    bill = dp.bill(layout)
-    h = layout.horizon.period_h
+def dispatch_summary(plant: ResolvedPlant | Layout, dp: Dispatch) -> dict:
+    """Bill split, peak and per-blower running hours and starts, for summary.json (a layout is resolved first)."""
+    plant = resolve_plant(plant)
+    bill = dp.bill(plant)
+    h = plant.period_h
     return {
         "energy_kWh_per_day": bill["energy_kWh_per_day"],
         "energy_cost": bill["energy_cost"], "demand_charge": bill["demand_charge"],
