@@ -87,12 +87,21 @@ def test_three_tank_runs(tmp_path):
 
 
 def test_bad_aeration_inputs(demo):
-    with pytest.raises(InputError):
+    """Schedules and setpoints passed in code are past the input boundary: a caller's mistake is a ValueError
+    (the CLI's schedule reader reports a schedule file's problems as input errors, file/row/column)."""
+    with pytest.raises(ValueError, match="anoxic"):
         simulate.periodic(demo, do_setpoint_mg_L={"Z1": 2.0})  # anoxic zone
-    with pytest.raises(InputError):
+    with pytest.raises(ValueError, match="per period and zone"):
         simulate.periodic(demo, schedule=np.ones((3, 2)))
-    with pytest.raises(InputError):
+    with pytest.raises(ValueError, match="no zone"):
         simulate.steady_state(demo, do_setpoint_mg_L={"nope": 2.0})
+    with pytest.raises(ValueError, match="finite"):
+        simulate.steady_state(demo, airflow_Sm3_h=-np.ones(len(demo.zones)))
+    for call in (lambda: simulate.periodic(demo, schedule={"nope": 1.0}),
+                 lambda: simulate.periodic(demo, do_setpoint_mg_L={"Z1": 2.0})):
+        with pytest.raises(ValueError) as err:
+            call()
+        assert not isinstance(err.value, InputError)
 
 
 def test_srt_target_is_met_on_the_daily_mean_with_one_waste_flow(demo, demo_day):
