@@ -235,3 +235,22 @@ def test_do_extremes_bound_every_fine_sample(demo):
         fine_lows = fine.do_extremes[fine.do_extremes["zone"] == z.id].sort_values("period")["do_min_mg_L"]
         assert np.all(lows <= sampled + 1e-4), z.id
         assert np.max(np.abs(lows - fine_lows.to_numpy())) < 1e-3, z.id
+
+
+def test_the_simulator_reads_only_the_resolved_plant():
+    """Past the boundary the simulator computes with the resolved plant alone: with its layout taken away it
+    gives the same steady state and the same day (to the last bit) as with it."""
+    from dataclasses import replace
+
+    from airtaper.plant import resolve_plant
+
+    plant = resolve_plant(load_layout("layouts/three_tank.toml"))
+    bare = replace(plant, layout=None)
+    a = simulate.steady_state(plant, do_setpoint_mg_L=2.0)
+    b = simulate.steady_state(bare, do_setpoint_mg_L=2.0)
+    np.testing.assert_array_equal(a.y, b.y)
+    day_a = simulate.periodic(plant, max_days=1)
+    day_b = simulate.periodic(bare, max_days=1)
+    np.testing.assert_array_equal(day_a.y_end, day_b.y_end)
+    assert day_b.plant is bare
+    assert summarize(day_b)["blower_kWh_per_day"] == summarize(day_a)["blower_kWh_per_day"]
