@@ -20,7 +20,6 @@ import pandas as pd
 
 from airtaper import units
 from airtaper.errors import InputError, Problem
-from airtaper.layout.types import Layout
 from airtaper.optimize.results import StudySummary
 from airtaper.plant import ResolvedPlant
 
@@ -41,11 +40,6 @@ class StudyFolder:
     blowers: pd.DataFrame | None = None
     plant: ResolvedPlant | None = None  # the layout that summary.json names, resolved
     notes: list[str] = field(default_factory=list)  # what could not be read, for the report
-
-    @property
-    def layout(self) -> Layout | None:
-        """The layout as given (the inputs summary and the drawing describe it), or None."""
-        return None if self.plant is None else self.plant.layout
 
     # -- derived views -------------------------------------------------------------------------
     @property
