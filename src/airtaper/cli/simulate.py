@@ -207,7 +207,7 @@ def run(args) -> int:
         print("  blowers (dispatched one by one): " + ", ".join(
             f"{b} {v['running_h']:g} h" for b, v in d["blowers"].items() if not v["out_of_service"]))
         for short in d["shortfall"]:
-            print(f"WARNING: {short}", file=sys.stderr)
+            print(f"warning: {args.layout}: blowers: {short}", file=sys.stderr)  # the one warning form
     for short in summary["setpoint_not_held"]:
         print(f"WARNING: {short['message']}", file=sys.stderr)
     print(f"  wrote {', '.join(OUTPUT_NAMES)} to {args.out}")
