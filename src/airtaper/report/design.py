@@ -24,6 +24,7 @@ from types import SimpleNamespace
 
 import numpy as np
 
+from airtaper.plant import resolve_plant
 from airtaper.report.atomic import write_bytes_atomic, write_csv_atomic, write_json_atomic, write_text_atomic
 from airtaper.report.figures import figure_png, train_figure
 from airtaper.report.text import CAUTION, fmt
@@ -91,7 +92,7 @@ def taper_figure_png(zones) -> bytes | None:
 
 def train_png(layout) -> bytes | None:
     """The report layer's drawing of a train (zones to scale by volume, density as dots, flows as arrows)."""
-    fig = train_figure(SimpleNamespace(layout=layout))
+    fig = train_figure(SimpleNamespace(plant=resolve_plant(layout)))
     if fig is None:
         return None
     png = figure_png(fig)
@@ -132,7 +133,7 @@ def design_html(summary: dict, zones, days, images: dict) -> str:
               fmt(r.density_design_percent, 1), r.binding] for r in zones.itertuples()], left=1))
         body.append(_img(images.get("taper.png"), "diffusers per zone") + _img(images.get("train.png"),
                                                                                "the designed train"))
-        cols = ["load day", "days/year", f"energy kWh/d", f"cost {cur}/d", "NH4-N mean", "TN mean"]
+        cols = ["load day", "days/year", "energy kWh/d", f"cost {cur}/d", "NH4-N mean", "TN mean"]
         has_cur = "energy_kWh_per_day_current" in days.columns
         if has_cur:
             cols += ["current kWh/d", f"current {cur}/d"]
