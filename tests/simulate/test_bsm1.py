@@ -13,6 +13,7 @@ import pytest
 
 from airtaper import simulate
 from airtaper.layout.types import ASM1_COMPONENTS
+from airtaper.physics.settling import FLUX_RELATIVE_WIDTH
 from airtaper.simulate.steady import solve_steady
 
 # from memory, Alex et al. 2008 open-loop steady state table (ASM1 order; SALK mol/m3)
@@ -105,10 +106,16 @@ def test_ideal_separator_differs_as_srt_explains(layered_ss, bsm1_ideal):
 
 
 def test_bsm1_settler_profile_thickens_downward(layered_ss):
-    # Takacs et al. (1991) layered settler: solids rise from the top to the bottom layer
-    # (the flux-limited plateau below the feed is flat to 1e-5 relative: smoothing of the min)
+    # Takacs et al. (1991) layered settler: solids rise from the top to the bottom layer. The
+    # flux-limited plateau below the feed (Alex et al. 2008: layers 5-9 at one concentration) is
+    # flat to within a few times the smooth minimum's relative width: its symmetric slope at the
+    # kink makes the plateau alternate by about 2e-3 relative (0.7 of 356 g/m3) around the flat one
+    # (a numerical regularisation, see physics/settling.interface_flux_g_m2_d)
     x = layered_ss.layers["tss_mg_L"].to_numpy()
-    assert np.all(np.diff(x) >= -1e-4 * x[1:])
+    assert np.all(np.diff(x) >= -3.0 * FLUX_RELATIVE_WIDTH * x[1:])
+    plateau = x[4:9]
+    assert np.ptp(plateau) <= 3.0 * FLUX_RELATIVE_WIDTH * plateau.mean()
+    assert plateau.mean() == pytest.approx(356.07, rel=2e-3)  # from memory, Alex et al. (2008) settler profile
     assert x[0] == pytest.approx(_EFFLUENT["TSS"], rel=1e-3)
 
 
