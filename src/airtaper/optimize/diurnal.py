@@ -24,7 +24,7 @@ the problem re-solved warm (tests, sensitivity studies).
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -34,10 +34,11 @@ from airtaper.errors import EXIT_FAILURE, EXIT_INFEASIBLE, EXIT_OK, EXIT_UNVERIF
 from airtaper.layout.types import Layout
 from airtaper.model.train import build_cyclic_model
 from airtaper.optimize import elastic as _elastic
-from airtaper.optimize.backoff import hold_do
+from airtaper.optimize.backoff import hold_do, refined_steps_per_period
 from airtaper.optimize.baseline import Baseline, complying_baseline, run_baseline
 from airtaper.optimize.compliance import day_figures
-from airtaper.optimize.attempts import BASE_OPTIONS, LADDER, Rung, start_airflow, start_from_day
+from airtaper.optimize.attempts import (BASE_OPTIONS, LADDER, SOLVE_BUDGET_S, Rung, SolveBudget, start_airflow,
+                                       start_from_day)
 from airtaper.optimize.marginal import marginal_costs
 from airtaper.optimize.problem import (attach_problem, fix_slacks, max_power_line_kW, point_weights, relax_staging,
                                       settings_for)
@@ -74,6 +75,7 @@ class StudyOptions:
     staging: bool = True  # False: blowers as one machine, swing zones relaxed (the comparison in benchmarks/)
     ipopt_options: dict = field(default_factory=dict)
     ladder: tuple[Rung, ...] = LADDER
+    solve_budget_s: float = SOLVE_BUDGET_S  # wall-clock seconds of all Ipopt solves (optimize/attempts.py)
 
 
 @dataclass
@@ -117,6 +119,7 @@ class DiurnalOptimisation:
         self.result = None
         self.baseline = baseline
         self.m = None
+        self.budget = SolveBudget(self.options.solve_budget_s)
 
     # --- setup ---------------------------------------------------------------------------
     def run_baseline(self) -> Baseline:
@@ -201,6 +204,7 @@ class DiurnalOptimisation:
     def _ipopt(self, rung: Rung, warm_start=False):
         opts = dict(BASE_OPTIONS)
         opts.update(rung.options)
+        opts.update(self.budget.options())
         opts.update(self.options.ipopt_options)
         if not rung.user_scaling:
             opts["nlp_scaling_method"] = "gradient-based"
@@ -238,7 +242,7 @@ class DiurnalOptimisation:
             # Ipopt converged to a point of local infeasibility: the limits most likely
             # conflict, and the elastic solve will say which (no more rungs).
             infeasible += r.status.value == "infeasible"
-            if infeasible >= INFEASIBLE_STOP:
+            if infeasible >= INFEASIBLE_STOP or self.budget.exhausted:
                 break
         self.result = None
         return None
@@ -249,6 +253,13 @@ class DiurnalOptimisation:
         if not r.ok:
             return self.solve()
         self.result = r
+        return r
+
+    def resolve_once(self, rung: Rung):
+        """One warm solve from the current point with ``rung`` (no ladder); the result (kept when it solved)."""
+        r = self._ipopt(rung, warm_start=True)
+        if r.ok:
+            self.result = r
         return r
 
     def elastic(self):
@@ -343,9 +354,12 @@ def saving_figures(base: Baseline, complying: Baseline | None, energy: float, co
     return out
 
 
-def run_optimization(layout: Layout, options: StudyOptions | None = None, progress: Progress | None = None
-                     ) -> StudyResult:
-    """The whole study (module notes); never raises for an infeasible or failed solve."""
+def run_optimization(layout: Layout, options: StudyOptions | None = None, progress: Progress | None = None,
+                     baseline: Baseline | None = None) -> StudyResult:
+    """The whole study (module notes); never raises for an infeasible or failed solve.
+
+    ``baseline``: the uniform-DO baseline when it is already simulated (the same options).
+    """
     t0 = time.perf_counter()
     opts = options or StudyOptions()
     prog = progress or Silent()
@@ -355,7 +369,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         screen = prescreen(layout)
         if not screen["feasible"]:
             return _screened_out(layout, screen, time.perf_counter() - t0)
-    study = DiurnalOptimisation(layout, opts, prog)
+    study = DiurnalOptimisation(layout, opts, prog, baseline=baseline)
     base = study.run_baseline()
     study.build()
     result = study.solve()
@@ -371,9 +385,18 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
             status = "infeasible"
             infeasibility = staging.findings
             messages.extend(f["message"] for f in staging.findings)
-    if result is None:
+    budget_ended = False
+    if result is None and study.budget.exhausted:
+        status = "failed"
+        budget_ended = True
+        messages.append(study.budget.message(study.attempts))
+    elif result is None:
         r, infeasibility = study.elastic()
-        if not r.ok:
+        if not r.ok and study.budget.exhausted:
+            status = "failed"
+            budget_ended = True
+            messages.append(study.budget.message(study.attempts))
+        elif not r.ok:
             status = "failed"
             messages.append(f"the solver failed on every attempt ({r.message})")
         elif infeasibility:
@@ -399,7 +422,9 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
 
         if status == "optimal" and opts.hold_do:
             staged = staging is not None and staging.dispatch is not None and not staging.findings
-            hold = hold_do(study, verify, prog, relax=(lambda: relax_staging(study.m.opt)) if staged else None)
+            coarse = refined_steps_per_period(layout.horizon.period_h, model_steps_per_period(layout, opts))
+            hold = hold_do(study, verify, prog, relax=(lambda: relax_staging(study.m.opt)) if staged else None,
+                           coarse=coarse is not None)
             verification = hold["verification"]
             result = study.result
             if hold["resolve_failed"]:
@@ -407,6 +432,27 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         else:
             verification = verify()[0]
         study.timings["verification_s"] = time.perf_counter() - t
+        if hold is not None and hold["refine"]:  # model steps too long for the DO within a period (backoff.py)
+            period_h, coarse = layout.horizon.period_h, model_steps_per_period(layout, opts)
+            finer = refined_steps_per_period(period_h, coarse)
+            step = period_h / coarse
+            prog.phase(f"the re-simulated schedule broke a limit on {step:g}-hour model steps: "
+                       f"solving again on {period_h / finer:g}-hour steps")
+            fine = run_optimization(layout, replace(opts, steps_per_period=finer, prescreen=False,
+                                                    solve_budget_s=study.budget.remaining()), prog, base)
+            if screen is not None:  # the pre-screen ran once, for both
+                from airtaper.optimize.results import jsonable
+
+                fine.summary["prescreen"] = jsonable(screen)
+                if screen["note"]:
+                    fine.summary["messages"].insert(0, f"pre-screen: {screen['note']}")
+            fine.summary["messages"].insert(0, f"solved on {period_h / finer:g}-hour model steps: on "
+                                               f"{step:g}-hour steps the re-simulated schedule broke a limit ("
+                                               + "; ".join(verification["violations"]) + ")")
+            if fine.summary.get("do_hold") is not None:
+                fine.summary["do_hold"]["coarse_steps_per_period"] = coarse
+                fine.summary["do_hold"]["coarse_seconds"] = time.perf_counter() - t0
+            return fine
         if not verification["verified"]:
             messages.append("WARNING: the re-simulated schedule breaks a limit: " + "; ".join(verification["violations"]))
     blowers_table, dispatch = None, None
@@ -479,7 +525,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         outside_tested_range(layout, _node_airflow(base.day), base.day.node_period, "baseline")
     messages.extend(u["message"] for u in untested)
     exit_code = {"optimal": EXIT_OK, "infeasible": EXIT_INFEASIBLE, "unverified": EXIT_UNVERIFIED,
-                 "failed": EXIT_FAILURE}[status]
+                 "failed": EXIT_INFEASIBLE if budget_ended else EXIT_FAILURE}[status]
     study.timings["total_s"] = time.perf_counter() - t0
     summary = StudySummary(
         status=status,
