@@ -75,7 +75,7 @@ class StudyOptions:
     staging: bool = True  # False: blowers as one machine, swing zones relaxed (the comparison in benchmarks/)
     ipopt_options: dict = field(default_factory=dict)
     ladder: tuple[Rung, ...] = LADDER
-    solve_budget_s: float = SOLVE_BUDGET_S  # wall-clock seconds of all Ipopt solves (optimize/attempts.py)
+    solve_budget_s: float = SOLVE_BUDGET_S  # CPU seconds of all Ipopt solves (optimize/attempts.py)
 
 
 @dataclass
@@ -432,6 +432,7 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         else:
             verification = verify()[0]
         study.timings["verification_s"] = time.perf_counter() - t
+        fine = None
         if hold is not None and hold["refine"]:  # model steps too long for the DO within a period (backoff.py)
             period_h, coarse = layout.horizon.period_h, model_steps_per_period(layout, opts)
             finer = refined_steps_per_period(period_h, coarse)
@@ -440,6 +441,11 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
                        f"solving again on {period_h / finer:g}-hour steps")
             fine = run_optimization(layout, replace(opts, steps_per_period=finer, prescreen=False,
                                                     solve_budget_s=study.budget.remaining()), prog, base)
+            if fine.summary["status"] == "failed":  # no answer there: keep the coarse result, and say why
+                messages.append(f"solving again on {period_h / finer:g}-hour model steps gave no schedule: "
+                                + "; ".join(fine.summary["messages"][:1]))
+                fine = None
+        if fine is not None:
             if screen is not None:  # the pre-screen ran once, for both
                 from airtaper.optimize.results import jsonable
 
