@@ -14,6 +14,7 @@ import numpy as np
 import pytest
 
 from airtaper.errors import EXIT_INFEASIBLE, EXIT_OK
+from airtaper.optimize.compliance import DO_TOLERANCE_mg_L
 from airtaper.optimize.compliance import violations
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.marginal import raw_derivatives
@@ -163,9 +164,16 @@ def test_impossible_valve_limit_is_named_by_zone_and_period(three_tank_diurnal):
 def test_tapered_shape_on_the_plug_flow_demo(demo):
     """At the peak period the first aerated zone gets the most air per volume (plug-flow demand)."""
     res = run_optimization(with_periods(demo, 6, steps_per_period=2), StudyOptions(marginal=False))
-    assert res.summary["status"] in ("optimal", "unverified")
-    # the DO minimum holds in continuous time (issue 12) even on these 2-hour steps (Z6's DO maximum may not)
-    assert res.summary["verification"]["do_min_margin_mg_L"] >= -0.01
+    s = res.summary
+    assert res.exit_code == EXIT_OK and s["status"] == "optimal" and s["verified"] is True, s["messages"]
+    # the DO range holds in continuous time within the verification's tolerance (issue 12), the minimum and
+    # Z6's maximum: the 4-hour model steps could not follow the DO within a period (Z6 0.71 mg/L above its
+    # maximum), so the study was solved again on 30-minute steps (optimize/backoff.py). Measured there: 0.044
+    # mg/L out of range at most; the back-off's round to 0.01 has no solution on this layout (Z6's DO swings
+    # across its whole 1.0-2.5 mg/L band in 08:00-12:00 at a constant airflow), so that schedule is kept.
+    assert s["do_hold"]["coarse_steps_per_period"] == 1
+    margins = s["verification"]["do_margin_mg_L"]
+    assert all(margin >= -DO_TOLERANCE_mg_L for margin in margins.values()), margins
     sched = res.schedule
     totals = sched.groupby("period_start_h")["airflow_Sm3_h"].sum()
     peak = totals.idxmax()

@@ -177,13 +177,12 @@ def test_demo_with_a_blower_out_of_service_is_feasible_and_costs_no_less(demo):
     out = replace(layout, blowers=tuple(replace(b, out_of_service=(b.id == "B3")) for b in layout.blowers))
     less = run_optimization(out)
     for r in (full, less):
-        # feasible for every machine and grid, and the re-simulated effluent within its limits; on six
-        # 4-h periods the continuous-time DO between collocation points is not held here (with B3 out
-        # the night air sits at a centrifugal's minimum and Z6's DO rises above its maximum between
-        # points: the DO back-off's business, see the report)
-        assert r.summary["status"] in ("optimal", "unverified"), r.summary["messages"]
+        # feasible for every machine and grid, and verified: the re-simulated effluent within its limits and
+        # every zone's DO within its range over continuous time, to the verification's tolerance (on six
+        # 4-hour periods the study is solved again on 30-minute steps, optimize/backoff.py)
+        assert r.exit_code == EXIT_OK and r.summary["status"] == "optimal", r.summary["messages"]
         v = r.summary["verification"]
-        assert not [x for x in v["violations"] if "DO" not in x], v["violations"]
+        assert v["verified"] is True and v["violations"] == [], v["violations"]
         assert r.summary["dispatch"]["feasibility_breaches"] == []
     assert less.summary["dispatch"]["blowers"]["B3"]["running_h"] == 0.0
     assert (less.blowers[less.blowers["blower"] == "B3"]["running"] == False).all()  # noqa: E712

@@ -26,7 +26,7 @@ re-solved warm (tests, sensitivity studies).
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -37,10 +37,11 @@ from airtaper.layout.types import Layout
 from airtaper.model.train import build_cyclic_model
 from airtaper.plant import ResolvedPlant, resolve_plant
 from airtaper.optimize import elastic as _elastic
-from airtaper.optimize.backoff import hold_do
+from airtaper.optimize.backoff import hold_do, refined_steps_per_period
 from airtaper.optimize.baseline import Baseline, complying_baseline, run_baseline
 from airtaper.optimize.compliance import day_figures
-from airtaper.optimize.attempts import BASE_OPTIONS, LADDER, Rung, start_airflow, start_from_day
+from airtaper.optimize.attempts import (BASE_OPTIONS, LADDER, SOLVE_BUDGET_S, Rung, SolveBudget, start_airflow,
+                                       start_from_day)
 from airtaper.optimize.marginal import marginal_costs
 from airtaper.optimize.problem import (Problem, attach_problem, fix_slacks, max_power_line_kW, point_weights,
                                       relax_staging, settings_for)
@@ -78,6 +79,7 @@ class StudyOptions:
     staging: bool = True  # False: blowers as one machine, swing zones relaxed (the comparison in benchmarks/)
     ipopt_options: dict = field(default_factory=dict)
     ladder: tuple[Rung, ...] = LADDER
+    solve_budget_s: float = SOLVE_BUDGET_S  # CPU seconds of all Ipopt solves (optimize/attempts.py)
 
 
 @dataclass
@@ -123,6 +125,7 @@ class DiurnalOptimisation:
         self.baseline = baseline
         self.m = None
         self.problem: Problem | None = None  # set by build()
+        self.budget = SolveBudget(self.options.solve_budget_s)
 
     # --- setup ---------------------------------------------------------------------------
     def run_baseline(self) -> Baseline:
@@ -214,6 +217,7 @@ class DiurnalOptimisation:
     def _ipopt(self, rung: Rung, warm_start=False):
         opts = dict(BASE_OPTIONS)
         opts.update(rung.options)
+        opts.update(self.budget.options())
         opts.update(self.options.ipopt_options)
         if not rung.user_scaling:
             opts["nlp_scaling_method"] = "gradient-based"
@@ -251,7 +255,7 @@ class DiurnalOptimisation:
             # Ipopt converged to a point of local infeasibility: the limits most likely
             # conflict, and the elastic solve will say which (no more rungs).
             infeasible += r.status.value == "infeasible"
-            if infeasible >= INFEASIBLE_STOP:
+            if infeasible >= INFEASIBLE_STOP or self.budget.exhausted:
                 break
         self.result = None
         return None
@@ -262,6 +266,13 @@ class DiurnalOptimisation:
         if not r.ok:
             return self.solve()
         self.result = r
+        return r
+
+    def resolve_once(self, rung: Rung):
+        """One warm solve from the current point with ``rung`` (no ladder); the result (kept when it solved)."""
+        r = self._ipopt(rung, warm_start=True)
+        if r.ok:
+            self.result = r
         return r
 
     def elastic(self):
@@ -361,9 +372,12 @@ def saving_figures(base: Baseline, complying: Baseline | None, energy: float, co
 
 
 def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None = None,
-                     progress: Progress | None = None) -> StudyResult:
+                     progress: Progress | None = None, baseline: Baseline | None = None) -> StudyResult:
     """The whole study of a plant (module notes; a layout is resolved first); never raises for an infeasible or
-    failed solve."""
+    failed solve.
+
+    ``baseline``: the uniform-DO baseline when it is already simulated (the same options).
+    """
     t0 = time.perf_counter()
     plant = resolve_plant(plant)
     # the modules that still take a Layout (pre-screen, baseline, verification: they move onto the plant
@@ -377,7 +391,7 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
         screen = prescreen(layout)
         if not screen["feasible"]:
             return _screened_out(plant, screen, time.perf_counter() - t0)
-    study = DiurnalOptimisation(plant, opts, prog)
+    study = DiurnalOptimisation(plant, opts, prog, baseline=baseline)
     base = study.run_baseline()
     study.build()
     result = study.solve()
@@ -394,9 +408,18 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
             status = "infeasible"
             infeasibility = staging.findings
             messages.extend(f["message"] for f in staging.findings)
-    if result is None:
+    budget_ended = False
+    if result is None and study.budget.exhausted:
+        status = "failed"
+        budget_ended = True
+        messages.append(study.budget.message(study.attempts))
+    elif result is None:
         r, infeasibility = study.elastic()
-        if not r.ok:
+        if not r.ok and study.budget.exhausted:
+            status = "failed"
+            budget_ended = True
+            messages.append(study.budget.message(study.attempts))
+        elif not r.ok:
             status = "failed"
             messages.append(f"the solver failed on every attempt ({r.message})")
         elif infeasibility:
@@ -422,7 +445,9 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
 
         if status == "optimal" and opts.hold_do:
             staged = staging is not None and staging.dispatch is not None and not staging.findings
-            hold = hold_do(study, verify, prog, relax=(lambda: relax_staging(problem)) if staged else None)
+            coarse = refined_steps_per_period(plant.horizon.period_h, model_steps_per_period(layout, opts))
+            hold = hold_do(study, verify, prog, relax=(lambda: relax_staging(problem)) if staged else None,
+                           coarse=coarse is not None)
             verification = hold["verification"]
             result = study.result
             if hold["resolve_failed"]:
@@ -430,6 +455,33 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
         else:
             verification = verify()[0]
         study.timings["verification_s"] = time.perf_counter() - t
+        fine = None
+        if hold is not None and hold["refine"]:  # model steps too long for the DO within a period (backoff.py)
+            period_h, coarse = layout.horizon.period_h, model_steps_per_period(layout, opts)
+            finer = refined_steps_per_period(period_h, coarse)
+            step = period_h / coarse
+            prog.phase(f"the re-simulated schedule broke a limit on {step:g}-hour model steps: "
+                       f"solving again on {period_h / finer:g}-hour steps")
+            fine = run_optimization(plant, replace(opts, steps_per_period=finer, prescreen=False,
+                                                    solve_budget_s=study.budget.remaining()), prog, base)
+            if fine.summary["status"] == "failed":  # no answer there: keep the coarse result, and say why
+                messages.append(f"solving again on {period_h / finer:g}-hour model steps gave no schedule: "
+                                + "; ".join(fine.summary["messages"][:1]))
+                fine = None
+        if fine is not None:
+            if screen is not None:  # the pre-screen ran once, for both
+                from airtaper.optimize.results import jsonable
+
+                fine.summary["prescreen"] = jsonable(screen)
+                if screen["note"]:
+                    fine.summary["messages"].insert(0, f"pre-screen: {screen['note']}")
+            fine.summary["messages"].insert(0, f"solved on {period_h / finer:g}-hour model steps: on "
+                                               f"{step:g}-hour steps the re-simulated schedule broke a limit ("
+                                               + "; ".join(verification["violations"]) + ")")
+            if fine.summary.get("do_hold") is not None:
+                fine.summary["do_hold"]["coarse_steps_per_period"] = coarse
+                fine.summary["do_hold"]["coarse_seconds"] = time.perf_counter() - t0
+            return fine
         if not verification["verified"]:
             messages.append("WARNING: the re-simulated schedule breaks a limit: " + "; ".join(verification["violations"]))
     blowers_table, dispatch, base_dispatch, complying_dispatch = None, None, None, None
@@ -497,7 +549,7 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
         outside_tested_range(layout, _node_airflow(plant, base.day), base.day.node_period, "baseline")
     messages.extend(u["message"] for u in untested)
     exit_code = {"optimal": EXIT_OK, "infeasible": EXIT_INFEASIBLE, "unverified": EXIT_UNVERIFIED,
-                 "failed": EXIT_FAILURE}[status]
+                 "failed": EXIT_INFEASIBLE if budget_ended else EXIT_FAILURE}[status]
     study.timings["total_s"] = time.perf_counter() - t0
     summary = StudySummary(
         status=status,

@@ -299,19 +299,19 @@ def attach_problem(m, settings: ProblemSettings) -> Problem:
     so = lambda t, z: m.conc[t, z, "SO"]  # noqa: E731
     b.do_min_mg_L = pyo.Param(b.DO_ZONES, mutable=True,
                               initialize={z: float(plant.zone(z).do_min_mg_L) for z in do_zones})
-    # back-offs inside the DO range per zone and period (0 unless the re-simulation asks for
+    # back-offs inside the DO range per zone and time point (0 unless the re-simulation asks for
     # them: airtaper.optimize.backoff holds the range between the time points)
-    b.do_backoff_mg_L = pyo.Param(b.DO_ZONES, m.PERIODS, mutable=True, initialize=0.0)
+    b.do_backoff_mg_L = pyo.Param(b.DO_ZONES, m.STEPS, mutable=True, initialize=0.0)
     s = slack("do_min_slack", m.STEPS, b.DO_ZONES)
     b.do_min = pyo.Constraint(m.STEPS, b.DO_ZONES, rule=lambda b, t, z: (
-        so(t, z) + s[t, z] >= (b.do_min_mg_L[z] + b.do_backoff_mg_L[z, m.period_of_step[t]])
+        so(t, z) + s[t, z] >= (b.do_min_mg_L[z] + b.do_backoff_mg_L[z, t])
         * (b.swing_do_on[t, z] if z in b.SWING_ZONES else 1.0)))
     b.do_max_mg_L = pyo.Param(b.DO_MAX_ZONES, mutable=True,
                               initialize={z: float(plant.zone(z).do_max_mg_L) for z in do_max_zones})
-    b.do_max_backoff_mg_L = pyo.Param(b.DO_MAX_ZONES, m.PERIODS, mutable=True, initialize=0.0)
+    b.do_max_backoff_mg_L = pyo.Param(b.DO_MAX_ZONES, m.STEPS, mutable=True, initialize=0.0)
     s2 = slack("do_max_slack", m.STEPS, b.DO_MAX_ZONES)
     b.do_max = pyo.Constraint(m.STEPS, b.DO_MAX_ZONES, rule=lambda b, t, z: (
-        so(t, z) - s2[t, z] <= b.do_max_mg_L[z] - b.do_max_backoff_mg_L[z, m.period_of_step[t]]))
+        so(t, z) - s2[t, z] <= b.do_max_mg_L[z] - b.do_max_backoff_mg_L[z, t]))
 
     lim = plant.limits
     weights = effluent_weights(m)
