@@ -226,3 +226,25 @@ def test_do_extremes_bound_every_fine_sample(demo):
         fine_lows = fine.do_extremes[fine.do_extremes["zone"] == z.id].sort_values("period")["do_min_mg_L"]
         assert np.all(lows <= sampled + 1e-4), z.id
         assert np.max(np.abs(lows - fine_lows.to_numpy())) < 1e-3, z.id
+
+
+def test_a_start_at_a_period_runs_the_rest_of_that_day_first(demo, demo_day):
+    """``start_period``: a state at the start of a period, simulated on to 0 h before the first whole day (a lead-in).
+
+    The periodic day's own state at the start of period 22 (21 h), taken from its recorded
+    output, leads to the same periodic day in one day: the lead-in brings it to the day's
+    0 h state within the integrator's tolerances, far inside the day-repeat tolerance.
+    """
+    steps = demo.horizon.steps_per_period
+    k = demo.horizon.n_periods - 3
+    ts = demo_day.timeseries
+    at = ts[ts["time_h"] == ts["time_h"].unique()[k * steps]].set_index("zone")
+    state = {"zones": {z.id: at.loc[z.id, list(ASM1_COMPONENTS)].to_numpy(dtype=float) for z in demo.zones}}
+    waste = float(demo_day.effluent["q_waste_m3_d"].iloc[0])
+    again = simulate.periodic(demo, do_setpoint_mg_L=2.0, start_state=state, start_waste_m3_d=waste, start_period=k)
+    assert again.converged and again.days == 1
+    scale = np.maximum(np.abs(demo_day.y_end), 1.0)
+    assert np.max(np.abs(again.y_start - demo_day.y_end) / scale) < 1e-3  # the day-repeat tolerance
+    assert np.max(np.abs(again.effluent["SNH"].to_numpy() - demo_day.effluent["SNH"].to_numpy())) < 0.01  # mg/L
+    with pytest.raises(ValueError, match="start_period"):
+        simulate.periodic(demo, do_setpoint_mg_L=2.0, start_state=state, start_period=demo.horizon.n_periods)

@@ -119,11 +119,13 @@ def step_airflow(layout: Layout, res) -> tuple[dict, np.ndarray]:
 
 def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=None, *, start_state=None,
                  start_waste_m3_d: float | None = None, tol: float | None = None,
-                 max_days: int | None = None) -> SimDay:
+                 max_days: int | None = None, start_period: int = 0) -> SimDay:
     """Periodic day of ``layout`` under a schedule (zone -> per-period airflow) or DO control.
 
     ``start_state``/``start_waste_m3_d``: where the simulator's first day starts (its
-    default is the mean-load steady state); ``tol``: its day-repeat tolerance.
+    default is the mean-load steady state), at the start of the 0-based period
+    ``start_period`` (the simulator runs the rest of that day first, see
+    :func:`airtaper.simulate.periodic`); ``tol``: its day-repeat tolerance.
     """
     from airtaper.simulate import periodic
 
@@ -137,6 +139,8 @@ def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=
         kwargs["tol"] = tol
     if max_days is not None:
         kwargs["max_days"] = max_days
+    if start_period:
+        kwargs["start_period"] = start_period
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         res = periodic(layout, schedule=schedule, do_setpoint_mg_L=do_setpoint_mg_L, **kwargs)
