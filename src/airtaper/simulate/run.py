@@ -253,7 +253,8 @@ class PeriodicResult:
 
 def periodic(plant, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30, tol: float = 1e-3,
              rtol: float = 1e-5, atol: float = 1e-5, start_state=None,
-             start_waste_m3_d: float | None = None) -> PeriodicResult:
+             start_waste_m3_d: float | None = None, start_period: int = 0,
+             extrapolate: bool = True) -> PeriodicResult:
     """Simulate whole days from the mean-load steady state until the day repeats.
 
     Parameters
@@ -279,6 +280,16 @@ def periodic(plant, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30,
     start_waste_m3_d : float, optional
         With a target SRT, the first day's waste flow (default: the mean-load steady
         state's; with ``start_state``, the flow holding the SRT at that state and mean load).
+    start_period : int
+        0-based period at whose start the start state holds (default 0: at 0 h). The
+        simulator first runs the rest of that day from it (a lead-in, not recorded), so
+        that the first whole day starts from its own state at 0 h: a state taken some
+        hours before the day's end (e.g. from the optimiser) sheds its fast components'
+        differences (DO within minutes, NH4-N and NO3-N within hours) on the way.
+    extrapolate : bool
+        Start a day beyond the last one's end where one slow mode is heading
+        (:class:`DayExtrapolation`); the day is still simulated in full and accepted by the
+        same test. False: plain day after day.
     """
     t_start = time.perf_counter()
     plant = resolve_plant(plant)
@@ -310,10 +321,17 @@ def periodic(plant, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30,
         else:
             q_waste = float(system.rhs(y, mean_inp, detail=True)[1]["q_waste_m3_d"])
         inputs = [dataclasses.replace(inp, q_waste=q_waste) for inp in inputs]
+    if start_period:  # the lead-in: the rest of the day from the state at the start of ``start_period``
+        if not 0 < start_period < len(inputs):
+            raise ValueError(f"start_period {start_period} is not a period of the day (0 to {len(inputs) - 1})")
+        z_end, _, _ = _simulate_day_recorded(system, inputs[start_period:], np.concatenate((y, [0.0, 0.0])),
+                                             period_d, steps, rtol, atol, wcod, wn)
+        y = z_end[: system.n]
     converged = False
     change = np.inf
     days = 0
     rec = None
+    speed = DayExtrapolation()
     while days < max_days:
         days += 1
         z0 = np.concatenate((y, [0.0, 0.0]))
@@ -323,6 +341,7 @@ def periodic(plant, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30,
         rec = (y.copy(), z_end, rec_try, dense)
         y = y_end
         waste_change = 0.0
+        q_before = q_waste if srt_target is not None else None
         if srt_target is not None:
             q_new = _daily_waste_for_srt(system, inputs, rec_try, srt_target)
             waste_change = abs(q_new - q_waste) / max(q_waste, 1e-9)
@@ -332,6 +351,12 @@ def periodic(plant, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30,
         if change < tol and waste_change < tol:
             converged = True
             break
+        jump = speed.factor(rec[0], y, q_before, q_waste if srt_target is not None else None) if extrapolate else 0.0
+        if jump:  # the next day starts beyond this one's end, where the slow mode is heading
+            y = np.maximum(y + jump * (y - rec[0]), 0.0)
+            if srt_target is not None and q_waste != q_before:
+                q_waste = max(q_waste + jump * (q_waste - q_before), 0.0)
+                inputs = [dataclasses.replace(inp, q_waste=q_waste) for inp in inputs]
     y0_day, z_end, records, dense = rec
     y1_day = z_end[: system.n]
     # COD and N closure over the recorded day: the net inflows integrated by the solver
@@ -358,6 +383,62 @@ def periodic(plant, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30,
                           quadrature=quad, do_extremes=extremes,
                           setpoints_mg_L={z.id: float(v) for z, v in zip(plant.zones, sp) if np.isfinite(v)},
                           layer_states=layer_states)
+
+
+class DayExtrapolation:
+    """Extrapolation of the day-to-day iteration along its slowest mode (Aitken's delta-squared, vector form).
+
+    Day after day the start state ``y_k`` (and the waste flow holding an SRT target) approaches the
+    periodic day geometrically; once one mode is left, ``y_k+1 - y_k = r (y_k - y_k-1)`` with one
+    ratio ``r``, and the periodic state is ``y_k+1 + r / (1 - r) (y_k+1 - y_k)``. The ratio comes
+    from the last two day-to-day steps (scaled as the day-repeat test scales them); the jump is
+    taken only when three steps agree: the last two parallel within :data:`PARALLEL` (cosine) and
+    the ratio of the last two pairs within :data:`RATIO_AGREE` of each other, between 0 and
+    :data:`RATIO_MAX`. After a jump it waits for three new steps. On a demo plant at 12 C the
+    nitrifiers' mode has a ratio of 0.86 and took 20 days to repeat within 1e-3.
+
+    The jump only chooses where the next day starts: the day is still simulated in full and
+    accepted by the same day-repeat test, so the periodic day found is the simulator's own.
+
+    References: A. C. Aitken (1926), On Bernoulli's numerical solution of algebraic equations,
+    Proc. R. Soc. Edinb. 46, 289-305, doi:10.1017/S0370164600022070 (from memory).
+    """
+
+    PARALLEL = 0.99
+    RATIO_AGREE = 0.02
+    RATIO_MAX = 0.95
+
+    def __init__(self):
+        self.steps: list[np.ndarray] = []
+        self.ratios: list[float] = []
+
+    def factor(self, y0, y1, q0=None, q1=None) -> float:
+        """The jump factor ``r / (1 - r)`` after the day from ``y0`` (waste flow ``q0``) to ``y1`` (``q1``),
+        or 0.0 (no jump)."""
+        d = np.asarray(y1, dtype=float) - np.asarray(y0, dtype=float)
+        scale = np.maximum(np.abs(y1), 1.0)
+        if q0 is not None:
+            d = np.append(d, q1 - q0)
+            scale = np.append(scale, max(abs(q1), 1e-9))
+        self.steps.append(d)
+        if len(self.steps) < 2:
+            return 0.0
+        a, b = self.steps[-2] / scale, self.steps[-1] / scale  # both scaled alike (by the latest state)
+        aa = float(a @ a)
+        if aa <= 0.0:
+            return 0.0
+        r = float(a @ b) / aa
+        cos = float(a @ b) / np.sqrt(aa * float(b @ b)) if float(b @ b) > 0.0 else 0.0
+        self.ratios.append(r if cos >= self.PARALLEL else np.nan)
+        if len(self.ratios) < 2:
+            return 0.0
+        r0, r1 = self.ratios[-2], self.ratios[-1]
+        if not (np.isfinite(r0) and np.isfinite(r1) and 0.0 < r1 <= self.RATIO_MAX
+                and abs(r1 - r0) <= self.RATIO_AGREE):
+            return 0.0
+        self.steps.clear()
+        self.ratios.clear()
+        return r1 / (1.0 - r1)
 
 
 def _state_vector(system: System, state) -> np.ndarray:
