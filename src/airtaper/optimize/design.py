@@ -182,6 +182,7 @@ class Candidate:
     objective: float | None = None  # what the search minimises: CRF x capital + weighted day objectives
     gradient: dict[str, float] | None = None  # d objective / d count, money per year per diffuser
     whole: bool = True
+    failed_day: str | None = None  # the load day whose limits the grid cannot meet (or whose solve failed)
 
 
 class GridDesign:
@@ -210,6 +211,7 @@ class GridDesign:
         self.timings: dict[str, float] = {}
         self.candidates: list[Candidate] = []
         self._solved: dict[tuple, list[DaySolve]] = {}  # grid key -> every day's solve
+        self._failures = [0] * len(self.days)  # grids each day could not be solved on
         self.relaxed: dict[str, float] | None = None  # the continuous optimum
         self.relaxed_candidate: Candidate | None = None
         self.day_results: list | None = None  # the days' solver results at the loaded grid (duals)
@@ -246,6 +248,7 @@ class GridDesign:
     def _solve_day(self, i: int, counts: dict[str, float]):
         """Day ``i`` on the grid ``counts``, warm from its solution on the nearest solved grid: (DaySolve, result)."""
         st, m = self.studies[i], self.studies[i].m
+        self.progress.phase(f"load day {self.days[i].id} on the grid")
         for z in self.ids:
             m.diffuser_count[z] = float(counts[z])
         warm = self._nearest_state(i, counts)
@@ -286,19 +289,22 @@ class GridDesign:
             self.build()
         t0 = time.perf_counter()
         self.progress.phase("grid " + ", ".join(f"{z} {counts[z]:.6g}" for z in self.ids))
-        solves, results = [], []
-        for i in range(len(self.days)):
+        n = len(self.days)
+        solves, results = [None] * n, [None] * n
+        # a day that failed a grid before is solved first: a grid it fails again is ruled out sooner
+        for i in sorted(range(n), key=lambda k: -self._failures[k]):
             s, r = self._solve_day(i, counts)
-            solves.append(s)
-            results.append(r)
+            solves[i], results[i] = s, r
             self.timings["ipopt_s"] = self.timings.get("ipopt_s", 0.0) + s.ipopt_s
             self.timings["iterations"] = self.timings.get("iterations", 0) + s.iterations
             self.timings["day_solves"] = self.timings.get("day_solves", 0) + 1
             if not s.ok:  # a day that cannot be met rules the grid out: the other days need not be solved
+                self._failures[i] += 1
+                failed = self.days[i].id
                 break
-        self._solved[key] = solves
+        self._solved[key] = [s if s is not None else DaySolve("not solved") for s in solves]
         cand_counts = {z: (int(round(counts[z])) if whole else float(counts[z])) for z in self.ids}
-        if all(s.ok for s in solves):
+        if all(s is not None and s.ok for s in solves):
             cap = self.crf * grid_capital(self.layout, counts)
             w = np.array([d.days_per_year for d in self.days])
             grad = self.crf * self.layout.capital.cost_per_diffuser + sum(
@@ -309,8 +315,8 @@ class GridDesign:
                              gradient=dict(zip(self.ids, map(float, grad))), whole=whole)
             self.day_results = results
         else:
-            bad = next(s for s in solves if not s.ok)
-            cand = Candidate(cand_counts, None, bad.status, time.perf_counter() - t0, whole=whole)
+            bad = next(s for s in solves if s is not None and not s.ok)
+            cand = Candidate(cand_counts, None, bad.status, time.perf_counter() - t0, whole=whole, failed_day=failed)
         self.candidates.append(cand)
         return cand
 
@@ -684,7 +690,7 @@ def candidate_table(g: GridDesign) -> pd.DataFrame:
     """candidates.csv: every grid evaluated, in order, with its annual cost (empty: a day's limits not met)."""
     return pd.DataFrame([{**{f"count_{z}": c.counts[z] for z in g.ids}, "whole": c.whole,
                           "annual_cost": c.annual_cost, "objective": c.objective, "status": c.status,
-                          "seconds": c.seconds} for c in g.candidates])
+                          "failed_day": c.failed_day, "seconds": c.seconds} for c in g.candidates])
 
 
 def density_percent(layout: Layout, zone, count: float) -> float:
