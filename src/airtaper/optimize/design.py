@@ -32,8 +32,8 @@ Decomposition
 Continuous search
     A projected quasi-Newton search (BFGS curvature from the gradients, a box of the
     design ranges, backtracking on a failed day or too little decrease) over real counts,
-    from the current grid (or the top or middle of the ranges when the current grid fails
-    a day), until a step moves less than half a count step.
+    from the current grid (or the bottom, top or middle of the ranges when the current grid
+    fails a day), until a step moves less than half a count step.
 
 Whole counts (a small integer search)
     From the continuous optimum rounded to the nearest step (up, then down, when that grid
@@ -291,8 +291,9 @@ class GridDesign:
         self.progress.phase("grid " + ", ".join(f"{z} {counts[z]:.6g}" for z in self.ids))
         n = len(self.days)
         solves, results = [None] * n, [None] * n
-        # a day that failed a grid before is solved first: a grid it fails again is ruled out sooner
-        for i in sorted(range(n), key=lambda k: -self._failures[k]):
+        # a day that failed a grid before is solved first, then the rarest days (the peak and minimum days, which
+        # set the limits of a grid): a grid that fails one of them is ruled out sooner
+        for i in sorted(range(n), key=lambda k: (-self._failures[k], self.days[k].days_per_year)):
             s, r = self._solve_day(i, counts)
             solves[i], results[i] = s, r
             self.timings["ipopt_s"] = self.timings.get("ipopt_s", 0.0) + s.ipopt_s
@@ -352,10 +353,12 @@ class GridDesign:
             return dict(zip(self.ids, map(float, x)))
 
         first = start if start is not None else self.current
-        starts = [np.clip([first[z] for z in self.ids], lo, hi), hi, 0.5 * (lo + hi)]
+        # when the first start fails a day: the bottom of the ranges (a turndown or DO maximum fails with too many
+        # diffusers), then the top (a transfer limit fails with too few), then the middle
+        starts = [np.clip([first[z] for z in self.ids], lo, hi), lo, hi, 0.5 * (lo + hi)]
         c = None
         for x0 in starts:
-            c = self.evaluate(grid(x0), whole=False)
+            c = self.evaluate(grid(x0), whole=all(float(v).is_integer() for v in x0))
             if c.objective is not None:
                 x = np.array(x0, dtype=float)
                 break
