@@ -33,7 +33,8 @@ Continuous search
     A projected quasi-Newton search (BFGS curvature from the gradients, a box of the
     design ranges, backtracking on a failed day or too little decrease) over real counts,
     from the current grid (or the bottom, top or middle of the ranges when the current grid
-    fails a day), until a step moves less than half a count step.
+    fails a day; when two failed grids each meet the day the other fails, a bisection on the
+    segment between them), until a step moves less than half a count step.
 
 Whole counts (a small integer search)
     From the continuous optimum rounded to the nearest step (up, then down, when that grid
@@ -356,13 +357,19 @@ class GridDesign:
         # when the first start fails a day: the bottom of the ranges (a turndown or DO maximum fails with too many
         # diffusers), then the top (a transfer limit fails with too few), then the middle
         starts = [np.clip([first[z] for z in self.ids], lo, hi), lo, hi, 0.5 * (lo + hi)]
-        c = None
+        c, x, tried = None, None, []
         for x0 in starts:
+            x0 = np.array(x0, dtype=float)
             c = self.evaluate(grid(x0), whole=all(float(v).is_integer() for v in x0))
             if c.objective is not None:
-                x = np.array(x0, dtype=float)
+                x = x0
                 break
-        else:
+            tried.append((x0, c))
+            found = self._between(tried, grid)
+            if found is not None:
+                x, c = found
+                break
+        if x is None:
             return None
         # scaled coordinates: one unit is one count step
         u, g = x / s, np.array([c.gradient[z] for z in self.ids]) * s
@@ -401,6 +408,37 @@ class GridDesign:
         self.relaxed = dict(zip(self.ids, map(float, u * s)))
         self.relaxed_candidate = c
         return c
+
+    def _between(self, tried: list, grid) -> tuple | None:
+        """A grid meeting every day on the segment between two failed grids whose failed days are met on the other
+        one (the minimum day met by few diffusers, the peak day by many): bisection on the segment, towards the
+        end whose day failed less far from it. None when no such pair or no such grid."""
+        index = {d.id: i for i, d in enumerate(self.days)}
+
+        def met(c, day_id):
+            solves = self._solved.get(self._key(c.counts))
+            return bool(solves) and solves[index[day_id]].ok
+
+        for k in range(len(tried) - 1):
+            a, ca = tried[k]
+            b, cb = tried[-1]
+            if not (ca.failed_day and cb.failed_day and ca.failed_day != cb.failed_day
+                    and met(cb, ca.failed_day) and met(ca, cb.failed_day)):
+                continue
+            lo, hi = 0.0, 1.0  # 0: a (fails ca.failed_day), 1: b (fails cb.failed_day)
+            for _ in range(6):
+                t = 0.5 * (lo + hi)
+                x = a + t * (b - a)
+                c = self.evaluate(grid(x), whole=False)
+                if c.objective is not None:
+                    return x, c
+                if c.failed_day == ca.failed_day:
+                    lo = t
+                elif c.failed_day == cb.failed_day:
+                    hi = t
+                else:
+                    break
+        return None
 
     # --- whole counts ----------------------------------------------------------------------------
     def _nearest(self, rounding=round) -> dict[str, int]:
@@ -585,9 +623,11 @@ def run_design(layout: Layout, options: DesignOptions | None = None, progress: P
     if relaxed is None:
         statuses = {c.status for c in g.candidates}
         status = "infeasible" if "infeasible" in statuses else "failed"
-        messages.append("no grid tried in the design ranges meets every load day's limits" if status == "infeasible"
-                        else "the load days could not be solved on any start grid (" + ", ".join(sorted(statuses))
-                        + ")")
+        failed = sorted({c.failed_day for c in g.candidates if c.failed_day})
+        messages.append(("no grid tried in the design ranges meets every load day's limits" if status == "infeasible"
+                         else "the load days could not be solved on any start grid (" + ", ".join(sorted(statuses))
+                         + ")") + ("; load day(s) not met: " + ", ".join(failed) if failed else "")
+                        + " (candidates.csv lists the grids tried)")
         return _no_design(g, base, status, messages, t0)
     current = g.evaluate(g.current)
     current_rows = None
