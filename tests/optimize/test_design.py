@@ -248,7 +248,7 @@ def test_what_holds_each_zone_comes_from_the_duals(solved):
     do = max((r for r in rows if r["limit"] == "DO minimum"), key=lambda r: r["cost_per_year"])
     i = days[do["load_day"]]
     st, w = g.studies[i], g.days[i].days_per_year
-    ref = float(st.m.opt.reference)
+    ref = st.reference()
     before = ref * float(st.m.opt.objective.expr())
     lim = float(st.m.opt.do_min_mg_L[do["zone"]].value)
     try:

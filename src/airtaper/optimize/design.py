@@ -21,7 +21,9 @@ grid question); swing zones are relaxed.
 Decomposition
     The days couple only through the counts, so for given counts each day is its own
     solve (the counts are the day model's mutable Param ``diffuser_count``), warm from
-    that day's solution on the nearest grid solved before. The solve's duals give the
+    that day's solution on the nearest grid solved before, with at most
+    ``DesignOptions.max_iter`` iterations and one retry from the day's baseline start (a day
+    not solved so counts as not met on that grid). The solve's duals give the
     day's sensitivity ``dJ_d/dn_z`` (envelope theorem,
     :func:`airtaper.optimize.marginal.parameter_sensitivity`), so every evaluated grid
     comes with the gradient ``dA/dn_z = CRF x cost_per_diffuser + sum_d w_d dJ_d/dn_z``.
@@ -66,7 +68,7 @@ from __future__ import annotations
 
 import math
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -154,6 +156,9 @@ class DesignOptions:
     verify: bool = True
     max_moves: int = 20  # improving moves of the whole-count search at most
     max_continuous: int = 12  # grids evaluated by the continuous search at most
+    # Ipopt iterations of a day's solve on a grid (and of its one retry from the baseline start); a day not solved
+    # within them counts as not met on that grid. Common practice (no source): a warm day converges in tens.
+    max_iter: int = 200
     ipopt_options: dict = field(default_factory=dict)
 
 
@@ -259,17 +264,16 @@ class GridDesign:
                     v.set_value(float(val), skip_validation=True)
         if warm is None:  # the day's first solve: from its baseline start
             st._free_decisions()
-        r = st._ipopt(LADDER[0])
+        rungs = [replace(rung, options={**rung.options, "max_iter": self.options.max_iter}) for rung in LADDER[:2]]
+        r = st._ipopt(rungs[0])
         ipopt_s, iters = r.timings.ipopt_s, r.iterations
-        for rung in LADDER[1:3]:  # from the day's baseline start, as optimize retries
-            if r.ok or r.status.value == "infeasible":
-                break
-            st._restart(rung)
-            r = st._ipopt(rung)
+        if not (r.ok or r.status.value == "infeasible"):  # once more from the day's baseline start
+            st._restart(rungs[1])
+            r = st._ipopt(rungs[1])
             ipopt_s, iters = ipopt_s + r.timings.ipopt_s, iters + r.iterations
         if not r.ok:
             return DaySolve(r.status.value, ipopt_s=ipopt_s, iterations=iters), r
-        ref = float(m.opt.reference)
+        ref = st.reference()
         grad = ref * np.array(parameter_sensitivity(m, r, [m.diffuser_count[z] for z in self.ids]))
         state = np.array([v.value if v.value is not None else np.nan for v in self._vars[i]], dtype=float)
         return DaySolve(r.status.value, goal=float(pyo.value(m.opt.goal)),
@@ -510,7 +514,7 @@ class GridDesign:
         rows, saving = [], {}
         for day, st, r in zip(self.days, self.studies, self.day_results):
             m, b = st.m, st.m.opt
-            w, ref = day.days_per_year, float(b.reference)
+            w, ref = day.days_per_year, st.reference()
             tol = BINDING_SHARE * w * float(pyo.value(b.goal))
             value_of_one = dict(zip(self.ids, -w * ref * np.array(
                 parameter_sensitivity(m, r, [m.diffuser_count[z] for z in self.ids]))))
