@@ -394,6 +394,42 @@ def jsonable(obj):
     return obj
 
 
+def limit_margin(limit, value):
+    """How far a figure stays inside its limit (limit - value; None when either is missing)."""
+    return None if limit is None or value is None else limit - value
+
+
+def summary_figures(summary: dict) -> dict:
+    """The figures of one study's ``summary.json`` as one flat row: the home of every table that sets studies side
+    by side (a sweep's scenarios, ``airtaper compare``'s load days)."""
+    eff = summary.get("effluent") or {}
+    lim = summary.get("limits") or {}
+    dp = summary.get("dispatch") or {}
+    base = summary.get("baseline") or {}
+    timings = (summary.get("solver") or {}).get("timings") or {}
+    blowers = dp.get("blowers") or {}
+    status = summary.get("status")
+    return {
+        "status": status,
+        "energy_kWh_per_day": summary.get("energy_kWh_per_day"), "cost_per_day": summary.get("cost_per_day"),
+        "currency": summary.get("currency") or None,
+        "energy_cost_per_day": dp.get("energy_cost"), "demand_charge_per_day": dp.get("demand_charge"),
+        "start_costs_per_day": dp.get("start_costs"), "peak_kW": dp.get("peak_kW"),
+        "blower_running_h": sum(b["running_h"] for b in blowers.values()) if dp else None,
+        "baseline_energy_kWh_per_day": base.get("energy_kWh_per_day"), "baseline_cost_per_day": base.get("cost_per_day"),
+        "saving_percent": summary.get("saving_percent"), "cost_saving_percent": summary.get("cost_saving_percent"),
+        "verified": summary.get("verified"), "compliant": status == "optimal" and summary.get("verified") is not False,
+        "nh4_mean_mg_L": eff.get("nh4_mean_mg_L"), "nh4_max_mg_L": eff.get("nh4_max_mg_L"),
+        "tn_mean_mg_L": eff.get("tn_mean_mg_L"),
+        "nh4_mean_margin_mg_L": limit_margin(lim.get("nh4_mean_mg_L"), eff.get("nh4_mean_mg_L")),
+        "nh4_max_margin_mg_L": limit_margin(lim.get("nh4_max_mg_L"), eff.get("nh4_max_mg_L")),
+        "tn_mean_margin_mg_L": limit_margin(lim.get("tn_mean_mg_L"), eff.get("tn_mean_mg_L")),
+        "min_do_margin_mg_L": summary.get("min_do_margin_mg_L"),
+        "ipopt_s": timings.get("ipopt_s"),
+        "message": "; ".join(summary.get("messages") or []) or None,
+    }
+
+
 __all__ = ["BaselineSummary", "DispatchSummary", "EffluentFigures", "HEADER_COLUMNS", "Limits", "SCHEDULE_COLUMNS",
            "SUMMARY_KEYS", "Smoothing", "SolverSummary", "StudySummary", "SummaryPart", "TIMESERIES_COLUMNS", "UNSET",
-           "VerificationSummary", "empty_tables", "jsonable", "study_tables"]
+           "VerificationSummary", "empty_tables", "jsonable", "limit_margin", "study_tables", "summary_figures"]
