@@ -38,7 +38,7 @@ def run(args) -> int:
         return EXIT_OK
     from airtaper.optimize.prescreen import prescreen
 
-    screen = prescreen(plant.layout)
+    screen = prescreen(plant)
     if screen["note"]:
         print(f"pre-screen: {screen['note']}")
     if screen["feasible"]:
