@@ -85,7 +85,6 @@ class System:
 
     def __init__(self, plant: PlantData):
         self.plant = plant
-        lay = plant.layout
         self.nz = plant.nz
         self.n_layers = plant.n_layers
         self.nb = self.nz + self.n_layers
@@ -93,9 +92,9 @@ class System:
         self.V = plant.volume
         self.layered = plant.layered
         self.tss_per_cod = plant.tss_per_cod
-        clar = lay.clarifier
+        clar = plant.plant.clarifier
         self.effluent_tss = float(clar.effluent_tss_mg_L)
-        self.srt_target = lay.wasting.srt_d
+        self.srt_target = plant.plant.hydraulics.srt_d
         if self.layered:
             self.area = float(clar.area_m2)
             self.h = float(clar.height_m) / clar.layers
@@ -336,7 +335,7 @@ class System:
         """Structural non-zeros of the Jacobian (boolean, CSC)."""
         if self._pattern is not None:
             return self._pattern
-        lay = self.plant.layout
+        hyd = self.plant.plant.hydraulics
         nz, nb = self.nz, self.nb
         P = np.zeros((self.n, self.n), dtype=bool)
         all_c = np.arange(NC)
@@ -353,9 +352,9 @@ class System:
             put(i, i, all_c, all_c)
             if i > 0:
                 diag(i, i - 1)
-        for rec in lay.recycles:
-            diag(lay.zone_index(rec.to_zone), lay.zone_index(rec.from_zone))
-        r_to = lay.zone_index(lay.return_sludge.to_zone)
+        for src, dst, _ in hyd.recycles:
+            diag(dst, src)
+        r_to = hyd.ras_zone
         last = nz - 1
         srt = self.srt_target is not None
         if self.layered:
