@@ -2,9 +2,9 @@
 
 The demo (an invented plant) with a layered clarifier of 1,200 m2, on six 4-hour periods to keep the
 test short. The start takes the clarifier layers of the simulated day (before, the day's zones were
-paired with the mean-load steady settler). On this horizon both starts converge (24 against 30
-Ipopt iterations); on the demo's own 24 one-hour periods the optimisation does not converge yet
-(issue 10, part (a), left open): these tests hold what works.
+paired with the mean-load steady settler) and marches the model's own steps from there. On the demo's
+own 24 one-hour periods that start converges too (23 Ipopt iterations, measured once; about 6 minutes
+of Ipopt on the shared 2-core machine, too slow for the suite).
 """
 
 from __future__ import annotations
@@ -67,6 +67,7 @@ def reference(built):
 
 def test_start_takes_the_clarifier_layers_of_the_simulated_day(built):
     m, day = built.m, built.baseline.day
+    start_from_day(m, day, start_airflow(m, day), march=False)  # the day itself, before the model's own steps
     hours = point_hours(m)
     for t in m.STEPS:
         want = np.maximum(day.layers_at(hours[t]), 0.0)
@@ -81,12 +82,30 @@ def test_start_takes_the_clarifier_layers_of_the_simulated_day(built):
     worst = max(abs(con.body()) for con in m.zone_balance.values())
     layers, day.layers = day.layers, None  # the start as it was: the model's own mean-load clarifier
     try:
-        start_from_day(m, day, start_airflow(m, day))
+        start_from_day(m, day, start_airflow(m, day), march=False)
         before = max(abs(con.body()) for con in m.zone_balance.values())
     finally:
         day.layers = layers
         start_from_day(m, day, start_airflow(m, day))
     assert worst < 0.25 * before, (worst, before)
+
+
+def test_layered_start_marches_the_models_own_steps_from_the_simulated_day(built):
+    # From the simulated day the model's own time steps are marched through the day (march_cyclic):
+    # every balance then holds to the march's tolerance except on the first step, where the day
+    # closes on itself (the cyclic condition, left to Ipopt).
+    m, day = built.m, built.baseline.day
+    first = set(m.step_points[next(t for t in m.STEPS if m.stage_of_point[t] == 0)])
+
+    def worst():
+        balances = list(m.zone_balance.items()) + list(m.settler_balance.items())
+        return max(abs(con.body()) for key, con in balances if key[0] not in first)
+
+    start_from_day(m, day, start_airflow(m, day), march=False)
+    from_day = worst()
+    start_from_day(m, day, start_airflow(m, day))  # (as the study left it: the next tests solve from it)
+    marched = worst()
+    assert marched < 1e-4 * from_day, (marched, from_day)
 
 
 @pytest.mark.solver
