@@ -48,11 +48,12 @@ def _layout(tmp_path, extra: str = DESIGN_TABLES, name: str = "three_design.toml
 
 @pytest.mark.solver
 @pytest.mark.slow
-def test_design_writes_its_outputs_and_verifies_every_day(tmp_path, capsys):
+def test_design_writes_its_outputs_and_verifies_every_day(tmp_path, capsys, monkeypatch):
     out = tmp_path / "out"
-    assert main(["design", str(_layout(tmp_path)), "--out", str(out), "--quiet"]) == EXIT_OK
-    for name in ("design.csv", "load_days.csv", "schedule.csv", "candidates.csv", "summary.json", "taper.png",
-                 "train.png", "report.html"):
+    layout = _layout(tmp_path)
+    assert main(["design", str(layout), "--out", str(out), "--quiet"]) == EXIT_OK
+    for name in ("design.csv", "load_days.csv", "schedule.csv", "candidates.csv", "binding.csv", "summary.json",
+                 "taper.png", "train.png", "report.html"):
         assert (out / name).is_file(), name
     zones = pd.read_csv(out / "design.csv")
     assert list(zones["zone"]) == ["T1", "T2", "T3"]
@@ -68,6 +69,23 @@ def test_design_writes_its_outputs_and_verifies_every_day(tmp_path, capsys):
     assert "Caution." in html and "payback" in html
     text = capsys.readouterr().out
     assert "designed grid" in text and "payback" in text and "caution" in text
+    binding = pd.read_csv(out / "binding.csv")
+    assert set(binding["zone"]) <= set(zones["zone"]) and set(binding["case"]) <= {"transfer", "turndown", "mixing"}
+    assert "What holds each zone" in html
+
+    # `airtaper report DIR` rebuilds the same page from the folder, without solving, also once the layout is gone
+    import airtaper.optimize.design as design
+
+    monkeypatch.setattr(design, "run_design", lambda *a, **k: pytest.fail("report must not solve"))
+    first, train = (out / "report.html").read_bytes(), (out / "train.png").read_bytes()
+    (out / "report.html").unlink()
+    assert main(["report", str(out)]) == EXIT_OK
+    assert (out / "report.html").read_bytes() == first
+    layout.rename(tmp_path / "moved.toml")
+    (out / "report.html").unlink()
+    assert main(["report", str(out)]) == EXIT_OK
+    assert (out / "report.html").read_bytes() == first and (out / "train.png").read_bytes() == train
+    assert main(["report", str(out), "--layout", str(tmp_path / "missing.toml")]) == EXIT_INPUT
 
 
 def test_design_without_capital_is_one_line_exit_2(tmp_path, capsys):
@@ -107,6 +125,10 @@ def test_compare_of_a_layout_with_itself_shows_zero_differences(tmp_path, capsys
     for name in ("load_days.csv", "summary.json", "train_1.png", "train_2.png", "report.html"):
         assert (out / name).is_file(), name
     assert "Caution." in (out / "report.html").read_text()
+    first = (out / "report.html").read_bytes()
+    (out / "report.html").unlink()
+    assert main(["report", str(out)]) == EXIT_OK  # rebuilt from the folder: the same page
+    assert (out / "report.html").read_bytes() == first
 
 
 def test_compare_lists_every_bad_layout_at_once(tmp_path, capsys):

@@ -87,12 +87,21 @@ def test_three_tank_runs(tmp_path):
 
 
 def test_bad_aeration_inputs(demo):
-    with pytest.raises(InputError):
+    """Schedules and setpoints passed in code are past the input boundary: a caller's mistake is a ValueError
+    (the CLI's schedule reader reports a schedule file's problems as input errors, file/row/column)."""
+    with pytest.raises(ValueError, match="anoxic"):
         simulate.periodic(demo, do_setpoint_mg_L={"Z1": 2.0})  # anoxic zone
-    with pytest.raises(InputError):
+    with pytest.raises(ValueError, match="per period and zone"):
         simulate.periodic(demo, schedule=np.ones((3, 2)))
-    with pytest.raises(InputError):
+    with pytest.raises(ValueError, match="no zone"):
         simulate.steady_state(demo, do_setpoint_mg_L={"nope": 2.0})
+    with pytest.raises(ValueError, match="finite"):
+        simulate.steady_state(demo, airflow_Sm3_h=-np.ones(len(demo.zones)))
+    for call in (lambda: simulate.periodic(demo, schedule={"nope": 1.0}),
+                 lambda: simulate.periodic(demo, do_setpoint_mg_L={"Z1": 2.0})):
+        with pytest.raises(ValueError) as err:
+            call()
+        assert not isinstance(err.value, InputError)
 
 
 def test_srt_target_is_met_on_the_daily_mean_with_one_waste_flow(demo, demo_day):
@@ -226,6 +235,25 @@ def test_do_extremes_bound_every_fine_sample(demo):
         fine_lows = fine.do_extremes[fine.do_extremes["zone"] == z.id].sort_values("period")["do_min_mg_L"]
         assert np.all(lows <= sampled + 1e-4), z.id
         assert np.max(np.abs(lows - fine_lows.to_numpy())) < 1e-3, z.id
+
+
+def test_the_simulator_reads_only_the_resolved_plant():
+    """Past the boundary the simulator computes with the resolved plant alone: with its layout taken away it
+    gives the same steady state and the same day (to the last bit) as with it."""
+    from dataclasses import replace
+
+    from airtaper.plant import resolve_plant
+
+    plant = resolve_plant(load_layout("layouts/three_tank.toml"))
+    bare = replace(plant, layout=None)
+    a = simulate.steady_state(plant, do_setpoint_mg_L=2.0)
+    b = simulate.steady_state(bare, do_setpoint_mg_L=2.0)
+    np.testing.assert_array_equal(a.y, b.y)
+    day_a = simulate.periodic(plant, max_days=1)
+    day_b = simulate.periodic(bare, max_days=1)
+    np.testing.assert_array_equal(day_a.y_end, day_b.y_end)
+    assert day_b.plant is bare
+    assert summarize(day_b)["blower_kWh_per_day"] == summarize(day_a)["blower_kWh_per_day"]
 
 
 def test_a_start_at_a_period_runs_the_rest_of_that_day_first(demo, demo_day):

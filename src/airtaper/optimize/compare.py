@@ -20,9 +20,10 @@ from airtaper.errors import EXIT_FAILURE, EXIT_INFEASIBLE, EXIT_OK, EXIT_UNVERIF
 from airtaper.layout.loaddays import day_layout, layout_days
 from airtaper.layout.types import Layout
 from airtaper.optimize.diurnal import StudyOptions, run_optimization
-from airtaper.optimize.results import jsonable
+from airtaper.optimize.results import jsonable, summary_figures
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.progress import Progress, Silent
+from airtaper.plant import resolve_plant
 
 #: Figures of compare.csv that get a difference against the first layout (name -> column).
 DIFFERENCE_COLUMNS = ("energy_kWh_per_year", "cost_per_year", "diffusers", "aerated_volume_m3", "blowers_in_service",
@@ -40,24 +41,16 @@ class CompareResult:
     plans: list[Layout] = field(default_factory=list)
 
 
-def _margin(limit, value):
-    return None if limit is None or value is None else limit - value
-
-
 def _day_row(label: str, day, result) -> dict:
     s = result.summary
-    eff = s.get("effluent") or {}
-    lim = s.get("limits") or {}
-    disp = s.get("dispatch") or {}
-    running = sum(b["running_h"] for b in (disp.get("blowers") or {}).values()) if disp else None
+    row = summary_figures(s)
     marginal = "; ".join(f"{e['limit']} {e['where']}: {e['cost_per_day'] if e['cost_per_day'] is not None else 0:+.3g}"
                          f" per day {e['per']}" for e in s.get("marginal_costs") or [] if e.get("binding"))
-    return {"layout": label, "load_day": day.id, "days_per_year": day.days_per_year, "status": s["status"],
-            "energy_kWh_per_day": s.get("energy_kWh_per_day"), "cost_per_day": s.get("cost_per_day"),
-            "saving_percent": s.get("saving_percent"), "min_do_margin_mg_L": s.get("min_do_margin_mg_L"),
-            "nh4_mean_margin_mg_L": _margin(lim.get("nh4_mean_mg_L"), eff.get("nh4_mean_mg_L")),
-            "tn_mean_margin_mg_L": _margin(lim.get("tn_mean_mg_L"), eff.get("tn_mean_mg_L")),
-            "blower_running_h": running, "verified": s.get("verified"), "marginal_costs": marginal}
+    return {"layout": label, "load_day": day.id, "days_per_year": day.days_per_year,
+            **{k: row[k] for k in ("status", "energy_kWh_per_day", "cost_per_day", "saving_percent",
+                                   "min_do_margin_mg_L", "nh4_mean_margin_mg_L", "tn_mean_margin_mg_L",
+                                   "blower_running_h", "verified")},
+            "marginal_costs": marginal}
 
 
 def _weighted(rows: list[dict], key: str):
@@ -86,15 +79,15 @@ def run_compare(layouts: list[tuple[str, Layout]], n_periods: int | None = None,
             result = run_optimization(day_layout(layout, day), options, prog)
             mine.append(_day_row(label, day, result))
         day_rows += mine
-        grids = [z for z in layout.zones if z.grid is not None]
+        plant = resolve_plant(layout)
         status = max((r["status"] for r in mine), key=lambda s: _ORDER.get(s, 3))
         rows.append({
-            "layout": label, "plant": layout.plant.name, "status": status, "zones": len(layout.zones),
-            "aerated_volume_m3": sum(z.volume_m3 for z in layout.zones if z.aerated),
-            "total_volume_m3": sum(z.volume_m3 for z in layout.zones),
-            "diffusers": sum(z.grid.count for z in grids),
-            "diffusers_by_zone": " ".join(f"{z.id}:{z.grid.count}" for z in grids),
-            "blowers_in_service": sum(not b.out_of_service for b in layout.blowers),
+            "layout": label, "plant": plant.name, "status": status, "zones": plant.n_zones,
+            "aerated_volume_m3": sum(z.volume_m3 for z in plant.zones if z.aerated),
+            "total_volume_m3": sum(z.volume_m3 for z in plant.zones),
+            "diffusers": sum(d.diffusers for d in plant.diffused),
+            "diffusers_by_zone": " ".join(f"{d.id}:{d.diffusers}" for d in plant.diffused),
+            "blowers_in_service": sum(not b.out_of_service for b in plant.blowers),
             "load_days": len(mine), "days_per_year": sum(r["days_per_year"] for r in mine),
             "energy_kWh_per_year": _weighted(mine, "energy_kWh_per_day"),
             "cost_per_year": _weighted(mine, "cost_per_day"),
@@ -112,7 +105,7 @@ def run_compare(layouts: list[tuple[str, Layout]], n_periods: int | None = None,
         r["cost_vs_first_percent"] = (None if base in (None, 0) or value is None else 100.0 * (value - base) / base)
     worst = max((r["status"] for r in rows), key=lambda s: _ORDER.get(s, 3))
     code = {"optimal": EXIT_OK, "unverified": EXIT_UNVERIFIED, "infeasible": EXIT_INFEASIBLE}.get(worst, EXIT_FAILURE)
-    currency = next((lay.tariff.currency for _, lay in layouts if lay.tariff is not None), "")
+    currency = next((lay.tariff.currency for lay in plans if lay.tariff is not None), "")
     messages = [f"{r['layout']}: {r['status']}" for r in rows if r["status"] != "optimal"]
     summary = {"status": worst, "currency": currency, "reference": first["layout"], "layouts": rows,
                "messages": messages}

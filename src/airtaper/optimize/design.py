@@ -5,35 +5,56 @@ airflow per diffuser and raise the transfer efficiency (the SOTE curves), which 
 energy every day of the year but costs money once; the grid must also carry the peak
 day's oxygen demand, turn down on the minimum day and keep the mixing minimum.
 
-Relaxed problem (one NLP)
-    One cyclic model per load day (:func:`airtaper.layout.loaddays.day_layout`), each
-    with its own schedule, limits and objective terms exactly as ``optimize`` builds them
-    (:class:`~airtaper.optimize.diurnal.DiurnalOptimisation`), hung as sub-blocks of one
-    Pyomo model. The diffuser count of every diffused zone is one continuous variable
-    ``count[z]`` shared by every day (the days couple only through it: the problem grows
-    linearly with the number of days). Objective::
+Objective (money per year)::
 
-        (CRF x capital(count) + sum_d w_d x cost_d) / R + sum_d (w_d / W) x s x smoothing_d
+    A(n) = CRF x capital(n) + sum_d w_d x J_d(n)
 
-    with ``capital = sum_z (cost_per_diffuser x count_z + cost_per_zone)``, ``CRF`` the
-    capital recovery factor, ``w_d`` the days per year of day ``d`` (``W`` their sum),
-    ``cost_d`` the day's energy cost with its share of the demand charge (the tariff's
-    cost objective), ``R`` the annual cost of the baselines (a normaliser, so the
-    objective is about 1) and ``s`` the layout's smoothing weight. The blowers count as one
-    machine at the aggregate efficiency here (staging is a discrete choice per day that
-    does not change the grid question); swing zones are relaxed.
+with ``capital = sum_z (cost_per_diffuser x n_z + cost_per_zone)``, ``CRF`` the capital
+recovery factor, ``w_d`` the days per year of load day ``d`` (:func:`airtaper.layout.loaddays.day_layout`)
+and ``J_d(n)`` the optimum of day ``d``'s own problem on the grid ``n``, exactly as
+``optimize`` builds it (:class:`~airtaper.optimize.diurnal.DiurnalOptimisation`, the
+tariff's cost objective: energy cost with its share of the demand charge, plus the
+layout's small smoothing term in money). The blowers count as one machine at the
+aggregate efficiency here (staging is a discrete choice per day that does not change the
+grid question); swing zones are relaxed.
 
-    Each count stays inside the density range of its diffuser type's clean-water tests
-    (where the SOTE fit interpolates), at most the practical maximum density, in whole
-    multiples of the zone's ``count_step``: :func:`count_range`.
+Decomposition
+    The days couple only through the counts, so for given counts each day is its own
+    solve (the counts are the day model's mutable Param ``diffuser_count``), warm from
+    that day's solution on the nearest grid solved before, with at most
+    ``DesignOptions.max_iter`` iterations and one retry from the day's baseline start (a day
+    not solved so counts as not met on that grid). The solve's duals give the
+    day's sensitivity ``dJ_d/dn_z`` (envelope theorem,
+    :func:`airtaper.optimize.marginal.parameter_sensitivity`), so every evaluated grid
+    comes with the gradient ``dA/dn_z = CRF x cost_per_diffuser + sum_d w_d dJ_d/dn_z``.
+    The work grows linearly with the days (one solve per day per grid), and the days of
+    one grid are independent (they could run in parallel; here they run in turn, each
+    keeping its model for the next grid's warm start).
+
+Continuous search
+    A projected quasi-Newton search (BFGS curvature from the gradients, a box of the
+    design ranges, backtracking on a failed day or too little decrease) over real counts,
+    from the current grid (or the bottom, top or middle of the ranges when the current grid
+    fails a day; when two failed grids each meet the day the other fails, a bisection on the
+    segment between them), until a step moves less than half a count step.
 
 Whole counts (a small integer search)
-    From the relaxed optimum rounded to the nearest step, each zone is moved one step up
-    and one step down, every candidate re-solved (the counts fixed, the days' schedules
-    free, warm from the relaxed solution); the best improving move is taken until none
-    improves (when the rounded grid fails a day's limits, the search starts from every count rounded up, then
-    down). A candidate the warm start cannot solve is solved once more from every day's baseline start. Every
-    candidate and its annual cost are kept (``candidates``).
+    From the continuous optimum rounded to the nearest step (up, then down, when that grid
+    fails a day), each zone is moved one step in the direction its gradient says lowers the
+    annual cost, the most promising first, and the first move that lowers it is taken,
+    until none does. A move the gradient says raises the cost is not tried: the annual
+    cost lies above its tangent where it is convex in the count (diminishing returns of
+    the transfer efficiency, the turndown floor rising linearly); the tests check the
+    result against exhaustive enumeration on a small case. Each count stays inside the
+    density range of its diffuser type's clean-water tests (where the SOTE fit
+    interpolates), at most the practical maximum density, in whole multiples of the zone's
+    ``count_step`` (:func:`count_range`). Every grid evaluated is kept (``candidates``).
+
+What holds each zone
+    From the duals of every day's solve on the chosen grid: the annual value of 0.1 mg/L
+    of the zone's DO minimum or of 1 % of an airflow limit (transfer: the DO minimum, the
+    air per diffuser at its maximum, the valve; turndown: the air per diffuser at its
+    minimum; mixing: the mixing minimum), beside each day's value of one more diffuser.
 
 Verification and economics
     The chosen grid's schedule of every day is re-simulated by the independent simulator
@@ -47,7 +68,7 @@ from __future__ import annotations
 
 import math
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -57,16 +78,19 @@ from airtaper.errors import EXIT_FAILURE, EXIT_INFEASIBLE, EXIT_OK, EXIT_UNVERIF
 from airtaper.layout import defaults as D
 from airtaper.layout.loaddays import day_layout, layout_days, with_grid_counts
 from airtaper.layout.types import Layout
-from airtaper.optimize.attempts import BASE_OPTIONS, LADDER
+from airtaper.optimize.attempts import LADDER
 from airtaper.optimize.diurnal import DiurnalOptimisation, StudyOptions
 from airtaper.optimize.horizon import with_periods
+from airtaper.optimize.marginal import STEP_mg_L, parameter_sensitivity
 from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.results import jsonable, study_tables
 from airtaper.optimize.verify import verify_day
-from airtaper.solve import solve_nlp
+from airtaper.plant import resolve_plant
 
-#: Relative closeness to a bound at which a zone's airflow counts as held by it (binding).
-BINDING_TOLERANCE = 2e-3
+#: A day's limit binds a zone when 0.1 mg/L (DO) or 1 % (airflow) of it is worth more than this share of the day's
+#: annual cost (an interior-point dual of a limit that does not bind is many orders smaller). Common practice
+#: (no source).
+BINDING_SHARE = 1e-5
 
 
 # --- economics (pure) ---------------------------------------------------------------------
@@ -131,19 +155,44 @@ class DesignOptions:
     steps_per_period: int | None = None
     verify: bool = True
     max_moves: int = 20  # improving moves of the whole-count search at most
+    max_continuous: int = 12  # grids evaluated by the continuous search at most
+    # Ipopt iterations of a day's solve on a grid (and of its one retry from the baseline start); a day not solved
+    # within them counts as not met on that grid. Common practice (no source): a warm day converges in tens.
+    max_iter: int = 200
     ipopt_options: dict = field(default_factory=dict)
 
 
 @dataclass
+class DaySolve:
+    """One load day solved on one grid (module notes)."""
+
+    status: str
+    goal: float | None = None  # the day's cost (energy cost and its share of the demand charge)
+    objective: float | None = None  # the day's own objective in money: goal + reference x smoothing term
+    gradient: np.ndarray | None = None  # d objective / d count of every zone, money per diffuser
+    state: np.ndarray | None = None  # the day's variable values at the solution
+    ipopt_s: float = 0.0
+    iterations: int = 0
+
+    @property
+    def ok(self) -> bool:
+        return self.goal is not None
+
+
+@dataclass
 class Candidate:
-    counts: dict[str, int]
-    annual_cost: float | None  # None: a day's limits cannot be met (or the solve failed)
+    counts: dict[str, float]  # whole counts (int) for a whole-count grid, floats for the continuous search
+    annual_cost: float | None  # CRF x capital + weighted day costs; None: a day's limits cannot be met
     status: str
     seconds: float
+    objective: float | None = None  # what the search minimises: CRF x capital + weighted day objectives
+    gradient: dict[str, float] | None = None  # d objective / d count, money per year per diffuser
+    whole: bool = True
+    failed_day: str | None = None  # the load day whose limits the grid cannot meet (or whose solve failed)
 
 
 class GridDesign:
-    """The design problem of one layout over its load days (module notes)."""
+    """The decomposed design of one layout over its load days (module notes)."""
 
     def __init__(self, layout: Layout, options: DesignOptions | None = None, progress: Progress | None = None):
         if layout.capital is None or layout.tariff is None:
@@ -152,187 +201,298 @@ class GridDesign:
         if self.options.n_periods is not None and self.options.n_periods != layout.horizon.n_periods:
             layout = with_periods(layout, self.options.n_periods)
         self.layout = layout
+        self.plant = resolve_plant(layout)
         self.progress = progress or Silent()
         self.days = layout_days(layout)
-        self.zones = [z for z in layout.zones if z.has_diffusers]
+        self.zones = [d.zone for d in self.plant.diffused]
         if not self.zones:
             raise ModelError("the layout has no diffuser grids to design")
         self.ids = [z.id for z in self.zones]
+        self.steps = np.array([float(z.grid.count_step) for z in self.zones])
         self.ranges = {z.id: count_range(layout, z) for z in self.zones}
-        self.current = {z.id: z.grid.count for z in self.zones}
+        self.current = {d.id: d.diffusers for d in self.plant.diffused}
         self.crf = capital_recovery_factor(layout.capital.interest_rate, layout.capital.life_years)
         self.studies: list[DiurnalOptimisation] = []
-        self.model = None
+        self._vars: list[list] = []
         self.timings: dict[str, float] = {}
         self.candidates: list[Candidate] = []
-        self._states: dict[tuple, list] = {}
-        self.relaxed: dict[str, float] | None = None
-        self.relaxed_result = None
+        self._solved: dict[tuple, list[DaySolve]] = {}  # grid key -> every day's solve
+        self._failures = [0] * len(self.days)  # grids each day could not be solved on
+        self.relaxed: dict[str, float] | None = None  # the continuous optimum
+        self.relaxed_candidate: Candidate | None = None
+        self.day_results: list | None = None  # the days' solver results at the loaded grid (duals)
 
     # --- building ---------------------------------------------------------------------------
     def build(self) -> None:
+        """One study per load day, each with its own model and its counts as the model's Param."""
         t0 = time.perf_counter()
-        M = pyo.ConcreteModel(name="design")
-        M.ZONES = pyo.Set(initialize=self.ids, ordered=True)
-        M.count = pyo.Var(M.ZONES, bounds=lambda M, z: self.ranges[z],
-                          initialize=lambda M, z: float(min(max(self.current[z], self.ranges[z][0]),
-                                                            self.ranges[z][1])))
-        opts = StudyOptions(objective="cost", staging=False, steps_per_period=self.options.steps_per_period)
-        total_w = sum(d.days_per_year for d in self.days)
+        opts = StudyOptions(objective="cost", staging=False, steps_per_period=self.options.steps_per_period,
+                            ipopt_options=dict(self.options.ipopt_options))
         for i, day in enumerate(self.days, start=1):
             self.progress.phase(f"load day {day.id}: baseline and model ({i} of {len(self.days)})")
             st = DiurnalOptimisation(day_layout(self.layout, day), opts, self.progress)
-            st.build(diffuser_count=M.count)
-            st.m.opt.objective.deactivate()
-            M.add_component(f"day_{i}", st.m)
+            st.build()
             self.studies.append(st)
-        cap = self.layout.capital
-        M.capital = pyo.Expression(expr=sum(cap.cost_per_diffuser * M.count[z] + cap.cost_per_zone for z in self.ids))
-        M.energy_cost_per_year = pyo.Expression(expr=sum(d.days_per_year * st.m.opt.goal
-                                                         for d, st in zip(self.days, self.studies)))
-        self.reference = sum(d.days_per_year * st.m.opt.reference for d, st in zip(self.days, self.studies)) \
-            + self.crf * grid_capital(self.layout, self.current)
-        M.annual_cost = pyo.Expression(expr=self.crf * M.capital + M.energy_cost_per_year)
-        M.objective = pyo.Objective(expr=M.annual_cost / self.reference + sum(
-            d.days_per_year / total_w * st.m.opt.smoothing_weight * st.m.opt.smoothing
-            for d, st in zip(self.days, self.studies)), sense=pyo.minimize)
-        # scaling: the days' own factors (on their blocks), the counts by their size, the objective by the
-        # smallest of the days' objective factors (each day's objective had the same form)
-        M.scaling_factor = pyo.Suffix(direction=pyo.Suffix.EXPORT)
-        for z in self.ids:
-            M.scaling_factor[M.count[z]] = 1.0 / max(self.ranges[z][1], 1.0)
-        factors = [st.m.scaling_factor[st.m.opt.objective] for st in self.studies
-                   if st.m.opt.objective in st.m.scaling_factor]
-        M.scaling_factor[M.objective] = float(min(factors)) if factors else 1.0
-        self.model = M
+            self._vars.append(list(st.m.component_data_objects(pyo.Var, descend_into=True)))
         self.timings["build_s"] = time.perf_counter() - t0
 
-    # --- solving ----------------------------------------------------------------------------
-    def _solve(self, rung_options: dict, warm: bool = False):
-        opts = dict(BASE_OPTIONS)
-        opts.update(rung_options)
-        opts.update(self.options.ipopt_options)
-        r = solve_nlp(self.model, opts, callback=self.progress.iteration, warm_start=warm)
-        self.progress.done()
-        for key, value in (("ipopt_s", r.timings.ipopt_s), ("conversion_s", r.timings.conversion_s),
-                           ("derivatives_s", r.timings.derivatives_s)):
-            self.timings[key] = self.timings.get(key, 0.0) + value
-        self.timings["iterations"] = self.timings.get("iterations", 0) + r.iterations
-        return r
+    # --- one grid: every day on its own -------------------------------------------------------
+    def _key(self, counts: dict[str, float]) -> tuple:
+        return tuple(round(float(counts[z]), 6) for z in self.ids)
 
-    def solve_relaxed(self):
-        """The relaxed design (counts continuous); returns the solver result (``ok`` or not)."""
-        if self.model is None:
-            self.build()
-        M = self.model
+    def _nearest_state(self, i: int, counts: dict[str, float]) -> np.ndarray | None:
+        """Day ``i``'s solution on the solved grid nearest ``counts`` (distance in count steps)."""
+        x = np.array([float(counts[z]) for z in self.ids]) / self.steps
+        best, dist = None, math.inf
+        for key, solves in self._solved.items():
+            if len(solves) > i and solves[i].ok:
+                d = float(np.abs(np.array(key) / self.steps - x).sum())
+                if d < dist:
+                    best, dist = solves[i].state, d
+        return best
+
+    def _solve_day(self, i: int, counts: dict[str, float]):
+        """Day ``i`` on the grid ``counts``, warm from its solution on the nearest solved grid: (DaySolve, result)."""
+        st, m = self.studies[i], self.studies[i].m
+        self.progress.phase(f"load day {self.days[i].id} on the grid")
         for z in self.ids:
-            M.count[z].unfix()
-        self.progress.phase("the relaxed design: every load day's schedule and the shared diffuser counts")
-        r = None
-        for k, rung in enumerate(LADDER[:3]):
-            for st in self.studies:
-                if k == 0:
-                    st._free_decisions()
-                else:
-                    st._restart(rung)
-            r = self._solve(rung.options)
-            if r.ok or r.status.value == "infeasible":
-                break
-        self.relaxed_result = r
-        if r.ok:
-            # within the range (Ipopt may end a hair outside a bound, inside its tolerance)
-            self.relaxed = {z: min(max(float(M.count[z].value), self.ranges[z][0]), self.ranges[z][1])
-                            for z in self.ids}
-            self._relaxed_state = self._snapshot()
-        return r
+            m.diffuser_count[z] = float(counts[z])
+        warm = self._nearest_state(i, counts)
+        if warm is not None:
+            for v, val in zip(self._vars[i], warm):
+                if not v.fixed:
+                    v.set_value(float(val), skip_validation=True)
+        if warm is None:  # the day's first solve: from its baseline start
+            st._free_decisions()
+        rungs = [replace(rung, options={**rung.options, "max_iter": self.options.max_iter}) for rung in LADDER[:2]]
+        r = st._ipopt(rungs[0])
+        ipopt_s, iters = r.timings.ipopt_s, r.iterations
+        if not (r.ok or r.status.value == "infeasible"):  # once more from the day's baseline start
+            st._restart(rungs[1])
+            r = st._ipopt(rungs[1])
+            ipopt_s, iters = ipopt_s + r.timings.ipopt_s, iters + r.iterations
+        if not r.ok:
+            return DaySolve(r.status.value, ipopt_s=ipopt_s, iterations=iters), r
+        ref = st.reference()
+        grad = ref * np.array(parameter_sensitivity(m, r, [m.diffuser_count[z] for z in self.ids]))
+        state = np.array([v.value if v.value is not None else np.nan for v in self._vars[i]], dtype=float)
+        return DaySolve(r.status.value, goal=float(pyo.value(m.opt.goal)),
+                        objective=ref * float(pyo.value(m.opt.objective)), gradient=grad, state=state,
+                        ipopt_s=ipopt_s, iterations=iters), r
 
-    def _snapshot(self) -> list:
-        return [(v, v.value) for v in self.model.component_data_objects(pyo.Var, descend_into=True)]
+    def evaluate(self, counts: dict[str, float], whole: bool = True) -> Candidate:
+        """Annual cost of the grid ``counts``: every load day's schedule optimised on it, one day at a time.
 
-    def _restore(self, state: list) -> None:
-        for v, val in state:
-            if not v.fixed:
-                v.set_value(val, skip_validation=True)
-
-    def evaluate(self, counts: dict[str, int]) -> Candidate:
-        """Annual cost of the grid ``counts`` with every day's schedule optimised (counts fixed)."""
-        key = tuple(int(counts[z]) for z in self.ids)
+        Days are independent given the counts; they run one after the other here (each keeps its model for the
+        warm starts of the next grid).
+        """
+        key = self._key(counts)
         for c in self.candidates:
-            if tuple(c.counts[z] for z in self.ids) == key:
+            if self._key(c.counts) == key:
                 return c
-        if self.model is None:
+        if not self.studies:
             self.build()
-        M = self.model
         t0 = time.perf_counter()
-        self._fix_counts(counts)
-        if getattr(self, "_relaxed_state", None) is not None:
-            self._restore(self._relaxed_state)
+        self.progress.phase("grid " + ", ".join(f"{z} {counts[z]:.6g}" for z in self.ids))
+        n = len(self.days)
+        solves, results = [None] * n, [None] * n
+        # a day that failed a grid before is solved first, then the rarest days (the peak and minimum days, which
+        # set the limits of a grid): a grid that fails one of them is ruled out sooner
+        for i in sorted(range(n), key=lambda k: (-self._failures[k], self.days[k].days_per_year)):
+            s, r = self._solve_day(i, counts)
+            solves[i], results[i] = s, r
+            self.timings["ipopt_s"] = self.timings.get("ipopt_s", 0.0) + s.ipopt_s
+            self.timings["iterations"] = self.timings.get("iterations", 0) + s.iterations
+            self.timings["day_solves"] = self.timings.get("day_solves", 0) + 1
+            if not s.ok:  # a day that cannot be met rules the grid out: the other days need not be solved
+                self._failures[i] += 1
+                failed = self.days[i].id
+                break
+        self._solved[key] = [s if s is not None else DaySolve("not solved") for s in solves]
+        cand_counts = {z: (int(round(counts[z])) if whole else float(counts[z])) for z in self.ids}
+        if all(s is not None and s.ok for s in solves):
+            cap = self.crf * grid_capital(self.layout, counts)
+            w = np.array([d.days_per_year for d in self.days])
+            grad = self.crf * self.layout.capital.cost_per_diffuser + sum(
+                wd * s.gradient for wd, s in zip(w, solves))
+            cand = Candidate(cand_counts, cap + float(sum(wd * s.goal for wd, s in zip(w, solves))), "optimal",
+                             time.perf_counter() - t0, objective=cap + float(sum(
+                                 wd * s.objective for wd, s in zip(w, solves))),
+                             gradient=dict(zip(self.ids, map(float, grad))), whole=whole)
+            self.day_results = results
         else:
-            for st in self.studies:
-                st._free_decisions()
-        self.progress.phase("grid " + ", ".join(f"{z} {counts[z]}" for z in self.ids))
-        r = self._solve(LADDER[0].options)
-        if not r.ok:  # not from the relaxed design's point: once more from every day's baseline start
-            for st in self.studies:
-                st._restart(LADDER[1])
-            r = self._solve(LADDER[1].options)
-        value = float(pyo.value(M.annual_cost)) if r.ok else None
-        cand = Candidate({z: int(counts[z]) for z in self.ids}, value, r.status.value, time.perf_counter() - t0)
+            bad = next(s for s in solves if s is not None and not s.ok)
+            cand = Candidate(cand_counts, None, bad.status, time.perf_counter() - t0, whole=whole, failed_day=failed)
         self.candidates.append(cand)
-        if r.ok:
-            self._states[key] = self._snapshot()
         return cand
 
     def load(self, counts: dict[str, int]) -> None:
-        """Put the solved state of an evaluated grid back into the model."""
-        key = tuple(int(counts[z]) for z in self.ids)
-        self._fix_counts(counts)
-        self._restore(self._states[key])
+        """Put the solved state of an evaluated grid back into every day's model, with its duals (a warm re-solve
+        from the solution: a few iterations)."""
+        key = self._key(counts)
+        if key not in self._solved or not all(s.ok for s in self._solved[key]):
+            raise ModelError("load: the grid was not solved on every day")
+        results = []
+        for i, s in enumerate(self._solved[key]):
+            st, m = self.studies[i], self.studies[i].m
+            for z in self.ids:
+                m.diffuser_count[z] = float(counts[z])
+            for v, val in zip(self._vars[i], s.state):
+                if not v.fixed:
+                    v.set_value(float(val), skip_validation=True)
+            r = st._ipopt(LADDER[0])
+            if not r.ok:
+                raise ModelError(f"load day {self.days[i].id}: the re-solve on its own solution failed ({r.message})")
+            results.append(r)
+        self.day_results = results
 
-    def _fix_counts(self, counts: dict[str, int]) -> None:
-        """Fix the counts (the current grid may lie outside the design range: no bound check)."""
-        for z in self.ids:
-            self.model.count[z].set_value(float(counts[z]), skip_validation=True)
-            self.model.count[z].fix()
+    # --- the continuous search (counts real) ------------------------------------------------------
+    def solve_relaxed(self, start: dict[str, float] | None = None) -> Candidate | None:
+        """The continuous optimum of the counts (module notes), from ``start`` (default: the current grid);
+        None when no start grid meets every day."""
+        lo = np.array([self.ranges[z][0] for z in self.ids], dtype=float)
+        hi = np.array([self.ranges[z][1] for z in self.ids], dtype=float)
+        s = self.steps
 
-    def _nearest(self) -> dict[str, int]:
+        def grid(x):
+            return dict(zip(self.ids, map(float, x)))
+
+        first = start if start is not None else self.current
+        # when the first start fails a day: the bottom of the ranges (a turndown or DO maximum fails with too many
+        # diffusers), then the top (a transfer limit fails with too few), then the middle
+        starts = [np.clip([first[z] for z in self.ids], lo, hi), lo, hi, 0.5 * (lo + hi)]
+        c, x, tried = None, None, []
+        for x0 in starts:
+            x0 = np.array(x0, dtype=float)
+            c = self.evaluate(grid(x0), whole=all(float(v).is_integer() for v in x0))
+            if c.objective is not None:
+                x = x0
+                break
+            tried.append((x0, c))
+            found = self._between(tried, grid)
+            if found is not None:
+                x, c = found
+                break
+        if x is None:
+            return None
+        # scaled coordinates: one unit is one count step
+        u, g = x / s, np.array([c.gradient[z] for z in self.ids]) * s
+        ulo, uhi = lo / s, hi / s
+        radius = np.maximum(0.25 * (uhi - ulo), 1.0)
+        H = np.diag(np.maximum(np.abs(g), 1e-12) / radius)
+        f = c.objective
+        for _ in range(self.options.max_continuous - 1):
+            free = ~(((u <= ulo + 1e-9) & (g > 0)) | ((u >= uhi - 1e-9) & (g < 0)))
+            if not free.any() or np.max(np.abs(g[free])) < 1e-7 * abs(f):
+                break  # a step changes the annual cost by less than 1e-7 of it
+            d = np.zeros_like(u)
+            d[free] = -np.linalg.solve(H[np.ix_(free, free)], g[free])
+            d = np.clip(d, -radius, radius)
+            accepted = False
+            for _half in range(4):
+                u_new = np.clip(u + d, ulo, uhi)
+                step = u_new - u
+                if np.max(np.abs(step)) < 0.05:  # below a twentieth of a count step: converged
+                    break
+                c_new = self.evaluate(grid(u_new * s), whole=False)
+                if c_new.objective is not None and c_new.objective <= f + 1e-4 * float(g @ step):
+                    accepted = True
+                    break
+                d = 0.5 * d
+            if not accepted:
+                break
+            g_new = np.array([c_new.gradient[z] for z in self.ids]) * s
+            y = g_new - g
+            if float(y @ step) > 1e-12 * abs(f):  # BFGS update of the curvature
+                Hs = H @ step
+                H = H - np.outer(Hs, Hs) / float(step @ Hs) + np.outer(y, y) / float(y @ step)
+            u, g, f, c = u_new, g_new, c_new.objective, c_new
+            if np.max(np.abs(step)) < 0.5:  # moved by less than half a step: the whole-count search takes over
+                break
+        self.relaxed = dict(zip(self.ids, map(float, u * s)))
+        self.relaxed_candidate = c
+        return c
+
+    def _between(self, tried: list, grid) -> tuple | None:
+        """A grid meeting every day on the segment between two failed grids whose failed days are met on the other
+        one (the minimum day met by few diffusers, the peak day by many): bisection on the segment, towards the
+        end whose day failed less far from it. None when no such pair or no such grid."""
+        index = {d.id: i for i, d in enumerate(self.days)}
+
+        def met(c, day_id):
+            solves = self._solved.get(self._key(c.counts))
+            return bool(solves) and solves[index[day_id]].ok
+
+        for k in range(len(tried) - 1):
+            a, ca = tried[k]
+            b, cb = tried[-1]
+            if not (ca.failed_day and cb.failed_day and ca.failed_day != cb.failed_day
+                    and met(cb, ca.failed_day) and met(ca, cb.failed_day)):
+                continue
+            lo, hi = 0.0, 1.0  # 0: a (fails ca.failed_day), 1: b (fails cb.failed_day)
+            for _ in range(6):
+                t = 0.5 * (lo + hi)
+                x = a + t * (b - a)
+                c = self.evaluate(grid(x), whole=False)
+                if c.objective is not None:
+                    return x, c
+                if c.failed_day == ca.failed_day:
+                    lo = t
+                elif c.failed_day == cb.failed_day:
+                    hi = t
+                else:
+                    break
+        return None
+
+    # --- whole counts ----------------------------------------------------------------------------
+    def _nearest(self, rounding=round) -> dict[str, int]:
         out = {}
         for z in self.zones:
             step = z.grid.count_step
             lo, hi = self.ranges[z.id]
-            out[z.id] = int(min(max(step * round(self.relaxed[z.id] / step), lo), hi))
+            out[z.id] = int(min(max(step * rounding(self.relaxed[z.id] / step), lo), hi))
         return out
 
+    def _better(self, c: Candidate, best: Candidate) -> bool:
+        return c.objective is not None and c.objective < best.objective - 1e-9 * abs(best.objective)
+
     def search(self) -> Candidate | None:
-        """Whole counts by the neighbour search from the rounded relaxed optimum (module notes)."""
+        """Whole counts by the neighbour search from the rounded continuous optimum (module notes)."""
         if self.relaxed is None:
             raise ModelError("solve the relaxed design first")
-        best = self.evaluate(self._nearest())
-        for rounding in (math.ceil, math.floor):  # when the nearest grid fails a day: every count up, then down
-            if best.annual_cost is not None:
+        best = None
+        for rounding in (round, math.ceil, math.floor):  # when the nearest grid fails a day: up, then down
+            best = self.evaluate(self._nearest(rounding))
+            if best.objective is not None:
                 break
-            steps = {z.id: z.grid.count_step * rounding(self.relaxed[z.id] / z.grid.count_step) for z in self.zones}
-            best = self.evaluate({z: int(min(max(n, self.ranges[z][0]), self.ranges[z][1])) for z, n in steps.items()})
-        if best.annual_cost is None:
+        if best.objective is None:
             return None
         for _ in range(self.options.max_moves):
             moves = []
             for z in self.zones:
                 for sign in (1, -1):
                     n = best.counts[z.id] + sign * z.grid.count_step
-                    if self.ranges[z.id][0] <= n <= self.ranges[z.id][1]:
-                        moves.append(dict(best.counts, **{z.id: n}))
-            tried = [self.evaluate(c) for c in moves]
-            better = [c for c in tried if c.annual_cost is not None and c.annual_cost < best.annual_cost - 1e-9 * abs(
-                best.annual_cost)]
-            if not better:
+                    if not self.ranges[z.id][0] <= n <= self.ranges[z.id][1]:
+                        continue
+                    predicted = best.gradient[z.id] * sign * z.grid.count_step
+                    # the annual cost lies above its tangent (convex in the count): a move the gradient says
+                    # raises it cannot lower it
+                    if predicted > 1e-9 * abs(best.objective):
+                        continue
+                    moves.append((predicted, dict(best.counts, **{z.id: n})))
+            moved = False
+            for _pred, counts in sorted(moves, key=lambda m: m[0]):
+                c = self.evaluate(counts)
+                if self._better(c, best):
+                    best, moved = c, True
+                    break
+            if not moved:
                 break
-            best = min(better, key=lambda c: c.annual_cost)
         return best
 
-    # --- results of the solved state -----------------------------------------------------------
+    # --- results of the loaded grid -----------------------------------------------------------
     def day_figures(self) -> list[dict]:
-        """Per load day at the model's current state: energy, cost, effluent, schedule."""
+        """Per load day at the models' current state: energy, cost, effluent, schedule."""
         out = []
         for day, st in zip(self.days, self.studies):
             out.append({"day": day, "study": st, "energy_kWh_per_day": st.energy_kWh_per_day(),
@@ -340,33 +500,73 @@ class GridDesign:
                         "schedule": st.schedule_by_zone()})
         return out
 
-    def binding(self, counts: dict[str, int]) -> dict[str, list[str]]:
-        """What holds each zone's grid at the current state: the days and limits its airflow sits on."""
+    def binding(self, counts: dict[str, int]) -> tuple[dict[str, list[str]], list[dict]]:
+        """What holds each zone's grid, from the duals of every day's solve at the loaded grid.
+
+        A day's limit in a zone binds when its dual is not zero: its annual value (the day's weight x the change
+        of the day's cost) per 0.1 mg/L of a DO minimum or per 1 % of an airflow limit. Cases: transfer (the DO
+        minimum, the air per diffuser at its maximum, the valve), turndown (the air per diffuser at its
+        minimum), mixing (the mixing minimum). Returns (zone -> sentences, rows of binding.csv).
+        """
+        if self.day_results is None:
+            raise ModelError("load a solved grid first")
+        cur = self.layout.tariff.currency
+        rows, saving = [], {}
+        for day, st, r in zip(self.days, self.studies, self.day_results):
+            m, b = st.m, st.m.opt
+            w, ref = day.days_per_year, st.reference()
+            tol = BINDING_SHARE * w * float(pyo.value(b.goal))
+            value_of_one = dict(zip(self.ids, -w * ref * np.array(
+                parameter_sensitivity(m, r, [m.diffuser_count[z] for z in self.ids]))))
+            saving[day.id] = value_of_one
+
+            def dual(con):
+                try:
+                    return float(r.dual(con))
+                except KeyError:
+                    return 0.0
+
+            for z in self.ids:
+                found = []
+                if z in b.DO_ZONES:
+                    found.append(("transfer", "DO minimum", "per 0.1 mg/L higher minimum",
+                                  STEP_mg_L * sum(dual(b.do_min[t, z]) for t in m.STEPS)))
+                for name, case, text, zones in (("diffuser_max", "transfer", "air per diffuser at its maximum",
+                                                 b.ZONES),
+                                                ("valve_max", "transfer", "valve capacity", b.VALVE_ZONES),
+                                                ("diffuser_min", "turndown", "air per diffuser at its minimum",
+                                                 b.MIN_ZONES),
+                                                ("mixing_min", "mixing", "mixing minimum", b.MIN_ZONES)):
+                    con = b.component(name)
+                    if con is None or not con.active or z not in zones:
+                        continue
+                    # the bound moved by 1 % of the airflow it holds (the airflow itself where it binds)
+                    value = sum(dual(con[z, p]) * 0.01 * float(m.airflow_Sm3_h[z, p].value) for p in m.PERIODS)
+                    found.append((case, text, "per 1 % of the limit", value))
+                for case, text, per, value in found:
+                    annual = w * ref * abs(value)
+                    if annual > tol:
+                        rows.append({"zone": z, "load_day": day.id, "case": case, "limit": text,
+                                     "cost_per_year": annual, "per": per,
+                                     "diffuser_saving_per_year": value_of_one[z]})
         out: dict[str, list[str]] = {}
-        for z in self.zones:
-            reasons = []
-            lo, hi = self.ranges[z.id]
-            dtype = self.layout.diffuser_type(z.grid.type_id)
-            n = counts[z.id]
-            for day, st in zip(self.days, self.studies):
-                q = st.schedule_by_zone()[z.id]
-                mix = st.m.opt.settings.mixing_airflow_min_Sm3_h_m2[z.id] * z.area_m2
-                tol = BINDING_TOLERANCE
-                if np.any(q >= n * dtype.airflow_max_Sm3_h * (1 - tol)):
-                    reasons.append(f"{day.id}: transfer (air per diffuser at its maximum)")
-                if z.valve_capacity_Sm3_h is not None and np.any(q >= z.valve_capacity_Sm3_h * (1 - tol)):
-                    reasons.append(f"{day.id}: valve capacity")
-                floor = n * dtype.airflow_min_Sm3_h
-                if floor >= mix and np.any(q <= floor * (1 + tol)):
-                    reasons.append(f"{day.id}: turndown (air per diffuser at its minimum)")
-                elif mix > floor and np.any(q <= mix * (1 + tol)):
-                    reasons.append(f"{day.id}: mixing minimum")
-            if n <= lo:
-                reasons.append(f"lowest count of the tested density range ({lo})")
-            if n >= hi:
-                reasons.append(f"highest count of the tested density range ({hi})")
-            out[z.id] = reasons or ["energy against capital (no limit holds it)"]
-        return out
+        for z in self.ids:
+            text = []
+            for day in sorted(self.days, key=lambda d: -abs(saving[d.id][z])):
+                mine = [row for row in rows if row["zone"] == z and row["load_day"] == day.id]
+                if not mine:
+                    continue
+                v = saving[day.id][z]
+                text.append(f"{day.id} (one more diffuser {'saves' if v >= 0 else 'costs'} {abs(v):,.3g} {cur}/year): "
+                            + ", ".join(f"{row['case']} ({row['limit']}, {row['cost_per_year']:,.3g} {cur}/year "
+                                        f"{row['per']})" for row in mine))
+            lo, hi = self.ranges[z]
+            if counts[z] <= lo:
+                text.append(f"lowest count of the tested density range ({lo})")
+            if counts[z] >= hi:
+                text.append(f"highest count of the tested density range ({hi})")
+            out[z] = text or ["energy against capital (no limit holds it)"]
+        return out, rows
 
     def verify(self, counts: dict[str, int]) -> list[dict]:
         """Every day's schedule on the grid ``counts`` re-simulated by the independent simulator."""
@@ -384,11 +584,12 @@ class DesignResult:
     zones: pd.DataFrame  # design.csv: one row per diffused zone
     days: pd.DataFrame  # load_days.csv: one row per load day, designed and current grid
     schedule: pd.DataFrame  # schedule.csv: one row per load day, period and zone on the designed grid
-    candidates: pd.DataFrame  # candidates.csv: every whole-count grid evaluated
+    candidates: pd.DataFrame  # candidates.csv: every grid evaluated (the continuous search's and the whole counts)
     summary: dict
     exit_code: int
     layout: Layout  # the layout with the designed grid (the current one when no design was found)
     design: GridDesign | None = None
+    binding: pd.DataFrame | None = None  # binding.csv: one row per zone, load day and limit whose dual is not zero
 
 
 def _day_rows(g: GridDesign, label: str) -> dict[str, dict]:
@@ -408,37 +609,44 @@ def _annual(g: GridDesign, rows: dict, label: str, what: str) -> float:
 
 def run_design(layout: Layout, options: DesignOptions | None = None, progress: Progress | None = None
                ) -> DesignResult:
-    """The whole design (module notes): relaxed NLP, whole counts, verification, economics; never raises for an
-    infeasible or failed solve (the exit code says it)."""
+    """The whole design (module notes): continuous search, whole counts, verification, economics; never raises
+    for an infeasible or failed solve (the exit code says it)."""
     t0 = time.perf_counter()
     g = GridDesign(layout, options, progress)
     lay = g.layout
     cap = lay.capital
     messages: list[str] = []
     g.build()
-    r = g.solve_relaxed()
+    relaxed = g.solve_relaxed()
     base = {"plant": lay.plant.name, "layout": lay.path, "currency": lay.tariff.currency,
             "load_days": [{"id": d.id, "days_per_year": d.days_per_year} for d in g.days],
             "capital_inputs": {"cost_per_diffuser": cap.cost_per_diffuser, "cost_per_zone": cap.cost_per_zone,
                                "interest_rate": cap.interest_rate, "life_years": cap.life_years,
                                "capital_recovery_factor": g.crf},
             "count_ranges": {z: {"lowest": lo, "highest": hi} for z, (lo, hi) in g.ranges.items()}}
-    if not r.ok:
-        status = "infeasible" if r.status.value == "infeasible" else "failed"
-        messages.append("no grid in the design ranges meets every load day's limits" if status == "infeasible"
-                        else f"the relaxed design failed ({r.message})")
+    if relaxed is None:
+        statuses = {c.status for c in g.candidates}
+        status = "infeasible" if "infeasible" in statuses else "failed"
+        failed = sorted({c.failed_day for c in g.candidates if c.failed_day})
+        messages.append(("no grid tried in the design ranges meets every load day's limits" if status == "infeasible"
+                         else "the load days could not be solved on any start grid (" + ", ".join(sorted(statuses))
+                         + ")") + ("; load day(s) not met: " + ", ".join(failed) if failed else "")
+                        + " (candidates.csv lists the grids tried)")
         return _no_design(g, base, status, messages, t0)
     current = g.evaluate(g.current)
-    current_rows = _day_rows(g, "current") if current.annual_cost is not None else None
-    if current_rows is None:
+    current_rows = None
+    if current.annual_cost is not None:
+        g.load(g.current)
+        current_rows = _day_rows(g, "current")
+    else:
         messages.append("the current grid cannot meet every load day's limits: no payback against it")
     best = g.search()
     if best is None:
-        messages.append("no whole-count grid near the relaxed design meets every load day's limits")
+        messages.append("no whole-count grid near the continuous optimum meets every load day's limits")
         return _no_design(g, base, "infeasible", messages, t0)
     g.load(best.counts)
     design_rows = _day_rows(g, "design")
-    binding = g.binding(best.counts)
+    binding, binding_rows = g.binding(best.counts)
     verification = g.verify(best.counts) if g.options.verify else None
     designed = with_grid_counts(lay, best.counts)
 
@@ -449,6 +657,8 @@ def run_design(layout: Layout, options: DesignOptions | None = None, progress: P
                       "count_lowest": g.ranges[z.id][0], "count_highest": g.ranges[z.id][1],
                       "density_current_percent": density_percent(lay, z, g.current[z.id]),
                       "density_design_percent": density_percent(lay, z, best.counts[z.id]),
+                      "diffuser_saving_per_year": -best.gradient[z.id] + g.crf * cap.cost_per_diffuser,
+                      "marginal_annual_cost_per_diffuser": best.gradient[z.id],
                       "binding": "; ".join(binding[z.id])})
     days = []
     for i, (d, st) in enumerate(zip(g.days, g.studies)):
@@ -468,8 +678,7 @@ def run_design(layout: Layout, options: DesignOptions | None = None, progress: P
                             "airflow_per_diffuser_Sm3_h", "do_min_mg_L", "do_mean_mg_L", "nh4_mean_mg_L",
                             "otr_kg_h"]])
     schedule = pd.concat(sched, ignore_index=True)
-    candidates = pd.DataFrame([{**{f"count_{z}": c.counts[z] for z in g.ids}, "annual_cost": c.annual_cost,
-                                "status": c.status, "seconds": c.seconds} for c in g.candidates])
+    candidates = candidate_table(g)
 
     def totals(rows, label, counts):
         capital = grid_capital(lay, counts)
@@ -499,28 +708,36 @@ def run_design(layout: Layout, options: DesignOptions | None = None, progress: P
     g.timings["total_s"] = time.perf_counter() - t0
     summary = {**base, "status": status, "design": design_tot, "current": current_tot, "comparison": comparison,
                "binding": binding, "verified": verified, "candidates_evaluated": len(g.candidates),
-               "solver": {"relaxed_status": r.status.value, "relaxed_iterations": r.iterations,
-                          "variables": r.n_variables, "constraints": r.n_constraints,
+               "solver": {"day_solves": int(g.timings.get("day_solves", 0)),
                           "iterations": int(g.timings.get("iterations", 0)),
-                          "timings": {k: v for k, v in g.timings.items() if k != "iterations"}},
+                          "timings": {k: v for k, v in g.timings.items() if k not in ("iterations", "day_solves")}},
                "messages": messages}
     code = EXIT_OK if status == "optimal" else EXIT_UNVERIFIED
+    binding_table = pd.DataFrame(binding_rows, columns=["zone", "load_day", "case", "limit", "cost_per_year", "per",
+                                                        "diffuser_saving_per_year"])
     return DesignResult(pd.DataFrame(zones), pd.DataFrame(days), schedule, candidates, jsonable(summary), code,
-                        designed, g)
+                        designed, g, binding_table)
 
 
 def _no_design(g: GridDesign, base: dict, status: str, messages: list[str], t0: float) -> DesignResult:
     g.timings["total_s"] = time.perf_counter() - t0
     summary = {**base, "status": status, "design": None, "current": None, "comparison": None, "binding": None,
                "verified": None, "candidates_evaluated": len(g.candidates),
-               "solver": {"iterations": int(g.timings.get("iterations", 0)),
-                          "timings": {k: v for k, v in g.timings.items() if k != "iterations"}},
+               "solver": {"day_solves": int(g.timings.get("day_solves", 0)),
+                          "iterations": int(g.timings.get("iterations", 0)),
+                          "timings": {k: v for k, v in g.timings.items() if k not in ("iterations", "day_solves")}},
                "messages": messages}
     code = EXIT_INFEASIBLE if status == "infeasible" else EXIT_FAILURE
-    candidates = pd.DataFrame([{**{f"count_{z}": c.counts[z] for z in g.ids}, "annual_cost": c.annual_cost,
-                                "status": c.status, "seconds": c.seconds} for c in g.candidates])
+    candidates = candidate_table(g)
     return DesignResult(pd.DataFrame(), pd.DataFrame(), pd.DataFrame(), candidates, jsonable(summary), code,
                         g.layout, g)
+
+
+def candidate_table(g: GridDesign) -> pd.DataFrame:
+    """candidates.csv: every grid evaluated, in order, with its annual cost (empty: a day's limits not met)."""
+    return pd.DataFrame([{**{f"count_{z}": c.counts[z] for z in g.ids}, "whole": c.whole,
+                          "annual_cost": c.annual_cost, "objective": c.objective, "status": c.status,
+                          "failed_day": c.failed_day, "seconds": c.seconds} for c in g.candidates])
 
 
 def density_percent(layout: Layout, zone, count: float) -> float:
@@ -528,6 +745,6 @@ def density_percent(layout: Layout, zone, count: float) -> float:
     return 100.0 * float(count) * layout.diffuser_type(zone.grid.type_id).membrane_area_m2 / zone.area_m2
 
 
-__all__ = ["Candidate", "DesignOptions", "DesignResult", "GridDesign", "run_design", "capital_recovery_factor",
+__all__ = ["BINDING_SHARE", "Candidate", "DaySolve", "DesignOptions", "DesignResult", "GridDesign", "run_design", "capital_recovery_factor",
            "count_range", "density_percent",
            "grid_capital", "net_present_value", "simple_payback_years"]

@@ -63,16 +63,18 @@ def start_state_of(m, period: int | None = None) -> tuple[dict, float | None]:
     return state, waste
 
 
-def verify_schedule(layout: Layout, schedule: dict, optimiser_figures: dict, m=None) -> dict:
+def verify_schedule(layout: Layout, schedule: dict, optimiser_figures: dict, m=None,
+                    swing_states: dict | None = None) -> dict:
     """Simulate ``schedule`` (zone -> per-period airflow) and compare (see module notes).
 
     ``m``: the solved model, whose state at 0 h starts the simulation (None: the
-    simulator's own mean-load steady state and default tolerance).
+    simulator's own mean-load steady state and default tolerance); ``swing_states``: the
+    swing zones' on/off per period (:attr:`airtaper.optimize.problem.Problem.swing_states`).
     """
-    return verify_day(layout, schedule, optimiser_figures, m)[0]
+    return verify_day(layout, schedule, optimiser_figures, m, swing_states)[0]
 
 
-def verify_day(layout: Layout, schedule: dict, optimiser_figures: dict, m=None):
+def verify_day(layout: Layout, schedule: dict, optimiser_figures: dict, m=None, swing_states: dict | None = None):
     """:func:`verify_schedule` and the simulated :class:`~airtaper.optimize.simday.SimDay`."""
     if m is not None:
         n, period_h = layout.horizon.n_periods, layout.horizon.period_h
@@ -86,8 +88,7 @@ def verify_day(layout: Layout, schedule: dict, optimiser_figures: dict, m=None):
     f = day.figures
     lows = day.do_extremes.loc[day.do_extremes.groupby("zone")["do_min_mg_L"].idxmin()]
     broken = violations(layout, f, effluent_tolerance=EFFLUENT_TOLERANCE, do_tolerance_mg_L=DO_TOLERANCE_mg_L)
-    swing_margins = swing_do_margins(layout, day.do_min_by_period(), getattr(getattr(m, "opt", None),
-                                                                             "swing_states", None))
+    swing_margins = swing_do_margins(layout, day.do_min_by_period(), swing_states)
     for z, (margin, periods) in swing_margins.items():
         if margin < -DO_TOLERANCE_mg_L:
             broken.append(f"swing zone {z} while aerated: DO below its minimum of {layout.zone(z).do_min_mg_L:g} mg/L "

@@ -3,8 +3,9 @@
 Every file is written atomically (:mod:`airtaper.report.atomic`); docs/outputs.md lists
 each file and column.
 
-design: ``design.csv`` (one row per diffused zone: current, relaxed and designed count,
-densities, what binds the zone), ``load_days.csv`` (one row per load day: energy, cost
+design: ``design.csv`` (one row per diffused zone: current, continuous and designed count,
+densities, the value of one more diffuser, what binds the zone), ``binding.csv`` (one row
+per zone, load day and limit whose dual is not zero), ``load_days.csv`` (one row per load day: energy, cost
 and effluent on the designed and the current grid, verification), ``schedule.csv`` (the
 designed grid's schedule of every load day), ``candidates.csv`` (every whole-count grid
 evaluated and its annual cost), ``summary.json``, ``taper.png``, ``train.png`` and
@@ -12,18 +13,28 @@ evaluated and its annual cost), ``summary.json``, ``taper.png``, ``train.png`` a
 
 compare: ``compare.csv`` (one row per layout: annual energy and cost, margins, diffusers,
 blowers, differences against the first), ``load_days.csv`` (one row per layout and load
-day), ``summary.json``, ``trains.png`` and ``report.html``.
+day), ``summary.json``, ``train_<k>.png`` and ``report.html``.
+
+The command writes its tables and summary, then builds the report from the folder exactly
+as ``airtaper report DIR`` does later (:func:`write_design_report`,
+:func:`write_compare_report`), so both give the same page. A train is drawn from its
+layout (the one in memory, or read again from the path the summary names); when that
+file no longer reads, the drawing already in the folder is kept.
 """
 
 from __future__ import annotations
 
 import base64
 import html
+import json
 from pathlib import Path
 from types import SimpleNamespace
 
 import numpy as np
+import pandas as pd
 
+from airtaper.errors import InputError, Problem
+from airtaper.plant import resolve_plant
 from airtaper.report.atomic import write_bytes_atomic, write_csv_atomic, write_json_atomic, write_text_atomic
 from airtaper.report.figures import figure_png, train_figure
 from airtaper.report.text import CAUTION, fmt
@@ -91,7 +102,7 @@ def taper_figure_png(zones) -> bytes | None:
 
 def train_png(layout) -> bytes | None:
     """The report layer's drawing of a train (zones to scale by volume, density as dots, flows as arrows)."""
-    fig = train_figure(SimpleNamespace(layout=layout))
+    fig = train_figure(SimpleNamespace(plant=resolve_plant(layout)))
     if fig is None:
         return None
     png = figure_png(fig)
@@ -99,7 +110,20 @@ def train_png(layout) -> bytes | None:
     return png
 
 
-def design_html(summary: dict, zones, days, images: dict) -> str:
+def _binding_html(binding, cur: str) -> str:
+    if binding is None or len(binding) == 0:
+        return ""
+    rows = [[r["zone"], r["load_day"], r["case"], r["limit"], f"{fmt(r['cost_per_year'], 1)} {r['per']}",
+             fmt(r["diffuser_saving_per_year"], 2)] for r in binding.to_dict("records")]
+    return ("<h2>What holds each zone (from the duals)</h2><p>A limit of a load day holds a zone when moving it "
+            "changes the year's cost: transfer (the DO minimum, the air per diffuser at its maximum, the valve), "
+            "turndown (the air per diffuser at its minimum), mixing (the mixing minimum). The last column is the "
+            "day's energy cost saved per year by one more diffuser in the zone (negative: it costs).</p>"
+            + _table(["zone", "load day", "case", "limit", f"{cur} per year", f"one more diffuser, {cur}/year"],
+                     rows, left=4))
+
+
+def design_html(summary: dict, zones, days, images: dict, binding=None) -> str:
     cur = summary.get("currency", "")
     body = [f"<p>Layout <code>{html.escape(str(summary['layout']))}</code>, {len(summary['load_days'])} load "
             f"day(s); status <strong>{html.escape(summary['status'])}</strong>.</p>"]
@@ -125,14 +149,14 @@ def design_html(summary: dict, zones, days, images: dict) -> str:
                         f"{fmt(summary['capital_inputs']['life_years'], 0)} years at "
                         f"{fmt(100 * summary['capital_inputs']['interest_rate'], 1)} %.</p>")
         body.append("<h2>Taper</h2>" + _table(
-            ["zone", "current", "relaxed", "designed", "step", "range", "density now %", "density designed %",
+            ["zone", "current", "continuous", "designed", "step", "range", "density now %", "density designed %",
              "what holds the count"],
             [[r.zone, r.count_current, fmt(r.count_relaxed, 1), r.count_design, r.count_step,
               f"{r.count_lowest}-{r.count_highest}", fmt(r.density_current_percent, 1),
               fmt(r.density_design_percent, 1), r.binding] for r in zones.itertuples()], left=1))
         body.append(_img(images.get("taper.png"), "diffusers per zone") + _img(images.get("train.png"),
                                                                                "the designed train"))
-        cols = ["load day", "days/year", f"energy kWh/d", f"cost {cur}/d", "NH4-N mean", "TN mean"]
+        cols = ["load day", "days/year", "energy kWh/d", f"cost {cur}/d", "NH4-N mean", "TN mean"]
         has_cur = "energy_kWh_per_day_current" in days.columns
         if has_cur:
             cols += ["current kWh/d", f"current {cur}/d"]
@@ -150,6 +174,7 @@ def design_html(summary: dict, zones, days, images: dict) -> str:
                 row += [fmt(bool(r["verified"])), fmt(r["min_do_margin_mg_L"], 3)]
             rows.append(row)
         body.append("<h2>Load days on the designed grid</h2>" + _table(cols, rows))
+        body.append(_binding_html(binding, cur))
     body.append(_messages(summary))
     body.append("<p>Method: docs/design.md. Every load day's schedule is optimised with the blowers as one machine "
                 "at the aggregate efficiency; run <code>airtaper optimize</code> on a day for its blower staging."
@@ -158,22 +183,98 @@ def design_html(summary: dict, zones, days, images: dict) -> str:
 
 
 def write_design_outputs(out_dir: str | Path, result, *, figures: bool = True) -> list[Path]:
+    """The design's tables and summary, then its report built from the folder (:func:`write_design_report`)."""
     out = Path(out_dir)
     written = []
     if len(result.zones):
         written += [write_csv_atomic(out / "design.csv", result.zones),
                     write_csv_atomic(out / "load_days.csv", result.days),
                     write_csv_atomic(out / "schedule.csv", result.schedule)]
+        if result.binding is not None:
+            written.append(write_csv_atomic(out / "binding.csv", result.binding))
     written.append(write_csv_atomic(out / "candidates.csv", result.candidates))
     written.append(write_json_atomic(out / "summary.json", result.summary))
-    images = {}
-    if figures and len(result.zones):
-        images = {"taper.png": taper_figure_png(result.zones), "train.png": train_png(result.layout)}
+    return written + write_design_report(out, layout=result.layout, figures=figures)
+
+
+# --- a finished folder read back ----------------------------------------------------------------
+def folder_kind(path: str | Path) -> str | None:
+    """"design" or "compare" for a folder written by those commands (by the table only they write), else None."""
+    p = Path(path)
+    if (p / "compare.csv").is_file():
+        return "compare"
+    if (p / "candidates.csv").is_file():
+        return "design"
+    return None
+
+
+def _summary(folder: Path, what: str) -> dict:
+    path = folder / "summary.json"
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, ValueError) as exc:
+        raise InputError(Problem(str(path), "-", f"not readable ({exc})", None, f"the summary written by {what}"))
+    if not isinstance(data, dict):
+        raise InputError(Problem(str(path), "-", "not a JSON object", type(data).__name__,
+                                 f"the summary written by {what}"))
+    return data
+
+
+def _csv(folder: Path, name: str):
+    path = folder / name
+    if not path.is_file():
+        return None
+    try:
+        return pd.read_csv(path)
+    except (OSError, ValueError) as exc:
+        raise InputError(Problem(str(path), "-", f"not a readable table ({exc})", None, "the table as written"))
+
+
+def _layout_from(path, counts: dict | None, given: bool):
+    """The layout at ``path`` (with the designed counts), or None when it no longer reads and was not given on the
+    command line (then the drawing already in the folder is kept)."""
+    from airtaper.layout import load_layout
+    from airtaper.layout.loaddays import with_grid_counts
+
+    if path is None:
+        return None
+    try:
+        layout = load_layout(str(path), warnings=[])
+    except InputError:
+        if given:
+            raise
+        return None
+    return with_grid_counts(layout, {z: int(n) for z, n in counts.items()}) if counts else layout
+
+
+def _figure(folder: Path, name: str, draw) -> bytes | None:
+    """A drawing made now, or the one already in the folder."""
+    png = draw()
+    if png is None and (folder / name).is_file():
+        png = (folder / name).read_bytes()
+    return png
+
+
+def write_design_report(out_dir: str | Path, *, layout=None, layout_path: str | Path | None = None,
+                        figures: bool = True) -> list[Path]:
+    """Read a design folder and write its figures and ``report.html`` into it, each atomically."""
+    folder = Path(out_dir)
+    summary = _summary(folder, "airtaper design")
+    zones = _csv(folder, "design.csv")
+    zones = pd.DataFrame() if zones is None else zones
+    days = _csv(folder, "load_days.csv")
+    binding = _csv(folder, "binding.csv")
+    images, written = {}, []
+    if figures and len(zones):
+        counts = (summary.get("design") or {}).get("counts")
+        images["taper.png"] = taper_figure_png(zones)
+        images["train.png"] = _figure(folder, "train.png", lambda: train_png(
+            layout if layout is not None else _layout_from(layout_path or summary.get("layout"), counts,
+                                                           layout_path is not None)))
         for name, png in images.items():
             if png:
-                written.append(write_bytes_atomic(out / name, png))
-    written.append(write_text_atomic(out / "report.html", design_html(result.summary, result.zones, result.days,
-                                                                      images)))
+                written.append(write_bytes_atomic(folder / name, png))
+    written.append(write_text_atomic(folder / "report.html", design_html(summary, zones, days, images, binding)))
     return written
 
 
@@ -223,26 +324,41 @@ def compare_html(summary: dict, layouts, days, images: dict) -> str:
                  "binding marginal costs"]
     day_rows = [[r["layout"], r["load_day"], fmt(r["days_per_year"], 0), r["status"],
                  fmt(r["energy_kWh_per_day"], 0), fmt(r["cost_per_day"], 1), fmt(r["verified"]),
-                 r["marginal_costs"] or "-"] for r in days.to_dict("records")]
+                 r["marginal_costs"] if isinstance(r["marginal_costs"], str) and r["marginal_costs"] else "-"]
+                for r in days.to_dict("records")]
     body.append("<h2>Load days</h2>" + _table(day_heads, day_rows, left=2))
     body.append(_messages(summary))
     return _page("Layouts compared", "\n".join(body))
 
 
 def write_compare_outputs(out_dir: str | Path, result, *, figures: bool = True) -> list[Path]:
+    """The comparison's tables and summary, then its report built from the folder (:func:`write_compare_report`)."""
     out = Path(out_dir)
     written = [write_csv_atomic(out / "compare.csv", result.layouts),
                write_csv_atomic(out / "load_days.csv", result.days),
                write_json_atomic(out / "summary.json", result.summary)]
-    images = {}
+    return written + write_compare_report(out, plans=result.plans, figures=figures)
+
+
+def write_compare_report(out_dir: str | Path, *, plans=None, figures: bool = True) -> list[Path]:
+    """Read a compare folder and write its drawings and ``report.html`` into it, each atomically."""
+    folder = Path(out_dir)
+    summary = _summary(folder, "airtaper compare")
+    layouts = _csv(folder, "compare.csv")
+    days = _csv(folder, "load_days.csv")
+    if layouts is None or days is None:
+        missing = "compare.csv" if layouts is None else "load_days.csv"
+        raise InputError(Problem(str(folder / missing), "-", "missing", None, "a finished folder of airtaper compare"))
+    images, written = {}, []
     if figures:
-        for k, layout in enumerate(result.plans, start=1):
-            png = train_png(layout)
+        for k, label in enumerate(layouts["layout"], start=1):
+            name = f"train_{k}.png"
+            png = _figure(folder, name, lambda: train_png(
+                plans[k - 1] if plans is not None else _layout_from(label, None, False)))
             if png:
-                images[f"train_{k}.png"] = png
-                written.append(write_bytes_atomic(out / f"train_{k}.png", png))
-    written.append(write_text_atomic(out / "report.html", compare_html(result.summary, result.layouts, result.days,
-                                                                       images)))
+                images[name] = png
+                written.append(write_bytes_atomic(folder / name, png))
+    written.append(write_text_atomic(folder / "report.html", compare_html(summary, layouts, days, images)))
     return written
 
 
@@ -259,5 +375,5 @@ def compare_console(summary: dict) -> str:
     return "\n".join(lines)
 
 
-__all__ = ["compare_console", "compare_html", "design_console", "design_html", "taper_figure_png", "train_png",
-           "write_compare_outputs", "write_design_outputs"]
+__all__ = ["compare_console", "compare_html", "design_console", "design_html", "folder_kind", "taper_figure_png",
+           "train_png", "write_compare_outputs", "write_compare_report", "write_design_outputs", "write_design_report"]

@@ -25,8 +25,8 @@ import pandas as pd
 from scipy.integrate import solve_ivp
 
 from airtaper import units
-from airtaper.errors import InputError, Problem
 from airtaper.layout.types import ASM1_COMPONENTS
+from airtaper.plant import ResolvedPlant, resolve_plant
 from airtaper.process.stoichiometry import IDX, cod_composition, n_composition, tkn_composition, tss_composition
 from airtaper.simulate.plant import Inputs, PlantData
 from airtaper.simulate.steady import solve_steady
@@ -36,69 +36,74 @@ EFFLUENT_COLUMNS = ("tss_mg_L", "cod_mg_L", "tkn_mg_L", "tn_mg_L")
 
 
 # --- aeration inputs ------------------------------------------------------------
-def _per_zone(layout, value, what: str, default=np.nan) -> np.ndarray:
-    nz = len(layout.zones)
+def _per_zone(plant: ResolvedPlant, value, what: str, default=np.nan) -> np.ndarray:
+    nz = plant.n_zones
     if value is None:
         return np.full(nz, default, dtype=float)
     if isinstance(value, dict):
         out = np.full(nz, default, dtype=float)
         for key, v in value.items():
-            try:
-                out[layout.zone_index(key)] = np.nan if v is None else float(v)
-            except KeyError:
-                raise InputError(Problem(layout.path, f"{what}.{key}", "no zone with this id",
-                                         got=key, expected=", ".join(z.id for z in layout.zones))) from None
+            if key not in plant.zone_ids:
+                raise ValueError(f"{what}: no zone with the id {key!r} (the plant's zones: "
+                                 f"{', '.join(plant.zone_ids)})")
+            out[plant.zone_index(key)] = np.nan if v is None else float(v)
         return out
     arr = np.asarray(value, dtype=float)
     if arr.ndim == 0:
         return np.full(nz, float(arr))
     if arr.shape != (nz,):
-        raise InputError(Problem(layout.path, what, "one value per zone expected", got=arr.shape, expected=f"({nz},)"))
+        raise ValueError(f"{what}: one value per zone expected, got shape {arr.shape} for {nz} zones")
     return arr
 
 
-def resolve_aeration(layout, schedule=None, do_setpoint_mg_L=None):
-    """Per-period airflow (periods, zones) and DO setpoints (zones,) from the user's choice.
+def resolve_aeration(plant, schedule=None, do_setpoint_mg_L=None):
+    """Per-period airflow (periods, zones) and DO setpoints (zones,) of a plant from the caller's choice.
+
+    ``plant``: a :class:`ResolvedPlant` (a validated Layout is resolved first).
 
     * ``do_setpoint_mg_L`` float: every zone of kind "aerated" with diffusers
       or a fixed kLa is DO-controlled (swing zones stay unaerated unless named);
       a dict ``{zone_id: setpoint}`` controls just those zones;
     * ``schedule``: airflow (Sm3/h) as an array (periods, zones), one (zones,)
       for every period, or a dict ``{zone_id: sequence or float}``;
-    * neither: the layout's baseline DO setpoint on every aerated diffused zone;
+    * neither: the plant's baseline DO setpoint on every aerated diffused zone;
       fixed-kLa zones (benchmark plants) keep their kLa.
     Zones with a fixed kLa use it unless DO-controlled.
+
+    The arguments come from code past the input boundary (the CLI's schedule reader checks
+    a schedule file row by row and names it): a schedule or setpoint that does not fit the
+    plant is a caller's mistake and raises ``ValueError``.
     """
-    nz, n = len(layout.zones), layout.horizon.n_periods
+    plant = resolve_plant(plant)
+    nz, n = plant.n_zones, plant.n_periods
     air = np.zeros((n, nz))
     if schedule is not None:
         if isinstance(schedule, dict):
             for key, v in schedule.items():
-                try:
-                    i = layout.zone_index(key)
-                except KeyError:
-                    raise InputError(Problem(layout.path, f"schedule.{key}", "no zone with this id", got=key)) from None
-                air[:, i] = np.broadcast_to(np.asarray(v, dtype=float), (n,))
+                if key not in plant.zone_ids:
+                    raise ValueError(f"schedule: no zone with the id {key!r} (the plant's zones: "
+                                     f"{', '.join(plant.zone_ids)})")
+                air[:, plant.zone_index(key)] = np.broadcast_to(np.asarray(v, dtype=float), (n,))
         else:
             arr = np.asarray(schedule, dtype=float)
             if arr.shape == (nz,):
                 arr = np.broadcast_to(arr, (n, nz))
             if arr.shape != (n, nz):
-                raise InputError(Problem(layout.path, "schedule", "airflow per period and zone expected",
-                                         got=arr.shape, expected=f"({n}, {nz})"))
+                raise ValueError(f"schedule: airflow per period and zone expected, got shape {arr.shape}, "
+                                 f"expected ({n}, {nz})")
             air = np.array(arr, dtype=float)
         if np.any(~np.isfinite(air)) or np.any(air < 0.0):
-            raise InputError(Problem(layout.path, "schedule", "airflows must be finite and not negative"))
+            raise ValueError("schedule: airflows must be finite and not negative")
     if do_setpoint_mg_L is None and schedule is None:
-        do_setpoint_mg_L = {z.id: layout.operation.baseline_do_setpoint_mg_L for z in layout.zones
-                            if z.kind == "aerated" and z.has_diffusers}
+        do_setpoint_mg_L = {z.id: plant.operation.baseline_do_setpoint_mg_L for z in plant.zones
+                            if z.kind == "aerated" and plant.has_diffusers(z)}
     if isinstance(do_setpoint_mg_L, (int, float)):
-        do_setpoint_mg_L = {z.id: float(do_setpoint_mg_L) for z in layout.zones
-                            if z.kind == "aerated" and (z.has_diffusers or z.fixed_kla_per_d is not None)}
-    sp = _per_zone(layout, do_setpoint_mg_L, "do_setpoint")
-    for i, z in enumerate(layout.zones):
+        do_setpoint_mg_L = {z.id: float(do_setpoint_mg_L) for z, a in zip(plant.zones, plant.aeration)
+                            if z.kind == "aerated" and a is not None}
+    sp = _per_zone(plant, do_setpoint_mg_L, "do_setpoint")
+    for i, z in enumerate(plant.zones):
         if np.isfinite(sp[i]) and not z.aerated:
-            raise InputError(Problem(layout.path, f"do_setpoint.{z.id}", "an anoxic zone cannot be DO-controlled"))
+            raise ValueError(f"do_setpoint: zone {z.id} is anoxic and cannot be DO-controlled")
     return air, sp
 
 
@@ -158,9 +163,8 @@ def _steady_result(system: System, inp: Inputs, solve, seconds: float) -> Steady
     y = solve.y
     _, info = system.rhs(y, inp, detail=True)
     B = system.blocks(y)
-    lay = system.plant.layout
     zones = pd.DataFrame(B[: system.nz], columns=list(ASM1_COMPONENTS))
-    zones.insert(0, "zone", [z.id for z in lay.zones])
+    zones.insert(0, "zone", list(system.plant.plant.zone_ids))
     zones["airflow_Sm3_h"] = system.airflow_Sm3_h(inp, info["kla_per_d"])
     zones["kla_per_h"] = units.per_day_to_per_hour(info["kla_per_d"])
     zones["otr_kg_h"] = units.g_to_kg(units.kg_d_to_kg_h(info["otr_g_m3_d"] * system.V))
@@ -180,12 +184,12 @@ def _steady_result(system: System, inp: Inputs, solve, seconds: float) -> Steady
     )
 
 
-def steady_state(layout, airflow_Sm3_h=None, do_setpoint_mg_L=None, *, tol: float = 1e-10) -> SteadyResult:
+def steady_state(plant, airflow_Sm3_h=None, do_setpoint_mg_L=None, *, tol: float = 1e-10) -> SteadyResult:
     """Steady state at the mean load of the day.
 
     Parameters
     ----------
-    layout : Layout
+    plant : ResolvedPlant (a validated Layout is resolved first)
     airflow_Sm3_h : None, dict {zone_id: airflow} or array (zones,)
         Constant zone airflows (ignored for DO-controlled and fixed-kLa zones).
     do_setpoint_mg_L : None, float or dict {zone_id: setpoint}
@@ -199,11 +203,12 @@ def steady_state(layout, airflow_Sm3_h=None, do_setpoint_mg_L=None, *, tol: floa
     temperature (the parameters corrected to it when the layout asks).
     """
     t0 = time.perf_counter()
-    plant = PlantData(layout)
-    system = System(plant)
-    air = None if airflow_Sm3_h is None else _per_zone(layout, airflow_Sm3_h, "airflow", default=0.0)
-    _, sp = resolve_aeration(layout, None if air is None else air, do_setpoint_mg_L)
-    inp = plant.inputs(None, airflow_Sm3_h=air, do_setpoint_mg_L=sp)
+    plant = resolve_plant(plant)
+    data = PlantData(plant)
+    system = System(data)
+    air = None if airflow_Sm3_h is None else _per_zone(plant, airflow_Sm3_h, "airflow", default=0.0)
+    _, sp = resolve_aeration(plant, None if air is None else air, do_setpoint_mg_L)
+    inp = data.inputs(None, airflow_Sm3_h=air, do_setpoint_mg_L=sp)
     solve = solve_steady(system, inp, tol=tol)
     return _steady_result(system, inp, solve, time.perf_counter() - t0)
 
@@ -237,7 +242,7 @@ class PeriodicResult:
     y_start: np.ndarray
     y_end: np.ndarray
     period_h: float
-    layout: object = field(repr=False, default=None)
+    plant: ResolvedPlant | None = field(repr=False, default=None)
     quadrature: "DayQuadrature | None" = field(repr=False, default=None)
     do_extremes: pd.DataFrame | None = field(repr=False, default=None)
     setpoints_mg_L: dict = field(default_factory=dict)  # zone id -> DO setpoint of the DO-controlled zones
@@ -246,7 +251,7 @@ class PeriodicResult:
     layer_states: np.ndarray | None = field(repr=False, default=None)
 
 
-def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30, tol: float = 1e-3,
+def periodic(plant, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30, tol: float = 1e-3,
              rtol: float = 1e-5, atol: float = 1e-5, start_state=None,
              start_waste_m3_d: float | None = None, start_period: int = 0,
              extrapolate: bool = True) -> PeriodicResult:
@@ -254,7 +259,7 @@ def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30
 
     Parameters
     ----------
-    layout : Layout
+    plant : ResolvedPlant (a validated Layout is resolved first)
     schedule : None, array (periods, zones) or (zones,), or dict {zone_id: airflows}
         Zone airflows in Sm3/h, constant within each period.
     do_setpoint_mg_L : None, float or dict {zone_id: setpoint}
@@ -287,10 +292,11 @@ def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30
         same test. False: plain day after day.
     """
     t_start = time.perf_counter()
-    plant = PlantData(layout)
-    system = System(plant)
-    air, sp = resolve_aeration(layout, schedule, do_setpoint_mg_L)
-    mean_inp = plant.inputs(None, airflow_Sm3_h=air.mean(axis=0), do_setpoint_mg_L=sp)
+    plant = resolve_plant(plant)
+    data = PlantData(plant)
+    system = System(data)
+    air, sp = resolve_aeration(plant, schedule, do_setpoint_mg_L)
+    mean_inp = data.inputs(None, airflow_Sm3_h=air.mean(axis=0), do_setpoint_mg_L=sp)
     start = None
     if start_state is None:
         t0 = time.perf_counter()
@@ -299,11 +305,11 @@ def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30
         y = start.y.copy()
     else:
         y = _state_vector(system, start_state)
-    inputs = [plant.inputs(k, airflow_Sm3_h=air[k], do_setpoint_mg_L=sp) for k in range(plant.n_periods)]
+    inputs = [data.inputs(k, airflow_Sm3_h=air[k], do_setpoint_mg_L=sp) for k in range(plant.n_periods)]
     wcod, wn = system.inventory_weights(inputs[0])
-    period_d = plant.period_d
-    steps = layout.horizon.steps_per_period
-    srt_target = layout.wasting.srt_d
+    period_d = data.period_d
+    steps = plant.horizon.steps_per_period
+    srt_target = plant.hydraulics.srt_d
     if srt_target is not None:
         # An SRT target is met on the daily mean with one waste flow for the whole day, as
         # operators waste and as the Pyomo model states it: start from the mean-load value
@@ -373,9 +379,9 @@ def periodic(layout, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30
     extremes = do_extremes(system, dense)
     return PeriodicResult(timeseries=ts, effluent=eff, days=days, converged=converged, day_change=change,
                           balance=balance, start=start, seconds=time.perf_counter() - t_start,
-                          y_start=y0_day, y_end=y1_day, period_h=layout.horizon.period_h, layout=layout,
+                          y_start=y0_day, y_end=y1_day, period_h=plant.period_h, plant=plant,
                           quadrature=quad, do_extremes=extremes,
-                          setpoints_mg_L={z.id: float(v) for z, v in zip(layout.zones, sp) if np.isfinite(v)},
+                          setpoints_mg_L={z.id: float(v) for z, v in zip(plant.zones, sp) if np.isfinite(v)},
                           layer_states=layer_states)
 
 
@@ -437,8 +443,7 @@ class DayExtrapolation:
 
 def _state_vector(system: System, state) -> np.ndarray:
     """The simulator's state vector from per-zone (and per-layer) concentrations."""
-    lay = system.plant.layout
-    blocks = [np.asarray(state["zones"][z.id], dtype=float) for z in lay.zones]
+    blocks = [np.asarray(state["zones"][zid], dtype=float) for zid in system.plant.plant.zone_ids]
     if system.layered:
         blocks.extend(np.asarray(state["layers"], dtype=float))
     y = np.concatenate(blocks)
@@ -610,7 +615,7 @@ def do_extremes(system: System, dense) -> pd.DataFrame:
     dense output is smooth there). One row per period and zone: ``period`` (0-based),
     ``zone``, ``do_min_mg_L``, ``do_min_time_h``, ``do_max_mg_L``, ``do_max_time_h``.
     """
-    zone_ids = [z.id for z in system.plant.layout.zones]
+    zone_ids = list(system.plant.plant.zone_ids)
     rows = []
     frac = np.arange(_EXTREME_SAMPLES) / _EXTREME_SAMPLES
     fine = np.linspace(0.0, 1.0, _REFINE_SAMPLES)
@@ -645,9 +650,8 @@ def do_extremes(system: System, dense) -> pd.DataFrame:
 
 def _tables(system: System, inputs, records):
     t, Y, K = records
-    lay = system.plant.layout
     nz = system.nz
-    zone_ids = [z.id for z in lay.zones]
+    zone_ids = list(system.plant.plant.zone_ids)
     rows_y, rows_air, rows_kla, rows_otr = [], [], [], []
     eff_rows = []
     for t_i, y_i, k in zip(t, Y, K):

@@ -26,6 +26,7 @@ from pathlib import Path
 
 from airtaper import __version__
 from airtaper.errors import InputError, Problem
+from airtaper.optimize.results import summary_figures
 from airtaper.report.atomic import write_bytes_atomic, write_csv_atomic, write_json_atomic
 from airtaper.report.outputs import sha256_of
 
@@ -126,39 +127,11 @@ def _plain(obj):
     return obj
 
 
-def _margin(limit, value):
-    return None if limit is None or value is None else float(limit) - float(value)
-
-
 def summary_row(summary: dict | None) -> dict:
     """The table's result columns from a scenario's summary.json (None: the run wrote no folder)."""
     row = dict.fromkeys(RESULT_COLUMNS)
-    if not summary:
-        return row
-    eff = summary.get("effluent") or {}
-    lim = summary.get("limits") or {}
-    dp = summary.get("dispatch") or {}
-    base = summary.get("baseline") or {}
-    timings = (summary.get("solver") or {}).get("timings") or {}
-    status = summary.get("status")
-    row.update({
-        "status": status,
-        "energy_kWh_per_day": summary.get("energy_kWh_per_day"), "cost_per_day": summary.get("cost_per_day"),
-        "currency": summary.get("currency") or None,
-        "energy_cost_per_day": dp.get("energy_cost"), "demand_charge_per_day": dp.get("demand_charge"),
-        "start_costs_per_day": dp.get("start_costs"), "peak_kW": dp.get("peak_kW"),
-        "baseline_energy_kWh_per_day": base.get("energy_kWh_per_day"), "baseline_cost_per_day": base.get("cost_per_day"),
-        "saving_percent": summary.get("saving_percent"), "cost_saving_percent": summary.get("cost_saving_percent"),
-        "verified": summary.get("verified"), "compliant": status == "optimal" and summary.get("verified") is not False,
-        "nh4_mean_mg_L": eff.get("nh4_mean_mg_L"), "nh4_max_mg_L": eff.get("nh4_max_mg_L"),
-        "tn_mean_mg_L": eff.get("tn_mean_mg_L"),
-        "nh4_mean_margin_mg_L": _margin(lim.get("nh4_mean_mg_L"), eff.get("nh4_mean_mg_L")),
-        "nh4_max_margin_mg_L": _margin(lim.get("nh4_max_mg_L"), eff.get("nh4_max_mg_L")),
-        "tn_mean_margin_mg_L": _margin(lim.get("tn_mean_mg_L"), eff.get("tn_mean_mg_L")),
-        "min_do_margin_mg_L": summary.get("min_do_margin_mg_L"),
-        "ipopt_s": timings.get("ipopt_s"),
-        "message": "; ".join(summary.get("messages") or []) or None,
-    })
+    if summary:
+        row.update({k: v for k, v in summary_figures(summary).items() if k in row})
     return row
 
 
