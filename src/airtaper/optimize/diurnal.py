@@ -132,14 +132,14 @@ class DiurnalOptimisation:
         if self.baseline is None:
             self.progress.phase("baseline: uniform DO control, independent simulator")
             t = time.perf_counter()
-            self.baseline = run_baseline(self.layout, self.options.baseline_do_setpoint_mg_L)
+            self.baseline = run_baseline(self.plant, self.options.baseline_do_setpoint_mg_L)
             self.timings["baseline_s"] = time.perf_counter() - t
         return self.baseline
 
     @property
     def layout(self) -> Layout:
-        """The plant's layout, for the modules that still take one (the baseline, the verification, the DO
-        back-off and the design: they move onto the resolved plant with their owners' changes)."""
+        """The plant's layout, for the modules that still take one (the DO back-off and the design: they move
+        onto the resolved plant with their owners' changes)."""
         return self.plant.layout
 
     def reference(self) -> float:
@@ -380,15 +380,14 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
     """
     t0 = time.perf_counter()
     plant = resolve_plant(plant)
-    # the modules that still take a Layout (pre-screen, baseline, verification: they move onto the plant
-    # with their owners' changes) get the plant's own
+    # the code that still takes a Layout (the horizon's refinement below) gets the plant's own
     layout = plant.layout
     opts = options or StudyOptions()
     prog = progress or Silent()
     screen = None
     if opts.prescreen:
         prog.phase("pre-screen: equipment bounds and every grid at full air")
-        screen = prescreen(layout)
+        screen = prescreen(plant)
         if not screen["feasible"]:
             return _screened_out(plant, screen, time.perf_counter() - t0)
     study = DiurnalOptimisation(plant, opts, prog, baseline=baseline)
@@ -441,7 +440,7 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
         t = time.perf_counter()
 
         def verify():
-            return verify_day(layout, study.schedule_by_zone(), study.figures(), study.m, problem.swing_states)
+            return verify_day(plant, study.schedule_by_zone(), study.figures(), study.m, problem.swing_states)
 
         if status == "optimal" and opts.hold_do:
             staged = staging is not None and staging.dispatch is not None and not staging.findings
@@ -534,7 +533,7 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
     if base.violations and status in ("optimal", "unverified") and opts.complying_baseline:
         prog.phase("the uniform-DO baseline breaks a limit: finding the lowest uniform setpoint that complies")
         t = time.perf_counter()
-        complying = complying_baseline(layout, base)
+        complying = complying_baseline(plant, base)
         if complying is not None and base_dispatch is not None:
             # billed by the same dispatch rule as the baseline and the optimum
             cd = bill_day_by_dispatch(plant, complying.day, objective)
@@ -544,9 +543,9 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
     savings = saving_figures(base, complying, energy, cost, status, complying_dispatch)
     messages.extend(savings.pop("notes"))
     periods = np.arange(plant.n_periods)
-    untested = outside_tested_range(layout, study.schedule_by_zone(), periods,
+    untested = outside_tested_range(plant, study.schedule_by_zone(), periods,
                                     "optimum" if status in ("optimal", "unverified") else "elastic solution") + \
-        outside_tested_range(layout, _node_airflow(plant, base.day), base.day.node_period, "baseline")
+        outside_tested_range(plant, _node_airflow(plant, base.day), base.day.node_period, "baseline")
     messages.extend(u["message"] for u in untested)
     exit_code = {"optimal": EXIT_OK, "infeasible": EXIT_INFEASIBLE, "unverified": EXIT_UNVERIFIED,
                  "failed": EXIT_INFEASIBLE if budget_ended else EXIT_FAILURE}[status]
