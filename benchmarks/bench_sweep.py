@@ -128,7 +128,7 @@ def section_ratio(layout: str, rows: list[dict], tmp: pathlib.Path, repeats: int
         (tmp / "common.toml").write_text(overrides_to_toml(common))
         extra = ["--overrides", str(tmp / "common.toml")]
     codes = [("this", ROOT / "src")] + ([("before", before)] if before is not None else [])
-    for worker in (False, True):
+    for worker in (False, True) if repeats else ():  # --repeats 0: the sweep rows of section 1 only
         runs = {name: [] for name, _ in codes}
         for i in range(repeats):
             for name, src in codes:  # alternating: both versions see the same load
@@ -162,7 +162,8 @@ def main() -> int:
     ap.add_argument("--layout", default=None)
     ap.add_argument("--scenarios", type=int, default=None)
     ap.add_argument("--sections", default="1,2")
-    ap.add_argument("--repeats", type=int, default=None, help="runs per version in section 2 (default 3, quick 1)")
+    ap.add_argument("--repeats", type=int, default=None,
+                    help="runs per version in section 2 (default 3, quick 1; 0: only the rows of section 1)")
     ap.add_argument("--before", type=pathlib.Path, default=None,
                     help="src folder of the code to compare with in section 2 (e.g. a checkout of main)")
     args = ap.parse_args()
@@ -174,8 +175,8 @@ def main() -> int:
         tmp = pathlib.Path(d)
         rows = section_sweep(layout, _grid(n, common), tmp) if 1 in sections else []
         if 2 in sections:
-            section_ratio(layout, rows, tmp, args.repeats or (1 if args.quick else 3), common,
-                          None if args.before is None else args.before.resolve())
+            section_ratio(layout, rows, tmp, args.repeats if args.repeats is not None else (1 if args.quick else 3),
+                          common, None if args.before is None else args.before.resolve())
     return 0
 
 

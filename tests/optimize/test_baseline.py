@@ -144,3 +144,27 @@ def test_lowest_complying_setpoint_below_a_baseline_that_breaks_tn(demo6):
     below = found.setpoint_mg_L - SEARCH_TOL_mg_L
     if below >= search_range(plant)[0]:  # the lowest to the search's tolerance
         assert run_baseline(plant, below, start_state=found.day.start_state()).violations
+
+
+def test_complying_search_finds_a_narrow_span_between_an_nh4_breach_and_a_do_maximum(monkeypatch, demo6):
+    """NH4-N breaks below 2.55 mg/L and a zone's DO maximum above 2.9 mg/L (as on the demo at 13 C): the
+    upward steps 2.25, 2.5, 3.0 pass over the span; the search bisects between 2.5 and 3.0 three ways and
+    stops there (no steps to 4 and 6 mg/L, no downward search)."""
+    import airtaper.optimize.baseline as bl
+
+    limit = demo6.limits.nh4_mean_mg_L
+    tried = []
+
+    def trial(sp):
+        nh4 = limit * (1.0 + 0.2 * (2.55 - sp))  # falls with more oxygen; meets the limit from 2.55 up
+        broken = (["NH4-N"] if nh4 > limit else []) + (["DO max"] if sp > 2.9 else [])
+        return _FakeBaseline(sp, broken, {"nh4_mean_mg_L": nh4, "nh4_max_mg_L": 0.0})
+
+    def fake_try(plant_, sp, start):
+        tried.append(sp)
+        return trial(sp)
+
+    monkeypatch.setattr(bl, "_try", fake_try)
+    found = bl.complying_baseline(demo6, trial(2.0))
+    assert found is not None and 2.55 <= found.setpoint_mg_L <= 2.55 + SEARCH_TOL_mg_L
+    assert max(tried) == 3.0 and min(tried) > 2.0 and len(tried) <= 8

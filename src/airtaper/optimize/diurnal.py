@@ -438,8 +438,7 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
         t = time.perf_counter()
 
         def verify():
-            # verify_day still takes a Layout: the plant's own
-            return verify_day(plant.layout, study.schedule_by_zone(), study.figures(), study.m, problem.swing_states)
+            return verify_day(plant, study.schedule_by_zone(), study.figures(), study.m, problem.swing_states)
 
         if status == "optimal" and opts.hold_do:
             staged = staging is not None and staging.dispatch is not None and not staging.findings

@@ -64,11 +64,6 @@ class SimDay:
     setpoint_shortfalls: list = field(default_factory=list)  # DO setpoints the control could not hold
     layers: np.ndarray | None = None  # (N, layers, 13) clarifier layers from the top (layered only)
 
-    @property
-    def layout(self) -> Layout:
-        """The layout the plant was resolved from (provenance)."""
-        return self.plant.layout
-
     def start_state(self) -> tuple[dict, float | None]:
         """The state at 0 h of this periodic day, and its waste flow (target SRT), to start another day from."""
         y = np.asarray(self.extra["y_end"], dtype=float).reshape(-1, len(ASM1_COMPONENTS))
@@ -152,7 +147,7 @@ def simulate_day(plant: ResolvedPlant | Layout, schedule: dict | None = None, do
         kwargs["start_period"] = start_period
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        res = periodic(plant.layout, schedule=schedule, do_setpoint_mg_L=do_setpoint_mg_L, **kwargs)
+        res = periodic(plant, schedule=schedule, do_setpoint_mg_L=do_setpoint_mg_L, **kwargs)
     ts, eff = res.timeseries, res.effluent
     zone_ids = list(plant.zone_ids)
     nz = len(zone_ids)

@@ -31,6 +31,7 @@ import math
 from airtaper.layout.types import Layout
 from airtaper.optimize.compliance import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE, violations
 from airtaper.optimize.simday import simulate_day
+from airtaper.plant import ResolvedPlant, resolve_plant
 
 _KEYS = ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L")
 #: Day-repeat tolerance of the verification run, max |y(t + 24 h) - y(t)| / max(|y|, 1).
@@ -63,7 +64,7 @@ def start_state_of(m, period: int | None = None) -> tuple[dict, float | None]:
     return state, waste
 
 
-def verify_schedule(layout: Layout, schedule: dict, optimiser_figures: dict, m=None,
+def verify_schedule(plant: ResolvedPlant | Layout, schedule: dict, optimiser_figures: dict, m=None,
                     swing_states: dict | None = None) -> dict:
     """Simulate ``schedule`` (zone -> per-period airflow) and compare (see module notes).
 
@@ -71,27 +72,30 @@ def verify_schedule(layout: Layout, schedule: dict, optimiser_figures: dict, m=N
     simulator's own mean-load steady state and default tolerance); ``swing_states``: the
     swing zones' on/off per period (:attr:`airtaper.optimize.problem.Problem.swing_states`).
     """
-    return verify_day(layout, schedule, optimiser_figures, m, swing_states)[0]
+    return verify_day(plant, schedule, optimiser_figures, m, swing_states)[0]
 
 
-def verify_day(layout: Layout, schedule: dict, optimiser_figures: dict, m=None, swing_states: dict | None = None):
-    """:func:`verify_schedule` and the simulated :class:`~airtaper.optimize.simday.SimDay`."""
+def verify_day(plant: ResolvedPlant | Layout, schedule: dict, optimiser_figures: dict, m=None,
+               swing_states: dict | None = None):
+    """:func:`verify_schedule` and the simulated :class:`~airtaper.optimize.simday.SimDay` (a layout is resolved
+    first)."""
+    plant = resolve_plant(plant)
     if m is not None:
-        n, period_h = layout.horizon.n_periods, layout.horizon.period_h
+        n, period_h = plant.n_periods, plant.period_h
         first = n - lead_in_periods(n, period_h)  # 0-based period the lead-in starts (n: none)
         state, waste = start_state_of(m, first if first < n else None)
-        day = simulate_day(layout, schedule=schedule, start_state=state, start_waste_m3_d=waste, tol=DAY_REPEAT_TOL,
+        day = simulate_day(plant, schedule=schedule, start_state=state, start_waste_m3_d=waste, tol=DAY_REPEAT_TOL,
                            start_period=first % n)
         start = f"optimiser's state at {first * period_h:g} h" + (", simulated on to 0 h" if first < n else "")
     else:
-        day = simulate_day(layout, schedule=schedule)
+        day = simulate_day(plant, schedule=schedule)
     f = day.figures
     lows = day.do_extremes.loc[day.do_extremes.groupby("zone")["do_min_mg_L"].idxmin()]
-    broken = violations(layout, f, effluent_tolerance=EFFLUENT_TOLERANCE, do_tolerance_mg_L=DO_TOLERANCE_mg_L)
-    swing_margins = swing_do_margins(layout, day.do_min_by_period(), swing_states)
+    broken = violations(plant, f, effluent_tolerance=EFFLUENT_TOLERANCE, do_tolerance_mg_L=DO_TOLERANCE_mg_L)
+    swing_margins = swing_do_margins(plant, day.do_min_by_period(), swing_states)
     for z, (margin, periods) in swing_margins.items():
         if margin < -DO_TOLERANCE_mg_L:
-            broken.append(f"swing zone {z} while aerated: DO below its minimum of {layout.zone(z).do_min_mg_L:g} mg/L "
+            broken.append(f"swing zone {z} while aerated: DO below its minimum of {plant.zone(z).do_min_mg_L:g} mg/L "
                           f"by {-margin:.3f} mg/L (periods {', '.join(str(p) for p in periods)})")
     return {
         "verified": not broken,
@@ -107,9 +111,9 @@ def verify_day(layout: Layout, schedule: dict, optimiser_figures: dict, m=None, 
                       for r in lows.itertuples()},
         "do_lowest_by_period": {z: [float(v) for v in lows_z] for z, lows_z in day.do_min_by_period().items()},
         # the DO minimum alone: lowest DO over continuous time less the minimum, the smallest over the zones
-        "do_min_margin_mg_L": min((float(r.do_min_mg_L) - layout.zone(r.zone).do_min_mg_L for r in lows.itertuples()
-                                   if layout.zone(r.zone).do_min_mg_L is not None and layout.zone(r.zone).grid
-                                   is not None and layout.zone(r.zone).kind == "aerated"), default=None),
+        "do_min_margin_mg_L": min((float(r.do_min_mg_L) - plant.zone(r.zone).do_min_mg_L for r in lows.itertuples()
+                                   if plant.zone(r.zone).do_min_mg_L is not None and plant.has_diffusers(r.zone)
+                                   and plant.zone(r.zone).kind == "aerated"), default=None),
         "method": "effluent means integrated over the day (quadrature of the dense output); "
                   "DO extremes over continuous time",
         "violations": broken,
@@ -121,7 +125,7 @@ def verify_day(layout: Layout, schedule: dict, optimiser_figures: dict, m=None, 
     }, day
 
 
-def swing_do_margins(layout: Layout, lows_by_period: dict, swing_states: dict | None) -> dict:
+def swing_do_margins(plant: ResolvedPlant | Layout, lows_by_period: dict, swing_states: dict | None) -> dict:
     """Swing zone -> (smallest DO margin over its aerated periods, 1-based periods short of the minimum).
 
     The DO minimum of a swing zone holds while it is aerated, from the period after the one it is
@@ -129,9 +133,10 @@ def swing_do_margins(layout: Layout, lows_by_period: dict, swing_states: dict | 
     period's second step). Zones without a DO minimum or never aerated after an aerated period
     are left out.
     """
+    plant = resolve_plant(plant)
     out = {}
     for z, on in (swing_states or {}).items():
-        lo = layout.zone(z).do_min_mg_L
+        lo = plant.zone(z).do_min_mg_L
         held = [k for k in range(len(on)) if on[k] and on[k - 1]]
         if lo is None or not held:
             continue
