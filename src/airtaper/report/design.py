@@ -155,7 +155,7 @@ def design_html(summary: dict, zones, days, images: dict, binding=None) -> str:
               fmt(r.density_design_percent, 1), r.binding] for r in zones.itertuples()], left=1))
         body.append(_img(images.get("taper.png"), "diffusers per zone") + _img(images.get("train.png"),
                                                                                "the designed train"))
-        cols = ["load day", "days/year", f"energy kWh/d", f"cost {cur}/d", "NH4-N mean", "TN mean"]
+        cols = ["load day", "days/year", "energy kWh/d", f"cost {cur}/d", "NH4-N mean", "TN mean"]
         has_cur = "energy_kWh_per_day_current" in days.columns
         if has_cur:
             cols += ["current kWh/d", f"current {cur}/d"]
