@@ -13,26 +13,39 @@ Outcome of each plant, from the exit code and the last message:
 * ``diagnosed``  exit 2 or 3 with a named reason (limits infeasible, no steady state,
   washout): the tool says why it cannot plan this plant;
 * ``unverified`` exit 4: a schedule that broke a limit when re-simulated;
-* ``failed``     exit 1, a traceback, or the time limit.
+* ``failed``     exit 1, a traceback, the time limit, or an optimiser that used up its
+  solve budget (exit 3 with status ``failed`` in summary.json: a bounded ending, but no
+  answer, so it is not counted as diagnosed).
+
+The message shown is the first line of ``error:`` on stderr (exit 2, or a plant stopped
+before the optimisation), else the summary's first message and, for a diagnosis, where it
+came from (pre-screen or elastic solve).
 
 Target (issue 10): at least 98 % verified or diagnosed; no failure.
 
 Usage::
 
-    python benchmarks/bench_robustness.py [--n 50] [--first 0] [--timeout 600] [--keep DIR]
+    python benchmarks/bench_robustness.py [--n 50] [--first 0] [--timeout 600] [--cpu] [--keep DIR]
 
 ``--n`` plants from the fixed seed (``--first`` skips the first ones: run a long list in
 pieces on a busy machine); ``AIRTAPER_ROBUSTNESS_SEEDS=1,2,3`` adds plants from more
 seeds (``--n`` each); ``--quick``: 3 plants. Times are wall-clock (noisy on a shared
 machine), with the CPU seconds of each run beside the message. The full 50 plants take
 one to a few hours on two cores: this is not a timing benchmark but a count of outcomes.
+
+``--cpu``: the limit counts the run's CPU seconds, not the wall clock (the child gets
+RLIMIT_CPU; the wall clock may run to 8 times the limit). On a machine shared with other
+jobs a wall-clock limit measures the load, not the plant: at a load average of 10 runs
+were stopped at 300 s wall after 21-42 s of CPU.
 """
 
 from __future__ import annotations
 
 import argparse
+import json
 import os
 import resource
+import signal
 import subprocess
 import sys
 import tempfile
@@ -161,7 +174,14 @@ def _child_cpu_s() -> float:
     return r.ru_utime + r.ru_stime
 
 
-def run_plant(text: str, folder: Path, timeout_s: float) -> tuple[str, int | None, float, str]:
+def _cpu_limit(seconds: float):
+    """preexec_fn of a child whose CPU time is limited to ``seconds`` (SIGXCPU, then SIGKILL)."""
+    def limit():
+        resource.setrlimit(resource.RLIMIT_CPU, (int(seconds), int(seconds) + 5))
+    return limit
+
+
+def run_plant(text: str, folder: Path, timeout_s: float, cpu: bool = False) -> tuple[str, int | None, float, str]:
     """(outcome, exit code, seconds, last message line) of `airtaper optimize` on one layout.
 
     The seconds are wall-clock; the CPU seconds of the run are appended to the message
@@ -176,16 +196,33 @@ def run_plant(text: str, folder: Path, timeout_s: float) -> tuple[str, int | Non
     try:
         p = subprocess.run([sys.executable, "-m", "airtaper.cli.main", "optimize", str(path), "--out",
                             str(folder / "out"), "--quiet", "--no-figure"], capture_output=True, text=True,
-                           timeout=timeout_s, env=env)
+                           timeout=8.0 * timeout_s if cpu else timeout_s, env=env,
+                           preexec_fn=_cpu_limit(timeout_s) if cpu else None)
     except subprocess.TimeoutExpired:
         return ("failed", None, time.perf_counter() - t0,
-                f"[cpu {_child_cpu_s() - cpu0:.0f} s] time limit {timeout_s:.0f} s")
+                f"[cpu {_child_cpu_s() - cpu0:.0f} s] wall time limit {(8.0 if cpu else 1.0) * timeout_s:.0f} s")
+    if cpu and p.returncode in (-signal.SIGXCPU, -signal.SIGKILL):
+        return ("failed", None, time.perf_counter() - t0,
+                f"[cpu {_child_cpu_s() - cpu0:.0f} s] CPU time limit {timeout_s:.0f} s")
     seconds = time.perf_counter() - t0
     err = [ln for ln in p.stderr.splitlines() if ln.strip()]
-    last = next((ln for ln in reversed(err) if ln.startswith("error:")), err[-1] if err else "")
+    last = next((ln for ln in reversed(err) if ln.startswith("error:")), "")
+    status = None
+    summary_path = folder / "out" / "summary.json"
+    if summary_path.is_file():
+        s = json.loads(summary_path.read_text())
+        status = s.get("status")
+        if not last:
+            sources = sorted({f.get("source", "elastic") for f in s.get("infeasibility") or []})
+            last = (f"{status}" + (f" ({', '.join(sources)})" if sources else "") + ": "
+                    + "; ".join((s.get("messages") or [""])[:2]))
+    if not last and err:
+        last = err[-1]
     last = f"[cpu {_child_cpu_s() - cpu0:.0f} s] {last}"
     if "Traceback" in p.stderr:
         return "failed", p.returncode, seconds, "traceback: " + last
+    if status == "failed":  # a bounded ending of the optimiser (or a solver failure): no answer
+        return "failed", p.returncode, seconds, last
     outcome = {0: "verified", 2: "diagnosed", 3: "diagnosed", 4: "unverified"}.get(p.returncode, "failed")
     return outcome, p.returncode, seconds, last
 
@@ -195,6 +232,8 @@ def main(argv=None) -> int:
     ap.add_argument("--n", type=int, default=50, help="plants per seed (default 50)")
     ap.add_argument("--first", type=int, default=0, help="skip this many plants of each seed")
     ap.add_argument("--timeout", type=float, default=600.0, help="time limit per plant, s (default 600)")
+    ap.add_argument("--clarifier", choices=("ideal", "layered"), help="run only the plants with this clarifier")
+    ap.add_argument("--cpu", action="store_true", help="the time limit counts CPU seconds (a shared machine)")
     ap.add_argument("--keep", metavar="DIR", help="keep the layouts and outputs in DIR")
     ap.add_argument("--quick", action="store_true", help="3 plants, 300 s each (benchmarks/run_all.py --quick)")
     args = ap.parse_args(argv)
@@ -209,14 +248,14 @@ def main(argv=None) -> int:
         rng = np.random.default_rng(seed)
         for k in range(args.first + args.n):
             text, desc = random_plant(rng, k)
-            if k < args.first:
+            if k < args.first or (args.clarifier and desc["clarifier"] != args.clarifier):
                 continue
-            outcome, code, seconds, msg = run_plant(text, base / f"{seed}-{k:03d}", args.timeout)
+            outcome, code, seconds, msg = run_plant(text, base / f"{seed}-{k:03d}", args.timeout, args.cpu)
             counts[outcome] = counts.get(outcome, 0) + 1
             total += 1
             print(f"{seed % 1000:>5}-{k:<6d} {desc['zones']:>5} {desc['clarifier']:>7} {desc['load']:>5} "
                   f"{desc['temperature_C']:>5} {code if code is not None else '-':>4} {seconds:>7.1f}  "
-                  f"{outcome}: {msg[:160]}", flush=True)
+                  f"{outcome}: {msg[:220]}", flush=True)
     good = counts.get("verified", 0) + counts.get("diagnosed", 0)
     print(f"\n{total} plants: " + ", ".join(f"{k} {v}" for k, v in sorted(counts.items()))
           + f"; verified or diagnosed {100.0 * good / max(total, 1):.0f} % (target >= 98 %, no failure)")

@@ -47,11 +47,11 @@ def one_machine(layout):
     t0 = time.perf_counter()
     r = run_optimization(layout, StudyOptions(staging=False))
     seconds = time.perf_counter() - t0
-    m = r.study.m
+    m, problem = r.study.m, r.study.problem
     b = m.opt
-    state = model_air_state(m)
-    dp = solve_dispatch(b.machines, state["demand_Sm3_h"], state["discharge_gauge_kPa"], state["kw_per_equivalent"],
-                        Bill.of(layout, b.settings.objective), layout.horizon.period_h, state["excess_max_Sm3_h"])
+    state = model_air_state(problem)
+    dp = solve_dispatch(problem.machines, state["demand_Sm3_h"], state["discharge_gauge_kPa"],
+                        state["kw_per_equivalent"], Bill.of(layout, problem.objective), layout.horizon.period_h, state["excess_max_Sm3_h"])
     bill = dp.bill(layout)
     below = 0
     for z in b.SWING_ZONES:

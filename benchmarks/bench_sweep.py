@@ -8,11 +8,16 @@ Prints, measured side by side in one run:
    efficiency (serial / (cluster x workers); target: as close to 1 as the machine
    allows), and the peak resident memory of each worker;
 2. the demo's wall time against its Ipopt time: ``airtaper optimize`` from the
-   command line as a user runs it (a fresh interpreter: imports, report) and a
-   scenario inside a sweep worker (``run_s`` against ``ipopt_s`` of the rows; target:
-   run_s <= 1.5 x ipopt_s). Ipopt's time is the solver's own, summed over attempts.
+   command line as a user runs it (a fresh interpreter: imports, report), a scenario
+   as a sweep worker runs it (imports paid before the clock starts, ``--no-report``),
+   and the scenarios of section 1 (``run_s`` against ``ipopt_s`` of the rows); target:
+   wall <= 1.5 x Ipopt. Ipopt's time is the solver's own, summed over attempts. With
+   ``--before SRC`` (the ``src`` folder of another checkout, e.g. of main) the same runs
+   of that code alternate with this one's, so both see the same load: before and after
+   side by side in one run.
 
-    python benchmarks/bench_sweep.py [--quick] [--layout L] [--scenarios N] [--sections 1,2]
+    python benchmarks/bench_sweep.py [--quick] [--layout L] [--scenarios N] [--sections 1,2] [--repeats K]
+                                     [--before SRC]
 
 ``--quick``: the three-tank plant on four periods, 8 scenarios. Numbers taken while
 other work runs on the machine are noisy; the ratios of one run are what to compare.
@@ -86,35 +91,67 @@ def section_sweep(layout: str, grid: Grid, tmp: pathlib.Path) -> list[dict]:
     return serial_rows + cluster_rows
 
 
-def section_ratio(layout: str, rows: list[dict], tmp: pathlib.Path, repeats: int, common: dict) -> None:
+#: A scenario as a sweep worker runs it: the imports before the clock, then the optimize command in-process
+#: with --no-report; prints the wall time of the command and the summary's path.
+_WORKER = """
+import sys, time
+import airtaper.cli.main as cli, airtaper.cli.optimize, airtaper.optimize.diurnal
+t0 = time.perf_counter()
+cli.main(sys.argv[1:])
+print(time.perf_counter() - t0)
+"""
+
+
+def _run(src: pathlib.Path, argv: list[str], worker: bool) -> tuple[float, dict]:
+    """(wall s, summary) of one optimize run with the code of ``src``."""
+    env = dict(os.environ, PYTHONPATH=str(src) + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    out = pathlib.Path(argv[argv.index("--out") + 1])
+    t0 = time.perf_counter()
+    if worker:
+        r = subprocess.run([sys.executable, "-c", _WORKER, *argv, "--no-report"], env=env, capture_output=True,
+                           text=True, check=False)
+        wall = float(r.stdout.strip().splitlines()[-1])
+    else:
+        subprocess.run([sys.executable, "-m", "airtaper.cli.main", *argv], env=env, stdout=subprocess.DEVNULL,
+                       check=False)
+        wall = time.perf_counter() - t0
+    return wall, json.loads((out / "summary.json").read_text())
+
+
+def section_ratio(layout: str, rows: list[dict], tmp: pathlib.Path, repeats: int, common: dict,
+                  before: pathlib.Path | None) -> None:
     print(f"2. wall time against Ipopt time, {layout}" + (f" with {common}" if common else ""))
-    cli = []
-    env = dict(os.environ, PYTHONPATH=str(ROOT / "src") + os.pathsep + os.environ.get("PYTHONPATH", ""))
     extra = []
     if common:
         from airtaper.layout.overrides import overrides_to_toml
 
         (tmp / "common.toml").write_text(overrides_to_toml(common))
         extra = ["--overrides", str(tmp / "common.toml")]
-    for i in range(repeats):
-        out = tmp / f"cli{i}"
-        t0 = time.perf_counter()
-        subprocess.run([sys.executable, "-m", "airtaper.cli.main", "optimize", layout, "--out", str(out), "--quiet",
-                        *extra], env=env, stdout=subprocess.DEVNULL, check=False)
-        wall = time.perf_counter() - t0
-        s = json.loads((out / "summary.json").read_text())
-        cli.append((wall, s["solver"]["timings"]["ipopt_s"], s["solver"]["timings"]))
-    wall = statistics.median(c[0] for c in cli)
-    ipopt = statistics.median(c[1] for c in cli)
-    print(f"   command line (fresh interpreter, report): wall {wall:.1f} s, Ipopt {ipopt:.1f} s, "
-          f"ratio {wall / ipopt:.2f} (median of {repeats})")
-    t = cli[len(cli) // 2][2]
-    parts = ", ".join(f"{k} {v:.1f}" for k, v in t.items() if isinstance(v, float) and v >= 0.05)
-    print(f"   inside the run (s): {parts}")
+    codes = [("this", ROOT / "src")] + ([("before", before)] if before is not None else [])
+    for worker in (False, True):
+        runs = {name: [] for name, _ in codes}
+        for i in range(repeats):
+            for name, src in codes:  # alternating: both versions see the same load
+                out = tmp / f"{name}-{'w' if worker else 'c'}{i}"
+                wall, s = _run(src, ["optimize", layout, "--out", str(out), "--quiet", *extra], worker)
+                runs[name].append((wall, s["solver"]["timings"]["ipopt_s"], s["solver"]["timings"],
+                                   s["energy_kWh_per_day"], s.get("cost_per_day"), s.get("status")))
+        how = "as a sweep worker runs it (imports paid, --no-report)" if worker else \
+            "command line (fresh interpreter, report)"
+        print(f"   {how}, median of {repeats}:")
+        for name, _ in codes:
+            r = runs[name]
+            wall = statistics.median(c[0] for c in r)
+            ipopt = statistics.median(c[1] for c in r)
+            mid = sorted(r, key=lambda c: c[0])[len(r) // 2]
+            print(f"     {name:6s}: wall {wall:6.1f} s, Ipopt {ipopt:6.1f} s, ratio {wall / ipopt:.2f}; "
+                  f"{mid[5]}, {mid[3]:,.1f} kWh/d" + (f", cost {mid[4]:,.2f}/d" if mid[4] is not None else ""))
+            parts = ", ".join(f"{k} {v:.1f}" for k, v in mid[2].items() if isinstance(v, float) and v >= 0.05)
+            print(f"             inside the run (s): {parts}")
     ok = [r for r in rows if r.get("ipopt_s")]  # (a worker's first scenario pays its imports: read the median)
     if ok:
         ratios = sorted(r["run_s"] / r["ipopt_s"] for r in ok)
-        print(f"   sweep scenarios ({len(ok)}): run_s / ipopt_s median {statistics.median(ratios):.2f}, "
+        print(f"   sweep scenarios of section 1 ({len(ok)}): run_s / ipopt_s median {statistics.median(ratios):.2f}, "
               f"min {ratios[0]:.2f}, max {ratios[-1]:.2f} (target <= 1.5); median run_s "
               f"{statistics.median(r['run_s'] for r in ok):.1f} s, ipopt_s {statistics.median(r['ipopt_s'] for r in ok):.1f} s")
 
@@ -125,6 +162,9 @@ def main() -> int:
     ap.add_argument("--layout", default=None)
     ap.add_argument("--scenarios", type=int, default=None)
     ap.add_argument("--sections", default="1,2")
+    ap.add_argument("--repeats", type=int, default=None, help="runs per version in section 2 (default 3, quick 1)")
+    ap.add_argument("--before", type=pathlib.Path, default=None,
+                    help="src folder of the code to compare with in section 2 (e.g. a checkout of main)")
     args = ap.parse_args()
     layout = args.layout or str(ROOT / "layouts" / ("three_tank.toml" if args.quick else "demo.toml"))
     n = args.scenarios or (8 if args.quick else 16)
@@ -134,7 +174,8 @@ def main() -> int:
         tmp = pathlib.Path(d)
         rows = section_sweep(layout, _grid(n, common), tmp) if 1 in sections else []
         if 2 in sections:
-            section_ratio(layout, rows, tmp, 1 if args.quick else 3, common)
+            section_ratio(layout, rows, tmp, args.repeats or (1 if args.quick else 3), common,
+                          None if args.before is None else args.before.resolve())
     return 0
 
 

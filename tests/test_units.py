@@ -86,3 +86,10 @@ def test_conversions_accept_arrays():
     x = np.array([0.0, 1.0, 2.5])
     np.testing.assert_allclose(units.kPa_to_m_water(units.m_water_to_kPa(x)), x)
     assert math.isclose(float(units.Sm3_h_to_kg_s(np.array([3600.0]))[0]), units.AIR_kg_per_Sm3)
+
+
+@pytest.mark.parametrize("hours, text", [(0.0, "00:00"), (10.0, "10:00"), (13.5, "13:30"), (23.9999, "24:00"),
+                                         (24.0, "24:00"), (2.0 / 3.0, "00:40")])
+def test_clock(hours, text):
+    """Hours from midnight to HH:MM, to the nearest minute; the day's end is 24:00."""
+    assert units.clock(hours) == text

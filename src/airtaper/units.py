@@ -200,3 +200,10 @@ def kJ_s_to_kW(power_kJ_s):
 def ft_to_m(length_ft):
     """Feet to metres (the international foot, 0.3048 m exactly)."""
     return length_ft * M_PER_FT
+
+
+# --- time of day ------------------------------------------------------------
+def clock(hours: float) -> str:
+    """Hours from midnight as a clock time HH:MM, to the nearest minute (the day's end is 24:00)."""
+    total = int(round(hours * 60.0))
+    return f"{total // 60:02d}:{total % 60:02d}"

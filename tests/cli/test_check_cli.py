@@ -168,3 +168,74 @@ def test_sigterm_is_reported_like_an_interrupt(monkeypatch, capsys):
     assert main(["check", str(DEMO)]) == 128 + signal.SIGTERM
     assert capsys.readouterr().err == "error: terminated\n"
     assert signal.getsignal(signal.SIGTERM) is signal.SIG_DFL  # restored after the command
+
+
+# --- check rejects every layout a computing command rejects for its input ----------------------------------------
+_HEADLOSS_ONE_POINT = "headloss_points = [\n  { airflow_per_diffuser_Sm3_h = 1.0, headloss_kPa = 2.9 },\n]\n"
+_SOTE_THREE_POINTS = """sote_points = [
+  { airflow_per_diffuser_Sm3_h = 1.0, sote_percent = 30.0, density_percent = 8.0, submergence_m = 4.0 },
+  { airflow_per_diffuser_Sm3_h = 3.0, sote_percent = 28.0, density_percent = 12.0, submergence_m = 5.0 },
+  { airflow_per_diffuser_Sm3_h = 5.0, sote_percent = 27.0, density_percent = 20.0, submergence_m = 6.0 },
+]
+"""
+
+
+def _between(text: str, start: str, end: str, new: str) -> str:
+    a = text.index(start)
+    return text[:a] + new + text[text.index(end, a):]
+
+
+#: Layouts each broken in one way, the parser's and the resolution's checks (the SOTE and headloss fits, the
+#: TKN fractionation, the ASM1 overrides): name -> (edit of demo.toml, a fragment of the expected error line).
+BROKEN = {
+    "parser": (lambda t: t.replace("valve_capacity_Sm3_h = 4000.0", "valve_capacity_Sm3h = 4000.0", 1),
+               "valve_capacity_Sm3h"),
+    "sote fit": (lambda t: _between(t, "sote_points = [", "headloss_points = [", _SOTE_THREE_POINTS),
+                 "sote_points: fewer test points than fitted parameters"),
+    "headloss fit": (lambda t: _between(t, "headloss_points = [", "\n# Zones", _HEADLOSS_ONE_POINT),
+                     "headloss_points: too few points"),
+    "tkn": (lambda t: t.replace("xbh_of_cod = 0.07", "xbh_of_cod = 0.3"),
+            "influent.tkn_mg_L, period 1: TKN is below NH4-N"),
+    "asm1 override": (lambda t: t.replace('parameter_set = "asm1_20C"\n',
+                                          'parameter_set = "asm1_20C"\noverrides = { Y_H = 1.5 }\n'),
+                      "kinetics.overrides.Y_H: out of range"),
+}
+
+
+def _commands(layout: Path, tmp: Path) -> dict:
+    grid = tmp / "grid.toml"
+    grid.write_text('[grid]\n"zones.Z3.alpha" = [0.5, 0.6]\n')
+    data = tmp / "data.csv"  # never read: the layout is rejected first
+    return {
+        "check": ["check", str(layout), "--no-prescreen"],
+        "optimize": ["optimize", str(layout), "--out", str(tmp / "o"), "--quiet", "--no-report"],
+        "simulate": ["simulate", str(layout), "--out", str(tmp / "s")],
+        "calibrate": ["calibrate", str(layout), "--data", str(data), "--out", str(tmp / "c"), "--quiet"],
+        "sweep": ["sweep", str(layout), "--grid", str(grid), "--out", str(tmp / "w"), "--quiet", "--no-report"],
+        "year": ["year", str(layout), "--out", str(tmp / "y"), "--quiet", "--no-report"],
+    }
+
+
+@pytest.mark.parametrize("name", list(BROKEN))
+def test_check_rejects_every_layout_the_computing_commands_reject(name, tmp_path, capsys):
+    """Every command reads the layout through the one resolution step (`airtaper.plant.load_plant`): a layout
+    `check` passes, none rejects for its input, and one it rejects they all reject with the same lines, exit 2,
+    before writing anything."""
+    edit, fragment = BROKEN[name]
+    text = edit(DEMO.read_text())
+    assert text != DEMO.read_text()
+    layout = tmp_path / "bad.toml"
+    layout.write_text(text)
+    shutil.copy(ROOT / "layouts" / "demo_influent.csv", tmp_path / "demo_influent.csv")
+    errors = {}
+    for command, argv in _commands(layout, tmp_path).items():
+        code = main(argv)
+        err = capsys.readouterr().err
+        assert code == EXIT_INPUT, (command, err)
+        assert "Traceback" not in err
+        errors[command] = [line for line in err.splitlines() if line.startswith("error: ")]
+    assert errors["check"] and any(fragment in line for line in errors["check"]), errors["check"]
+    assert all(line.startswith(f"error: {layout}: ") for line in errors["check"])
+    for command, lines in errors.items():
+        assert lines == errors["check"], command
+    assert not any((tmp_path / d).exists() for d in "oscwy")

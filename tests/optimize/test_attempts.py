@@ -160,3 +160,29 @@ def test_a_model_initialisation_that_fails_leaves_the_simulated_day_as_the_start
         want = np.maximum(day.state_at(hours[t]), 0.0)
         got = np.array([[m.conc[t, z, c].value for c in m.COMPONENTS] for z in m.ZONES])
         np.testing.assert_allclose(got, want, rtol=1e-12, atol=1e-12)
+
+
+@pytest.mark.solver
+def test_a_spent_solve_budget_ends_in_plain_words_with_exit_3(three_tank_6):
+    """A stalled optimiser stops at its solve budget (optimize/attempts.SolveBudget): no more rungs, no elastic
+    solve, exit 3 and a message that says the optimiser did not settle (not that the limits are infeasible)."""
+    from airtaper.errors import EXIT_INFEASIBLE
+
+    res = run_optimization(three_tank_6, StudyOptions(marginal=False, prescreen=False, solve_budget_s=1e-3))
+    s = res.summary
+    assert res.exit_code == EXIT_INFEASIBLE and s["status"] == "failed"
+    assert any("did not settle within its solve budget" in m for m in s["messages"]), s["messages"]
+    attempts = s["solver"]["attempts"]
+    assert len(attempts) == 1 and attempts[0]["status"] == "time_limit"  # the ladder stopped at the first rung
+    assert s["infeasibility"] == [] and s["saving_percent"] is None
+
+
+def test_the_solve_budget_hands_each_solve_what_is_left():
+    from airtaper.optimize.attempts import SolveBudget
+
+    b = SolveBudget(100.0)
+    assert not b.exhausted and b.remaining() == 100.0  # the clock starts at the first solve
+    first = b.options()["max_cpu_time"]
+    assert 99.0 < first <= 100.0 and not b.exhausted
+    b.started -= 150.0  # 150 CPU seconds of solving later
+    assert b.exhausted and b.options()["max_cpu_time"] == SolveBudget.FLOOR_S

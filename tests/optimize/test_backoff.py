@@ -48,6 +48,20 @@ def test_back_offs_leave_half_of_a_zone_s_do_range_open(demo):
     assert low[("Z6", 2)] == pytest.approx(room) and high[("Z6", 2)] == pytest.approx(0.0)
 
 
+def test_an_excursion_is_backed_off_at_the_points_of_the_step_it_happens_in():
+    """Four 1-hour Radau steps per 4-hour period (two points each): a DO peak 29 minutes into the period moves
+    the bound at that step's two points only; one exactly at a step's start belongs to the step before (the
+    model's value there is that step's last point), and 0 h is 24 h."""
+    from airtaper.optimize.backoff import points_at
+
+    steps = [(float(k), [2 * k - 1, 2 * k]) for k in range(1, 25)]  # step k ends at k h
+    assert points_at(steps, 8.49) == [17, 18]
+    assert points_at(steps, 12.0) == [23, 24]
+    assert points_at(steps, 12.0 + 1e-12) == [23, 24]  # round-off at the boundary
+    assert points_at(steps, 0.0) == points_at(steps, 24.0) == [47, 48]
+    assert points_at(steps, 23.2) == [47, 48]
+
+
 @pytest.mark.solver
 @pytest.mark.slow
 def test_demo_holds_the_do_minimum_in_continuous_time(demo):
@@ -82,3 +96,14 @@ def test_the_do_minimum_holds_on_perturbed_plants(three_tank_diurnal, scale):
     v = res.summary["verification"]
     assert res.summary["status"] == "optimal", res.summary["messages"]
     assert v["do_min_margin_mg_L"] >= -DO_ACCEPT_mg_L
+
+
+def test_model_steps_longer_than_half_an_hour_are_refined_to_half_an_hour():
+    from airtaper.optimize.backoff import REFINED_STEP_H, refined_steps_per_period
+
+    assert REFINED_STEP_H == 0.5
+    assert refined_steps_per_period(4.0, 1) == 8  # six 4-hour periods of one step: 30-minute steps
+    assert refined_steps_per_period(2.0, 1) == 4
+    assert refined_steps_per_period(1.0, 2) is None  # the demo's own 30-minute steps
+    assert refined_steps_per_period(0.5, 1) is None
+    assert refined_steps_per_period(24.0 / 7, 1) == 7  # a step of at most 30 minutes

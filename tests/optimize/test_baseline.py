@@ -45,7 +45,7 @@ def test_savings_against_a_baseline_that_breaks_a_limit(tight):
     assert s["baseline_compliant"] is False
     assert s["saving_percent"] == pytest.approx(10.0)
     c = s["complying_baseline"]
-    assert c["compliant"] and c["saving_percent"] == pytest.approx(
+    assert c.compliant and c.saving_percent == pytest.approx(
         100.0 * (found.energy_kWh_per_day - energy) / found.energy_kWh_per_day)
     assert any("breaks a limit" in n for n in s["notes"])
     assert any("lowest uniform DO setpoint that meets the limits" in n for n in s["notes"])

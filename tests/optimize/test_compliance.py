@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from airtaper.optimize.compliance import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE, clock, day_figures, do_limits, violations
+from airtaper.optimize.compliance import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE, day_figures, do_limits, violations
 
 
 def test_flow_weighted_means_and_period_maxima(three_tank_6):
@@ -48,7 +48,3 @@ def test_do_limits_cover_aerated_diffused_zones_only(demo):
     assert lim["Z6"] == (1.0, 2.5)
     assert lim["Z2"] == (1.0, None)
 
-
-@pytest.mark.parametrize("hours, text", [(0.0, "00:00"), (10.0, "10:00"), (13.5, "13:30"), (24.0, "24:00")])
-def test_clock(hours, text):
-    assert clock(hours) == text

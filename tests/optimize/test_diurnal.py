@@ -7,17 +7,20 @@ monotonicity any correct optimum must show (a tighter limit never costs less).
 
 from __future__ import annotations
 
+import json
 from dataclasses import replace
 
 import numpy as np
 import pytest
 
 from airtaper.errors import EXIT_INFEASIBLE, EXIT_OK
+from airtaper.optimize.compliance import DO_TOLERANCE_mg_L
 from airtaper.optimize.compliance import violations
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.marginal import raw_derivatives
 from airtaper.optimize.diurnal import StudyOptions, run_optimization
-from airtaper.optimize.results import SUMMARY_KEYS
+from airtaper.optimize.results import (SUMMARY_KEYS, BaselineSummary, DispatchSummary, SolverSummary, StudySummary,
+                                      VerificationSummary)
 
 pytestmark = pytest.mark.solver
 
@@ -70,8 +73,20 @@ def test_outputs_have_the_promised_columns(solved):
     study = solved.study
     b = study.m.opt
     for p in study.m.PERIODS:
-        need = max(b.zone_pressure_gauge_kPa[z, p]() for z in b.ZONES) + study.layout.header.min_valve_loss_kPa
+        need = max(b.zone_pressure_gauge_kPa[z, p]() for z in b.ZONES) + study.plant.air.header.min_valve_loss_kPa
         assert b.header_gauge_kPa[p].value == pytest.approx(need, abs=1e-4)
+
+
+def test_the_summary_of_a_run_reads_back_typed_to_the_same_text(solved):
+    """summary.json's nested parts are typed structures: read back and written again, a real run's summary is
+    the same text (every key, at every level, in the same order)."""
+    text = json.dumps(solved.summary)
+    again = StudySummary.from_dict(json.loads(text))
+    assert isinstance(again.baseline, BaselineSummary) and isinstance(again.baseline.dispatch, DispatchSummary)
+    assert isinstance(again.dispatch, DispatchSummary) and again.dispatch.rounds
+    assert isinstance(again.verification, VerificationSummary) and again.verification.verified is True
+    assert isinstance(again.solver, SolverSummary) and again.solver.iterations > 0
+    assert json.dumps(again.to_dict()) == text
 
 
 def _energy_at(study, name, value, zone=None):
@@ -112,7 +127,7 @@ def test_duals_agree_with_finite_differences_of_resolves(three_tank_diurnal):
         study.set_limit(name, value, zone)
         r = study.resolve()
         assert r.ok
-        dual = raw_derivatives(study.m, r)[key]
+        dual = raw_derivatives(study.problem, r)[key]
         up = _energy_at(study, name, value + d, zone)
         down = _energy_at(study, name, value - d, zone)
         fd = (up - down) / (2 * d)
@@ -149,9 +164,16 @@ def test_impossible_valve_limit_is_named_by_zone_and_period(three_tank_diurnal):
 def test_tapered_shape_on_the_plug_flow_demo(demo):
     """At the peak period the first aerated zone gets the most air per volume (plug-flow demand)."""
     res = run_optimization(with_periods(demo, 6, steps_per_period=2), StudyOptions(marginal=False))
-    assert res.summary["status"] in ("optimal", "unverified")
-    # the DO minimum holds in continuous time (issue 12) even on these 2-hour steps (Z6's DO maximum may not)
-    assert res.summary["verification"]["do_min_margin_mg_L"] >= -0.01
+    s = res.summary
+    assert res.exit_code == EXIT_OK and s["status"] == "optimal" and s["verified"] is True, s["messages"]
+    # the DO range holds in continuous time within the verification's tolerance (issue 12), the minimum and
+    # Z6's maximum: the 4-hour model steps could not follow the DO within a period (Z6 0.71 mg/L above its
+    # maximum), so the study was solved again on 30-minute steps (optimize/backoff.py). Measured there: 0.044
+    # mg/L out of range at most; the back-off's round to 0.01 has no solution on this layout (Z6's DO swings
+    # across its whole 1.0-2.5 mg/L band in 08:00-12:00 at a constant airflow), so that schedule is kept.
+    assert s["do_hold"]["coarse_steps_per_period"] == 1
+    margins = s["verification"]["do_margin_mg_L"]
+    assert all(margin >= -DO_TOLERANCE_mg_L for margin in margins.values()), margins
     sched = res.schedule
     totals = sched.groupby("period_start_h")["airflow_Sm3_h"].sum()
     peak = totals.idxmax()

@@ -20,26 +20,48 @@ from airtaper.physics.blower import blower_power_kW
 def attached(three_tank_6):
     m = build_cyclic_model(three_tank_6, airflow={"T1": 900.0, "T2": 600.0, "T3": 450.0})
     before = {k: pyo.value(v) for k, v in m.kla_per_d.items()}
-    attach_problem(m, settings_for(three_tank_6, 1000.0))
-    return m, before
+    problem = attach_problem(m, settings_for(three_tank_6, 1000.0))
+    return m, before, problem
+
+
+def python_attributes(block) -> set[str]:
+    """Names set on a Pyomo block that are not its components (Pyomo's own attributes start with "_")."""
+    components = {c.local_name for c in block.component_objects(descend_into=False)}
+    return {k for k in vars(block) if not k.startswith("_") and k != "doc"} - components
+
+
+def test_the_block_holds_pyomo_components_only(attached):
+    """What the optimiser keeps beside the block lives on the Problem, not on m.opt."""
+    m, _, problem = attached
+    assert python_attributes(m.opt) == set()
+    assert problem.block is m.opt and problem.m is m
+    assert problem.reference == 1000.0 and problem.objective == "energy"
+    assert problem.machines and problem.staged  # the three-tank layout has blowers in service
+    assert set(problem.effluent_weights) == set(m.PERIODS) and problem.swing_states is None
+    # the helper finds a Python object put on a block
+    m.opt.leftover = {"a": 1}
+    try:
+        assert python_attributes(m.opt) == {"leftover"}
+    finally:
+        del m.opt.leftover
 
 
 def test_kla_on_the_count_parameter_equals_the_models_own(attached):
-    m, before = attached
+    m, before, _ = attached
     for k, v in m.kla_per_d.items():
         assert pyo.value(v) == pytest.approx(before[k], rel=1e-12)
 
 
 def test_more_diffusers_raise_kla_at_the_same_airflow(attached):
     """SOTE falls with airflow per diffuser and rises with density (the fitted curve's exponents)."""
-    m, before = attached
+    m, before, _ = attached
     m.diffuser_count["T1"] = 500.0
     assert pyo.value(m.kla_per_d["T1", 1]) > before["T1", 1]
     assert pyo.value(m.kla_per_d["T2", 1]) == pytest.approx(before["T2", 1], rel=1e-12)
 
 
 def test_every_limit_has_its_slack_fixed_at_zero(attached, three_tank_6):
-    m, _ = attached
+    m, _, _ = attached
     b = m.opt
     for g in LIMIT_GROUPS:
         assert b.component(g.name) is not None or g.name in ("blower_max", "blower_min", "pressure_max")
@@ -52,17 +74,17 @@ def test_staged_power_lines_match_the_dispatch_and_the_pinned_formula(attached, 
     """With a set of machines fixed, the power epigraph's largest line is the least-power split of the set,
     each machine at the pinned isentropic formula with its own efficiency; the relaxed envelope is below
     every set's power."""
-    m, _ = attached
+    m, _, problem = attached
     b = m.opt
     side = resolve_plant(three_tank_6).air
     sched = {z: [m.airflow_Sm3_h[z, p].value for p in m.PERIODS] for z in b.ZONES}
     figs = side.schedule_figures(sched)
     for p in m.PERIODS:
         b.header_gauge_kPa[p].set_value(float(figs["header_gauge_kPa"][p - 1]))
-    state = model_air_state(m)
+    state = model_air_state(problem)
     q, d, w = state["demand_Sm3_h"], state["discharge_gauge_kPa"], state["kw_per_equivalent"]
     n = len(q)
-    machines = b.machines
+    machines = problem.machines
     subsets = [np.array(bits, dtype=bool) for bits in itertools.product((False, True), repeat=len(machines))
                if any(bits)]
     envelope = [max_power_line_kW(b, p) for p in m.PERIODS]

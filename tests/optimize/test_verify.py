@@ -1,4 +1,4 @@
-"""The verification's own rules that need no solve: which periods hold a swing zone's DO minimum."""
+"""The verification: which periods hold a swing zone's DO minimum; the start from the optimiser's state."""
 
 from __future__ import annotations
 
@@ -6,7 +6,9 @@ import numpy as np
 import pytest
 
 from airtaper.optimize.compliance import DO_TOLERANCE_mg_L
-from airtaper.optimize.verify import swing_do_margins
+from airtaper.optimize.simday import simulate_day
+from airtaper.optimize.verify import DAY_REPEAT_TOL, LEAD_IN_h, lead_in_periods, start_state_of, swing_do_margins, \
+    verify_day
 
 
 def test_swing_zone_do_minimum_is_checked_only_while_aerated_after_an_aerated_period(fenwhistle):
@@ -21,3 +23,42 @@ def test_swing_zone_do_minimum_is_checked_only_while_aerated_after_an_aerated_pe
     # never aerated after an aerated period, or no swing states at all: nothing to check
     assert swing_do_margins(fenwhistle, lows, {"Z2": np.array([True, False] * 3)}) == {}
     assert swing_do_margins(fenwhistle, lows, None) == {}
+
+
+def test_lead_in_covers_its_hours_in_whole_periods_and_never_the_whole_day():
+    assert lead_in_periods(24, 1.0) == int(LEAD_IN_h)
+    assert lead_in_periods(6, 4.0) == 1
+    assert lead_in_periods(2, 12.0) == 1
+    assert lead_in_periods(1, 24.0) == 0  # one period: the state at 0 h, no lead-in
+    assert lead_in_periods(48, 0.5) == int(2 * LEAD_IN_h)
+
+
+@pytest.mark.solver
+def test_the_lead_in_gives_the_day_a_start_at_0_h_gives_in_fewer_days(three_tank_diurnal):
+    """The verification starts from the optimiser's state some hours before the day's end and simulates them
+    first: the same re-simulated day as from the optimiser's state at 0 h, within the day-repeat tolerance,
+    in fewer simulated days (the optimiser's DO and NH4-N at its time points differ from the simulator's;
+    its slow states are periodic within the tolerance on hourly steps, as on the demo: four steps per
+    4-hour period here; with one step per period they are not, and both starts take two days)."""
+    from airtaper.optimize.diurnal import StudyOptions, run_optimization
+    from airtaper.optimize.horizon import with_periods
+
+    lay = with_periods(three_tank_diurnal, 6, steps_per_period=8)
+    assert lay.influent.flow_m3_d == three_tank_diurnal.influent.flow_m3_d  # the diurnal load kept
+    res = run_optimization(lay, StudyOptions(verify=False, marginal=False, prescreen=False, complying_baseline=False))
+    study = res.study
+    ver, day = verify_day(lay, study.schedule_by_zone(), study.figures(), study.m)
+    state, waste = start_state_of(study.m)
+    at_0h = simulate_day(lay, schedule=study.schedule_by_zone(), start_state=state, start_waste_m3_d=waste,
+                         tol=DAY_REPEAT_TOL)
+    assert day.converged and at_0h.converged
+    assert day.days < at_0h.days
+    assert ver["start"].startswith(f"optimiser's state at {24.0 - 4.0 * lead_in_periods(6, 4.0):g} h")
+    for key in ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L"):
+        assert day.figures[key] == pytest.approx(at_0h.figures[key], rel=DAY_REPEAT_TOL)
+    assert day.figures["min_do_margin_mg_L"] == pytest.approx(at_0h.figures["min_do_margin_mg_L"], abs=1e-3)
+    assert day.energy_kWh_per_day == pytest.approx(at_0h.energy_kWh_per_day, rel=1e-9)  # the same schedule
+    # the model's state at the end of a period is the one its last time point holds
+    first, _ = start_state_of(study.m, 5)
+    t = 5 * len(study.m.STEPS) // 6
+    assert first["zones"]["T1"][7] == study.m.conc[t, "T1", "SO"].value

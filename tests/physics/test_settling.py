@@ -7,7 +7,10 @@ import pyomo.environ as pyo
 import pytest
 from scipy.optimize import brentq
 
-from airtaper.physics.settling import limiting_solids_flux_g_m2_d, takacs_velocity_m_d
+from airtaper.physics.settling import (
+    FLUX_RELATIVE_WIDTH, FLUX_WIDTH_FLOOR_g_m2_d, THRESHOLD_RELATIVE_WIDTH, gravity_flux_g_m2_d, interface_flux_g_m2_d,
+    limiting_solids_flux_g_m2_d, takacs_velocity_m_d,
+)
 
 # BSM1 settling parameters (Alex et al. 2008): v0' 250 m/d, v0 474 m/d, rh 5.76e-4, rp 2.86e-3 m3/g
 BSM1 = dict(v0_max_m_d=250.0, v0_m_d=474.0, rh_m3_g=5.76e-4, rp_m3_g=2.86e-3)
@@ -97,3 +100,72 @@ def test_velocity_is_finite_for_any_iterate(smoothing):
         v = takacs_velocity_m_d(x, 7.5, **BSM1, smoothing_m_d=smoothing)
     assert np.all(np.isfinite(v)) and np.all(v >= -smoothing) and np.all(v <= 250.0 + smoothing)
     np.testing.assert_allclose(v[:4], 0.0, atol=smoothing)
+
+
+# --- the settling flux between two layers (Takacs et al. 1991 layered model), smoothed -----------------
+def test_interface_flux_is_the_lesser_flux_within_its_relative_width(rng):
+    # Takacs et al. (1991): J = min(a, b) at and below the feed. The smooth minimum lies below the exact
+    # one by at most s / 2 with s = sqrt(eps^2 (a^2 + b^2) + s0^2) (CHKS bound), by
+    # eps / sqrt(2) of the flux where a == b, and by less than s^2 / (4 |a - b|) away from the kink.
+    a = rng.uniform(0.0, 2e5, 2000)
+    b = np.concatenate([a[:500], rng.uniform(0.0, 2e5, 1500)])
+    j = interface_flux_g_m2_d(a, b)
+    s = np.sqrt(FLUX_RELATIVE_WIDTH**2 * (a**2 + b**2) + FLUX_WIDTH_FLOOR_g_m2_d**2)
+    gap = np.minimum(a, b) - j
+    assert np.all(gap > 0.0) and np.all(gap <= s / 2 * (1 + 1e-12))
+    far = np.abs(a - b) > 10 * s
+    assert np.all(gap[far] <= s[far] ** 2 / (4 * np.abs(a - b)[far]) * (1 + 1e-9))
+    at_kink = 7.6e4 - math.sqrt(2 * (FLUX_RELATIVE_WIDTH * 7.6e4) ** 2 + FLUX_WIDTH_FLOOR_g_m2_d**2) / 2
+    assert interface_flux_g_m2_d(7.6e4, 7.6e4) == pytest.approx(at_kink, rel=1e-14)
+    assert at_kink == pytest.approx(7.6e4 * (1 - FLUX_RELATIVE_WIDTH / math.sqrt(2)), rel=1e-7)
+
+
+def test_interface_flux_is_smooth_at_the_scale_of_the_fluxes():
+    # The reason for a relative width: across the kink the slope turns from 1 to 0 over a band of
+    # flux differences proportional to the fluxes (about eps of them), whatever their size, so a
+    # Newton step's linear model holds over that band at any flux level. The fixed width used before
+    # (1 g/(m2 d)) turned it over 1e-5 of BSM1's thickening fluxes.
+    for flux in (1e4, 7.6e4, 1e6):  # (above the floor s0, which sets the width near zero flux)
+        d = np.linspace(-0.05, 0.05, 2001) * flux
+        slope = np.gradient(interface_flux_g_m2_d(flux + d, flux), d)  # d J / d a
+        band = d[(slope > 0.1) & (slope < 0.9)]
+        # slope 0.5 (1 - d / sqrt(d^2 + s^2)) is 0.1 / 0.9 at d = +-4 s / 3, s = sqrt(2) eps flux at a == b
+        assert band.max() - band.min() == pytest.approx(8 / 3 * math.sqrt(2) * FLUX_RELATIVE_WIDTH * flux, rel=0.05)
+
+
+def test_interface_flux_above_the_feed_switches_at_the_threshold():
+    # Takacs et al. (1991): above the feed the upper layer's own flux while the layer below is under
+    # X_t, the lesser flux once it is over (smooth switch THRESHOLD_RELATIVE_WIDTH x X_t wide)
+    xt = 3000.0
+    a, b = 5e4, 2e4
+    below = interface_flux_g_m2_d(a, b, 0.8 * xt, xt)
+    over = interface_flux_g_m2_d(a, b, 1.2 * xt, xt)
+    assert below == pytest.approx(a, rel=1e-5)
+    assert over == pytest.approx(interface_flux_g_m2_d(a, b), rel=1e-5)
+    assert interface_flux_g_m2_d(a, b, xt, xt) == pytest.approx(0.5 * (a + interface_flux_g_m2_d(a, b)), rel=1e-12)
+    w = THRESHOLD_RELATIVE_WIDTH * xt
+    mid = interface_flux_g_m2_d(a, b, xt + w, xt)  # step(w, w) = (1 + 1 / sqrt 2) / 2
+    frac = 0.5 * (1 + 1 / math.sqrt(2))
+    assert mid == pytest.approx((1 - frac) * a + frac * interface_flux_g_m2_d(a, b), rel=1e-12)
+
+
+def test_layer_fluxes_agree_between_pyomo_and_numpy(pyomo_check):
+    # the model and the simulator evaluate these very functions (one formula for both)
+    x_min, xt = 0.00228 * 3000.0, 3000.0
+    pts = np.array([[356.0, 356.0, 3100.0], [356.0, 6394.0, 2999.0], [12.5, 18.1, 18.1], [800.0, 50.0, 50.0]])
+    kw = dict(v0_max_m_d=250.0, v0_m_d=474.0, rh_m3_g=5.76e-4, rp_m3_g=2.86e-3)
+
+    def below(x1, x2, _):
+        return interface_flux_g_m2_d(gravity_flux_g_m2_d(x1, x_min, **kw), gravity_flux_g_m2_d(x2, x_min, **kw))
+
+    def above(x1, x2, x3):
+        return interface_flux_g_m2_d(gravity_flux_g_m2_d(x1, x_min, **kw), gravity_flux_g_m2_d(x2, x_min, **kw),
+                                     x3, xt)
+
+    pyomo_check(below, pts, rtol=1e-13)
+    pyomo_check(above, pts, rtol=1e-13)
+    # the gravity flux is the published velocity (Takacs et al. 1991 eq. 4) times the solids, to the
+    # velocity smoothing (0.01 m/d) away from its clamps
+    x = np.array([12.5, 356.0, 3000.0, 6394.0])
+    hard = np.array([_takacs_by_hand(v, x_min, 250.0, 474.0, 0.000576, 0.00286) for v in x]) * x
+    np.testing.assert_allclose(gravity_flux_g_m2_d(x, x_min, **kw), hard, rtol=1e-5)

@@ -77,7 +77,7 @@ def test_train_drawing_scales_zones_by_volume(folder):
     assert "to scale by volume" in ax.get_title()
     boxes = [p for p in ax.patches if type(p).__name__ == "Rectangle" and p.get_height() > 2.0]
     widths = [p.get_width() for p in boxes][:6]  # the six zones, in flow order
-    volumes = [z.volume_m3 for z in folder.layout.zones]
+    volumes = list(folder.plant.volume_m3)
     assert np.allclose(np.array(widths) / widths[0], np.array(volumes) / volumes[0])
     texts = " ".join(t.get_text() for t in ax.texts)
     assert "IR 2.5 x Q" in texts and "return sludge 0.8 x Q" in texts and "influent 100 %" in texts

@@ -87,12 +87,21 @@ def test_three_tank_runs(tmp_path):
 
 
 def test_bad_aeration_inputs(demo):
-    with pytest.raises(InputError):
+    """Schedules and setpoints passed in code are past the input boundary: a caller's mistake is a ValueError
+    (the CLI's schedule reader reports a schedule file's problems as input errors, file/row/column)."""
+    with pytest.raises(ValueError, match="anoxic"):
         simulate.periodic(demo, do_setpoint_mg_L={"Z1": 2.0})  # anoxic zone
-    with pytest.raises(InputError):
+    with pytest.raises(ValueError, match="per period and zone"):
         simulate.periodic(demo, schedule=np.ones((3, 2)))
-    with pytest.raises(InputError):
+    with pytest.raises(ValueError, match="no zone"):
         simulate.steady_state(demo, do_setpoint_mg_L={"nope": 2.0})
+    with pytest.raises(ValueError, match="finite"):
+        simulate.steady_state(demo, airflow_Sm3_h=-np.ones(len(demo.zones)))
+    for call in (lambda: simulate.periodic(demo, schedule={"nope": 1.0}),
+                 lambda: simulate.periodic(demo, do_setpoint_mg_L={"Z1": 2.0})):
+        with pytest.raises(ValueError) as err:
+            call()
+        assert not isinstance(err.value, InputError)
 
 
 def test_srt_target_is_met_on_the_daily_mean_with_one_waste_flow(demo, demo_day):
@@ -226,3 +235,86 @@ def test_do_extremes_bound_every_fine_sample(demo):
         fine_lows = fine.do_extremes[fine.do_extremes["zone"] == z.id].sort_values("period")["do_min_mg_L"]
         assert np.all(lows <= sampled + 1e-4), z.id
         assert np.max(np.abs(lows - fine_lows.to_numpy())) < 1e-3, z.id
+
+
+def test_the_simulator_reads_only_the_resolved_plant():
+    """Past the boundary the simulator computes with the resolved plant alone: with its layout taken away it
+    gives the same steady state and the same day (to the last bit) as with it."""
+    from dataclasses import replace
+
+    from airtaper.plant import resolve_plant
+
+    plant = resolve_plant(load_layout("layouts/three_tank.toml"))
+    bare = replace(plant, layout=None)
+    a = simulate.steady_state(plant, do_setpoint_mg_L=2.0)
+    b = simulate.steady_state(bare, do_setpoint_mg_L=2.0)
+    np.testing.assert_array_equal(a.y, b.y)
+    day_a = simulate.periodic(plant, max_days=1)
+    day_b = simulate.periodic(bare, max_days=1)
+    np.testing.assert_array_equal(day_a.y_end, day_b.y_end)
+    assert day_b.plant is bare
+    assert summarize(day_b)["blower_kWh_per_day"] == summarize(day_a)["blower_kWh_per_day"]
+
+
+def test_a_start_at_a_period_runs_the_rest_of_that_day_first(demo, demo_day):
+    """``start_period``: a state at the start of a period, simulated on to 0 h before the first whole day (a lead-in).
+
+    The periodic day's own state at the start of period 22 (21 h), taken from its recorded
+    output, leads to the same periodic day in one day: the lead-in brings it to the day's
+    0 h state within the integrator's tolerances, far inside the day-repeat tolerance.
+    """
+    steps = demo.horizon.steps_per_period
+    k = demo.horizon.n_periods - 3
+    ts = demo_day.timeseries
+    at = ts[ts["time_h"] == ts["time_h"].unique()[k * steps]].set_index("zone")
+    state = {"zones": {z.id: at.loc[z.id, list(ASM1_COMPONENTS)].to_numpy(dtype=float) for z in demo.zones}}
+    waste = float(demo_day.effluent["q_waste_m3_d"].iloc[0])
+    again = simulate.periodic(demo, do_setpoint_mg_L=2.0, start_state=state, start_waste_m3_d=waste, start_period=k)
+    assert again.converged and again.days == 1
+    scale = np.maximum(np.abs(demo_day.y_end), 1.0)
+    assert np.max(np.abs(again.y_start - demo_day.y_end) / scale) < 1e-3  # the day-repeat tolerance
+    assert np.max(np.abs(again.effluent["SNH"].to_numpy() - demo_day.effluent["SNH"].to_numpy())) < 0.01  # mg/L
+    with pytest.raises(ValueError, match="start_period"):
+        simulate.periodic(demo, do_setpoint_mg_L=2.0, start_state=state, start_period=demo.horizon.n_periods)
+
+
+def test_day_extrapolation_jumps_to_the_fixed_point_of_one_slow_mode():
+    """A linear day map with one slow mode (ratio 0.86) and a fast one (0.1): once three steps agree, the jump
+    takes the state a hundred times closer to the fixed point (Aitken's delta-squared, exact for one mode)."""
+    from airtaper.simulate.run import DayExtrapolation
+
+    fixed = np.array([50.0, 2.0, 300.0])
+    slow, fast = np.array([1.0, 0.2, 3.0]), np.array([0.5, -1.0, 0.0])
+
+    def state(k):
+        return fixed + 5.0 * 0.86 ** k * slow + 1.0 * 0.1 ** k * fast
+
+    speed = DayExtrapolation()
+    jumps = []
+    for k in range(8):
+        f = speed.factor(state(k), state(k + 1))
+        if f:
+            jumps.append(k)
+            y = state(k + 1) + f * (state(k + 1) - state(k))
+            before = np.max(np.abs(state(k + 1) - fixed) / np.maximum(np.abs(fixed), 1.0))
+            after = np.max(np.abs(y - fixed) / np.maximum(np.abs(fixed), 1.0))
+            assert before > 0.2 and after < 0.01 * before  # 5 more days of the slow mode would take it to 0.47
+            break
+    assert jumps  # it jumped, once three steps agreed
+
+
+def test_day_extrapolation_waits_while_the_steps_turn_or_grow():
+    from airtaper.simulate.run import DayExtrapolation
+
+    speed = DayExtrapolation()
+    rng = np.random.default_rng(1)
+    y = np.full(4, 10.0)
+    for _ in range(6):  # steps in changing directions: no single mode, no jump
+        step = rng.normal(size=4)
+        assert speed.factor(y, y + step) == 0.0
+        y = y + step
+    speed = DayExtrapolation()
+    y = np.full(4, 10.0)
+    for k in range(6):  # a growing step (ratio above 1): no jump
+        assert speed.factor(y, y + 1.2 ** k) == 0.0
+        y = y + 1.2 ** k

@@ -64,6 +64,23 @@ def test_infeasible_lp_is_a_status():
     assert r.status is SolveStatus.INFEASIBLE and not r.has_solution and r.objective is None
 
 
+def test_a_milp_with_every_integer_fixed_is_solved_without_duals():
+    """A dispatch whose every blower is ruled out (all binaries fixed to 0) is an LP to airtaper but HiGHS
+    keeps it a MIP and gives no duals: the optimum is still returned (here x = 0, all demand short)."""
+    m = pe.ConcreteModel()
+    m.y = pe.Var([0, 1], domain=pe.Binary)
+    m.x = pe.Var(bounds=(0, None))
+    m.short = pe.Var(bounds=(0, None))
+    for j in (0, 1):
+        m.y[j].fix(0)
+    m.cap = pe.Constraint(expr=m.x <= 5 * m.y[0] + 5 * m.y[1])
+    m.demand = pe.Constraint(expr=m.x + m.short >= 10)
+    m.o = pe.Objective(expr=m.x + 100 * m.short)
+    r = solve_milp(m)
+    assert r.status is SolveStatus.OPTIMAL and r.has_solution
+    assert r.objective == pytest.approx(1000.0) and pe.value(m.short) == pytest.approx(10.0)
+
+
 def test_nonlinear_model_is_refused():
     m = pe.ConcreteModel()
     m.x = pe.Var(bounds=(0, 1))

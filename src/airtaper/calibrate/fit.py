@@ -35,11 +35,11 @@ from airtaper.calibrate.statistics import FitStatistics, fit_statistics
 from airtaper.errors import ModelError
 from airtaper.layout.plantdata import PlantRecord, period_inputs
 from airtaper.layout.types import Layout
+from airtaper.plant import ResolvedPlant, resolve_plant
 from airtaper.model.data import GridAeration, train_data
 from airtaper.model.initial_point import initialise_cyclic, march_cyclic
 from airtaper.model.state_scaling import apply_scaling
 from airtaper.model.train import build_train_model
-from airtaper.process.asm1 import layout_parameters
 from airtaper.solve import solve_nlp
 
 #: Ipopt options of the fit. ``mumps_pivot_order = 2`` (AMF) as in the optimisation: every
@@ -87,14 +87,14 @@ class CalibrationResult:
     model: object = field(repr=False, default=None)
 
 
-def model_steps_per_period(layout: Layout, options: CalibrationOptions) -> int:
+def model_steps_per_period(plant: ResolvedPlant, options: CalibrationOptions) -> int:
     """Integration steps per period of the fitted model: the option, else steps of at most :data:`MAX_STEP_h`."""
     if options.steps_per_period is not None:
         return int(options.steps_per_period)
-    return max(1, math.ceil(layout.horizon.period_h / MAX_STEP_h - 1e-9))
+    return max(1, math.ceil(plant.period_h / MAX_STEP_h - 1e-9))
 
 
-def identifiability_of_data(layout: Layout, record: PlantRecord, do_sat_by_zone: dict) -> dict:
+def identifiability_of_data(plant: ResolvedPlant, record: PlantRecord, do_sat_by_zone: dict) -> dict:
     """Zone -> message for zones whose logged DO cannot identify alpha x F (see module notes).
 
     ``do_sat_by_zone``: zone -> field saturation per logged time, mg/L.
@@ -149,18 +149,24 @@ def _solve(m, b, options: CalibrationOptions, attempts: list):
     return r
 
 
-def run_calibration(layout: Layout, record: PlantRecord, options: CalibrationOptions | None = None,
+def run_calibration(plant: ResolvedPlant | Layout, record: PlantRecord, options: CalibrationOptions | None = None,
                     progress=None) -> CalibrationResult:
-    """Fit alpha x F per diffused zone (and optionally mu_A, K_OH) to ``record``; see module notes."""
+    """Fit alpha x F per diffused zone (and optionally mu_A, K_OH) to ``record``; see module notes.
+
+    ``plant``: the resolved plant (a validated Layout is resolved first). The record's inputs are
+    applied to its layout before resolution (:func:`record_layout`, the plant over the record's
+    days); everything after reads resolved plants only.
+    """
+    plant = resolve_plant(plant)
     opts = options or CalibrationOptions()
     say = progress or (lambda text: None)
     timings = {}
     t0 = time.perf_counter()
-    period_h = layout.horizon.period_h
+    period_h = plant.period_h
     inputs = period_inputs(record, period_h)
-    rec_layout = record_layout(layout, inputs, model_steps_per_period(layout, opts))
+    rec_layout = record_layout(plant.layout, inputs, model_steps_per_period(plant, opts))
     data = train_data(rec_layout)
-    held = identifiability_of_data(layout, record, _do_sat_at_logged_times(data, record, period_h))
+    held = identifiability_of_data(plant, record, _do_sat_at_logged_times(data, record, period_h))
     grid = [z for z, a in zip(data.zones, data.aeration) if isinstance(a, GridAeration)]
     for z in grid:
         if z not in record.do_mg_L:
@@ -178,7 +184,7 @@ def run_calibration(layout: Layout, record: PlantRecord, options: CalibrationOpt
                           name="airtaper_calibration")
     b = attach_fit(m, record, spec)
     for z in zones:  # keep the fitted alpha inside the layout's own range (alpha <= 1.2)
-        b.alpha_F[z].setub(min(BOUNDS["alpha_F"][1], 1.2 * layout.zone(z).fouling))
+        b.alpha_F[z].setub(min(BOUNDS["alpha_F"][1], 1.2 * plant.zone(z).fouling))
     b.start_values = [float(v.value) for v in parameters(b)]
     if not len(b.observations):
         raise ModelError("no logged values after the warm-up: shorten warmup_h or give a longer record")
@@ -212,8 +218,8 @@ def run_calibration(layout: Layout, record: PlantRecord, options: CalibrationOpt
         messages.append(f"the fit did not converge ({r.message}); no values are reported")
     obs_table = _observation_table(m, b)
     rms = _rms(obs_table)
-    estimates = _estimates(layout, spec, params, b.start_values, stats_)
-    overrides, notes = _overrides(layout, spec, params, stats_) if r.ok else ({}, {})
+    estimates = _estimates(spec, params, b.start_values, stats_)
+    overrides, notes = _overrides(plant, spec, params, stats_) if r.ok else ({}, {})
     timings["total_s"] = time.perf_counter() - t0
     solver = {"status": r.status.value, "message": r.message, "iterations": int(sum(a["iterations"] for a in attempts)),
               "attempts": attempts, "variables": r.n_variables, "constraints": r.n_constraints,
@@ -221,7 +227,7 @@ def run_calibration(layout: Layout, record: PlantRecord, options: CalibrationOpt
     result = CalibrationResult(status=status, spec=spec, statistics=stats_, estimates=estimates,
                                observations=obs_table, rms=rms, overrides=overrides, override_notes=notes,
                                held=held, messages=messages, solver=solver, summary={}, model=m)
-    result.summary = summary_of(layout, record, result)
+    result.summary = summary_of(plant, record, result)
     return result
 
 
@@ -243,7 +249,7 @@ def _rms(table: pd.DataFrame) -> dict:
     return out
 
 
-def _estimates(layout: Layout, spec: FitSpec, params, starts, st: FitStatistics | None) -> pd.DataFrame:
+def _estimates(spec: FitSpec, params, starts, st: FitStatistics | None) -> pd.DataFrame:
     rows = []
     for k, (name, v, v0) in enumerate(zip(spec.names(), params, starts)):
         row = {"parameter": name, "layout_value": v0, "fitted": float(v.value)}
@@ -254,13 +260,13 @@ def _estimates(layout: Layout, spec: FitSpec, params, starts, st: FitStatistics 
     return pd.DataFrame(rows)
 
 
-def _overrides(layout: Layout, spec: FitSpec, params, st: FitStatistics):
+def _overrides(plant: ResolvedPlant, spec: FitSpec, params, st: FitStatistics):
     values, notes = {}, {}
     for k, (name, v) in enumerate(zip(spec.names(), params)):
         lo, hi = st.ci_low[k], st.ci_high[k]
         if name.startswith("alpha_F."):
             z = name.split(".", 1)[1]
-            f = layout.zone(z).fouling
+            f = plant.zone(z).fouling
             key = f"zones.{z}.alpha"
             values[key] = round(float(v.value) / f, 6)
             notes[key] = f"alpha x F = {v.value:.4f} (95 % {lo:.4f} to {hi:.4f}) with the layout's F = {f:g}"
@@ -272,7 +278,7 @@ def _overrides(layout: Layout, spec: FitSpec, params, st: FitStatistics):
     return values, notes
 
 
-def summary_of(layout: Layout, record: PlantRecord, res: CalibrationResult) -> dict:
+def summary_of(plant: ResolvedPlant, record: PlantRecord, res: CalibrationResult) -> dict:
     st = res.statistics
     params = []
     for k, row in res.estimates.iterrows():
@@ -284,11 +290,11 @@ def summary_of(layout: Layout, record: PlantRecord, res: CalibrationResult) -> d
             item["rms_do_mg_L"] = res.rms.get(f"do.{z}")
         params.append(item)
     corr = None if st is None else {"names": st.names, "matrix": [[float(x) for x in r] for r in st.correlation]}
-    base = layout_parameters(layout)
+    base = plant.base_params
     return {
         "status": res.status,
-        "plant": layout.plant.name,
-        "layout": layout.path,
+        "plant": plant.name,
+        "layout": plant.path,
         "data": record.path,
         "record": {"start_h": record.start_h, "days": record.days, "interval_h": record.interval_h,
                    "rows": int(len(record.time_h)), "warmup_h": res.spec.warmup_h},

@@ -18,6 +18,7 @@ import numpy as np
 from airtaper.calibrate.horizon import record_layout
 from airtaper.layout.plantdata import EFFLUENT, PeriodInputs
 from airtaper.layout.types import ASM1_COMPONENTS, Layout
+from airtaper.plant import resolve_plant
 
 #: Day-to-day factors on the influent flow (a week: weekdays, then a lighter weekend).
 DAY_FACTORS = (1.0, 0.94, 1.07, 1.02, 0.97, 0.85, 0.82)
@@ -53,6 +54,10 @@ def synthetic_plant_data(layout: Layout, *, days: int, alpha_F: dict, mu_A: floa
                          tol: float = 1e-4):
     """(CSV text, :class:`SyntheticTruth`, the simulator's result) of a synthetic record (module notes).
 
+    The true values and the record's inputs are applied to ``layout`` before resolution
+    (:func:`truth_layout`, :func:`~airtaper.calibrate.horizon.record_layout`); what is
+    computed with them reads the resolved plants.
+
     ``nh4_zones``: zones whose in-basin NH4-N is logged besides the effluent's;
     ``saturated_zone``: a zone whose logged DO is replaced by its field saturation plus
     noise (a probe in clean water, a zone with no demand): data that cannot identify
@@ -61,30 +66,31 @@ def synthetic_plant_data(layout: Layout, *, days: int, alpha_F: dict, mu_A: floa
     from airtaper.simulate import periodic
 
     rng = np.random.default_rng(seed)
-    true = truth_layout(layout, alpha_F, mu_A)
-    period_h = layout.horizon.period_h
+    true = resolve_plant(truth_layout(layout, alpha_F, mu_A))
+    period_h = true.period_h
     spp = int(round(period_h / interval_h))
     if abs(spp * interval_h - period_h) > 1e-9:
         raise ValueError("interval_h must divide the layout's period")
-    n_day = layout.horizon.n_periods
+    n_day = true.n_periods
     # airflow of uniform DO control on the layout's own day
     day = periodic(true, do_setpoint_mg_L=do_setpoint_mg_L, tol=1e-4)
     ts = day.timeseries
-    grid = [z.id for z in true.zones if z.has_diffusers]
+    grid = list(true.air.zone_ids)
     base = {}
     for z in grid:
         a = ts[ts["zone"] == z]["airflow_Sm3_h"].to_numpy().reshape(n_day, -1).mean(axis=1)
         base[z] = a
     n = days * n_day
     factors = np.repeat(np.array([DAY_FACTORS[d % len(DAY_FACTORS)] for d in range(days)]), n_day)
-    flow = np.tile(np.asarray(true.influent.flow_m3_d), days) * factors
+    flow = np.tile(np.asarray(true.hydraulics.influent_m3_d), days) * factors
     airflow = {}
     for z in grid:
-        lo, hi = true.zone_airflow_range_Sm3_h(true.zone(z))
+        d = true.air.zone(z)
+        lo, hi = d.airflow_min_Sm3_h, d.airflow_max_Sm3_h
         q = np.tile(base[z], days) * factors * (1.0 + excitation * rng.standard_normal(n))
         airflow[z] = np.clip(q, lo, hi)
     inputs = PeriodInputs(0.0, period_h, n, flow, None, None, airflow)
-    multi = record_layout(true, inputs, spp)
+    multi = resolve_plant(record_layout(true.layout, inputs, spp))
     start = None
     if true.clarifier.kind != "layered":  # start where the DO-controlled day starts: fewer cycles to repeat
         first = ts[ts["time_h"] == ts["time_h"].min()]
@@ -103,8 +109,7 @@ def synthetic_plant_data(layout: Layout, *, days: int, alpha_F: dict, mu_A: floa
             continue
         do = ts[ts["zone"] == z.id]["SO"].to_numpy()
         if z.id == saturated_zone:
-            from airtaper.model.data import train_data
-            sat = train_data(multi).aeration[multi.zone_index(z.id)].do_sat_mg_L
+            sat = multi.aeration[multi.zone_index(z.id)].do_sat_mg_L
             do = np.repeat(sat, spp)
         cols[f"do_{z.id}_mg_L"] = np.maximum(do + do_sd_mg_L * rng.standard_normal(do.size), 0.0)
     for z in nh4_zones:
@@ -112,16 +117,16 @@ def synthetic_plant_data(layout: Layout, *, days: int, alpha_F: dict, mu_A: floa
         cols[f"nh4_{z}_mg_L"] = np.maximum(v + nh4_sd_mg_L * rng.standard_normal(v.size), 0.0)
     v = eff["SNH"].to_numpy()
     cols[f"nh4_{EFFLUENT}_mg_L"] = np.maximum(v + nh4_sd_mg_L * rng.standard_normal(v.size), 0.0)
-    cols["temperature_C"] = np.repeat(np.asarray(multi.plant.temperature_C), spp)
+    cols["temperature_C"] = np.repeat(np.asarray(multi.temperature_C), spp)
     truth = SyntheticTruth(dict(alpha_F), mu_A, do_sd_mg_L, nh4_sd_mg_L, airflow_sd_fraction, seed, days, interval_h)
-    return _csv(cols, truth, layout), truth, sim
+    return _csv(cols, truth, true.name), truth, sim
 
 
-def _csv(cols: dict, truth: SyntheticTruth, layout: Layout) -> str:
+def _csv(cols: dict, truth: SyntheticTruth, plant_name: str) -> str:
     af = ", ".join(f"{z} {v:g}" for z, v in truth.alpha_F.items())
     head = [
         "# SYNTHETIC plant data: made by the independent simulator, not measured at any plant.",
-        f"# Plant: {layout.plant.name} (invented). {truth.days} day(s), one row every {truth.interval_h * 60:g} min.",
+        f"# Plant: {plant_name} (invented). {truth.days} day(s), one row every {truth.interval_h * 60:g} min.",
         f"# True alpha x F: {af}" + (f"; true mu_A {truth.mu_A:g} 1/d at the set's reference temperature"
                                       if truth.mu_A is not None else "; mu_A as in the layout") + ".",
         f"# Noise (Gaussian, seed {truth.seed}): DO sd {truth.do_sd_mg_L:g} mg/L, NH4-N sd {truth.nh4_sd_mg_L:g} "

@@ -64,11 +64,11 @@ def run(args) -> int:
     if problems:
         raise InputError(problems)
     warnings: list = []
-    layout = load_plant(args.layout, args.overrides, warnings=warnings).layout
-    record = load_plant_data(args.data, layout, warnings=warnings)
+    plant = load_plant(args.layout, args.overrides, warnings=warnings)
+    record = load_plant_data(args.data, plant.layout, warnings=warnings)  # the data file's own boundary reader
     for w in warnings:
         print(str(w), file=sys.stderr)
-    inputs = layout_input_files(args.layout, layout) + [args.data] + ([args.overrides] if args.overrides else [])
+    inputs = layout_input_files(args.layout, plant.layout) + [args.data] + ([args.overrides] if args.overrides else [])
     if args.mu_a and not record.nh4_mg_L:
         raise InputError(Problem(args.data, "--mu-a", "fitting mu_A needs NH4-N data", None,
                                  "an nh4_effluent_mg_L or nh4_<zone>_mg_L column"))
@@ -79,7 +79,7 @@ def run(args) -> int:
                                  args.warmup_h, f"< {units.HOURS_PER_DAY * record.days:g} h"))
     progress = (lambda text: None) if args.quiet else (lambda text: print(f"... {text}", file=sys.stderr))
     with output_folder(args.out, inputs=inputs, overwrite=args.overwrite) as out:
-        result = run_calibration(layout, record, options, progress)
+        result = run_calibration(plant, record, options, progress)
         for z, msg in result.held.items():
             print(f"warning: {args.data}: do_{z}_mg_L: {msg}", file=sys.stderr)
         result.summary.update(out.provenance())

@@ -102,15 +102,16 @@ def _format_table(rows: list[list[str]]) -> str:
 
 
 def train_report(plant: ResolvedPlant) -> str:
-    """The text `airtaper check` prints: the layout as given, the zone table from the resolved plant."""
-    layout = plant.layout
-    p, h, inf = layout.plant, layout.horizon, layout.influent
-    q = inf.mean_flow_m3_d
-    temps = sorted(set(p.temperature_C))
+    """The text `airtaper check` prints: the resolved plant, with the layout as given echoed where the plant
+    keeps no such value (elevation, the influent's source, flows' names and ratios, load days, capital)."""
+    layout = plant.layout  # the input as given: echoed, not computed with
+    p, h, inf = layout.plant, plant.horizon, layout.influent
+    q = float(plant.hydraulics.influent_m3_d.mean())
+    temps = sorted(set(float(t) for t in plant.temperature_C))
     temp = f"{temps[0]:g} C" if len(temps) == 1 else f"{temps[0]:g}-{temps[-1]:g} C"
     baro = "" if p.barometric_pressure_kPa is None else f", barometric {p.barometric_pressure_kPa:g} kPa"
     lines = [
-        f"{p.name} ({layout.path})",
+        f"{plant.name} ({plant.path})",
         f"elevation {p.elevation_m:g} m{baro}, water {temp}; {h.n_periods} periods of {h.period_h:g} h, "
         f"{h.steps_per_period} steps each",
         f"influent: {inf.source}, mean {_n(q)} m3/d (period means {_n(min(inf.flow_m3_d))}-"
@@ -129,16 +130,16 @@ def train_report(plant: ResolvedPlant) -> str:
     flows.append(f"waste by SRT {w.srt_d:g} d" if w.srt_d is not None
                  else f"waste {_n(sum(w.flow_m3_d) / len(w.flow_m3_d), 1)} m3/d")
     lines.append("flows: " + "; ".join(flows))
-    c = layout.clarifier
+    c = plant.clarifier
     if c.kind == "ideal":
         lines.append(f"clarifier: ideal separator, effluent TSS {c.effluent_tss_mg_L:g} mg/L")
     else:
         lines.append(f"clarifier: layered, {c.layers} layers, feed layer {c.feed_layer}, "
                      f"{_n(c.area_m2)} m2 x {c.height_m:g} m")
-    if layout.blowers:
-        total = sum(b.airflow_max_Sm3_h for b in layout.blowers)
+    if plant.blowers:
+        total = sum(b.airflow_max_Sm3_h for b in plant.blowers)
         lines.append(f"blowers (together {_n(total)} Sm3/h):")
-        for b in layout.blowers:
+        for b in plant.blowers:
             eff = f"efficiency {b.efficiency:g}" if b.efficiency is not None else \
                 f"efficiency {min(e.efficiency for e in b.efficiency_points):g}-" \
                 f"{max(e.efficiency for e in b.efficiency_points):g}"
@@ -146,12 +147,12 @@ def train_report(plant: ResolvedPlant) -> str:
                          f"limit {b.pressure_max_gauge_kPa:g} kPa gauge, {eff}")
     else:
         lines.append("blowers: none")
-    t = layout.tariff
+    t = plant.tariff
     if t is not None:
         demand = f", demand charge {t.demand_charge_per_kW:g} per kW per {t.demand_period_days:g} d" \
             if t.demand_charge_per_kW else ""
         lines.append(f"tariff: {t.currency} {min(t.price_per_kWh):g}-{max(t.price_per_kWh):g} per kWh{demand}")
-    lim = layout.limits
+    lim = plant.limits
     parts = []
     if lim.nh4_mean_mg_L is not None:
         parts.append(f"NH4-N daily mean {lim.nh4_mean_mg_L:g} mg/L")
@@ -160,7 +161,7 @@ def train_report(plant: ResolvedPlant) -> str:
     if lim.tn_mean_mg_L is not None:
         parts.append(f"TN daily mean {lim.tn_mean_mg_L:g} mg/L")
     lines.append("limits: " + ("; ".join(parts) if parts else "none"))
-    lines.append(f"objective: {layout.operation.objective}")
+    lines.append(f"objective: {plant.operation.objective}")
     if layout.load_days:
         total = sum(d.days_per_year for d in layout.load_days)
         lines.append(f"load days ({total:g} days in all):")
@@ -174,7 +175,7 @@ def train_report(plant: ResolvedPlant) -> str:
             lines.append(f"  {d.id} {d.days_per_year:g} d: {what}{temp}{alpha}")
     if layout.capital is not None:
         c = layout.capital
-        cur = layout.tariff.currency if layout.tariff else ""
+        cur = plant.tariff.currency if plant.tariff else ""
         lines.append(f"capital: {c.cost_per_diffuser:g} {cur} per diffuser, {c.cost_per_zone:g} {cur} per zone, "
                      f"{100 * c.interest_rate:g} % over {c.life_years:g} years")
     return "\n".join(lines)

@@ -75,24 +75,22 @@ def run(args) -> int:
         raise InputError(problems)
     warnings: list = []
     plant = load_plant(args.layout, args.overrides, warnings=warnings)
-    layout = plant.layout
     for w in warnings:
         print(str(w), file=sys.stderr)
-    if args.day is not None:
-        layout = _load_day(args.layout, layout, args.day)
-        plant = resolve_plant(layout)
+    if args.day is not None:  # a load day applies to the layout before resolution (the input boundary)
+        plant = resolve_plant(_load_day(args.layout, plant.layout, args.day))
     if not plant.diffused:
         raise InputError(Problem(args.layout, "zones", "no zone has a diffuser grid: there is no airflow to optimise",
                                  None, "at least one aerated zone with a [zones.grid]"))
-    if args.objective == "cost" and layout.tariff is None:
+    if args.objective == "cost" and plant.tariff is None:
         raise InputError(Problem(args.layout, "--objective", "a cost objective needs a [tariff] in the layout",
                                  "cost", '"energy", or add [tariff]'))
     options = StudyOptions(objective=args.objective, smoothing_weight=args.smoothing_weight,
                            mixing_airflow_min_Sm3_h_m2=args.mixing_min, baseline_do_setpoint_mg_L=args.baseline_do)
-    inputs = layout_input_files(args.layout, layout) + ([args.overrides] if args.overrides else [])
+    inputs = layout_input_files(args.layout, plant.layout) + ([args.overrides] if args.overrides else [])
     with output_folder(args.out, inputs=inputs, overwrite=args.overwrite) as out:
         progress = Progress(enabled=not args.quiet)
-        result = run_optimization(layout, options, progress)
+        result = run_optimization(plant, options, progress)
         progress.phase("writing outputs")
         summary = {**result.summary, **out.provenance()}
         write_study_outputs(out.staging, schedule=result.schedule, header=result.header,

@@ -70,8 +70,9 @@ def _hours(x: float) -> str:
     return f"{x:g} h"
 
 
-def read_schedule(path: str, layout, warnings: list | None = None):
-    """Airflow (periods, zones) from a schedule CSV; :class:`InputError` listing every bad row or missing pair.
+def read_schedule(path: str, plant, warnings: list | None = None):
+    """Airflow (periods, zones) of a resolved plant from a schedule CSV; :class:`InputError` listing every bad
+    row or missing pair (the schedule's input boundary: the simulator trusts what this returns).
 
     ``warnings`` receives a line for airflows outside their zone's range (the
     simulator runs them as given).
@@ -90,11 +91,11 @@ def read_schedule(path: str, layout, warnings: list | None = None):
     if missing:
         raise InputError(Problem(path, "row 1", "missing columns", got=", ".join(missing),
                                  expected=", ".join(SCHEDULE_COLUMNS)))
-    n, period_h = layout.horizon.n_periods, layout.horizon.period_h
-    ids = {z.id: i for i, z in enumerate(layout.zones)}
-    ranges = {z.id: layout.zone_airflow_range_Sm3_h(z) for z in layout.zones}
-    gridded = [z.id for z in layout.zones if ranges[z.id][1] > 0.0]
-    air = np.zeros((n, len(layout.zones)))
+    n, period_h = plant.n_periods, plant.period_h
+    ids = {zid: i for i, zid in enumerate(plant.zone_ids)}
+    ranges = {d.id: (d.airflow_min_Sm3_h, d.airflow_max_Sm3_h) for d in plant.diffused}
+    gridded = [zid for zid in plant.zone_ids if zid in ranges and ranges[zid][1] > 0.0]
+    air = np.zeros((n, plant.n_zones))
     seen: dict[tuple[int, str], int] = {}
     problems = []
     for row_no, (zone, start, q) in enumerate(zip(frame["zone"], frame["period_start_h"], frame["airflow_Sm3_h"]),
@@ -170,24 +171,24 @@ def run(args) -> int:
     if not 0.0 < args.tol < 1.0:
         raise InputError(Problem("<command line>", "--tol", "out of range", got=args.tol, expected="0 < tol < 1"))
     warnings: list = []
-    layout = load_plant(args.layout, warnings=warnings).layout
+    plant = load_plant(args.layout, warnings=warnings)
     for w in warnings:
         print(str(w), file=sys.stderr)
-    inputs = layout_input_files(args.layout, layout) + ([args.schedule] if args.schedule else [])
+    inputs = layout_input_files(args.layout, plant.layout) + ([args.schedule] if args.schedule else [])
     with output_folder(args.out, inputs=inputs, overwrite=args.overwrite) as out:
         warnings = []
-        schedule = read_schedule(args.schedule, layout, warnings) if args.schedule else None
+        schedule = read_schedule(args.schedule, plant, warnings) if args.schedule else None
         for w in warnings:
             print(str(w), file=sys.stderr)
-        result = periodic(layout, schedule=schedule, do_setpoint_mg_L=args.do_setpoint,
+        result = periodic(plant, schedule=schedule, do_setpoint_mg_L=args.do_setpoint,
                           max_days=args.max_days, tol=args.tol)
         clarifier = result.start.clarifier if result.start is not None else None
         if clarifier is not None and clarifier["overloaded"]:
             print(f"warning: {args.layout}: clarifier: {clarifier['message']}", file=sys.stderr)
         summary = summarize(result)
-        dp = steps_dispatch(layout, *step_airflow(layout, result), layout.operation.objective)
+        dp = steps_dispatch(plant, *step_airflow(plant, result), plant.operation.objective)
         if dp is not None:  # the blowers billed one by one, by the optimiser's dispatch rule
-            summary["dispatch"] = dispatch_summary(layout, dp)
+            summary["dispatch"] = dispatch_summary(plant, dp)
             summary["dispatch"]["shortfall"] = [f["message"] for f in dp.findings]
             summary["blower_kWh_per_day"] = summary["dispatch"]["energy_kWh_per_day"]
             summary["blower_kW_max"] = summary["dispatch"]["peak_kW"]
@@ -197,7 +198,7 @@ def run(args) -> int:
         write_json_atomic(out.file("summary.json"), summary)
     eff = summary["effluent_mg_L"]
     state = "periodic" if result.converged else f"NOT periodic after {result.days} days (change {result.day_change:.2g})"
-    print(f"{layout.plant.name}: {state} after {result.days} day(s), {result.seconds:.2f} s")
+    print(f"{plant.name}: {state} after {result.days} day(s), {result.seconds:.2f} s")
     print(f"  effluent NH4-N mean {eff['SNH']['mean']:.2f} max {eff['SNH']['max']:.2f} mg/L, "
           f"TN mean {eff['tn_mg_L']['mean']:.2f} mg/L")
     print(f"  air {summary['air_Sm3_per_day']:,.0f} Sm3/d, blower {summary['blower_kWh_per_day']:,.0f} kWh/d")
@@ -206,7 +207,7 @@ def run(args) -> int:
         print("  blowers (dispatched one by one): " + ", ".join(
             f"{b} {v['running_h']:g} h" for b, v in d["blowers"].items() if not v["out_of_service"]))
         for short in d["shortfall"]:
-            print(f"WARNING: {short}", file=sys.stderr)
+            print(f"warning: {args.layout}: blowers: {short}", file=sys.stderr)  # the one warning form
     for short in summary["setpoint_not_held"]:
         print(f"WARNING: {short['message']}", file=sys.stderr)
     print(f"  wrote {', '.join(OUTPUT_NAMES)} to {args.out}")

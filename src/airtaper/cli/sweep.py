@@ -205,7 +205,7 @@ def count_line(rows: list[dict]) -> str:
 
 
 def run(args) -> int:
-    from airtaper.layout import load_layout
+    from airtaper.plant import load_plant
     from airtaper.report.atomic import write_json_atomic
     from airtaper.sweep.grid import read_grid
     from airtaper.sweep.journal import gather_table, open_sweep_folder, write_table
@@ -213,7 +213,7 @@ def run(args) -> int:
     check_cluster_options(args)
     grid = read_grid(args.grid)
     warnings: list = []
-    load_layout(args.layout, warnings=warnings)  # the layout itself must be valid before any scenario
+    load_plant(args.layout, warnings=warnings)  # the layout itself must pass every check `optimize` runs first
     for w in warnings:
         print(str(w), file=sys.stderr)
     _refuse_inputs_inside(args.out, [args.layout, args.grid])

@@ -73,7 +73,7 @@ def _load_day_scenarios(layout):
 def run(args) -> int:
     import pandas as pd
 
-    from airtaper.layout import load_layout
+    from airtaper.plant import load_plant
     from airtaper.report.atomic import write_csv_atomic, write_json_atomic
     from airtaper.sweep.grid import Grid
     from airtaper.sweep.journal import gather_table, open_sweep_folder, write_table
@@ -82,7 +82,7 @@ def run(args) -> int:
 
     check_cluster_options(args)
     warnings: list = []
-    layout = load_layout(args.layout, warnings=warnings)
+    plant = load_plant(args.layout, warnings=warnings)  # every check `optimize` runs, before any day
     for w in warnings:
         print(str(w), file=sys.stderr)
     months = read_months(args.months) if args.months else None
@@ -90,7 +90,7 @@ def run(args) -> int:
         scenarios, day_of_month = _month_scenarios(months, args.months)
         inputs = tuple(dict.fromkeys(k for m in months for k in m.values))
     else:
-        scenarios, weights = _load_day_scenarios(layout)
+        scenarios, weights = _load_day_scenarios(plant.layout)  # load days apply to the layout as given
         inputs = ("days_per_year", "flow_factor", "load_factor", "water_temperature_C", "alpha_factor")
     grid = Grid(args.months or args.layout, tuple(scenarios), (), inputs)
     _refuse_inputs_inside(args.out, [args.layout] + ([args.months] if args.months else []))
@@ -98,7 +98,7 @@ def run(args) -> int:
     known, tasks = plan(args.layout, grid, folder, _options(args), kind="year")
     rows, facts = run_plan(known, tasks, [s.id for s in scenarios], args)
     by_id = {r["scenario"]: r for r in rows}
-    rate = layout.tariff.demand_charge_per_kW if layout.tariff is not None else None
+    rate = plant.tariff.demand_charge_per_kW if plant.tariff is not None else None
     if months is not None:
         per, totals = year_months(months, day_of_month, by_id, rate)
     else:
@@ -107,7 +107,7 @@ def run(args) -> int:
     files = write_table(folder, frame)
     month_frame = pd.DataFrame(per)
     files.append(write_csv_atomic(folder / "months.csv", month_frame))
-    currency = layout.tariff.currency if layout.tariff is not None else ""
+    currency = plant.tariff.currency if plant.tariff is not None else ""
     summary = {"kind": "year", "layout": args.layout, "months": args.months, "inputs": list(inputs),
                "currency": currency, **facts, "statuses": count_line(rows), "year": totals,
                "periods": per, "caution": CAUTION}

@@ -6,9 +6,15 @@ written as lists (a single number when they do not change). An influent read
 from a CSV is written as the same ``csv`` name, so ``base_dir`` must be the
 layout's folder. The dict holds only str, int, float, bool, list and dict, so
 it serialises to TOML or JSON as is.
+
+A record whose fields are named as its section's keys (a zone, [limits], [operation],
+[header], [tariff], [capital]) is written field by field (:func:`_keys`), so a key added to
+such a record round-trips with no change here; the other sections name their keys.
 """
 
 from __future__ import annotations
+
+import dataclasses
 
 from airtaper.layout.influent import MEASURED
 from airtaper.layout.types import ASM1_COMPONENTS, Layout
@@ -22,6 +28,18 @@ def _pp(values):
 
 def _drop_none(d: dict) -> dict:
     return {k: v for k, v in d.items() if v is not None}
+
+
+def _keys(record, skip: tuple[str, ...] = ()) -> dict:
+    """A record whose field names are its section's keys, as data: every field that is set (None is a key left
+    out), per-period tuples as :func:`_pp` writes them; ``skip``: fields written otherwise."""
+    out = {}
+    for f in dataclasses.fields(record):
+        value = getattr(record, f.name)
+        if f.name in skip or value is None:
+            continue
+        out[f.name] = _pp(value) if isinstance(value, tuple) else value
+    return out
 
 
 def layout_to_data(layout: Layout) -> dict:
@@ -46,19 +64,9 @@ def layout_to_data(layout: Layout) -> dict:
     } for d in layout.diffuser_types]
     zones = []
     for z in layout.zones:
-        zd = {"id": z.id, "kind": z.kind, "volume_m3": z.volume_m3, "depth_m": z.depth_m, "area_m2": z.area_m2,
-              "alpha": z.alpha, "fouling": z.fouling, "beta": z.beta,
-              "drop_leg_k_kPa_per_Sm3_h2": z.drop_leg_k_kPa_per_Sm3_h2,
-              "mixing_airflow_min_Sm3_h_m2": z.mixing_airflow_min_Sm3_h_m2}
-        if z.kind != "anoxic":
-            zd.update(_drop_none({"do_min_mg_L": z.do_min_mg_L, "do_max_mg_L": z.do_max_mg_L,
-                                  "valve_capacity_Sm3_h": z.valve_capacity_Sm3_h,
-                                  "fixed_kla_per_d": z.fixed_kla_per_d, "fixed_do_sat_mg_L": z.fixed_do_sat_mg_L}))
-            if z.grid is not None:
-                zd["grid"] = {"type": z.grid.type_id, "count": z.grid.count, "submergence_m": z.grid.submergence_m,
-                              "count_step": z.grid.count_step}
-            if z.max_switches_per_day is not None:
-                zd["max_switches_per_day"] = z.max_switches_per_day
+        zd = _keys(z, skip=("grid",))
+        if z.grid is not None:
+            zd["grid"] = {"type": z.grid.type_id, **_keys(z.grid, skip=("type_id",))}
         zones.append(zd)
     data["zones"] = zones
     flows: dict = {"step_feed": [{"zone": s.zone, "fraction": s.fraction} for s in layout.step_feed]}
@@ -105,9 +113,7 @@ def layout_to_data(layout: Layout) -> dict:
         blowers.append(bd)
     if blowers:
         data["blowers"] = blowers
-    h = layout.header
-    data["header"] = {"loss_k_kPa_per_Sm3_h2": h.loss_k_kPa_per_Sm3_h2, "min_valve_loss_kPa": h.min_valve_loss_kPa,
-                      "aggregate_efficiency": h.aggregate_efficiency}
+    data["header"] = _keys(layout.header)
     a = layout.inlet_air
     data["inlet_air"] = _drop_none({"temperature_C": _pp(a.temperature_C), "pressure_kPa": a.pressure_kPa,
                                     "filter_loss_kPa": a.filter_loss_kPa})
@@ -126,23 +132,15 @@ def layout_to_data(layout: Layout) -> dict:
                                  "xba_of_cod": f.xba_of_cod, "snd_of_organic_n": f.snd_of_organic_n,
                                  "sno_mg_L": f.sno_mg_L}
     data["influent"] = influent
-    lim = layout.limits
-    data["limits"] = _drop_none({"nh4_mean_mg_L": lim.nh4_mean_mg_L, "nh4_max_mg_L": lim.nh4_max_mg_L,
-                                 "tn_mean_mg_L": lim.tn_mean_mg_L})
+    data["limits"] = _keys(layout.limits)
     if layout.tariff is not None:
-        t = layout.tariff
-        data["tariff"] = {"currency": t.currency, "price_per_kWh": _pp(t.price_per_kWh),
-                          "demand_charge_per_kW": t.demand_charge_per_kW, "demand_period_days": t.demand_period_days}
+        data["tariff"] = _keys(layout.tariff)
     k = layout.kinetics
     data["kinetics"] = {"parameter_set": k.parameter_set, "temperature_correction": k.temperature_correction,
                         "overrides": dict(k.overrides)}
-    o = layout.operation
-    data["operation"] = {"baseline_do_setpoint_mg_L": o.baseline_do_setpoint_mg_L, "objective": o.objective,
-                         "smoothing_weight": o.smoothing_weight}
+    data["operation"] = _keys(layout.operation)
     if layout.capital is not None:
-        c = layout.capital
-        data["capital"] = {"cost_per_diffuser": c.cost_per_diffuser, "cost_per_zone": c.cost_per_zone,
-                           "interest_rate": c.interest_rate, "life_years": c.life_years}
+        data["capital"] = _keys(layout.capital)
     if layout.load_days:
         data["load_days"] = [_load_day(d) for d in layout.load_days]
     return data
@@ -161,6 +159,5 @@ def _load_day(d) -> dict:
     if d.air_temperature_C is not None:
         out["air_temperature_C"] = _pp(d.air_temperature_C)
     out["alpha_factor"] = d.alpha_factor
-    out["limits"] = _drop_none({"nh4_mean_mg_L": d.limits.nh4_mean_mg_L, "nh4_max_mg_L": d.limits.nh4_max_mg_L,
-                                "tn_mean_mg_L": d.limits.tn_mean_mg_L})
+    out["limits"] = _keys(d.limits)
     return out

@@ -36,15 +36,12 @@ outlets) conserves COD and N exactly in dynamic runs; at steady state both give
 the same result.
 
 ``min``, ``max`` and the threshold switch are replaced by smooth forms so that the
-equations are twice differentiable for Ipopt::
-
-    smin(a, b) = (a + b - sqrt((a - b)^2 + s^2)) / 2          (|error| <= s/2)
-    step(x)    = (1 + x / sqrt(x^2 + w^2)) / 2                (switch width w)
-    J_l (above feed) = a - step(X_l+1 - Xt) smax(0, a - b)
-
-with ``s`` = :data:`SMOOTH_VELOCITY_m_d` for velocities, :data:`SMOOTH_FLUX_g_m2_d`
-for fluxes and ``w`` = :data:`THRESHOLD_WIDTH_g_m3`; the BSM1 test shows the
-smoothing changes the benchmark steady state far below its 1e-3 tolerance.
+equations are twice differentiable for Ipopt: the fluxes are those of
+:func:`airtaper.physics.settling.gravity_flux_g_m2_d` and
+:func:`~airtaper.physics.settling.interface_flux_g_m2_d`, the same functions the simulator
+evaluates (a smooth minimum whose width scales with the fluxes, so that the layers that sit
+at one concentration below the feed are not on a kink at the scale Ipopt sees; the BSM1 test
+shows the smoothing changes the benchmark steady state far below its 1e-3 tolerance).
 
 References
 ----------
@@ -60,34 +57,7 @@ import pyomo.environ as pyo
 
 from airtaper.model.discretisation import StepSlice, time_balance
 from airtaper.physics import settling as settling_physics
-from airtaper.physics.smooth import smooth_max, smooth_min, smooth_step
 from airtaper.process.stoichiometry import PARTICULATES, SOLIDS_COD
-
-#: Smoothing of the velocity clamps (0 and v0'), m/d. Common practice (no source).
-SMOOTH_VELOCITY_m_d = 0.01
-#: Smoothing of the min of two fluxes, g/(m2 d). Common practice (no source).
-SMOOTH_FLUX_g_m2_d = 1.0
-#: Width of the smooth threshold switch at Xt, g/m3. Common practice (no source).
-THRESHOLD_WIDTH_g_m3 = 1.0
-
-
-def takacs_velocity_m_d(tss_g_m3, tss_min_g_m3, settling):
-    """Double-exponential settling velocity (Takacs et al. 1991), m/d, smoothly clamped to [0, v0'].
-
-    :func:`airtaper.physics.settling.takacs_velocity_m_d` with the model's smoothing
-    :data:`SMOOTH_VELOCITY_m_d`.
-
-    Parameters
-    ----------
-    tss_g_m3 : Pyomo expression
-        Solids concentration of the layer, g/m3.
-    tss_min_g_m3 : Pyomo expression or float
-        Non-settleable solids ``fns * TSS_feed``, g/m3.
-    settling : airtaper.layout.types.Settling
-        v0', v0 (m/d), rh, rp (m3/g).
-    """
-    return settling_physics.takacs_velocity_m_d(tss_g_m3, tss_min_g_m3, settling.v0_max_m_d, settling.v0_m_d,
-                                                settling.rh_m3_g, settling.rp_m3_g, SMOOTH_VELOCITY_m_d)
 
 
 # --- shared by both clarifier kinds --------------------------------------------------
@@ -139,19 +109,19 @@ def _layer_tss_definition_rule(m, t, layer):
     return m.settler_tss[t, layer] == m.tss_per_cod * sum(m.settler_conc[t, layer, c] for c in SOLIDS_COD)
 
 
-def _layer_velocity_rule(m, t, layer):
-    return takacs_velocity_m_d(m.settler_tss[t, layer], m.settler.fns * m.feed_tss_g_m3[t], m.settler)
+def _layer_gravity_flux_rule(m, t, layer):
+    s = m.settler
+    return settling_physics.gravity_flux_g_m2_d(m.settler_tss[t, layer], s.fns * m.feed_tss_g_m3[t], s.v0_max_m_d,
+                                                s.v0_m_d, s.rh_m3_g, s.rp_m3_g)
 
 
 def _settling_flux_definition_rule(m, t, layer):
     """w_l X_l = J_l, the Takacs flux from ``layer`` to the one below (smoothed, see module notes)."""
-    a = m.settler_vs[t, layer] * m.settler_tss[t, layer]
-    b = m.settler_vs[t, layer + 1] * m.settler_tss[t, layer + 1]
+    a, b = m.settler_gravity_flux[t, layer], m.settler_gravity_flux[t, layer + 1]
     if layer >= m.settler_feed_layer:
-        flux = smooth_min(a, b, SMOOTH_FLUX_g_m2_d)
+        flux = settling_physics.interface_flux_g_m2_d(a, b)
     else:
-        switch = smooth_step(m.settler_tss[t, layer + 1] - m.settler.x_threshold_g_m3, THRESHOLD_WIDTH_g_m3)
-        flux = a - switch * smooth_max(a - b, 0.0, SMOOTH_FLUX_g_m2_d)
+        flux = settling_physics.interface_flux_g_m2_d(a, b, m.settler_tss[t, layer + 1], m.settler.x_threshold_g_m3)
     return m.settler_velocity[t, layer] * m.settler_tss[t, layer] == flux
 
 
@@ -211,7 +181,8 @@ def attach_layered_settler(m, data) -> None:
                             doc="suspended solids of each layer, g/m3")
     m.settler_velocity = pyo.Var(m.STEPS, m.INTERFACES, bounds=(0.0, None), initialize=10.0,
                                  doc="effective settling velocity out of a layer, J_l / X_l, m/d")
-    m.settler_vs = pyo.Expression(m.STEPS, m.LAYERS, rule=_layer_velocity_rule)
+    m.settler_gravity_flux = pyo.Expression(m.STEPS, m.LAYERS, rule=_layer_gravity_flux_rule,
+                                            doc="gravity flux vs X of each layer, g/(m2 d)")
     m.settler_tss_definition = pyo.Constraint(m.STEPS, m.LAYERS, rule=_layer_tss_definition_rule)
     m.settler_flux_definition = pyo.Constraint(m.STEPS, m.INTERFACES, rule=_settling_flux_definition_rule)
     m.settler_rhs = pyo.Expression(m.STEPS, m.LAYERS, m.COMPONENTS, rule=_settler_rhs_rule)

@@ -80,7 +80,7 @@ def settler_layers(m) -> pd.DataFrame:
     """Layered settler: concentration per step and layer (top = 1) and the layer TSS (``tss_mg_L``)."""
     if not hasattr(m, "settler_conc"):
         return pd.DataFrame()
-    nl, nc = m.settler_layers, len(ASM1_COMPONENTS)
+    nc = len(ASM1_COMPONENTS)
     vals = np.fromiter((v.value for v in m.settler_conc.values()), dtype=float, count=len(m.settler_conc))
     index = pd.MultiIndex.from_product([list(m.STEPS), list(m.LAYERS)], names=["step", "layer"])
     df = pd.DataFrame(vals.reshape(-1, nc), index=index, columns=list(ASM1_COMPONENTS))

@@ -219,7 +219,6 @@ def attach_aeration(m, data: TrainData, airflow=None, diffuser_count=None) -> No
     kLa and the grid limits follow instead of the layout's counts (a design study shares
     one such Var between the models of its load days).
     """
-    layout = data.layout
     m.aeration = {z: a for z, a in zip(data.zones, data.aeration) if a is not None}
     m.zone_volume_m3 = {z: float(v) for z, v in zip(data.zones, data.volume_m3)}
     m.temperature_C = {p + 1: float(t) for p, t in enumerate(data.temperature_C)}

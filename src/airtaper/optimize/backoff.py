@@ -21,14 +21,34 @@ of the collocation polynomial were not chosen: the polynomial of a 30-minute ste
 follow a DO transient of minutes, so they would constrain the model's approximation, not
 the DO the simulator (and the plant) shows.
 
+The back-off is per time point, not per period: an excursion moves the bound at the points of
+the model step that holds the extreme's time (:func:`points_at`), so a DO peak minutes after a
+period starts does not tighten the bound at the period's end, where the load is another.
+
+Coarse model steps: a back-off corrects what the points miss between them, not a model step
+too long to follow the DO within a period. On the demo with six 4-hour periods of one 4-hour
+step (two points), the model put Z6's DO at 1.99 mg/L at 09:20 where the simulator had 1.29,
+and 3.2 mg/L at 08:29 went unseen (Z6's maximum is 2.5): no back-off of the two points
+could hold Z6 in its range (the band closes before the peak falls), while 30-minute steps
+(the demo's own resolution) left 0.044 mg/L for the back-off to take. So when the
+re-simulated schedule breaks a limit (beyond the verification's tolerances, not the few
+hundredths the back-off is for) and the model's step is longer than :data:`REFINED_STEP_H`,
+:func:`hold_do` runs no back-off round (``refine`` in its result) and the study is solved again
+on steps of that length (:func:`refined_steps_per_period`;
+:func:`airtaper.optimize.diurnal.run_optimization` does it, once).
+
 The last round's re-simulation is the verification of the schedule that is reported.
 """
 
 from __future__ import annotations
 
+import math
 import time
 
 import pyomo.environ as pyo
+
+from airtaper import units
+from airtaper.optimize.attempts import Rung
 
 #: A zone's continuous DO may leave its range by this much without a back-off, mg/L
 #: (the issue's acceptance is 0.01 mg/L; half of it leaves room for the next round's drift).
@@ -42,6 +62,14 @@ MAX_ROUNDS = 8
 #: The back-offs of a zone with both a DO minimum and a maximum leave at least this
 #: share of its DO range open (a band squeezed shut makes the problem infeasible).
 OPEN_SHARE = 0.5
+#: The back-off's re-solve: one warm Ipopt solve, no retry ladder. A failed round keeps the last
+#: schedule that solved; on the 6-period demo a failing round's warm solve wandered for 600
+#: iterations and the ladder after it for 5 rungs more (minutes) to end in the same place.
+#: The demo's back-off re-solves take 10-40 iterations.
+RESOLVE = Rung("DO back-off re-solve", {"mu_strategy": "adaptive", "max_iter": 150})
+#: Model step (h) of a study solved again when the back-off on longer steps cannot hold the
+#: DO range (module notes): the demo's own step, where the back-off is known to converge.
+REFINED_STEP_H = 0.5
 
 
 def shortfalls(layout, day_do_min: dict, backoff: dict, periods, day_do_max: dict | None = None,
@@ -82,49 +110,106 @@ def shortfalls(layout, day_do_min: dict, backoff: dict, periods, day_do_max: dic
     return low, high
 
 
+def _steps(m) -> list[tuple[float, list]]:
+    """(end hour, time points) of every model step, in time order."""
+    seen, out = set(), []
+    for t in m.STEPS:
+        pts = tuple(m.step_points[t])
+        if pts not in seen:
+            seen.add(pts)
+            out.append((float(m.point_hour[pts[-1]]), list(pts)))
+    return sorted(out)
+
+
+def points_at(steps: list[tuple[float, list]], hour: float) -> list:
+    """The time points of the model step whose interval (start, end] holds ``hour`` (periodic day).
+
+    ``steps``: :func:`_steps`. An extreme exactly at a step's start belongs to the step before
+    it: the model's value there is that step's last point (and 0 h is 24 h).
+    """
+    h = hour % units.HOURS_PER_DAY
+    if h <= 1e-9:
+        h = units.HOURS_PER_DAY
+    for end, pts in steps:
+        if end >= h - 1e-9:
+            return pts
+    return steps[-1][1]
+
+
+def _excursion_points(m, ex, found: dict, column: str) -> dict:
+    """(zone, period) excursions -> (zone, time point) excursions, at the step of the extreme's time.
+
+    ``ex``: the simulated day's DO extremes (period 0-based, zone, ``<column>_time_h``).
+    """
+    steps = _steps(m)
+    when = {(r.zone, int(r.period) + 1): float(getattr(r, f"{column}_time_h")) for r in ex.itertuples()}
+    out: dict = {}
+    for (z, p), s in found.items():
+        for t in points_at(steps, when[z, p]):
+            out[z, t] = max(out.get((z, t), 0.0), s)
+    return out
+
+
 def _keep_band_open(layout, values) -> None:
-    """Limit the back-offs of a zone and period so :data:`OPEN_SHARE` of its DO range stays open.
+    """Limit the back-offs of a zone and time point so :data:`OPEN_SHARE` of its DO range stays open.
 
     The minimum comes first (it is what the plant needs); the maximum's back-off gets
     what room is left.
     """
     low, high = values
-    for (z, p), b_hi in high.items():
+    for (z, t), b_hi in high.items():
         zone = layout.zone(z)
         room = (1.0 - OPEN_SHARE) * (zone.do_max_mg_L - (zone.do_min_mg_L or 0.0))
-        b_lo = min(low.get((z, p), 0.0), room)
-        if (z, p) in low:
-            low[z, p] = b_lo
-        high[z, p] = min(b_hi, room - b_lo)
+        b_lo = min(low.get((z, t), 0.0), room)
+        if (z, t) in low:
+            low[z, t] = b_lo
+        high[z, t] = min(b_hi, room - b_lo)
 
 
-def hold_do(study, verify, progress=None, relax=None) -> dict:
+def _by_period(m, values: dict) -> dict:
+    """(zone, time point) -> back-off, as "zone/period" -> the period's largest back-off (the summary's form)."""
+    out: dict = {}
+    for (z, t), v in values.items():
+        if v > 0.0:
+            key = f"{z}/{m.period_of_step[t]}"
+            out[key] = max(out.get(key, 0.0), v)
+    return out
+
+
+def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> dict:
     """Back-off rounds on a solved :class:`~airtaper.optimize.diurnal.DiurnalOptimisation`.
 
     ``verify()`` re-simulates the current schedule and returns ``(verification dict,
     SimDay)``. Returns ``{"verification", "rounds", "backoff_mg_L", "backoff_max_mg_L",
-    "largest_backoff_mg_L", "energy_before_kWh_per_day", "seconds", "resolve_failed", "relaxed"}``;
+    "largest_backoff_mg_L", "backed_off_points", "energy_before_kWh_per_day", "seconds",
+    "resolve_failed", "relaxed"}`` (the back-offs as "zone/period" -> the period's largest);
     the model is left at the last schedule that solved. ``relax()``, when given, is called once
-    when a re-solve fails, and the round re-solved: the staged blowers' fixed machine set caps the
-    airflow of every period, and a back-off that needs more air than that set gives has no
-    solution until the machines are chosen again (:func:`airtaper.optimize.staging.redispatch`
-    does that on the final schedule).
+    before the first re-solve: the staged blowers' fixed machine set caps the airflow of every
+    period, and a back-off that needs more air than that set gives has no solution until the
+    machines are chosen again (:func:`airtaper.optimize.staging.redispatch` does that on the
+    final schedule). ``coarse``: the model's steps are longer than
+    :data:`REFINED_STEP_H`; an unverified first re-simulation then ends at once with ``refine``
+    True (module notes).
     """
     m = study.m
     b = m.opt
     periods = list(m.PERIODS)
     params = (b.do_backoff_mg_L, b.do_max_backoff_mg_L)
     values = [{k: float(pyo.value(v)) for k, v in prm.items()} for prm in params]
+    # shortfalls() asks per zone and period which zones the optimiser holds to a bound
+    held = [{(z, p): 0.0 for (z, _t) in vals for p in periods} for vals in values]
     t0 = time.perf_counter()
     energy0 = study.energy_kWh_per_day()
     ver, day = verify()
     rounds = 0
     failed = False
     relaxed = False
-    while rounds < MAX_ROUNDS:
+    refine = coarse and not ver["verified"]
+    while rounds < MAX_ROUNDS and not refine:
         ex = day.do_extremes
         highs = {z: g.sort_values("period")["do_max_mg_L"].to_numpy() for z, g in ex.groupby("zone", sort=False)}
-        found = shortfalls(study.layout, day.do_min_by_period(), values[0], periods, highs, values[1], b.swing_states)
+        found = shortfalls(study.layout, day.do_min_by_period(), held[0], periods, highs, held[1],
+                           study.problem.swing_states)
         if not any(found):
             break
         rounds += 1
@@ -134,18 +219,19 @@ def hold_do(study, verify, progress=None, relax=None) -> dict:
         previous = [dict(v) for v in values]
         snapshot = [(v, v.value) for v in m.component_data_objects(pyo.Var, descend_into=True)]
         last = (ver, day, study.result)
-        for vals, excursions in zip(values, found):
-            for k, s in excursions.items():
+        for vals, excursions, column in zip(values, found, ("do_min", "do_max")):
+            for k, s in _excursion_points(m, ex, excursions, column).items():
                 vals[k] += GAIN * s + CUSHION_mg_L
         _keep_band_open(study.layout, values)
         for prm, vals in zip(params, values):
             for k, v in vals.items():
                 prm[k] = v
-        r = study.resolve()
-        if (r is None or not r.ok) and relax is not None and not relaxed:
+        if relax is not None and not relaxed:
+            # before the first re-solve, not after it fails: a re-solve against the fixed machine set
+            # wandered for 170+ iterations (infeasibility 2e-2) on the 6-period demo before failing
             relaxed = True
             relax()
-            r = study.resolve()
+        r = study.resolve_once(RESOLVE)
         if r is None or not r.ok:  # back to the last schedule that solved, as it was
             for prm, vals in zip(params, previous):
                 for k, v in vals.items():
@@ -157,11 +243,19 @@ def hold_do(study, verify, progress=None, relax=None) -> dict:
             failed = True
             break
         ver, day = verify()
-    return {"verification": ver, "rounds": rounds, "resolve_failed": failed, "relaxed": relaxed,
-            "backoff_mg_L": {f"{z}/{p}": v for (z, p), v in values[0].items() if v > 0.0},
-            "backoff_max_mg_L": {f"{z}/{p}": v for (z, p), v in values[1].items() if v > 0.0},
+    return {"verification": ver, "rounds": rounds, "resolve_failed": failed, "relaxed": relaxed, "refine": refine,
+            "backoff_mg_L": _by_period(m, values[0]), "backoff_max_mg_L": _by_period(m, values[1]),
+            "backed_off_points": sum(v > 0.0 for vals in values for v in vals.values()),
             "largest_backoff_mg_L": float(max([*values[0].values(), *values[1].values()], default=0.0)),
             "energy_before_kWh_per_day": energy0, "seconds": time.perf_counter() - t0}
 
 
-__all__ = ["ACCEPT_mg_L", "CUSHION_mg_L", "GAIN", "MAX_ROUNDS", "OPEN_SHARE", "hold_do", "shortfalls"]
+def refined_steps_per_period(period_h: float, steps_per_period: int) -> int | None:
+    """Model steps per period of :data:`REFINED_STEP_H`, or None when the step is that short already."""
+    if period_h / steps_per_period <= REFINED_STEP_H * (1 + 1e-9):
+        return None
+    return int(math.ceil(period_h / REFINED_STEP_H - 1e-9))
+
+
+__all__ = ["ACCEPT_mg_L", "CUSHION_mg_L", "GAIN", "MAX_ROUNDS", "OPEN_SHARE", "REFINED_STEP_H", "RESOLVE", "hold_do",
+           "points_at", "refined_steps_per_period", "shortfalls"]

@@ -1,6 +1,6 @@
 """The baseline: the same plant under uniform DO-setpoint control, by the independent simulator.
 
-Every aerated zone with diffusers is held at one DO setpoint (the layout's
+Every aerated zone with diffusers is held at one DO setpoint (the plant's
 ``operation.baseline_do_setpoint_mg_L``, 2.0 mg/L unless set; a zone's own DO
 range clips it) by the simulator's ideal DO control; the simulator returns the
 airflow that control needs at every step, and the blower energy and cost follow
@@ -32,6 +32,7 @@ import pandas as pd
 from airtaper.layout.types import Layout
 from airtaper.optimize.compliance import violations
 from airtaper.optimize.simday import SimDay, simulate_day
+from airtaper.plant import ResolvedPlant, resolve_plant
 
 
 #: DO range tolerance of the baseline's compliance, mg/L: the DO over continuous time
@@ -91,10 +92,10 @@ class Baseline:
         order) gains ``baseline_power_kW``.
         """
         day = self.day
-        n = self.day.layout.horizon.n_periods
+        n = day.plant.n_periods
         air = day.period_mean_airflow()
         do = {z: np.array([v[day.period == k].mean() for k in range(n)]) for z, v in day.do.items()}
-        period_h = self.day.layout.horizon.period_h
+        period_h = day.plant.period_h
         k = np.rint(schedule["period_start_h"].to_numpy() / period_h).astype(int)
         zones = schedule["zone"].to_numpy()
         sched = schedule.copy()
@@ -105,12 +106,13 @@ class Baseline:
         return sched, head
 
 
-def baseline_setpoints(layout: Layout, setpoint_mg_L: float | None = None) -> dict:
-    """Zone id -> DO setpoint of the baseline (clipped into the zone's DO range)."""
-    sp = layout.operation.baseline_do_setpoint_mg_L if setpoint_mg_L is None else float(setpoint_mg_L)
+def baseline_setpoints(plant: ResolvedPlant | Layout, setpoint_mg_L: float | None = None) -> dict:
+    """Zone id -> DO setpoint of the baseline (clipped into the zone's DO range); a layout is resolved first."""
+    plant = resolve_plant(plant)
+    sp = plant.operation.baseline_do_setpoint_mg_L if setpoint_mg_L is None else float(setpoint_mg_L)
     out = {}
-    for z in layout.zones:
-        if z.kind != "aerated" or not z.has_diffusers:
+    for z in plant.zones:
+        if z.kind != "aerated" or not plant.has_diffusers(z):
             continue
         v = sp
         if z.do_max_mg_L is not None:
@@ -121,33 +123,37 @@ def baseline_setpoints(layout: Layout, setpoint_mg_L: float | None = None) -> di
     return out
 
 
-def run_baseline(layout: Layout, setpoint_mg_L: float | None = None, start_state=None) -> Baseline:
-    """Simulate the baseline day (see module notes); ``start_state``: the simulator's first day's start."""
-    sp = layout.operation.baseline_do_setpoint_mg_L if setpoint_mg_L is None else float(setpoint_mg_L)
-    sps = baseline_setpoints(layout, sp)
+def run_baseline(plant: ResolvedPlant | Layout, setpoint_mg_L: float | None = None, start_state=None) -> Baseline:
+    """Simulate the baseline day of a plant (see module notes; a layout is resolved first); ``start_state``: the
+    simulator's first day's start."""
+    plant = resolve_plant(plant)
+    sp = plant.operation.baseline_do_setpoint_mg_L if setpoint_mg_L is None else float(setpoint_mg_L)
+    sps = baseline_setpoints(plant, sp)
     kwargs = {} if start_state is None else {"start_state": start_state[0], "start_waste_m3_d": start_state[1]}
-    day = simulate_day(layout, do_setpoint_mg_L=sps, **kwargs)
+    day = simulate_day(plant, do_setpoint_mg_L=sps, **kwargs)
     return Baseline(setpoints_mg_L=sps, day=day, setpoint_mg_L=sp,
-                    violations=violations(layout, day.figures, do_tolerance_mg_L=DO_TOLERANCE_mg_L))
+                    violations=violations(plant, day.figures, do_tolerance_mg_L=DO_TOLERANCE_mg_L))
 
 
-def complying_baseline(layout: Layout, base: Baseline) -> Baseline | None:
+def complying_baseline(plant: ResolvedPlant | Layout, base: Baseline) -> Baseline | None:
     """The lowest uniform DO setpoint whose day meets the limits, bracketed both ways (module notes); None if none."""
-    f, lim = base.day.figures, layout.limits
+    plant = resolve_plant(plant)
+    f, lim = base.day.figures, plant.limits
     nh4_broken = any(limit is not None and f[key] > limit
                      for key, limit in (("nh4_mean_mg_L", lim.nh4_mean_mg_L), ("nh4_max_mg_L", lim.nh4_max_mg_L)))
     for direction in ((1.0, -1.0) if nh4_broken else (-1.0, 1.0)):
-        found = _bracket(layout, base, direction)
+        found = _bracket(plant, base, direction)
         if found is not None:
             return found
     return None
 
 
-def search_range(layout: Layout) -> tuple[float, float]:
+def search_range(plant: ResolvedPlant | Layout) -> tuple[float, float]:
     """Lowest and highest uniform setpoint the search tries, mg/L: :data:`SEARCH_MIN_mg_L` and
     :data:`SEARCH_MAX_mg_L`, narrowed to where the zones' own DO ranges still let the setpoint change
     something (below every zone's DO minimum, or above every zone's DO maximum, the days are the same)."""
-    zones = [z for z in layout.zones if z.id in baseline_setpoints(layout, 1.0)]
+    plant = resolve_plant(plant)
+    zones = [z for z in plant.zones if z.id in baseline_setpoints(plant, 1.0)]
     lo, hi = SEARCH_MIN_mg_L, SEARCH_MAX_mg_L
     if zones and all(z.do_min_mg_L is not None for z in zones):
         lo = max(lo, min(z.do_min_mg_L for z in zones))
@@ -156,19 +162,19 @@ def search_range(layout: Layout) -> tuple[float, float]:
     return lo, max(hi, lo)
 
 
-def _steps_from(layout: Layout, origin: Baseline, direction: float, last_complies: bool):
+def _steps_from(plant: ResolvedPlant, origin: Baseline, direction: float, last_complies: bool):
     """Trials stepping away from ``origin`` in ``direction`` until compliance changes from ``last_complies``.
 
     Returns (the last trial like ``origin``, the first trial unlike it or None): the first is
     ``origin`` itself when the first step already changes.
     """
     same, start = origin, origin.day.start_state()
-    lo, hi = search_range(layout)
+    lo, hi = search_range(plant)
     for step in SEARCH_STEPS_mg_L:
         sp = float(np.clip(origin.setpoint_mg_L + direction * step, lo, hi))
         if direction * (sp - same.setpoint_mg_L) <= 0.0:  # at the end of the range
             break
-        trial = _try(layout, sp, start)
+        trial = _try(plant, sp, start)
         if trial is None:
             break
         if (not trial.violations) != last_complies:
@@ -177,19 +183,19 @@ def _steps_from(layout: Layout, origin: Baseline, direction: float, last_complie
     return same, None
 
 
-def _bracket(layout: Layout, base: Baseline, direction: float) -> Baseline | None:
+def _bracket(plant: ResolvedPlant, base: Baseline, direction: float) -> Baseline | None:
     """Search one direction from the (breaking) baseline; the lowest complying setpoint found, or None."""
-    breaking, complying = _steps_from(layout, base, direction, last_complies=False)
+    breaking, complying = _steps_from(plant, base, direction, last_complies=False)
     if complying is None:
         return None
     if direction < 0:  # complying below the baseline: go on down to where the limits break again
-        complying, breaking = _steps_from(layout, complying, -1.0, last_complies=True)
+        complying, breaking = _steps_from(plant, complying, -1.0, last_complies=True)
         if breaking is None:  # complies down to the end of the range
             return complying
     lo, found = breaking.setpoint_mg_L, complying
     while found.setpoint_mg_L - lo > SEARCH_TOL_mg_L:
         mid = 0.5 * (lo + found.setpoint_mg_L)
-        trial = _try(layout, mid, found.day.start_state())
+        trial = _try(plant, mid, found.day.start_state())
         if trial is not None and not trial.violations:
             found = trial
         else:
@@ -197,9 +203,9 @@ def _bracket(layout: Layout, base: Baseline, direction: float) -> Baseline | Non
     return found
 
 
-def _try(layout: Layout, setpoint_mg_L: float, start) -> Baseline | None:
+def _try(plant: ResolvedPlant, setpoint_mg_L: float, start) -> Baseline | None:
     try:
-        return run_baseline(layout, setpoint_mg_L, start_state=start)
+        return run_baseline(plant, setpoint_mg_L, start_state=start)
     except (RuntimeError, ArithmeticError, ValueError):  # the simulator failed at this setpoint: stop there
         return None
 

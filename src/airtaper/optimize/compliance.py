@@ -17,6 +17,7 @@ from __future__ import annotations
 import numpy as np
 
 from airtaper.layout.types import Layout
+from airtaper.plant import ResolvedPlant, resolve_plant
 
 #: Verification rule: an effluent figure may exceed its limit by this fraction ...
 EFFLUENT_TOLERANCE = 0.02
@@ -25,10 +26,10 @@ EFFLUENT_TOLERANCE = 0.02
 DO_TOLERANCE_mg_L = 0.05
 
 
-def do_limits(layout: Layout) -> dict[str, tuple[float | None, float | None]]:
-    """Zone id -> (DO minimum, DO maximum) for the zones the optimiser holds to them."""
+def do_limits(plant: ResolvedPlant | Layout) -> dict[str, tuple[float | None, float | None]]:
+    """Zone id -> (DO minimum, DO maximum) for the zones the optimiser holds to them (a layout is resolved first)."""
     out = {}
-    for z in layout.zones:
+    for z in resolve_plant(plant).zones:
         if not z.has_diffusers:
             continue
         lo = z.do_min_mg_L if z.kind == "aerated" else None
@@ -38,7 +39,7 @@ def do_limits(layout: Layout) -> dict[str, tuple[float | None, float | None]]:
     return out
 
 
-def day_figures(layout: Layout, nh4_mg_L, tn_mg_L, q_effluent_m3_d, period_of_step, do_by_zone: dict,
+def day_figures(plant: ResolvedPlant | Layout, nh4_mg_L, tn_mg_L, q_effluent_m3_d, period_of_step, do_by_zone: dict,
                 weights=None) -> dict:
     """Effluent means, period maxima and DO margins of one day (see module notes).
 
@@ -53,7 +54,7 @@ def day_figures(layout: Layout, nh4_mg_L, tn_mg_L, q_effluent_m3_d, period_of_st
     periods = np.unique(per)
     nh4_period = np.array([(w[per == k] * nh4[per == k]).sum() / w[per == k].sum() for k in periods])
     margins = {}
-    for zid, (lo, hi) in do_limits(layout).items():
+    for zid, (lo, hi) in do_limits(plant).items():
         do = np.asarray(do_by_zone[zid], dtype=float)
         m = np.inf
         if lo is not None:
@@ -72,11 +73,13 @@ def day_figures(layout: Layout, nh4_mg_L, tn_mg_L, q_effluent_m3_d, period_of_st
     }
 
 
-def violations(layout: Layout, figures: dict, *, effluent_tolerance: float = 0.0,
+def violations(plant: ResolvedPlant | Layout, figures: dict, *, effluent_tolerance: float = 0.0,
                do_tolerance_mg_L: float = 0.0) -> list[str]:
-    """Limits the day breaks by more than the tolerances, as sentences (empty: compliant)."""
+    """Limits the day breaks by more than the tolerances, as sentences (empty: compliant); a layout is
+    resolved first."""
     out = []
-    lim = layout.limits
+    plant = resolve_plant(plant)
+    lim = plant.limits
     for key, limit, text in (("nh4_mean_mg_L", lim.nh4_mean_mg_L, "effluent NH4-N daily mean"),
                              ("nh4_max_mg_L", lim.nh4_max_mg_L, "effluent NH4-N largest period mean"),
                              ("tn_mean_mg_L", lim.tn_mean_mg_L, "effluent TN daily mean")):
@@ -88,16 +91,10 @@ def violations(layout: Layout, figures: dict, *, effluent_tolerance: float = 0.0
                        f"by {100.0 * (value / limit - 1.0):.1f} %")
     for zid, margin in figures["do_margin_mg_L"].items():
         if margin < -do_tolerance_mg_L:
-            lo, hi = do_limits(layout)[zid]
+            lo, hi = do_limits(plant)[zid]
             out.append(f"zone {zid}: DO leaves its range ({lo if lo is not None else '-'}"
                        f"..{hi if hi is not None else '-'} mg/L) by {-margin:.3f} mg/L")
     return out
 
 
-def clock(hours: float) -> str:
-    """Hours from midnight as HH:MM."""
-    total = int(round(hours * 60.0))
-    return f"{total // 60:02d}:{total % 60:02d}"
-
-
-__all__ = ["DO_TOLERANCE_mg_L", "EFFLUENT_TOLERANCE", "clock", "day_figures", "do_limits", "violations"]
+__all__ = ["DO_TOLERANCE_mg_L", "EFFLUENT_TOLERANCE", "day_figures", "do_limits", "violations"]

@@ -40,7 +40,7 @@ import pyomo.environ as pyo
 
 from airtaper.errors import SolverError
 from airtaper.layout.types import Layout
-from airtaper.plant import resolve_plant
+from airtaper.plant import ResolvedPlant, resolve_plant
 from airtaper.physics.blower import (EquivalentCurve, aggregate_curve, equivalent_curve, lower_convex_hull,
                                     split_airflow)
 from airtaper.solve.highs import solve_milp
@@ -122,9 +122,11 @@ class Bill:
     cost: bool  # False: energy objective (price 1, no demand charge, no start costs)
 
     @classmethod
-    def of(cls, layout: Layout, objective: str) -> "Bill":
-        n = layout.horizon.n_periods
-        air = resolve_plant(layout).air
+    def of(cls, plant: ResolvedPlant | Layout, objective: str) -> "Bill":
+        """The prices of ``objective`` under the plant's tariff (a layout is resolved first)."""
+        plant = resolve_plant(plant)
+        n = plant.n_periods
+        air = plant.air
         if objective == "cost" and air.tariff is not None:
             return cls(np.asarray(air.tariff.price_per_kWh, dtype=float), air.demand_rate_per_kW_day, True, True)
         return cls(np.ones(n), 0.0, False, False)
@@ -155,15 +157,16 @@ class Dispatch:
     def total_power_kW(self) -> np.ndarray:
         return self.power_kW.sum(axis=0)
 
-    def bill(self, layout: Layout) -> dict:
-        """Energy, energy cost, demand charge, start costs, peak kW and its period (0-based)."""
+    def bill(self, plant: ResolvedPlant | Layout) -> dict:
+        """Energy, energy cost, demand charge, start costs, peak kW and its period (0-based), under the plant's
+        tariff (a layout is resolved first)."""
         p = self.total_power_kW
         energy = float(p.sum() * self.period_h)
         starts = self.starts.sum(axis=1)
         out = {"energy_kWh_per_day": energy, "peak_kW": float(p.max()), "peak_period": int(np.argmax(p)),
                "starts": {m.id: int(s) for m, s in zip(self.machines, starts)},
                "running_h": {m.id: float(r.sum() * self.period_h) for m, r in zip(self.machines, self.running)}}
-        air = resolve_plant(layout).air
+        air = resolve_plant(plant).air
         if air.tariff is None:
             out.update(energy_cost=None, demand_charge=None, start_costs=None, cost_per_day=None)
             return out

@@ -17,14 +17,16 @@
 6. the tables and the summary (:mod:`airtaper.optimize.results`) for
    :func:`airtaper.report.study_files.write_study_outputs`.
 
-:class:`DiurnalOptimisation` keeps the built model so that limits can be moved and
-the problem re-solved warm (tests, sensitivity studies).
+:class:`DiurnalOptimisation` keeps the built model and its
+:class:`~airtaper.optimize.problem.Problem` (what the optimiser keeps beside the Pyomo
+block: settings, blowers, swing states) so that limits can be moved and the problem
+re-solved warm (tests, sensitivity studies).
 """
 
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -33,17 +35,20 @@ import pyomo.environ as pyo
 from airtaper.errors import EXIT_FAILURE, EXIT_INFEASIBLE, EXIT_OK, EXIT_UNVERIFIED, ModelError
 from airtaper.layout.types import Layout
 from airtaper.model.train import build_cyclic_model
+from airtaper.plant import ResolvedPlant, resolve_plant
 from airtaper.optimize import elastic as _elastic
-from airtaper.optimize.backoff import hold_do
+from airtaper.optimize.backoff import hold_do, refined_steps_per_period
 from airtaper.optimize.baseline import Baseline, complying_baseline, run_baseline
 from airtaper.optimize.compliance import day_figures
-from airtaper.optimize.attempts import BASE_OPTIONS, LADDER, Rung, start_airflow, start_from_day
+from airtaper.optimize.attempts import (BASE_OPTIONS, LADDER, SOLVE_BUDGET_S, Rung, SolveBudget, start_airflow,
+                                       start_from_day)
 from airtaper.optimize.marginal import marginal_costs
-from airtaper.optimize.problem import (attach_problem, fix_slacks, max_power_line_kW, point_weights, relax_staging,
-                                      settings_for)
+from airtaper.optimize.problem import (Problem, attach_problem, fix_slacks, max_power_line_kW, point_weights,
+                                      relax_staging, settings_for)
 from airtaper.optimize.prescreen import outside_tested_range, prescreen
 from airtaper.optimize.progress import Progress, Silent
-from airtaper.optimize.results import EffluentFigures, Limits, Smoothing, StudySummary, empty_tables, study_tables
+from airtaper.optimize.results import (BaselineSummary, DispatchSummary, EffluentFigures, Limits, Smoothing,
+                                      SolverSummary, StudySummary, VerificationSummary, empty_tables, study_tables)
 from airtaper.optimize.gradient_scaling import apply_scaling
 from airtaper.optimize.staging import (bill_day_by_dispatch, dispatch_summary, dispatch_table, feasibility_check,
                                        final_dispatch, redispatch, run_staging)
@@ -58,7 +63,7 @@ INFEASIBLE_STOP = 1
 
 @dataclass
 class StudyOptions:
-    """Choices of ``airtaper optimize`` (None: the layout's value)."""
+    """Choices of ``airtaper optimize`` (None: the plant's value)."""
 
     objective: str | None = None  # "energy" or "cost"
     smoothing_weight: float | None = None
@@ -74,6 +79,7 @@ class StudyOptions:
     staging: bool = True  # False: blowers as one machine, swing zones relaxed (the comparison in benchmarks/)
     ipopt_options: dict = field(default_factory=dict)
     ladder: tuple[Rung, ...] = LADDER
+    solve_budget_s: float = SOLVE_BUDGET_S  # CPU seconds of all Ipopt solves (optimize/attempts.py)
 
 
 @dataclass
@@ -87,29 +93,30 @@ class StudyResult:
     blowers: pd.DataFrame | None = None  # blowers.csv: one row per period and blower (staged layouts)
 
 
-def model_steps_per_period(layout: Layout, options: StudyOptions) -> int:
+def model_steps_per_period(plant: ResolvedPlant | Layout, options: StudyOptions) -> int:
     """Integration steps per period of the optimisation model.
 
     The layout's ``steps_per_period`` counts time points per period (backward Euler:
     one point per step). The model's default 2-point Radau IIA scheme (order 3) puts
     two points in each step, so the optimiser takes half as many steps, keeping the
     number of points (and the problem size) while raising the order from 1 to 3; the
-    verification against the independent simulator checks the accuracy.
+    verification against the independent simulator checks the accuracy. Reads ``plant.horizon`` only
+    (a layout's is the same).
     """
     if options.steps_per_period is not None:
         return int(options.steps_per_period)
-    spp = layout.horizon.steps_per_period
+    spp = plant.horizon.steps_per_period
     scheme = options.scheme or "radau2"
     points = int(scheme[-1]) if scheme.startswith("radau") else 1
     return max(1, spp // points)
 
 
 class DiurnalOptimisation:
-    """A built optimisation of one layout; see the module notes."""
+    """A built optimisation of one plant (a layout is resolved first); see the module notes."""
 
-    def __init__(self, layout: Layout, options: StudyOptions | None = None, progress: Progress | None = None,
-                 baseline: Baseline | None = None):
-        self.layout = layout
+    def __init__(self, plant: ResolvedPlant | Layout, options: StudyOptions | None = None,
+                 progress: Progress | None = None, baseline: Baseline | None = None):
+        self.plant = resolve_plant(plant)
         self.options = options or StudyOptions()
         self.progress = progress or Silent()
         self.timings: dict[str, float] = {}
@@ -117,6 +124,8 @@ class DiurnalOptimisation:
         self.result = None
         self.baseline = baseline
         self.m = None
+        self.problem: Problem | None = None  # set by build()
+        self.budget = SolveBudget(self.options.solve_budget_s)
 
     # --- setup ---------------------------------------------------------------------------
     def run_baseline(self) -> Baseline:
@@ -127,9 +136,15 @@ class DiurnalOptimisation:
             self.timings["baseline_s"] = time.perf_counter() - t
         return self.baseline
 
+    @property
+    def layout(self) -> Layout:
+        """The plant's layout, for the modules that still take one (the baseline, the verification, the DO
+        back-off and the design: they move onto the resolved plant with their owners' changes)."""
+        return self.plant.layout
+
     def reference(self) -> float:
         base = self.run_baseline()
-        objective = self.options.objective or self.layout.operation.objective
+        objective = self.options.objective or self.plant.operation.objective
         value = base.cost_per_day if objective == "cost" else base.energy_kWh_per_day
         return float(value) if value and value > 0 else 1.0
 
@@ -142,24 +157,25 @@ class DiurnalOptimisation:
         base = self.run_baseline()
         self.progress.phase("building the cyclic model")
         t = time.perf_counter()
-        kwargs = {"steps_per_period": model_steps_per_period(self.layout, self.options)}
+        kwargs = {"steps_per_period": model_steps_per_period(self.plant, self.options)}
         if self.options.scheme is not None:
             kwargs["scheme"] = self.options.scheme
-        m = build_cyclic_model(self.layout, diffuser_count=diffuser_count, **kwargs)
+        m = build_cyclic_model(self.plant, diffuser_count=diffuser_count, **kwargs)
         self.timings["build_s"] = time.perf_counter() - t
         t = time.perf_counter()
         start_from_day(m, base.day, start_airflow(m, base.day))
-        settings = settings_for(self.layout, self.reference(), objective=self.options.objective,
+        settings = settings_for(self.plant, self.reference(), objective=self.options.objective,
                                 smoothing_weight=self.options.smoothing_weight,
                                 mixing_airflow_min_Sm3_h_m2=self.options.mixing_airflow_min_Sm3_h_m2,
                                 staging=self.options.staging)
-        attach_problem(m, settings)
+        problem = attach_problem(m, settings)
         self.timings["initialise_s"] = time.perf_counter() - t
         self.progress.phase("converting the model and building derivatives")
         t = time.perf_counter()
         self.scaling = apply_scaling(m)
         self.timings["conversion_derivatives_s"] = time.perf_counter() - t
         self.m = m
+        self.problem = problem
 
     # --- starts --------------------------------------------------------------------------
     def _restart(self, rung: Rung) -> None:
@@ -185,14 +201,14 @@ class DiurnalOptimisation:
         for z in b.ZONES:
             for p in m.PERIODS:
                 m.airflow_Sm3_h[z, p].unfix()
-        for z, on in (b.swing_states or {}).items():  # a swing zone switched off gets no air
+        for z, on in (self.problem.swing_states or {}).items():  # a swing zone switched off gets no air
             for p in m.PERIODS:
                 if not on[p - 1]:
                     m.airflow_Sm3_h[z, p].fix(0.0)
         for p in m.PERIODS:
             b.header_gauge_kPa[p].set_value(max(pyo.value(b.zone_pressure_gauge_kPa[z, p]) for z in b.ZONES)
-                                      + self.layout.header.min_valve_loss_kPa)
-            if b.staged:
+                                      + self.plant.air.header.min_valve_loss_kPa)
+            if self.problem.staged:
                 b.power_kW[p].set_value(max_power_line_kW(b, p))
         if b.component("peak_kW") is not None and not b.peak_kW.fixed:
             b.peak_kW.set_value(max(pyo.value(b.power_kW[p]) for p in m.PERIODS))
@@ -201,6 +217,7 @@ class DiurnalOptimisation:
     def _ipopt(self, rung: Rung, warm_start=False):
         opts = dict(BASE_OPTIONS)
         opts.update(rung.options)
+        opts.update(self.budget.options())
         opts.update(self.options.ipopt_options)
         if not rung.user_scaling:
             opts["nlp_scaling_method"] = "gradient-based"
@@ -238,7 +255,7 @@ class DiurnalOptimisation:
             # Ipopt converged to a point of local infeasibility: the limits most likely
             # conflict, and the elastic solve will say which (no more rungs).
             infeasible += r.status.value == "infeasible"
-            if infeasible >= INFEASIBLE_STOP:
+            if infeasible >= INFEASIBLE_STOP or self.budget.exhausted:
                 break
         self.result = None
         return None
@@ -249,6 +266,13 @@ class DiurnalOptimisation:
         if not r.ok:
             return self.solve()
         self.result = r
+        return r
+
+    def resolve_once(self, rung: Rung):
+        """One warm solve from the current point with ``rung`` (no ladder); the result (kept when it solved)."""
+        r = self._ipopt(rung, warm_start=True)
+        if r.ok:
+            self.result = r
         return r
 
     def elastic(self):
@@ -298,11 +322,11 @@ class DiurnalOptimisation:
         steps = list(m.STEPS)
         nh4 = [pyo.value(m.effluent_nh4_mg_L[t]) for t in steps]
         tn = [pyo.value(m.effluent_tn_mg_L[t]) for t in steps]
-        q = [b.effluent_weights[m.period_of_step[t]] for t in steps]
+        q = [self.problem.effluent_weights[m.period_of_step[t]] for t in steps]
         per = [m.period_of_step[t] - 1 for t in steps]
         do = {z: [pyo.value(m.conc[t, z, "SO"]) for t in steps] for z in m.ZONES}
         w = point_weights(m)
-        return day_figures(self.layout, nh4, tn, q, per, do, weights=[w[t] for t in steps])
+        return day_figures(self.plant, nh4, tn, q, per, do, weights=[w[t] for t in steps])
 
 
 def _saving(base, value):
@@ -311,13 +335,15 @@ def _saving(base, value):
     return 100.0 * (base - value) / base
 
 
-def saving_figures(base: Baseline, complying: Baseline | None, energy: float, cost, status: str) -> dict:
+def saving_figures(base: Baseline, complying: Baseline | None, energy: float, cost, status: str,
+                   complying_dispatch: DispatchSummary | None = None) -> dict:
     """The summary's saving entries, and notes for the console.
 
     No saving for a run whose limits cannot all be met (or that failed). When the
     uniform-DO baseline breaks a limit the saving against it is kept, marked as such
     (``baseline_compliant`` False), beside the saving against the lowest uniform
-    setpoint that complies (``complying_baseline``), when one was found.
+    setpoint that complies (``complying_baseline``, with ``complying_dispatch``: its day billed
+    by the dispatch rule), when one was found.
     """
     out = {"saving_percent": None, "cost_saving_percent": None, "baseline_compliant": not base.violations,
            "complying_baseline": None, "notes": []}
@@ -331,11 +357,13 @@ def saving_figures(base: Baseline, complying: Baseline | None, energy: float, co
         out["notes"].append(f"the saving of {out['saving_percent']:.1f} % is against a uniform DO baseline "
                             f"({sp} mg/L) that breaks a limit")
         if complying is not None:
-            c = complying.summary()
-            c["saving_percent"] = _saving(complying.energy_kWh_per_day, energy)
-            c["cost_saving_percent"] = _saving(complying.cost_per_day, cost)
+            c = BaselineSummary.from_dict(complying.summary())
+            c.saving_percent = _saving(complying.energy_kWh_per_day, energy)
+            c.cost_saving_percent = _saving(complying.cost_per_day, cost)
+            if complying_dispatch is not None:
+                c.dispatch = complying_dispatch
             out["complying_baseline"] = c
-            out["notes"].append(f"saving {c['saving_percent']:.1f} % against the lowest uniform DO setpoint that "
+            out["notes"].append(f"saving {c.saving_percent:.1f} % against the lowest uniform DO setpoint that "
                                 f"meets the limits ({complying.setpoint_mg_L:.2f} mg/L, "
                                 f"{complying.energy_kWh_per_day:,.1f} kWh/d)")
         else:
@@ -343,10 +371,18 @@ def saving_figures(base: Baseline, complying: Baseline | None, energy: float, co
     return out
 
 
-def run_optimization(layout: Layout, options: StudyOptions | None = None, progress: Progress | None = None
-                     ) -> StudyResult:
-    """The whole study (module notes); never raises for an infeasible or failed solve."""
+def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None = None,
+                     progress: Progress | None = None, baseline: Baseline | None = None) -> StudyResult:
+    """The whole study of a plant (module notes; a layout is resolved first); never raises for an infeasible or
+    failed solve.
+
+    ``baseline``: the uniform-DO baseline when it is already simulated (the same options).
+    """
     t0 = time.perf_counter()
+    plant = resolve_plant(plant)
+    # the modules that still take a Layout (pre-screen, baseline, verification: they move onto the plant
+    # with their owners' changes) get the plant's own
+    layout = plant.layout
     opts = options or StudyOptions()
     prog = progress or Silent()
     screen = None
@@ -354,8 +390,8 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         prog.phase("pre-screen: equipment bounds and every grid at full air")
         screen = prescreen(layout)
         if not screen["feasible"]:
-            return _screened_out(layout, screen, time.perf_counter() - t0)
-    study = DiurnalOptimisation(layout, opts, prog)
+            return _screened_out(plant, screen, time.perf_counter() - t0)
+    study = DiurnalOptimisation(plant, opts, prog, baseline=baseline)
     base = study.run_baseline()
     study.build()
     result = study.solve()
@@ -363,17 +399,27 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
     infeasibility = []
     status = "optimal"
     staging = None
-    objective = study.m.opt.settings.objective
-    if result is not None and study.m.opt.staged:
+    problem = study.problem
+    objective = problem.objective
+    if result is not None and problem.staged:
         staging = run_staging(study, result)
         result = staging.result
         if staging.findings:
             status = "infeasible"
             infeasibility = staging.findings
             messages.extend(f["message"] for f in staging.findings)
-    if result is None:
+    budget_ended = False
+    if result is None and study.budget.exhausted:
+        status = "failed"
+        budget_ended = True
+        messages.append(study.budget.message(study.attempts))
+    elif result is None:
         r, infeasibility = study.elastic()
-        if not r.ok:
+        if not r.ok and study.budget.exhausted:
+            status = "failed"
+            budget_ended = True
+            messages.append(study.budget.message(study.attempts))
+        elif not r.ok:
             status = "failed"
             messages.append(f"the solver failed on every attempt ({r.message})")
         elif infeasibility:
@@ -395,11 +441,13 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         t = time.perf_counter()
 
         def verify():
-            return verify_day(layout, study.schedule_by_zone(), study.figures(), study.m)
+            return verify_day(layout, study.schedule_by_zone(), study.figures(), study.m, problem.swing_states)
 
         if status == "optimal" and opts.hold_do:
             staged = staging is not None and staging.dispatch is not None and not staging.findings
-            hold = hold_do(study, verify, prog, relax=(lambda: relax_staging(study.m.opt)) if staged else None)
+            coarse = refined_steps_per_period(plant.horizon.period_h, model_steps_per_period(layout, opts))
+            hold = hold_do(study, verify, prog, relax=(lambda: relax_staging(problem)) if staged else None,
+                           coarse=coarse is not None)
             verification = hold["verification"]
             result = study.result
             if hold["resolve_failed"]:
@@ -407,49 +455,75 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         else:
             verification = verify()[0]
         study.timings["verification_s"] = time.perf_counter() - t
+        fine = None
+        if hold is not None and hold["refine"]:  # model steps too long for the DO within a period (backoff.py)
+            period_h, coarse = layout.horizon.period_h, model_steps_per_period(layout, opts)
+            finer = refined_steps_per_period(period_h, coarse)
+            step = period_h / coarse
+            prog.phase(f"the re-simulated schedule broke a limit on {step:g}-hour model steps: "
+                       f"solving again on {period_h / finer:g}-hour steps")
+            fine = run_optimization(plant, replace(opts, steps_per_period=finer, prescreen=False,
+                                                    solve_budget_s=study.budget.remaining()), prog, base)
+            if fine.summary["status"] == "failed":  # no answer there: keep the coarse result, and say why
+                messages.append(f"solving again on {period_h / finer:g}-hour model steps gave no schedule: "
+                                + "; ".join(fine.summary["messages"][:1]))
+                fine = None
+        if fine is not None:
+            if screen is not None:  # the pre-screen ran once, for both
+                from airtaper.optimize.results import jsonable
+
+                fine.summary["prescreen"] = jsonable(screen)
+                if screen["note"]:
+                    fine.summary["messages"].insert(0, f"pre-screen: {screen['note']}")
+            fine.summary["messages"].insert(0, f"solved on {period_h / finer:g}-hour model steps: on "
+                                               f"{step:g}-hour steps the re-simulated schedule broke a limit ("
+                                               + "; ".join(verification["violations"]) + ")")
+            if fine.summary.get("do_hold") is not None:
+                fine.summary["do_hold"]["coarse_steps_per_period"] = coarse
+                fine.summary["do_hold"]["coarse_seconds"] = time.perf_counter() - t0
+            return fine
         if not verification["verified"]:
             messages.append("WARNING: the re-simulated schedule breaks a limit: " + "; ".join(verification["violations"]))
-    blowers_table, dispatch = None, None
+    blowers_table, dispatch, base_dispatch, complying_dispatch = None, None, None, None
     redispatched = False
     if staging is not None and staging.dispatch is not None and not staging.findings and result is not None \
             and status == "optimal":
         # the last re-solves moved the airflow after the machines were chosen: the cheapest machines for it
-        staging.dispatch, redispatched = redispatch(study.m, staging.dispatch, layout)
+        staging.dispatch, redispatched = redispatch(problem, staging.dispatch)
     schedule, header, timeseries = study_tables(study)
     schedule, header = base.add_columns(schedule, header)
     figs = study.figures()
     energy = study.energy_kWh_per_day()
     power = study.power_by_period()
-    cost = study.m.train_data.plant.air.cost(power)
+    cost = plant.air.cost(power)
     if staging is not None and staging.dispatch is not None:
-        dp = staging.dispatch if staging.findings else final_dispatch(study.m, staging.dispatch)
-        blowers_table = dispatch_table(layout, dp)
-        dispatch = dispatch_summary(layout, dp)
-        energy = dispatch["energy_kWh_per_day"]
-        cost = dispatch["cost_per_day"]
-        dispatch["rounds"] = staging.rounds
-        dispatch["converged"] = staging.converged
-        dispatch["stopped"] = staging.reason
-        dispatch["redispatched_at_final_schedule"] = redispatched
-        dispatch["swing_zones"] = {z: {"aerated_periods": [int(i) + 1 for i in np.flatnonzero(on)],
-                                       "switches": int(np.sum(on != np.roll(on, 1)))}
-                                   for z, on in (staging.swing_states or {}).items()}
+        dp = staging.dispatch if staging.findings else final_dispatch(problem, staging.dispatch)
+        blowers_table = dispatch_table(plant, dp)
+        dispatch = DispatchSummary.from_dict(dispatch_summary(plant, dp))
+        energy = dispatch.energy_kWh_per_day
+        cost = dispatch.cost_per_day
+        dispatch.rounds = staging.rounds
+        dispatch.converged = staging.converged
+        dispatch.stopped = staging.reason
+        dispatch.redispatched_at_final_schedule = redispatched
+        dispatch.swing_zones = {z: {"aerated_periods": [int(i) + 1 for i in np.flatnonzero(on)],
+                                    "switches": int(np.sum(on != np.roll(on, 1)))}
+                                for z, on in (staging.swing_states or {}).items()}
         if status == "optimal" and result is not None:
-            breaches = feasibility_check(study.m, dp)
-            dispatch["feasibility_breaches"] = breaches
+            breaches = feasibility_check(problem, dp)
+            dispatch.feasibility_breaches = breaches
             if breaches:
                 status = "unverified"
                 messages.append("WARNING: the schedule breaks a machine or grid range: " + "; ".join(breaches))
-        bd = bill_day_by_dispatch(layout, base.day, objective)
+        bd = bill_day_by_dispatch(plant, base.day, objective)
         if bd is not None:  # the baseline billed by the same dispatch rule: like with like
             header["baseline_power_kW"] = bd.total_power_kW
-            base_dispatch = dispatch_summary(layout, bd)
-            base_dispatch["shortfall"] = [f["message"] for f in bd.findings]
+            base_dispatch = DispatchSummary.from_dict(dispatch_summary(plant, bd))
+            base_dispatch.shortfall = [f["message"] for f in bd.findings]
             messages.extend(f"baseline: {f['message']}" for f in bd.findings)
-            dispatch["baseline"] = base_dispatch
     marginal = []
     if opts.marginal and status == "optimal" and result is not None and result.ok:
-        marginal = marginal_costs(study.m, result, energy_kWh_per_day=energy, cost_per_day=cost)
+        marginal = marginal_costs(problem, result, energy_kWh_per_day=energy, cost_per_day=cost)
     for w in base.violations:
         messages.append(f"baseline: {w}")
     for short in base.day.setpoint_shortfalls:
@@ -461,36 +535,32 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         prog.phase("the uniform-DO baseline breaks a limit: finding the lowest uniform setpoint that complies")
         t = time.perf_counter()
         complying = complying_baseline(layout, base)
-        if complying is not None and dispatch is not None and "baseline" in dispatch:
+        if complying is not None and base_dispatch is not None:
             # billed by the same dispatch rule as the baseline and the optimum
-            cd = bill_day_by_dispatch(layout, complying.day, objective)
+            cd = bill_day_by_dispatch(plant, complying.day, objective)
             if cd is not None:
-                dispatch["complying_baseline"] = dispatch_summary(layout, cd)
+                complying_dispatch = DispatchSummary.from_dict(dispatch_summary(plant, cd))
         study.timings["complying_baseline_s"] = time.perf_counter() - t
-    savings = saving_figures(base, complying, energy, cost, status)
-    if dispatch and "complying_baseline" in dispatch:
-        cd = dispatch.pop("complying_baseline")
-        if savings["complying_baseline"] is not None:
-            savings["complying_baseline"]["dispatch"] = cd
+    savings = saving_figures(base, complying, energy, cost, status, complying_dispatch)
     messages.extend(savings.pop("notes"))
-    periods = np.arange(layout.horizon.n_periods)
+    periods = np.arange(plant.n_periods)
     untested = outside_tested_range(layout, study.schedule_by_zone(), periods,
                                     "optimum" if status in ("optimal", "unverified") else "elastic solution") + \
-        outside_tested_range(layout, _node_airflow(base.day), base.day.node_period, "baseline")
+        outside_tested_range(layout, _node_airflow(plant, base.day), base.day.node_period, "baseline")
     messages.extend(u["message"] for u in untested)
     exit_code = {"optimal": EXIT_OK, "infeasible": EXIT_INFEASIBLE, "unverified": EXIT_UNVERIFIED,
-                 "failed": EXIT_FAILURE}[status]
+                 "failed": EXIT_INFEASIBLE if budget_ended else EXIT_FAILURE}[status]
     study.timings["total_s"] = time.perf_counter() - t0
     summary = StudySummary(
         status=status,
-        plant=layout.plant.name,
-        layout=layout.path,
-        objective=study.m.opt.settings.objective,
-        currency=layout.tariff.currency if layout.tariff else "",
+        plant=plant.name,
+        layout=plant.path,
+        objective=objective,
+        currency=plant.tariff.currency if plant.tariff else "",
         energy_kWh_per_day=energy,
         cost_per_day=cost,
-        baseline=dict(base.summary(), **({"dispatch": dispatch.pop("baseline")}
-                                         if dispatch and "baseline" in dispatch else {})),
+        baseline=BaselineSummary.from_dict(
+            dict(base.summary(), **({} if base_dispatch is None else {"dispatch": base_dispatch}))),
         **savings,
         dispatch=dispatch,
         effluent=EffluentFigures.of(figs),
@@ -500,48 +570,49 @@ def run_optimization(layout: Layout, options: StudyOptions | None = None, progre
         do_margin_mg_L=figs["do_margin_mg_L"] if verification is None else verification["do_margin_mg_L"],
         optimiser_min_do_margin_mg_L=figs["min_do_margin_mg_L"],
         do_hold=None if hold is None else {k: v for k, v in hold.items() if k != "verification"},
-        limits=Limits.of_layout(layout),
-        verification=verification if verification is not None else {"verified": None, "skipped": True},
+        limits=Limits.of_plant(plant),
+        verification=VerificationSummary.from_dict(verification) if verification is not None
+        else VerificationSummary(verified=None, skipped=True),
         verified=None if verification is None else verification["verified"],
         marginal_costs=marginal,
         infeasibility=infeasibility,
         prescreen=screen,
         outside_tested_range=untested,
-        smoothing=Smoothing(study.m.opt.settings.smoothing_weight, float(pyo.value(study.m.opt.smoothing))),
-        solver={
-            "status": None if result is None else result.status.value,
-            "message": None if result is None else result.message,
-            "iterations": int(study.timings.get("iterations", 0)),
-            "attempts": study.attempts,
-            "variables": None if result is None else result.n_variables,
-            "constraints": None if result is None else result.n_constraints,
-            "scaling": study.scaling,
-            "timings": {k: v for k, v in study.timings.items() if k != "iterations"},
-        },
+        smoothing=Smoothing(problem.settings.smoothing_weight, float(pyo.value(study.m.opt.smoothing))),
+        solver=SolverSummary(
+            status=None if result is None else result.status.value,
+            message=None if result is None else result.message,
+            iterations=int(study.timings.get("iterations", 0)),
+            attempts=study.attempts,
+            variables=None if result is None else result.n_variables,
+            constraints=None if result is None else result.n_constraints,
+            scaling=study.scaling,
+            timings={k: v for k, v in study.timings.items() if k != "iterations"},
+        ),
         messages=messages,
     )
     return StudyResult(schedule=schedule, header=header, timeseries=timeseries, summary=summary.to_dict(),
                        exit_code=exit_code, study=study, blowers=blowers_table)
 
 
-def _node_airflow(day) -> dict:
+def _node_airflow(plant: ResolvedPlant, day) -> dict:
     """Zone id -> airflow at the simulated day's quadrature nodes."""
-    return {z.id: day.node_airflow[:, i] for i, z in enumerate(day.layout.zones)}
+    return {z.id: day.node_airflow[:, i] for i, z in enumerate(plant.zones)}
 
 
-def _screened_out(layout: Layout, screen: dict, seconds: float) -> StudyResult:
+def _screened_out(plant: ResolvedPlant, screen: dict, seconds: float) -> StudyResult:
     """The result of a run the pre-screen stops: no schedule, the findings, exit code 3."""
     schedule, header, timeseries = empty_tables()
     summary = StudySummary(
         status="infeasible",
-        plant=layout.plant.name,
-        layout=layout.path,
-        objective=layout.operation.objective,
-        currency=layout.tariff.currency if layout.tariff else "",
-        limits=Limits.of_layout(layout),
+        plant=plant.name,
+        layout=plant.path,
+        objective=plant.operation.objective,
+        currency=plant.tariff.currency if plant.tariff else "",
+        limits=Limits.of_plant(plant),
         infeasibility=screen["findings"],
         prescreen=screen,
-        solver={"status": None, "timings": {"prescreen_s": screen["seconds"], "total_s": seconds}},
+        solver=SolverSummary(status=None, timings={"prescreen_s": screen["seconds"], "total_s": seconds}),
         messages=["the pre-screen shows the limits cannot all be met (no optimisation was run): "
                   + f["message"] for f in screen["findings"]] + ["no saving is given: the limits cannot be met"],
     )

@@ -34,7 +34,7 @@ from __future__ import annotations
 import pyomo.environ as pyo
 
 from airtaper import units
-from airtaper.optimize.compliance import clock
+from airtaper.units import clock
 from airtaper.optimize.problem import active_limit_groups, fix_slacks, free_slacks, point_weights
 
 #: Penalty per unit slack (fraction of the limit, or kPa) of equipment limits, in

@@ -78,10 +78,11 @@ def parameter_sensitivity(m, result, params) -> list[float]:
     return out
 
 
-def raw_derivatives(m, result) -> dict:
-    """d goal / d limit (goal units per mg/L, or per diffuser), keyed like the report entries."""
-    b = m.opt
-    ref = b.reference
+def raw_derivatives(prob, result) -> dict:
+    """d goal / d limit (goal units per mg/L, or per diffuser), keyed like the report entries, of the solved
+    :class:`~airtaper.optimize.problem.Problem`."""
+    m, b = prob.m, prob.block
+    ref = prob.reference
     out = {}
     if b.nh4_mean.active:
         out[("nh4_mean_mg_L", None)] = ref * _dual(result, b.nh4_mean)
@@ -97,13 +98,14 @@ def raw_derivatives(m, result) -> dict:
     return out
 
 
-def marginal_costs(m, result, *, energy_kWh_per_day: float, cost_per_day: float | None) -> list[dict]:
-    """Report entries (see module notes); ``energy``/``cost`` at the optimum set the mean price."""
-    b = m.opt
-    objective = b.settings.objective
+def marginal_costs(prob, result, *, energy_kWh_per_day: float, cost_per_day: float | None) -> list[dict]:
+    """Report entries (see module notes) of the solved :class:`~airtaper.optimize.problem.Problem`;
+    ``energy``/``cost`` at the optimum set the mean price."""
+    b = prob.block
+    objective = prob.objective
     price = (cost_per_day / energy_kWh_per_day) if (cost_per_day is not None and energy_kWh_per_day > 0) else None
     out = []
-    for (limit, zone), d in raw_derivatives(m, result).items():
+    for (limit, zone), d in raw_derivatives(prob, result).items():
         if limit == "diffusers":
             change = d  # one more diffuser
             per = "per extra diffuser"
@@ -125,7 +127,7 @@ def marginal_costs(m, result, *, energy_kWh_per_day: float, cost_per_day: float 
             cost = change * price if price is not None else None
             estimated = "cost_per_day" if price is not None else None
         entry = {"limit": limit, "where": where, "kWh_per_day": kwh, "cost_per_day": cost, "per": per,
-                 "estimated": estimated, "binding": abs(d) > 1e-9 * max(1.0, b.reference)}
+                 "estimated": estimated, "binding": abs(d) > 1e-9 * max(1.0, prob.reference)}
         if limit in ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L"):
             entry["limit_value_mg_L"] = pyo.value({"nh4_mean_mg_L": b.nh4_mean_limit, "nh4_max_mg_L": b.nh4_max_limit,
                                                    "tn_mean_mg_L": b.tn_mean_limit}[limit])

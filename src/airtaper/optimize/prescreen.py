@@ -3,7 +3,7 @@
 :func:`prescreen` runs before the optimisation (``airtaper optimize``) and in
 ``airtaper check``. It needs no NLP solve; it bounds what any schedule can do:
 
-Equipment (arithmetic on the layout)
+Equipment (arithmetic on the resolved plant)
     * a zone whose minimum airflow (diffusers' minimum, mixing) exceeds its maximum
       (diffusers' maximum, valve);
     * the blowers' installed capacity against the sum of the zones' minimum airflows;
@@ -48,7 +48,7 @@ import numpy as np
 from airtaper import units
 from airtaper.layout.types import Layout
 from airtaper.optimize.compliance import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE
-from airtaper.plant import resolve_plant
+from airtaper.plant import ResolvedPlant, resolve_plant
 from airtaper.simulate.aeration import zone_transfer
 from airtaper.simulate.steady import SteadyStateError
 from airtaper.simulate.summary import period_runs, span_text
@@ -60,85 +60,90 @@ from airtaper.simulate.summary import period_runs, span_text
 FULL_AIR_DAYS = 1
 
 
-def _grid_zones(layout: Layout):
-    return [z for z in layout.zones if z.has_diffusers]
+def _grid_zones(plant: ResolvedPlant):
+    """The zones with a diffuser grid (:class:`~airtaper.plant.DiffusedZone`), in train order."""
+    return list(plant.diffused)
 
 
 def _finding(limit, zone, spans, message) -> dict:
     return {"limit": limit, "zone": zone, "spans": spans, "message": message, "source": "pre-screen"}
 
 
-def _all_day(layout: Layout, amount: float, unit: str) -> list[dict]:
+def _all_day(amount: float, unit: str) -> list[dict]:
     return [{"start_h": 0.0, "end_h": units.HOURS_PER_DAY, "amount": float(amount), "unit": unit}]
 
 
-def equipment_findings(layout: Layout) -> list[dict]:
-    """Equipment limits no schedule can meet (module notes), as findings."""
+def equipment_findings(plant: ResolvedPlant | Layout) -> list[dict]:
+    """Equipment limits no schedule can meet (module notes), as findings; a layout is resolved first."""
+    plant = resolve_plant(plant)
     out = []
-    zones = _grid_zones(layout)
+    zones = _grid_zones(plant)
     if not zones:
         return out
-    ranges = {z.id: layout.zone_airflow_range_Sm3_h(z) for z in zones}
+    ranges = {z.id: z.airflow_range_Sm3_h for z in zones}
     for z in zones:
         lo, hi = ranges[z.id]
         if lo > hi * (1.0 + 1e-9):
-            out.append(_finding("zone_range", z.id, _all_day(layout, lo / hi - 1.0, "fraction"),
+            out.append(_finding("zone_range", z.id, _all_day(lo / hi - 1.0, "fraction"),
                                 f"zone {z.id}: its minimum airflow ({lo:,.0f} Sm3/h, diffusers' minimum or mixing) "
                                 f"exceeds its maximum ({hi:,.0f} Sm3/h, diffusers or valve) by "
                                 f"{100.0 * (lo / hi - 1.0):.0f} %"))
-    if not layout.blowers:
+    if not plant.blowers:
         return out
-    air = resolve_plant(layout).air
+    air = plant.air
     lo_total = sum(r[0] for r in ranges.values())
     hi_total = sum(r[1] for r in ranges.values())
     cap, turndown = air.blower_capacity_Sm3_h, air.blower_turndown_Sm3_h
     if lo_total > cap * (1.0 + 1e-9):
-        out.append(_finding("blower_max", None, _all_day(layout, lo_total / cap - 1.0, "fraction"),
+        out.append(_finding("blower_max", None, _all_day(lo_total / cap - 1.0, "fraction"),
                             f"the blowers ({cap:,.0f} Sm3/h installed) cannot supply even the zones' minimum "
                             f"airflows ({lo_total:,.0f} Sm3/h): {100.0 * (lo_total / cap - 1.0):.0f} % short"))
     if turndown > hi_total * (1.0 + 1e-9):
-        out.append(_finding("blower_min", None, _all_day(layout, turndown / hi_total - 1.0, "fraction"),
+        out.append(_finding("blower_min", None, _all_day(turndown / hi_total - 1.0, "fraction"),
                             f"the smallest blower's minimum ({turndown:,.0f} Sm3/h) exceeds what the grids take at "
                             f"their maximum ({hi_total:,.0f} Sm3/h)"))
     need = max(float(air.zone_required_pressure_gauge_kPa(z, max(ranges[z.id][0], 1e-9))) for z in zones)
-    need = float(air.discharge_gauge_kPa(need + layout.header.min_valve_loss_kPa, lo_total))
+    need = float(air.discharge_gauge_kPa(need + air.header.min_valve_loss_kPa, lo_total))
     if need > air.blower_pressure_max_kPa + 1e-9:
         short = need - air.blower_pressure_max_kPa
-        out.append(_finding("pressure_max", None, _all_day(layout, short, "kPa"),
+        out.append(_finding("pressure_max", None, _all_day(short, "kPa"),
                             f"the blowers reach {air.blower_pressure_max_kPa:g} kPa gauge, but the zones need "
                             f"{need:.1f} kPa even at their minimum airflows ({short:.1f} kPa short)"))
     return out
 
 
-def full_air_findings(layout: Layout, day) -> list[dict]:
-    """Process limits the full-air day (``day``, a SimDay) breaks (module notes), as findings."""
+def full_air_findings(plant: ResolvedPlant | Layout, day) -> list[dict]:
+    """Process limits the full-air day (``day``, a SimDay) breaks (module notes), as findings; a layout is
+    resolved first."""
+    plant = resolve_plant(plant)
     out = []
-    period_h = layout.horizon.period_h
-    n = layout.horizon.n_periods
+    period_h = plant.period_h
+    n = plant.n_periods
     lows = day.do_min_by_period()
-    for z in _grid_zones(layout):
+    for dz in _grid_zones(plant):
+        z = dz.zone
         if z.kind != "aerated" or z.do_min_mg_L is None:
             continue
         low = lows[z.id]
         bad = [k for k in range(n) if low[k] < z.do_min_mg_L - DO_TOLERANCE_mg_L]
         if not bad:
             continue
-        _, hi = layout.zone_airflow_range_Sm3_h(z)
+        _, hi = dz.airflow_range_Sm3_h
         spans, texts = [], []
         for r in period_runs(bad, n):
             short = float(max(z.do_min_mg_L - low[k] for k in r))
-            oxygen = max(_oxygen_shortfall(layout, z, hi, k, float(low[k])) for k in r)
+            oxygen = max(_oxygen_shortfall(plant, dz, hi, k, float(low[k])) for k in r)
             spans.append({"start_h": r[0] * period_h, "end_h": (r[-1] + 1) * period_h, "amount": short,
                           "unit": "mg/L", "oxygen_fraction": oxygen})
             texts.append((r, f"{short:.2f} mg/L short (at least {100.0 * oxygen:.0f} % more oxygen)"))
         out.append(_finding("do_min", z.id, spans,
                             f"zone {z.id} cannot hold its DO minimum of {z.do_min_mg_L:g} mg/L even with its grid at "
                             f"its maximum airflow ({hi:,.0f} Sm3/h): " + span_text(texts, period_h)))
-    lim = layout.limits
+    lim = plant.limits
     f = day.figures
     if lim.nh4_mean_mg_L is not None and f["nh4_mean_mg_L"] > lim.nh4_mean_mg_L * (1.0 + EFFLUENT_TOLERANCE):
         v = f["nh4_mean_mg_L"]
-        out.append(_finding("nh4_mean", None, _all_day(layout, v - lim.nh4_mean_mg_L, "mg/L"),
+        out.append(_finding("nh4_mean", None, _all_day(v - lim.nh4_mean_mg_L, "mg/L"),
                             f"the effluent NH4-N daily mean is {v:.2f} mg/L even with every grid at its maximum "
                             f"airflow, above the limit of {lim.nh4_mean_mg_L:g} mg/L"))
     if lim.nh4_max_mg_L is not None:
@@ -157,15 +162,16 @@ def full_air_findings(layout: Layout, day) -> list[dict]:
     return out
 
 
-def _oxygen_shortfall(layout: Layout, zone, airflow_Sm3_h: float, period: int, do_low_mg_L: float) -> float:
-    """Lower bound of the extra oxygen transfer a zone needs, as a fraction (module notes)."""
-    plant = resolve_plant(layout)
-    _, sat = zone_transfer(plant, plant.zone_index(zone.id), airflow_Sm3_h, plant.temperature_C[period])
+def _oxygen_shortfall(plant: ResolvedPlant, zone, airflow_Sm3_h: float, period: int, do_low_mg_L: float) -> float:
+    """Lower bound of the extra oxygen transfer a zone (:class:`~airtaper.plant.DiffusedZone`) needs, as a
+    fraction (module notes)."""
+    _, sat = zone_transfer(plant, zone.index, airflow_Sm3_h, plant.temperature_C[period])
     c_star = float(np.asarray(sat))
-    return max(0.0, (zone.do_min_mg_L - do_low_mg_L) / max(c_star - zone.do_min_mg_L, 1e-9))
+    do_min = zone.zone.do_min_mg_L
+    return max(0.0, (do_min - do_low_mg_L) / max(c_star - do_min, 1e-9))
 
 
-def prescreen(layout: Layout, *, simulate: bool = True) -> dict:
+def prescreen(plant: ResolvedPlant | Layout, *, simulate: bool = True) -> dict:
     """Equipment and full-air findings (module notes).
 
     Returns ``{"feasible": no finding, "findings": [...], "seconds", "full_air": figures
@@ -176,26 +182,28 @@ def prescreen(layout: Layout, *, simulate: bool = True) -> dict:
     from airtaper.optimize.simday import simulate_day
 
     t0 = time.perf_counter()
-    findings = equipment_findings(layout)
+    plant = resolve_plant(plant)
+    findings = equipment_findings(plant)
     full = None
-    zones = _grid_zones(layout)
+    zones = _grid_zones(plant)
     note = None
     if simulate and zones and not any(f["limit"] == "zone_range" for f in findings):
-        schedule = {z.id: layout.zone_airflow_range_Sm3_h(z)[1] for z in zones}
+        schedule = {z.id: z.airflow_range_Sm3_h[1] for z in zones}
         try:
-            day = simulate_day(layout, schedule=schedule, max_days=FULL_AIR_DAYS)
+            day = simulate_day(plant, schedule=schedule, max_days=FULL_AIR_DAYS)
         except (SteadyStateError, RuntimeError, ArithmeticError, ValueError) as exc:
             # a screen, not a verdict: without the full-air day only the equipment bounds speak
             note = f"the full-air day could not be simulated ({exc}); only the equipment bounds were screened"
         else:
-            findings.extend(full_air_findings(layout, day))
+            findings.extend(full_air_findings(plant, day))
             full = {k: day.figures[k] for k in ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L",
                                                 "min_do_margin_mg_L")}
     return {"feasible": not findings, "findings": findings, "seconds": time.perf_counter() - t0, "full_air": full,
             "note": note}
 
 
-def outside_tested_range(layout: Layout, airflow_by_zone: dict, period_of_point, where: str) -> list[dict]:
+def outside_tested_range(plant: ResolvedPlant | Layout, airflow_by_zone: dict, period_of_point, where: str
+                         ) -> list[dict]:
     """Spans where a zone's airflow per diffuser leaves its diffuser type's tested range.
 
     ``airflow_by_zone``: zone id -> airflow at points (per period, or per simulated node)
@@ -203,17 +211,17 @@ def outside_tested_range(layout: Layout, airflow_by_zone: dict, period_of_point,
     ("optimum", "baseline", ...), for the message. The tested range is the span of the
     type's clean-water SOTE test points; outside it the SOTE curve is extrapolated.
     """
+    plant = resolve_plant(plant)
     out = []
-    period_h = layout.horizon.period_h
-    n = layout.horizon.n_periods
+    period_h = plant.period_h
+    n = plant.n_periods
     per = np.asarray(period_of_point, dtype=int)
-    for z in _grid_zones(layout):
+    for z in _grid_zones(plant):
         if z.id not in airflow_by_zone:
             continue
-        dtype = layout.diffuser_type(z.grid.type_id)
-        tested = [p.airflow_per_diffuser_Sm3_h for p in dtype.sote_points]
-        lo, hi = min(tested), max(tested)
-        q = np.asarray(airflow_by_zone[z.id], dtype=float) / z.grid.count
+        type_id = z.zone.grid.type_id
+        lo, hi = z.sote.airflow_range  # the span of the type's test points
+        q = np.asarray(airflow_by_zone[z.id], dtype=float) / z.diffusers
         for side, bad_point in (("above", q > hi * (1.0 + 1e-6)), ("below", (q < lo * (1.0 - 1e-6)) & (q > 0.0))):
             if not bad_point.any():
                 continue
@@ -224,10 +232,10 @@ def outside_tested_range(layout: Layout, airflow_by_zone: dict, period_of_point,
                 spans.append({"start_h": r[0] * period_h, "end_h": (r[-1] + 1) * period_h,
                               "airflow_per_diffuser_Sm3_h": v})
                 texts.append((r, f"{v:.1f} Sm3/h per diffuser"))
-            out.append({"zone": z.id, "diffuser_type": dtype.id, "where": where, "side": side,
+            out.append({"zone": z.id, "diffuser_type": type_id, "where": where, "side": side,
                         "tested_Sm3_h": [lo, hi], "spans": spans,
                         "message": f"{where}: zone {z.id} runs its diffusers {side} the tested range of "
-                                   f"{dtype.id} ({lo:g}-{hi:g} Sm3/h per diffuser), where the SOTE curve is "
+                                   f"{type_id} ({lo:g}-{hi:g} Sm3/h per diffuser), where the SOTE curve is "
                                    "extrapolated: " + span_text(texts, period_h)})
     return out
 

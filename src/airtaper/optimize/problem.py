@@ -31,17 +31,24 @@ Objective
 Every limit carries an elastic slack variable, fixed at 0 in a normal solve (a
 fixed variable is a constant to the solver: no cost). :mod:`airtaper.optimize.elastic`
 frees them and adds their penalty.
+
+The block holds Pyomo components only. What the optimiser keeps beside it (the settings, the
+blowers, whether they are staged, the effluent weights of the daily means, the swing zones'
+on/off states once decided) is the :class:`Problem` that :func:`attach_problem` returns and the
+optimiser passes along.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 import pyomo.environ as pyo
 
 from airtaper.errors import ModelError
 from airtaper.layout.types import Layout
+from airtaper.plant import ResolvedPlant, resolve_plant
 from airtaper.optimize.dispatch import envelope_lines, machines_of, max_lines
 from airtaper.physics.blower import blower_power_kW
 
@@ -84,7 +91,7 @@ LIMIT_GROUPS: tuple[LimitGroup, ...] = (
 
 @dataclass
 class ProblemSettings:
-    """Choices of one optimisation (defaults from the layout)."""
+    """Choices of one optimisation (defaults from the plant's [operation] and zones)."""
 
     objective: str  # "energy" or "cost"
     smoothing_weight: float
@@ -93,22 +100,51 @@ class ProblemSettings:
     staging: bool = True  # False: the blowers as one machine at the aggregate efficiency, swing zones relaxed
 
 
-def settings_for(layout: Layout, reference: float, *, objective: str | None = None,
+def settings_for(plant: ResolvedPlant | Layout, reference: float, *, objective: str | None = None,
                  smoothing_weight: float | None = None, mixing_airflow_min_Sm3_h_m2: float | None = None,
                  staging: bool = True) -> ProblemSettings:
-    """Settings from the layout's [operation], with optional overrides."""
-    obj = objective or layout.operation.objective
-    if obj == "cost" and layout.tariff is None:
+    """Settings from the plant's [operation], with optional overrides (a layout is resolved first)."""
+    plant = resolve_plant(plant)
+    obj = objective or plant.operation.objective
+    if obj == "cost" and plant.tariff is None:
         raise ModelError("a cost objective needs a tariff in the layout")
-    w = layout.operation.smoothing_weight if smoothing_weight is None else float(smoothing_weight)
+    w = plant.operation.smoothing_weight if smoothing_weight is None else float(smoothing_weight)
     mix = {}
-    for z in layout.zones:
+    for z in plant.zones:
         if z.aerated:
             mix[z.id] = z.mixing_airflow_min_Sm3_h_m2 if mixing_airflow_min_Sm3_h_m2 is None \
                 else float(mixing_airflow_min_Sm3_h_m2)
     if not reference > 0:
         raise ModelError(f"objective reference must be positive, got {reference!r}")
     return ProblemSettings(obj, w, float(reference), mix, bool(staging))
+
+
+@dataclass
+class Problem:
+    """One optimisation problem: the model, whose block ``m.opt`` holds its Pyomo components, and what
+    the optimiser keeps beside it (module notes)."""
+
+    m: Any  # the cyclic model (airtaper.model.train.build_cyclic_model) with the block m.opt
+    settings: ProblemSettings
+    machines: tuple  # the plant's blowers (airtaper.optimize.dispatch.machines_of)
+    staged: bool  # blowers staged (power lines of the running machines): some in service and settings.staging
+    effluent_weights: dict  # period -> effluent flow, m3/d: the weights of the daily means (effluent_weights)
+    swing_states: dict | None = None  # swing zone -> (n_periods,) bool once decided; None: relaxed
+
+    @property
+    def block(self):
+        """The Pyomo block ``m.opt``."""
+        return self.m.opt
+
+    @property
+    def reference(self) -> float:
+        """The objective's normaliser (the baseline's energy, kWh/d, or cost per day)."""
+        return self.settings.reference
+
+    @property
+    def objective(self) -> str:
+        """``"energy"`` or ``"cost"``."""
+        return self.settings.objective
 
 
 # --- helpers read by rules ----------------------------------------------------------------
@@ -152,8 +188,9 @@ def period_mean(m, expr, p):
 
 
 # --- the attachment -----------------------------------------------------------------------
-def attach_problem(m, settings: ProblemSettings):
-    """Add decisions, limits and objective to a cyclic model (see module notes); returns ``m.opt``.
+def attach_problem(m, settings: ProblemSettings) -> Problem:
+    """Add decisions, limits and objective to a cyclic model in its block ``m.opt`` (see module notes);
+    returns the :class:`Problem`.
 
     Everything about the plant is read from the model's resolved plant (``m.train_data.plant``).
     """
@@ -167,7 +204,6 @@ def attach_problem(m, settings: ProblemSettings):
     if not grid:
         raise ModelError("the layout has no diffused zones: there is no airflow to optimise")
     m.opt = b = pyo.Block()
-    b.settings = settings
     b.ZONES = pyo.Set(initialize=grid, ordered=True)
     do_zones = [z for z in grid if plant.zone(z).do_min_mg_L is not None]
     do_max_zones = [z for z in grid if plant.zone(z).do_max_mg_L is not None]
@@ -181,7 +217,6 @@ def attach_problem(m, settings: ProblemSettings):
 
     # --- swing zones: on/off per period as fixed 0/1 variables (a relaxed solve has them 0 and the
     # airflow free from 0; :mod:`airtaper.optimize.staging` fixes the states and re-solves) ------
-    b.swing_states = None  # zone -> (n_periods,) bool once decided
     b.swing_on = pyo.Var(b.SWING_ZONES, m.PERIODS, bounds=(0.0, 1.0), initialize=0.0)
     b.swing_do_on = pyo.Var(m.STEPS, b.SWING_ZONES, bounds=(0.0, 1.0), initialize=0.0)  # DO minimum held
     for v in list(b.swing_on.values()) + list(b.swing_do_on.values()):
@@ -223,13 +258,13 @@ def attach_problem(m, settings: ProblemSettings):
     # coefficients and the set's airflow range and pressure limit are fixed variables (values
     # change between staging rounds, the derivative structure does not); the first solve uses
     # the convex envelope over every set of machines (and no air).
-    b.machines = machines_of(plant)
-    in_service = any(not mm.out_of_service for mm in b.machines)
-    b.staged = in_service and settings.staging
-    b.LINES = pyo.RangeSet(max_lines(b.machines) if b.staged else 1)
+    machines = machines_of(plant)
+    in_service = any(not mm.out_of_service for mm in machines)
+    staged = in_service and settings.staging
+    b.LINES = pyo.RangeSet(max_lines(machines) if staged else 1)
     b.line_a = pyo.Var(m.PERIODS, b.LINES, initialize=0.0)
     b.line_b = pyo.Var(m.PERIODS, b.LINES, initialize=0.0)
-    avail = [mm for mm in b.machines if not mm.out_of_service]
+    avail = [mm for mm in machines if not mm.out_of_service]
     b.staging_min_Sm3_h = pyo.Var(m.PERIODS, initialize=min((mm.airflow_min_Sm3_h for mm in avail), default=0.0))
     b.staging_max_Sm3_h = pyo.Var(m.PERIODS, initialize=sum(mm.airflow_max_Sm3_h for mm in avail))
     b.staging_pressure_max_kPa = pyo.Var(
@@ -237,8 +272,8 @@ def attach_problem(m, settings: ProblemSettings):
     for comp in (b.line_a, b.line_b, b.staging_min_Sm3_h, b.staging_max_Sm3_h, b.staging_pressure_max_kPa):
         for v in comp.values():
             v.fix()
-    if b.staged:
-        set_power_lines(b, {p: envelope_lines(b.machines) for p in P})
+    if staged:
+        set_power_lines(b, {p: envelope_lines(machines) for p in P})
         b.power_kW = pyo.Var(m.PERIODS, bounds=(0.0, None))
         b.power_line_kW = pyo.Expression(m.PERIODS, b.LINES, rule=lambda b, p, k: blower_power_kW(
             b.line_a[p, k] + b.line_b[p, k] * b.total_airflow_Sm3_h[p], float(air.inlet_temperature_C[p - 1]),
@@ -264,25 +299,25 @@ def attach_problem(m, settings: ProblemSettings):
     so = lambda t, z: m.conc[t, z, "SO"]  # noqa: E731
     b.do_min_mg_L = pyo.Param(b.DO_ZONES, mutable=True,
                               initialize={z: float(plant.zone(z).do_min_mg_L) for z in do_zones})
-    # back-offs inside the DO range per zone and period (0 unless the re-simulation asks for
+    # back-offs inside the DO range per zone and time point (0 unless the re-simulation asks for
     # them: airtaper.optimize.backoff holds the range between the time points)
-    b.do_backoff_mg_L = pyo.Param(b.DO_ZONES, m.PERIODS, mutable=True, initialize=0.0)
+    b.do_backoff_mg_L = pyo.Param(b.DO_ZONES, m.STEPS, mutable=True, initialize=0.0)
     s = slack("do_min_slack", m.STEPS, b.DO_ZONES)
     b.do_min = pyo.Constraint(m.STEPS, b.DO_ZONES, rule=lambda b, t, z: (
-        so(t, z) + s[t, z] >= (b.do_min_mg_L[z] + b.do_backoff_mg_L[z, m.period_of_step[t]])
+        so(t, z) + s[t, z] >= (b.do_min_mg_L[z] + b.do_backoff_mg_L[z, t])
         * (b.swing_do_on[t, z] if z in b.SWING_ZONES else 1.0)))
     b.do_max_mg_L = pyo.Param(b.DO_MAX_ZONES, mutable=True,
                               initialize={z: float(plant.zone(z).do_max_mg_L) for z in do_max_zones})
-    b.do_max_backoff_mg_L = pyo.Param(b.DO_MAX_ZONES, m.PERIODS, mutable=True, initialize=0.0)
+    b.do_max_backoff_mg_L = pyo.Param(b.DO_MAX_ZONES, m.STEPS, mutable=True, initialize=0.0)
     s2 = slack("do_max_slack", m.STEPS, b.DO_MAX_ZONES)
     b.do_max = pyo.Constraint(m.STEPS, b.DO_MAX_ZONES, rule=lambda b, t, z: (
-        so(t, z) - s2[t, z] <= b.do_max_mg_L[z] - b.do_max_backoff_mg_L[z, m.period_of_step[t]]))
+        so(t, z) - s2[t, z] <= b.do_max_mg_L[z] - b.do_max_backoff_mg_L[z, t]))
 
     lim = plant.limits
-    b.effluent_weights = effluent_weights(m)
-    b.nh4_mean_expr = pyo.Expression(expr=flow_weighted_mean(m, m.effluent_nh4_mg_L, b.effluent_weights))
+    weights = effluent_weights(m)
+    b.nh4_mean_expr = pyo.Expression(expr=flow_weighted_mean(m, m.effluent_nh4_mg_L, weights))
     b.nh4_period_expr = pyo.Expression(m.PERIODS, rule=lambda b, p: period_mean(m, m.effluent_nh4_mg_L, p))
-    b.tn_mean_expr = pyo.Expression(expr=flow_weighted_mean(m, m.effluent_tn_mg_L, b.effluent_weights))
+    b.tn_mean_expr = pyo.Expression(expr=flow_weighted_mean(m, m.effluent_tn_mg_L, weights))
     b.nh4_mean_limit = pyo.Param(mutable=True, initialize=lim.nh4_mean_mg_L if lim.nh4_mean_mg_L else 0.0)
     b.nh4_max_limit = pyo.Param(mutable=True, initialize=lim.nh4_max_mg_L if lim.nh4_max_mg_L else 0.0)
     b.tn_mean_limit = pyo.Param(mutable=True, initialize=lim.tn_mean_mg_L if lim.tn_mean_mg_L else 0.0)
@@ -339,13 +374,12 @@ def attach_problem(m, settings: ProblemSettings):
     b.smoothing_weight = pyo.Param(mutable=True, initialize=settings.smoothing_weight)
     b.smoothing = pyo.Expression(expr=sum(((q[z, p] - q[z, prev[p]]) / qmax[z]) ** 2 for z in grid for p in P)
                                  if len(P) > 1 else 0.0)
-    b.reference = settings.reference
     b.objective = pyo.Objective(expr=b.goal / settings.reference + b.smoothing_weight * b.smoothing,
                                 sense=pyo.minimize)
-    return b
+    return Problem(m, settings, tuple(machines), staged, weights)
 
 
-def set_swing_states(m, states: dict | None) -> None:
+def set_swing_states(prob: Problem, states: dict | None) -> None:
     """Fix the on/off state of every swing zone per period (None: relaxed, airflow free from 0).
 
     Off: airflow fixed at 0 (no air: the zone's kinetics are anoxic by the ASM1 switching
@@ -353,11 +387,12 @@ def set_swing_states(m, states: dict | None) -> None:
     second integration step of a spell (the first step after switching on is the DO's
     rise from about 0; its length is a fraction of the period).
     """
+    m = prob.m
     b = m.opt
-    b.swing_states = None if states is None else {z: np.asarray(states[z], dtype=bool) for z in b.SWING_ZONES}
+    prob.swing_states = None if states is None else {z: np.asarray(states[z], dtype=bool) for z in b.SWING_ZONES}
     n = len(m.PERIODS)
     for z in b.SWING_ZONES:
-        on = np.zeros(n, dtype=bool) if states is None else b.swing_states[z]
+        on = np.zeros(n, dtype=bool) if states is None else prob.swing_states[z]
         for p in m.PERIODS:
             b.swing_on[z, p].fix(float(on[p - 1]))
             b.swing_air[z, p].fix(float(states is None or on[p - 1]))
@@ -388,17 +423,18 @@ def set_power_lines(b, lines_by_period: dict) -> None:
             b.line_b[p, k].fix(float(c))
 
 
-def relax_staging(b) -> None:
+def relax_staging(prob: Problem) -> None:
     """The blower side as before any dispatch: the convex envelope of the least power of every set of machines
     in service (and of no air), the whole set's airflow range and its highest pressure limit (the relaxed
     solve's; :mod:`airtaper.optimize.staging` fixes a dispatch over it)."""
-    avail = [mm for mm in b.machines if not mm.out_of_service]
-    periods = list(b.parent_block().PERIODS)
+    b = prob.block
+    avail = [mm for mm in prob.machines if not mm.out_of_service]
+    periods = list(prob.m.PERIODS)
     for p in periods:
         b.staging_min_Sm3_h[p].fix(min((mm.airflow_min_Sm3_h for mm in avail), default=0.0))
         b.staging_max_Sm3_h[p].fix(sum(mm.airflow_max_Sm3_h for mm in avail))
         b.staging_pressure_max_kPa[p].fix(max((mm.pressure_max_gauge_kPa for mm in avail), default=0.0))
-    set_power_lines(b, {p: envelope_lines(b.machines) for p in periods})
+    set_power_lines(b, {p: envelope_lines(prob.machines) for p in periods})
     for p in periods:
         b.power_kW[p].set_value(max_power_line_kW(b, p))
     if b.component("peak_kW") is not None and not b.peak_kW.fixed:
@@ -432,5 +468,5 @@ def fix_slacks(b) -> None:
             v.fix(0.0)
 
 
-__all__ = ["LIMIT_GROUPS", "LimitGroup", "ProblemSettings", "active_limit_groups", "attach_problem", "fix_slacks", "free_slacks",
+__all__ = ["LIMIT_GROUPS", "LimitGroup", "Problem", "ProblemSettings", "active_limit_groups", "attach_problem", "fix_slacks", "free_slacks",
            "effluent_weights", "flow_weighted_mean", "period_mean", "point_weights", "relax_staging", "settings_for", "steps_of_period"]

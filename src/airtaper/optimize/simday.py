@@ -33,14 +33,14 @@ import pandas as pd
 from airtaper import units
 from airtaper.layout.types import ASM1_COMPONENTS, Layout
 from airtaper.optimize.compliance import day_figures
-from airtaper.plant import resolve_plant
+from airtaper.plant import ResolvedPlant, resolve_plant
 from airtaper.simulate.summary import setpoint_shortfalls
 from airtaper.units import HOURS_PER_DAY
 
 
 @dataclass
 class SimDay:
-    layout: Layout
+    plant: ResolvedPlant
     timeseries: pd.DataFrame  # simulator's tidy zone table (time_h, zone, components, airflow, kla, otr)
     effluent: pd.DataFrame
     time_h: np.ndarray  # (N,)
@@ -64,14 +64,19 @@ class SimDay:
     setpoint_shortfalls: list = field(default_factory=list)  # DO setpoints the control could not hold
     layers: np.ndarray | None = None  # (N, layers, 13) clarifier layers from the top (layered only)
 
+    @property
+    def layout(self) -> Layout:
+        """The layout the plant was resolved from (provenance)."""
+        return self.plant.layout
+
     def start_state(self) -> tuple[dict, float | None]:
         """The state at 0 h of this periodic day, and its waste flow (target SRT), to start another day from."""
         y = np.asarray(self.extra["y_end"], dtype=float).reshape(-1, len(ASM1_COMPONENTS))
-        nz = len(self.layout.zones)
-        state = {"zones": {z.id: y[i].tolist() for i, z in enumerate(self.layout.zones)}}
+        nz = self.plant.n_zones
+        state = {"zones": {zid: y[i].tolist() for i, zid in enumerate(self.plant.zone_ids)}}
         if y.shape[0] > nz:
             state["layers"] = y[nz:].tolist()
-        waste = float(self.extra["waste_m3_d"][0]) if self.layout.wasting.srt_d is not None else None
+        waste = float(self.extra["waste_m3_d"][0]) if self.plant.hydraulics.srt_d is not None else None
         return state, waste
 
     def do_min_by_period(self) -> dict:
@@ -81,13 +86,13 @@ class SimDay:
 
     def period_mean_airflow(self) -> dict:
         """Zone id -> mean airflow of every period, (n_periods,), Sm3/h."""
-        n = self.layout.horizon.n_periods
+        n = self.plant.n_periods
         return {z: np.array([a[self.period == k].mean() for k in range(n)]) for z, a in self.airflow.items()}
 
     def period_mean_power_kW(self) -> np.ndarray:
         """Mean blower power of every period, (n_periods,), kW: the quadrature that gives the day's energy,
         so the periods' means times their hours add up to ``energy_kWh_per_day``."""
-        n = self.layout.horizon.n_periods
+        n = self.plant.n_periods
         w, k = self.node_weight, self.node_period
         return np.array([float(w[k == i] @ self.node_power_kW[k == i] / w[k == i].sum()) for i in range(n)])
 
@@ -108,26 +113,32 @@ class SimDay:
         return (1.0 - f) * samples[i] + f * samples[(i + 1) % n]
 
 
-def step_airflow(layout: Layout, res) -> tuple[dict, np.ndarray]:
-    """Zone id -> airflow at every output step of a simulated periodic day, and each step's 0-based period."""
+def step_airflow(plant: ResolvedPlant | Layout, res) -> tuple[dict, np.ndarray]:
+    """Zone id -> airflow at every output step of a simulated periodic day, and each step's 0-based period
+    (a layout is resolved first)."""
+    plant = resolve_plant(plant)
     n = len(res.effluent)
     time_h = res.effluent["time_h"].to_numpy()
-    period = np.minimum((time_h / layout.horizon.period_h + 1e-9).astype(int), layout.horizon.n_periods - 1)
-    air = res.timeseries["airflow_Sm3_h"].to_numpy().reshape(n, len(layout.zones))
-    return {z.id: air[:, i] for i, z in enumerate(layout.zones)}, period
+    period = np.minimum((time_h / plant.period_h + 1e-9).astype(int), plant.n_periods - 1)
+    air = res.timeseries["airflow_Sm3_h"].to_numpy().reshape(n, plant.n_zones)
+    return {zid: air[:, i] for i, zid in enumerate(plant.zone_ids)}, period
 
 
-def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=None, *, start_state=None,
-                 start_waste_m3_d: float | None = None, tol: float | None = None,
-                 max_days: int | None = None) -> SimDay:
-    """Periodic day of ``layout`` under a schedule (zone -> per-period airflow) or DO control.
+def simulate_day(plant: ResolvedPlant | Layout, schedule: dict | None = None, do_setpoint_mg_L=None, *,
+                 start_state=None, start_waste_m3_d: float | None = None, tol: float | None = None,
+                 max_days: int | None = None, start_period: int = 0) -> SimDay:
+    """Periodic day of a plant (a layout is resolved first) under a schedule (zone -> per-period airflow)
+    or DO control.
 
     ``start_state``/``start_waste_m3_d``: where the simulator's first day starts (its
-    default is the mean-load steady state); ``tol``: its day-repeat tolerance.
+    default is the mean-load steady state), at the start of the 0-based period
+    ``start_period`` (the simulator runs the rest of that day first, see
+    :func:`airtaper.simulate.periodic`); ``tol``: its day-repeat tolerance.
     """
     from airtaper.simulate import periodic
 
     t0 = time.perf_counter()
+    plant = resolve_plant(plant)
     kwargs = {}
     if start_state is not None:
         kwargs["start_state"] = start_state
@@ -137,20 +148,22 @@ def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=
         kwargs["tol"] = tol
     if max_days is not None:
         kwargs["max_days"] = max_days
+    if start_period:
+        kwargs["start_period"] = start_period
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        res = periodic(layout, schedule=schedule, do_setpoint_mg_L=do_setpoint_mg_L, **kwargs)
+        res = periodic(plant.layout, schedule=schedule, do_setpoint_mg_L=do_setpoint_mg_L, **kwargs)
     ts, eff = res.timeseries, res.effluent
-    zone_ids = [z.id for z in layout.zones]
+    zone_ids = list(plant.zone_ids)
     nz = len(zone_ids)
     n = len(eff)
     time_h = eff["time_h"].to_numpy()
-    airflow, period = step_airflow(layout, res)
+    airflow, period = step_airflow(plant, res)
     conc = ts[list(ASM1_COMPONENTS)].to_numpy().reshape(n, nz, len(ASM1_COMPONENTS))
     so = ts["SO"].to_numpy().reshape(n, nz)
     do = {zid: so[:, i] for i, zid in enumerate(zone_ids)}
     quad, ex = res.quadrature, res.do_extremes
-    side = resolve_plant(layout).air
+    side = plant.air
     node_air = {zid: quad.airflow_Sm3_h[:, i] for i, zid in enumerate(zone_ids)}
     with warnings.catch_warnings():  # curve extrapolation is reported where the airflow is chosen
         warnings.simplefilter("ignore")
@@ -164,10 +177,10 @@ def simulate_day(layout: Layout, schedule: dict | None = None, do_setpoint_mg_L=
     # DO margins from the continuous extremes: the lowest and highest DO of every period
     do_extreme = {zid: np.concatenate((g["do_min_mg_L"].to_numpy(), g["do_max_mg_L"].to_numpy()))
                   for zid, g in ex.groupby("zone", sort=False)}
-    figs = day_figures(layout, qe["SNH"].to_numpy(), qe["tn_mg_L"].to_numpy(), qe["q_effluent_m3_d"].to_numpy(),
+    figs = day_figures(plant, qe["SNH"].to_numpy(), qe["tn_mg_L"].to_numpy(), qe["q_effluent_m3_d"].to_numpy(),
                        quad.period, do_extreme, weights=quad.weight)
-    shortfalls = setpoint_shortfalls(layout, ex, res.setpoints_mg_L) if do_setpoint_mg_L is not None else []
-    return SimDay(layout=layout, timeseries=ts, effluent=eff, time_h=time_h, period=period, airflow=airflow, do=do,
+    shortfalls = setpoint_shortfalls(plant, ex, res.setpoints_mg_L) if do_setpoint_mg_L is not None else []
+    return SimDay(plant=plant, timeseries=ts, effluent=eff, time_h=time_h, period=period, airflow=airflow, do=do,
                   conc=conc, power_kW=power, energy_kWh_per_day=energy, cost_per_day=cost, figures=figs,
                   converged=bool(res.converged), days=int(res.days), seconds=time.perf_counter() - t0,
                   extra={"waste_m3_d": eff["q_waste_m3_d"].to_numpy(), "y_end": res.y_end}, do_extremes=ex,

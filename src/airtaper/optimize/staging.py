@@ -48,10 +48,10 @@ import numpy as np
 import pyomo.environ as pyo
 
 from airtaper.layout.types import Layout
-from airtaper.plant import AirSide, resolve_plant
+from airtaper.plant import AirSide, ResolvedPlant, resolve_plant
 from airtaper.optimize.dispatch import Bill, Dispatch, evaluate, machines_of, set_lines, solve_dispatch, swing_states
 from airtaper.optimize.attempts import Rung
-from airtaper.optimize.problem import max_power_line_kW, set_power_lines, set_swing_states
+from airtaper.optimize.problem import Problem, max_power_line_kW, set_power_lines, set_swing_states
 from airtaper.physics.blower import blower_power_kW
 
 #: Relative change of the total cost below which the rounds stop (0.5 %).
@@ -88,9 +88,9 @@ def kw_per_equivalent(air: AirSide, discharge_gauge_kPa) -> np.ndarray:
     return np.asarray(blower_power_kW(1.0, t_in, air.inlet_pressure_kPa, air.site_pressure_kPa + d, 1.0), dtype=float)
 
 
-def model_air_state(m) -> dict:
+def model_air_state(prob: Problem) -> dict:
     """Per period: total airflow, discharge gauge pressure, kW per equivalent Sm3/h, air the zones could still take."""
-    b = m.opt
+    m, b, states = prob.m, prob.block, prob.swing_states
     air = m.train_data.plant.air
     P = list(m.PERIODS)
     q = np.array([float(pyo.value(b.total_airflow_Sm3_h[p])) for p in P])
@@ -100,26 +100,29 @@ def model_air_state(m) -> dict:
     for z in b.ZONES:
         hi = air.zone(z).airflow_max_Sm3_h
         for i, p in enumerate(P):
-            if not (b.swing_states is not None and z in b.swing_states and not b.swing_states[z][i]):
+            if not (states is not None and z in states and not states[z][i]):
                 room[i] += max(0.0, hi - float(m.airflow_Sm3_h[z, p].value))
     return {"demand_Sm3_h": q, "discharge_gauge_kPa": d, "kw_per_equivalent": kw_per_equivalent(air, d),
             "excess_max_Sm3_h": room}
 
 
-def day_dispatch(layout: Layout, day, objective: str) -> Dispatch | None:
+def day_dispatch(plant: ResolvedPlant | Layout, day, objective: str) -> Dispatch | None:
     """The same dispatch rule applied to a simulated day (the baseline): per-period mean airflow and pressure."""
-    return steps_dispatch(layout, day.airflow, day.period, objective)
+    return steps_dispatch(plant, day.airflow, day.period, objective)
 
 
-def steps_dispatch(layout: Layout, airflow_by_zone: dict, period_of_step, objective: str) -> Dispatch | None:
+def steps_dispatch(plant: ResolvedPlant | Layout, airflow_by_zone: dict, period_of_step, objective: str
+                   ) -> Dispatch | None:
     """The dispatch of a simulated day given per step: zone id -> airflow (Sm3/h) at every step and the
     0-based period of every step. Each period's mean airflow and discharge pressure go to the MILP, as
-    for the optimised schedule. None when the layout has no diffused zone or no blower in service."""
-    machines = machines_of(layout)
-    air = resolve_plant(layout).air
+    for the optimised schedule. None when the plant has no diffused zone or no blower in service (a layout
+    is resolved first)."""
+    plant = resolve_plant(plant)
+    machines = machines_of(plant)
+    air = plant.air
     if not air.zones or not any(not mm.out_of_service for mm in machines):
         return None
-    n = layout.horizon.n_periods
+    n = plant.n_periods
     flows = {z.id: np.asarray(airflow_by_zone[z.id], dtype=float) for z in air.zones}
     header = air.header_pressure_gauge_kPa(flows)
     total = np.sum([flows[z] for z in flows], axis=0)
@@ -132,16 +135,15 @@ def steps_dispatch(layout: Layout, airflow_by_zone: dict, period_of_step, object
         if z.kind == "aerated":
             hi = z.airflow_max_Sm3_h
             room += np.maximum(0.0, hi - np.array([flows[z.id][per == k].mean() for k in range(n)]))
-    return solve_dispatch(machines, q, d, kw_per_equivalent(air, d), Bill.of(layout, objective),
-                          layout.horizon.period_h, room)
+    return solve_dispatch(machines, q, d, kw_per_equivalent(air, d), Bill.of(plant, objective), plant.period_h, room)
 
 
-def bill_day_by_dispatch(layout: Layout, day, objective: str) -> Dispatch | None:
+def bill_day_by_dispatch(plant: ResolvedPlant | Layout, day, objective: str) -> Dispatch | None:
     """Bill a simulated day (a baseline) by the dispatch rule: its energy and cost replaced by the
     dispatch's (like with like against the staged optimum). Returns the dispatch (None: left as it was)."""
-    bd = day_dispatch(layout, day, objective)
+    bd = day_dispatch(plant, day, objective)
     if bd is not None:
-        bill = bd.bill(layout)
+        bill = bd.bill(plant)
         day.energy_kWh_per_day = bill["energy_kWh_per_day"]
         day.cost_per_day = bill["cost_per_day"]
     return bd
@@ -167,15 +169,15 @@ def apply_dispatch(m, dp: Dispatch) -> None:
         b.peak_kW.set_value(max(b.power_kW[p].value for p in m.PERIODS))
 
 
-def final_dispatch(m, dp: Dispatch) -> Dispatch:
+def final_dispatch(prob: Problem, dp: Dispatch) -> Dispatch:
     """The accepted on/off decisions evaluated at the solved schedule's airflow and pressure."""
-    s = model_air_state(m)
+    s = model_air_state(prob)
     return evaluate(dp.machines, dp.running, s["demand_Sm3_h"], s["discharge_gauge_kPa"], s["kw_per_equivalent"],
-                    float(m.train_data.period_h), status=dp.status, seconds=dp.seconds)
+                    float(prob.m.train_data.period_h), status=dp.status, seconds=dp.seconds)
 
 
-def round_cost(layout: Layout, dp: Dispatch, objective: str) -> float:
-    bill = dp.bill(layout)
+def round_cost(plant: ResolvedPlant, dp: Dispatch, objective: str) -> float:
+    bill = dp.bill(plant)
     return bill["cost_per_day"] if objective == "cost" and bill["cost_per_day"] is not None \
         else bill["energy_kWh_per_day"]
 
@@ -194,23 +196,23 @@ def _restore(snap) -> None:
 
 
 # --- the loop ----------------------------------------------------------------------------------
-def relaxed_swing_fractions(m) -> dict:
+def relaxed_swing_fractions(prob: Problem) -> dict:
     """Swing zone -> relaxed airflow per period as a fraction of its minimum when on."""
-    b = m.opt
+    m, b = prob.m, prob.block
     out = {}
     for z in b.SWING_ZONES:
         d = m.aeration[z]
         qmin = max(pyo.value(m.diffuser_count[z]) * d.diffuser_airflow_min_Sm3_h,
-                   b.settings.mixing_airflow_min_Sm3_h_m2[z] * d.zone.area_m2)
+                   prob.settings.mixing_airflow_min_Sm3_h_m2[z] * d.zone.area_m2)
         out[z] = np.array([float(m.airflow_Sm3_h[z, p].value) for p in m.PERIODS]) / max(qmin, 1e-9)
     return out
 
 
-def swing_candidates(fractions: dict, layout: Layout) -> list[dict]:
+def swing_candidates(fractions: dict, plant: ResolvedPlant) -> list[dict]:
     """Candidate on/off patterns from the relaxed fractions (:data:`SWING_THRESHOLDS`), distinct, none all-on."""
     out = []
     for theta in SWING_THRESHOLDS:
-        states = {z: swing_states((f >= theta).astype(float), layout.zone(z).max_switches_per_day)
+        states = {z: swing_states((f >= theta).astype(float), plant.zone(z).max_switches_per_day)
                   for z, f in fractions.items()}
         if all(v.all() for v in states.values()) or any(
                 all((states[z] == c[z]).all() for z in states) for c in out):
@@ -222,12 +224,12 @@ def swing_candidates(fractions: dict, layout: Layout) -> list[dict]:
 def settle_swing_states(study, rounds: list):
     """Choose the swing zones' on/off pattern on the relaxed solve (module notes); returns the solver
     result of the chosen pattern (None: not even the all-day-aerated schedule solves)."""
-    m = study.m
-    b = m.opt
+    prob = study.problem
+    m, b = prob.m, prob.block
     prog = study.progress
-    fractions = relaxed_swing_fractions(m)
+    fractions = relaxed_swing_fractions(prob)
     t0 = time.perf_counter()
-    set_swing_states(m, {z: np.ones(len(m.PERIODS), dtype=bool) for z in b.SWING_ZONES})
+    set_swing_states(prob, {z: np.ones(len(m.PERIODS), dtype=bool) for z in b.SWING_ZONES})
     prog.phase("swing zones: aerated all day (the reference pattern)")
     res = study.resolve(warm=True)
     ok = res is not None and res.ok
@@ -236,12 +238,12 @@ def settle_swing_states(study, rounds: list):
                    "seconds": time.perf_counter() - t0})
     if not ok:
         return None
-    best = (float(pyo.value(b.objective)), _snapshot(m), b.swing_states, res)
+    best = (float(pyo.value(b.objective)), _snapshot(m), prob.swing_states, res)
     reference = best[1]
-    for states in swing_candidates(fractions, study.layout):
+    for states in swing_candidates(fractions, study.plant):
         t0 = time.perf_counter()
         _restore(reference)
-        set_swing_states(m, states)
+        set_swing_states(prob, states)
         prog.phase("swing zones: " + ", ".join(
             f"{z} off in periods {', '.join(str(int(i) + 1) for i in np.flatnonzero(~v))}" for z, v in states.items()))
         r = study._ipopt(SWING_RUNG, warm_start=True)
@@ -251,9 +253,9 @@ def settle_swing_states(study, rounds: list):
             "status": r.status.value, "objective": obj, "iterations": r.iterations,
             "seconds": time.perf_counter() - t0})
         if r.ok and obj < best[0]:
-            best = (obj, _snapshot(m), b.swing_states, r)
+            best = (obj, _snapshot(m), prob.swing_states, r)
     obj, snap, states, res = best
-    set_swing_states(m, states)
+    set_swing_states(prob, states)
     _restore(snap)
     rounds.append({"round": 0, "step": "swing pattern chosen", "objective": obj,
                    "aerated_periods": {z: [int(i) + 1 for i in np.flatnonzero(v)] for z, v in states.items()}})
@@ -263,17 +265,17 @@ def settle_swing_states(study, rounds: list):
 
 def run_staging(study, first_result) -> StagingOutcome:
     """Settle the swing states and the blower dispatch on a relaxed solve (module notes)."""
-    m = study.m
-    b = m.opt
-    layout = study.layout
-    objective = b.settings.objective
-    bill = Bill.of(layout, objective)
+    prob = study.problem
+    m, b = prob.m, prob.block
+    plant = study.plant
+    objective = prob.objective
+    bill = Bill.of(plant, objective)
     prog = study.progress
     out = StagingOutcome(result=first_result, dispatch=None)
     rounds = out.rounds
     if b.SWING_ZONES:
         res = settle_swing_states(study, rounds)
-        out.swing_states = b.swing_states
+        out.swing_states = prob.swing_states
         if res is None or not res.ok:
             out.result = None
             out.reason = "the schedule with the swing states fixed could not be solved"
@@ -284,8 +286,8 @@ def run_staging(study, first_result) -> StagingOutcome:
     r = 1
     while r <= MAX_ROUNDS:
         t0 = time.perf_counter()
-        state = model_air_state(m)
-        dp = solve_dispatch(b.machines, state["demand_Sm3_h"], state["discharge_gauge_kPa"],
+        state = model_air_state(prob)
+        dp = solve_dispatch(prob.machines, state["demand_Sm3_h"], state["discharge_gauge_kPa"],
                             state["kw_per_equivalent"], bill, float(m.train_data.period_h), state["excess_max_Sm3_h"])
         if dp.findings:
             out.findings = dp.findings
@@ -311,8 +313,8 @@ def run_staging(study, first_result) -> StagingOutcome:
                 return out
             out.reason = "a round failed; the best round is kept"
             break
-        fd = final_dispatch(m, dp)
-        cost = round_cost(layout, fd, objective)
+        fd = final_dispatch(prob, dp)
+        cost = round_cost(plant, fd, objective)
         rounds.append({"round": r, "status": res.status.value, "cost": cost, "iterations": res.iterations,
                        "running": {mm.id: int(fd.running[j].sum()) for j, mm in enumerate(fd.machines)},
                        "starts": int(fd.starts.sum()), "seconds": time.perf_counter() - t0})
@@ -321,7 +323,7 @@ def run_staging(study, first_result) -> StagingOutcome:
             out.reason = "a round cost more than the best; undone"
             break
         rounds[-1]["accepted"] = True
-        best = (cost, _snapshot(m), dp, res, b.swing_states)
+        best = (cost, _snapshot(m), dp, res, prob.swing_states)
         if last_cost is not None and abs(cost - last_cost) <= COST_RTOL * abs(last_cost):
             out.converged = True
             out.reason = f"the cost changed by less than {100 * COST_RTOL:g} %"
@@ -332,15 +334,15 @@ def run_staging(study, first_result) -> StagingOutcome:
         out.reason = f"{MAX_ROUNDS} rounds"
     cost, snap, dp, res, swing = best
     _restore(snap)
-    b.swing_states = swing
+    prob.swing_states = swing
     out.result = res
     study.result = res
-    out.dispatch = final_dispatch(m, dp)
+    out.dispatch = final_dispatch(prob, dp)
     out.swing_states = swing
     return out
 
 
-def redispatch(m, dp: Dispatch, layout: Layout) -> tuple[Dispatch, bool]:
+def redispatch(prob: Problem, dp: Dispatch) -> tuple[Dispatch, bool]:
     """The least-cost machines for the final schedule's airflow and pressure.
 
     The last re-solves (the dispatch round's own, then the DO back-off's) move the airflow and
@@ -352,25 +354,26 @@ def redispatch(m, dp: Dispatch, layout: Layout) -> tuple[Dispatch, bool]:
     airflow or cost more. The model's power curve is set to the chosen machines' (the DO
     back-off may have relaxed it to the envelope). Returns ``(dispatch, replaced)``.
     """
-    b = m.opt
-    old = final_dispatch(m, dp)
-    s = model_air_state(m)
-    new = solve_dispatch(b.machines, s["demand_Sm3_h"], s["discharge_gauge_kPa"], s["kw_per_equivalent"],
-                         Bill.of(layout, b.settings.objective), float(m.train_data.period_h))
-    objective = b.settings.objective
+    m = prob.m
+    plant = m.train_data.plant
+    objective = prob.objective
+    old = final_dispatch(prob, dp)
+    s = model_air_state(prob)
+    new = solve_dispatch(prob.machines, s["demand_Sm3_h"], s["discharge_gauge_kPa"], s["kw_per_equivalent"],
+                         Bill.of(plant, objective), float(m.train_data.period_h))
     uncovered = bool(np.any(old.shortfall_Sm3_h > CHECK_RTOL * np.maximum(old.demand_Sm3_h, 1.0))) or bool(
         np.any(old.airflow_Sm3_h.sum(axis=0) > old.demand_Sm3_h * (1 + CHECK_RTOL) + 1e-6))
     replace = not new.findings and not new.same_decisions(old) and (
-        uncovered or round_cost(layout, new, objective) < round_cost(layout, old, objective) * (1.0 - 1e-9))
+        uncovered or round_cost(plant, new, objective) < round_cost(plant, old, objective) * (1.0 - 1e-9))
     chosen = new if replace else old
     apply_dispatch(m, chosen)  # the model's power curve is the chosen machines' (a relaxed back-off left the envelope)
     return chosen, replace
 
 
-def feasibility_check(m, dp: Dispatch) -> list[str]:
+def feasibility_check(prob: Problem, dp: Dispatch) -> list[str]:
     """Every running machine within its airflow range and pressure limit; every grid within its range when on,
     at no air when off. Returns the breaches (empty when feasible)."""
-    b = m.opt
+    m, b, states = prob.m, prob.block, prob.swing_states
     bad = []
     tol = CHECK_RTOL
     for i, p in enumerate(m.PERIODS):
@@ -394,26 +397,26 @@ def feasibility_check(m, dp: Dispatch) -> list[str]:
         for z in b.ZONES:
             d = m.aeration[z]
             q = float(m.airflow_Sm3_h[z, p].value)
-            off = b.swing_states is not None and z in b.swing_states and not b.swing_states[z][i]
+            off = states is not None and z in states and not states[z][i]
             if off:
                 if abs(q) > 1e-6:
                     bad.append(f"period {p}: swing zone {z} is off but gets {q:.1f} Sm3/h")
                 continue
             lo, hi = d.airflow_range_Sm3_h
             lo = max(lo, d.diffusers * d.diffuser_airflow_min_Sm3_h,
-                     b.settings.mixing_airflow_min_Sm3_h_m2[z] * d.zone.area_m2)
-            if d.kind == "swing" and b.swing_states is None:
+                     prob.settings.mixing_airflow_min_Sm3_h_m2[z] * d.zone.area_m2)
+            if d.kind == "swing" and states is None:
                 lo = 0.0
             if q < lo * (1 - tol) or q > hi * (1 + tol):
                 bad.append(f"period {p}: zone {z} at {q:.1f} Sm3/h outside its grid range {lo:.0f}-{hi:.0f}")
     return bad
 
 
-def dispatch_table(layout: Layout, dp: Dispatch) -> "pd.DataFrame":
+def dispatch_table(plant: ResolvedPlant, dp: Dispatch) -> "pd.DataFrame":
     """blowers.csv: one row per period and blower."""
     import pandas as pd
 
-    h = layout.horizon.period_h
+    h = plant.period_h
     starts = dp.starts
     rows = []
     for i in range(dp.running.shape[1]):
@@ -427,10 +430,11 @@ def dispatch_table(layout: Layout, dp: Dispatch) -> "pd.DataFrame":
     return pd.DataFrame(rows)
 
 
-def dispatch_summary(layout: Layout, dp: Dispatch) -> dict:
-    """Bill split, peak and per-blower running hours and starts, for summary.json."""
-    bill = dp.bill(layout)
-    h = layout.horizon.period_h
+def dispatch_summary(plant: ResolvedPlant | Layout, dp: Dispatch) -> dict:
+    """Bill split, peak and per-blower running hours and starts, for summary.json (a layout is resolved first)."""
+    plant = resolve_plant(plant)
+    bill = dp.bill(plant)
+    h = plant.period_h
     return {
         "energy_kWh_per_day": bill["energy_kWh_per_day"],
         "energy_cost": bill["energy_cost"], "demand_charge": bill["demand_charge"],

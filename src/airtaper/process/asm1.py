@@ -237,16 +237,3 @@ def at_temperature(params: ASM1Parameters, temperature_C: float) -> ASM1Paramete
     changes = {k: getattr(params, k) * params.theta[k] ** dt for k in TEMPERATURE_DEPENDENT if k in params.theta}
     return dataclasses.replace(params, reference_temperature_C=float(temperature_C), **changes)
 
-
-def layout_parameters(layout) -> ASM1Parameters:
-    """The layout's set with its overrides, at the set's reference temperature."""
-    base = parameter_set(layout.kinetics.parameter_set, layout.path)
-    return with_overrides(base, layout.kinetics.overrides, layout.path)
-
-
-def period_parameters(layout) -> tuple[ASM1Parameters, ...]:
-    """Parameters per period: temperature-corrected when the layout asks for it."""
-    params = layout_parameters(layout)
-    if not layout.kinetics.temperature_correction:
-        return tuple(params for _ in layout.plant.temperature_C)
-    return tuple(at_temperature(params, t) for t in layout.plant.temperature_C)

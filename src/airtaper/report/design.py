@@ -34,6 +34,7 @@ import numpy as np
 import pandas as pd
 
 from airtaper.errors import InputError, Problem
+from airtaper.plant import resolve_plant
 from airtaper.report.atomic import write_bytes_atomic, write_csv_atomic, write_json_atomic, write_text_atomic
 from airtaper.report.figures import figure_png, train_figure
 from airtaper.report.text import CAUTION, fmt
@@ -101,7 +102,7 @@ def taper_figure_png(zones) -> bytes | None:
 
 def train_png(layout) -> bytes | None:
     """The report layer's drawing of a train (zones to scale by volume, density as dots, flows as arrows)."""
-    fig = train_figure(SimpleNamespace(layout=layout))
+    fig = train_figure(SimpleNamespace(plant=resolve_plant(layout)))
     if fig is None:
         return None
     png = figure_png(fig)

@@ -386,15 +386,21 @@ def baseline_figure(folder: StudyFolder):
 
 # -- the train ------------------------------------------------------------------------------------
 def train_figure(folder: StudyFolder):
-    """The train to scale by volume: zone kind, diffuser density, feeds, recycles and return sludge."""
-    layout = folder.layout
-    if layout is None:
+    """The train to scale by volume: zone kind, diffuser density, feeds, recycles and return sludge.
+
+    Drawn from the folder's resolved plant (``folder.plant``); the flows' labels echo the layout
+    as given (recycle names and ratios, step-feed shares).
+    """
+    plant = folder.plant
+    if plant is None:
         return None
+    layout = plant.layout  # the input as given, for the flows' labels only
     plt = _plt()
     from matplotlib.patches import FancyArrowPatch, Rectangle
 
-    zones = layout.zones
-    total = sum(z.volume_m3 for z in zones)
+    zones = plant.zones
+    volume = dict(zip(plant.zone_ids, np.asarray(plant.volume_m3, dtype=float)))
+    total = float(sum(volume.values()))
     width = 10.0  # drawing units for all zones together
     gap = 0.35
     h = 2.2
@@ -404,16 +410,17 @@ def train_figure(folder: StudyFolder):
     fills = {"anoxic": ("white", ".."), "aerated": ("#cfcfcf", None), "swing": ("#efefef", "//"),
              "anaerobic": ("white", "xx")}
     for z in zones:
-        w = width * z.volume_m3 / total
+        w = width * volume[z.id] / total
         face, hatch = fills.get(z.kind, ("white", None))
         ax.add_patch(Rectangle((x, 0), w, h, facecolor=face, hatch=hatch, edgecolor="black", linewidth=1.4))
         if hatch:  # a clear field behind the zone's text
             ax.add_patch(Rectangle((x + 0.12 * w, 0.45), 0.76 * w, h - 0.75, facecolor="white", edgecolor="none",
                                    zorder=2))
-        lines = [z.id, z.kind, f"{z.volume_m3:,.0f} m3"]
-        if z.grid is not None:
-            lines += [f"{z.grid.count:,} diff.", f"{layout.diffuser_density_percent(z):.1f} %"]
-            n_dots = max(2, int(round(layout.diffuser_density_percent(z) / 2.5)))
+        lines = [z.id, z.kind, f"{volume[z.id]:,.0f} m3"]
+        if plant.has_diffusers(z):
+            d = plant.air.zone(z)
+            lines += [f"{d.diffusers:,} diff.", f"{d.density_percent:.1f} %"]
+            n_dots = max(2, int(round(d.density_percent / 2.5)))
             ax.plot(x + w * (np.arange(n_dots) + 0.5) / n_dots, np.full(n_dots, 0.12), linestyle="none",
                     marker="o", markersize=3, color="black")
         ax.text(x + w / 2, h / 2 + 0.1, "\n".join(lines), ha="center", va="center", fontsize=8, zorder=5,
@@ -431,7 +438,7 @@ def train_figure(folder: StudyFolder):
                                      connectionstyle=f"arc3,rad={rad}", color=kw.get("color", "black"),
                                      linestyle=kw.get("linestyle", "-")))
 
-    ids = [z.id for z in zones]
+    ids = list(plant.zone_ids)
     for a, b in zip(ids[:-1], ids[1:]):
         xa, wa = pos[a]
         xb, _ = pos[b]
@@ -441,7 +448,7 @@ def train_figure(folder: StudyFolder):
     arrow((cx + cw, h * 0.78), (cx + cw + 0.9, h * 0.78))
     ax.text(cx + cw + 0.95, h * 0.78, "effluent", va="center", fontsize=8)
     arrow((cx + cw / 2, 0.3), (cx + cw / 2, -0.5))
-    srt = layout.wasting.srt_d
+    srt = plant.hydraulics.srt_d
     ax.text(cx + cw / 2 + 0.1, -0.45, "waste" + (f"\nSRT {srt:g} d" if srt else ""), fontsize=8, va="top")
     for s in layout.step_feed:
         xs, ws = pos[s.zone]

@@ -20,7 +20,6 @@ import pandas as pd
 
 from airtaper import units
 from airtaper.errors import InputError, Problem
-from airtaper.layout.types import Layout
 from airtaper.optimize.results import StudySummary
 from airtaper.plant import ResolvedPlant
 
@@ -42,11 +41,6 @@ class StudyFolder:
     plant: ResolvedPlant | None = None  # the layout that summary.json names, resolved
     notes: list[str] = field(default_factory=list)  # what could not be read, for the report
 
-    @property
-    def layout(self) -> Layout | None:
-        """The layout as given (the inputs summary and the drawing describe it), or None."""
-        return None if self.plant is None else self.plant.layout
-
     # -- derived views -------------------------------------------------------------------------
     @property
     def study(self) -> StudySummary:
@@ -62,10 +56,9 @@ class StudyFolder:
     def period_edges_h(self) -> np.ndarray:
         """Period boundaries over the day, h (n_periods + 1 values)."""
         if not len(self.schedule):  # no schedule (a run stopped before solving): the layout's periods
-            if self.layout is None:
+            if self.plant is None:
                 return np.array([0.0, units.HOURS_PER_DAY])
-            h = self.layout.horizon
-            return np.arange(h.n_periods + 1) * h.period_h
+            return np.arange(self.plant.n_periods + 1) * self.plant.period_h
         first = self.schedule.drop_duplicates("period_start_h").sort_values("period_start_h")
         return np.append(first["period_start_h"].to_numpy(float), first["period_end_h"].to_numpy(float)[-1])
 
@@ -87,28 +80,27 @@ class StudyFolder:
             return None
         return out
 
-    def _layout_zones(self) -> dict:
-        """Zone id -> the layout's Zone, for the schedule's zones the layout has (empty without the layout)."""
-        if self.layout is None:
-            return {}
-        known = {z.id: z for z in self.layout.zones}
-        return {z: known[z] for z in self.zones if z in known}
+    def _plant_zones(self) -> list[str]:
+        """The schedule's zones the plant has (empty without the layout)."""
+        if self.plant is None:
+            return []
+        return [z for z in self.zones if z in self.plant.zone_ids]
 
     def zone_airflow_range_Sm3_h(self) -> dict[str, tuple[float, float]]:
         """Zone -> (min, max) airflow its diffusers, mixing and valve allow (empty without the layout)."""
         return {z: self.plant.air.zone(z).airflow_range_Sm3_h if self.plant.has_diffusers(z) else (0.0, 0.0)
-                for z in self._layout_zones()}
+                for z in self._plant_zones()}
 
     def diffuser_range_Sm3_h(self) -> dict[str, tuple[float, float]]:
         """Zone -> (min, max) airflow per diffuser of its diffuser type (empty without the layout)."""
         return {z: (self.plant.air.zone(z).diffuser_airflow_min_Sm3_h, self.plant.air.zone(z).diffuser_airflow_max_Sm3_h)
-                for z in self._layout_zones() if self.plant.has_diffusers(z)}
+                for z in self._plant_zones() if self.plant.has_diffusers(z)}
 
     def tariff_price(self) -> np.ndarray | None:
         """Energy price of every period (currency/kWh), or None."""
-        if self.layout is None or self.layout.tariff is None:
+        if self.plant is None or self.plant.tariff is None:
             return None
-        price = np.asarray(self.layout.tariff.price_per_kWh, dtype=float)
+        price = np.asarray(self.plant.tariff.price_per_kWh, dtype=float)
         return price if len(price) == len(self.period_edges_h) - 1 else None
 
 

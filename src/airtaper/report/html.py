@@ -214,31 +214,34 @@ def _status_html(s: dict) -> str:
 
 
 def _inputs(f: StudyFolder, images: dict) -> str:
-    lay = f.layout
+    """The inputs summary: what the plant computes with (the resolved plant), with the layout as given
+    echoed where the plant keeps no such value (elevation, the measured influent, flows' names and ratios)."""
+    plant = f.plant
     s = f.summary
     parts = []
-    if lay is None:
+    if plant is None:
         lim = s.get("limits") or {}
         rows = [(EFFLUENT_LIMITS.get(k, k), f"{v:g} mg/L") for k, v in lim.items() if isinstance(v, (int, float))]
         parts.append("<p>The layout could not be read again, so only the limits recorded in summary.json are shown.</p>")
         if rows:
             parts.append(_kv(rows))
         return "".join(parts)
-    p, h, inf = lay.plant, lay.horizon, lay.influent
-    q = inf.mean_flow_m3_d
-    temps = sorted(set(p.temperature_C))
-    w = np.asarray(inf.flow_m3_d, dtype=float)
+    lay = plant.layout  # the input as given: echoed, not computed with
+    h, inf = plant.horizon, lay.influent
+    w = np.asarray(plant.hydraulics.influent_m3_d, dtype=float)
+    q = float(w.mean())
+    temps = sorted(set(float(t) for t in plant.temperature_C))
 
     def fw(values) -> float:
         return float(np.dot(w, np.asarray(values, dtype=float)) / w.sum())
 
-    plant = _kv([
-        ("plant", esc(p.name)),
-        ("layout file", esc(lay.path)),
-        ("elevation", f"{p.elevation_m:g} m"),
+    plant_kv = _kv([
+        ("plant", esc(plant.name)),
+        ("layout file", esc(plant.path)),
+        ("elevation", f"{lay.plant.elevation_m:g} m"),
         ("water temperature", f"{temps[0]:g} C" if len(temps) == 1 else f"{temps[0]:g}-{temps[-1]:g} C"),
         ("day", f"{h.n_periods} periods of {h.period_h:g} h"),
-        ("objective", esc(s.get("objective", lay.operation.objective))),
+        ("objective", esc(s.get("objective", plant.operation.objective))),
     ])
     load = _kv([
         ("load case", "one day of constant influent" if inf.source == "constant" else
@@ -249,57 +252,57 @@ def _inputs(f: StudyFolder, images: dict) -> str:
         ("NH4-N, flow-weighted", f"{fmt(fw(inf.nh4_mg_L), 1)} mg/L"),
         ("NH4-N load, peak / mean", f"{fmt(max(w * np.asarray(inf.nh4_mg_L)) / np.mean(w * np.asarray(inf.nh4_mg_L)), 2)}"),
     ])
-    parts.append(f"<div class='cols'><div><h3>Plant</h3>{plant}</div><div><h3>Influent</h3>{load}</div></div>")
+    parts.append(f"<div class='cols'><div><h3>Plant</h3>{plant_kv}</div><div><h3>Influent</h3>{load}</div></div>")
     files = [i for i in s.get("inputs") or [] if isinstance(i, dict) and i.get("path")]
     if files:
         parts.append("<h3>Input files of the run</h3>" + _grid(["file", "SHA-256 (first 16 digits)"], [
             [esc(i["path"]), esc(str(i.get("sha256") or "-")[:16])] for i in files]))
     # train table
     rows = []
-    for z in lay.zones:
-        hrt = z.volume_m3 / q * units.HOURS_PER_DAY
-        if z.grid is not None:
-            lo, hi = lay.zone_airflow_range_Sm3_h(z)
-            grid = [f"{z.grid.count:,} x {esc(z.grid.type_id)}", fmt(lay.diffuser_density_percent(z)),
-                    f"{fmt(lo, 0)}-{fmt(hi, 0)}"]
+    for z, volume in zip(plant.zones, np.asarray(plant.volume_m3, dtype=float)):
+        hrt = volume / q * units.HOURS_PER_DAY
+        if plant.has_diffusers(z):
+            d = plant.air.zone(z)
+            grid = [f"{d.diffusers:,} x {esc(z.grid.type_id)}", fmt(d.density_percent),
+                    f"{fmt(d.airflow_min_Sm3_h, 0)}-{fmt(d.airflow_max_Sm3_h, 0)}"]
         else:
             grid = ["-", "-", "-"]
         do = "-" if z.do_min_mg_L is None and z.do_max_mg_L is None else \
             f"{'-' if z.do_min_mg_L is None else f'{z.do_min_mg_L:g}'} / {'-' if z.do_max_mg_L is None else f'{z.do_max_mg_L:g}'}"
-        rows.append([esc(z.id), esc(z.kind), fmt(z.volume_m3, 0), fmt(z.depth_m), fmt(hrt, 2), *grid, do,
+        rows.append([esc(z.id), esc(z.kind), fmt(volume, 0), fmt(z.depth_m), fmt(hrt, 2), *grid, do,
                      f"{z.alpha:g}"])
     parts.append("<h3>Train</h3>" + _grid(
         ["zone", "kind", "volume (m3)", "depth (m)", "HRT at mean flow (h)", "diffusers", "density (%)",
          "airflow range (Sm3/h)", "DO min / max (mg/L)", "alpha"], rows, left=2, cls="grid nowrap"))
-    flows = [f"step feed: " + ", ".join(f"{esc(sf.zone)} {100 * sf.fraction:g} %" for sf in lay.step_feed)]
+    flows = ["step feed: " + ", ".join(f"{esc(sf.zone)} {100 * sf.fraction:g} %" for sf in lay.step_feed)]
     for r in lay.recycles:
         flows.append(f"recycle {esc(r.id)}: {esc(r.from_zone)} to {esc(r.to_zone)}"
                      + (f", {r.ratio:g} x influent flow" if r.ratio is not None else ""))
     rs = lay.return_sludge
     flows.append(f"return sludge to {esc(rs.to_zone)}" + (f", {rs.ratio:g} x influent flow" if rs.ratio is not None else ""))
-    if lay.wasting.srt_d is not None:
-        flows.append(f"waste sludge: SRT held at {lay.wasting.srt_d:g} d")
+    if plant.hydraulics.srt_d is not None:
+        flows.append(f"waste sludge: SRT held at {plant.hydraulics.srt_d:g} d")
     parts.append("<ul class='plain'>" + "".join(f"<li>{x}</li>" for x in flows) + "</ul>")
     if "train" in images:
         parts.append(_figure(images, "train", "The train to scale by volume."))
     # limits, tariff, blowers
-    lim = lay.limits
+    lim = plant.limits
     lim_rows = [(EFFLUENT_LIMITS[k], f"{getattr(lim, k):g} mg/L") for k in EFFLUENT_LIMITS if getattr(lim, k) is not None]
-    mins = sorted({z.do_min_mg_L for z in lay.zones if z.do_min_mg_L is not None and z.aerated})
+    mins = sorted({z.do_min_mg_L for z in plant.zones if z.do_min_mg_L is not None and z.aerated})
     if mins:
         lim_rows.append(("DO minimum in zones under air", " / ".join(f"{m:g}" for m in mins) + " mg/L"))
     side = [f"<div><h3>Limits</h3>{_kv(lim_rows)}</div>"]
-    if lay.tariff is not None:
-        t = lay.tariff
+    if plant.tariff is not None:
+        t = plant.tariff
         bands = _price_bands(np.asarray(t.price_per_kWh, float), f.period_edges_h if len(f.period_edges_h) ==
                              len(t.price_per_kWh) + 1 else np.arange(len(t.price_per_kWh) + 1) * h.period_h)
         trows = [(f"{_hour_label(a)}-{_hour_label(b)} h", f"{p:g} {esc(t.currency)}/kWh") for a, b, p in bands]
         trows.append(("demand charge", f"{t.demand_charge_per_kW:g} {esc(t.currency)}/kW per {t.demand_period_days:g} d"))
         side.append(f"<div><h3>Tariff</h3>{_kv(trows)}</div>")
     parts.append("<div class='cols'>" + "".join(side) + "</div>")
-    if lay.blowers:
+    if plant.blowers:
         brow = []
-        for b in lay.blowers:
+        for b in plant.blowers:
             eff = f"{b.efficiency:g}" if b.efficiency is not None else \
                 f"{min(e.efficiency for e in b.efficiency_points):g}-{max(e.efficiency for e in b.efficiency_points):g}"
             brow.append([esc(b.id), esc(b.kind), f"{fmt(b.airflow_min_Sm3_h, 0)}-{fmt(b.airflow_max_Sm3_h, 0)}",

@@ -21,7 +21,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from airtaper.optimize.compliance import clock
+from airtaper.units import clock
 from airtaper.report.atomic import write_csv_atomic, write_json_atomic
 from airtaper.report.build import REPORT_NAMES, write_report
 from airtaper.report.text import CAUTION

@@ -79,7 +79,6 @@ class PlantData:
     def __init__(self, plant: ResolvedPlant | Layout):
         plant = resolve_plant(plant)
         self.plant = plant
-        self.layout = plant.layout
         self.zones = plant.zones
         self.nz = plant.n_zones
         self.volume = np.asarray(plant.volume_m3, dtype=float)

@@ -114,8 +114,7 @@ def initial_guess(system: System, inp: Inputs) -> np.ndarray:
 # --- washout: no nitrifying steady state -----------------------------------------------
 def aerable_fraction(system: System) -> float:
     """Share of the reactor volume in zones that can be aerated (diffusers or a fixed kLa)."""
-    can = np.array([z.has_diffusers or (z.aerated and z.fixed_kla_per_d is not None)
-                    for z in system.plant.layout.zones])
+    can = np.array([a is not None for a in system.plant.plant.aeration])
     return float(system.V[can].sum() / system.V.sum())
 
 
@@ -153,7 +152,7 @@ def check_washout(system: System, inp: Inputs, srt_d: float | None = None, y=Non
     f_aer = aerable_fraction(system)
     srt_min = minimum_srt_d(inp.params, f_aer)
     if srt < srt_min:
-        lay = system.plant.layout
+        path = system.plant.plant.path
         what = "the target sludge age"
         if srt_d is not None:
             _, info = system.rhs(y, inp, detail=True)
@@ -163,7 +162,7 @@ def check_washout(system: System, inp: Inputs, srt_d: float | None = None, y=Non
                     "lost over the weir)")
         limit = f"{srt_min:.3g} d" if np.isfinite(srt_min) else "any value"
         raise NoSteadyStateError(
-            f"{lay.path}: wasting: no steady state with nitrification: {what} ({srt:.3g} d) is below the "
+            f"{path}: wasting: no steady state with nitrification: {what} ({srt:.3g} d) is below the "
             f"nitrifiers' minimum sludge age at {inp.temperature_C:.3g} C ({limit}: mu_A {inp.params.mu_A:.3g} /d, "
             f"b_A {inp.params.b_A:.3g} /d, {100 * f_aer:.0f} % of the volume aerable); they wash out at any "
             "aeration (lengthen the sludge age, waste less, or aerate more of the volume)",
@@ -370,7 +369,7 @@ def _no_steady_message(system, inp, y, res, simulated) -> str:
     rate = np.abs(f) / np.maximum(np.abs(y), 1.0)
     k = int(np.argmax(rate))
     b, c = divmod(k, NC)
-    lay = system.plant.layout
-    where = lay.zones[b].id if b < system.nz else f"clarifier layer {b - system.nz + 1}"
-    return (f"{lay.path}: no steady state found: after {simulated:.0f} d of simulated time the plant still "
+    plant = system.plant.plant
+    where = plant.zone_ids[b] if b < system.nz else f"clarifier layer {b - system.nz + 1}"
+    return (f"{plant.path}: no steady state found: after {simulated:.0f} d of simulated time the plant still "
             f"changes (scaled rate {res:.3g} /d, largest in {ASM1_COMPONENTS[c]} of {where})")

@@ -21,8 +21,7 @@ from __future__ import annotations
 import warnings
 
 
-from airtaper.plant import resolve_plant
-from airtaper.units import HOURS_PER_DAY
+from airtaper.units import HOURS_PER_DAY, clock
 
 #: A DO-controlled zone counts as not holding its setpoint when its DO falls more than
 #: this below it. Ideal control follows the setpoint within a 1-minute time constant,
@@ -30,11 +29,6 @@ from airtaper.units import HOURS_PER_DAY
 SETPOINT_TOLERANCE_mg_L = 0.05
 
 _EFFLUENT_KEYS = ("SNH", "SNO", "tkn_mg_L", "tn_mg_L", "cod_mg_L", "tss_mg_L", "SS", "SO")
-
-
-def _clock(hours: float) -> str:
-    total = int(round(hours * 60.0)) % 1440 if hours < HOURS_PER_DAY else 1440
-    return f"{total // 60:02d}:{total % 60:02d}"
 
 
 def period_runs(periods, n_periods: int | None = None) -> list[list[int]]:
@@ -58,11 +52,11 @@ def period_runs(periods, n_periods: int | None = None) -> list[list[int]]:
 
 def span_text(runs_with_sizes, period_h: float) -> str:
     """``"0.41 mg/L 09:00-14:00, 0.2 mg/L 22:00-01:00"`` from ``[(run of 0-based periods, size text)]``."""
-    return ", ".join(f"{size} {_clock(r[0] * period_h)}-{_clock((r[-1] + 1) * period_h)}"
+    return ", ".join(f"{size} {clock(r[0] * period_h)}-{clock((r[-1] + 1) * period_h)}"
                      for r, size in runs_with_sizes)
 
 
-def setpoint_shortfalls(layout, extremes, setpoints_mg_L: dict) -> list:
+def setpoint_shortfalls(plant, extremes, setpoints_mg_L: dict) -> list:
     """Spans of periods in which a DO-controlled zone stays below its setpoint.
 
     ``extremes``: :func:`airtaper.simulate.run.do_extremes`; ``setpoints_mg_L``: zone
@@ -70,8 +64,8 @@ def setpoint_shortfalls(layout, extremes, setpoints_mg_L: dict) -> list:
     midnight too): ``zone``, ``setpoint_mg_L``, ``start_h``, ``end_h``,
     ``do_min_mg_L`` (the lowest DO of the span) and a ``message``.
     """
-    period_h = layout.horizon.period_h
-    n = layout.horizon.n_periods
+    period_h = plant.horizon.period_h  # the resolved plant's horizon (a Layout's is the same object)
+    n = plant.horizon.n_periods
     out = []
     for zid, sp in setpoints_mg_L.items():
         g = extremes[extremes["zone"] == zid].sort_values("period")
@@ -83,23 +77,23 @@ def setpoint_shortfalls(layout, extremes, setpoints_mg_L: dict) -> list:
             out.append({"zone": zid, "setpoint_mg_L": float(sp), "start_h": start, "end_h": end,
                         "do_min_mg_L": lowest,
                         "message": f"zone {zid} cannot hold its DO setpoint of {sp:g} mg/L "
-                                   f"{_clock(start)}-{_clock(end)}: at full air its DO falls to {lowest:.2f} mg/L"})
+                                   f"{clock(start)}-{clock(end)}: at full air its DO falls to {lowest:.2f} mg/L"})
     return out
 
 
 def summarize(result) -> dict:
     """JSON-ready summary of a :class:`~airtaper.simulate.run.PeriodicResult`."""
-    lay = result.layout
+    plant = result.plant
     eff = result.effluent
     quad, ex = result.quadrature, result.do_extremes
-    zone_ids = [z.id for z in lay.zones]
+    zone_ids = list(plant.zone_ids)
     qe = quad.effluent
     effluent = {}
     for key in _EFFLUENT_KEYS:
         effluent[key] = {"mean": quad.mean(qe[key], flow_weighted=True),
                          "max": float(max(qe[key].max(), eff[key].max()))}
     w = quad.weight
-    air = resolve_plant(lay).air
+    air = plant.air
     with warnings.catch_warnings():  # curve extrapolation is reported where the airflow is chosen
         warnings.simplefilter("ignore")
         power = air.step_power_kW({zid: quad.airflow_Sm3_h[:, i] for i, zid in enumerate(zone_ids)}, quad.period)
@@ -116,10 +110,10 @@ def summarize(result) -> dict:
             "air_Sm3_per_day": float(HOURS_PER_DAY * w @ quad.airflow_Sm3_h[:, i]),
             "oxygen_kg_per_day": float(HOURS_PER_DAY * w @ quad.otr_kg_h[:, i]),
         }
-    shortfalls = setpoint_shortfalls(lay, ex, result.setpoints_mg_L)
+    shortfalls = setpoint_shortfalls(plant, ex, result.setpoints_mg_L)
     return {
-        "plant": lay.plant.name,
-        "layout": lay.path,
+        "plant": plant.name,
+        "layout": plant.path,
         "days_simulated": int(result.days),
         "periodic": bool(result.converged),
         "day_change": float(result.day_change),

@@ -16,11 +16,15 @@ bulk flow up (``v_up = Q_e/A``) above the feed and down (``v_dn = Q_u/A``)
 below it; gravity flux of solids between layer ``i`` and the one below
 ``i+1``::
 
-    J = min(vs_i X_i, vs_i+1 X_i+1)                   at and below the feed layer (smoothed, see
-                                                      _FLUX_SMOOTHING)
+    J = min(vs_i X_i, vs_i+1 X_i+1)                   at and below the feed layer
     J = vs_i X_i  if X_i+1 <= X_t  else  the same min  above the feed layer
     vs(X) = max(0, min(v0', v0 (exp(-rh (X - X_min)) - exp(-rp (X - X_min))))),
     X_min = fns X_feed
+
+with ``min``, ``max`` and the switch smoothed exactly as in the Pyomo model: both compute the
+fluxes with :func:`airtaper.physics.settling.gravity_flux_g_m2_d` and
+:func:`~airtaper.physics.settling.interface_flux_g_m2_d` (a smooth minimum whose width scales
+with the fluxes; see there how far it moves the result).
 
 with X the suspended solids (``tss_per_cod`` times the particulate COD).
 Each particulate component moves with the solids flux in proportion to its
@@ -56,8 +60,9 @@ import scipy.sparse as sp
 
 from airtaper import units
 from airtaper.layout.types import ASM1_COMPONENTS
-from airtaper.physics.settling import limiting_solids_flux_g_m2_d, takacs_velocity_m_d
-from airtaper.physics.smooth import smooth_min
+from airtaper.physics.settling import (
+    gravity_flux_g_m2_d, interface_flux_g_m2_d, limiting_solids_flux_g_m2_d, takacs_velocity_m_d,
+)
 from airtaper.process.stoichiometry import (
     IDX, PARTICULATES, SOLIDS_COD, cod_composition, cod_of_n2, n2_yield, n_composition,
 )
@@ -73,10 +78,6 @@ TAU_DO_d = 1.0 / 1440.0
 #: Smallest driving force used when solving the DO-control kLa, mg/L.
 _MIN_DRIVING_FORCE = 0.05
 _TINY_X = 1e-6
-#: Smoothing of min(J_i, J_i+1) in the settler, g/(m2 d): ``(a + b - sqrt((a - b)^2 + eps^2)) / 2``
-#: differs from the min by at most eps/2 (about 1e-5 of the BSM1 thickening fluxes) and
-#: removes the kink that sits exactly at the steady state of a flux-limited thickening zone.
-_FLUX_SMOOTHING = 1.0
 
 
 class System:
@@ -84,7 +85,6 @@ class System:
 
     def __init__(self, plant: PlantData):
         self.plant = plant
-        lay = plant.layout
         self.nz = plant.nz
         self.n_layers = plant.n_layers
         self.nb = self.nz + self.n_layers
@@ -92,9 +92,9 @@ class System:
         self.V = plant.volume
         self.layered = plant.layered
         self.tss_per_cod = plant.tss_per_cod
-        clar = lay.clarifier
+        clar = plant.plant.clarifier
         self.effluent_tss = float(clar.effluent_tss_mg_L)
-        self.srt_target = lay.wasting.srt_d
+        self.srt_target = plant.plant.hydraulics.srt_d
         if self.layered:
             self.area = float(clar.area_m2)
             self.h = float(clar.height_m) / clar.layers
@@ -151,13 +151,11 @@ class System:
         if self.layered:
             A, f, L = self.area, self.feed, self.n_layers
             vup, vdn = qe / A, qu / A
-            vs = takacs_velocity_m_d(X, self.fns * xf, self.v0max, self.v0, self.rh, self.rp)
-            js = vs * X
-            a, b = js[:-1], js[1:]
-            jmin = smooth_min(a, b, _FLUX_SMOOTHING)
-            J = jmin.copy()
+            js = gravity_flux_g_m2_d(X, self.fns * xf, self.v0max, self.v0, self.rh, self.rp)
+            J = np.empty((L - 1, m))
+            J[f:] = interface_flux_g_m2_d(js[f:-1], js[f + 1:])
             if f > 0:
-                J[:f] = np.where(X[1:f + 1] <= self.xt, js[:f], jmin[:f])
+                J[:f] = interface_flux_g_m2_d(js[:f], js[1:f + 1], X[1:f + 1], self.xt)
             frac = Cs[PART] / np.maximum(X, _TINY_X)
             F = J[None] * frac[:, :-1]
             dS = np.empty_like(Cs)
@@ -337,7 +335,7 @@ class System:
         """Structural non-zeros of the Jacobian (boolean, CSC)."""
         if self._pattern is not None:
             return self._pattern
-        lay = self.plant.layout
+        hyd = self.plant.plant.hydraulics
         nz, nb = self.nz, self.nb
         P = np.zeros((self.n, self.n), dtype=bool)
         all_c = np.arange(NC)
@@ -354,9 +352,9 @@ class System:
             put(i, i, all_c, all_c)
             if i > 0:
                 diag(i, i - 1)
-        for rec in lay.recycles:
-            diag(lay.zone_index(rec.to_zone), lay.zone_index(rec.from_zone))
-        r_to = lay.zone_index(lay.return_sludge.to_zone)
+        for src, dst, _ in hyd.recycles:
+            diag(dst, src)
+        r_to = hyd.ras_zone
         last = nz - 1
         srt = self.srt_target is not None
         if self.layered:

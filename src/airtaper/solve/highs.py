@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 
 from pyomo.common.collections import ComponentMap
 from pyomo.contrib.solver.common.results import TerminationCondition as TC
-from pyomo.contrib.solver.common.util import IncompatibleModelError
+from pyomo.contrib.solver.common.util import IncompatibleModelError, NoDualsError
 from pyomo.contrib.solver.solvers.highs import Highs
 from pyomo.core.base.var import Var
 
@@ -128,7 +128,10 @@ def solve_milp(model, *, time_limit: float | None = None, rel_gap: float | None 
     if has_solution and load_solution:
         res.solution_loader.load_vars()
     if status is SolveStatus.OPTIMAL and not is_mip:
-        duals = ComponentMap(res.solution_loader.get_duals().items())
+        try:
+            duals = ComponentMap(res.solution_loader.get_duals().items())
+        except NoDualsError:  # integer variables all fixed: HiGHS solves a MIP and keeps no duals
+            pass
     return MilpResult(
         status=status, message=message, objective=objective, bound=bound, gap=gap,
         has_solution=has_solution, is_mip=is_mip,
