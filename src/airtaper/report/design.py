@@ -101,7 +101,10 @@ def taper_figure_png(zones) -> bytes | None:
 
 
 def train_png(layout) -> bytes | None:
-    """The report layer's drawing of a train (zones to scale by volume, density as dots, flows as arrows)."""
+    """The report layer's drawing of a train (zones to scale by volume, density as dots, flows as arrows); None
+    without a layout."""
+    if layout is None:
+        return None
     fig = train_figure(SimpleNamespace(plant=resolve_plant(layout)))
     if fig is None:
         return None
