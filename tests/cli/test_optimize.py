@@ -65,6 +65,25 @@ def test_bad_input_exits_2_without_traceback(tmp_path, capsys):
     assert "Traceback" not in err and "error:" in err
     assert main(["optimize", str(THREE), "--out", str(tmp_path / "o"), "--smoothing-weight", "-1"]) == EXIT_INPUT
     assert "--smoothing-weight" in capsys.readouterr().err
+    assert main(["optimize", str(THREE), "--out", str(tmp_path / "o"), "--solve-budget", "0"]) == EXIT_INPUT
+    err = capsys.readouterr().err
+    assert "--solve-budget: must be a finite number (got 0.0, expected >= 1)" in err and len(err.splitlines()) == 1
+    assert not (tmp_path / "o").exists()
+
+
+def test_the_solve_budget_option_reaches_the_study(tmp_path, monkeypatch):
+    """``--solve-budget`` sets the CPU seconds of the run's Ipopt solves (optimize/attempts.SolveBudget)."""
+    import airtaper.optimize.diurnal as diurnal
+
+    seen = {}
+
+    def fake(plant, options=None, progress=None, baseline=None):
+        seen["budget"] = options.solve_budget_s
+        raise KeyboardInterrupt  # stop before any work; the output folder is left untouched
+
+    monkeypatch.setattr(diurnal, "run_optimization", fake)
+    code = main(["optimize", str(THREE), "--out", str(tmp_path / "o"), "--quiet", "--solve-budget", "900"])
+    assert code != EXIT_OK and seen["budget"] == 900.0
 
 
 def test_output_folder_holding_the_layout_is_refused(tmp_path, capsys):

@@ -42,6 +42,9 @@ def register(subparsers) -> None:
     p.add_argument("--mixing-min", type=float, metavar="SM3_H_M2",
                    help="mixing minimum airflow per floor area for every aerated zone, Sm3/(m2 h)")
     p.add_argument("--baseline-do", type=float, metavar="MG_L", help="DO setpoint of the baseline (default 2.0)")
+    p.add_argument("--solve-budget", type=float, metavar="CPU_S",
+                   help="CPU seconds all of the run's Ipopt solves may take together before the run ends "
+                        "with exit 3 (default 420; raise it for large plants or many periods)")
     p.add_argument("--no-figure", action="store_true", help="skip schedule.png")
     p.add_argument("--no-report", action="store_true",
                    help="write the tables and summary.json only (build the report later with `airtaper report DIR`)")
@@ -51,7 +54,8 @@ def register(subparsers) -> None:
 
 def _check(args) -> list[Problem]:
     return number_option_problems((("--smoothing-weight", args.smoothing_weight, 0.0),
-                                   ("--mixing-min", args.mixing_min, 0.0), ("--baseline-do", args.baseline_do, 1e-9)))
+                                   ("--mixing-min", args.mixing_min, 0.0), ("--baseline-do", args.baseline_do, 1e-9),
+                                   ("--solve-budget", args.solve_budget, 1.0)))
 
 
 def _load_day(path, layout, day_id: str):
@@ -86,7 +90,8 @@ def run(args) -> int:
         raise InputError(Problem(args.layout, "--objective", "a cost objective needs a [tariff] in the layout",
                                  "cost", '"energy", or add [tariff]'))
     options = StudyOptions(objective=args.objective, smoothing_weight=args.smoothing_weight,
-                           mixing_airflow_min_Sm3_h_m2=args.mixing_min, baseline_do_setpoint_mg_L=args.baseline_do)
+                           mixing_airflow_min_Sm3_h_m2=args.mixing_min, baseline_do_setpoint_mg_L=args.baseline_do,
+                           **({} if args.solve_budget is None else {"solve_budget_s": args.solve_budget}))
     inputs = layout_input_files(args.layout, plant.layout) + ([args.overrides] if args.overrides else [])
     with output_folder(args.out, inputs=inputs, overwrite=args.overwrite) as out:
         progress = Progress(enabled=not args.quiet)

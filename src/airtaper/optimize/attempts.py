@@ -123,7 +123,8 @@ class SolveBudget:
         iterations = sum(int(a.get("iterations") or 0) for a in attempts)
         return (f"the optimiser did not settle within its solve budget of {self.seconds:.0f} CPU seconds "
                 f"({len(attempts)} attempts, {iterations} iterations): no schedule is given. This says "
-                "nothing about whether the limits can be met; try fewer periods, or check the layout "
+                "nothing about whether the limits can be met; give it more time (--solve-budget), try fewer "
+                "periods, or check the layout "
                 "(a plant near the edge of its equipment or its clarifier's capacity)")
 
 
