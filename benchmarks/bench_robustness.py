@@ -243,7 +243,7 @@ def main(argv=None) -> int:
     base = Path(args.keep) if args.keep else Path(tempfile.mkdtemp(prefix="airtaper-robustness-"))
     counts: dict[str, int] = {}
     total = 0
-    print(f"{'plant':>12} {'zones':>5} {'clar':>7} {'load':>5} {'T_C':>5} {'exit':>4} {'s':>7}  outcome: message")
+    print(f"{'plant':>12} {'zones':>5} {'clar':>7} {'load':>5} {'T_C':>5} {'exit':>4} {'s':>7} {'load':>5}  outcome: message")
     for seed in seeds:
         rng = np.random.default_rng(seed)
         for k in range(args.first + args.n):
@@ -253,9 +253,10 @@ def main(argv=None) -> int:
             outcome, code, seconds, msg = run_plant(text, base / f"{seed}-{k:03d}", args.timeout, args.cpu)
             counts[outcome] = counts.get(outcome, 0) + 1
             total += 1
+            load1 = os.getloadavg()[0]
             print(f"{seed % 1000:>5}-{k:<6d} {desc['zones']:>5} {desc['clarifier']:>7} {desc['load']:>5} "
-                  f"{desc['temperature_C']:>5} {code if code is not None else '-':>4} {seconds:>7.1f}  "
-                  f"{outcome}: {msg[:220]}", flush=True)
+                  f"{desc['temperature_C']:>5} {code if code is not None else '-':>4} {seconds:>7.1f} "
+                  f"{load1:>5.1f}  {outcome}: {msg[:220]}", flush=True)
     good = counts.get("verified", 0) + counts.get("diagnosed", 0)
     print(f"\n{total} plants: " + ", ".join(f"{k} {v}" for k, v in sorted(counts.items()))
           + f"; verified or diagnosed {100.0 * good / max(total, 1):.0f} % (target >= 98 %, no failure)")
