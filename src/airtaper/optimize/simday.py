@@ -178,7 +178,8 @@ def simulate_day(plant: ResolvedPlant | Layout, schedule: dict | None = None, do
     return SimDay(plant=plant, timeseries=ts, effluent=eff, time_h=time_h, period=period, airflow=airflow, do=do,
                   conc=conc, power_kW=power, energy_kWh_per_day=energy, cost_per_day=cost, figures=figs,
                   converged=bool(res.converged), days=int(res.days), seconds=time.perf_counter() - t0,
-                  extra={"waste_m3_d": eff["q_waste_m3_d"].to_numpy(), "y_end": res.y_end}, do_extremes=ex,
+                  extra={"waste_m3_d": eff["q_waste_m3_d"].to_numpy(), "y_end": res.y_end,
+                         "start_clarifier": res.start.clarifier if res.start is not None else None}, do_extremes=ex,
                   node_airflow=quad.airflow_Sm3_h, node_period=quad.period, node_weight=quad.weight,
                   node_power_kW=node_power,
                   setpoint_shortfalls=shortfalls, layers=res.layer_states)
