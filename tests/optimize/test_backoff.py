@@ -8,6 +8,7 @@ import pytest
 from airtaper.errors import EXIT_OK
 from airtaper.optimize.backoff import ACCEPT_mg_L, shortfalls
 from airtaper.optimize.diurnal import StudyOptions, run_optimization
+from airtaper.plant import resolve_plant
 
 #: The issue's acceptance: the re-simulated DO, over continuous time, at least the minimum less this.
 DO_ACCEPT_mg_L = 0.01
@@ -18,11 +19,11 @@ def test_shortfalls_name_only_the_zone_periods_below_the_minimum(demo):
     lows["Z2"][5] = 1.0 - 2 * ACCEPT_mg_L
     lows["Z3"][7] = 1.0 - 0.5 * ACCEPT_mg_L  # within the acceptance: no back-off
     backoff = {(z, p): 0.0 for z in ("Z2", "Z3") for p in range(1, 25)}
-    found = shortfalls(demo, lows, backoff, list(range(1, 25)))
+    found = shortfalls(resolve_plant(demo), lows, backoff, list(range(1, 25)))
     assert found == {("Z2", 6): pytest.approx(2 * ACCEPT_mg_L)}  # Z1 (anoxic, no DO minimum) is not asked
     highs = {"Z6": np.full(24, 2.0)}
     highs["Z6"][3] = 2.5 + 0.3  # Z6's DO maximum is 2.5 mg/L (layouts/demo.toml)
-    low, high = shortfalls(demo, lows, backoff, list(range(1, 25)), highs, {("Z6", p): 0.0 for p in range(1, 25)})
+    low, high = shortfalls(resolve_plant(demo), lows, backoff, list(range(1, 25)), highs, {("Z6", p): 0.0 for p in range(1, 25)})
     assert low == found and high == {("Z6", 4): pytest.approx(0.3)}
 
 
@@ -32,8 +33,8 @@ def test_a_swing_zone_is_backed_off_only_in_periods_aerated_after_an_aerated_per
     lows = {"Z2": np.full(6, 0.0)}
     on = np.array([False, True, True, True, False, False])
     backoff = {("Z2", p): 0.0 for p in range(1, 7)}
-    assert set(shortfalls(demo, lows, backoff, list(range(1, 7)))) == {("Z2", p) for p in range(1, 7)}
-    found = shortfalls(demo, lows, backoff, list(range(1, 7)), swing_states={"Z2": on})
+    assert set(shortfalls(resolve_plant(demo), lows, backoff, list(range(1, 7)))) == {("Z2", p) for p in range(1, 7)}
+    found = shortfalls(resolve_plant(demo), lows, backoff, list(range(1, 7)), swing_states={"Z2": on})
     assert set(found) == {("Z2", 3), ("Z2", 4)}  # period 2 is the switch-on, 1, 5 and 6 are off
 
 
@@ -42,7 +43,7 @@ def test_back_offs_leave_half_of_a_zone_s_do_range_open(demo):
 
     low = {("Z6", 1): 0.2, ("Z6", 2): 1.0}
     high = {("Z6", 1): 1.0, ("Z6", 2): 0.5}
-    _keep_band_open(demo, (low, high))
+    _keep_band_open(resolve_plant(demo), (low, high))
     room = (1.0 - OPEN_SHARE) * (2.5 - 1.0)  # Z6: DO range 1.0..2.5 mg/L (layouts/demo.toml)
     assert low[("Z6", 1)] == 0.2 and high[("Z6", 1)] == pytest.approx(room - 0.2)  # the minimum first
     assert low[("Z6", 2)] == pytest.approx(room) and high[("Z6", 2)] == pytest.approx(0.0)

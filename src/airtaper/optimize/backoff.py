@@ -72,7 +72,7 @@ RESOLVE = Rung("DO back-off re-solve", {"mu_strategy": "adaptive", "max_iter": 1
 REFINED_STEP_H = 0.5
 
 
-def shortfalls(layout, day_do_min: dict, backoff: dict, periods, day_do_max: dict | None = None,
+def shortfalls(plant, day_do_min: dict, backoff: dict, periods, day_do_max: dict | None = None,
                backoff_max: dict | None = None, swing_states: dict | None = None) -> tuple[dict, dict] | dict:
     """(zone, period) -> excursion (positive, mg/L) below the minimum [and above the maximum].
 
@@ -86,7 +86,7 @@ def shortfalls(layout, day_do_min: dict, backoff: dict, periods, day_do_max: dic
     low = {}
     swing_states = swing_states or {}
     for z, lows in day_do_min.items():
-        zone = layout.zone(z)
+        zone = plant.zone(z)
         if zone.do_min_mg_L is None or (z, periods[0]) not in backoff:
             continue
         for p in periods:
@@ -100,7 +100,7 @@ def shortfalls(layout, day_do_min: dict, backoff: dict, periods, day_do_max: dic
         return low
     high = {}
     for z, highs in day_do_max.items():
-        zone = layout.zone(z)
+        zone = plant.zone(z)
         if zone.do_max_mg_L is None or (z, periods[0]) not in (backoff_max or {}):
             continue
         for p in periods:
@@ -150,7 +150,7 @@ def _excursion_points(m, ex, found: dict, column: str) -> dict:
     return out
 
 
-def _keep_band_open(layout, values) -> None:
+def _keep_band_open(plant, values) -> None:
     """Limit the back-offs of a zone and time point so :data:`OPEN_SHARE` of its DO range stays open.
 
     The minimum comes first (it is what the plant needs); the maximum's back-off gets
@@ -158,7 +158,7 @@ def _keep_band_open(layout, values) -> None:
     """
     low, high = values
     for (z, t), b_hi in high.items():
-        zone = layout.zone(z)
+        zone = plant.zone(z)
         room = (1.0 - OPEN_SHARE) * (zone.do_max_mg_L - (zone.do_min_mg_L or 0.0))
         b_lo = min(low.get((z, t), 0.0), room)
         if (z, t) in low:
@@ -208,7 +208,7 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
     while rounds < MAX_ROUNDS and not refine:
         ex = day.do_extremes
         highs = {z: g.sort_values("period")["do_max_mg_L"].to_numpy() for z, g in ex.groupby("zone", sort=False)}
-        found = shortfalls(study.layout, day.do_min_by_period(), held[0], periods, highs, held[1],
+        found = shortfalls(study.plant, day.do_min_by_period(), held[0], periods, highs, held[1],
                            study.problem.swing_states)
         if not any(found):
             break
@@ -222,7 +222,7 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
         for vals, excursions, column in zip(values, found, ("do_min", "do_max")):
             for k, s in _excursion_points(m, ex, excursions, column).items():
                 vals[k] += GAIN * s + CUSHION_mg_L
-        _keep_band_open(study.layout, values)
+        _keep_band_open(study.plant, values)
         for prm, vals in zip(params, values):
             for k, v in vals.items():
                 prm[k] = v

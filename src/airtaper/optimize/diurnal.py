@@ -136,12 +136,6 @@ class DiurnalOptimisation:
             self.timings["baseline_s"] = time.perf_counter() - t
         return self.baseline
 
-    @property
-    def layout(self) -> Layout:
-        """The plant's layout, for the modules that still take one (the DO back-off and the design's grid
-        variants)."""
-        return self.plant.layout
-
     def reference(self) -> float:
         base = self.run_baseline()
         objective = self.options.objective or self.plant.operation.objective
