@@ -107,3 +107,66 @@ def test_model_steps_longer_than_half_an_hour_are_refined_to_half_an_hour():
     assert refined_steps_per_period(1.0, 2) is None  # the demo's own 30-minute steps
     assert refined_steps_per_period(0.5, 1) is None
     assert refined_steps_per_period(24.0 / 7, 1) == 7  # a step of at most 30 minutes
+
+
+def test_a_failed_back_off_round_is_undone_alone(three_tank_6):
+    """Round 1 re-solves, round 2's re-solve fails: the back-offs, schedule, solver result and verification
+    are round 1's (the failed round alone is undone, not the rounds before it). No Ipopt: the re-solves and
+    the re-simulated days are stand-ins, the model and its back-off parameters are the real ones."""
+    from dataclasses import replace
+    from types import SimpleNamespace
+
+    import pyomo.environ as pyo
+
+    from airtaper.optimize.backoff import CUSHION_mg_L, GAIN, hold_do
+    from airtaper.optimize.diurnal import DiurnalOptimisation
+
+    study = DiurnalOptimisation(three_tank_6, StudyOptions(marginal=False))
+    study.build()
+    m = study.m
+    plant = study.plant
+    day0 = study.baseline.day
+    ex = day0.do_extremes.copy()
+    # every zone and period inside its DO range, but T2 below its minimum in period 2 (4-8 h), at 5 h
+    for i, r in ex.iterrows():
+        z = plant.zone(r.zone)
+        lo = z.do_min_mg_L or 0.0
+        hi = z.do_max_mg_L if z.do_max_mg_L is not None else lo + 2.0
+        ex.loc[i, ["do_min_mg_L", "do_max_mg_L"]] = [lo + 0.25 * (hi - lo), lo + 0.5 * (hi - lo)]
+    row = (ex.zone == "T2") & (ex.period == 1)
+    low = plant.zone("T2").do_min_mg_L
+
+    def day_short_by(short):
+        e = ex.copy()
+        e.loc[row, "do_min_mg_L"] = low - short
+        e.loc[row, "do_min_time_h"] = 5.0
+        return replace(day0, do_extremes=e)
+
+    days = [day_short_by(0.02), day_short_by(0.01)]
+    seen = []
+
+    def verify():
+        seen.append(len(seen))
+        return {"verified": False, "n": len(seen)}, days[len(seen) - 1]
+
+    q = m.airflow_Sm3_h["T2", 1]
+    solves = []
+
+    def resolve_once(rung):
+        solves.append(rung)
+        q.set_value(111.0 * len(solves))  # what the "solve" moved
+        r = SimpleNamespace(ok=len(solves) == 1)
+        if r.ok:
+            study.result = r
+        return r
+
+    study.resolve_once = resolve_once
+    hold = hold_do(study, verify)
+    first = GAIN * 0.02 + CUSHION_mg_L
+    assert len(solves) == 2 and hold["rounds"] == 2 and hold["resolve_failed"] is True
+    assert hold["backoff_mg_L"] == {"T2/2": pytest.approx(first)}  # round 1's, not round 2's nor none
+    backed = {k: float(pyo.value(v)) for k, v in m.opt.do_backoff_mg_L.items() if pyo.value(v) > 0}
+    assert backed and all(k[0] == "T2" and m.period_of_step[k[1]] == 2 for k in backed)
+    assert all(v == pytest.approx(first) for v in backed.values())
+    assert q.value == 111.0 and study.result is not None and study.result.ok  # round 1's schedule and result
+    assert hold["verification"]["n"] == 2 and hold["day"] is days[1]  # round 1's re-simulation

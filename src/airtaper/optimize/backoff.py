@@ -70,6 +70,9 @@ RESOLVE = Rung("DO back-off re-solve", {"mu_strategy": "adaptive", "max_iter": 1
 #: Model step (h) of a study solved again when the back-off on longer steps cannot hold the
 #: DO range (module notes): the demo's own step, where the back-off is known to converge.
 REFINED_STEP_H = 0.5
+#: First rung of the study solved again on :data:`REFINED_STEP_H` steps, started from the coarse
+#: schedule's re-simulated day (:func:`refined_options`).
+REFINED_START = Rung("start from the coarse schedule", {"mu_strategy": "adaptive"})
 
 
 def shortfalls(layout, day_do_min: dict, backoff: dict, periods, day_do_max: dict | None = None,
@@ -180,10 +183,11 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
     """Back-off rounds on a solved :class:`~airtaper.optimize.diurnal.DiurnalOptimisation`.
 
     ``verify()`` re-simulates the current schedule and returns ``(verification dict,
-    SimDay)``. Returns ``{"verification", "rounds", "backoff_mg_L", "backoff_max_mg_L",
+    SimDay)``. Returns ``{"verification", "day" (the last re-simulated SimDay), "rounds", "backoff_mg_L", "backoff_max_mg_L",
     "largest_backoff_mg_L", "backed_off_points", "energy_before_kWh_per_day", "seconds",
     "resolve_failed", "relaxed"}`` (the back-offs as "zone/period" -> the period's largest);
-    the model is left at the last schedule that solved. ``relax()``, when given, is called once
+    the model is left at the last schedule that solved. A round whose re-solve fails is undone alone:
+    the back-offs, schedule and verification of the rounds before it are kept. ``relax()``, when given, is called once
     before the first re-solve: the staged blowers' fixed machine set caps the airflow of every
     period, and a back-off that needs more air than that set gives has no solution until the
     machines are chosen again (:func:`airtaper.optimize.staging.redispatch` does that on the
@@ -243,11 +247,26 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
             failed = True
             break
         ver, day = verify()
-    return {"verification": ver, "rounds": rounds, "resolve_failed": failed, "relaxed": relaxed, "refine": refine,
+    return {"verification": ver, "day": day, "rounds": rounds, "resolve_failed": failed, "relaxed": relaxed,
+            "refine": refine,
             "backoff_mg_L": _by_period(m, values[0]), "backoff_max_mg_L": _by_period(m, values[1]),
             "backed_off_points": sum(v > 0.0 for vals in values for v in vals.values()),
             "largest_backoff_mg_L": float(max([*values[0].values(), *values[1].values()], default=0.0)),
             "energy_before_kWh_per_day": energy0, "seconds": time.perf_counter() - t0}
+
+
+def refined_options(options, steps_per_period: int):
+    """The options of the study solved again on ``steps_per_period`` shorter steps (module notes).
+
+    No second pre-screen; a solve budget of its own, the run's budget again (``solve_budget_s``: what the
+    coarse solves spent is not taken from it, so a run's solves take at most twice the budget); the first
+    solve and the staging rounds start at :data:`REFINED_START`'s barrier (the start is the coarse
+    schedule's re-simulated day, near the optimum); the rest of the retry ladder as usual.
+    """
+    from dataclasses import replace
+
+    return replace(options, steps_per_period=steps_per_period, prescreen=False,
+                   ladder=(REFINED_START, *options.ladder[1:]))
 
 
 def refined_steps_per_period(period_h: float, steps_per_period: int) -> int | None:
@@ -257,5 +276,5 @@ def refined_steps_per_period(period_h: float, steps_per_period: int) -> int | No
     return int(math.ceil(period_h / REFINED_STEP_H - 1e-9))
 
 
-__all__ = ["ACCEPT_mg_L", "CUSHION_mg_L", "GAIN", "MAX_ROUNDS", "OPEN_SHARE", "REFINED_STEP_H", "RESOLVE", "hold_do",
-           "points_at", "refined_steps_per_period", "shortfalls"]
+__all__ = ["ACCEPT_mg_L", "CUSHION_mg_L", "GAIN", "MAX_ROUNDS", "OPEN_SHARE", "REFINED_START", "REFINED_STEP_H", "RESOLVE",
+           "hold_do", "points_at", "refined_options", "refined_steps_per_period", "shortfalls"]
