@@ -109,21 +109,18 @@ def test_model_steps_longer_than_half_an_hour_are_refined_to_half_an_hour():
     assert refined_steps_per_period(24.0 / 7, 1) == 7  # a step of at most 30 minutes
 
 
-def test_a_failed_back_off_round_is_undone_alone(three_tank_6):
-    """Round 1 re-solves, round 2's re-solve fails: the back-offs, schedule, solver result and verification
-    are round 1's (the failed round alone is undone, not the rounds before it). No Ipopt: the re-solves and
-    the re-simulated days are stand-ins, the model and its back-off parameters are the real ones."""
+def _stand_in_rounds(three_tank_6, shorts, ok):
+    """A built three-tank study whose back-off rounds run on stand-ins: the re-simulated days say T2 is ``shorts[k]``
+    mg/L below its minimum in period 2 (at 5 h) on the k-th re-simulation; the k-th re-solve moves T2's airflow
+    in period 1 to 111 k and solves when ``ok(k)``. No Ipopt; the model and its back-off parameters are real."""
     from dataclasses import replace
     from types import SimpleNamespace
 
-    import pyomo.environ as pyo
-
-    from airtaper.optimize.backoff import CUSHION_mg_L, GAIN, hold_do
+    from airtaper.optimize.backoff import hold_do
     from airtaper.optimize.diurnal import DiurnalOptimisation
 
     study = DiurnalOptimisation(three_tank_6, StudyOptions(marginal=False))
     study.build()
-    m = study.m
     plant = study.plant
     day0 = study.baseline.day
     ex = day0.do_extremes.copy()
@@ -142,31 +139,60 @@ def test_a_failed_back_off_round_is_undone_alone(three_tank_6):
         e.loc[row, "do_min_time_h"] = 5.0
         return replace(day0, do_extremes=e)
 
-    days = [day_short_by(0.02), day_short_by(0.01)]
-    seen = []
+    days = [day_short_by(s) for s in shorts]
+    seen, solves = [], []
 
     def verify():
         seen.append(len(seen))
-        return {"verified": False, "n": len(seen)}, days[len(seen) - 1]
+        return {"verified": False, "n": len(seen)}, days[min(len(seen), len(days)) - 1]
 
-    q = m.airflow_Sm3_h["T2", 1]
-    solves = []
+    q = study.m.airflow_Sm3_h["T2", 1]
 
-    def resolve_once(rung):
-        solves.append(rung)
+    def resolve_once(rung, warm=True):
+        solves.append(warm)
         q.set_value(111.0 * len(solves))  # what the "solve" moved
-        r = SimpleNamespace(ok=len(solves) == 1)
+        r = SimpleNamespace(ok=ok(len(solves)))
         if r.ok:
             study.result = r
         return r
 
     study.resolve_once = resolve_once
-    hold = hold_do(study, verify)
+    return study, hold_do(study, verify), days, solves, q
+
+
+def _backed_off(study) -> dict:
+    import pyomo.environ as pyo
+
+    m = study.m
+    out = {k: float(pyo.value(v)) for k, v in m.opt.do_backoff_mg_L.items() if pyo.value(v) > 0}
+    assert out and all(k[0] == "T2" and m.period_of_step[k[1]] == 2 for k in out)
+    return out
+
+
+def test_a_failed_back_off_round_is_undone_alone(three_tank_6):
+    """Round 1 re-solves, every re-solve of round 2 fails (also with less back-off): the back-offs, schedule,
+    solver result and verification are round 1's (the failed round alone is undone, not the rounds before it)."""
+    from airtaper.optimize.backoff import CUSHION_mg_L, DAMPED_TRIES, GAIN
+
+    study, hold, days, solves, q = _stand_in_rounds(three_tank_6, [0.02, 0.01], lambda k: k == 1)
     first = GAIN * 0.02 + CUSHION_mg_L
-    assert len(solves) == 2 and hold["rounds"] == 2 and hold["resolve_failed"] is True
+    assert len(solves) == 1 + 1 + DAMPED_TRIES and hold["rounds"] == 2 and hold["resolve_failed"] is True
+    assert hold["failed_resolves"] == 1 + DAMPED_TRIES
     assert hold["backoff_mg_L"] == {"T2/2": pytest.approx(first)}  # round 1's, not round 2's nor none
-    backed = {k: float(pyo.value(v)) for k, v in m.opt.do_backoff_mg_L.items() if pyo.value(v) > 0}
-    assert backed and all(k[0] == "T2" and m.period_of_step[k[1]] == 2 for k in backed)
-    assert all(v == pytest.approx(first) for v in backed.values())
+    assert all(v == pytest.approx(first) for v in _backed_off(study).values())
     assert q.value == 111.0 and study.result is not None and study.result.ok  # round 1's schedule and result
     assert hold["verification"]["n"] == 2 and hold["day"] is days[1]  # round 1's re-simulation
+
+
+def test_a_failed_back_off_re_solve_is_tried_again_with_less_back_off(three_tank_6):
+    """Round 2's first re-solve fails, its second (DAMPING times round 2's new back-offs) solves: that is kept,
+    warm from round 1's multipliers (not the failed attempt's)."""
+    from airtaper.optimize.backoff import CUSHION_mg_L, DAMPING, GAIN
+
+    study, hold, days, solves, q = _stand_in_rounds(three_tank_6, [0.02, 0.01, 0.0], lambda k: k != 2)
+    want = GAIN * 0.02 + CUSHION_mg_L + DAMPING * (GAIN * 0.01 + CUSHION_mg_L)
+    assert len(solves) == 3 and hold["rounds"] == 2 and hold["resolve_failed"] is False
+    assert hold["failed_resolves"] == 1 and solves[2] is not True  # warm from round 1's result
+    assert hold["backoff_mg_L"] == {"T2/2": pytest.approx(want)}
+    assert all(v == pytest.approx(want) for v in _backed_off(study).values())
+    assert q.value == 333.0 and hold["verification"]["n"] == 3

@@ -272,9 +272,11 @@ class DiurnalOptimisation:
         self.result = r
         return r
 
-    def resolve_once(self, rung: Rung):
-        """One warm solve from the current point with ``rung`` (no ladder); the result (kept when it solved)."""
-        r = self._ipopt(rung, warm_start=True)
+    def resolve_once(self, rung: Rung, warm=True):
+        """One warm solve from the current point with ``rung`` (no ladder); the result (kept when it solved).
+
+        ``warm``: True, the multipliers of the last solve; a solver result, its multipliers."""
+        r = self._ipopt(rung, warm_start=warm)
         if r.ok:
             self.result = r
         return r
