@@ -167,4 +167,53 @@ def test_complying_search_finds_a_narrow_span_between_an_nh4_breach_and_a_do_max
     monkeypatch.setattr(bl, "_try", fake_try)
     found = bl.complying_baseline(demo6, trial(2.0))
     assert found is not None and 2.55 <= found.setpoint_mg_L <= 2.55 + SEARCH_TOL_mg_L
-    assert max(tried) == 3.0 and min(tried) > 2.0 and len(tried) <= 8
+    # the top of the range first (NH4-N met there), then the steps as before
+    assert tried[0] == search_range(demo6)[1] and max(tried[1:]) == 3.0 and min(tried) > 2.0 and len(tried) <= 9
+
+
+def test_complying_search_ends_at_the_top_when_nh4_is_broken_there(monkeypatch, demo6):
+    """NH4-N above its limit at every setpoint (falling with more oxygen, as in the cold demo): one trial, at the
+    top of the range, and no search either way (it took 8 simulated trials on the cold demo)."""
+    import airtaper.optimize.baseline as bl
+
+    limit = demo6.limits.nh4_mean_mg_L
+    tried = []
+
+    def trial(sp):
+        nh4 = limit * (1.0 + 0.2 * (7.0 - sp))  # meets the limit only from 7 mg/L, above the range
+        return _FakeBaseline(sp, ["NH4-N"], {"nh4_mean_mg_L": nh4, "nh4_max_mg_L": 0.0})
+
+    def fake_try(plant_, sp, start):
+        tried.append(sp)
+        return trial(sp)
+
+    monkeypatch.setattr(bl, "_try", fake_try)
+    assert bl.complying_baseline(demo6, trial(2.0)) is None
+    assert tried == [search_range(demo6)[1]]
+
+
+def test_nh4_falls_as_the_uniform_setpoint_rises(demo6):
+    """The premise of ending the search at the top of the range, on the plant: with an NH4-N limit that even the
+    top setpoint breaks, every setpoint below breaks it too, and the search ends after one trial."""
+    import airtaper.optimize.baseline as bl
+
+    hi = search_range(demo6)[1]
+    base = run_baseline(demo6, 2.0)
+    top = run_baseline(demo6, hi, start_state=base.day.start_state())
+    mid = run_baseline(demo6, 0.5 * (2.0 + hi), start_state=top.day.start_state())
+    nh4 = [b.day.figures["nh4_mean_mg_L"] for b in (base, mid, top)]
+    assert nh4[0] > nh4[1] > nh4[2]  # more oxygen nitrifies more (ASM1 process 3, Henze et al. 1987, Table 6.1)
+    plant = replace(demo6, limits=replace(demo6.limits, nh4_mean_mg_L=0.9 * nh4[2]))
+    tried = []
+    real_try = bl._try
+
+    def counting_try(plant_, sp, start):
+        tried.append(sp)
+        return real_try(plant_, sp, start)
+
+    base = run_baseline(plant, 2.0, start_state=base.day.start_state())
+    assert base.violations
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(bl, "_try", counting_try)
+        assert bl.complying_baseline(plant, base) is None
+    assert tried == [hi]

@@ -27,6 +27,13 @@ On the demo at 13 C and fouling 0.85 the steps 2.5 (NH4-N 1.3 % over) and 3.0 mg
 now finds 2.59 mg/L in 7.
 Within one bracket it assumes compliance is one interval of setpoints (true of NH4-N
 alone and of TN alone).
+
+Effluent NH4-N falls as the uniform setpoint rises (the autotrophs' aerobic growth, process 3
+of ASM1, rises with DO through its switching function S_O / (K_OA + S_O): Henze et al. 1987,
+IAWPRC Scientific and Technical Report No. 1, Table 6.1), so a baseline that breaks an NH4-N limit is
+first tried at the top of the range: NH4-N broken there is broken at every setpoint,
+and the search ends after that one trial (the cold demo, 10 C and fouling 0.85: 8 trials,
+47 CPU s, before; the top trial is reused when the steps reach it).
 """
 
 from __future__ import annotations
@@ -148,8 +155,14 @@ def complying_baseline(plant: ResolvedPlant | Layout, base: Baseline) -> Baselin
     f, lim = base.day.figures, plant.limits
     nh4_broken = any(limit is not None and f[key] > limit
                      for key, limit in (("nh4_mean_mg_L", lim.nh4_mean_mg_L), ("nh4_max_mg_L", lim.nh4_max_mg_L)))
+    top = None
+    if nh4_broken:  # first the top of the range: NH4-N broken there is broken at every setpoint
+        hi = search_range(plant)[1]
+        top = _try(plant, hi, base.day.start_state()) if hi > base.setpoint_mg_L else None
+        if top is not None and _nh4_broken(plant, top):
+            return None
     for direction in ((1.0, -1.0) if nh4_broken else (-1.0, 1.0)):
-        found = _bracket(plant, base, direction)
+        found = _bracket(plant, base, direction, top)
         if found is not None:
             return found
     return None
@@ -169,11 +182,13 @@ def search_range(plant: ResolvedPlant | Layout) -> tuple[float, float]:
     return lo, max(hi, lo)
 
 
-def _steps_from(plant: ResolvedPlant, origin: Baseline, direction: float, last_complies: bool):
+def _steps_from(plant: ResolvedPlant, origin: Baseline, direction: float, last_complies: bool,
+                known: Baseline | None = None):
     """Trials stepping away from ``origin`` in ``direction`` until compliance changes from ``last_complies``.
 
     Returns (the last trial like ``origin``, the first trial unlike it or None): the first is
-    ``origin`` itself when the first step already changes.
+    ``origin`` itself when the first step already changes. ``known``: a trial already simulated, used
+    instead of simulating its setpoint again.
     """
     same, start = origin, origin.day.start_state()
     lo, hi = search_range(plant)
@@ -181,7 +196,7 @@ def _steps_from(plant: ResolvedPlant, origin: Baseline, direction: float, last_c
         sp = float(np.clip(origin.setpoint_mg_L + direction * step, lo, hi))
         if direction * (sp - same.setpoint_mg_L) <= 0.0:  # at the end of the range
             break
-        trial = _try(plant, sp, start)
+        trial = known if known is not None and known.setpoint_mg_L == sp else _try(plant, sp, start)
         if trial is None:
             break
         if (not trial.violations) != last_complies:
@@ -192,9 +207,10 @@ def _steps_from(plant: ResolvedPlant, origin: Baseline, direction: float, last_c
     return same, None
 
 
-def _bracket(plant: ResolvedPlant, base: Baseline, direction: float) -> Baseline | None:
-    """Search one direction from the (breaking) baseline; the lowest complying setpoint found, or None."""
-    breaking, complying = _steps_from(plant, base, direction, last_complies=False)
+def _bracket(plant: ResolvedPlant, base: Baseline, direction: float, known: Baseline | None = None) -> Baseline | None:
+    """Search one direction from the (breaking) baseline; the lowest complying setpoint found, or None.
+    ``known``: a trial already simulated (the top of the range)."""
+    breaking, complying = _steps_from(plant, base, direction, last_complies=False, known=known)
     if complying is None:
         return None
     if complying.violations:  # stepped over a narrow span: NH4-N met at ``complying``, another limit broken
