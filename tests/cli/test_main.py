@@ -79,3 +79,18 @@ def test_the_command_list_and_usage_errors_still_name_every_command():
     assert r.returncode == EXIT_INPUT
     assert [line for line in r.stderr.splitlines() if "error:" in line] == \
         ["airtaper: error: unrecognized arguments: --no-such-option"]
+
+
+def test_the_console_entry_runs_the_exit_handlers_and_keeps_the_exit_code():
+    """console() leaves without the interpreter's teardown: what was printed, the exit handlers (a library's
+    temporary files) and the exit code survive."""
+    code = ("import atexit\nimport airtaper.cli.main as m\natexit.register(print, 'handler ran')\n"
+            "def fake(argv=None):\n    print('work done', end='')\n    return 3\n"
+            "m.main = fake\nm.console()\nprint('not reached')")
+    env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(SRC), os.environ.get("PYTHONPATH", "")]))
+    r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env, check=False)
+    assert r.returncode == 3
+    assert r.stdout == "work donehandler ran\n"
+    r = subprocess.run([sys.executable, "-m", "airtaper", "check", "--help"], capture_output=True, text=True,
+                       env=env, check=False)
+    assert r.returncode == 0 and r.stdout.startswith("usage: airtaper check")
