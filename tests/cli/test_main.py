@@ -17,6 +17,11 @@ from airtaper.physics.extrapolation import SoteExtrapolationWarning, warn_if_out
 SRC = pathlib.Path(__file__).resolve().parents[2] / "src"
 
 
+def _env() -> dict:
+    """The environment of a fresh interpreter running this checkout's airtaper."""
+    return dict(os.environ, PYTHONPATH=os.pathsep.join([str(SRC), os.environ.get("PYTHONPATH", "")]))
+
+
 def test_a_curve_extrapolation_warning_is_one_line_without_a_source_path(capsys):
     def handler(args):
         for _ in range(3):  # the same warning from a loop is printed once
@@ -49,8 +54,7 @@ def _run_cli(*argv: str) -> subprocess.CompletedProcess:
     """``airtaper ARGV`` in a fresh interpreter that then prints the airtaper.cli modules it imported."""
     code = ("import sys\nfrom airtaper.cli.main import main\ncode = main(sys.argv[1:])\n"
             "print('MODULES', *sorted(m for m in sys.modules if m.startswith('airtaper.cli.')))\nsys.exit(code)")
-    env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(SRC), os.environ.get("PYTHONPATH", "")]))
-    return subprocess.run([sys.executable, "-c", code, *argv], capture_output=True, text=True, env=env, check=False)
+    return subprocess.run([sys.executable, "-c", code, *argv], capture_output=True, text=True, env=_env(), check=False)
 
 
 def _modules(out: str) -> set[str]:
@@ -87,10 +91,9 @@ def test_the_console_entry_runs_the_exit_handlers_and_keeps_the_exit_code():
     code = ("import atexit\nimport airtaper.cli.main as m\natexit.register(print, 'handler ran')\n"
             "def fake(argv=None):\n    print('work done', end='')\n    return 3\n"
             "m.main = fake\nm.console()\nprint('not reached')")
-    env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(SRC), os.environ.get("PYTHONPATH", "")]))
-    r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env, check=False)
+    r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=_env(), check=False)
     assert r.returncode == 3
     assert r.stdout == "work donehandler ran\n"
     r = subprocess.run([sys.executable, "-m", "airtaper", "check", "--help"], capture_output=True, text=True,
-                       env=env, check=False)
+                       env=_env(), check=False)
     assert r.returncode == 0 and r.stdout.startswith("usage: airtaper check")
