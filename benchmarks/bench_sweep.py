@@ -10,14 +10,17 @@ Prints, measured side by side in one run:
 2. the demo's wall time against its Ipopt time: ``airtaper optimize`` from the
    command line as a user runs it (a fresh interpreter: imports, report), a scenario
    as a sweep worker runs it (imports paid before the clock starts, ``--no-report``),
-   and the scenarios of section 1 (``run_s`` against ``ipopt_s`` of the rows); target:
+   the cold scenario (``--cold T,F``: water temperature and fouling; default 13 C and 0.85,
+   where the uniform baseline breaks the NH4-N limit and the complying-setpoint search
+   runs; at 10 C the pre-screen finds the limits cannot be met) as a sweep worker, and the scenarios of section 1 (``run_s`` against ``ipopt_s``
+   of the rows); target:
    wall <= 1.5 x Ipopt. Ipopt's time is the solver's own, summed over attempts. With
    ``--before SRC`` (the ``src`` folder of another checkout, e.g. of main) the same runs
    of that code alternate with this one's, so both see the same load: before and after
    side by side in one run.
 
     python benchmarks/bench_sweep.py [--quick] [--layout L] [--scenarios N] [--sections 1,2] [--repeats K]
-                                     [--before SRC]
+                                     [--before SRC] [--cold T,F]
 
 ``--quick``: the three-tank plant on four periods, 8 scenarios. Numbers taken while
 other work runs on the machine are noisy; the ratios of one run are what to compare.
@@ -29,6 +32,7 @@ import argparse
 import json
 import os
 import pathlib
+import resource
 import statistics
 import subprocess
 import sys
@@ -102,11 +106,17 @@ print(time.perf_counter() - t0)
 """
 
 
+def _children_cpu_s() -> float:
+    r = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return r.ru_utime + r.ru_stime
+
+
 def _run(src: pathlib.Path, argv: list[str], worker: bool) -> tuple[float, dict]:
-    """(wall s, summary) of one optimize run with the code of ``src``."""
+    """(wall s, summary) of one optimize run with the code of ``src``; the summary gains the run's CPU seconds
+    (``cpu_s``, the whole process: imports, teardown)."""
     env = dict(os.environ, PYTHONPATH=str(src) + os.pathsep + os.environ.get("PYTHONPATH", ""))
     out = pathlib.Path(argv[argv.index("--out") + 1])
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), _children_cpu_s()
     if worker:
         r = subprocess.run([sys.executable, "-c", _WORKER, *argv, "--no-report"], env=env, capture_output=True,
                            text=True, check=False)
@@ -115,32 +125,47 @@ def _run(src: pathlib.Path, argv: list[str], worker: bool) -> tuple[float, dict]
         subprocess.run([sys.executable, "-m", "airtaper.cli.main", *argv], env=env, stdout=subprocess.DEVNULL,
                        check=False)
         wall = time.perf_counter() - t0
-    return wall, json.loads((out / "summary.json").read_text())
+    return wall, dict(json.loads((out / "summary.json").read_text()), cpu_s=_children_cpu_s() - c0)
+
+
+def _overrides(tmp: pathlib.Path, name: str, values: dict) -> list[str]:
+    """``--overrides FILE`` with ``values`` (none when empty)."""
+    if not values:
+        return []
+    from airtaper.layout.overrides import overrides_to_toml
+
+    (tmp / f"{name}.toml").write_text(overrides_to_toml(values))
+    return ["--overrides", str(tmp / f"{name}.toml")]
 
 
 def section_ratio(layout: str, rows: list[dict], tmp: pathlib.Path, repeats: int, common: dict,
-                  before: pathlib.Path | None) -> None:
+                  before: pathlib.Path | None, cold: dict | None = None) -> None:
     print(f"2. wall time against Ipopt time, {layout}" + (f" with {common}" if common else ""))
-    extra = []
-    if common:
-        from airtaper.layout.overrides import overrides_to_toml
-
-        (tmp / "common.toml").write_text(overrides_to_toml(common))
-        extra = ["--overrides", str(tmp / "common.toml")]
+    extra = _overrides(tmp, "common", common)
     codes = [("this", ROOT / "src")] + ([("before", before)] if before is not None else [])
-    for worker in (False, True) if repeats else ():  # --repeats 0: the sweep rows of section 1 only
+    modes = [("c", False, extra), ("w", True, extra)] + ([("cold", True, _overrides(tmp, "cold", {**common, **cold}))]
+                                                         if cold else [])
+    for mode, worker, ov in modes if repeats else ():  # --repeats 0: the sweep rows of section 1 only
         runs = {name: [] for name, _ in codes}
-        for i in range(repeats):
+        for i in range(repeats if mode != "cold" else 1):
             for name, src in codes:  # alternating: both versions see the same load
-                out = tmp / f"{name}-{'w' if worker else 'c'}{i}"
-                wall, s = _run(src, ["optimize", layout, "--out", str(out), "--quiet", *extra], worker)
+                out = tmp / f"{name}-{mode}{i}"
+                wall, s = _run(src, ["optimize", layout, "--out", str(out), "--quiet", *ov], worker)
+                if not s["solver"]["timings"].get("ipopt_s"):  # screened out or failed before Ipopt ran
+                    print(f"     ({name} {mode}{i}: {s.get('status')}, no Ipopt time: {s.get('messages', [''])[:1]})")
+                    continue
                 runs[name].append((wall, s["solver"]["timings"]["ipopt_s"], s["solver"]["timings"],
                                    s["energy_kWh_per_day"], s.get("cost_per_day"), s.get("status")))
-        how = "as a sweep worker runs it (imports paid, --no-report)" if worker else \
+                print(f"     ({name} {mode}{i}: wall {wall:.1f} s, process CPU {s['cpu_s']:.1f} s, Ipopt "
+                      f"{runs[name][-1][1]:.1f} s, load {os.getloadavg()[0]:.1f})", flush=True)
+        how = f"cold scenario {cold} as a sweep worker, one run" if mode == "cold" else \
+            "as a sweep worker runs it (imports paid, --no-report)" if worker else \
             "command line (fresh interpreter, report)"
-        print(f"   {how}, median of {repeats}:")
+        print(f"   {how}" + ("" if mode == "cold" else f", median of {repeats}") + ":")
         for name, _ in codes:
             r = runs[name]
+            if not r:
+                continue
             wall = statistics.median(c[0] for c in r)
             ipopt = statistics.median(c[1] for c in r)
             mid = sorted(r, key=lambda c: c[0])[len(r) // 2]
@@ -166,7 +191,13 @@ def main() -> int:
                     help="runs per version in section 2 (default 3, quick 1; 0: only the rows of section 1)")
     ap.add_argument("--before", type=pathlib.Path, default=None,
                     help="src folder of the code to compare with in section 2 (e.g. a checkout of main)")
+    ap.add_argument("--cold", default="13,0.85",
+                    help="water temperature C and fouling of the cold scenario of section 2 ('' to skip)")
     args = ap.parse_args()
+    cold = None
+    if args.cold:
+        t, f = (float(v) for v in args.cold.split(","))
+        cold = {"plant.water_temperature_C": t, "zone_defaults.fouling": f}
     layout = args.layout or str(ROOT / "layouts" / ("three_tank.toml" if args.quick else "demo.toml"))
     n = args.scenarios or (8 if args.quick else 16)
     common = {"horizon.n_periods": 4, "horizon.steps_per_period": 2} if args.quick else {}
@@ -176,7 +207,7 @@ def main() -> int:
         rows = section_sweep(layout, _grid(n, common), tmp) if 1 in sections else []
         if 2 in sections:
             section_ratio(layout, rows, tmp, args.repeats if args.repeats is not None else (1 if args.quick else 3),
-                          common, None if args.before is None else args.before.resolve())
+                          common, None if args.before is None else args.before.resolve(), cold)
     return 0
 
 

@@ -1,7 +1,5 @@
 """`python -m airtaper`: the same as the `airtaper` command."""
 
-import sys
+from airtaper.cli.main import console
 
-from airtaper.cli.main import main
-
-sys.exit(main())
+console()

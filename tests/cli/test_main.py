@@ -1,12 +1,25 @@
-"""The command's own error handling: Python warnings reach stderr as one line each, in the CLI's form."""
+"""The command's own error handling: Python warnings reach stderr as one line each, in the CLI's form; the parser
+imports only the module of the command it runs."""
 
+import os
+import pathlib
+import re
+import subprocess
+import sys
 import warnings
 
 import numpy as np
 
-from airtaper.cli.main import run_handler, warning_line
-from airtaper.errors import EXIT_OK
+from airtaper.cli.main import COMMANDS, run_handler, warning_line
+from airtaper.errors import EXIT_INPUT, EXIT_OK
 from airtaper.physics.extrapolation import SoteExtrapolationWarning, warn_if_outside
+
+SRC = pathlib.Path(__file__).resolve().parents[2] / "src"
+
+
+def _env() -> dict:
+    """The environment of a fresh interpreter running this checkout's airtaper."""
+    return dict(os.environ, PYTHONPATH=os.pathsep.join([str(SRC), os.environ.get("PYTHONPATH", "")]))
 
 
 def test_a_curve_extrapolation_warning_is_one_line_without_a_source_path(capsys):
@@ -35,3 +48,52 @@ def test_the_callers_warning_printer_is_restored():
 
 def test_warning_line_keeps_a_message_on_one_line():
     assert warning_line("a\nb", UserWarning) == "warning: UserWarning: a\\nb"
+
+
+def _run_cli(*argv: str) -> subprocess.CompletedProcess:
+    """``airtaper ARGV`` in a fresh interpreter that then prints the airtaper.cli modules it imported."""
+    code = ("import sys\nfrom airtaper.cli.main import main\ncode = main(sys.argv[1:])\n"
+            "print('MODULES', *sorted(m for m in sys.modules if m.startswith('airtaper.cli.')))\nsys.exit(code)")
+    return subprocess.run([sys.executable, "-c", code, *argv], capture_output=True, text=True, env=_env(), check=False)
+
+
+def _modules(out: str) -> set[str]:
+    return set(next(line for line in out.splitlines() if line.startswith("MODULES")).split()[1:])
+
+
+def test_a_command_imports_only_its_own_module():
+    r = _run_cli("check", "--help")
+    assert r.returncode == 0 and "usage: airtaper check" in r.stdout
+    assert _modules(r.stdout) == {"airtaper.cli.main", "airtaper.cli.check"}
+    r = _run_cli("optimize", "--help")
+    assert r.returncode == 0 and "--solve-budget" in r.stdout
+    assert _modules(r.stdout) == {"airtaper.cli.main", "airtaper.cli.optimize"}
+
+
+def test_the_command_list_and_usage_errors_still_name_every_command():
+    r = _run_cli("--help")
+    assert r.returncode == 0
+    listing = r.stdout.split("positional arguments:")[1]
+    assert all(re.search(rf"^    {name}\b", listing, re.MULTILINE) for name in COMMANDS)
+    r = _run_cli("optimise", "layouts/demo.toml")  # not a command: argparse's own one line, every choice named
+    assert r.returncode == EXIT_INPUT
+    error = [line for line in r.stderr.splitlines() if line.startswith("airtaper: error:")]
+    assert len(error) == 1 and "invalid choice: 'optimise'" in error[0] and all(n in error[0] for n in COMMANDS)
+    r = _run_cli("optimize", "layouts/demo.toml", "--out", "unused", "--no-such-option")  # argparse's one line
+    assert r.returncode == EXIT_INPUT
+    assert [line for line in r.stderr.splitlines() if "error:" in line] == \
+        ["airtaper: error: unrecognized arguments: --no-such-option"]
+
+
+def test_the_console_entry_runs_the_exit_handlers_and_keeps_the_exit_code():
+    """console() leaves without the interpreter's teardown: what was printed, the exit handlers (a library's
+    temporary files) and the exit code survive."""
+    code = ("import atexit\nimport airtaper.cli.main as m\natexit.register(print, 'handler ran')\n"
+            "def fake(argv=None):\n    print('work done', end='')\n    return 3\n"
+            "m.main = fake\nm.console()\nprint('not reached')")
+    r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=_env(), check=False)
+    assert r.returncode == 3
+    assert r.stdout == "work donehandler ran\n"
+    r = subprocess.run([sys.executable, "-m", "airtaper", "check", "--help"], capture_output=True, text=True,
+                       env=_env(), check=False)
+    assert r.returncode == 0 and r.stdout.startswith("usage: airtaper check")

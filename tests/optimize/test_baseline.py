@@ -63,7 +63,7 @@ def test_a_setpoint_the_grid_cannot_hold_is_reported_with_zone_and_hours(demo6):
     hi = short.zone_airflow_range_Sm3_h(next(z for z in short.zones if z.id == "Z2"))[1]
     for h in held:
         assert h["do_min_mg_L"] < 2.0 - 0.05 and 0.0 <= h["start_h"] < 24.0
-        assert f"zone Z2 cannot hold its DO setpoint of 2 mg/L" in h["message"]
+        assert "zone Z2 cannot hold its DO setpoint of 2 mg/L" in h["message"]
         # the zone runs at full air in the hours it cannot hold the setpoint
         k = int(h["start_h"] // short.horizon.period_h)
         assert base.day.period_mean_airflow()["Z2"][k] == pytest.approx(hi, rel=1e-6)
@@ -167,4 +167,78 @@ def test_complying_search_finds_a_narrow_span_between_an_nh4_breach_and_a_do_max
     monkeypatch.setattr(bl, "_try", fake_try)
     found = bl.complying_baseline(demo6, trial(2.0))
     assert found is not None and 2.55 <= found.setpoint_mg_L <= 2.55 + SEARCH_TOL_mg_L
-    assert max(tried) == 3.0 and min(tried) > 2.0 and len(tried) <= 8
+    assert max(tried) <= 3.0 and min(tried) > 2.0 and len(tried) <= 8
+
+
+def test_complying_search_ends_at_the_top_when_nh4_is_broken_there(monkeypatch, demo6):
+    """NH4-N above its limit at every setpoint (falling with more oxygen, as in the cold demo): after the first
+    step the secant through the trials shows the limit is not met below 7 mg/L, so the next trial is the top of
+    the range; NH4-N broken there ends the search, with no downward search (8 trials on the cold demo before)."""
+    import airtaper.optimize.baseline as bl
+
+    limit = demo6.limits.nh4_mean_mg_L
+    tried = []
+
+    def trial(sp):
+        nh4 = limit * (1.0 + 0.2 * (7.0 - sp))  # meets the limit only from 7 mg/L, above the range
+        return _FakeBaseline(sp, ["NH4-N"], {"nh4_mean_mg_L": nh4, "nh4_max_mg_L": 0.0})
+
+    def fake_try(plant_, sp, start):
+        tried.append(sp)
+        return trial(sp)
+
+    monkeypatch.setattr(bl, "_try", fake_try)
+    assert bl.complying_baseline(demo6, trial(2.0)) is None
+    assert tried == [2.25, search_range(demo6)[1]]
+
+
+def test_complying_search_skips_the_steps_below_the_nh4_secant(monkeypatch, demo6):
+    """NH4-N falling ever less steeply (convex) and met from 4.2 mg/L: the steps 2.5 and 3.0 lie below the secant
+    root of the trials before them and are skipped; the setpoint found is still the lowest to the tolerance."""
+    import airtaper.optimize.baseline as bl
+
+    limit = demo6.limits.nh4_mean_mg_L
+    tried = []
+
+    def trial(sp):
+        nh4 = limit * (1.0 + 0.5 * (4.2 - sp) ** 2 / 4.2) if sp < 4.2 else limit * (1.0 - 0.01 * (sp - 4.2))
+        return _FakeBaseline(sp, ["NH4-N"] if nh4 > limit else [], {"nh4_mean_mg_L": nh4, "nh4_max_mg_L": 0.0})
+
+    def fake_try(plant_, sp, start):
+        tried.append(sp)
+        return trial(sp)
+
+    monkeypatch.setattr(bl, "_try", fake_try)
+    found = bl.complying_baseline(demo6, trial(2.0))
+    assert found is not None and 4.2 <= found.setpoint_mg_L <= 4.2 + SEARCH_TOL_mg_L
+    assert 2.5 not in tried and 3.0 not in tried and min(tried) == 2.25
+    # every trial below the answer breaks NH4-N, as the secant bound promises
+    assert all(trial(sp).violations for sp in tried if sp < 4.2)
+
+
+def test_nh4_falls_as_the_uniform_setpoint_rises(demo6):
+    """The premises of the search's NH4-N shortcuts, on the plant: NH4-N falls as the setpoint rises, ever less
+    steeply; with a limit that even the top setpoint breaks, the search ends at the top, never searching down."""
+    import airtaper.optimize.baseline as bl
+
+    hi = search_range(demo6)[1]
+    base = run_baseline(demo6, 2.0)
+    top = run_baseline(demo6, hi, start_state=base.day.start_state())
+    mid = run_baseline(demo6, 0.5 * (2.0 + hi), start_state=top.day.start_state())
+    nh4 = [b.day.figures["nh4_mean_mg_L"] for b in (base, mid, top)]
+    assert nh4[0] > nh4[1] > nh4[2]  # more oxygen nitrifies more (ASM1 process 3, Henze et al. 1987, Table 6.1)
+    assert nh4[0] - nh4[1] > nh4[1] - nh4[2]  # and ever less (the switching function saturates): convex
+    plant = replace(demo6, limits=replace(demo6.limits, nh4_mean_mg_L=0.9 * nh4[2]))
+    tried = []
+    real_try = bl._try
+
+    def counting_try(plant_, sp, start):
+        tried.append(sp)
+        return real_try(plant_, sp, start)
+
+    base = run_baseline(plant, 2.0, start_state=base.day.start_state())
+    assert base.violations
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(bl, "_try", counting_try)
+        assert bl.complying_baseline(plant, base) is None
+    assert max(tried) == hi and min(tried) > 2.0 and len(tried) <= 4

@@ -265,6 +265,23 @@ def test_every_load_day_is_checked_as_a_plant_of_its_own():
     assert all(line.startswith(E + "load_days.low, zones.") for line in lines)
 
 
+def test_a_design_grid_variant_is_the_plant_resolved_with_the_new_counts(demo):
+    """The counts reach every count-dependent quantity of the zone (density, range, kLa) and nothing else moves."""
+    from airtaper.plant import with_diffuser_counts
+
+    z = demo.diffused[0]
+    other = demo.diffused[1]
+    variant = with_diffuser_counts(demo, {z.id: 2 * z.diffusers})
+    v = variant.air.zone(z.id)
+    assert v.diffusers == 2 * z.diffusers and demo.air.zone(z.id).diffusers == z.diffusers  # the plant is unchanged
+    assert v.density_percent == pytest.approx(2 * z.density_percent)
+    q = 0.5 * (z.airflow_min_Sm3_h + z.airflow_max_Sm3_h)
+    assert v.kla_per_d(q, 15.0) == pytest.approx(z.kla_per_d(q, 15.0, diffusers=2 * z.diffusers))
+    assert v.kla_per_d(q, 15.0) != pytest.approx(z.kla_per_d(q, 15.0))
+    assert variant.air.zone(other.id).diffusers == other.diffusers
+    np.testing.assert_array_equal(variant.hydraulics.zone_flow_m3_d, demo.hydraulics.zone_flow_m3_d)
+
+
 def test_design_fields_of_the_plant():
     """What a grid design reads: capital, load days, per zone its type, count step and design count range."""
     from airtaper.plant.resolve import design_count_range

@@ -27,6 +27,15 @@ On the demo at 13 C and fouling 0.85 the steps 2.5 (NH4-N 1.3 % over) and 3.0 mg
 now finds 2.59 mg/L in 7.
 Within one bracket it assumes compliance is one interval of setpoints (true of NH4-N
 alone and of TN alone).
+
+Effluent NH4-N falls as the uniform setpoint rises, ever less steeply (the autotrophs' aerobic
+growth, process 3 of ASM1, rises with DO through its switching function S_O / (K_OA + S_O):
+Henze et al. 1987, IAWPRC Scientific and Technical Report No. 1, Table 6.1). Stepping up from
+an NH4-N breach therefore skips the steps below the secant root of the last two trials (a lower
+bound of where NH4-N is met, :func:`_nh4_reach`), and NH4-N still broken at the top of the range
+ends the search: no setpoint below complies, and the downward search is not run. On the demo
+at 10 C and fouling 0.85 (no setpoint complies) that is 3 trials instead of 8 (47 CPU s); at
+13 C the trials are the same as before.
 """
 
 from __future__ import annotations
@@ -149,10 +158,40 @@ def complying_baseline(plant: ResolvedPlant | Layout, base: Baseline) -> Baselin
     nh4_broken = any(limit is not None and f[key] > limit
                      for key, limit in (("nh4_mean_mg_L", lim.nh4_mean_mg_L), ("nh4_max_mg_L", lim.nh4_max_mg_L)))
     for direction in ((1.0, -1.0) if nh4_broken else (-1.0, 1.0)):
-        found = _bracket(plant, base, direction)
+        try:
+            found = _bracket(plant, base, direction)
+        except _NH4BrokenAtTop:  # NH4-N falls as the setpoint rises: broken at the top, broken at every setpoint
+            return None
         if found is not None:
             return found
     return None
+
+
+class _NH4BrokenAtTop(Exception):
+    """Stepping up from an NH4-N breach reached the top of the range with NH4-N still broken."""
+
+
+def _nh4_reach(plant: ResolvedPlant, before: Baseline | None, last: Baseline) -> float:
+    """The setpoint below which NH4-N stays broken, by the secant through two trials that break it (every NH4-N
+    limit's own secant root, the highest of them); -inf without two such trials.
+
+    NH4-N falls with the setpoint and ever less steeply (the oxygen switching function saturates), so the curve
+    lies above its secant beyond the two trials: the root is a lower bound of where the limit is met, and the
+    steps below it can be skipped. Only the order of the trials relies on this: a trial that complies is still
+    bisected back down to the last breaking one.
+    """
+    if before is None or not _nh4_broken(plant, before) or not _nh4_broken(plant, last):
+        return -np.inf
+    ds = last.setpoint_mg_L - before.setpoint_mg_L
+    reach = -np.inf
+    for key, limit in (("nh4_mean_mg_L", plant.limits.nh4_mean_mg_L), ("nh4_max_mg_L", plant.limits.nh4_max_mg_L)):
+        y0, y1 = before.day.figures[key], last.day.figures[key]
+        if limit is None or y1 <= limit or ds <= 0.0:
+            continue
+        if y1 >= y0:  # not falling here: no bound
+            return -np.inf
+        reach = max(reach, last.setpoint_mg_L + (y1 - limit) * ds / (y0 - y1))
+    return reach
 
 
 def search_range(plant: ResolvedPlant | Layout) -> tuple[float, float]:
@@ -173,14 +212,19 @@ def _steps_from(plant: ResolvedPlant, origin: Baseline, direction: float, last_c
     """Trials stepping away from ``origin`` in ``direction`` until compliance changes from ``last_complies``.
 
     Returns (the last trial like ``origin``, the first trial unlike it or None): the first is
-    ``origin`` itself when the first step already changes.
+    ``origin`` itself when the first step already changes. Stepping up from an NH4-N breach skips
+    the steps below :func:`_nh4_reach`, and raises :class:`_NH4BrokenAtTop` when NH4-N is still
+    broken at the top of the range.
     """
-    same, start = origin, origin.day.start_state()
+    same, start, before = origin, origin.day.start_state(), None
     lo, hi = search_range(plant)
+    up_from_nh4 = direction > 0 and not last_complies and _nh4_broken(plant, origin)
     for step in SEARCH_STEPS_mg_L:
         sp = float(np.clip(origin.setpoint_mg_L + direction * step, lo, hi))
-        if direction * (sp - same.setpoint_mg_L) <= 0.0:  # at the end of the range
-            break
+        if up_from_nh4:
+            sp = float(min(max(sp, _nh4_reach(plant, before, same)), hi))
+        if direction * (sp - same.setpoint_mg_L) <= 0.0:  # at the end of the range, or a step already passed
+            continue
         trial = _try(plant, sp, start)
         if trial is None:
             break
@@ -188,7 +232,9 @@ def _steps_from(plant: ResolvedPlant, origin: Baseline, direction: float, last_c
             return same, trial
         if not last_complies and direction > 0 and _nh4_broken(plant, same) and _nh4_broken(plant, trial) is False:
             return same, trial  # NH4-N met between them but another limit broken: a complying span, if any, is there
-        same, start = trial, trial.day.start_state()
+        if up_from_nh4 and sp >= hi and _nh4_broken(plant, trial):
+            raise _NH4BrokenAtTop()
+        before, same, start = same, trial, trial.day.start_state()
     return same, None
 
 

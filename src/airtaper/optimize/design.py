@@ -90,7 +90,7 @@ from airtaper.optimize.problem import LIMIT_GROUPS
 from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.results import jsonable, study_tables
 from airtaper.optimize.verify import verify_day
-from airtaper.plant import ResolvedPlant, resolve_plant
+from airtaper.plant import ResolvedPlant, resolve_plant, with_diffuser_counts
 
 #: A day's limit binds a zone when 0.1 mg/L (DO) or 1 % (airflow) of it is worth more than this share of the day's
 #: annual cost (an interior-point dual of a limit that does not bind is many orders smaller). Common practice
@@ -772,8 +772,7 @@ class GridDesign:
         out = []
         for day, st in zip(self.days, self.studies):
             self.progress.phase(f"verifying load day {day.id}: the schedule re-simulated")
-            plant = resolve_plant(with_grid_counts(day_layout(self.layout, day), counts))  # the boundary
-            ver, _sim = verify_day(plant, st.schedule_by_zone(), st.figures(), st.m)
+            ver, _sim = verify_day(with_diffuser_counts(st.plant, counts), st.schedule_by_zone(), st.figures(), st.m)
             out.append(ver)
         return out
 

@@ -25,7 +25,7 @@ import numpy as np
 from airtaper.errors import InputError, Problem
 from airtaper.layout import defaults as D
 from airtaper.layout.graph import forward_flows
-from airtaper.layout.loaddays import day_layout
+from airtaper.layout.loaddays import day_layout, with_grid_counts
 from airtaper.layout.overrides import blame_overrides, load_layout_with_overrides
 from airtaper.layout.reader import LayoutWarning
 from airtaper.layout.types import Layout
@@ -254,4 +254,13 @@ def load_plant(path: str | os.PathLike, overrides_path=None, warnings: list | No
         raise InputError(blame_overrides(exc.problems, overrides_path)) from None
 
 
-__all__ = ["design_count_range", "load_plant", "resolve_plant"]
+def with_diffuser_counts(plant: ResolvedPlant, counts: dict[str, int]) -> ResolvedPlant:
+    """The plant with the diffuser counts of the named zones replaced (a candidate grid of a design), resolved.
+
+    The variant is made on the plant's layout and resolved again, so every quantity that
+    depends on the counts (SOTE density, airflow ranges, kLa rule) is derived in one place.
+    """
+    return resolve_plant(with_grid_counts(plant.layout, counts))
+
+
+__all__ = ["design_count_range", "load_plant", "resolve_plant", "with_diffuser_counts"]
