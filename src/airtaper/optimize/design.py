@@ -477,7 +477,7 @@ class GridDesign:
                              gradient=dict(zip(self.ids, map(float, grad))), whole=whole)
             self.day_results = results
         else:
-            bad = next(s for s in solves if s is not None and not s.ok)
+            bad = solves[next(k for k, d in enumerate(self.days) if d.id == failed)]  # the first day that failed
             cand = Candidate(cand_counts, None, bad.status, time.perf_counter() - t0, whole=whole, failed_day=failed,
                              reason=bad.reason, excess=bad.excess)
         self.candidates.append(cand)
