@@ -65,10 +65,26 @@ def _uniform(g: GridDesign, total: int) -> dict[str, int]:
     area = sum(z.area_m2 for z in g.zones)
     out = {}
     for z in g.zones:
-        step = z.grid.count_step
+        step = z.count_step
         lo, hi = g.ranges[z.id]
         out[z.id] = int(min(max(step * round(total * z.area_m2 / area / step), lo), hi))
     return out
+
+
+def _nearest_feasible_uniform(g: GridDesign, total: int, tries: int = 6):
+    """The uniform grid of ``total`` diffusers, or when it cannot meet a day the nearest uniform total that can
+    (one zone's step more, then less, and so on): (candidate of the same total, candidate used, its total)."""
+    step = max(z.count_step for z in g.zones) * len(g.zones)
+    same = g.evaluate(_uniform(g, total))
+    if same.annual_cost is not None:
+        return same, same, total
+    for k in range(1, tries + 1):
+        for sign in (1, -1):
+            t = total + sign * k * step
+            c = g.evaluate(_uniform(g, t))
+            if c.annual_cost is not None:
+                return same, c, t
+    return same, None, None
 
 
 def main() -> int:
@@ -108,14 +124,22 @@ def main() -> int:
     g, best, _k, _w = last
     print("designed grid: " + ", ".join(f"{z} {c}" for z, c in best.counts.items())
           + f"  annual cost {best.annual_cost:,.0f}")
-    for name, counts in (("current grid", g.current), ("uniform grid", _uniform(g, sum(best.counts.values())))):
-        c = g.evaluate(counts)
+    def line(name, c):
         grid = ", ".join(f"{z} {v}" for z, v in c.counts.items())
         if c.annual_cost is None:
-            print(f"{name}: {grid}  cannot meet every day ({c.status}, {c.failed_day})")
-        else:
-            print(f"{name}: {grid}  annual cost {c.annual_cost:,.0f}; the design saves "
-                  f"{c.annual_cost - best.annual_cost:,.0f} ({100 * (c.annual_cost - best.annual_cost) / c.annual_cost:.1f} %)")
+            return (f"{name}: {grid}  cannot meet every day ({c.status}, {c.failed_day}"
+                    + (f": {c.reason}" if c.reason else "") + ")")
+        return (f"{name}: {grid}  annual cost {c.annual_cost:,.0f}; the design saves "
+                f"{c.annual_cost - best.annual_cost:,.0f} ({100 * (c.annual_cost - best.annual_cost) / c.annual_cost:.1f} %)")
+
+    print(line("current grid", g.evaluate(g.current)))
+    total = sum(best.counts.values())
+    same, used, t = _nearest_feasible_uniform(g, total)
+    print(line(f"uniform grid of the same total ({total})", same))
+    if used is not None and used is not same:
+        print(line(f"nearest uniform grid that meets every day ({t} diffusers)", used))
+    elif used is None:
+        print("no uniform grid within six steps of the same total meets every day")
     print(f"grids evaluated: {len(g.candidates)}; {_load()}")
     return 0
 

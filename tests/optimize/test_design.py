@@ -8,12 +8,14 @@ import tomllib
 from dataclasses import replace
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from airtaper.layout import parse_layout
 from airtaper.layout.loaddays import day_layout
-from airtaper.optimize.design import (DesignOptions, GridDesign, capital_recovery_factor, count_range,
+from airtaper.optimize.design import (Candidate, DaySolve, DesignOptions, GridDesign, capital_recovery_factor,
                                       net_present_value, run_design, simple_payback_years)
+from airtaper.plant import resolve_plant
 
 ROOT = Path(__file__).resolve().parents[2]
 LAYOUTS = ROOT / "layouts"
@@ -64,12 +66,66 @@ OPTIONS = DesignOptions(n_periods=6, steps_per_period=2)
 
 
 def test_count_range_is_the_tested_density_range_in_whole_steps():
+    # the design reads its ranges from the resolved plant (plant.resolve.design_count_range)
     layout = _small(step=100)
-    z = layout.zones[0]
     # disc_030: 0.030 m2 on 111.1 m2 of floor is 0.027 % a diffuser; tested 6-15 % -> 222.2-555.6 diffusers
-    assert count_range(layout, z) == (300, 500)
-    fine = _small(step=1)
-    assert count_range(fine, fine.zones[0]) == (223, 555)
+    assert resolve_plant(layout).diffused[0].count_range == (300, 500)
+    assert GridDesign(layout, OPTIONS).ranges[layout.zones[0].id] == (300, 500)
+    assert resolve_plant(_small(step=1)).diffused[0].count_range == (223, 555)
+
+
+class _Bisected(GridDesign):
+    """The design's search with each day's verdict on a grid given by a rule instead of a solve: the minimum day
+    fails above ``turndown`` diffusers in the first zone (turndown), the peak day below ``transfer`` (transfer)."""
+
+    def __init__(self, transfer: float, turndown: float):
+        super().__init__(_small(step=1), OPTIONS)
+        self.days = (replace(self.days[0], id="minimum"), replace(self.days[1], id="peak"))
+        self.transfer, self.turndown = transfer, turndown
+        self.grids = []
+
+    def evaluate(self, counts, whole=True):
+        n = float(counts[self.ids[0]])
+        self.grids.append(n)
+        solves = [DaySolve("optimal" if n <= self.turndown else "infeasible", goal=1.0),
+                  DaySolve("optimal" if n >= self.transfer else "infeasible", goal=1.0)]
+        for s in solves:
+            s.goal = s.goal if s.status == "optimal" else None
+        self._solved[self._key(counts)] = solves
+        failed = next((d.id for d, s in zip(self.days, solves) if not s.ok), None)
+        c = Candidate(dict(counts), None if failed else 1.0, "infeasible" if failed else "optimal", 0.0,
+                      objective=None if failed else 1.0, failed_day=failed)
+        self.candidates.append(c)
+        return c
+
+
+def _bisect(g: _Bisected, a: float, b: float):
+    other = {z: 300.0 for z in g.ids[1:]}
+    ca, cb = g.evaluate({g.ids[0]: a, **other}), g.evaluate({g.ids[0]: b, **other})
+    tried = [(np.array([a] + [300.0] * (len(g.ids) - 1)), ca), (np.array([b] + [300.0] * (len(g.ids) - 1)), cb)]
+    return g._between(tried, lambda x: dict(zip(g.ids, map(float, x))))
+
+
+@pytest.mark.parametrize("transfer, turndown", [(400.0, 420.0), (230.0, 250.0), (500.0, 540.0)])
+def test_failed_grids_are_bisected_to_one_meeting_both_days(transfer, turndown):
+    # a grid too large fails the minimum day, one too small the peak day: the bisection of the segment between them
+    # finds a grid meeting both, in the window [transfer, turndown], in at most six halvings (the window is 20 or
+    # 40 diffusers of the 330 between the ends: 1/16 of the segment at least, so four halvings reach it)
+    g = _Bisected(transfer, turndown)
+    found = _bisect(g, 550.0, 220.0)  # the large end fails the minimum day, the small end the peak day
+    assert found is not None
+    x, c = found
+    assert transfer <= x[0] <= turndown and c.objective is not None
+    assert len(g.grids) - 2 <= 5
+
+
+def test_no_bisection_without_a_pair_of_failed_grids_each_meeting_the_others_day():
+    g = _Bisected(400.0, 420.0)
+    assert _bisect(g, 550.0, 500.0) is None  # both ends fail the same day (the minimum day): no bracket
+    assert len(g.grids) == 2
+    g = _Bisected(450.0, 420.0)  # no grid meets both days: the halvings end without one
+    assert _bisect(g, 550.0, 220.0) is None
+    assert 2 < len(g.grids) <= 2 + 6
 
 
 @pytest.fixture(scope="module")

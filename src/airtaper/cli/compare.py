@@ -13,7 +13,8 @@ import sys
 from airtaper.cli.design import grid_problems, periods_problems
 from airtaper.cli.main import add_output_options
 from airtaper.errors import InputError, Problem
-from airtaper.layout import layout_input_files, load_layout
+from airtaper.layout import layout_input_files
+from airtaper.plant import load_plant
 from airtaper.report.outputs import output_folder
 
 
@@ -39,24 +40,24 @@ def run(args) -> int:
 
     warnings: list = []
     problems: list[Problem] = []
-    layouts, inputs = [], []
+    plants, inputs = [], []
     for path in args.layouts:
         try:
-            layout = load_layout(path, warnings=warnings)
+            plant = load_plant(path, warnings=warnings)  # every check `check` and `optimize` run
         except InputError as exc:
             problems.extend(exc.problems)
             continue
-        problems += periods_problems(args.periods, layout, f"{path}'s") + grid_problems(path, layout,
-                                                                                        "no airflow to optimise")
-        layouts.append((path, layout))
-        inputs += [f for f in layout_input_files(path, layout) if f not in inputs]
+        problems += periods_problems(args.periods, plant, f"{path}'s") + grid_problems(path, plant,
+                                                                                       "no airflow to optimise")
+        plants.append((path, plant))
+        inputs += [f for f in layout_input_files(path, plant.layout) if f not in inputs]
     for w in warnings:
         print(str(w), file=sys.stderr)
     if problems:
         raise InputError(problems)
     with output_folder(args.out, inputs=inputs, overwrite=args.overwrite) as out:
         progress = Progress(enabled=not args.quiet)
-        result = run_compare(layouts, args.periods, progress)
+        result = run_compare(plants, args.periods, progress)
         progress.phase("writing outputs")
         result.summary.update(out.provenance())
         write_compare_outputs(out.staging, result, figures=not args.no_figure)

@@ -16,7 +16,7 @@ import sys
 from airtaper.cli.main import add_output_options
 from airtaper.errors import InputError, Problem
 from airtaper.layout import layout_input_files
-from airtaper.layout.overrides import load_layout_with_overrides
+from airtaper.plant import load_plant
 from airtaper.report.outputs import output_folder
 
 
@@ -40,26 +40,26 @@ def register(subparsers) -> None:
     p.set_defaults(handler=run)
 
 
-def grid_problems(path: str, layout, what: str) -> list[Problem]:
-    """A layout with no diffuser grid, for a command that needs one (``what`` it would do)."""
-    if any(z.has_diffusers for z in layout.zones):
+def grid_problems(path: str, plant, what: str) -> list[Problem]:
+    """A plant with no diffuser grid, for a command that needs one (``what`` it would do)."""
+    if plant.diffused:
         return []
     return [Problem(path, "zones", f"no zone has a diffuser grid: there is {what}", None,
                     "at least one aerated zone with a [zones.grid]")]
 
 
-def layout_problems(path: str, layout) -> list[Problem]:
-    """What a layout lacks for a design (one line each)."""
+def layout_problems(path: str, plant) -> list[Problem]:
+    """What a layout's resolved plant lacks for a design (one line each)."""
     out = []
-    if layout.capital is None:
+    if plant.capital is None:
         out.append(Problem(path, "capital", "a design weighs capital against energy: the layout gives no costs", None,
                            "a [capital] table with cost_per_diffuser"))
-    return out + grid_problems(path, layout, "nothing to design")
+    return out + grid_problems(path, plant, "nothing to design")
 
 
-def periods_problems(n: int | None, layout, whose: str = "the layout's") -> list[Problem]:
-    """``--periods N``: the layout's diurnal grid must map onto N periods (optimize.horizon.with_periods)."""
-    have = layout.horizon.n_periods
+def periods_problems(n: int | None, plant, whose: str = "the layout's") -> list[Problem]:
+    """``--periods N``: the plant's diurnal grid must map onto N periods (optimize.horizon.with_periods)."""
+    have = plant.n_periods
     if n is None or (1 <= n <= 288 and (have % n == 0 or n % have == 0)):
         return []
     return [Problem("<command line>", "--periods", f"must divide or be a multiple of {whose} periods", n,
@@ -72,16 +72,16 @@ def run(args) -> int:
     from airtaper.report.design import design_console, write_design_outputs
 
     warnings: list = []
-    layout = load_layout_with_overrides(args.layout, args.overrides, warnings=warnings)
+    plant = load_plant(args.layout, args.overrides, warnings=warnings)  # every check `check` and `optimize` run
     for w in warnings:
         print(str(w), file=sys.stderr)
-    problems = layout_problems(args.layout, layout) + periods_problems(args.periods, layout)
+    problems = layout_problems(args.layout, plant) + periods_problems(args.periods, plant)
     if problems:
         raise InputError(problems)
-    inputs = layout_input_files(args.layout, layout) + ([args.overrides] if args.overrides else [])
+    inputs = layout_input_files(args.layout, plant.layout) + ([args.overrides] if args.overrides else [])
     with output_folder(args.out, inputs=inputs, overwrite=args.overwrite) as out:
         progress = Progress(enabled=not args.quiet)
-        result = run_design(layout, DesignOptions(n_periods=args.periods, verify=not args.no_verify), progress)
+        result = run_design(plant, DesignOptions(n_periods=args.periods, verify=not args.no_verify), progress)
         progress.phase("writing outputs")
         result.summary.update(out.provenance())
         write_design_outputs(out.staging, result, figures=not args.no_figure)

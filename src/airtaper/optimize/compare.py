@@ -23,7 +23,7 @@ from airtaper.optimize.diurnal import StudyOptions, run_optimization
 from airtaper.optimize.results import jsonable, summary_figures
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.progress import Progress, Silent
-from airtaper.plant import resolve_plant
+from airtaper.plant import ResolvedPlant, resolve_plant
 
 #: Figures of compare.csv that get a difference against the first layout (name -> column).
 DIFFERENCE_COLUMNS = ("energy_kWh_per_year", "cost_per_year", "diffusers", "aerated_volume_m3", "blowers_in_service",
@@ -64,12 +64,14 @@ def _lowest(rows: list[dict], key: str):
     return None if not vals or any(v is None for v in vals) else min(vals)
 
 
-def run_compare(layouts: list[tuple[str, Layout]], n_periods: int | None = None,
+def run_compare(layouts: list[tuple[str, ResolvedPlant | Layout]], n_periods: int | None = None,
                 progress: Progress | None = None, options: StudyOptions | None = None) -> CompareResult:
-    """Optimise every (label, layout) over its load days and set them side by side (module notes)."""
+    """Optimise every (label, plant or layout) over its load days and set them side by side (module notes)."""
     prog = progress or Silent()
     day_rows, rows, plans = [], [], []
     for k, (label, layout) in enumerate(layouts, start=1):
+        # the input the days' plants are made from (a load day's profile, the periods) is the boundary
+        layout = layout.layout if isinstance(layout, ResolvedPlant) else layout
         if n_periods is not None and n_periods != layout.horizon.n_periods:
             layout = with_periods(layout, n_periods)
         plans.append(layout)
@@ -105,7 +107,7 @@ def run_compare(layouts: list[tuple[str, Layout]], n_periods: int | None = None,
         r["cost_vs_first_percent"] = (None if base in (None, 0) or value is None else 100.0 * (value - base) / base)
     worst = max((r["status"] for r in rows), key=lambda s: _ORDER.get(s, 3))
     code = {"optimal": EXIT_OK, "unverified": EXIT_UNVERIFIED, "infeasible": EXIT_INFEASIBLE}.get(worst, EXIT_FAILURE)
-    currency = next((lay.tariff.currency for lay in plans if lay.tariff is not None), "")
+    currency = next((p.tariff.currency for p in map(resolve_plant, plans) if p.tariff is not None), "")
     messages = [f"{r['layout']}: {r['status']}" for r in rows if r["status"] != "optimal"]
     summary = {"status": worst, "currency": currency, "reference": first["layout"], "layouts": rows,
                "messages": messages}

@@ -23,7 +23,11 @@ Decomposition
     solve (the counts are the day model's mutable Param ``diffuser_count``), warm from
     that day's solution on the nearest grid solved before, with at most
     ``DesignOptions.max_iter`` iterations and one retry from the day's baseline start (a day
-    not solved so counts as not met on that grid). The solve's duals give the
+    not solved so counts as not met on that grid). A start that breaks a limit (the
+    minimum day's DO maximum at the grid's turndown, a grid too small for the start's
+    airflow) is solved by two phases: without those limits, then the least they can be
+    broken by; a grid that cannot meet them fails the day at once, with the limit and
+    its least excess (:meth:`GridDesign._two_phase`). The solve's duals give the
     day's sensitivity ``dJ_d/dn_z`` (envelope theorem,
     :func:`airtaper.optimize.marginal.parameter_sensitivity`), so every evaluated grid
     comes with the gradient ``dA/dn_z = CRF x cost_per_diffuser + sum_d w_d dJ_d/dn_z``.
@@ -75,22 +79,57 @@ import pandas as pd
 import pyomo.environ as pyo
 
 from airtaper.errors import EXIT_FAILURE, EXIT_INFEASIBLE, EXIT_OK, EXIT_UNVERIFIED, ModelError
-from airtaper.layout import defaults as D
 from airtaper.layout.loaddays import day_layout, layout_days, with_grid_counts
 from airtaper.layout.types import Layout
 from airtaper.optimize.attempts import LADDER
 from airtaper.optimize.diurnal import DiurnalOptimisation, StudyOptions
+from airtaper.optimize.elastic import REPORT_THRESHOLD
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.marginal import STEP_mg_L, parameter_sensitivity
+from airtaper.optimize.problem import LIMIT_GROUPS
 from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.results import jsonable, study_tables
 from airtaper.optimize.verify import verify_day
-from airtaper.plant import resolve_plant, with_diffuser_counts
+from airtaper.plant import ResolvedPlant, resolve_plant, with_diffuser_counts
 
 #: A day's limit binds a zone when 0.1 mg/L (DO) or 1 % (airflow) of it is worth more than this share of the day's
 #: annual cost (an interior-point dual of a limit that does not bind is many orders smaller). Common practice
 #: (no source).
 BINDING_SHARE = 1e-5
+
+#: A day is started from its solution on a solved grid at most this many count steps away (summed over the zones:
+#: the whole-count search's moves are one step); from further away, from its baseline start by the two phases
+#: (:meth:`GridDesign._two_phase`). On the demo's minimum day a warm start from a grid 10 steps away in one zone
+#: crawled (dual infeasibility 1e13 by iteration 30, 250 iterations without a verdict), its baseline start by the
+#: two phases settles in about 50 iterations on every grid tried. Common practice (no source).
+WARM_STEPS = 2.0
+
+#: The restoration's Newton step aims this many times as far as the linearised excesses say (they flatten towards
+#: zero: a step to exactly zero falls short; on the demo a step aimed 1.5 times removed about half the excess).
+#: Common practice (no source).
+RESTORE_AIM = 1.5
+#: ... and at most this many times as far, when a step removed less of the excess than aimed.
+RESTORE_AIM_MAX = 8.0
+
+#: A day's start breaks a limit when it leaves it by more than this share of the bound (at least of 1: mg/L, Sm3/h,
+#: kPa): the day is then solved by two phases (:meth:`GridDesign._two_phase`). Common practice (no source): far
+#: below the verification's tolerances, far above Ipopt's.
+PHASE_ONE_TOLERANCE = 1e-3
+
+
+def _bound(c) -> float:
+    """The bound of a one-sided limit (the upper one where both are given)."""
+    return float(pyo.value(c.upper) if c.has_ub() else pyo.value(c.lower))
+
+
+def _excess(c) -> float:
+    """How far a constraint's current point breaks its bounds, in the constraint's units (0 when met)."""
+    body = pyo.value(c.body, exception=False)
+    if body is None:
+        return 0.0
+    low = pyo.value(c.lower) - body if c.has_lb() else 0.0
+    high = body - pyo.value(c.upper) if c.has_ub() else 0.0
+    return max(low, high, 0.0)
 
 
 # --- economics (pure) ---------------------------------------------------------------------
@@ -121,30 +160,12 @@ def simple_payback_years(extra_capital: float, annual_saving: float) -> float | 
     return extra_capital / annual_saving
 
 
-def grid_capital(layout: Layout, counts: dict[str, float]) -> float:
-    """Capital of installing the grids ``counts`` (zone -> diffusers) new, in the tariff's currency."""
-    cap = layout.capital
-    return sum(cap.cost_per_diffuser * float(n) + cap.cost_per_zone for n in counts.values())
+def grid_capital(capital, counts: dict[str, float]) -> float:
+    """Capital of installing the grids ``counts`` (zone -> diffusers) new, in the tariff's currency.
 
-
-# --- the design range of a zone -------------------------------------------------------------
-def count_range(layout: Layout, zone) -> tuple[int, int]:
-    """(lowest, highest) count a design may give ``zone``: whole steps within the tested densities.
-
-    The density range is that of the diffuser type's clean-water test points (the SOTE
-    fit interpolates there), capped at the practical maximum density; when not one whole
-    step fits inside it, the range widens to one step up to the practical maximum.
+    ``capital``: the plant's capital costs (:attr:`airtaper.plant.ResolvedPlant.capital`).
     """
-    step = zone.grid.count_step
-    dtype = layout.diffuser_type(zone.grid.type_id)
-    per = 100.0 * dtype.membrane_area_m2 / zone.area_m2  # density of one diffuser, percent
-    dens = [p.density_percent for p in dtype.sote_points]
-    top = min(max(dens), D.DENSITY_MAX_PERCENT)
-    lo = max(step, step * math.ceil(min(dens) / per / step - 1e-9))
-    hi = step * math.floor(top / per / step + 1e-9)
-    if hi < lo:
-        lo, hi = step, max(step, step * math.floor(D.DENSITY_MAX_PERCENT / per / step + 1e-9))
-    return int(lo), int(hi)
+    return sum(capital.cost_per_diffuser * float(n) + capital.cost_per_zone for n in counts.values())
 
 
 @dataclass
@@ -173,6 +194,9 @@ class DaySolve:
     state: np.ndarray | None = None  # the day's variable values at the solution
     ipopt_s: float = 0.0
     iterations: int = 0
+    reason: str | None = None  # why the grid cannot meet the day (the limit and its least excess), when known
+    excess: float | None = None  # the least sum of the broken limits' slacks (phase two), when the day failed so
+    excess_gradient: np.ndarray | None = None  # its derivative by the count of every zone, per diffuser
 
     @property
     def ok(self) -> bool:
@@ -189,35 +213,42 @@ class Candidate:
     gradient: dict[str, float] | None = None  # d objective / d count, money per year per diffuser
     whole: bool = True
     failed_day: str | None = None  # the load day whose limits the grid cannot meet (or whose solve failed)
+    reason: str | None = None  # the limit that day cannot meet on the grid and its least excess, when known
+    excess: float | None = None  # that day's least excess (the sum of the broken limits' slacks), when known
 
 
 class GridDesign:
     """The decomposed design of one layout over its load days (module notes)."""
 
-    def __init__(self, layout: Layout, options: DesignOptions | None = None, progress: Progress | None = None):
-        if layout.capital is None or layout.tariff is None:
-            raise ModelError("a design needs the layout's [capital] costs and [tariff]")
+    def __init__(self, layout: ResolvedPlant | Layout, options: DesignOptions | None = None,
+                 progress: Progress | None = None):
+        if isinstance(layout, ResolvedPlant):  # its input: each load day's and each grid's plant is made from it
+            layout = layout.layout
         self.options = options or DesignOptions()
         if self.options.n_periods is not None and self.options.n_periods != layout.horizon.n_periods:
             layout = with_periods(layout, self.options.n_periods)
-        self.layout = layout
+        self.layout = layout  # the boundary: each load day's layout and a grid's counts are set on it, then resolved
         self.plant = resolve_plant(layout)
+        if self.plant.capital is None or self.plant.tariff is None:
+            raise ModelError("a design needs the layout's [capital] costs and [tariff]")
         self.progress = progress or Silent()
         self.days = layout_days(layout)
-        self.zones = [d.zone for d in self.plant.diffused]
+        self.zones = list(self.plant.diffused)  # DiffusedZone: type, count step, design count range
         if not self.zones:
             raise ModelError("the layout has no diffuser grids to design")
+        self.capital = self.plant.capital
         self.ids = [z.id for z in self.zones]
-        self.steps = np.array([float(z.grid.count_step) for z in self.zones])
-        self.ranges = {z.id: count_range(layout, z) for z in self.zones}
+        self.steps = np.array([float(z.count_step) for z in self.zones])
+        self.ranges = {z.id: z.count_range for z in self.zones}
         self.current = {d.id: d.diffusers for d in self.plant.diffused}
-        self.crf = capital_recovery_factor(layout.capital.interest_rate, layout.capital.life_years)
+        self.crf = capital_recovery_factor(self.capital.interest_rate, self.capital.life_years)
         self.studies: list[DiurnalOptimisation] = []
         self._vars: list[list] = []
         self.timings: dict[str, float] = {}
         self.candidates: list[Candidate] = []
         self._solved: dict[tuple, list[DaySolve]] = {}  # grid key -> every day's solve
         self._failures = [0] * len(self.days)  # grids each day could not be solved on
+        self._started: set[int] = set()  # days solved once (their model no longer holds the baseline start)
         self.relaxed: dict[str, float] | None = None  # the continuous optimum
         self.relaxed_candidate: Candidate | None = None
         self.day_results: list | None = None  # the days' solver results at the loaded grid (duals)
@@ -241,7 +272,8 @@ class GridDesign:
         return tuple(round(float(counts[z]), 6) for z in self.ids)
 
     def _nearest_state(self, i: int, counts: dict[str, float]) -> np.ndarray | None:
-        """Day ``i``'s solution on the solved grid nearest ``counts`` (distance in count steps)."""
+        """Day ``i``'s solution on the solved grid nearest ``counts``, when it is within :data:`WARM_STEPS` count
+        steps (summed over the zones); None otherwise."""
         x = np.array([float(counts[z]) for z in self.ids]) / self.steps
         best, dist = None, math.inf
         for key, solves in self._solved.items():
@@ -249,7 +281,121 @@ class GridDesign:
                 d = float(np.abs(np.array(key) / self.steps - x).sum())
                 if d < dist:
                     best, dist = solves[i].state, d
-        return best
+        return best if dist <= WARM_STEPS else None
+
+    @staticmethod
+    def _broken_limits(st) -> list:
+        """The limits (:data:`airtaper.optimize.problem.LIMIT_GROUPS`: DO range, effluent, airflow per diffuser,
+        mixing, valve, blowers) the day's current point breaks by more than :data:`PHASE_ONE_TOLERANCE` of the
+        bound (at least of 1): their groups."""
+        b, out = st.m.opt, []
+        for group in LIMIT_GROUPS:
+            con = b.component(group.name)
+            if con is None or not con.active:
+                continue
+            for c in con.values():
+                if _excess(c) > PHASE_ONE_TOLERANCE * max(1.0, abs(_bound(c))):
+                    out.append(group)
+                    break
+        return out
+
+    @staticmethod
+    def _least_excess(st, rung, groups, params) -> tuple[str | None, object, float, np.ndarray | None]:
+        """How little the day can break the limits ``groups`` on this grid, from the current point:
+        (the limit, zone and least excess when it cannot meet them, else None; the Ipopt result; the least sum of
+        the slacks; its derivative by the Params ``params``, the diffuser counts, from the duals).
+
+        Phase two of :meth:`_two_phase`: each limit's slack (the elastic solve's: mg/L, or a fraction of an
+        airflow limit) is freed at the point's own excess and the day's objective is replaced by the sum of those
+        slacks, every other limit and the model's equations held; the slacks are fixed at zero and the objective
+        restored afterwards. A slack above the elastic solve's ``REPORT_THRESHOLD`` is a limit not met.
+        """
+        m, b = st.m, st.m.opt
+        slacks = [(g, b.component(g.slack), b.component(g.name)) for g in groups]
+        for _g, var, con in slacks:
+            for k, v in var.items():
+                v.unfix()
+                v.set_value(0.0)
+                c = con[k] if k in con else None
+                if c is None or _excess(c) <= 0.0:
+                    continue
+                # every limit is linear in its own slack: the slack that meets it at this point
+                at0 = pyo.value(c.body)
+                v.set_value(1.0)
+                rate = abs(pyo.value(c.body) - at0)
+                v.set_value(0.0)
+                if rate > 0.0:
+                    v.set_value(_excess(c) / rate)
+        b.objective.deactivate()
+        b.least_excess_objective = pyo.Objective(expr=sum(v for _g, var, _c in slacks for v in var.values()))
+        suffix = m.component("scaling_factor")
+        if suffix is not None:
+            suffix[b.least_excess_objective] = 1.0
+        try:
+            r = st._ipopt(rung)
+            total = float(pyo.value(b.least_excess_objective))
+            grad = np.array(parameter_sensitivity(m, r, params)) if r.ok else None
+            found = []
+            for g, var, _con in slacks:
+                unit = g.unit
+                for k, v in var.items():
+                    if v.value is not None and v.value > REPORT_THRESHOLD[unit]:
+                        where = k[0] if g.index == "zone_period" else k[-1] if isinstance(k, tuple) else k
+                        found.append((float(v.value) / REPORT_THRESHOLD[unit], g, where, float(v.value)))
+        finally:
+            for _g, var, _c in slacks:
+                for v in var.values():
+                    v.fix(0.0)
+            if suffix is not None and b.least_excess_objective in suffix:
+                del suffix[b.least_excess_objective]
+            b.del_component("least_excess_objective")
+            b.objective.activate()
+        if not r.ok or not found:
+            return None, r, total, grad
+        _, g, where, value = max(found, key=lambda f: f[0])
+        amount = f"{100 * value:.3g} %" if g.unit == "fraction" else f"{value:.3g} {g.unit}"
+        return f"{g.text}{f' ({where})' if where is not None else ''} broken by {amount} at the least", r, total, grad
+
+    def _two_phase(self, st, rung, start: str) -> tuple[list, str | None, tuple | None]:
+        """The day solved from ``start`` ("warm": the point set, "first": the baseline start set by the build,
+        "restart": the baseline start again): (every Ipopt result, the last the day's; the reason the grid cannot
+        meet the day, or None; (least excess, its gradient by the counts) when the grid fails the day).
+
+        Where the start breaks a limit (on the minimum day the baseline's uniform DO control at the grid's
+        turndown airflow leaves a DO maximum by 1.6 mg/L on the demo; a smaller grid than the start's cannot pass
+        its airflow), Ipopt from there crawled (steps of 1e-4, the dual infeasibility at 1e14, 400 iterations
+        without a verdict on the demo's own grid, which cannot hold that maximum). So, as a simplex method's two
+        phases do: phase one solves the day without the limits its start breaks (the model's equations and every
+        other limit, 15 iterations there); phase two minimises how far those limits are broken from there
+        (:meth:`_least_excess`, about 20 iterations). When they cannot all be met the grid fails the day, with the
+        limit and the least excess found (a local verdict, like Ipopt's own); otherwise the day is solved with
+        every limit from that point, which meets them all.
+        """
+        if start == "restart":
+            st._restart(rung)
+        elif start == "first":
+            st._free_decisions()
+        broken = self._broken_limits(st)
+        runs = []
+        if broken:
+            cons = [st.m.opt.component(g.name) for g in broken]
+            for con in cons:
+                con.deactivate()
+            try:
+                runs.append(st._ipopt(rung))
+            finally:
+                for con in cons:
+                    con.activate()
+            if runs[-1].ok:
+                params = [st.m.diffuser_count[z] for z in self.ids]
+                reason, r, excess, grad = self._least_excess(st, rung, broken, params)
+                runs.append(r)
+                if reason is not None:
+                    return runs, reason, (excess, grad)
+            if not runs[-1].ok:  # the phases found no point: the day is not solved from this start
+                return runs, None, None
+        runs.append(st._ipopt(rung))
+        return runs, None, None
 
     def _solve_day(self, i: int, counts: dict[str, float]):
         """Day ``i`` on the grid ``counts``, warm from its solution on the nearest solved grid: (DaySolve, result)."""
@@ -258,19 +404,26 @@ class GridDesign:
         for z in self.ids:
             m.diffuser_count[z] = float(counts[z])
         warm = self._nearest_state(i, counts)
+        rungs = [replace(rung, options={**rung.options, "max_iter": self.options.max_iter}) for rung in LADDER[:2]]
         if warm is not None:
             for v, val in zip(self._vars[i], warm):
                 if not v.fixed:
                     v.set_value(float(val), skip_validation=True)
-        if warm is None:  # the day's first solve: from its baseline start
-            st._free_decisions()
-        rungs = [replace(rung, options={**rung.options, "max_iter": self.options.max_iter}) for rung in LADDER[:2]]
-        r = st._ipopt(rungs[0])
-        ipopt_s, iters = r.timings.ipopt_s, r.iterations
-        if not (r.ok or r.status.value == "infeasible"):  # once more from the day's baseline start
-            st._restart(rungs[1])
-            r = st._ipopt(rungs[1])
-            ipopt_s, iters = ipopt_s + r.timings.ipopt_s, iters + r.iterations
+        # warm from the nearest grid's solution, else from the day's baseline start (set by the build for its first
+        # solve, set again after that)
+        start = "warm" if warm is not None else "restart" if i in self._started else "first"
+        self._started.add(i)
+        runs, reason, excess = self._two_phase(st, rungs[0], start)
+        r = runs[-1]
+        if reason is None and not r.ok:  # once more from the day's baseline start
+            more, reason, excess = self._two_phase(st, rungs[1], "restart")
+            runs += more
+            r = runs[-1]
+        ipopt_s, iters = sum(x.timings.ipopt_s for x in runs), sum(x.iterations for x in runs)
+        if reason is not None:
+            self.progress.phase(f"load day {self.days[i].id} cannot be met on the grid: {reason}")
+            return DaySolve("infeasible", ipopt_s=ipopt_s, iterations=iters, reason=reason, excess=excess[0],
+                            excess_gradient=excess[1]), r
         if not r.ok:
             return DaySolve(r.status.value, ipopt_s=ipopt_s, iterations=iters), r
         ref = st.reference()
@@ -280,15 +433,16 @@ class GridDesign:
                         objective=ref * float(pyo.value(m.opt.objective)), gradient=grad, state=state,
                         ipopt_s=ipopt_s, iterations=iters), r
 
-    def evaluate(self, counts: dict[str, float], whole: bool = True) -> Candidate:
+    def evaluate(self, counts: dict[str, float], whole: bool = True, every_day: bool = False) -> Candidate:
         """Annual cost of the grid ``counts``: every load day's schedule optimised on it, one day at a time.
 
         Days are independent given the counts; they run one after the other here (each keeps its model for the
-        warm starts of the next grid).
+        warm starts of the next grid). ``every_day``: solve every day even after one fails (the restoration needs
+        each failing day's excess); a grid evaluated before without it is solved again.
         """
         key = self._key(counts)
         for c in self.candidates:
-            if self._key(c.counts) == key:
+            if self._key(c.counts) == key and (c.objective is not None or not every_day):
                 return c
         if not self.studies:
             self.build()
@@ -296,6 +450,7 @@ class GridDesign:
         self.progress.phase("grid " + ", ".join(f"{z} {counts[z]:.6g}" for z in self.ids))
         n = len(self.days)
         solves, results = [None] * n, [None] * n
+        failed = None
         # a day that failed a grid before is solved first, then the rarest days (the peak and minimum days, which
         # set the limits of a grid): a grid that fails one of them is ruled out sooner
         for i in sorted(range(n), key=lambda k: (-self._failures[k], self.days[k].days_per_year)):
@@ -306,14 +461,15 @@ class GridDesign:
             self.timings["day_solves"] = self.timings.get("day_solves", 0) + 1
             if not s.ok:  # a day that cannot be met rules the grid out: the other days need not be solved
                 self._failures[i] += 1
-                failed = self.days[i].id
-                break
+                failed = self.days[i].id if failed is None else failed
+                if not every_day:
+                    break
         self._solved[key] = [s if s is not None else DaySolve("not solved") for s in solves]
         cand_counts = {z: (int(round(counts[z])) if whole else float(counts[z])) for z in self.ids}
         if all(s is not None and s.ok for s in solves):
-            cap = self.crf * grid_capital(self.layout, counts)
+            cap = self.crf * grid_capital(self.capital, counts)
             w = np.array([d.days_per_year for d in self.days])
-            grad = self.crf * self.layout.capital.cost_per_diffuser + sum(
+            grad = self.crf * self.capital.cost_per_diffuser + sum(
                 wd * s.gradient for wd, s in zip(w, solves))
             cand = Candidate(cand_counts, cap + float(sum(wd * s.goal for wd, s in zip(w, solves))), "optimal",
                              time.perf_counter() - t0, objective=cap + float(sum(
@@ -321,8 +477,9 @@ class GridDesign:
                              gradient=dict(zip(self.ids, map(float, grad))), whole=whole)
             self.day_results = results
         else:
-            bad = next(s for s in solves if s is not None and not s.ok)
-            cand = Candidate(cand_counts, None, bad.status, time.perf_counter() - t0, whole=whole, failed_day=failed)
+            bad = solves[next(k for k, d in enumerate(self.days) if d.id == failed)]  # the first day that failed
+            cand = Candidate(cand_counts, None, bad.status, time.perf_counter() - t0, whole=whole, failed_day=failed,
+                             reason=bad.reason, excess=bad.excess)
         self.candidates.append(cand)
         return cand
 
@@ -374,7 +531,10 @@ class GridDesign:
                 x, c = found
                 break
         if x is None:
-            return None
+            found = self._restore(grid, lo, hi)
+            if found is None:
+                return None
+            x, c = found
         # scaled coordinates: one unit is one count step
         u, g = x / s, np.array([c.gradient[z] for z in self.ids]) * s
         ulo, uhi = lo / s, hi / s
@@ -413,6 +573,45 @@ class GridDesign:
         self.relaxed_candidate = c
         return c
 
+    def _restore(self, grid, lo: np.ndarray, hi: np.ndarray, rounds: int = 6) -> tuple | None:
+        """A grid meeting every day, from the failed grid nearest to it, by Newton steps on the failing days' least
+        excesses (phase two of :meth:`_two_phase`), linearised in the counts by their duals: the shortest step
+        (in count steps) that brings every failing day's linearised excess to zero, aimed :data:`RESTORE_AIM`
+        times as far. None when no failed grid has an excess or ``rounds`` steps find no such grid.
+
+        On the demo the ends and the segments between them fail: the minimum day holds its DO maximum only with
+        few diffusers behind the head of the train, the peak day needs many at the head (700/500/400/340/340
+        misses the minimum day by 0.018 mg/L).
+        """
+        known = [c for c in self.candidates if c.excess is not None]
+        if not known:
+            return None
+        s = self.steps
+        x = np.array([float(min(known, key=lambda c: c.excess).counts[z]) for z in self.ids])
+        aim, last = RESTORE_AIM, None
+        for _ in range(rounds):
+            c = self.evaluate(grid(x), whole=False, every_day=True)
+            if c.objective is not None:
+                return x, c
+            rows = [(d.excess, d.excess_gradient * s) for d in self._solved[self._key(grid(x))]
+                    if d.excess is not None and d.excess_gradient is not None]
+            if not rows:
+                return None
+            G = np.array([g for _e, g in rows])
+            E = np.array([e for e, _g in rows])
+            total = float(E.sum())
+            if last is not None and 0.0 < total < last:
+                # the last step, aimed ``aim`` times as far as the linearisation said, removed only this share of
+                # the excess: the next one is aimed as much further (the excess flattens towards zero)
+                aim = min(aim / ((last - total) / last), RESTORE_AIM_MAX)
+            last = total
+            d = -G.T @ np.linalg.lstsq(G @ G.T, aim * E, rcond=None)[0]
+            x_new = np.clip(x / s + d, lo / s, hi / s) * s
+            if np.max(np.abs(x_new - x) / s) < 0.05:  # the box stops the step: no grid that way
+                return None
+            x = x_new
+        return None
+
     def _between(self, tried: list, grid) -> tuple | None:
         """A grid meeting every day on the segment between two failed grids whose failed days are met on the other
         one (the minimum day met by few diffusers, the peak day by many): bisection on the segment, towards the
@@ -448,7 +647,7 @@ class GridDesign:
     def _nearest(self, rounding=round) -> dict[str, int]:
         out = {}
         for z in self.zones:
-            step = z.grid.count_step
+            step = z.count_step
             lo, hi = self.ranges[z.id]
             out[z.id] = int(min(max(step * rounding(self.relaxed[z.id] / step), lo), hi))
         return out
@@ -471,10 +670,10 @@ class GridDesign:
             moves = []
             for z in self.zones:
                 for sign in (1, -1):
-                    n = best.counts[z.id] + sign * z.grid.count_step
+                    n = best.counts[z.id] + sign * z.count_step
                     if not self.ranges[z.id][0] <= n <= self.ranges[z.id][1]:
                         continue
-                    predicted = best.gradient[z.id] * sign * z.grid.count_step
+                    predicted = best.gradient[z.id] * sign * z.count_step
                     # the annual cost lies above its tangent (convex in the count): a move the gradient says
                     # raises it cannot lower it
                     if predicted > 1e-9 * abs(best.objective):
@@ -510,7 +709,7 @@ class GridDesign:
         """
         if self.day_results is None:
             raise ModelError("load a solved grid first")
-        cur = self.layout.tariff.currency
+        cur = self.plant.tariff.currency
         rows, saving = [], {}
         for day, st, r in zip(self.days, self.studies, self.day_results):
             m, b = st.m, st.m.opt
@@ -606,18 +805,18 @@ def _annual(g: GridDesign, rows: dict, label: str, what: str) -> float:
     return sum(d.days_per_year * rows[d.id][f"{what}_{label}"] for d in g.days)
 
 
-def run_design(layout: Layout, options: DesignOptions | None = None, progress: Progress | None = None
+def run_design(layout: ResolvedPlant | Layout, options: DesignOptions | None = None, progress: Progress | None = None
                ) -> DesignResult:
     """The whole design (module notes): continuous search, whole counts, verification, economics; never raises
     for an infeasible or failed solve (the exit code says it)."""
     t0 = time.perf_counter()
     g = GridDesign(layout, options, progress)
-    lay = g.layout
-    cap = lay.capital
+    lay, plant = g.layout, g.plant
+    cap = plant.capital
     messages: list[str] = []
     g.build()
     relaxed = g.solve_relaxed()
-    base = {"plant": lay.plant.name, "layout": lay.path, "currency": lay.tariff.currency,
+    base = {"plant": plant.name, "layout": plant.path, "currency": plant.tariff.currency,
             "load_days": [{"id": d.id, "days_per_year": d.days_per_year} for d in g.days],
             "capital_inputs": {"cost_per_diffuser": cap.cost_per_diffuser, "cost_per_zone": cap.cost_per_zone,
                                "interest_rate": cap.interest_rate, "life_years": cap.life_years,
@@ -626,7 +825,13 @@ def run_design(layout: Layout, options: DesignOptions | None = None, progress: P
     if relaxed is None:
         statuses = {c.status for c in g.candidates}
         status = "infeasible" if "infeasible" in statuses else "failed"
-        failed = sorted({c.failed_day for c in g.candidates if c.failed_day})
+        nearest = {}  # per load day not met: the grid that came nearest to meeting it (its least excess)
+        for c in g.candidates:
+            if c.failed_day and (c.failed_day not in nearest or (c.excess or math.inf) < (
+                    nearest[c.failed_day].excess or math.inf)):
+                nearest[c.failed_day] = c
+        failed = [d + (f" ({c.reason}, on the grid " + ", ".join(f"{z} {n:.6g}" for z, n in c.counts.items()) + ")"
+                       if c.reason else "") for d, c in sorted(nearest.items())]
         messages.append(("no grid tried in the design ranges meets every load day's limits" if status == "infeasible"
                          else "the load days could not be solved on any start grid (" + ", ".join(sorted(statuses))
                          + ")") + ("; load day(s) not met: " + ", ".join(failed) if failed else "")
@@ -638,7 +843,8 @@ def run_design(layout: Layout, options: DesignOptions | None = None, progress: P
         g.load(g.current)
         current_rows = _day_rows(g, "current")
     else:
-        messages.append("the current grid cannot meet every load day's limits: no payback against it")
+        messages.append("the current grid cannot meet every load day's limits: no payback against it (load day "
+                        f"{current.failed_day}" + (f": {current.reason}" if current.reason else "") + ")")
     best = g.search()
     if best is None:
         messages.append("no whole-count grid near the continuous optimum meets every load day's limits")
@@ -652,10 +858,10 @@ def run_design(layout: Layout, options: DesignOptions | None = None, progress: P
     zones = []
     for z in g.zones:
         zones.append({"zone": z.id, "count_current": g.current[z.id], "count_relaxed": g.relaxed[z.id],
-                      "count_design": best.counts[z.id], "count_step": z.grid.count_step,
+                      "count_design": best.counts[z.id], "count_step": z.count_step,
                       "count_lowest": g.ranges[z.id][0], "count_highest": g.ranges[z.id][1],
-                      "density_current_percent": density_percent(lay, z, g.current[z.id]),
-                      "density_design_percent": density_percent(lay, z, best.counts[z.id]),
+                      "density_current_percent": z.density_percent_at(g.current[z.id]),
+                      "density_design_percent": z.density_percent_at(best.counts[z.id]),
                       "diffuser_saving_per_year": -best.gradient[z.id] + g.crf * cap.cost_per_diffuser,
                       "marginal_annual_cost_per_diffuser": best.gradient[z.id],
                       "binding": "; ".join(binding[z.id])})
@@ -680,7 +886,7 @@ def run_design(layout: Layout, options: DesignOptions | None = None, progress: P
     candidates = candidate_table(g)
 
     def totals(rows, label, counts):
-        capital = grid_capital(lay, counts)
+        capital = grid_capital(cap, counts)
         energy_cost = _annual(g, rows, label, "cost_per_day")
         return {"counts": dict(counts), "capital": capital, "capital_per_year": g.crf * capital,
                 "energy_kWh_per_year": _annual(g, rows, label, "energy_kWh_per_day"),
@@ -739,11 +945,5 @@ def candidate_table(g: GridDesign) -> pd.DataFrame:
                           "failed_day": c.failed_day, "seconds": c.seconds} for c in g.candidates])
 
 
-def density_percent(layout: Layout, zone, count: float) -> float:
-    """Membrane area of ``count`` diffusers over the zone's floor, percent."""
-    return 100.0 * float(count) * layout.diffuser_type(zone.grid.type_id).membrane_area_m2 / zone.area_m2
-
-
-__all__ = ["BINDING_SHARE", "Candidate", "DaySolve", "DesignOptions", "DesignResult", "GridDesign", "run_design", "capital_recovery_factor",
-           "count_range", "density_percent",
-           "grid_capital", "net_present_value", "simple_payback_years"]
+__all__ = ["BINDING_SHARE", "PHASE_ONE_TOLERANCE", "RESTORE_AIM", "WARM_STEPS", "Candidate", "DaySolve", "DesignOptions", "DesignResult", "GridDesign",
+           "run_design", "capital_recovery_factor", "grid_capital", "net_present_value", "simple_payback_years"]
