@@ -28,7 +28,7 @@ Usage::
     python benchmarks/bench_robustness.py [--n 50] [--first 0] [--timeout 600] [--cpu] [--keep DIR]
 
 ``--n`` plants from the fixed seed (``--first`` skips the first ones: run a long list in
-pieces on a busy machine); ``AIRTAPER_ROBUSTNESS_SEEDS=1,2,3`` adds plants from more
+pieces on a busy machine; ``--plants 3,17`` runs only those, e.g. after a fix); ``AIRTAPER_ROBUSTNESS_SEEDS=1,2,3`` adds plants from more
 seeds (``--n`` each); ``--quick``: 3 plants. Times are wall-clock (noisy on a shared
 machine), with the CPU seconds of each run beside the message. The full 50 plants take
 one to a few hours on two cores: this is not a timing benchmark but a count of outcomes.
@@ -232,6 +232,7 @@ def main(argv=None) -> int:
     ap.add_argument("--n", type=int, default=50, help="plants per seed (default 50)")
     ap.add_argument("--first", type=int, default=0, help="skip this many plants of each seed")
     ap.add_argument("--timeout", type=float, default=600.0, help="time limit per plant, s (default 600)")
+    ap.add_argument("--plants", metavar="K,K,...", help="run only these plants (0-based, of each seed)")
     ap.add_argument("--clarifier", choices=("ideal", "layered"), help="run only the plants with this clarifier")
     ap.add_argument("--cpu", action="store_true", help="the time limit counts CPU seconds (a shared machine)")
     ap.add_argument("--keep", metavar="DIR", help="keep the layouts and outputs in DIR")
@@ -239,23 +240,27 @@ def main(argv=None) -> int:
     args = ap.parse_args(argv)
     if args.quick:
         args.n, args.timeout = 3, 300.0
+    only = {int(k) for k in args.plants.split(",")} if args.plants else None
+    if only:
+        args.first, args.n = 0, max(only) + 1
     seeds = [SEED] + [int(s) for s in os.environ.get("AIRTAPER_ROBUSTNESS_SEEDS", "").split(",") if s.strip()]
     base = Path(args.keep) if args.keep else Path(tempfile.mkdtemp(prefix="airtaper-robustness-"))
     counts: dict[str, int] = {}
     total = 0
-    print(f"{'plant':>12} {'zones':>5} {'clar':>7} {'load':>5} {'T_C':>5} {'exit':>4} {'s':>7}  outcome: message")
+    print(f"{'plant':>12} {'zones':>5} {'clar':>7} {'load':>5} {'T_C':>5} {'exit':>4} {'s':>7} {'load':>5}  outcome: message")
     for seed in seeds:
         rng = np.random.default_rng(seed)
         for k in range(args.first + args.n):
             text, desc = random_plant(rng, k)
-            if k < args.first or (args.clarifier and desc["clarifier"] != args.clarifier):
+            if k < args.first or (only and k not in only) or (args.clarifier and desc["clarifier"] != args.clarifier):
                 continue
             outcome, code, seconds, msg = run_plant(text, base / f"{seed}-{k:03d}", args.timeout, args.cpu)
             counts[outcome] = counts.get(outcome, 0) + 1
             total += 1
+            load1 = os.getloadavg()[0]
             print(f"{seed % 1000:>5}-{k:<6d} {desc['zones']:>5} {desc['clarifier']:>7} {desc['load']:>5} "
-                  f"{desc['temperature_C']:>5} {code if code is not None else '-':>4} {seconds:>7.1f}  "
-                  f"{outcome}: {msg[:220]}", flush=True)
+                  f"{desc['temperature_C']:>5} {code if code is not None else '-':>4} {seconds:>7.1f} "
+                  f"{load1:>5.1f}  {outcome}: {msg[:220]}", flush=True)
     good = counts.get("verified", 0) + counts.get("diagnosed", 0)
     print(f"\n{total} plants: " + ", ".join(f"{k} {v}" for k, v in sorted(counts.items()))
           + f"; verified or diagnosed {100.0 * good / max(total, 1):.0f} % (target >= 98 %, no failure)")

@@ -213,6 +213,7 @@ def _commands(layout: Path, tmp: Path) -> dict:
         "calibrate": ["calibrate", str(layout), "--data", str(data), "--out", str(tmp / "c"), "--quiet"],
         "sweep": ["sweep", str(layout), "--grid", str(grid), "--out", str(tmp / "w"), "--quiet", "--no-report"],
         "year": ["year", str(layout), "--out", str(tmp / "y"), "--quiet", "--no-report"],
+        "design": ["design", str(layout), "--out", str(tmp / "d"), "--quiet"],
     }
 
 
@@ -238,4 +239,4 @@ def test_check_rejects_every_layout_the_computing_commands_reject(name, tmp_path
     assert all(line.startswith(f"error: {layout}: ") for line in errors["check"])
     for command, lines in errors.items():
         assert lines == errors["check"], command
-    assert not any((tmp_path / d).exists() for d in "oscwy")
+    assert not any((tmp_path / d).exists() for d in "oscwyd")

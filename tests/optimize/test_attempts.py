@@ -196,12 +196,22 @@ def test_a_spent_solve_budget_ends_in_plain_words_with_exit_3(three_tank_6):
     assert s["infeasibility"] == [] and s["saving_percent"] is None
 
 
-def test_the_solve_budget_hands_each_solve_what_is_left():
+def test_the_solve_budget_hands_each_solve_what_is_left_and_counts_only_the_solves():
+    import time
+
     from airtaper.optimize.attempts import SolveBudget
 
     b = SolveBudget(100.0)
-    assert not b.exhausted and b.remaining() == 100.0  # the clock starts at the first solve
-    first = b.options()["max_cpu_time"]
-    assert 99.0 < first <= 100.0 and not b.exhausted
-    b.started -= 150.0  # 150 CPU seconds of solving later
+    assert not b.exhausted and b.remaining() == 100.0 and b.options()["max_cpu_time"] == 100.0
+    with b.charging():  # a "solve" that burns some CPU
+        t = time.process_time()
+        while time.process_time() - t < 0.05:
+            pass
+    assert 0.05 <= b.spent < 1.0 and b.options()["max_cpu_time"] == pytest.approx(100.0 - b.spent)
+    spent = b.spent
+    t = time.process_time()
+    while time.process_time() - t < 0.05:  # CPU between solves (the simulator's days) is not charged
+        pass
+    assert b.spent == spent and b.remaining() == pytest.approx(100.0 - spent)
+    b.spent += 150.0  # 150 CPU seconds of solving later
     assert b.exhausted and b.options()["max_cpu_time"] == SolveBudget.FLOOR_S

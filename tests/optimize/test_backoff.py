@@ -8,6 +8,7 @@ import pytest
 from airtaper.errors import EXIT_OK
 from airtaper.optimize.backoff import ACCEPT_mg_L, shortfalls
 from airtaper.optimize.diurnal import StudyOptions, run_optimization
+from airtaper.plant import resolve_plant
 
 #: The issue's acceptance: the re-simulated DO, over continuous time, at least the minimum less this.
 DO_ACCEPT_mg_L = 0.01
@@ -18,11 +19,11 @@ def test_shortfalls_name_only_the_zone_periods_below_the_minimum(demo):
     lows["Z2"][5] = 1.0 - 2 * ACCEPT_mg_L
     lows["Z3"][7] = 1.0 - 0.5 * ACCEPT_mg_L  # within the acceptance: no back-off
     backoff = {(z, p): 0.0 for z in ("Z2", "Z3") for p in range(1, 25)}
-    found = shortfalls(demo, lows, backoff, list(range(1, 25)))
+    found = shortfalls(resolve_plant(demo), lows, backoff, list(range(1, 25)))
     assert found == {("Z2", 6): pytest.approx(2 * ACCEPT_mg_L)}  # Z1 (anoxic, no DO minimum) is not asked
     highs = {"Z6": np.full(24, 2.0)}
     highs["Z6"][3] = 2.5 + 0.3  # Z6's DO maximum is 2.5 mg/L (layouts/demo.toml)
-    low, high = shortfalls(demo, lows, backoff, list(range(1, 25)), highs, {("Z6", p): 0.0 for p in range(1, 25)})
+    low, high = shortfalls(resolve_plant(demo), lows, backoff, list(range(1, 25)), highs, {("Z6", p): 0.0 for p in range(1, 25)})
     assert low == found and high == {("Z6", 4): pytest.approx(0.3)}
 
 
@@ -32,8 +33,8 @@ def test_a_swing_zone_is_backed_off_only_in_periods_aerated_after_an_aerated_per
     lows = {"Z2": np.full(6, 0.0)}
     on = np.array([False, True, True, True, False, False])
     backoff = {("Z2", p): 0.0 for p in range(1, 7)}
-    assert set(shortfalls(demo, lows, backoff, list(range(1, 7)))) == {("Z2", p) for p in range(1, 7)}
-    found = shortfalls(demo, lows, backoff, list(range(1, 7)), swing_states={"Z2": on})
+    assert set(shortfalls(resolve_plant(demo), lows, backoff, list(range(1, 7)))) == {("Z2", p) for p in range(1, 7)}
+    found = shortfalls(resolve_plant(demo), lows, backoff, list(range(1, 7)), swing_states={"Z2": on})
     assert set(found) == {("Z2", 3), ("Z2", 4)}  # period 2 is the switch-on, 1, 5 and 6 are off
 
 
@@ -42,7 +43,7 @@ def test_back_offs_leave_half_of_a_zone_s_do_range_open(demo):
 
     low = {("Z6", 1): 0.2, ("Z6", 2): 1.0}
     high = {("Z6", 1): 1.0, ("Z6", 2): 0.5}
-    _keep_band_open(demo, (low, high))
+    _keep_band_open(resolve_plant(demo), (low, high))
     room = (1.0 - OPEN_SHARE) * (2.5 - 1.0)  # Z6: DO range 1.0..2.5 mg/L (layouts/demo.toml)
     assert low[("Z6", 1)] == 0.2 and high[("Z6", 1)] == pytest.approx(room - 0.2)  # the minimum first
     assert low[("Z6", 2)] == pytest.approx(room) and high[("Z6", 2)] == pytest.approx(0.0)
@@ -107,3 +108,92 @@ def test_model_steps_longer_than_half_an_hour_are_refined_to_half_an_hour():
     assert refined_steps_per_period(1.0, 2) is None  # the demo's own 30-minute steps
     assert refined_steps_per_period(0.5, 1) is None
     assert refined_steps_per_period(24.0 / 7, 1) == 7  # a step of at most 30 minutes
+
+
+def _stand_in_rounds(three_tank_6, shorts, ok):
+    """A built three-tank study whose back-off rounds run on stand-ins: the re-simulated days say T2 is ``shorts[k]``
+    mg/L below its minimum in period 2 (at 5 h) on the k-th re-simulation; the k-th re-solve moves T2's airflow
+    in period 1 to 111 k and solves when ``ok(k)``. No Ipopt; the model and its back-off parameters are real."""
+    from dataclasses import replace
+    from types import SimpleNamespace
+
+    from airtaper.optimize.backoff import hold_do
+    from airtaper.optimize.diurnal import DiurnalOptimisation
+
+    study = DiurnalOptimisation(three_tank_6, StudyOptions(marginal=False))
+    study.build()
+    plant = study.plant
+    day0 = study.baseline.day
+    ex = day0.do_extremes.copy()
+    # every zone and period inside its DO range, but T2 below its minimum in period 2 (4-8 h), at 5 h
+    for i, r in ex.iterrows():
+        z = plant.zone(r.zone)
+        lo = z.do_min_mg_L or 0.0
+        hi = z.do_max_mg_L if z.do_max_mg_L is not None else lo + 2.0
+        ex.loc[i, ["do_min_mg_L", "do_max_mg_L"]] = [lo + 0.25 * (hi - lo), lo + 0.5 * (hi - lo)]
+    row = (ex.zone == "T2") & (ex.period == 1)
+    low = plant.zone("T2").do_min_mg_L
+
+    def day_short_by(short):
+        e = ex.copy()
+        e.loc[row, "do_min_mg_L"] = low - short
+        e.loc[row, "do_min_time_h"] = 5.0
+        return replace(day0, do_extremes=e)
+
+    days = [day_short_by(s) for s in shorts]
+    seen, solves = [], []
+
+    def verify():
+        seen.append(len(seen))
+        return {"verified": False, "n": len(seen)}, days[min(len(seen), len(days)) - 1]
+
+    q = study.m.airflow_Sm3_h["T2", 1]
+
+    def resolve_once(rung, warm=True):
+        solves.append(warm)
+        q.set_value(111.0 * len(solves))  # what the "solve" moved
+        r = SimpleNamespace(ok=ok(len(solves)))
+        if r.ok:
+            study.result = r
+        return r
+
+    study.resolve_once = resolve_once
+    return study, hold_do(study, verify), days, solves, q
+
+
+def _backed_off(study) -> dict:
+    import pyomo.environ as pyo
+
+    m = study.m
+    out = {k: float(pyo.value(v)) for k, v in m.opt.do_backoff_mg_L.items() if pyo.value(v) > 0}
+    assert out and all(k[0] == "T2" and m.period_of_step[k[1]] == 2 for k in out)
+    return out
+
+
+def test_a_failed_back_off_round_is_undone_alone(three_tank_6):
+    """Round 1 re-solves, every re-solve of round 2 fails (also with less back-off): the back-offs, schedule,
+    solver result and verification are round 1's (the failed round alone is undone, not the rounds before it)."""
+    from airtaper.optimize.backoff import CUSHION_mg_L, DAMPED_TRIES, GAIN
+
+    study, hold, days, solves, q = _stand_in_rounds(three_tank_6, [0.02, 0.01], lambda k: k == 1)
+    first = GAIN * 0.02 + CUSHION_mg_L
+    assert len(solves) == 1 + 1 + DAMPED_TRIES and hold["rounds"] == 2 and hold["resolve_failed"] is True
+    assert hold["failed_resolves"] == 1 + DAMPED_TRIES
+    assert hold["backoff_mg_L"] == {"T2/2": pytest.approx(first)}  # round 1's, not round 2's nor none
+    assert all(v == pytest.approx(first) for v in _backed_off(study).values())
+    assert q.value == 111.0 and study.result is not None and study.result.ok  # round 1's schedule and result
+    assert hold["verification"]["n"] == 2 and hold["day"] is days[1]  # round 1's re-simulation
+
+
+def test_a_failed_back_off_re_solve_is_tried_again_with_less_back_off(three_tank_6):
+    """Round 2's first re-solve fails, its second (DAMPING times round 2's new back-offs) solves: that is kept,
+    warm from round 1's multipliers (not the failed attempt's)."""
+    from airtaper.optimize.backoff import CUSHION_mg_L, DAMPING, GAIN
+
+    study, hold, days, solves, q = _stand_in_rounds(three_tank_6, [0.02, 0.01, 0.0], lambda k: k != 2)
+    want = GAIN * 0.02 + CUSHION_mg_L + DAMPING * (GAIN * 0.01 + CUSHION_mg_L)
+    assert len(solves) == 3 and hold["rounds"] == 2 and hold["resolve_failed"] is False
+    assert hold["failed_resolves"] == 1 and solves[2] is not True  # warm from round 1's result
+    assert hold["backoff_mg_L"] == {"T2/2": pytest.approx(want)}
+    assert all(v == pytest.approx(want) for v in _backed_off(study).values())
+    assert q.value == 333.0 and hold["verification"]["n"] == 3

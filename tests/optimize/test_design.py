@@ -211,8 +211,8 @@ def test_design_needs_capital():
 def test_day_models_read_their_own_day(solved):
     g, _ = solved
     peak = g.studies[1]
-    assert peak.layout == day_layout(g.layout, g.days[1])
-    assert sum(peak.layout.influent.flow_m3_d) == pytest.approx(1.2 * sum(g.layout.influent.flow_m3_d))
+    assert peak.plant.layout == day_layout(g.layout, g.days[1])
+    assert sum(peak.plant.hydraulics.influent_m3_d) == pytest.approx(1.2 * sum(g.plant.hydraulics.influent_m3_d))
 
 
 @pytest.mark.solver

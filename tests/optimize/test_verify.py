@@ -9,9 +9,11 @@ from airtaper.optimize.compliance import DO_TOLERANCE_mg_L
 from airtaper.optimize.simday import simulate_day
 from airtaper.optimize.verify import DAY_REPEAT_TOL, LEAD_IN_h, lead_in_periods, start_state_of, swing_do_margins, \
     verify_day
+from airtaper.plant import resolve_plant
 
 
 def test_swing_zone_do_minimum_is_checked_only_while_aerated_after_an_aerated_period(fenwhistle):
+    fenwhistle = resolve_plant(fenwhistle)
     lo = fenwhistle.zone("Z2").do_min_mg_L  # 0.5 mg/L (layouts/fenwhistle.toml)
     on = np.array([False, True, True, True, False, False])
     lows = {"Z2": np.array([0.0, 0.0, lo + 0.2, lo - 0.1, 0.0, 0.0])}  # switch-on period 2 rises from nothing
@@ -47,7 +49,7 @@ def test_the_lead_in_gives_the_day_a_start_at_0_h_gives_in_fewer_days(three_tank
     assert lay.influent.flow_m3_d == three_tank_diurnal.influent.flow_m3_d  # the diurnal load kept
     res = run_optimization(lay, StudyOptions(verify=False, marginal=False, prescreen=False, complying_baseline=False))
     study = res.study
-    ver, day = verify_day(lay, study.schedule_by_zone(), study.figures(), study.m)
+    ver, day = verify_day(study.plant, study.schedule_by_zone(), study.figures(), study.m)
     state, waste = start_state_of(study.m)
     at_0h = simulate_day(lay, schedule=study.schedule_by_zone(), start_state=state, start_waste_m3_d=waste,
                          tol=DAY_REPEAT_TOL)
@@ -62,3 +64,11 @@ def test_the_lead_in_gives_the_day_a_start_at_0_h_gives_in_fewer_days(three_tank
     first, _ = start_state_of(study.m, 5)
     t = 5 * len(study.m.STEPS) // 6
     assert first["zones"]["T1"][7] == study.m.conc[t, "T1", "SO"].value
+
+
+def test_the_verification_takes_a_resolved_plant_only(fenwhistle):
+    """The layout is resolved once, before the study: a Layout reaching the verification is an internal error."""
+    with pytest.raises(TypeError, match="ResolvedPlant"):
+        swing_do_margins(fenwhistle, {}, None)
+    with pytest.raises(TypeError, match="ResolvedPlant"):
+        verify_day(fenwhistle, {}, {})

@@ -1,6 +1,4 @@
-"""Blower power against an independent isentropic calculation (CoolProp), efficiency curves, energy."""
-
-import warnings
+"""Blower power against an independent isentropic calculation (CoolProp), equivalent curves, energy."""
 
 import numpy as np
 import pytest
@@ -9,9 +7,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from airtaper import units
-from airtaper.errors import InputError
 from airtaper.physics import blower as bl
-from airtaper.physics.extrapolation import EfficiencyExtrapolationWarning
 
 
 def coolprop_isentropic_power_kW(airflow_Sm3_h, inlet_temperature_C, inlet_kPa, discharge_kPa, efficiency):
@@ -75,32 +71,6 @@ def test_power_increases_with_pressure_and_flow(airflow, p2a, p2b, factor, tempe
     assert bl.blower_power_kW(airflow * factor, temperature, 100.0, lo, 0.7) > p_lo
 
 
-def test_efficiency_curve_fit_and_use():
-    # Invented turbo blower: best efficiency near 70 % of the largest tested flow.
-    q = np.array([3000.0, 4000.0, 5000.0, 6000.0, 7000.0])
-    x = q / 7000.0
-    eta = 0.78 - 0.5 * (x - 0.7) ** 2
-    curve = bl.fit_efficiency_curve(q, eta, name="turbo")
-    np.testing.assert_allclose(curve.efficiency(q), eta, atol=1e-9)
-    assert max(abs(r) for r in curve.residuals) < 1e-9
-    assert curve.coefficients[2] <= 0
-    direct = bl.blower_power_kW(5000.0, 20.0, 100.0, 160.0, float(curve.efficiency(5000.0)))
-    assert bl.blower_power_kW(5000.0, 20.0, 100.0, 160.0, curve) == pytest.approx(direct, rel=1e-14)
-    with pytest.warns(EfficiencyExtrapolationWarning):
-        curve.efficiency(9000.0)
-
-
-def test_efficiency_curve_small_sets_and_bad_input():
-    constant = bl.fit_efficiency_curve([4000.0], [0.72])
-    assert constant.efficiency(4000.0) == pytest.approx(0.72)
-    line = bl.fit_efficiency_curve([3000.0, 5000.0], [0.65, 0.75])
-    assert line.efficiency(4000.0) == pytest.approx(0.70)
-    with pytest.raises(InputError, match=r"\(0, 1\]"):
-        bl.fit_efficiency_curve([3000.0, 5000.0], [0.65, 1.2])
-    with pytest.raises(InputError):
-        bl.fit_efficiency_curve([3000.0, 5000.0], [0.65])
-
-
 def test_energy():
     assert bl.energy_kWh(120.0, 0.5) == pytest.approx(60.0)
     np.testing.assert_allclose(bl.energy_kWh(np.array([100.0, 150.0]), 1.0).sum(), 250.0)
@@ -114,11 +84,6 @@ def test_pyomo_matches_numpy(rng, pyomo_check):
     )
     pyomo_check(bl.blower_power_kW, pts)
     pyomo_check(bl.blower_power_textbook_kW, pts)
-    curve = bl.fit_efficiency_curve([3000.0, 5000.0, 7000.0], [0.70, 0.76, 0.72])
-    with warnings.catch_warnings():
-        warnings.simplefilter("error")
-        pyomo_check(lambda q, t, p1, p2: bl.blower_power_kW(q, t, p1, p2, curve),
-                    np.column_stack([rng.uniform(3000.0, 7000.0, n), pts[:, 1:4]]))
 
 
 def test_efficiency_from_power_inverts_blower_power():

@@ -263,3 +263,41 @@ def test_every_load_day_is_checked_as_a_plant_of_its_own():
     lines = [str(p) for p in info.value.problems]
     assert lines[0].startswith(E + "load_days.low, zones.Z2: the recycles drawn from this zone exceed")
     assert all(line.startswith(E + "load_days.low, zones.") for line in lines)
+
+
+def test_a_design_grid_variant_is_the_plant_resolved_with_the_new_counts(demo):
+    """The counts reach every count-dependent quantity of the zone (density, range, kLa) and nothing else moves."""
+    from airtaper.plant import with_diffuser_counts
+
+    z = demo.diffused[0]
+    other = demo.diffused[1]
+    variant = with_diffuser_counts(demo, {z.id: 2 * z.diffusers})
+    v = variant.air.zone(z.id)
+    assert v.diffusers == 2 * z.diffusers and demo.air.zone(z.id).diffusers == z.diffusers  # the plant is unchanged
+    assert v.density_percent == pytest.approx(2 * z.density_percent)
+    q = 0.5 * (z.airflow_min_Sm3_h + z.airflow_max_Sm3_h)
+    assert v.kla_per_d(q, 15.0) == pytest.approx(z.kla_per_d(q, 15.0, diffusers=2 * z.diffusers))
+    assert v.kla_per_d(q, 15.0) != pytest.approx(z.kla_per_d(q, 15.0))
+    assert variant.air.zone(other.id).diffusers == other.diffusers
+    np.testing.assert_array_equal(variant.hydraulics.zone_flow_m3_d, demo.hydraulics.zone_flow_m3_d)
+
+
+def test_design_fields_of_the_plant():
+    """What a grid design reads: capital, load days, per zone its type, count step and design count range."""
+    from airtaper.plant.resolve import design_count_range
+    plant = load_plant(LAYOUTS / "demo.toml")
+    lay = plant.layout
+    assert plant.capital == lay.capital and plant.load_days == lay.load_days
+    for d in plant.diffused:
+        dt = lay.diffuser_type(d.zone.grid.type_id)
+        assert d.diffuser_type is dt and d.count_step == d.zone.grid.count_step
+        assert d.density_percent_at(d.diffusers) == pytest.approx(d.density_percent)
+        lo, hi = d.count_range
+        assert lo % d.count_step == 0 and hi % d.count_step == 0 and lo <= hi
+    # 0.027 % a diffuser, tested 6-15 %: 222.2-555.6 diffusers -> whole steps inside (arithmetic)
+    assert design_count_range(100, 0.027, [6.0, 15.0]) == (300, 500)
+    assert design_count_range(1, 0.027, [6.0, 15.0]) == (223, 555)
+    # no whole step of 1000 inside the tested range: one step up to the practical maximum density (25 % is 925
+    # diffusers, below one step, so the range is the one step)
+    assert design_count_range(1000, 0.027, [6.0, 15.0]) == (1000, 1000)
+    assert design_count_range(300, 0.027, [6.0, 7.0]) == (300, 900)  # 25 % is 925.9 diffusers

@@ -27,10 +27,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-import pyomo.environ as pyo
 
 from airtaper.calibrate.horizon import record_layout
-from airtaper.calibrate.problem import BOUNDS, FitSpec, attach_fit, fix_parameters, free_parameters, parameters
+from airtaper.calibrate.problem import (BOUNDS, Fit, FitSpec, attach_fit, fix_parameters, free_parameters, parameters,
+                                        residuals)
 from airtaper.calibrate.statistics import FitStatistics, fit_statistics
 from airtaper.errors import ModelError
 from airtaper.layout.plantdata import PlantRecord, period_inputs
@@ -123,25 +123,25 @@ def _do_sat_at_logged_times(data, record: PlantRecord, period_h: float) -> dict:
     return {z: np.asarray(a.do_sat_mg_L)[k] for z, a in zip(data.zones, data.aeration) if isinstance(a, GridAeration)}
 
 
-def _solve(m, b, options: CalibrationOptions, attempts: list):
+def _solve(m, fit: Fit, options: CalibrationOptions, attempts: list):
     opts = dict(IPOPT_OPTIONS)
     opts.update(options.ipopt_options)
-    free_parameters(b)
+    free_parameters(fit)
     r = solve_nlp(m, opts)
     attempts.append({"start": "mean-load steady state", "status": r.status.value, "iterations": r.iterations,
                      "seconds": r.timings.total_s, "message": r.message})
     if r.ok:
         return r
     # second start: the layout's parameters, marched through the record and solved square
-    fix_parameters(b)
-    for v, v0 in zip(parameters(b), b.start_values):
+    fix_parameters(fit)
+    for v, v0 in zip(parameters(fit), fit.start_values):
         v.set_value(v0)
     initialise_cyclic(m)
     march_cyclic(m, days=1)
-    b.objective.deactivate()
+    fit.block.objective.deactivate()
     r0 = solve_nlp(m, dict(opts, max_iter=200))
-    b.objective.activate()
-    free_parameters(b)
+    fit.block.objective.activate()
+    free_parameters(fit)
     r = solve_nlp(m, opts)
     attempts.append({"start": "marched and square-solved at the layout's values", "status": r.status.value,
                      "iterations": r.iterations + r0.iterations, "seconds": r.timings.total_s + r0.timings.total_s,
@@ -182,11 +182,10 @@ def run_calibration(plant: ResolvedPlant | Layout, record: PlantRecord, options:
     t = time.perf_counter()
     m = build_train_model(data, steady=False, airflow=inputs.airflow_Sm3_h, scheme="radau2",
                           name="airtaper_calibration")
-    b = attach_fit(m, record, spec)
+    fit = attach_fit(m, record, spec)
     for z in zones:  # keep the fitted alpha inside the layout's own range (alpha <= 1.2)
-        b.alpha_F[z].setub(min(BOUNDS["alpha_F"][1], 1.2 * plant.zone(z).fouling))
-    b.start_values = [float(v.value) for v in parameters(b)]
-    if not len(b.observations):
+        fit.block.alpha_F[z].setub(min(BOUNDS["alpha_F"][1], 1.2 * plant.zone(z).fouling))
+    if not fit.observations:
         raise ModelError("no logged values after the warm-up: shorten warmup_h or give a longer record")
     timings["build_s"] = time.perf_counter() - t
     t = time.perf_counter()
@@ -195,18 +194,18 @@ def run_calibration(plant: ResolvedPlant | Layout, record: PlantRecord, options:
     timings["initialise_s"] = time.perf_counter() - t
     say("fitting (Ipopt, exact derivatives)")
     attempts: list = []
-    r = _solve(m, b, opts, attempts)
+    r = _solve(m, fit, opts, attempts)
     timings["solve_s"] = sum(a["seconds"] for a in attempts)
     messages = list(held.values())
     names = spec.names()
-    params = parameters(b)
+    params = parameters(fit)
     stats_ = None
     status = "fitted" if r.ok else "failed"
     if r.ok:
         say("statistics: reduced Hessian")
         t = time.perf_counter()
-        res = np.array([pyo.value(b.residual[i]) for i in b.OBS])
-        stats_ = fit_statistics(m, names, params, [b.residual[i].expr for i in b.OBS], res)
+        b = fit.block
+        stats_ = fit_statistics(m, names, params, [b.residual[i].expr for i in b.OBS], residuals(fit))
         timings["statistics_s"] = time.perf_counter() - t
         messages.extend(stats_.messages)
         for v, name in zip(params, names):
@@ -216,9 +215,9 @@ def run_calibration(plant: ResolvedPlant | Layout, record: PlantRecord, options:
                                 "outside the plausible range; check the data and the layout")
     else:
         messages.append(f"the fit did not converge ({r.message}); no values are reported")
-    obs_table = _observation_table(m, b)
+    obs_table = _observation_table(fit)
     rms = _rms(obs_table)
-    estimates = _estimates(spec, params, b.start_values, stats_)
+    estimates = _estimates(spec, params, fit.start_values, stats_)
     overrides, notes = _overrides(plant, spec, params, stats_) if r.ok else ({}, {})
     timings["total_s"] = time.perf_counter() - t0
     solver = {"status": r.status.value, "message": r.message, "iterations": int(sum(a["iterations"] for a in attempts)),
@@ -231,11 +230,10 @@ def run_calibration(plant: ResolvedPlant | Layout, record: PlantRecord, options:
     return result
 
 
-def _observation_table(m, b) -> pd.DataFrame:
+def _observation_table(fit: Fit) -> pd.DataFrame:
     rows = []
-    for i in b.OBS:
-        ob = b.observations[i - 1]
-        r = float(pyo.value(b.residual[i]))
+    for ob, r in zip(fit.observations, residuals(fit)):
+        r = float(r)
         rows.append({"time_h": ob.time_h, "kind": ob.kind, "location": ob.where, "measured": ob.value,
                      "fitted": ob.value + r * ob.sd, "weighted_residual": r})
     return pd.DataFrame(rows)

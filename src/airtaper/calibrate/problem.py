@@ -115,8 +115,19 @@ def _kla_with_alpha_f(m, z, p, alpha_f):
                                    alpha_fouling=alpha_f)
 
 
-def attach_fit(m, record: PlantRecord, spec: FitSpec):
-    """Add parameters, observations and the least-squares objective in ``m.fit``; returns the block.
+@dataclass(frozen=True, eq=False)
+class Fit:
+    """The fit attached to a model: its Pyomo block ``m.fit`` (parameters, residuals, objective)
+    and, beside it, what is not a Pyomo component (the spec, the observations, the start)."""
+
+    block: pyo.Block
+    spec: FitSpec
+    observations: tuple[Observation, ...]  # in the order of ``block.OBS``
+    start_values: tuple[float, ...]  # the parameters' start (the layout's values), :meth:`FitSpec.names` order
+
+
+def attach_fit(m, record: PlantRecord, spec: FitSpec) -> Fit:
+    """Add parameters, observations and the least-squares objective in ``m.fit``; returns the :class:`Fit`.
 
     The parameters start at the layout's values and are *fixed*; :func:`free_parameters`
     frees them for the fit.
@@ -124,7 +135,6 @@ def attach_fit(m, record: PlantRecord, spec: FitSpec):
     data = m.train_data
     plant = data.plant
     m.fit = b = pyo.Block()
-    b.spec = spec
     b.ZONES = pyo.Set(initialize=list(spec.zones), ordered=True)
     start = {z: plant.zone(z).alpha * plant.zone(z).fouling for z in spec.zones}
     b.alpha_F = pyo.Var(b.ZONES, bounds=BOUNDS["alpha_F"], initialize=start)
@@ -151,39 +161,41 @@ def attach_fit(m, record: PlantRecord, spec: FitSpec):
                 c = {k: m.conc[t, z, k] for k in m.COMPONENTS}
                 for name, rho in zip(PROCESSES, asm1_process_rates(c, par)):
                     m.rate[t, z, name].set_value(rho)
-    obs = observations(m, record, spec)
-    b.observations = obs
+    obs = tuple(observations(m, record, spec))
     b.OBS = pyo.RangeSet(len(obs))
     b.residual = pyo.Expression(b.OBS, rule=lambda b, i: (_model_value(m, obs[i - 1]) - obs[i - 1].value)
                                 / obs[i - 1].sd)
     b.objective = pyo.Objective(expr=0.5 * sum(b.residual[i] ** 2 for i in b.OBS), sense=pyo.minimize)
-    return b
+    fit = Fit(block=b, spec=spec, observations=obs, start_values=())
+    return replace(fit, start_values=tuple(float(v.value) for v in parameters(fit)))
 
 
-def parameters(b) -> list:
+def parameters(fit: Fit) -> list:
     """The parameter variables in :meth:`FitSpec.names` order."""
+    b = fit.block
     out = [b.alpha_F[z] for z in b.ZONES]
-    if b.spec.mu_A:
+    if fit.spec.mu_A:
         out.append(b.mu_A)
-    if b.spec.K_OH:
+    if fit.spec.K_OH:
         out.append(b.K_OH)
     return out
 
 
-def free_parameters(b) -> None:
-    for v in parameters(b):
+def free_parameters(fit: Fit) -> None:
+    for v in parameters(fit):
         v.unfix()
 
 
-def fix_parameters(b) -> None:
-    for v in parameters(b):
+def fix_parameters(fit: Fit) -> None:
+    for v in parameters(fit):
         v.fix()
 
 
-def residuals(b) -> np.ndarray:
+def residuals(fit: Fit) -> np.ndarray:
     """Weighted residuals at the current point."""
+    b = fit.block
     return np.array([pyo.value(b.residual[i]) for i in b.OBS])
 
 
-__all__ = ["BOUNDS", "FitSpec", "Observation", "attach_fit", "fix_parameters", "free_parameters", "interpolation",
+__all__ = ["BOUNDS", "Fit", "FitSpec", "Observation", "attach_fit", "fix_parameters", "free_parameters", "interpolation",
            "observations", "parameters", "residuals"]

@@ -56,11 +56,6 @@ class TrainData:
     aeration: tuple[GridAeration | FixedAeration | None, ...]  # (Z,)
 
     @property
-    def layout(self) -> Layout:
-        """The layout the plant was resolved from (for what is written back out)."""
-        return self.plant.layout
-
-    @property
     def n_zones(self) -> int:
         return len(self.zones)
 

@@ -58,6 +58,7 @@ from airtaper.model.clarifier import attach_ideal_separator, attach_layered_sett
 from airtaper.model.data import FixedAeration, GridAeration, TrainData, mean_load, single_period, train_data
 from airtaper.model.discretisation import StepSlice, switched_balance, time_balance
 from airtaper.process.stoichiometry import PARTICULATES, PROCESSES, SOLIDS_COD, n_composition
+from airtaper.plant import ResolvedPlant
 
 
 
@@ -185,7 +186,6 @@ def attach_sets(m, data: TrainData, steady: bool, scheme: str = "radau2") -> Non
     weights = a[-1] / n_steps
     m.point_weight = {t: float(weights[m.stage_of_point[t]]) for t in range(1, n_points + 1)}
     m.tss_per_cod = float(data.clarifier.tss_per_cod)
-    m.n_composition = {c: float(v) for c, v in zip(ASM1_COMPONENTS, n_composition(data.params[0]))}
 
 
 # --- aeration -------------------------------------------------------------------------
@@ -220,8 +220,10 @@ def attach_aeration(m, data: TrainData, airflow=None, diffuser_count=None) -> No
     one such Var between the models of its load days).
     """
     m.aeration = {z: a for z, a in zip(data.zones, data.aeration) if a is not None}
-    m.zone_volume_m3 = {z: float(v) for z, v in zip(data.zones, data.volume_m3)}
-    m.temperature_C = {p + 1: float(t) for p, t in enumerate(data.temperature_C)}
+    m.zone_volume_m3 = pyo.Param(m.ZONES, initialize={z: float(v) for z, v in zip(data.zones, data.volume_m3)},
+                                 doc="zone volume, m3")
+    m.temperature_C = pyo.Param(m.PERIODS, initialize={p + 1: float(t) for p, t in enumerate(data.temperature_C)},
+                                doc="water temperature, C")
     grid = [z for z, a in m.aeration.items() if isinstance(a, GridAeration)]
     fixed = [z for z, a in m.aeration.items() if isinstance(a, FixedAeration)]
     m.GRID_ZONES = pyo.Set(initialize=grid, ordered=True)
@@ -270,12 +272,12 @@ def _process_rates(m, data: TrainData) -> dict:
     return out
 
 
-def zone_rhs(m, ts, p, z, c, rates):
+def zone_rhs(m, a: _Aux, ts, p, z, c, rates):
     """Right-hand side of a zone balance, g/m3/d: state of step ``ts``, inputs of period ``p``.
 
-    ``rates``: process name -> rate expression at that state (parameters of period ``p``).
+    ``a``: the train's flows and loads (:func:`_aux`); ``rates``: process name -> rate
+    expression at that state (parameters of period ``p``).
     """
-    a: _Aux = m._aux
     i = a.zone_index[z]
     pi = p - 1
     flow_in = a.influent_load[pi][i][c]
@@ -293,31 +295,40 @@ def zone_rhs(m, ts, p, z, c, rates):
     return rhs
 
 
-def _zone_rhs_rule(m, t, z, c):
+def _zone_rhs_rule(a: _Aux):
     """dC/dt of a zone at step t (inflows - outflow + reactions + aeration), g/m3/d."""
-    return zone_rhs(m, t, m.period_of_step[t], z, c, {j: m.rate[t, z, j] for j in PROCESSES})
+    return lambda m, t, z, c: zone_rhs(m, a, t, m.period_of_step[t], z, c, {j: m.rate[t, z, j] for j in PROCESSES})
 
 
-def _zone_mass_balance_rule(m, t, z, c):
-    """Completely mixed zone: inflows - outflow + reactions (+ aeration for SO) = accumulation."""
-    if z in m.switched_zones and not m.steady and m.scheme.startswith("radau"):
-        return switched_balance(m, t, StepSlice(m.conc, z, c), StepSlice(m.zone_rhs, z, c))
-    return time_balance(m, t, StepSlice(m.conc, z, c), StepSlice(m.zone_rhs, z, c))
+def _zone_mass_balance_rule(switched_zones: frozenset):
+    """Completely mixed zone: inflows - outflow + reactions (+ aeration for SO) = accumulation.
+
+    ``switched_zones``: zones whose air may switch off (:func:`switched_balance` under Radau).
+    """
+    def rule(m, t, z, c):
+        if z in switched_zones and not m.steady and m.scheme.startswith("radau"):
+            return switched_balance(m, t, StepSlice(m.conc, z, c), StepSlice(m.zone_rhs, z, c))
+        return time_balance(m, t, StepSlice(m.conc, z, c), StepSlice(m.zone_rhs, z, c))
+
+    return rule
 
 
 def attach_zone_states(m, data: TrainData) -> None:
     """Zone concentrations ``conc[t, zone, component]`` (declared before the clarifier uses them)."""
-    m._aux = _aux(data)
     m.conc = pyo.Var(m.STEPS, m.ZONES, m.COMPONENTS, bounds=(0.0, None), initialize=1.0,
                      doc="zone concentration, g/m3 (SALK mol/m3)")
 
 
-def attach_zone_balances(m, data: TrainData) -> None:
-    """The ASM1 process rates, the zone right-hand sides and the zone mass balances."""
+def attach_zone_balances(m, data: TrainData, switched_zones=()) -> None:
+    """The ASM1 process rates, the zone right-hand sides and the zone mass balances.
+
+    ``switched_zones``: see :func:`build_train_model`.
+    """
     m.rate = pyo.Expression(m.STEPS, m.ZONES, m.PROCESSES, initialize=_process_rates(m, data),
                             doc="ASM1 process rate, g/m3/d")
-    m.zone_rhs = pyo.Expression(m.STEPS, m.ZONES, m.COMPONENTS, rule=_zone_rhs_rule)
-    m.zone_balance = pyo.Constraint(m.STEPS, m.ZONES, m.COMPONENTS, rule=_zone_mass_balance_rule)
+    m.zone_rhs = pyo.Expression(m.STEPS, m.ZONES, m.COMPONENTS, rule=_zone_rhs_rule(_aux(data)))
+    m.zone_balance = pyo.Constraint(m.STEPS, m.ZONES, m.COMPONENTS,
+                                    rule=_zone_mass_balance_rule(frozenset(switched_zones)))
 
 
 def attach_clarifier(m, data: TrainData) -> None:
@@ -357,9 +368,9 @@ def _daily_mean(m, expr):
     return sum(m.point_weight[t] * expr[t] for t in m.STEPS)
 
 
-def _srt_target_rule(m):
+def _srt_target_rule(m, srt_target_d: float):
     """Daily mean solids inventory = target SRT x daily mean solids leaving (waste + effluent)."""
-    return _daily_mean(m, m.solids_inventory_g) == m.srt_target_d * _daily_mean(m, m.solids_out_g_d)
+    return _daily_mean(m, m.solids_inventory_g) == srt_target_d * _daily_mean(m, m.solids_out_g_d)
 
 
 def _constant_waste_rule(m, p):
@@ -395,8 +406,7 @@ def attach_wasting(m, data: TrainData) -> None:
     m.solids_out_g_d = pyo.Expression(m.STEPS, rule=_solids_out_rule)
     m.srt_d = pyo.Expression(rule=_srt_rule, doc="sludge retention time (zones' solids / solids leaving), d")
     if data.waste_m3_d is None:
-        m.srt_target_d = float(data.srt_d)
-        m.srt_target = pyo.Constraint(rule=_srt_target_rule)
+        m.srt_target = pyo.Constraint(rule=lambda m: _srt_target_rule(m, float(data.srt_d)))
         m.constant_waste = pyo.Constraint(m.PERIODS, rule=_constant_waste_rule)
 
 
@@ -408,15 +418,14 @@ def _otr_rule(m, t, z):
     return units.kg_d_to_kg_h(units.g_to_kg(g_d))
 
 
-def _effluent_tn_rule(m, t):
-    return sum(w * m.effluent_conc[t, c] for c, w in m.n_composition.items() if w != 0.0)
-
-
-def attach_outputs(m) -> None:
+def attach_outputs(m, data: TrainData) -> None:
     """Named expressions the optimiser and the reports use (per step)."""
     m.otr_kg_h = pyo.Expression(m.STEPS, m.AERATED_ZONES, rule=_otr_rule)
     m.effluent_nh4_mg_L = pyo.Expression(m.STEPS, rule=lambda m, t: m.effluent_conc[t, "SNH"])
-    m.effluent_tn_mg_L = pyo.Expression(m.STEPS, rule=_effluent_tn_rule)
+    # total nitrogen per unit of each component (stoichiometric: the same in every period)
+    n_per = {c: float(v) for c, v in zip(ASM1_COMPONENTS, n_composition(data.params[0])) if float(v) != 0.0}
+    m.effluent_tn_mg_L = pyo.Expression(m.STEPS, rule=lambda m, t: sum(w * m.effluent_conc[t, c]
+                                                                      for c, w in n_per.items()))
     m.effluent_tss_mg_L = pyo.Expression(
         m.STEPS, rule=lambda m, t: m.tss_per_cod * sum(m.effluent_conc[t, c] for c in SOLIDS_COD))
 
@@ -448,26 +457,25 @@ def build_train_model(data: TrainData, *, steady: bool, airflow=None, scheme: st
     """
     m = pyo.ConcreteModel(name=name)
     m.train_data = data
-    m.switched_zones = frozenset(switched_zones)
     attach_sets(m, data, steady, scheme)
     attach_aeration(m, data, airflow, diffuser_count)
     attach_flows(m, data)
     attach_zone_states(m, data)
     attach_clarifier(m, data)
-    attach_zone_balances(m, data)
-    attach_outputs(m)
+    attach_zone_balances(m, data, switched_zones)
+    attach_outputs(m, data)
     attach_wasting(m, data)
     m.scaling_factor = pyo.Suffix(direction=pyo.Suffix.EXPORT)
     return m
 
 
-def build_steady_model(layout: Layout, *, period: int | None = None, airflow=None):
-    """A steady-state model of ``layout``: at the daily mean load, or at ``period`` (1-based)'s load.
+def build_steady_model(plant: ResolvedPlant | Layout, *, period: int | None = None, airflow=None):
+    """A steady-state model of ``plant``: at the daily mean load, or at ``period`` (1-based)'s load.
 
     ``airflow``: zone -> airflow, Sm3/h (for the mean load a per-period schedule is
     averaged over the day).
     """
-    data = train_data(layout)
+    data = train_data(plant)
     if period is None:
         steady = mean_load(data)
         if airflow is not None:
@@ -479,19 +487,19 @@ def build_steady_model(layout: Layout, *, period: int | None = None, airflow=Non
     return build_train_model(steady, steady=True, airflow=airflow, name="airtaper_steady")
 
 
-def build_cyclic_model(layout: Layout, *, airflow=None, scheme: str = "radau2", steps_per_period: int | None = None,
-                       diffuser_count=None):
-    """The cyclic diurnal model of ``layout`` (periods and steps from ``layout.horizon``).
+def build_cyclic_model(plant: ResolvedPlant | Layout, *, airflow=None, scheme: str = "radau2",
+                       steps_per_period: int | None = None, diffuser_count=None):
+    """The cyclic diurnal model of ``plant`` (periods and steps from its horizon; a layout is resolved first).
 
     ``scheme``: "radau2" (Radau IIA, 2 points per step, order 3; default), "radau3"
     (order 5), "euler" (backward Euler) or "bdf2";
     ``steps_per_period`` overrides the layout's. Swing zones get :func:`switched_balance`.
     """
-    data = train_data(layout)
+    data = train_data(plant)
     if steps_per_period is not None:
         data = replace(data, steps_per_period=int(steps_per_period))
     return build_train_model(data, steady=False, airflow=airflow, scheme=scheme, name="airtaper_cyclic",
-                             switched_zones=[z.id for z in layout.zones if z.kind == "swing"],
+                             switched_zones=[z.id for z in data.plant.zones if z.kind == "swing"],
                              diffuser_count=diffuser_count)
 
 

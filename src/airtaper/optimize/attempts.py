@@ -32,18 +32,25 @@ Retry ladder (:data:`LADDER`): when a solve fails, the next rung changes one thi
 
 Solve budget (:class:`SolveBudget`): every Ipopt solve of one optimisation (the ladder,
 the blower staging and swing-zone rounds, the DO back-off re-solves, the elastic solve)
-draws on one budget of CPU seconds of the process, :data:`SOLVE_BUDGET_S` by default; each
-solve gets what is left as Ipopt's ``max_cpu_time``. CPU, not wall clock: on a machine
-shared with other jobs a wall-clock budget measured the load (at a load average of 10 a
-12-zone plant got 52 CPU seconds in 620 s of wall clock), not the solve. A stalled optimiser (restoration that wanders, a
+draws on one budget of CPU seconds, :data:`SOLVE_BUDGET_S` by default; each solve gets what
+is left as Ipopt's ``max_cpu_time``. What it counts: the process's CPU time *during* the
+solves only (:meth:`SolveBudget.charging` around each call: the model's conversion when not
+cached, Ipopt's iterations and its calls of the derivative functions), not the baseline, the
+model build, the verification's simulated days or the dispatch MILPs between them (before,
+the clock ran from the first solve on, so the simulator's days between back-off rounds were
+charged to the solver). CPU, not wall clock: on a machine shared with other jobs a wall-clock
+budget measured the load (at a load average of 10 a 12-zone plant got 52 CPU seconds in
+620 s of wall clock), not the solve. A stalled optimiser (restoration that wanders, a
 ladder whose every rung fails slowly) then ends within the budget with a plain-words
 message and exit code 3 (:data:`airtaper.errors.EXIT_INFEASIBLE`) instead of running on:
-the study says it could not settle, never that the limits are infeasible.
+the study says it could not settle, never that the limits are infeasible. A study solved
+again on shorter model steps (:mod:`airtaper.optimize.backoff`) gets a budget of its own.
 """
 
 from __future__ import annotations
 
 import time
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -91,8 +98,9 @@ SOLVE_BUDGET_S = 420.0
 class SolveBudget:
     """One CPU-time budget shared by every Ipopt solve of an optimisation (module notes).
 
-    The clock (the process's CPU time) starts at the first solve; :meth:`options` gives each
-    solve the rest as ``max_cpu_time``; :attr:`exhausted` tells the ladder to stop.
+    Each solve runs inside :meth:`charging`, which adds the process's CPU time during the solve to
+    :attr:`spent`; :meth:`options` gives the next solve the rest as ``max_cpu_time``; :attr:`exhausted`
+    tells the ladder to stop. Time between solves (simulation, dispatch, model build) is not counted.
     """
 
     #: Ipopt's ``max_cpu_time`` must be positive: a solve asked for after the budget is spent gets this, s.
@@ -100,31 +108,41 @@ class SolveBudget:
 
     def __init__(self, seconds: float = SOLVE_BUDGET_S):
         self.seconds = float(seconds)
-        self.started: float | None = None
+        self.spent = 0.0  # CPU seconds of the solves so far
+        self.solves = 0
 
     def elapsed(self) -> float:
-        return 0.0 if self.started is None else time.process_time() - self.started
+        """CPU seconds charged so far (the solves only)."""
+        return self.spent
 
     def remaining(self) -> float:
-        return max(self.seconds - self.elapsed(), 0.0)
+        return max(self.seconds - self.spent, 0.0)
 
     @property
     def exhausted(self) -> bool:
-        return self.started is not None and self.remaining() <= 0.0
+        return self.solves > 0 and self.remaining() <= 0.0
 
     def options(self) -> dict:
-        """Ipopt options of the next solve (starts the clock)."""
-        if self.started is None:
-            self.started = time.process_time()
+        """Ipopt options of the next solve."""
         return {"max_cpu_time": max(self.remaining(), self.FLOOR_S)}
+
+    @contextmanager
+    def charging(self):
+        """Charge the process's CPU time inside the ``with`` block (one solve) to the budget."""
+        t = time.process_time()
+        try:
+            yield
+        finally:
+            self.spent += time.process_time() - t
+            self.solves += 1
 
     def message(self, attempts: list[dict]) -> str:
         """The plain-words ending of a run that used up the budget."""
         iterations = sum(int(a.get("iterations") or 0) for a in attempts)
         return (f"the optimiser did not settle within its solve budget of {self.seconds:.0f} CPU seconds "
-                f"({len(attempts)} attempts, {iterations} iterations): no schedule is given. This says "
-                "nothing about whether the limits can be met; give it more time (--solve-budget), try fewer "
-                "periods, or check the layout "
+                f"(the CPU time of its solves; {len(attempts)} attempts, {iterations} iterations): no schedule "
+                "is given. This says nothing about whether the limits can be met; give it more time "
+                "(--solve-budget), try fewer periods, or check the layout "
                 "(a plant near the edge of its equipment or its clarifier's capacity)")
 
 

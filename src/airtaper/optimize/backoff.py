@@ -66,13 +66,25 @@ OPEN_SHARE = 0.5
 #: schedule that solved; on the 6-period demo a failing round's warm solve wandered for 600
 #: iterations and the ladder after it for 5 rungs more (minutes) to end in the same place.
 #: The demo's back-off re-solves take 10-40 iterations.
-RESOLVE = Rung("DO back-off re-solve", {"mu_strategy": "adaptive", "max_iter": 150})
+#: 80 iterations: twice the most a converging one took; a failing one ran 150 iterations (470 s of wall clock
+#: at a load of 5) on the demo with six 4-hour periods solved on 30-minute steps.
+RESOLVE = Rung("DO back-off re-solve", {"mu_strategy": "adaptive", "max_iter": 80})
+#: A back-off round whose re-solve fails is tried again with its new back-offs times DAMPING, at most
+#: DAMPED_TRIES times, before it is undone. On the demo with six 4-hour periods on 30-minute steps, round 1
+#: asked 0.070 mg/L off Z6's maximum at the step of its peak (Z6 at its least airflow, its DO peak carried
+#: from the zones upstream): the re-solve failed (150 iterations), with half of each back-off it converged in
+#: 19 iterations.
+DAMPING = 0.5
+DAMPED_TRIES = 2
 #: Model step (h) of a study solved again when the back-off on longer steps cannot hold the
 #: DO range (module notes): the demo's own step, where the back-off is known to converge.
 REFINED_STEP_H = 0.5
+#: First rung of the study solved again on :data:`REFINED_STEP_H` steps, started from the coarse
+#: schedule's re-simulated day (:func:`refined_options`).
+REFINED_START = Rung("start from the coarse schedule", {"mu_strategy": "adaptive"})
 
 
-def shortfalls(layout, day_do_min: dict, backoff: dict, periods, day_do_max: dict | None = None,
+def shortfalls(plant, day_do_min: dict, backoff: dict, periods, day_do_max: dict | None = None,
                backoff_max: dict | None = None, swing_states: dict | None = None) -> tuple[dict, dict] | dict:
     """(zone, period) -> excursion (positive, mg/L) below the minimum [and above the maximum].
 
@@ -86,7 +98,7 @@ def shortfalls(layout, day_do_min: dict, backoff: dict, periods, day_do_max: dic
     low = {}
     swing_states = swing_states or {}
     for z, lows in day_do_min.items():
-        zone = layout.zone(z)
+        zone = plant.zone(z)
         if zone.do_min_mg_L is None or (z, periods[0]) not in backoff:
             continue
         for p in periods:
@@ -100,7 +112,7 @@ def shortfalls(layout, day_do_min: dict, backoff: dict, periods, day_do_max: dic
         return low
     high = {}
     for z, highs in day_do_max.items():
-        zone = layout.zone(z)
+        zone = plant.zone(z)
         if zone.do_max_mg_L is None or (z, periods[0]) not in (backoff_max or {}):
             continue
         for p in periods:
@@ -150,7 +162,7 @@ def _excursion_points(m, ex, found: dict, column: str) -> dict:
     return out
 
 
-def _keep_band_open(layout, values) -> None:
+def _keep_band_open(plant, values) -> None:
     """Limit the back-offs of a zone and time point so :data:`OPEN_SHARE` of its DO range stays open.
 
     The minimum comes first (it is what the plant needs); the maximum's back-off gets
@@ -158,7 +170,7 @@ def _keep_band_open(layout, values) -> None:
     """
     low, high = values
     for (z, t), b_hi in high.items():
-        zone = layout.zone(z)
+        zone = plant.zone(z)
         room = (1.0 - OPEN_SHARE) * (zone.do_max_mg_L - (zone.do_min_mg_L or 0.0))
         b_lo = min(low.get((z, t), 0.0), room)
         if (z, t) in low:
@@ -180,10 +192,13 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
     """Back-off rounds on a solved :class:`~airtaper.optimize.diurnal.DiurnalOptimisation`.
 
     ``verify()`` re-simulates the current schedule and returns ``(verification dict,
-    SimDay)``. Returns ``{"verification", "rounds", "backoff_mg_L", "backoff_max_mg_L",
+    SimDay)``. Returns ``{"verification", "day" (the last re-simulated SimDay), "rounds", "backoff_mg_L", "backoff_max_mg_L",
     "largest_backoff_mg_L", "backed_off_points", "energy_before_kWh_per_day", "seconds",
     "resolve_failed", "relaxed"}`` (the back-offs as "zone/period" -> the period's largest);
-    the model is left at the last schedule that solved. ``relax()``, when given, is called once
+    the model is left at the last schedule that solved. A round whose re-solve fails is tried again with
+    :data:`DAMPING` times its new back-offs (at most :data:`DAMPED_TRIES` times, ``failed_resolves`` counts
+    the failed re-solves); when none solves the round is undone alone: the back-offs, schedule and
+    verification of the rounds before it are kept (``resolve_failed``). ``relax()``, when given, is called once
     before the first re-solve: the staged blowers' fixed machine set caps the airflow of every
     period, and a back-off that needs more air than that set gives has no solution until the
     machines are chosen again (:func:`airtaper.optimize.staging.redispatch` does that on the
@@ -202,13 +217,14 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
     energy0 = study.energy_kWh_per_day()
     ver, day = verify()
     rounds = 0
+    damped = 0  # re-solves that failed and were tried again with less back-off
     failed = False
     relaxed = False
     refine = coarse and not ver["verified"]
     while rounds < MAX_ROUNDS and not refine:
         ex = day.do_extremes
         highs = {z: g.sort_values("period")["do_max_mg_L"].to_numpy() for z, g in ex.groupby("zone", sort=False)}
-        found = shortfalls(study.layout, day.do_min_by_period(), held[0], periods, highs, held[1],
+        found = shortfalls(study.plant, day.do_min_by_period(), held[0], periods, highs, held[1],
                            study.problem.swing_states)
         if not any(found):
             break
@@ -219,20 +235,37 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
         previous = [dict(v) for v in values]
         snapshot = [(v, v.value) for v in m.component_data_objects(pyo.Var, descend_into=True)]
         last = (ver, day, study.result)
-        for vals, excursions, column in zip(values, found, ("do_min", "do_max")):
-            for k, s in _excursion_points(m, ex, excursions, column).items():
-                vals[k] += GAIN * s + CUSHION_mg_L
-        _keep_band_open(study.layout, values)
-        for prm, vals in zip(params, values):
-            for k, v in vals.items():
-                prm[k] = v
-        if relax is not None and not relaxed:
-            # before the first re-solve, not after it fails: a re-solve against the fixed machine set
-            # wandered for 170+ iterations (infeasibility 2e-2) on the 6-period demo before failing
-            relaxed = True
-            relax()
-        r = study.resolve_once(RESOLVE)
-        if r is None or not r.ok:  # back to the last schedule that solved, as it was
+        steps = [_excursion_points(m, ex, excursions, column)
+                 for excursions, column in zip(found, ("do_min", "do_max"))]
+        share = 1.0
+        for attempt in range(DAMPED_TRIES + 1):
+            if attempt:  # the re-solve failed: this round's back-offs scaled down, from the last schedule that solved
+                share *= DAMPING
+                for v, value in snapshot:
+                    v.set_value(value, skip_validation=True)
+                if progress is not None:
+                    progress.phase(f"back-off round {rounds}: the re-solve failed; {share:g} of its back-offs")
+            values = [dict(v) for v in previous]
+            for vals, step in zip(values, steps):
+                for k, s in step.items():
+                    vals[k] += share * (GAIN * s + CUSHION_mg_L)
+            _keep_band_open(study.plant, values)
+            for prm, vals in zip(params, values):
+                for k, v in vals.items():
+                    prm[k] = v
+            if relax is not None and not relaxed:
+                # before the first re-solve, not after it fails: a re-solve against the fixed machine set
+                # wandered for 170+ iterations (infeasibility 2e-2) on the 6-period demo before failing
+                relaxed = True
+                relax()
+            # warm from the last schedule that solved (its multipliers, not a failed attempt's)
+            r = study.resolve_once(RESOLVE, warm=last[2] if attempt and last[2] is not None else True)
+            if r is not None and r.ok:
+                break
+            damped += 1
+            if study.budget.exhausted:
+                break
+        if r is None or not r.ok:  # this round undone alone: the back-offs and schedule of the rounds before it
             for prm, vals in zip(params, previous):
                 for k, v in vals.items():
                     prm[k] = v
@@ -243,11 +276,27 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
             failed = True
             break
         ver, day = verify()
-    return {"verification": ver, "rounds": rounds, "resolve_failed": failed, "relaxed": relaxed, "refine": refine,
+    return {"verification": ver, "day": day, "rounds": rounds, "resolve_failed": failed, "failed_resolves": damped,
+            "relaxed": relaxed,
+            "refine": refine,
             "backoff_mg_L": _by_period(m, values[0]), "backoff_max_mg_L": _by_period(m, values[1]),
             "backed_off_points": sum(v > 0.0 for vals in values for v in vals.values()),
             "largest_backoff_mg_L": float(max([*values[0].values(), *values[1].values()], default=0.0)),
             "energy_before_kWh_per_day": energy0, "seconds": time.perf_counter() - t0}
+
+
+def refined_options(options, steps_per_period: int):
+    """The options of the study solved again on ``steps_per_period`` shorter steps (module notes).
+
+    No second pre-screen; a solve budget of its own, the run's budget again (``solve_budget_s``: what the
+    coarse solves spent is not taken from it, so a run's solves take at most twice the budget); the first
+    solve and the staging rounds start at :data:`REFINED_START`'s barrier (the start is the coarse
+    schedule's re-simulated day, near the optimum); the rest of the retry ladder as usual.
+    """
+    from dataclasses import replace
+
+    return replace(options, steps_per_period=steps_per_period, prescreen=False,
+                   ladder=(REFINED_START, *options.ladder[1:]))
 
 
 def refined_steps_per_period(period_h: float, steps_per_period: int) -> int | None:
@@ -257,5 +306,5 @@ def refined_steps_per_period(period_h: float, steps_per_period: int) -> int | No
     return int(math.ceil(period_h / REFINED_STEP_H - 1e-9))
 
 
-__all__ = ["ACCEPT_mg_L", "CUSHION_mg_L", "GAIN", "MAX_ROUNDS", "OPEN_SHARE", "REFINED_STEP_H", "RESOLVE", "hold_do",
-           "points_at", "refined_steps_per_period", "shortfalls"]
+__all__ = ["ACCEPT_mg_L", "CUSHION_mg_L", "DAMPED_TRIES", "DAMPING", "GAIN", "MAX_ROUNDS", "OPEN_SHARE",
+           "REFINED_START", "REFINED_STEP_H", "RESOLVE", "hold_do", "points_at", "refined_options", "refined_steps_per_period", "shortfalls"]

@@ -85,7 +85,7 @@ from airtaper.optimize.marginal import STEP_mg_L, parameter_sensitivity
 from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.results import jsonable, study_tables
 from airtaper.optimize.verify import verify_day
-from airtaper.plant import resolve_plant
+from airtaper.plant import resolve_plant, with_diffuser_counts
 
 #: A day's limit binds a zone when 0.1 mg/L (DO) or 1 % (airflow) of it is worth more than this share of the day's
 #: annual cost (an interior-point dual of a limit that does not bind is many orders smaller). Common practice
@@ -573,8 +573,7 @@ class GridDesign:
         out = []
         for day, st in zip(self.days, self.studies):
             self.progress.phase(f"verifying load day {day.id}: the schedule re-simulated")
-            lay = with_grid_counts(st.layout, counts)
-            ver, _sim = verify_day(lay, st.schedule_by_zone(), st.figures(), st.m)
+            ver, _sim = verify_day(with_diffuser_counts(st.plant, counts), st.schedule_by_zone(), st.figures(), st.m)
             out.append(ver)
         return out
 

@@ -26,7 +26,7 @@ re-solved warm (tests, sensitivity studies).
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
@@ -37,7 +37,7 @@ from airtaper.layout.types import Layout
 from airtaper.model.train import build_cyclic_model
 from airtaper.plant import ResolvedPlant, resolve_plant
 from airtaper.optimize import elastic as _elastic
-from airtaper.optimize.backoff import hold_do, refined_steps_per_period
+from airtaper.optimize.backoff import hold_do, refined_options, refined_steps_per_period
 from airtaper.optimize.baseline import Baseline, complying_baseline, run_baseline
 from airtaper.optimize.compliance import day_figures
 from airtaper.optimize.attempts import (BASE_OPTIONS, LADDER, SOLVE_BUDGET_S, Rung, SolveBudget, start_airflow,
@@ -52,6 +52,7 @@ from airtaper.optimize.results import (BaselineSummary, DispatchSummary, Effluen
 from airtaper.optimize.gradient_scaling import apply_scaling
 from airtaper.optimize.staging import (bill_day_by_dispatch, dispatch_summary, dispatch_table, feasibility_check,
                                        final_dispatch, redispatch, run_staging)
+from airtaper.optimize.simday import SimDay
 from airtaper.optimize.verify import verify_day
 from airtaper.solve import solve_nlp
 
@@ -115,8 +116,9 @@ class DiurnalOptimisation:
     """A built optimisation of one plant (a layout is resolved first); see the module notes."""
 
     def __init__(self, plant: ResolvedPlant | Layout, options: StudyOptions | None = None,
-                 progress: Progress | None = None, baseline: Baseline | None = None):
+                 progress: Progress | None = None, baseline: Baseline | None = None, start: SimDay | None = None):
         self.plant = resolve_plant(plant)
+        self.start = start  # a simulated day to start the first solve from (None: the baseline's)
         self.options = options or StudyOptions()
         self.progress = progress or Silent()
         self.timings: dict[str, float] = {}
@@ -135,12 +137,6 @@ class DiurnalOptimisation:
             self.baseline = run_baseline(self.plant, self.options.baseline_do_setpoint_mg_L)
             self.timings["baseline_s"] = time.perf_counter() - t
         return self.baseline
-
-    @property
-    def layout(self) -> Layout:
-        """The plant's layout, for the modules that still take one (the DO back-off and the design's grid
-        variants)."""
-        return self.plant.layout
 
     def reference(self) -> float:
         base = self.run_baseline()
@@ -163,7 +159,8 @@ class DiurnalOptimisation:
         m = build_cyclic_model(self.plant, diffuser_count=diffuser_count, **kwargs)
         self.timings["build_s"] = time.perf_counter() - t
         t = time.perf_counter()
-        start_from_day(m, base.day, start_airflow(m, base.day))
+        day = base.day if self.start is None else self.start
+        start_from_day(m, day, start_airflow(m, day))
         settings = settings_for(self.plant, self.reference(), objective=self.options.objective,
                                 smoothing_weight=self.options.smoothing_weight,
                                 mixing_airflow_min_Sm3_h_m2=self.options.mixing_airflow_min_Sm3_h_m2,
@@ -222,7 +219,8 @@ class DiurnalOptimisation:
         if not rung.user_scaling:
             opts["nlp_scaling_method"] = "gradient-based"
         self.progress.label = f"{rung.name}: "
-        r = solve_nlp(self.m, opts, callback=self.progress.iteration, warm_start=warm_start)
+        with self.budget.charging():  # the budget counts the solves' own CPU time (optimize/attempts.py)
+            r = solve_nlp(self.m, opts, callback=self.progress.iteration, warm_start=warm_start)
         self.progress.done()
         self._add_timings(r)
         self.attempts.append({"rung": rung.name, "status": r.status.value, "iterations": r.iterations,
@@ -268,9 +266,11 @@ class DiurnalOptimisation:
         self.result = r
         return r
 
-    def resolve_once(self, rung: Rung):
-        """One warm solve from the current point with ``rung`` (no ladder); the result (kept when it solved)."""
-        r = self._ipopt(rung, warm_start=True)
+    def resolve_once(self, rung: Rung, warm=True):
+        """One warm solve from the current point with ``rung`` (no ladder); the result (kept when it solved).
+
+        ``warm``: True, the multipliers of the last solve; a solver result, its multipliers."""
+        r = self._ipopt(rung, warm_start=warm)
         if r.ok:
             self.result = r
         return r
@@ -372,11 +372,13 @@ def saving_figures(base: Baseline, complying: Baseline | None, energy: float, co
 
 
 def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None = None,
-                     progress: Progress | None = None, baseline: Baseline | None = None) -> StudyResult:
+                     progress: Progress | None = None, baseline: Baseline | None = None,
+                     start: SimDay | None = None) -> StudyResult:
     """The whole study of a plant (module notes; a layout is resolved first); never raises for an infeasible or
     failed solve.
 
-    ``baseline``: the uniform-DO baseline when it is already simulated (the same options).
+    ``baseline``: the uniform-DO baseline when it is already simulated (the same options); ``start``: a
+    simulated day to start the optimiser from instead of the baseline's (:func:`_solve_refined`).
     """
     t0 = time.perf_counter()
     plant = resolve_plant(plant)
@@ -388,7 +390,7 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
         screen = prescreen(plant)
         if not screen["feasible"]:
             return _screened_out(plant, screen, time.perf_counter() - t0)
-    study = DiurnalOptimisation(plant, opts, prog, baseline=baseline)
+    study = DiurnalOptimisation(plant, opts, prog, baseline=baseline, start=start)
     base = study.run_baseline()
     study.build()
     result = study.solve()
@@ -445,6 +447,7 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
             coarse = refined_steps_per_period(plant.period_h, model_steps_per_period(plant, opts))
             hold = hold_do(study, verify, prog, relax=(lambda: relax_staging(problem)) if staged else None,
                            coarse=coarse is not None)
+            coarse_day = hold.pop("day")  # the last re-simulated day: the refined study's start
             verification = hold["verification"]
             result = study.result
             if hold["resolve_failed"]:
@@ -457,14 +460,7 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
             period_h, coarse = plant.period_h, model_steps_per_period(plant, opts)
             finer = refined_steps_per_period(period_h, coarse)
             step = period_h / coarse
-            prog.phase(f"the re-simulated schedule broke a limit on {step:g}-hour model steps: "
-                       f"solving again on {period_h / finer:g}-hour steps")
-            fine = run_optimization(plant, replace(opts, steps_per_period=finer, prescreen=False,
-                                                    solve_budget_s=study.budget.remaining()), prog, base)
-            if fine.summary["status"] == "failed":  # no answer there: keep the coarse result, and say why
-                messages.append(f"solving again on {period_h / finer:g}-hour model steps gave no schedule: "
-                                + "; ".join(fine.summary["messages"][:1]))
-                fine = None
+            fine = _solve_refined(plant, opts, prog, base, coarse_day, finer, step, messages)
         if fine is not None:
             if screen is not None:  # the pre-screen ran once, for both
                 from airtaper.optimize.results import jsonable
@@ -590,6 +586,25 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
     )
     return StudyResult(schedule=schedule, header=header, timeseries=timeseries, summary=summary.to_dict(),
                        exit_code=exit_code, study=study, blowers=blowers_table)
+
+
+def _solve_refined(plant: ResolvedPlant, opts: StudyOptions, prog, base: Baseline, coarse_day: SimDay, finer: int,
+                   step_h: float, messages: list) -> StudyResult | None:
+    """The study solved again on ``finer`` steps per period (optimize/backoff.py, "Coarse model steps").
+
+    Started from the coarse schedule's re-simulated day (its airflows and the simulator's states at every
+    finer time point, :func:`~airtaper.optimize.attempts.start_from_day`) with a budget of its own
+    (:func:`~airtaper.optimize.backoff.refined_options`). None (and a message) when it gives no schedule.
+    """
+    period_h = plant.period_h
+    prog.phase(f"the re-simulated schedule broke a limit on {step_h:g}-hour model steps: "
+               f"solving again on {period_h / finer:g}-hour steps, from the re-simulated schedule")
+    fine = run_optimization(plant, refined_options(opts, finer), prog, base, start=coarse_day)
+    if fine.summary["status"] == "failed":  # no answer there: keep the coarse result, and say why
+        messages.append(f"solving again on {period_h / finer:g}-hour model steps gave no schedule: "
+                        + "; ".join(fine.summary["messages"][:1]))
+        return None
+    return fine
 
 
 def _node_airflow(plant: ResolvedPlant, day) -> dict:

@@ -43,6 +43,7 @@ from __future__ import annotations
 
 import time
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pyomo.environ as pyo
@@ -53,6 +54,9 @@ from airtaper.optimize.dispatch import Bill, Dispatch, evaluate, machines_of, se
 from airtaper.optimize.attempts import Rung
 from airtaper.optimize.problem import Problem, max_power_line_kW, set_power_lines, set_swing_states
 from airtaper.physics.blower import blower_power_kW
+
+if TYPE_CHECKING:  # pandas is imported where the table is built (a lazy import)
+    import pandas as pd
 
 #: Relative change of the total cost below which the rounds stop (0.5 %).
 COST_RTOL = 0.005
@@ -412,7 +416,7 @@ def feasibility_check(prob: Problem, dp: Dispatch) -> list[str]:
     return bad
 
 
-def dispatch_table(plant: ResolvedPlant, dp: Dispatch) -> "pd.DataFrame":
+def dispatch_table(plant: ResolvedPlant, dp: Dispatch) -> pd.DataFrame:
     """blowers.csv: one row per period and blower."""
     import pandas as pd
 

@@ -28,10 +28,9 @@ from __future__ import annotations
 
 import math
 
-from airtaper.layout.types import Layout
 from airtaper.optimize.compliance import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE, violations
 from airtaper.optimize.simday import simulate_day
-from airtaper.plant import ResolvedPlant, resolve_plant
+from airtaper.plant import ResolvedPlant
 
 _KEYS = ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L")
 #: Day-repeat tolerance of the verification run, max |y(t + 24 h) - y(t)| / max(|y|, 1).
@@ -41,6 +40,11 @@ DAY_REPEAT_TOL = 1e-4
 #: first day's change fell from 9e-4 (no lead-in) to 9.6e-5, 7.8e-5, 4.9e-5 and 4.3e-5
 #: with 1, 2, 4 and 6 hours, against the tolerance of 1e-4.
 LEAD_IN_h = 3.0
+
+
+def _require_plant(plant) -> None:
+    if not isinstance(plant, ResolvedPlant):  # the layout is resolved once, before the study (issue 11)
+        raise TypeError(f"internal: the verification takes a ResolvedPlant, got {type(plant).__name__}")
 
 
 def lead_in_periods(n_periods: int, period_h: float) -> int:
@@ -64,22 +68,16 @@ def start_state_of(m, period: int | None = None) -> tuple[dict, float | None]:
     return state, waste
 
 
-def verify_schedule(plant: ResolvedPlant | Layout, schedule: dict, optimiser_figures: dict, m=None,
-                    swing_states: dict | None = None) -> dict:
+def verify_day(plant: ResolvedPlant, schedule: dict, optimiser_figures: dict, m=None,
+               swing_states: dict | None = None):
     """Simulate ``schedule`` (zone -> per-period airflow) and compare (see module notes).
 
-    ``m``: the solved model, whose state at 0 h starts the simulation (None: the
-    simulator's own mean-load steady state and default tolerance); ``swing_states``: the
-    swing zones' on/off per period (:attr:`airtaper.optimize.problem.Problem.swing_states`).
+    Returns the verification dict and the simulated :class:`~airtaper.optimize.simday.SimDay`.
+    ``m``: the solved model, whose state starts the simulation (None: the simulator's own
+    mean-load steady state and default tolerance); ``swing_states``: the swing zones' on/off
+    per period (:attr:`airtaper.optimize.problem.Problem.swing_states`).
     """
-    return verify_day(plant, schedule, optimiser_figures, m, swing_states)[0]
-
-
-def verify_day(plant: ResolvedPlant | Layout, schedule: dict, optimiser_figures: dict, m=None,
-               swing_states: dict | None = None):
-    """:func:`verify_schedule` and the simulated :class:`~airtaper.optimize.simday.SimDay` (a layout is resolved
-    first)."""
-    plant = resolve_plant(plant)
+    _require_plant(plant)
     if m is not None:
         n, period_h = plant.n_periods, plant.period_h
         first = n - lead_in_periods(n, period_h)  # 0-based period the lead-in starts (n: none)
@@ -125,7 +123,7 @@ def verify_day(plant: ResolvedPlant | Layout, schedule: dict, optimiser_figures:
     }, day
 
 
-def swing_do_margins(plant: ResolvedPlant | Layout, lows_by_period: dict, swing_states: dict | None) -> dict:
+def swing_do_margins(plant: ResolvedPlant, lows_by_period: dict, swing_states: dict | None) -> dict:
     """Swing zone -> (smallest DO margin over its aerated periods, 1-based periods short of the minimum).
 
     The DO minimum of a swing zone holds while it is aerated, from the period after the one it is
@@ -133,7 +131,7 @@ def swing_do_margins(plant: ResolvedPlant | Layout, lows_by_period: dict, swing_
     period's second step). Zones without a DO minimum or never aerated after an aerated period
     are left out.
     """
-    plant = resolve_plant(plant)
+    _require_plant(plant)
     out = {}
     for z, on in (swing_states or {}).items():
         lo = plant.zone(z).do_min_mg_L
@@ -145,5 +143,4 @@ def swing_do_margins(plant: ResolvedPlant | Layout, lows_by_period: dict, swing_
     return out
 
 
-__all__ = ["DAY_REPEAT_TOL", "LEAD_IN_h", "lead_in_periods", "start_state_of", "swing_do_margins", "verify_day",
-           "verify_schedule"]
+__all__ = ["DAY_REPEAT_TOL", "LEAD_IN_h", "lead_in_periods", "start_state_of", "swing_do_margins", "verify_day"]

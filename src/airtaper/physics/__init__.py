@@ -10,7 +10,7 @@ units and the pinned conventions are listed in docs/physics.md.
 * :mod:`~airtaper.physics.transfer` - SOTR, AOTR, field kLa and field saturation
 * :mod:`~airtaper.physics.sote` - fitted clean-water SOTE curves
 * :mod:`~airtaper.physics.pressure` - static head, diffuser and pipe losses, header pressure
-* :mod:`~airtaper.physics.blower` - blower power, efficiency curves, energy
+* :mod:`~airtaper.physics.blower` - blower power, equivalent power curves of the machines, energy
 * :mod:`~airtaper.physics.settling` - Takacs settling velocity, limiting solids flux
 * :mod:`~airtaper.physics.smooth` - smooth max, min and step (for Ipopt)
 * :mod:`~airtaper.physics.extrapolation` - warnings for curves used beyond their tested range

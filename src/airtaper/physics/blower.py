@@ -9,15 +9,12 @@ pressure ratios 1.2-2.0.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import least_squares
 
 from airtaper import units
-from airtaper.errors import InputError, Problem
 from airtaper.physics.backend import power
-from airtaper.physics.extrapolation import EfficiencyExtrapolationWarning, warn_if_outside
 
 #: Isentropic exponent (k - 1) / k of air with k = 1.4 (2/7 = 0.2857).
 ISENTROPIC_EXPONENT = (units.K_AIR - 1.0) / units.K_AIR
@@ -54,123 +51,6 @@ def isentropic_work_kJ_kg(inlet_temperature_C, pressure_ratio):
     )
 
 
-@dataclass(frozen=True)
-class EfficiencyCurve:
-    """Wire-to-air blower efficiency versus total airflow (immutable).
-
-    ``eta = c0 + c1 x + c2 x**2`` with ``x = Q / Q_ref`` and ``c2 <= 0``
-    (concave: one best-efficiency point, smooth for Ipopt). Fitted by
-    :func:`fit_efficiency_curve`; a single data point gives a constant.
-    """
-
-    name: str
-    coefficients: tuple[float, float, float]
-    airflow_ref_Sm3_h: float
-    airflow_range: tuple[float, float]
-    residuals: tuple[float, ...] = field(repr=False)
-
-    def efficiency(self, airflow_Sm3_h):
-        """Wire-to-air efficiency (fraction) at a total airflow (Sm3/h); floats, arrays or Pyomo.
-
-        Warns (:class:`~airtaper.physics.extrapolation.EfficiencyExtrapolationWarning`)
-        when a numeric airflow is outside the data range.
-        """
-        warn_if_outside(
-            airflow_Sm3_h,
-            self.airflow_range,
-            "airflow (Sm3/h)",
-            f"efficiency curve {self.name!r}",
-            EfficiencyExtrapolationWarning,
-            3,
-        )
-        c0, c1, c2 = self.coefficients
-        x = airflow_Sm3_h / self.airflow_ref_Sm3_h
-        return c0 + x * (c1 + x * c2)
-
-
-def fit_efficiency_curve(
-    airflow_Sm3_h,
-    efficiency,
-    *,
-    name: str = "blower",
-    source_file: str = "<efficiency points>",
-    key: str = "efficiency_points",
-) -> EfficiencyCurve:
-    """Fit a concave quadratic wire-to-air efficiency curve to data points.
-
-    Parameters
-    ----------
-    airflow_Sm3_h : array_like
-        Total blower airflow of each point, Sm3/h (> 0).
-    efficiency : array_like
-        Wire-to-air efficiency at each point, fraction (0 < eta <= 1).
-
-    Notes
-    -----
-    One distinct airflow gives a constant, two give a straight line, three or
-    more a quadratic with ``c2 <= 0`` (``scipy.optimize.least_squares``). The
-    fitted efficiency must stay within (0, 1] over the data range.
-
-    References
-    ----------
-    Quadratic efficiency-versus-flow curves of turbomachinery around the
-    best-efficiency point (common practice (no source)).
-    """
-    q = np.asarray(airflow_Sm3_h, dtype=float).ravel()
-    eta = np.asarray(efficiency, dtype=float).ravel()
-    problems: list[Problem] = []
-    if q.size == 0 or q.size != eta.size:
-        problems.append(
-            Problem(source_file, key, "need the same non-zero number of airflows and efficiencies", (q.size, eta.size))
-        )
-    else:
-        if (~np.isfinite(q) | (q <= 0)).any():
-            problems.append(Problem(source_file, f"{key}.airflow_Sm3_h", "airflows must be finite and > 0", q.tolist()))
-        if (~np.isfinite(eta) | (eta <= 0) | (eta > 1)).any():
-            problems.append(Problem(source_file, f"{key}.efficiency", "efficiencies must be in (0, 1]", eta.tolist()))
-    if problems:
-        raise InputError(problems)
-
-    q_ref = float(q.max())
-    x = q / q_ref
-    degree = min(np.unique(q).size - 1, 2)
-    n_par = degree + 1
-
-    def model(p: np.ndarray, xx: np.ndarray) -> np.ndarray:
-        c = np.zeros(3)
-        c[:n_par] = p
-        return c[0] + xx * (c[1] + xx * c[2])
-
-    lo = np.full(n_par, -np.inf)
-    hi = np.full(n_par, np.inf)
-    if degree == 2:
-        hi[2] = 0.0
-    start = np.zeros(n_par)
-    start[0] = float(eta.mean())
-    result = least_squares(lambda p: model(p, x) - eta, start, bounds=(lo, hi), xtol=1e-14, ftol=1e-14)
-    coefficients = np.zeros(3)
-    coefficients[:n_par] = result.x
-    grid = np.linspace(float(x.min()), float(x.max()), 201)
-    fitted = model(result.x, grid)
-    if fitted.min() <= 0 or fitted.max() > 1:
-        raise InputError(
-            Problem(source_file, key, "fitted efficiency leaves (0, 1] within the data range", float(fitted.min()))
-        )
-    return EfficiencyCurve(
-        name=name,
-        coefficients=tuple(float(c) for c in coefficients),
-        airflow_ref_Sm3_h=q_ref,
-        airflow_range=(float(q.min()), float(q.max())),
-        residuals=tuple(float(r) for r in model(result.x, x) - eta),
-    )
-
-
-def _efficiency_value(efficiency, airflow_Sm3_h):
-    if isinstance(efficiency, EfficiencyCurve):
-        return efficiency.efficiency(airflow_Sm3_h)
-    return efficiency
-
-
 def blower_power_kW(airflow_Sm3_h, inlet_temperature_C, inlet_pressure_kPa, discharge_pressure_kPa, efficiency):
     """Electrical (wire-to-air) blower power, kW.
 
@@ -186,9 +66,8 @@ def blower_power_kW(airflow_Sm3_h, inlet_temperature_C, inlet_pressure_kPa, disc
     discharge_pressure_kPa : float, ndarray or Pyomo expression
         Absolute discharge pressure, kPa
         (:func:`airtaper.physics.pressure.blower_discharge_pressure_kPa`).
-    efficiency : float, ndarray, Pyomo expression or EfficiencyCurve
-        Wire-to-air efficiency (blower, gearbox, motor and drive), fraction;
-        an :class:`EfficiencyCurve` is evaluated at ``airflow_Sm3_h``.
+    efficiency : float, ndarray or Pyomo expression
+        Wire-to-air efficiency (blower, gearbox, motor and drive), fraction.
 
     Notes
     -----
@@ -203,7 +82,7 @@ def blower_power_kW(airflow_Sm3_h, inlet_temperature_C, inlet_pressure_kPa, disc
     """
     mass_flow_kg_s = units.Sm3_h_to_kg_s(airflow_Sm3_h)
     work = isentropic_work_kJ_kg(inlet_temperature_C, discharge_pressure_kPa / inlet_pressure_kPa)
-    return units.kJ_s_to_kW(mass_flow_kg_s * work) / _efficiency_value(efficiency, airflow_Sm3_h)
+    return units.kJ_s_to_kW(mass_flow_kg_s * work) / efficiency
 
 
 def efficiency_from_power(airflow_Sm3_h, inlet_temperature_C, inlet_pressure_kPa, discharge_pressure_kPa,
@@ -249,7 +128,7 @@ def blower_power_textbook_kW(airflow_Sm3_h, inlet_temperature_C, inlet_pressure_
     mass_flow_kg_s = units.Sm3_h_to_kg_s(airflow_Sm3_h)
     bracket = power(discharge_pressure_kPa / inlet_pressure_kPa, _TEXTBOOK_N) - 1.0
     prefactor = _TEXTBOOK_R * units.C_to_K(inlet_temperature_C) / (_TEXTBOOK_CONSTANT * _TEXTBOOK_N)
-    return mass_flow_kg_s * prefactor * bracket / _efficiency_value(efficiency, airflow_Sm3_h)
+    return mass_flow_kg_s * prefactor * bracket / efficiency
 
 
 def energy_kWh(power_kW, hours):

@@ -29,10 +29,6 @@ class HeadlossExtrapolationWarning(ExtrapolationWarning):
     """A diffuser headloss curve was evaluated outside its test points."""
 
 
-class EfficiencyExtrapolationWarning(ExtrapolationWarning):
-    """A blower efficiency curve was evaluated outside its data points."""
-
-
 def warn_if_outside(
     values,
     value_range: tuple[float, float],

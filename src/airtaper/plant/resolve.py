@@ -14,6 +14,7 @@ results, so layers handed the same layout share one plant.
 
 from __future__ import annotations
 
+import math
 import os
 import warnings as _warnings
 from collections import OrderedDict
@@ -22,8 +23,9 @@ from dataclasses import replace
 import numpy as np
 
 from airtaper.errors import InputError, Problem
+from airtaper.layout import defaults as D
 from airtaper.layout.graph import forward_flows
-from airtaper.layout.loaddays import day_layout
+from airtaper.layout.loaddays import day_layout, with_grid_counts
 from airtaper.layout.overrides import blame_overrides, load_layout_with_overrides
 from airtaper.layout.reader import LayoutWarning
 from airtaper.layout.types import Layout
@@ -102,6 +104,24 @@ def _fits(layout: Layout, problems: list, notes: list) -> tuple[dict, dict]:
     return sote, headloss
 
 
+def design_count_range(count_step: int, per_diffuser_percent: float, test_densities_percent) -> tuple[int, int]:
+    """(lowest, highest) count a design may give a zone: whole ``count_step`` steps within the tested densities.
+
+    The density range is that of the diffuser type's clean-water test points (where the SOTE
+    fit interpolates), capped at the practical maximum density ``DENSITY_MAX_PERCENT``; when not
+    one whole step fits inside it, the range widens to one step up to the practical maximum.
+    ``per_diffuser_percent``: the density of one diffuser (its membrane area over the floor).
+    """
+    step = int(count_step)
+    dens = list(test_densities_percent)
+    top = min(max(dens), D.DENSITY_MAX_PERCENT)
+    lo = max(step, step * math.ceil(min(dens) / per_diffuser_percent / step - 1e-9))
+    hi = step * math.floor(top / per_diffuser_percent / step + 1e-9)
+    if hi < lo:
+        lo, hi = step, max(step, step * math.floor(D.DENSITY_MAX_PERCENT / per_diffuser_percent / step + 1e-9))
+    return int(lo), int(hi)
+
+
 def _aeration(layout: Layout, temperature, pressure, sote, headloss):
     out = []
     for i, z in enumerate(layout.zones):
@@ -118,7 +138,9 @@ def _aeration(layout: Layout, temperature, pressure, sote, headloss):
                 submergence_m=z.grid.submergence_m, effective_depth_fraction=dt.effective_depth_fraction,
                 c_inf20_mg_L=c20, pressure_kPa=pressure, do_sat_mg_L=frozen_array([]), airflow_min_Sm3_h=lo,
                 airflow_max_Sm3_h=hi, diffuser_airflow_min_Sm3_h=float(dt.airflow_min_Sm3_h),
-                diffuser_airflow_max_Sm3_h=float(dt.airflow_max_Sm3_h))
+                diffuser_airflow_max_Sm3_h=float(dt.airflow_max_Sm3_h), diffuser_type=dt,
+                count_range=design_count_range(z.grid.count_step, 100.0 * dt.membrane_area_m2 / z.area_m2,
+                                               [p.density_percent for p in dt.sote_points]))
             out.append(replace(d, do_sat_mg_L=frozen_array([float(d.do_sat_at(t)) for t in temperature])))
         else:
             out.append(None)
@@ -180,7 +202,8 @@ def _resolve(layout: Layout) -> tuple[ResolvedPlant, tuple]:
         volume_m3=frozen_array([z.volume_m3 for z in layout.zones]), horizon=layout.horizon,
         temperature_C=temperature, salinity_g_kg=float(layout.plant.salinity_g_kg), kinetics=layout.kinetics,
         base_params=base, params=params, influent_conc=conc, hydraulics=hydraulics, aeration=aeration, air=air,
-        clarifier=layout.clarifier, limits=layout.limits, operation=layout.operation)
+        clarifier=layout.clarifier, limits=layout.limits, operation=layout.operation, capital=layout.capital,
+        load_days=layout.load_days)
     return plant, tuple(notes)
 
 
@@ -231,4 +254,13 @@ def load_plant(path: str | os.PathLike, overrides_path=None, warnings: list | No
         raise InputError(blame_overrides(exc.problems, overrides_path)) from None
 
 
-__all__ = ["load_plant", "resolve_plant"]
+def with_diffuser_counts(plant: ResolvedPlant, counts: dict[str, int]) -> ResolvedPlant:
+    """The plant with the diffuser counts of the named zones replaced (a candidate grid of a design), resolved.
+
+    The variant is made on the plant's layout and resolved again, so every quantity that
+    depends on the counts (SOTE density, airflow ranges, kLa rule) is derived in one place.
+    """
+    return resolve_plant(with_grid_counts(plant.layout, counts))
+
+
+__all__ = ["design_count_range", "load_plant", "resolve_plant", "with_diffuser_counts"]

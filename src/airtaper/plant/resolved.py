@@ -26,12 +26,15 @@ import numpy as np
 from airtaper import units
 from airtaper.layout.types import (
     Blower,
+    Capital,
     Clarifier,
+    DiffuserType,
     Header,
     Horizon,
     Kinetics,
     Layout,
     Limits,
+    LoadDay,
     Operation,
     Tariff,
     Zone,
@@ -86,6 +89,10 @@ class DiffusedZone:
     airflow_max_Sm3_h: float
     diffuser_airflow_min_Sm3_h: float  # per diffuser, the type's lower limit
     diffuser_airflow_max_Sm3_h: float  # per diffuser, the type's upper limit
+    diffuser_type: DiffuserType  # the grid's type: membrane area, per-diffuser airflow range, clean-water tests
+    # (lowest, highest) count a design may give the zone: whole count steps within the densities of the type's
+    # clean-water tests, capped at the practical maximum density (resolve.design_count_range)
+    count_range: tuple[int, int]
 
     # --- plain attributes the model reads -------------------------------------------------
     @property
@@ -119,6 +126,19 @@ class DiffusedZone:
     @property
     def airflow_range_Sm3_h(self) -> tuple[float, float]:
         return (self.airflow_min_Sm3_h, self.airflow_max_Sm3_h)
+
+    @property
+    def area_m2(self) -> float:
+        return self.zone.area_m2
+
+    @property
+    def count_step(self) -> int:
+        """Whole increment of the count a design may choose (a row or module of diffusers)."""
+        return self.zone.grid.count_step
+
+    def density_percent_at(self, count) -> float:
+        """Membrane area of ``count`` diffusers of the zone's type over its floor, percent."""
+        return 100.0 * float(count) * self.diffuser_type.membrane_area_m2 / self.zone.area_m2
 
     # --- the rules (numbers, numpy arrays or Pyomo expressions alike) ---------------------
     def do_sat_at(self, temperature_C):
@@ -394,6 +414,8 @@ class ResolvedPlant:
     clarifier: Clarifier
     limits: Limits
     operation: Operation
+    capital: Capital | None  # diffuser-grid capital costs of a design study (None: the layout gives none)
+    load_days: tuple[LoadDay, ...]  # the layout's named load days (empty: its base profile is the one day)
 
     # --- shorthands ----------------------------------------------------------------------------
     @property
