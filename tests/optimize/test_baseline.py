@@ -194,14 +194,15 @@ def test_complying_search_ends_at_the_top_when_nh4_is_broken_there(monkeypatch, 
 
 def test_complying_search_skips_the_steps_below_the_nh4_secant(monkeypatch, demo6):
     """NH4-N falling ever less steeply (convex) and met from 4.2 mg/L: the steps 2.5 and 3.0 lie below the secant
-    root of the trials before them and are skipped; the setpoint found is still the lowest to the tolerance."""
+    root of the trials before them and are skipped, a setpoint just above the root is tried before the step to 6
+    mg/L; the setpoint found is still the lowest to the tolerance."""
     import airtaper.optimize.baseline as bl
 
     limit = demo6.limits.nh4_mean_mg_L
     tried = []
 
     def trial(sp):
-        nh4 = limit * (1.0 + 0.5 * (4.2 - sp) ** 2 / 4.2) if sp < 4.2 else limit * (1.0 - 0.01 * (sp - 4.2))
+        nh4 = limit * (1.0 + 0.3 * (4.2 - sp) + 0.1 * (4.2 - sp) ** 2)  # convex, falling through the range
         return _FakeBaseline(sp, ["NH4-N"] if nh4 > limit else [], {"nh4_mean_mg_L": nh4, "nh4_max_mg_L": 0.0})
 
     def fake_try(plant_, sp, start):
@@ -211,7 +212,7 @@ def test_complying_search_skips_the_steps_below_the_nh4_secant(monkeypatch, demo
     monkeypatch.setattr(bl, "_try", fake_try)
     found = bl.complying_baseline(demo6, trial(2.0))
     assert found is not None and 4.2 <= found.setpoint_mg_L <= 4.2 + SEARCH_TOL_mg_L
-    assert 2.5 not in tried and 3.0 not in tried and min(tried) == 2.25
+    assert 2.5 not in tried and 3.0 not in tried and min(tried) == 2.25 and max(tried) < 6.0 and len(tried) <= 7
     # every trial below the answer breaks NH4-N, as the secant bound promises
     assert all(trial(sp).violations for sp in tried if sp < 4.2)
 

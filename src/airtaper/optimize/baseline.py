@@ -31,11 +31,13 @@ alone and of TN alone).
 Effluent NH4-N falls as the uniform setpoint rises, ever less steeply (the autotrophs' aerobic
 growth, process 3 of ASM1, rises with DO through its switching function S_O / (K_OA + S_O):
 Henze et al. 1987, IAWPRC Scientific and Technical Report No. 1, Table 6.1). Stepping up from
-an NH4-N breach therefore skips the steps below the secant root of the last two trials (a lower
-bound of where NH4-N is met, :func:`_nh4_reach`), and NH4-N still broken at the top of the range
-ends the search: no setpoint below complies, and the downward search is not run. On the demo
-at 10 C and fouling 0.85 (no setpoint complies) that is 3 trials instead of 8 (47 CPU s); at
-13 C the trials are the same as before.
+an NH4-N breach, the secant root of the last two trials is therefore a lower bound of where
+NH4-N is met (:func:`_nh4_reach`): a step below it is skipped, and a setpoint just above it is
+tried before a step that lies further; NH4-N still broken at the top of the range ends the
+search (no setpoint below complies, and the downward search is not run). Only the order of the
+trials relies on the bound: the answer is still bisected down to a trial that breaks a limit.
+On the demo at 10 C and fouling 0.85 (no setpoint complies) that is 3 trials instead of 8
+(15 CPU s instead of 47); at 13 C, 2.59 mg/L in 4 trials instead of 7.
 """
 
 from __future__ import annotations
@@ -212,17 +214,27 @@ def _steps_from(plant: ResolvedPlant, origin: Baseline, direction: float, last_c
     """Trials stepping away from ``origin`` in ``direction`` until compliance changes from ``last_complies``.
 
     Returns (the last trial like ``origin``, the first trial unlike it or None): the first is
-    ``origin`` itself when the first step already changes. Stepping up from an NH4-N breach skips
-    the steps below :func:`_nh4_reach`, and raises :class:`_NH4BrokenAtTop` when NH4-N is still
-    broken at the top of the range.
+    ``origin`` itself when the first step already changes. Stepping up from an NH4-N breach, the
+    lowest setpoint worth a trial is :data:`SEARCH_TOL_mg_L` above :func:`_nh4_reach`: a step below
+    it is skipped for it, and once per step it is tried before a step beyond it (the answer, if
+    any, is then bisected between it and the last trial); NH4-N still broken at the top of the
+    range raises :class:`_NH4BrokenAtTop`.
     """
     same, start, before = origin, origin.day.start_state(), None
     lo, hi = search_range(plant)
     up_from_nh4 = direction > 0 and not last_complies and _nh4_broken(plant, origin)
-    for step in SEARCH_STEPS_mg_L:
+    steps = iter(SEARCH_STEPS_mg_L)
+    step, probed = next(steps, None), False
+    while step is not None:
         sp = float(np.clip(origin.setpoint_mg_L + direction * step, lo, hi))
-        if up_from_nh4:
-            sp = float(min(max(sp, _nh4_reach(plant, before, same)), hi))
+        worth = _nh4_reach(plant, before, same) + SEARCH_TOL_mg_L if up_from_nh4 else -np.inf
+        if worth >= sp:  # the step would break NH4-N: further at once
+            sp = float(min(worth, hi))
+        elif not probed and worth > same.setpoint_mg_L:  # just above the bound first (the step stays next)
+            sp, probed = float(worth), True
+            worth = None
+        if worth is not None:
+            step, probed = next(steps, None), False
         if direction * (sp - same.setpoint_mg_L) <= 0.0:  # at the end of the range, or a step already passed
             continue
         trial = _try(plant, sp, start)
