@@ -104,6 +104,21 @@ def _search(monkeypatch, layout, base_setpoint, complies, nh4_broken):
     return (None if found is None else found.setpoint_mg_L), tried
 
 
+def _search_by_rule(monkeypatch, plant, trial):
+    """complying_baseline from the trial at 2 mg/L, every trial simulated by the rule ``trial(sp)``;
+    returns the baseline found (or None) and the setpoints tried in order."""
+    import airtaper.optimize.baseline as bl
+
+    tried = []
+
+    def fake_try(plant_, sp, start):
+        tried.append(sp)
+        return trial(sp)
+
+    monkeypatch.setattr(bl, "_try", fake_try)
+    return bl.complying_baseline(plant, trial(2.0)), tried
+
+
 @pytest.mark.parametrize("base_sp, interval, nh4_broken", [
     (2.0, (2.6, 6.0), True),    # NH4-N broken at 2 mg/L: more oxygen complies (upward)
     (2.0, (1.05, 1.6), False),  # TN broken at 2 mg/L: less oxygen complies, NH4-N breaks again below 1.05
@@ -150,22 +165,13 @@ def test_complying_search_finds_a_narrow_span_between_an_nh4_breach_and_a_do_max
     """NH4-N breaks below 2.55 mg/L and a zone's DO maximum above 2.9 mg/L (as on the demo at 13 C): the
     upward steps 2.25, 2.5, 3.0 pass over the span; the search bisects between 2.5 and 3.0 three ways and
     stops there (no steps to 4 and 6 mg/L, no downward search)."""
-    import airtaper.optimize.baseline as bl
-
     limit = demo6.limits.nh4_mean_mg_L
-    tried = []
 
     def trial(sp):
         nh4 = limit * (1.0 + 0.2 * (2.55 - sp))  # falls with more oxygen; meets the limit from 2.55 up
         broken = (["NH4-N"] if nh4 > limit else []) + (["DO max"] if sp > 2.9 else [])
         return _FakeBaseline(sp, broken, {"nh4_mean_mg_L": nh4, "nh4_max_mg_L": 0.0})
-
-    def fake_try(plant_, sp, start):
-        tried.append(sp)
-        return trial(sp)
-
-    monkeypatch.setattr(bl, "_try", fake_try)
-    found = bl.complying_baseline(demo6, trial(2.0))
+    found, tried = _search_by_rule(monkeypatch, demo6, trial)
     assert found is not None and 2.55 <= found.setpoint_mg_L <= 2.55 + SEARCH_TOL_mg_L
     assert max(tried) <= 3.0 and min(tried) > 2.0 and len(tried) <= 8
 
@@ -174,21 +180,13 @@ def test_complying_search_ends_at_the_top_when_nh4_is_broken_there(monkeypatch, 
     """NH4-N above its limit at every setpoint (falling with more oxygen, as in the cold demo): after the first
     step the secant through the trials shows the limit is not met below 7 mg/L, so the next trial is the top of
     the range; NH4-N broken there ends the search, with no downward search (8 trials on the cold demo before)."""
-    import airtaper.optimize.baseline as bl
-
     limit = demo6.limits.nh4_mean_mg_L
-    tried = []
 
     def trial(sp):
         nh4 = limit * (1.0 + 0.2 * (7.0 - sp))  # meets the limit only from 7 mg/L, above the range
         return _FakeBaseline(sp, ["NH4-N"], {"nh4_mean_mg_L": nh4, "nh4_max_mg_L": 0.0})
-
-    def fake_try(plant_, sp, start):
-        tried.append(sp)
-        return trial(sp)
-
-    monkeypatch.setattr(bl, "_try", fake_try)
-    assert bl.complying_baseline(demo6, trial(2.0)) is None
+    found, tried = _search_by_rule(monkeypatch, demo6, trial)
+    assert found is None
     assert tried == [2.25, search_range(demo6)[1]]
 
 
@@ -196,21 +194,12 @@ def test_complying_search_skips_the_steps_below_the_nh4_secant(monkeypatch, demo
     """NH4-N falling ever less steeply (convex) and met from 4.2 mg/L: the steps 2.5 and 3.0 lie below the secant
     root of the trials before them and are skipped, a setpoint just above the root is tried before the step to 6
     mg/L; the setpoint found is still the lowest to the tolerance."""
-    import airtaper.optimize.baseline as bl
-
     limit = demo6.limits.nh4_mean_mg_L
-    tried = []
 
     def trial(sp):
         nh4 = limit * (1.0 + 0.3 * (4.2 - sp) + 0.1 * (4.2 - sp) ** 2)  # convex, falling through the range
         return _FakeBaseline(sp, ["NH4-N"] if nh4 > limit else [], {"nh4_mean_mg_L": nh4, "nh4_max_mg_L": 0.0})
-
-    def fake_try(plant_, sp, start):
-        tried.append(sp)
-        return trial(sp)
-
-    monkeypatch.setattr(bl, "_try", fake_try)
-    found = bl.complying_baseline(demo6, trial(2.0))
+    found, tried = _search_by_rule(monkeypatch, demo6, trial)
     assert found is not None and 4.2 <= found.setpoint_mg_L <= 4.2 + SEARCH_TOL_mg_L
     assert 2.5 not in tried and 3.0 not in tried and min(tried) == 2.25 and max(tried) < 6.0 and len(tried) <= 7
     # every trial below the answer breaks NH4-N, as the secant bound promises
