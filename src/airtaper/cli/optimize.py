@@ -43,8 +43,9 @@ def register(subparsers) -> None:
                    help="mixing minimum airflow per floor area for every aerated zone, Sm3/(m2 h)")
     p.add_argument("--baseline-do", type=float, metavar="MG_L", help="DO setpoint of the baseline (default 2.0)")
     p.add_argument("--solve-budget", type=float, metavar="CPU_S",
-                   help="CPU seconds all of the run's Ipopt solves may take together before the run ends "
-                        "with exit 3 (default 420; raise it for large plants or many periods)")
+                   help="CPU seconds the run's Ipopt solves may take together before the run ends with exit 3 "
+                        "(default 420; a study solved again on 30-minute steps gets the same again; raise it "
+                        "for large plants or many periods)")
     p.add_argument("--no-figure", action="store_true", help="skip schedule.png")
     p.add_argument("--no-report", action="store_true",
                    help="write the tables and summary.json only (build the report later with `airtaper report DIR`)")
