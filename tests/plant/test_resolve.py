@@ -301,3 +301,13 @@ def test_design_fields_of_the_plant():
     # diffusers, below one step, so the range is the one step)
     assert design_count_range(1000, 0.027, [6.0, 15.0]) == (1000, 1000)
     assert design_count_range(300, 0.027, [6.0, 7.0]) == (300, 900)  # 25 % is 925.9 diffusers
+
+
+def test_design_count_range_stays_finite_for_a_diffuser_of_next_to_no_area():
+    """A membrane area of 1e-320 m2 (a fuzzed layout: a denormal number passes the parser's > 0 check) made the
+    count to a tested density infinite and `check` end in an internal OverflowError; the range is capped."""
+    from airtaper.plant.resolve import COUNT_CAP, design_count_range
+    lo, hi = design_count_range(100, 100.0 * 1e-320 / 600.0, [6.0, 15.0])
+    assert lo == hi == COUNT_CAP  # every density needs more diffusers than any basin holds: the cap
+    lo, hi = design_count_range(1, 1e-300, [6.0, 15.0])
+    assert 1 <= lo <= hi <= COUNT_CAP

@@ -104,6 +104,11 @@ def _fits(layout: Layout, problems: list, notes: list) -> tuple[dict, dict]:
     return sote, headloss
 
 
+#: Largest diffuser count a design range may reach (far above any basin's; it only keeps the
+#: arithmetic finite for a diffuser of next to no membrane area).
+COUNT_CAP = 10**9
+
+
 def design_count_range(count_step: int, per_diffuser_percent: float, test_densities_percent) -> tuple[int, int]:
     """(lowest, highest) count a design may give a zone: whole ``count_step`` steps within the tested densities.
 
@@ -115,10 +120,18 @@ def design_count_range(count_step: int, per_diffuser_percent: float, test_densit
     step = int(count_step)
     dens = list(test_densities_percent)
     top = min(max(dens), D.DENSITY_MAX_PERCENT)
-    lo = max(step, step * math.ceil(min(dens) / per_diffuser_percent / step - 1e-9))
-    hi = step * math.floor(top / per_diffuser_percent / step + 1e-9)
+
+    def steps(density_percent: float, up: bool) -> int:
+        # whole steps to a density; a diffuser of (next to) no area gives an infinite count: capped, so an
+        # implausible membrane area (1e-320 m2, a fuzzed layout) resolves instead of overflowing
+        n = density_percent / per_diffuser_percent / step
+        n = min(n, COUNT_CAP / step) if math.isfinite(n) else COUNT_CAP / step
+        return math.ceil(n - 1e-9) if up else math.floor(n + 1e-9)
+
+    lo = max(step, step * steps(min(dens), True))
+    hi = step * steps(top, False)
     if hi < lo:
-        lo, hi = step, max(step, step * math.floor(D.DENSITY_MAX_PERCENT / per_diffuser_percent / step + 1e-9))
+        lo, hi = step, max(step, step * steps(D.DENSITY_MAX_PERCENT, False))
     return int(lo), int(hi)
 
 
