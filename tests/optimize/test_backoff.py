@@ -63,6 +63,22 @@ def test_an_excursion_is_backed_off_at_the_points_of_the_step_it_happens_in():
     assert points_at(steps, 23.2) == [47, 48]
 
 
+def test_a_dip_before_a_step_s_first_point_also_backs_off_the_step_before_s_last_point():
+    """Radau steps of 1 hour, points at 1/3 and 1 of each: a DO dip 6 minutes into a step lies between the step
+    before's last point (the step's start) and the step's first point, so both bracket it; a dip after the
+    first point moves the step's points only."""
+    from types import SimpleNamespace
+
+    from airtaper.optimize.backoff import _bracket
+
+    steps = [(float(k), [2 * k - 1, 2 * k]) for k in range(1, 25)]  # step k ends at k h
+    m = SimpleNamespace(point_hour={t: (t + 1) // 2 - 1 + (1 / 3 if t % 2 else 1.0) for t in range(1, 49)})
+    assert _bracket(m, steps, 8.1) == [16, 17, 18]
+    assert _bracket(m, steps, 8.5) == [17, 18]
+    assert _bracket(m, steps, 0.1) == [48, 1, 2]  # around the periodic day
+    assert _bracket(m, steps, 24.0) == _bracket(m, steps, 0.0) == [47, 48]
+
+
 @pytest.mark.solver
 @pytest.mark.slow
 def test_demo_holds_the_do_minimum_in_continuous_time(demo):
@@ -112,8 +128,8 @@ def test_model_steps_longer_than_half_an_hour_are_refined_to_half_an_hour():
 
 def _stand_in_rounds(three_tank_6, shorts, ok, overs=None, coarse=False):
     """A built three-tank study whose back-off rounds run on stand-ins: the re-simulated days say T2 is ``shorts[k]``
-    mg/L below its minimum in period 2 (at 5 h) on the k-th re-simulation (and ``overs[k]`` above a DO maximum of
-    its own, at 6 h); the k-th re-solve moves T2's airflow in period 1 to 111 k and solves when ``ok(k)`` (called
+    mg/L below its minimum in period 2 (at 6 h, after the step's first point) on the k-th re-simulation (and
+    ``overs[k]`` above a DO maximum of its own, at 7 h); the k-th re-solve moves T2's airflow in period 1 to 111 k and solves when ``ok(k)`` (called
     with the study too). The verification is verified when every excursion is within the verification's tolerance.
     No Ipopt; the model and its back-off parameters are real."""
     from dataclasses import replace
@@ -131,7 +147,7 @@ def _stand_in_rounds(three_tank_6, shorts, ok, overs=None, coarse=False):
     plant = study.plant
     day0 = study.baseline.day
     ex = day0.do_extremes.copy()
-    # every zone and period inside its DO range, but T2 below its minimum in period 2 (4-8 h), at 5 h
+    # every zone and period inside its DO range, but T2 below its minimum in period 2 (4-8 h), at 6 h
     for i, r in ex.iterrows():
         z = plant.zone(r.zone)
         lo = z.do_min_mg_L or 0.0
@@ -143,10 +159,10 @@ def _stand_in_rounds(three_tank_6, shorts, ok, overs=None, coarse=False):
     def day_short_by(short, over):
         e = ex.copy()
         e.loc[row, "do_min_mg_L"] = low - short
-        e.loc[row, "do_min_time_h"] = 5.0
+        e.loc[row, "do_min_time_h"] = 6.0
         if over is not None:
             e.loc[row, "do_max_mg_L"] = plant.zone("T2").do_max_mg_L + over
-            e.loc[row, "do_max_time_h"] = 6.0
+            e.loc[row, "do_max_time_h"] = 7.0
         return replace(day0, do_extremes=e)
 
     overs = overs or [None] * len(shorts)
