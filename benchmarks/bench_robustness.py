@@ -331,6 +331,7 @@ def run_plant(text: str, folder: Path, timeout_s: float, cpu: bool = False) -> t
         return ("failed", None, time.perf_counter() - t0,
                 f"[cpu {_child_cpu_s() - cpu0:.0f} s] CPU time limit {timeout_s:.0f} s")
     seconds = time.perf_counter() - t0
+    (folder / "stderr.txt").write_text(p.stderr)  # the whole of what the user saw (the table shows a line)
     err = [ln for ln in p.stderr.splitlines() if ln.strip()]
     last = next((ln for ln in reversed(err) if ln.startswith("error:")), "")
     status = None
