@@ -131,7 +131,7 @@ def mixed_liquor_tss_g_m3(flow_m3_d: float, volume_m3: float, srt_d: float, cod_
     ``b = b_H (1 - Y_H (1 - f_P))`` and residue fraction ``f_D = f_P / (1 - Y_H (1 - f_P))``
     (Grady, Daigger & Lim 1999, Biological Wastewater Treatment, 2nd ed., ch. 6; from memory).
     The influent's COD fractions are the layout's defaults. Nitrifiers (a few per cent) are left
-    out. On the benchmark's layered plants whose sludge age is held this is within 8 % of the
+    out. On the benchmark's layered plants whose sludge age is held this is within 9 % of the
     simulator's steady state.
     """
     p = at_temperature(ASM1_20C, temperature_C)
