@@ -188,6 +188,10 @@ def test_demo_with_a_blower_out_of_service_is_feasible_and_costs_no_less(demo):
         if r.summary["status"] == "unverified":
             assert any("gave no schedule" in m or "breaks a limit" in m for m in r.summary["messages"])
         assert r.summary["dispatch"]["feasibility_breaches"] == []
+    # with every machine in service: verified, the DO minimum held over continuous time to 0.01 mg/L
+    # (optimize/backoff.py: the back-off on 30-minute steps, an early dip's step start backed off too)
+    assert full.exit_code == EXIT_OK, full.summary["messages"]
+    assert full.summary["verification"]["do_min_margin_mg_L"] >= -0.01, full.summary["verification"]["do_margin_mg_L"]
     assert less.summary["dispatch"]["blowers"]["B3"]["running_h"] == 0.0
     assert (less.blowers[less.blowers["blower"] == "B3"]["running"] == False).all()  # noqa: E712
     _machines_within_their_ranges(less, out)

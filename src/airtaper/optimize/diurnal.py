@@ -453,6 +453,11 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
             result = study.result
             if hold["resolve_failed"]:
                 messages.append("the DO back-off could not be applied in full: the re-solve failed")
+            if hold["max_excursions_mg_L"]:
+                messages.append("the DO maximum gave way to the minimum (both could not be backed off at once): "
+                                "the re-simulated DO is above the maximum by " + ", ".join(
+                                    f"{v:.3f} mg/L in {k.replace('/', ' period ')}"
+                                    for k, v in hold["max_excursions_mg_L"].items()))
         else:
             verification = verify()[0]
         study.timings["verification_s"] = time.perf_counter() - t
@@ -470,8 +475,9 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
                 if screen["note"]:
                     fine.summary["messages"].insert(0, f"pre-screen: {screen['note']}")
             fine.summary["messages"].insert(0, f"solved on {period_h / finer:g}-hour model steps: on "
-                                               f"{step:g}-hour steps the re-simulated schedule broke a limit ("
-                                               + "; ".join(verification["violations"]) + ")")
+                                               f"{step:g}-hour steps the back-off could not hold the DO range ("
+                                               + "; ".join([hold["refine_reason"], *verification["violations"]])
+                                               + ")")
             if fine.summary.get("do_hold") is not None:
                 fine.summary["do_hold"]["coarse_steps_per_period"] = coarse
                 fine.summary["do_hold"]["coarse_seconds"] = time.perf_counter() - t0
@@ -598,7 +604,7 @@ def _solve_refined(plant: ResolvedPlant, opts: StudyOptions, prog, base: Baselin
     (:func:`~airtaper.optimize.backoff.refined_options`). None (and a message) when it gives no schedule.
     """
     period_h = plant.period_h
-    prog.phase(f"the re-simulated schedule broke a limit on {step_h:g}-hour model steps: "
+    prog.phase(f"the back-off could not hold the DO range on {step_h:g}-hour model steps: "
                f"solving again on {period_h / finer:g}-hour steps, from the re-simulated schedule")
     fine = run_optimization(plant, refined_options(opts, finer), prog, base, start=coarse_day)
     if fine.summary["status"] == "failed":  # no answer there: keep the coarse result, and say why

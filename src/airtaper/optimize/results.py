@@ -278,6 +278,7 @@ class VerificationSummary(SummaryPart):
     do_lowest: dict = UNSET
     do_lowest_by_period: dict = UNSET
     do_min_margin_mg_L: float | None = UNSET
+    do_max_margin_mg_L: float | None = UNSET
     method: str = UNSET
     violations: list = UNSET
     energy_kWh_per_day: float | None = UNSET

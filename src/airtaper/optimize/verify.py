@@ -28,7 +28,7 @@ from __future__ import annotations
 
 import math
 
-from airtaper.optimize.compliance import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE, violations
+from airtaper.optimize.compliance import DO_TOLERANCE_mg_L, EFFLUENT_TOLERANCE, do_limits, violations
 from airtaper.optimize.simday import simulate_day
 from airtaper.plant import ResolvedPlant
 
@@ -112,6 +112,9 @@ def verify_day(plant: ResolvedPlant, schedule: dict, optimiser_figures: dict, m=
         "do_min_margin_mg_L": min((float(r.do_min_mg_L) - plant.zone(r.zone).do_min_mg_L for r in lows.itertuples()
                                    if plant.zone(r.zone).do_min_mg_L is not None and plant.has_diffusers(r.zone)
                                    and plant.zone(r.zone).kind == "aerated"), default=None),
+        # the DO maximum alone: the maximum less the highest DO over continuous time, the smallest over the zones
+        "do_max_margin_mg_L": min((hi - float(day.do_extremes.loc[day.do_extremes.zone == z, "do_max_mg_L"].max())
+                                   for z, (_lo, hi) in do_limits(plant).items() if hi is not None), default=None),
         "method": "effluent means integrated over the day (quadrature of the dense output); "
                   "DO extremes over continuous time",
         "violations": broken,
