@@ -127,6 +127,80 @@ def test_no_bisection_without_a_pair_of_failed_grids_each_meeting_the_others_day
     assert 2 < len(g.grids) <= 2 + 6
 
 
+class _Restored(_Bisected):
+    """As :class:`_Bisected`, with each failed day's least excess and its gradient by the counts (linear in the
+    first zone's count: the turndown's excess grows by 1 a diffuser above ``turndown``, the transfer's by 1 a
+    diffuser below ``transfer``), as the restoration reads them; every day is solved on every grid."""
+
+    def evaluate(self, counts, whole=True, every_day=False):
+        n = float(counts[self.ids[0]])
+        self.grids.append(n)
+        unit = np.eye(len(self.ids))[0]
+        solves = []
+        for excess, slope in ((n - self.turndown, 1.0), (self.transfer - n, -1.0)):
+            if excess <= 0.0:
+                solves.append(DaySolve("optimal", goal=1.0, objective=1.0, gradient=np.zeros(len(self.ids))))
+            else:
+                solves.append(DaySolve("infeasible", excess=excess, excess_gradient=slope * unit))
+        self._solved[self._key(counts)] = solves
+        failed = next((d.id for d, s in zip(self.days, solves) if not s.ok), None)
+        bad = next((s for s in solves if not s.ok), None)
+        c = Candidate(dict(counts), None if failed else 1.0, "infeasible" if failed else "optimal", 0.0,
+                      objective=None if failed else 1.0, gradient=None if failed else dict.fromkeys(self.ids, 0.0),
+                      failed_day=failed, excess=None if bad is None else bad.excess)
+        self.candidates.append(c)
+        return c
+
+
+def test_a_restoration_step_that_overshoots_into_the_other_days_failure_is_bisected():
+    # the peak day fails below 400 diffusers, the minimum day above 410: the Newton step from 230 (aimed 1.5 times
+    # the peak's linearised excess) lands on 485, which fails the minimum day and meets the peak day; the segment
+    # between the two is bisected to a grid meeting both. Newton steps alone swing from side to side of so narrow
+    # a window (485, 284, 555, 223, ...) and end without one.
+    g = _Restored(400.0, 410.0)
+    other = {z: 300.0 for z in g.ids[1:]}
+    g.evaluate({g.ids[0]: 230.0, **other})
+    lo = np.array([g.ranges[z][0] for z in g.ids], dtype=float)
+    hi = np.array([g.ranges[z][1] for z in g.ids], dtype=float)
+    found = g._restore(lambda x: dict(zip(g.ids, map(float, x))), lo, hi)
+    assert found is not None
+    x, c = found
+    assert 400.0 <= x[0] <= 410.0 and c.objective is not None
+    assert len(g.grids) <= 2 + 2 + 6  # the first grid, two restoration grids, at most six halvings
+
+
+class _Band(GridDesign):
+    """The design's whole-count search with each day's verdict by a rule: the peak day needs at least ``transfer``
+    diffusers in the first zone, the minimum day at most ``turndown`` in the second (a band one step wide)."""
+
+    def __init__(self, transfer: float, turndown: float):
+        super().__init__(_small(step=1), OPTIONS)
+        self.days = (replace(self.days[0], id="minimum"), replace(self.days[1], id="peak"))
+        self.transfer, self.turndown = transfer, turndown
+        self.grids = []
+
+    def evaluate(self, counts, whole=True, every_day=False):
+        a, b = (float(counts[z]) for z in self.ids[:2])
+        self.grids.append(tuple(counts[z] for z in self.ids))
+        failed = "minimum" if b > self.turndown else "peak" if a < self.transfer else None
+        c = Candidate(dict(counts), None if failed else 1.0, "infeasible" if failed else "optimal", 0.0,
+                      objective=None if failed else 1.0 + 1e-3 * (a - b),
+                      gradient=None if failed else dict.fromkeys(self.ids, 0.0), failed_day=failed)
+        self.candidates.append(c)
+        return c
+
+
+def test_whole_counts_try_the_corners_around_the_continuous_optimum():
+    # the continuous optimum 400.4 / 300.6 / 300 rounds to 400 / 301 / 300 (fails both days), up to 401 / 301 / 300
+    # (fails the minimum day), down to 400 / 300 / 300 (fails the peak day); the corner 401 / 300 / 300 meets both
+    g = _Band(transfer=401.0, turndown=300.0)
+    g.relaxed = dict(zip(g.ids, (400.4, 300.6, 300.0)))
+    best = g.search()
+    assert best is not None and best.objective is not None
+    assert tuple(best.counts[z] for z in g.ids) == (401, 300, 300)
+    assert g.grids[:4] == [(400, 301, 300), (401, 301, 300), (400, 300, 300), (401, 300, 300)]
+
+
 @pytest.fixture(scope="module")
 def solved():
     g = GridDesign(_small(), OPTIONS)

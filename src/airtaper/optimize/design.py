@@ -40,11 +40,14 @@ Continuous search
     design ranges, backtracking on a failed day or too little decrease) over real counts,
     from the current grid (or the bottom, top or middle of the ranges when the current grid
     fails a day; when two failed grids each meet the day the other fails, a bisection on the
-    segment between them), until a step moves less than half a count step.
+    segment between them; when none of these meets every day, a restoration by Newton steps on
+    the failing days' least excesses, a step that overshoots into another day's failure
+    bisected back, :meth:`GridDesign._restore`), until a step moves less than half a count step.
 
 Whole counts (a small integer search)
-    From the continuous optimum rounded to the nearest step (up, then down, when that grid
-    fails a day), each zone is moved one step in the direction its gradient says lowers the
+    From the continuous optimum rounded to the nearest step (when that grid fails a day: every
+    count up, every count down, then the other corners of the box of whole steps around it,
+    nearest first; :meth:`GridDesign._roundings`), each zone is moved one step in the direction its gradient says lowers the
     annual cost, the most promising first, and the first move that lowers it is taken,
     until none does. A move the gradient says raises the cost is not tried: the annual
     cost lies above its tangent where it is convex in the count (diminishing returns of
@@ -70,6 +73,7 @@ Verification and economics
 
 from __future__ import annotations
 
+import itertools
 import math
 import time
 from dataclasses import dataclass, field, replace
@@ -176,6 +180,9 @@ class DesignOptions:
     steps_per_period: int | None = None
     verify: bool = True
     max_moves: int = 20  # improving moves of the whole-count search at most
+    # whole-count grids tried around the continuous optimum for one meeting every day (GridDesign._roundings).
+    # Common practice (no source): 8 of the 32 corners of five zones' boxes, the nearest ones.
+    max_roundings: int = 8
     max_continuous: int = 12  # grids evaluated by the continuous search at most
     # Ipopt iterations of a day's solve on a grid (and of its one retry from the baseline start); a day not solved
     # within them counts as not met on that grid. Common practice (no source): a warm day converges in tens.
@@ -549,7 +556,7 @@ class GridDesign:
                 x, c = found
                 break
         if x is None:
-            found = self._restore(grid, lo, hi)
+            found = self._restore(grid, lo, hi, tried)
             if found is None:
                 return None
             x, c = found
@@ -591,26 +598,37 @@ class GridDesign:
         self.relaxed_candidate = c
         return c
 
-    def _restore(self, grid, lo: np.ndarray, hi: np.ndarray, rounds: int = 6) -> tuple | None:
+    def _restore(self, grid, lo: np.ndarray, hi: np.ndarray, tried: list | None = None,
+                 rounds: int = 6) -> tuple | None:
         """A grid meeting every day, from the failed grid nearest to it, by Newton steps on the failing days' least
         excesses (phase two of :meth:`_two_phase`), linearised in the counts by their duals: the shortest step
         (in count steps) that brings every failing day's linearised excess to zero, aimed :data:`RESTORE_AIM`
-        times as far. None when no failed grid has an excess or ``rounds`` steps find no such grid.
+        times as far. A step onto a grid that fails a day the grid before met (or an earlier failed grid of
+        ``tried``, (counts, candidate) pairs), while meeting the day that one failed, overshot: the segment between
+        them is bisected (:meth:`_between`). None when no failed grid has an excess or ``rounds`` steps find no
+        such grid.
 
         On the demo the ends and the segments between them fail: the minimum day holds its DO maximum only with
-        few diffusers behind the head of the train, the peak day needs many at the head (700/500/400/340/340
-        misses the minimum day by 0.018 mg/L).
+        few diffusers behind the head of the train (its night air sits on the mixing minimum in Z5 and Z6), the
+        peak day needs many at the head: 591/523/401/340/340 misses the peak day by 0.4 % of Z2's air per
+        diffuser, 700/500/400/340/340 the minimum day by 0.018 mg/L, and 600/520/400/340/340 meets both.
+        A Newton step from one of these overshoots into the other's failure.
         """
         known = [c for c in self.candidates if c.excess is not None]
         if not known:
             return None
         s = self.steps
+        tried = list(tried or [])
         x = np.array([float(min(known, key=lambda c: c.excess).counts[z]) for z in self.ids])
         aim, last = RESTORE_AIM, None
         for _ in range(rounds):
             c = self.evaluate(grid(x), whole=False, every_day=True)
             if c.objective is not None:
                 return x, c
+            tried = [(y, cy) for y, cy in tried if self._key(grid(y)) != self._key(grid(x))] + [(x, c)]
+            found = self._between(tried, grid)
+            if found is not None:
+                return found
             rows = [(d.excess, d.excess_gradient * s) for d in self._solved[self._key(grid(x))]
                     if d.excess is not None and d.excess_gradient is not None]
             if not rows:
@@ -640,7 +658,7 @@ class GridDesign:
             solves = self._solved.get(self._key(c.counts))
             return bool(solves) and solves[index[day_id]].ok
 
-        for k in range(len(tried) - 1):
+        for k in reversed(range(len(tried) - 1)):  # the nearest earlier grid first
             a, ca = tried[k]
             b, cb = tried[-1]
             if not (ca.failed_day and cb.failed_day and ca.failed_day != cb.failed_day
@@ -670,6 +688,26 @@ class GridDesign:
             out[z.id] = int(min(max(step * rounding(self.relaxed[z.id] / step), lo), hi))
         return out
 
+    def _roundings(self) -> list[dict[str, int]]:
+        """The whole-count grids to start the neighbour search from, in order: the continuous optimum rounded to the
+        nearest steps, every count up, every count down, then the other corners of the box of whole steps around it
+        (each count rounded down or up), nearest first, at most :attr:`DesignOptions.max_roundings` in all.
+
+        Where the grids meeting every day form a thin set (on the demo the minimum day's DO maximum and the peak
+        day's transfer leave a band a few count steps wide), the corner nearest the continuous optimum can fail a
+        day while another corner meets them all."""
+        out = []
+        for rounding in (round, math.ceil, math.floor):  # when the nearest grid fails a day: up, then down
+            counts = self._nearest(rounding)
+            if counts not in out:
+                out.append(counts)
+        corners = [dict(zip(self.ids, c)) for c in itertools.product(
+            *[sorted({self._nearest(math.floor)[z], self._nearest(math.ceil)[z]}) for z in self.ids])]
+        steps = dict(zip(self.ids, self.steps))
+        corners.sort(key=lambda c: sum(((c[z] - self.relaxed[z]) / steps[z]) ** 2 for z in self.ids))
+        out += [c for c in corners if c not in out]
+        return out[:max(self.options.max_roundings, 1)]
+
     def _better(self, c: Candidate, best: Candidate) -> bool:
         return c.objective is not None and c.objective < best.objective - 1e-9 * abs(best.objective)
 
@@ -678,11 +716,11 @@ class GridDesign:
         if self.relaxed is None:
             raise ModelError("solve the relaxed design first")
         best = None
-        for rounding in (round, math.ceil, math.floor):  # when the nearest grid fails a day: up, then down
-            best = self.evaluate(self._nearest(rounding))
+        for counts in self._roundings():
+            best = self.evaluate(counts)
             if best.objective is not None:
                 break
-        if best.objective is None:
+        if best is None or best.objective is None:
             return None
         for _ in range(self.options.max_moves):
             moves = []
