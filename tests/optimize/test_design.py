@@ -152,11 +152,11 @@ class _Restored(_Bisected):
         return c
 
 
-def test_a_restoration_step_that_overshoots_into_the_other_days_failure_is_bisected():
-    # the peak day fails below 400 diffusers, the minimum day above 410: the Newton step from 230 (aimed 1.5 times
-    # the peak's linearised excess) lands on 485, which fails the minimum day and meets the peak day; the segment
-    # between the two is bisected to a grid meeting both. Newton steps alone swing from side to side of so narrow
-    # a window (485, 284, 555, 223, ...) and end without one.
+def test_the_restoration_keeps_both_sides_cuts_and_lands_between_them():
+    # the peak day fails below 400 diffusers in the first zone, the minimum day above 410. From 230 (fails the
+    # peak day) the only cut sends the next grid as far from it as the range allows (555, fails the minimum day);
+    # the two cuts together leave the band 400-410, whose centre meets both days. Newton steps on one grid's
+    # failing day at a time swung from side to side of so narrow a band (485, 284, 555, 223, ...) without one.
     g = _Restored(400.0, 410.0)
     other = {z: 300.0 for z in g.ids[1:]}
     g.evaluate({g.ids[0]: 230.0, **other})
@@ -165,8 +165,19 @@ def test_a_restoration_step_that_overshoots_into_the_other_days_failure_is_bisec
     found = g._restore(lambda x: dict(zip(g.ids, map(float, x))), lo, hi)
     assert found is not None
     x, c = found
-    assert 400.0 <= x[0] <= 410.0 and c.objective is not None
-    assert len(g.grids) <= 2 + 2 + 6  # the first grid, two restoration grids, at most six halvings
+    assert x[0] == pytest.approx(405.0, abs=1e-6) and c.objective is not None
+    assert g.grids[1] == pytest.approx(555.0) and len(g.grids) == 3
+
+
+def test_the_restoration_ends_when_the_cuts_leave_no_grid():
+    # the peak day needs 420 or more, the minimum day 410 or fewer: no grid; the cuts say so after two grids
+    g = _Restored(420.0, 410.0)
+    other = {z: 300.0 for z in g.ids[1:]}
+    g.evaluate({g.ids[0]: 230.0, **other})
+    lo = np.array([g.ranges[z][0] for z in g.ids], dtype=float)
+    hi = np.array([g.ranges[z][1] for z in g.ids], dtype=float)
+    assert g._restore(lambda x: dict(zip(g.ids, map(float, x))), lo, hi) is None
+    assert len(g.grids) == 2
 
 
 class _Band(GridDesign):

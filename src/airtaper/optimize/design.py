@@ -40,9 +40,9 @@ Continuous search
     design ranges, backtracking on a failed day or too little decrease) over real counts,
     from the current grid (or the bottom, top or middle of the ranges when the current grid
     fails a day; when two failed grids each meet the day the other fails, a bisection on the
-    segment between them; when none of these meets every day, a restoration by Newton steps on
-    the failing days' least excesses, a step that overshoots into another day's failure
-    bisected back, :meth:`GridDesign._restore`), until a step moves less than half a count step.
+    segment between them; when none of these meets every day, a restoration by central cutting
+    planes on the failed days' least excesses, :meth:`GridDesign._restore`), until a step moves
+    less than half a count step.
 
 Whole counts (a small integer search)
     From the continuous optimum rounded to the nearest step (when that grid fails a day: every
@@ -95,6 +95,7 @@ from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.results import jsonable, study_tables
 from airtaper.optimize.verify import verify_day
 from airtaper.plant import ResolvedPlant, resolve_plant, with_diffuser_counts
+from airtaper.solve.highs import solve_milp
 
 #: A day's limit binds a zone when 0.1 mg/L (DO) or 1 % (airflow) of it is worth more than this share of the day's
 #: annual cost (an interior-point dual of a limit that does not bind is many orders smaller). Common practice
@@ -107,13 +108,6 @@ BINDING_SHARE = 1e-5
 #: crawled (dual infeasibility 1e13 by iteration 30, 250 iterations without a verdict), its baseline start by the
 #: two phases settles in about 50 iterations on every grid tried. Common practice (no source).
 WARM_STEPS = 2.0
-
-#: The restoration's Newton step aims this many times as far as the linearised excesses say (they flatten towards
-#: zero: a step to exactly zero falls short; on the demo a step aimed 1.5 times removed about half the excess).
-#: Common practice (no source).
-RESTORE_AIM = 1.5
-#: ... and at most this many times as far, when a step removed less of the excess than aimed.
-RESTORE_AIM_MAX = 8.0
 
 #: A day's start breaks a limit when it leaves it by more than this share of the bound (at least of 1: mg/L, Sm3/h,
 #: kPa): the day is then solved by two phases (:meth:`GridDesign._two_phase`). Common practice (no source): far
@@ -556,7 +550,7 @@ class GridDesign:
                 x, c = found
                 break
         if x is None:
-            found = self._restore(grid, lo, hi, tried)
+            found = self._restore(grid, lo, hi)
             if found is None:
                 return None
             x, c = found
@@ -598,54 +592,68 @@ class GridDesign:
         self.relaxed_candidate = c
         return c
 
-    def _restore(self, grid, lo: np.ndarray, hi: np.ndarray, tried: list | None = None,
-                 rounds: int = 6) -> tuple | None:
-        """A grid meeting every day, from the failed grid nearest to it, by Newton steps on the failing days' least
-        excesses (phase two of :meth:`_two_phase`), linearised in the counts by their duals: the shortest step
-        (in count steps) that brings every failing day's linearised excess to zero, aimed :data:`RESTORE_AIM`
-        times as far. A step onto a grid that fails a day the grid before met (or an earlier failed grid of
-        ``tried``, (counts, candidate) pairs), while meeting the day that one failed, overshot: the segment between
-        them is bisected (:meth:`_between`). None when no failed grid has an excess or ``rounds`` steps find no
-        such grid.
+    def _cuts(self) -> list[tuple[np.ndarray, float, np.ndarray]]:
+        """Every failed day's least excess linearised at its grid (phase two of :meth:`_two_phase`, its gradient by
+        the counts from the duals): (the grid in count steps, the excess, its gradient per count step)."""
+        out = []
+        for key, solves in self._solved.items():
+            u = np.array(key) / self.steps
+            for d in solves:
+                if d.excess is not None and d.excess_gradient is not None and np.any(d.excess_gradient):
+                    out.append((u, float(d.excess), np.asarray(d.excess_gradient, dtype=float) * self.steps))
+        return out
 
-        On the demo the ends and the segments between them fail: the minimum day holds its DO maximum only with
-        few diffusers behind the head of the train (its night air sits on the mixing minimum in Z5 and Z6), the
-        peak day needs many at the head: 591/523/401/340/340 misses the peak day by 0.4 % of Z2's air per
-        diffuser, 700/500/400/340/340 the minimum day by 0.018 mg/L, and 600/520/400/340/340 meets both.
-        A Newton step from one of these overshoots into the other's failure.
-        """
-        known = [c for c in self.candidates if c.excess is not None]
-        if not known:
+    def _central_grid(self, lo: np.ndarray, hi: np.ndarray) -> tuple[np.ndarray, float] | None:
+        """The centre of the largest ball (in count steps) on the side of every cut (:meth:`_cuts`) where its
+        linearised excess is zero, inside the design ranges: (counts, radius in count steps), None when the cuts
+        leave no such point. A linear programme in HiGHS (the Chebyshev centre of the cuts' polytope)."""
+        cuts = self._cuts()
+        if not cuts:
             return None
         s = self.steps
-        tried = list(tried or [])
-        x = np.array([float(min(known, key=lambda c: c.excess).counts[z]) for z in self.ids])
-        aim, last = RESTORE_AIM, None
+        ulo, uhi = lo / s, hi / s
+        n = len(self.ids)
+        m = pyo.ConcreteModel(name="restoration")
+        m.u = pyo.Var(range(n), bounds=lambda _m, i: (float(ulo[i]), float(uhi[i])))
+        m.r = pyo.Var(bounds=(0.0, float(np.max(uhi - ulo))))
+        m.cut = pyo.ConstraintList()
+        for u0, e, g in cuts:  # e + g.(u - u0) + |g| r <= 0: the ball lies where the linearised excess is zero
+            m.cut.add(sum(float(g[i]) * m.u[i] for i in range(n)) + float(np.linalg.norm(g)) * m.r
+                      <= float(g @ u0) - e)
+        m.radius = pyo.Objective(expr=m.r, sense=pyo.maximize)
+        r = solve_milp(m)
+        if not r.has_solution:
+            return None
+        return np.array([float(m.u[i].value) for i in range(n)]) * s, float(m.r.value)
+
+    def _restore(self, grid, lo: np.ndarray, hi: np.ndarray, rounds: int = 8) -> tuple | None:
+        """A grid meeting every day, by central cutting planes (Elzinga and Moore, A central cutting plane algorithm
+        for the convex programming problem, Mathematical Programming 8, 1975, 134-145; from memory): every failed
+        day of every grid evaluated gives a cut, its least excess linearised in the counts by the duals; the next
+        grid is the centre of the largest ball on the meeting side of every cut (:meth:`_central_grid`), every day
+        is solved on it, and a day it fails adds its cut. The cuts of both sides stay: a grid that fails the peak
+        day (too few diffusers at the head) and one that fails the minimum day (too many behind it) hold the next
+        grid between them. None when no cut is known, the cuts leave no ball a twentieth of a count step wide
+        (no grid meets every day as far as the linearisations tell), or ``rounds`` grids fail.
+
+        On the demo the ends of the ranges and the segments between them fail: the minimum day holds its DO
+        maximum only with few diffusers behind the head of the train (its night air sits on the mixing minimum in
+        Z5 and Z6 and on the diffuser minimum in Z4), the peak day needs many at the head: 591/523/401/340/340
+        misses the peak day by 0.4 % of Z2's air per diffuser, 700/500/400/340/340 the minimum day by 0.018 mg/L,
+        600/520/400/340/340 meets both. Newton steps on one grid's failing days overshot from one side to the other
+        and forgot the side they came from.
+        """
         for _ in range(rounds):
+            found = self._central_grid(lo, hi)
+            if found is None or found[1] < 0.05:
+                return None
+            x = found[0]
+            key = self._key(grid(x))
+            if key in self._solved and all(d.status != "not solved" for d in self._solved[key]):
+                return None  # the centre is a grid solved on every day before: no new cut, no progress
             c = self.evaluate(grid(x), whole=False, every_day=True)
             if c.objective is not None:
                 return x, c
-            tried = [(y, cy) for y, cy in tried if self._key(grid(y)) != self._key(grid(x))] + [(x, c)]
-            found = self._between(tried, grid)
-            if found is not None:
-                return found
-            rows = [(d.excess, d.excess_gradient * s) for d in self._solved[self._key(grid(x))]
-                    if d.excess is not None and d.excess_gradient is not None]
-            if not rows:
-                return None
-            G = np.array([g for _e, g in rows])
-            E = np.array([e for e, _g in rows])
-            total = float(E.sum())
-            if last is not None and 0.0 < total < last:
-                # the last step, aimed ``aim`` times as far as the linearisation said, removed only this share of
-                # the excess: the next one is aimed as much further (the excess flattens towards zero)
-                aim = min(aim / ((last - total) / last), RESTORE_AIM_MAX)
-            last = total
-            d = -G.T @ np.linalg.lstsq(G @ G.T, aim * E, rcond=None)[0]
-            x_new = np.clip(x / s + d, lo / s, hi / s) * s
-            if np.max(np.abs(x_new - x) / s) < 0.05:  # the box stops the step: no grid that way
-                return None
-            x = x_new
         return None
 
     def _between(self, tried: list, grid) -> tuple | None:
@@ -1001,5 +1009,5 @@ def candidate_table(g: GridDesign) -> pd.DataFrame:
                           "failed_day": c.failed_day, "seconds": c.seconds} for c in g.candidates])
 
 
-__all__ = ["BINDING_SHARE", "PHASE_ONE_TOLERANCE", "RESTORE_AIM", "WARM_STEPS", "Candidate", "DaySolve", "DesignOptions", "DesignResult", "GridDesign",
+__all__ = ["BINDING_SHARE", "PHASE_ONE_TOLERANCE", "WARM_STEPS", "Candidate", "DaySolve", "DesignOptions", "DesignResult", "GridDesign",
            "run_design", "capital_recovery_factor", "grid_capital", "net_present_value", "simple_payback_years"]
