@@ -152,11 +152,12 @@ class _Restored(_Bisected):
         return c
 
 
-def test_the_restoration_keeps_both_sides_cuts_and_lands_between_them():
+def test_the_restoration_remembers_both_days_and_lands_between_them():
     # the peak day fails below 400 diffusers in the first zone, the minimum day above 410. From 230 (fails the
-    # peak day) the only cut sends the next grid as far from it as the range allows (555, fails the minimum day);
-    # the two cuts together leave the band 400-410, whose centre meets both days. Newton steps on one grid's
-    # failing day at a time swung from side to side of so narrow a band (485, 284, 555, 223, ...) without one.
+    # peak day by 170) the step aimed 1.5 times the peak's linearised excess lands on 485 (fails the minimum day by
+    # 75); the peak day's linearisation from 230 is kept, so the next step meets both linearisations, aimed as far
+    # beyond them as they allow: 400 + 170 a = 410 - 75 a, a = 10/245, the grid 406.9. Newton steps on the last
+    # grid's failing day alone swung from side to side of so narrow a band (485, 284, 555, 223, ...) without one.
     g = _Restored(400.0, 410.0)
     other = {z: 300.0 for z in g.ids[1:]}
     g.evaluate({g.ids[0]: 230.0, **other})
@@ -165,12 +166,13 @@ def test_the_restoration_keeps_both_sides_cuts_and_lands_between_them():
     found = g._restore(lambda x: dict(zip(g.ids, map(float, x))), lo, hi)
     assert found is not None
     x, c = found
-    assert x[0] == pytest.approx(405.0, abs=1e-6) and c.objective is not None
-    assert g.grids[1] == pytest.approx(555.0) and len(g.grids) == 3
+    assert x[0] == pytest.approx(400.0 + 170.0 * 10.0 / 245.0, abs=1e-6) and c.objective is not None
+    assert g.grids[1] == pytest.approx(485.0) and len(g.grids) == 3
 
 
-def test_the_restoration_ends_when_the_cuts_leave_no_grid():
-    # the peak day needs 420 or more, the minimum day 410 or fewer: no grid; the cuts say so after two grids
+def test_the_restoration_ends_when_the_days_linearisations_leave_no_grid():
+    # the peak day needs 420 or more, the minimum day 410 or fewer: no grid; the two days' linearisations say so
+    # after two grids (230, then 515), without spending the rounds
     g = _Restored(420.0, 410.0)
     other = {z: 300.0 for z in g.ids[1:]}
     g.evaluate({g.ids[0]: 230.0, **other})

@@ -40,9 +40,9 @@ Continuous search
     design ranges, backtracking on a failed day or too little decrease) over real counts,
     from the current grid (or the bottom, top or middle of the ranges when the current grid
     fails a day; when two failed grids each meet the day the other fails, a bisection on the
-    segment between them; when none of these meets every day, a restoration by central cutting
-    planes on the failed days' least excesses, :meth:`GridDesign._restore`), until a step moves
-    less than half a count step.
+    segment between them; when none of these meets every day, a restoration by steps on the
+    failed days' linearised least excesses that remember every day, :meth:`GridDesign._restore`),
+    until a step moves less than half a count step.
 
 Whole counts (a small integer search)
     From the continuous optimum rounded to the nearest step (when that grid fails a day: every
@@ -108,6 +108,11 @@ BINDING_SHARE = 1e-5
 #: crawled (dual infeasibility 1e13 by iteration 30, 250 iterations without a verdict), its baseline start by the
 #: two phases settles in about 50 iterations on every grid tried. Common practice (no source).
 WARM_STEPS = 2.0
+
+#: The restoration's step aims up to this many times as far as the linearised excesses say (they flatten towards
+#: zero: a step to exactly zero falls short; on the demo a step aimed 1.5 times removed about half the excess), as
+#: far as the other days' linearisations allow (:meth:`GridDesign._restoration_step`). Common practice (no source).
+RESTORE_AIM = 1.5
 
 #: A day's start breaks a limit when it leaves it by more than this share of the bound (at least of 1: mg/L, Sm3/h,
 #: kPa): the day is then solved by two phases (:meth:`GridDesign._two_phase`). Common practice (no source): far
@@ -592,49 +597,58 @@ class GridDesign:
         self.relaxed_candidate = c
         return c
 
-    def _cuts(self) -> list[tuple[np.ndarray, float, np.ndarray]]:
-        """Every failed day's least excess linearised at its grid (phase two of :meth:`_two_phase`, its gradient by
-        the counts from the duals): (the grid in count steps, the excess, its gradient per count step)."""
-        out = []
+    def _cuts(self) -> dict[int, tuple[np.ndarray, float, np.ndarray]]:
+        """Per load day that failed a grid: its least excess linearised at the grid where it was least (phase two
+        of :meth:`_two_phase`, the gradient by the counts from the duals): day -> (the grid in count steps, the
+        excess, its gradient per count step). The linearisation nearest the boundary is the one to trust: where the
+        excess saturates (the DO maximum's excess with every zone at 800 diffusers) the tangent is flat and asks
+        for a move far beyond the one that meets the limit."""
+        out: dict[int, tuple] = {}
         for key, solves in self._solved.items():
             u = np.array(key) / self.steps
-            for d in solves:
-                if d.excess is not None and d.excess_gradient is not None and np.any(d.excess_gradient):
-                    out.append((u, float(d.excess), np.asarray(d.excess_gradient, dtype=float) * self.steps))
+            for i, d in enumerate(solves):
+                if (d.excess is not None and d.excess_gradient is not None and np.any(d.excess_gradient)
+                        and (i not in out or d.excess < out[i][1])):
+                    out[i] = (u, float(d.excess), np.asarray(d.excess_gradient, dtype=float) * self.steps)
         return out
 
-    def _central_grid(self, lo: np.ndarray, hi: np.ndarray) -> tuple[np.ndarray, float] | None:
-        """The centre of the largest ball (in count steps) on the side of every cut (:meth:`_cuts`) where its
-        linearised excess is zero, inside the design ranges: (counts, radius in count steps), None when the cuts
-        leave no such point. A linear programme in HiGHS (the Chebyshev centre of the cuts' polytope)."""
-        cuts = self._cuts()
+    def _restoration_step(self, x: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray | None:
+        """The grid nearest ``x`` (fewest count steps moved, summed over the zones) where every day's linearised
+        excess (:meth:`_cuts`) is zero, aimed up to :data:`RESTORE_AIM` times as far as the linearisations say
+        (as far as the other days' linearisations allow): two linear programmes in HiGHS, the aim then the step.
+        None when the linearisations of the days cannot all be met inside the design ranges."""
+        cuts = list(self._cuts().values())
         if not cuts:
             return None
-        s = self.steps
-        ulo, uhi = lo / s, hi / s
-        n = len(self.ids)
+        s, n = self.steps, len(self.ids)
         m = pyo.ConcreteModel(name="restoration")
-        m.u = pyo.Var(range(n), bounds=lambda _m, i: (float(ulo[i]), float(uhi[i])))
-        m.r = pyo.Var(bounds=(0.0, float(np.max(uhi - ulo))))
+        m.u = pyo.Var(range(n), bounds=lambda _m, i: (float(lo[i] / s[i]), float(hi[i] / s[i])))
+        m.t = pyo.Var(range(n), bounds=(0.0, None))  # |u - x| per zone, in count steps
+        m.aim = pyo.Var(bounds=(0.0, RESTORE_AIM - 1.0))  # how much further than the linearisation the step aims
         m.cut = pyo.ConstraintList()
-        for u0, e, g in cuts:  # e + g.(u - u0) + |g| r <= 0: the ball lies where the linearised excess is zero
-            m.cut.add(sum(float(g[i]) * m.u[i] for i in range(n)) + float(np.linalg.norm(g)) * m.r
-                      <= float(g @ u0) - e)
-        m.radius = pyo.Objective(expr=m.r, sense=pyo.maximize)
-        r = solve_milp(m)
-        if not r.has_solution:
+        for u0, e, g in cuts:  # (1 + aim) e + g.(u - u0) <= 0
+            m.cut.add(e * (1.0 + m.aim) + sum(float(g[i]) * (m.u[i] - float(u0[i])) for i in range(n)) <= 0.0)
+        u_now = x / s
+        m.up = pyo.Constraint(range(n), rule=lambda _m, i: _m.t[i] >= _m.u[i] - float(u_now[i]))
+        m.down = pyo.Constraint(range(n), rule=lambda _m, i: _m.t[i] >= float(u_now[i]) - _m.u[i])
+        m.goal = pyo.Objective(expr=m.aim, sense=pyo.maximize)
+        if not solve_milp(m).has_solution:
             return None
-        return np.array([float(m.u[i].value) for i in range(n)]) * s, float(m.r.value)
+        m.aim.fix(float(m.aim.value))
+        m.goal.deactivate()
+        m.moved = pyo.Objective(expr=sum(m.t[i] for i in range(n)))
+        if not solve_milp(m).has_solution:
+            return None
+        return np.array([float(m.u[i].value) for i in range(n)]) * s
 
     def _restore(self, grid, lo: np.ndarray, hi: np.ndarray, rounds: int = 8) -> tuple | None:
-        """A grid meeting every day, by central cutting planes (Elzinga and Moore, A central cutting plane algorithm
-        for the convex programming problem, Mathematical Programming 8, 1975, 134-145; from memory): every failed
-        day of every grid evaluated gives a cut, its least excess linearised in the counts by the duals; the next
-        grid is the centre of the largest ball on the meeting side of every cut (:meth:`_central_grid`), every day
-        is solved on it, and a day it fails adds its cut. The cuts of both sides stay: a grid that fails the peak
-        day (too few diffusers at the head) and one that fails the minimum day (too many behind it) hold the next
-        grid between them. None when no cut is known, the cuts leave no ball a twentieth of a count step wide
-        (no grid meets every day as far as the linearisations tell), or ``rounds`` grids fail.
+        """A grid meeting every day, by steps on linearised least excesses that remember every day (a
+        sequential linear programme): each day that failed a grid gives its least excess linearised at the grid
+        where it was least (:meth:`_cuts`), and the next grid is the nearest one where every such linearisation is
+        met, aimed further (:meth:`_restoration_step`); every day is solved there. A day met now but failed
+        before keeps its linearisation, so a step for the peak day does not undo the minimum day. A grid whose day
+        ends without a verdict (not converged) is replaced by the point halfway back. None when no day has an
+        excess, the linearisations cannot all be met in the design ranges, or ``rounds`` grids fail.
 
         On the demo the ends of the ranges and the segments between them fail: the minimum day holds its DO
         maximum only with few diffusers behind the head of the train (its night air sits on the mixing minimum in
@@ -643,17 +657,26 @@ class GridDesign:
         600/520/400/340/340 meets both. Newton steps on one grid's failing days overshot from one side to the other
         and forgot the side they came from.
         """
+        cuts = self._cuts()
+        if not cuts:
+            return None
+        # from the grid the linearisations put nearest to meeting its day (excess over slope: count steps)
+        u0, _e, _g = min(cuts.values(), key=lambda c: c[1] / max(float(np.linalg.norm(c[2])), 1e-300))
+        x = u0 * self.steps
         for _ in range(rounds):
-            found = self._central_grid(lo, hi)
-            if found is None or found[1] < 0.05:
+            x_new = self._restoration_step(x, lo, hi)
+            if x_new is None or np.max(np.abs(x_new - x) / self.steps) < 0.05:
                 return None
-            x = found[0]
-            key = self._key(grid(x))
-            if key in self._solved and all(d.status != "not solved" for d in self._solved[key]):
-                return None  # the centre is a grid solved on every day before: no new cut, no progress
-            c = self.evaluate(grid(x), whole=False, every_day=True)
+            c = self.evaluate(grid(x_new), whole=False, every_day=True)
             if c.objective is not None:
-                return x, c
+                return x_new, c
+            if all(d.ok or d.excess is not None for d in self._solved[self._key(grid(x_new))]):
+                x = x_new
+            else:  # a day without a verdict there: nothing learnt; halfway back next
+                x = x + 0.5 * (x_new - x)
+                c = self.evaluate(grid(x), whole=False, every_day=True)
+                if c.objective is not None:
+                    return x, c
         return None
 
     def _between(self, tried: list, grid) -> tuple | None:
@@ -1009,5 +1032,5 @@ def candidate_table(g: GridDesign) -> pd.DataFrame:
                           "failed_day": c.failed_day, "seconds": c.seconds} for c in g.candidates])
 
 
-__all__ = ["BINDING_SHARE", "PHASE_ONE_TOLERANCE", "WARM_STEPS", "Candidate", "DaySolve", "DesignOptions", "DesignResult", "GridDesign",
+__all__ = ["BINDING_SHARE", "PHASE_ONE_TOLERANCE", "RESTORE_AIM", "WARM_STEPS", "Candidate", "DaySolve", "DesignOptions", "DesignResult", "GridDesign",
            "run_design", "capital_recovery_factor", "grid_capital", "net_present_value", "simple_payback_years"]
