@@ -152,6 +152,14 @@ class _Restored(_Bisected):
         return c
 
 
+def _restore_from(g: _Restored, first: float):
+    """The restoration after one grid with ``first`` diffusers in the first zone (300 in the others)."""
+    g.evaluate({g.ids[0]: first, **{z: 300.0 for z in g.ids[1:]}})
+    lo = np.array([g.ranges[z][0] for z in g.ids], dtype=float)
+    hi = np.array([g.ranges[z][1] for z in g.ids], dtype=float)
+    return g._restore(lambda x: dict(zip(g.ids, map(float, x))), lo, hi)
+
+
 def test_the_restoration_remembers_both_days_and_lands_between_them():
     # the peak day fails below 400 diffusers in the first zone, the minimum day above 410. From 230 (fails the
     # peak day by 170) the step aimed 1.5 times the peak's linearised excess lands on 485 (fails the minimum day by
@@ -159,11 +167,7 @@ def test_the_restoration_remembers_both_days_and_lands_between_them():
     # beyond them as they allow: 400 + 170 a = 410 - 75 a, a = 10/245, the grid 406.9. Newton steps on the last
     # grid's failing day alone swung from side to side of so narrow a band (485, 284, 555, 223, ...) without one.
     g = _Restored(400.0, 410.0)
-    other = {z: 300.0 for z in g.ids[1:]}
-    g.evaluate({g.ids[0]: 230.0, **other})
-    lo = np.array([g.ranges[z][0] for z in g.ids], dtype=float)
-    hi = np.array([g.ranges[z][1] for z in g.ids], dtype=float)
-    found = g._restore(lambda x: dict(zip(g.ids, map(float, x))), lo, hi)
+    found = _restore_from(g, 230.0)
     assert found is not None
     x, c = found
     assert x[0] == pytest.approx(400.0 + 170.0 * 10.0 / 245.0, abs=1e-6) and c.objective is not None
@@ -174,11 +178,7 @@ def test_the_restoration_ends_when_the_days_linearisations_leave_no_grid():
     # the peak day needs 420 or more, the minimum day 410 or fewer: no grid; the two days' linearisations say so
     # after two grids (230, then 515), without spending the rounds
     g = _Restored(420.0, 410.0)
-    other = {z: 300.0 for z in g.ids[1:]}
-    g.evaluate({g.ids[0]: 230.0, **other})
-    lo = np.array([g.ranges[z][0] for z in g.ids], dtype=float)
-    hi = np.array([g.ranges[z][1] for z in g.ids], dtype=float)
-    assert g._restore(lambda x: dict(zip(g.ids, map(float, x))), lo, hi) is None
+    assert _restore_from(g, 230.0) is None
     assert len(g.grids) == 2
 
 
