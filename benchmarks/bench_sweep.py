@@ -14,7 +14,9 @@ Prints, measured side by side in one run:
    where the uniform baseline breaks the NH4-N limit and the complying-setpoint search
    runs; at 10 C the pre-screen finds the limits cannot be met) as a sweep worker, and the scenarios of section 1 (``run_s`` against ``ipopt_s``
    of the rows); target:
-   wall <= 1.5 x Ipopt. Ipopt's time is the solver's own, summed over attempts. With
+   wall <= 1.5 x Ipopt. Ipopt's time is the solver's own, summed over attempts. Each ratio is given twice:
+   wall against Ipopt's wall time, and the run's process CPU against Ipopt's process CPU (``ipopt_cpu_s``); on a
+   loaded machine the wall times stretch with the other work and only the CPU ratio compares runs. With
    ``--before SRC`` (the ``src`` folder of another checkout, e.g. of main) the same runs
    of that code alternate with this one's, so both see the same load: before and after
    side by side in one run.
@@ -82,8 +84,8 @@ def section_sweep(layout: str, grid: Grid, tmp: pathlib.Path) -> list[dict]:
     cluster_rows = list(ex.rows())
     cluster = time.perf_counter() - t0
     bad = [r["scenario"] for r in serial_rows + cluster_rows if r.get("status") not in ("optimal", "unverified")]
-    print(f"   serial  {serial:8.1f} s   ({serial / n:.1f} s per scenario)")
-    print(f"   cluster {cluster:8.1f} s   (cluster start and worker imports included)")
+    print(f"   serial  {serial:8.1f} s   ({serial / n:.1f} s per scenario; load {os.getloadavg()[0]:.1f})")
+    print(f"   cluster {cluster:8.1f} s   (cluster start and worker imports included; load {os.getloadavg()[0]:.1f})")
     print(f"   speed-up {serial / cluster:.2f} on {workers} workers: parallel efficiency {serial / cluster / workers:.2f}")
     for w, b in sorted(ex.peak_memory_bytes.items()):
         print(f"   peak memory of worker {w}: {b / 2**20:.0f} MB")
@@ -96,13 +98,13 @@ def section_sweep(layout: str, grid: Grid, tmp: pathlib.Path) -> list[dict]:
 
 
 #: A scenario as a sweep worker runs it: the imports before the clock, then the optimize command in-process
-#: with --no-report; prints the wall time of the command and the summary's path.
+#: with --no-report; prints the wall time and the process CPU time of the command.
 _WORKER = """
 import sys, time
 import airtaper.cli.main as cli, airtaper.cli.optimize, airtaper.optimize.diurnal
-t0 = time.perf_counter()
+t0, c0 = time.perf_counter(), time.process_time()
 cli.main(sys.argv[1:])
-print(time.perf_counter() - t0)
+print(time.perf_counter() - t0, time.process_time() - c0)
 """
 
 
@@ -113,19 +115,19 @@ def _children_cpu_s() -> float:
 
 def _run(src: pathlib.Path, argv: list[str], worker: bool) -> tuple[float, dict]:
     """(wall s, summary) of one optimize run with the code of ``src``; the summary gains the run's CPU seconds
-    (``cpu_s``, the whole process: imports, teardown)."""
+    (``cpu_s``: from the command line the whole process, imports and teardown; as a worker, the command only)."""
     env = dict(os.environ, PYTHONPATH=str(src) + os.pathsep + os.environ.get("PYTHONPATH", ""))
     out = pathlib.Path(argv[argv.index("--out") + 1])
     t0, c0 = time.perf_counter(), _children_cpu_s()
     if worker:
         r = subprocess.run([sys.executable, "-c", _WORKER, *argv, "--no-report"], env=env, capture_output=True,
                            text=True, check=False)
-        wall = float(r.stdout.strip().splitlines()[-1])
+        wall, cpu = (float(v) for v in r.stdout.strip().splitlines()[-1].split())
     else:
         subprocess.run([sys.executable, "-m", "airtaper.cli.main", *argv], env=env, stdout=subprocess.DEVNULL,
                        check=False)
-        wall = time.perf_counter() - t0
-    return wall, dict(json.loads((out / "summary.json").read_text()), cpu_s=_children_cpu_s() - c0)
+        wall, cpu = time.perf_counter() - t0, _children_cpu_s() - c0
+    return wall, dict(json.loads((out / "summary.json").read_text()), cpu_s=cpu)
 
 
 def _overrides(tmp: pathlib.Path, name: str, values: dict) -> list[str]:
@@ -154,10 +156,12 @@ def section_ratio(layout: str, rows: list[dict], tmp: pathlib.Path, repeats: int
                 if not s["solver"]["timings"].get("ipopt_s"):  # screened out or failed before Ipopt ran
                     print(f"     ({name} {mode}{i}: {s.get('status')}, no Ipopt time: {s.get('messages', [''])[:1]})")
                     continue
-                runs[name].append((wall, s["solver"]["timings"]["ipopt_s"], s["solver"]["timings"],
-                                   s["energy_kWh_per_day"], s.get("cost_per_day"), s.get("status")))
-                print(f"     ({name} {mode}{i}: wall {wall:.1f} s, process CPU {s['cpu_s']:.1f} s, Ipopt "
-                      f"{runs[name][-1][1]:.1f} s, load {os.getloadavg()[0]:.1f})", flush=True)
+                t = s["solver"]["timings"]
+                runs[name].append((wall, t["ipopt_s"], t, s["energy_kWh_per_day"], s.get("cost_per_day"),
+                                   s.get("status"), s["cpu_s"], t.get("ipopt_cpu_s")))
+                print(f"     ({name} {mode}{i}: wall {wall:.1f} s, Ipopt {t['ipopt_s']:.1f} s; process CPU "
+                      f"{s['cpu_s']:.1f} s, Ipopt CPU {_fmt(t.get('ipopt_cpu_s'))} s; load "
+                      f"{os.getloadavg()[0]:.1f})", flush=True)
         how = f"cold scenario {cold} as a sweep worker, one run" if mode == "cold" else \
             "as a sweep worker runs it (imports paid, --no-report)" if worker else \
             "command line (fresh interpreter, report)"
@@ -169,7 +173,11 @@ def section_ratio(layout: str, rows: list[dict], tmp: pathlib.Path, repeats: int
             wall = statistics.median(c[0] for c in r)
             ipopt = statistics.median(c[1] for c in r)
             mid = sorted(r, key=lambda c: c[0])[len(r) // 2]
-            print(f"     {name:6s}: wall {wall:6.1f} s, Ipopt {ipopt:6.1f} s, ratio {wall / ipopt:.2f}; "
+            cpu = statistics.median(c[6] for c in r)
+            ipcpu = [c[7] for c in r if c[7]]  # (code from before ipopt_cpu_s was measured has none)
+            on_cpu = f", ratio {cpu / statistics.median(ipcpu):.2f}" if ipcpu else ""
+            print(f"     {name:6s}: wall {wall:6.1f} s, Ipopt {ipopt:6.1f} s, ratio {wall / ipopt:.2f}; process CPU "
+                  f"{cpu:6.1f} s, Ipopt CPU {_fmt(statistics.median(ipcpu) if ipcpu else None)} s{on_cpu}; "
                   f"{mid[5]}, {mid[3]:,.1f} kWh/d" + (f", cost {mid[4]:,.2f}/d" if mid[4] is not None else ""))
             parts = ", ".join(f"{k} {v:.1f}" for k, v in mid[2].items() if isinstance(v, float) and v >= 0.05)
             print(f"             inside the run (s): {parts}")
@@ -179,6 +187,15 @@ def section_ratio(layout: str, rows: list[dict], tmp: pathlib.Path, repeats: int
         print(f"   sweep scenarios of section 1 ({len(ok)}): run_s / ipopt_s median {statistics.median(ratios):.2f}, "
               f"min {ratios[0]:.2f}, max {ratios[-1]:.2f} (target <= 1.5); median run_s "
               f"{statistics.median(r['run_s'] for r in ok):.1f} s, ipopt_s {statistics.median(r['ipopt_s'] for r in ok):.1f} s")
+    ok = [r for r in ok if r.get("ipopt_cpu_s") and r.get("run_cpu_s")]
+    if ok:
+        ratios = sorted(r["run_cpu_s"] / r["ipopt_cpu_s"] for r in ok)
+        print(f"   the same on process CPU: run_cpu_s / ipopt_cpu_s median {statistics.median(ratios):.2f}, "
+              f"min {ratios[0]:.2f}, max {ratios[-1]:.2f}")
+
+
+def _fmt(v) -> str:
+    return "-" if v is None else f"{v:.1f}"
 
 
 def main() -> int:

@@ -89,6 +89,7 @@ def test_sweep_rows_equal_one_by_one_runs_and_a_bad_override_is_one_failed_row(t
                                                            - s["effluent"]["nh4_mean_mg_L"], rel=1e-6, abs=1e-9)
         assert row["min_do_margin_mg_L"] == pytest.approx(s["min_do_margin_mg_L"], abs=1e-6)
         assert bool(row["compliant"]) and row["run_s"] > row["ipopt_s"] > 0
+        assert row["run_cpu_s"] > row["ipopt_cpu_s"] > 0  # process CPU: the ratio machine load does not blur
         # the scenario's own folder is a complete optimize output folder
         assert (out / row["folder"] / "schedule.csv").is_file()
     # warmer water: lower saturation, more air; higher alpha: less air (both directions of the physics)

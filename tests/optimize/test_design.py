@@ -127,6 +127,93 @@ def test_no_bisection_without_a_pair_of_failed_grids_each_meeting_the_others_day
     assert 2 < len(g.grids) <= 2 + 6
 
 
+class _Restored(_Bisected):
+    """As :class:`_Bisected`, with each failed day's least excess and its gradient by the counts (linear in the
+    first zone's count: the turndown's excess grows by 1 a diffuser above ``turndown``, the transfer's by 1 a
+    diffuser below ``transfer``), as the restoration reads them; every day is solved on every grid."""
+
+    def evaluate(self, counts, whole=True, every_day=False):
+        n = float(counts[self.ids[0]])
+        self.grids.append(n)
+        unit = np.eye(len(self.ids))[0]
+        solves = []
+        for excess, slope in ((n - self.turndown, 1.0), (self.transfer - n, -1.0)):
+            if excess <= 0.0:
+                solves.append(DaySolve("optimal", goal=1.0, objective=1.0, gradient=np.zeros(len(self.ids))))
+            else:
+                solves.append(DaySolve("infeasible", excess=excess, excess_gradient=slope * unit))
+        self._solved[self._key(counts)] = solves
+        failed = next((d.id for d, s in zip(self.days, solves) if not s.ok), None)
+        bad = next((s for s in solves if not s.ok), None)
+        c = Candidate(dict(counts), None if failed else 1.0, "infeasible" if failed else "optimal", 0.0,
+                      objective=None if failed else 1.0, gradient=None if failed else dict.fromkeys(self.ids, 0.0),
+                      failed_day=failed, excess=None if bad is None else bad.excess)
+        self.candidates.append(c)
+        return c
+
+
+def _restore_from(g: _Restored, first: float):
+    """The restoration after one grid with ``first`` diffusers in the first zone (300 in the others)."""
+    g.evaluate({g.ids[0]: first, **{z: 300.0 for z in g.ids[1:]}})
+    lo = np.array([g.ranges[z][0] for z in g.ids], dtype=float)
+    hi = np.array([g.ranges[z][1] for z in g.ids], dtype=float)
+    return g._restore(lambda x: dict(zip(g.ids, map(float, x))), lo, hi)
+
+
+def test_the_restoration_remembers_both_days_and_lands_between_them():
+    # the peak day fails below 400 diffusers in the first zone, the minimum day above 410. From 230 (fails the
+    # peak day by 170) the step aimed 1.5 times the peak's linearised excess lands on 485 (fails the minimum day by
+    # 75); the peak day's linearisation from 230 is kept, so the next step meets both linearisations, aimed as far
+    # beyond them as they allow: 400 + 170 a = 410 - 75 a, a = 10/245, the grid 406.9. Newton steps on the last
+    # grid's failing day alone swung from side to side of so narrow a band (485, 284, 555, 223, ...) without one.
+    g = _Restored(400.0, 410.0)
+    found = _restore_from(g, 230.0)
+    assert found is not None
+    x, c = found
+    assert x[0] == pytest.approx(400.0 + 170.0 * 10.0 / 245.0, abs=1e-6) and c.objective is not None
+    assert g.grids[1] == pytest.approx(485.0) and len(g.grids) == 3
+
+
+def test_the_restoration_ends_when_the_days_linearisations_leave_no_grid():
+    # the peak day needs 420 or more, the minimum day 410 or fewer: no grid; the two days' linearisations say so
+    # after two grids (230, then 515), without spending the rounds
+    g = _Restored(420.0, 410.0)
+    assert _restore_from(g, 230.0) is None
+    assert len(g.grids) == 2
+
+
+class _Band(GridDesign):
+    """The design's whole-count search with each day's verdict by a rule: the peak day needs at least ``transfer``
+    diffusers in the first zone, the minimum day at most ``turndown`` in the second (a band one step wide)."""
+
+    def __init__(self, transfer: float, turndown: float):
+        super().__init__(_small(step=1), OPTIONS)
+        self.days = (replace(self.days[0], id="minimum"), replace(self.days[1], id="peak"))
+        self.transfer, self.turndown = transfer, turndown
+        self.grids = []
+
+    def evaluate(self, counts, whole=True, every_day=False):
+        a, b = (float(counts[z]) for z in self.ids[:2])
+        self.grids.append(tuple(counts[z] for z in self.ids))
+        failed = "minimum" if b > self.turndown else "peak" if a < self.transfer else None
+        c = Candidate(dict(counts), None if failed else 1.0, "infeasible" if failed else "optimal", 0.0,
+                      objective=None if failed else 1.0 + 1e-3 * (a - b),
+                      gradient=None if failed else dict.fromkeys(self.ids, 0.0), failed_day=failed)
+        self.candidates.append(c)
+        return c
+
+
+def test_whole_counts_try_the_corners_around_the_continuous_optimum():
+    # the continuous optimum 400.4 / 300.6 / 300 rounds to 400 / 301 / 300 (fails both days), up to 401 / 301 / 300
+    # (fails the minimum day), down to 400 / 300 / 300 (fails the peak day); the corner 401 / 300 / 300 meets both
+    g = _Band(transfer=401.0, turndown=300.0)
+    g.relaxed = dict(zip(g.ids, (400.4, 300.6, 300.0)))
+    best = g.search()
+    assert best is not None and best.objective is not None
+    assert tuple(best.counts[z] for z in g.ids) == (401, 300, 300)
+    assert g.grids[:4] == [(400, 301, 300), (401, 301, 300), (400, 300, 300), (401, 300, 300)]
+
+
 @pytest.fixture(scope="module")
 def solved():
     g = GridDesign(_small(), OPTIONS)
@@ -315,3 +402,34 @@ def test_what_holds_each_zone_comes_from_the_duals(solved):
         g.load(best.counts)
     # per 0.1 mg/L from a 0.01 mg/L step: the change is nearly linear over so small a step
     assert w * (after - before) * 10.0 == pytest.approx(do["cost_per_year"], rel=0.05)
+
+
+@pytest.mark.solver
+def test_phase_two_objective_is_built_once_and_converted_once():
+    """Phase two (the least excess) keeps one objective on the day's model, deactivated between its solves, so the
+    bridge converts the model for it once (a new objective each call was converted again: about 0.75 s a call on
+    the demo's 6-period day) and the day's own objective is the one active afterwards."""
+    import pyomo.environ as pyo
+
+    from airtaper.optimize.attempts import LADDER
+    from airtaper.optimize.problem import LIMIT_GROUPS
+
+    layout = _small()
+    g = GridDesign(replace(layout, load_days=layout.load_days[:1]), OPTIONS)
+    g.build()
+    st = g.studies[0]
+    b = st.m.opt
+    do_min = [grp for grp in LIMIT_GROUPS if grp.name == "do_min"]
+    params = [st.m.diffuser_count[z] for z in g.ids]
+    runs, objectives = [], []
+    for _ in range(2):
+        _reason, r, total, _grad = GridDesign._least_excess(st, LADDER[0], do_min, params)
+        runs.append(r)
+        objectives.append(b.component("least_excess_objective"))
+        active = list(st.m.component_data_objects(pyo.Objective, active=True))
+        assert active == [b.objective]  # the day's objective is back, the least excess put aside
+        assert all(v.fixed and v.value == 0.0 for v in b.do_min_slack.values())
+        assert total == pytest.approx(0.0, abs=1e-6)  # the start meets the DO minimum
+    assert objectives[0] is not None and objectives[0] is objectives[1]
+    assert runs[0].ok and runs[1].ok
+    assert runs[1].timings.derivatives_s == 0.0  # the second call reused the converted structure

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 import shutil
 import warnings
 from dataclasses import replace
@@ -118,21 +119,45 @@ def test_a_full_air_day_that_cannot_be_simulated_leaves_the_equipment_bounds(dem
     assert "only the equipment bounds were screened" in screen["note"]
 
 
+_IDEAL = '[clarifier]\nkind = "ideal"\neffluent_tss_mg_L = 10.0'
+
+
+def _demo_variant(tmp_path, edits: dict):
+    """The demo on 6 periods with each ``old: new`` text edit made (each ``old`` once in the file)."""
+    text = DEMO.read_text()
+    for old, new in edits.items():
+        assert text.count(old) == 1
+        text = text.replace(old, new)
+    (tmp_path / "demo.toml").write_text(text)
+    shutil.copy(DEMO.parent / "demo_influent.csv", tmp_path / "demo_influent.csv")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return with_periods(load_layout(str(tmp_path / "demo.toml")), 6, steps_per_period=2)
+
+
 def test_nitrification_lost_to_an_overloaded_clarifier_is_blamed_on_the_clarifier(tmp_path):
     # The demo with a layered clarifier of 80 m2 (an invented overload: about 6 m/h of overflow at the mean
     # load): the effluent carries off solids faster than the 11-day sludge age allows, so none is wasted and
     # the nitrifiers fall short even at full air. The NH4-N finding is true, and its cause is the clarifier.
-    text = DEMO.read_text()
-    old = '[clarifier]\nkind = "ideal"\neffluent_tss_mg_L = 10.0'
-    assert old in text
-    (tmp_path / "demo.toml").write_text(text.replace(old, '[clarifier]\nkind = "layered"\narea_m2 = 80.0\n'
-                                                          'height_m = 4.0'))
-    shutil.copy(DEMO.parent / "demo_influent.csv", tmp_path / "demo_influent.csv")
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        small = with_periods(load_layout(str(tmp_path / "demo.toml")), 6, steps_per_period=2)
+    small = _demo_variant(tmp_path, {_IDEAL: '[clarifier]\nkind = "layered"\narea_m2 = 80.0\nheight_m = 4.0'})
     screen = prescreen(small)
     (f,) = [f for f in screen["findings"] if f["limit"] == "nh4_mean"]
     assert screen["full_air"]["nh4_mean_mg_L"] > small.limits.nh4_mean_mg_L
     assert "the cause is the clarifier, not the air" in f["message"]
     assert "cannot hold the target sludge age" in f["message"] and "against 11 d" in f["message"]
+
+
+def test_nitrification_short_with_a_fixed_waste_flow_names_the_solids_over_the_weir(tmp_path):
+    # The demo with a fixed waste flow (217 m3/d, its waste at the 11-day sludge age), a return ratio of 0.4 and
+    # a layered clarifier of 100 m2 (invented: about 5 m/h of overflow at the mean load). With no target sludge
+    # age there is none to miss, yet the effluent carries off nearly half the solids leaving the plant and the
+    # sludge age falls to about 4 d: the NH4-N finding must say so, not read as if only the air fell short.
+    plant = _demo_variant(tmp_path, {_IDEAL: '[clarifier]\nkind = "layered"\narea_m2 = 100.0\nheight_m = 4.0',
+                                     "srt_d = 11.0": "flow_m3_d = 217.0", "ratio = 0.8\n": "ratio = 0.4\n"})
+    screen = prescreen(plant)
+    (f,) = [f for f in screen["findings"] if f["limit"] == "nh4_mean"]
+    assert screen["full_air"]["nh4_mean_mg_L"] > plant.limits.nh4_mean_mg_L
+    m = re.search(r"at full air the sludge age is ([\d.]+) d, and the clarifier's effluent carries (\d+) g/m3 of "
+                  r"solids, (\d+) % of the solids leaving the plant", f["message"])
+    assert m, f["message"]
+    assert float(m.group(1)) < 6.0 and float(m.group(2)) > 50.0 and int(m.group(3)) > 40

@@ -78,7 +78,7 @@ def optimize_scenario(task: dict) -> dict:
         # Dask runs a task again when the worker holding its result is lost: the scenario has finished and its
         # row and folder stand (running it again would rewrite the row and remove the folder meanwhile).
         return done
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), time.process_time()
     out = Path(task["out"])
     if out.exists():  # an earlier run of a scenario that did not finish (no row): ours, start it again
         shutil.rmtree(out)
@@ -98,6 +98,7 @@ def optimize_scenario(task: dict) -> dict:
     if errors:
         row["message"] = "; ".join(errors + ([row["message"]] if row.get("message") else []))
     row["run_s"] = time.perf_counter() - t0
+    row["run_cpu_s"] = time.process_time() - c0
     row["folder"] = os.path.relpath(out, task["root"]) if out.is_dir() else None
     row["fingerprint"] = task["fingerprint"]
     write_row(task["row"], row)

@@ -223,18 +223,22 @@ def _steps_from(plant: ResolvedPlant, origin: Baseline, direction: float, last_c
     same, start, before = origin, origin.day.start_state(), None
     lo, hi = search_range(plant)
     up_from_nh4 = direction > 0 and not last_complies and _nh4_broken(plant, origin)
-    steps = iter(SEARCH_STEPS_mg_L)
-    step, probed = next(steps, None), False
-    while step is not None:
-        sp = float(np.clip(origin.setpoint_mg_L + direction * step, lo, hi))
-        worth = _nh4_reach(plant, before, same) + SEARCH_TOL_mg_L if up_from_nh4 else -np.inf
-        if worth >= sp:  # the step would break NH4-N: further at once
-            sp = float(min(worth, hi))
-        elif not probed and worth > same.setpoint_mg_L:  # just above the bound first (the step stays next)
-            sp, probed = float(worth), True
-            worth = None
-        if worth is not None:
-            step, probed = next(steps, None), False
+
+    def bound() -> float:
+        """The lowest setpoint worth a trial, from the trials so far (-inf unless stepping up from NH4-N)."""
+        return _nh4_reach(plant, before, same) + SEARCH_TOL_mg_L if up_from_nh4 else -np.inf
+
+    def candidates():
+        """The setpoints to try, in order (lazily: the bound moves with each trial). Per step: the bound first
+        when it lies between the last trial and the step, then the step, or the bound when the step lies below
+        it (up to the top of the range)."""
+        for step in SEARCH_STEPS_mg_L:
+            sp = float(np.clip(origin.setpoint_mg_L + direction * step, lo, hi))
+            if same.setpoint_mg_L < bound() < sp:
+                yield float(bound())
+            yield float(min(max(sp, bound()), hi))
+
+    for sp in candidates():
         if direction * (sp - same.setpoint_mg_L) <= 0.0:  # at the end of the range, or a step already passed
             continue
         trial = _try(plant, sp, start)

@@ -40,11 +40,14 @@ Continuous search
     design ranges, backtracking on a failed day or too little decrease) over real counts,
     from the current grid (or the bottom, top or middle of the ranges when the current grid
     fails a day; when two failed grids each meet the day the other fails, a bisection on the
-    segment between them), until a step moves less than half a count step.
+    segment between them; when none of these meets every day, a restoration by steps on the
+    failed days' linearised least excesses that remember every day, :meth:`GridDesign._restore`),
+    until a step moves less than half a count step.
 
 Whole counts (a small integer search)
-    From the continuous optimum rounded to the nearest step (up, then down, when that grid
-    fails a day), each zone is moved one step in the direction its gradient says lowers the
+    From the continuous optimum rounded to the nearest step (when that grid fails a day: every
+    count up, every count down, then the other corners of the box of whole steps around it,
+    nearest first; :meth:`GridDesign._roundings`), each zone is moved one step in the direction its gradient says lowers the
     annual cost, the most promising first, and the first move that lowers it is taken,
     until none does. A move the gradient says raises the cost is not tried: the annual
     cost lies above its tangent where it is convex in the count (diminishing returns of
@@ -70,6 +73,7 @@ Verification and economics
 
 from __future__ import annotations
 
+import itertools
 import math
 import time
 from dataclasses import dataclass, field, replace
@@ -82,6 +86,7 @@ from airtaper.errors import EXIT_FAILURE, EXIT_INFEASIBLE, EXIT_OK, EXIT_UNVERIF
 from airtaper.layout.loaddays import day_layout, layout_days, with_grid_counts
 from airtaper.layout.types import Layout
 from airtaper.optimize.attempts import LADDER
+from airtaper.optimize.backoff import hold_do
 from airtaper.optimize.diurnal import DiurnalOptimisation, StudyOptions
 from airtaper.optimize.elastic import REPORT_THRESHOLD
 from airtaper.optimize.horizon import with_periods
@@ -91,6 +96,7 @@ from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.results import jsonable, study_tables
 from airtaper.optimize.verify import verify_day
 from airtaper.plant import ResolvedPlant, resolve_plant, with_diffuser_counts
+from airtaper.solve.highs import solve_milp
 
 #: A day's limit binds a zone when 0.1 mg/L (DO) or 1 % (airflow) of it is worth more than this share of the day's
 #: annual cost (an interior-point dual of a limit that does not bind is many orders smaller). Common practice
@@ -104,12 +110,10 @@ BINDING_SHARE = 1e-5
 #: two phases settles in about 50 iterations on every grid tried. Common practice (no source).
 WARM_STEPS = 2.0
 
-#: The restoration's Newton step aims this many times as far as the linearised excesses say (they flatten towards
-#: zero: a step to exactly zero falls short; on the demo a step aimed 1.5 times removed about half the excess).
-#: Common practice (no source).
+#: The restoration's step aims up to this many times as far as the linearised excesses say (they flatten towards
+#: zero: a step to exactly zero falls short; on the demo a step aimed 1.5 times removed about half the excess), as
+#: far as the other days' linearisations allow (:meth:`GridDesign._restoration_step`). Common practice (no source).
 RESTORE_AIM = 1.5
-#: ... and at most this many times as far, when a step removed less of the excess than aimed.
-RESTORE_AIM_MAX = 8.0
 
 #: A day's start breaks a limit when it leaves it by more than this share of the bound (at least of 1: mg/L, Sm3/h,
 #: kPa): the day is then solved by two phases (:meth:`GridDesign._two_phase`). Common practice (no source): far
@@ -175,7 +179,13 @@ class DesignOptions:
     n_periods: int | None = None  # design on another diurnal grid (optimize.horizon.with_periods)
     steps_per_period: int | None = None
     verify: bool = True
+    # the chosen grid's day schedules held inside their DO ranges between the model's time points before they are
+    # verified (the back-off rounds of ``optimize``, GridDesign.verify)
+    hold_do: bool = True
     max_moves: int = 20  # improving moves of the whole-count search at most
+    # whole-count grids tried around the continuous optimum for one meeting every day (GridDesign._roundings).
+    # Common practice (no source): 8 of the 32 corners of five zones' boxes, the nearest ones.
+    max_roundings: int = 8
     max_continuous: int = 12  # grids evaluated by the continuous search at most
     # Ipopt iterations of a day's solve on a grid (and of its one retry from the baseline start); a day not solved
     # within them counts as not met on that grid. Common practice (no source): a warm day converges in tens.
@@ -300,6 +310,28 @@ class GridDesign:
         return out
 
     @staticmethod
+    def _least_excess_objective(m):
+        """Phase two's objective on the day's model ``m``: the sum of every limit's slack, built once and kept
+        (deactivated between its solves).
+
+        The slacks of the limits a phase-two solve does not free stay fixed at zero, so one objective serves every
+        set of broken limits; the bridge converts a model once per set of active components and objective
+        (:func:`airtaper.solve.nlp.get_structure`), so a persistent objective is converted once per model and
+        reused (a new one each call was converted each time: 0.75 s a call on the demo's 6-period day).
+        """
+        b = m.opt
+        least = b.component("least_excess_objective")
+        if least is None:
+            least = pyo.Objective(expr=sum(v for g in LIMIT_GROUPS if b.component(g.slack) is not None
+                                           for v in b.component(g.slack).values()))
+            b.least_excess_objective = least
+            suffix = m.component("scaling_factor")
+            if suffix is not None:
+                suffix[least] = 1.0
+            least.deactivate()
+        return least
+
+    @staticmethod
     def _least_excess(st, rung, groups, params) -> tuple[str | None, object, float, np.ndarray | None]:
         """How little the day can break the limits ``groups`` on this grid, from the current point:
         (the limit, zone and least excess when it cannot meet them, else None; the Ipopt result; the least sum of
@@ -326,14 +358,12 @@ class GridDesign:
                 v.set_value(0.0)
                 if rate > 0.0:
                     v.set_value(_excess(c) / rate)
+        least = GridDesign._least_excess_objective(m)
         b.objective.deactivate()
-        b.least_excess_objective = pyo.Objective(expr=sum(v for _g, var, _c in slacks for v in var.values()))
-        suffix = m.component("scaling_factor")
-        if suffix is not None:
-            suffix[b.least_excess_objective] = 1.0
+        least.activate()
         try:
             r = st._ipopt(rung)
-            total = float(pyo.value(b.least_excess_objective))
+            total = float(pyo.value(least))
             grad = np.array(parameter_sensitivity(m, r, params)) if r.ok else None
             found = []
             for g, var, _con in slacks:
@@ -346,9 +376,7 @@ class GridDesign:
             for _g, var, _c in slacks:
                 for v in var.values():
                     v.fix(0.0)
-            if suffix is not None and b.least_excess_objective in suffix:
-                del suffix[b.least_excess_objective]
-            b.del_component("least_excess_objective")
+            least.deactivate()
             b.objective.activate()
         if not r.ok or not found:
             return None, r, total, grad
@@ -573,43 +601,86 @@ class GridDesign:
         self.relaxed_candidate = c
         return c
 
-    def _restore(self, grid, lo: np.ndarray, hi: np.ndarray, rounds: int = 6) -> tuple | None:
-        """A grid meeting every day, from the failed grid nearest to it, by Newton steps on the failing days' least
-        excesses (phase two of :meth:`_two_phase`), linearised in the counts by their duals: the shortest step
-        (in count steps) that brings every failing day's linearised excess to zero, aimed :data:`RESTORE_AIM`
-        times as far. None when no failed grid has an excess or ``rounds`` steps find no such grid.
+    def _cuts(self) -> dict[int, tuple[np.ndarray, float, np.ndarray]]:
+        """Per load day that failed a grid: its least excess linearised at the grid where it was least (phase two
+        of :meth:`_two_phase`, the gradient by the counts from the duals): day -> (the grid in count steps, the
+        excess, its gradient per count step). The linearisation nearest the boundary is the one to trust: where the
+        excess saturates (the DO maximum's excess with every zone at 800 diffusers) the tangent is flat and asks
+        for a move far beyond the one that meets the limit."""
+        out: dict[int, tuple] = {}
+        for key, solves in self._solved.items():
+            u = np.array(key) / self.steps
+            for i, d in enumerate(solves):
+                if (d.excess is not None and d.excess_gradient is not None and np.any(d.excess_gradient)
+                        and (i not in out or d.excess < out[i][1])):
+                    out[i] = (u, float(d.excess), np.asarray(d.excess_gradient, dtype=float) * self.steps)
+        return out
 
-        On the demo the ends and the segments between them fail: the minimum day holds its DO maximum only with
-        few diffusers behind the head of the train, the peak day needs many at the head (700/500/400/340/340
-        misses the minimum day by 0.018 mg/L).
-        """
-        known = [c for c in self.candidates if c.excess is not None]
-        if not known:
+    def _restoration_step(self, x: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray | None:
+        """The grid nearest ``x`` (fewest count steps moved, summed over the zones) where every day's linearised
+        excess (:meth:`_cuts`) is zero, aimed up to :data:`RESTORE_AIM` times as far as the linearisations say
+        (as far as the other days' linearisations allow): two linear programmes in HiGHS, the aim then the step.
+        None when the linearisations of the days cannot all be met inside the design ranges."""
+        cuts = list(self._cuts().values())
+        if not cuts:
             return None
-        s = self.steps
-        x = np.array([float(min(known, key=lambda c: c.excess).counts[z]) for z in self.ids])
-        aim, last = RESTORE_AIM, None
+        s, n = self.steps, len(self.ids)
+        m = pyo.ConcreteModel(name="restoration")
+        m.u = pyo.Var(range(n), bounds=lambda _m, i: (float(lo[i] / s[i]), float(hi[i] / s[i])))
+        m.t = pyo.Var(range(n), bounds=(0.0, None))  # |u - x| per zone, in count steps
+        m.aim = pyo.Var(bounds=(0.0, RESTORE_AIM - 1.0))  # how much further than the linearisation the step aims
+        m.cut = pyo.ConstraintList()
+        for u0, e, g in cuts:  # (1 + aim) e + g.(u - u0) <= 0
+            m.cut.add(e * (1.0 + m.aim) + sum(float(g[i]) * (m.u[i] - float(u0[i])) for i in range(n)) <= 0.0)
+        u_now = x / s
+        m.up = pyo.Constraint(range(n), rule=lambda _m, i: _m.t[i] >= _m.u[i] - float(u_now[i]))
+        m.down = pyo.Constraint(range(n), rule=lambda _m, i: _m.t[i] >= float(u_now[i]) - _m.u[i])
+        m.goal = pyo.Objective(expr=m.aim, sense=pyo.maximize)
+        if not solve_milp(m).has_solution:
+            return None
+        m.aim.fix(float(m.aim.value))
+        m.goal.deactivate()
+        m.moved = pyo.Objective(expr=sum(m.t[i] for i in range(n)))
+        if not solve_milp(m).has_solution:
+            return None
+        return np.array([float(m.u[i].value) for i in range(n)]) * s
+
+    def _restore(self, grid, lo: np.ndarray, hi: np.ndarray, rounds: int = 8) -> tuple | None:
+        """A grid meeting every day, by steps on linearised least excesses that remember every day (a
+        sequential linear programme): each day that failed a grid gives its least excess linearised at the grid
+        where it was least (:meth:`_cuts`), and the next grid is the nearest one where every such linearisation is
+        met, aimed further (:meth:`_restoration_step`); every day is solved there. A day met now but failed
+        before keeps its linearisation, so a step for the peak day does not undo the minimum day. A grid whose day
+        ends without a verdict (not converged) is replaced by the point halfway back. None when no day has an
+        excess, the linearisations cannot all be met in the design ranges, or ``rounds`` grids fail.
+
+        On the demo the ends of the ranges and the segments between them fail: the minimum day holds its DO
+        maximum only with few diffusers behind the head of the train (its night air sits on the mixing minimum in
+        Z5 and Z6 and on the diffuser minimum in Z4), the peak day needs many at the head: 591/523/401/340/340
+        misses the peak day by 0.4 % of Z2's air per diffuser, 700/500/400/340/340 the minimum day by 0.018 mg/L,
+        600/520/400/340/340 meets both. Newton steps on one grid's failing days overshot from one side to the other
+        and forgot the side they came from.
+        """
+        cuts = self._cuts()
+        if not cuts:
+            return None
+        # from the grid the linearisations put nearest to meeting its day (excess over slope: count steps)
+        u0, _e, _g = min(cuts.values(), key=lambda c: c[1] / max(float(np.linalg.norm(c[2])), 1e-300))
+        x = u0 * self.steps
         for _ in range(rounds):
-            c = self.evaluate(grid(x), whole=False, every_day=True)
+            x_new = self._restoration_step(x, lo, hi)
+            if x_new is None or np.max(np.abs(x_new - x) / self.steps) < 0.05:
+                return None
+            c = self.evaluate(grid(x_new), whole=False, every_day=True)
             if c.objective is not None:
-                return x, c
-            rows = [(d.excess, d.excess_gradient * s) for d in self._solved[self._key(grid(x))]
-                    if d.excess is not None and d.excess_gradient is not None]
-            if not rows:
-                return None
-            G = np.array([g for _e, g in rows])
-            E = np.array([e for e, _g in rows])
-            total = float(E.sum())
-            if last is not None and 0.0 < total < last:
-                # the last step, aimed ``aim`` times as far as the linearisation said, removed only this share of
-                # the excess: the next one is aimed as much further (the excess flattens towards zero)
-                aim = min(aim / ((last - total) / last), RESTORE_AIM_MAX)
-            last = total
-            d = -G.T @ np.linalg.lstsq(G @ G.T, aim * E, rcond=None)[0]
-            x_new = np.clip(x / s + d, lo / s, hi / s) * s
-            if np.max(np.abs(x_new - x) / s) < 0.05:  # the box stops the step: no grid that way
-                return None
-            x = x_new
+                return x_new, c
+            if all(d.ok or d.excess is not None for d in self._solved[self._key(grid(x_new))]):
+                x = x_new
+            else:  # a day without a verdict there: nothing learnt; halfway back next
+                x = x + 0.5 * (x_new - x)
+                c = self.evaluate(grid(x), whole=False, every_day=True)
+                if c.objective is not None:
+                    return x, c
         return None
 
     def _between(self, tried: list, grid) -> tuple | None:
@@ -622,7 +693,7 @@ class GridDesign:
             solves = self._solved.get(self._key(c.counts))
             return bool(solves) and solves[index[day_id]].ok
 
-        for k in range(len(tried) - 1):
+        for k in reversed(range(len(tried) - 1)):  # the nearest earlier grid first
             a, ca = tried[k]
             b, cb = tried[-1]
             if not (ca.failed_day and cb.failed_day and ca.failed_day != cb.failed_day
@@ -652,6 +723,26 @@ class GridDesign:
             out[z.id] = int(min(max(step * rounding(self.relaxed[z.id] / step), lo), hi))
         return out
 
+    def _roundings(self) -> list[dict[str, int]]:
+        """The whole-count grids to start the neighbour search from, in order: the continuous optimum rounded to the
+        nearest steps, every count up, every count down, then the other corners of the box of whole steps around it
+        (each count rounded down or up), nearest first, at most :attr:`DesignOptions.max_roundings` in all.
+
+        Where the grids meeting every day form a thin set (on the demo the minimum day's DO maximum and the peak
+        day's transfer leave a band a few count steps wide), the corner nearest the continuous optimum can fail a
+        day while another corner meets them all."""
+        out = []
+        for rounding in (round, math.ceil, math.floor):  # when the nearest grid fails a day: up, then down
+            counts = self._nearest(rounding)
+            if counts not in out:
+                out.append(counts)
+        corners = [dict(zip(self.ids, c)) for c in itertools.product(
+            *[sorted({self._nearest(math.floor)[z], self._nearest(math.ceil)[z]}) for z in self.ids])]
+        steps = dict(zip(self.ids, self.steps))
+        corners.sort(key=lambda c: sum(((c[z] - self.relaxed[z]) / steps[z]) ** 2 for z in self.ids))
+        out += [c for c in corners if c not in out]
+        return out[:max(self.options.max_roundings, 1)]
+
     def _better(self, c: Candidate, best: Candidate) -> bool:
         return c.objective is not None and c.objective < best.objective - 1e-9 * abs(best.objective)
 
@@ -660,11 +751,11 @@ class GridDesign:
         if self.relaxed is None:
             raise ModelError("solve the relaxed design first")
         best = None
-        for rounding in (round, math.ceil, math.floor):  # when the nearest grid fails a day: up, then down
-            best = self.evaluate(self._nearest(rounding))
+        for counts in self._roundings():
+            best = self.evaluate(counts)
             if best.objective is not None:
                 break
-        if best.objective is None:
+        if best is None or best.objective is None:
             return None
         for _ in range(self.options.max_moves):
             moves = []
@@ -768,12 +859,29 @@ class GridDesign:
         return out, rows
 
     def verify(self, counts: dict[str, int]) -> list[dict]:
-        """Every day's schedule on the grid ``counts`` re-simulated by the independent simulator."""
-        out = []
-        for day, st in zip(self.days, self.studies):
+        """Every day's schedule on the loaded grid ``counts`` re-simulated by the independent simulator; with
+        :attr:`DesignOptions.hold_do`, first held inside its DO range between the model's time points by the
+        back-off rounds ``optimize`` runs (:func:`airtaper.optimize.backoff.hold_do`, on the model's own steps).
+        On the demo's six 4-hour periods the re-simulated DO of the chosen grid's schedules left the range by up
+        to 0.9 mg/L inside the periods without them (Z6 above its maximum at night, Z2-Z5 below their minimum).
+        The days' results (their duals) become those of the held solves."""
+        if self.day_results is None:
+            raise ModelError("load a solved grid first")
+        out, results = [], []
+        for day, st, r in zip(self.days, self.studies, self.day_results):
+            plant = with_diffuser_counts(st.plant, counts)
+
+            def check(st=st, plant=plant):
+                return verify_day(plant, st.schedule_by_zone(), st.figures(), st.m)
+
             self.progress.phase(f"verifying load day {day.id}: the schedule re-simulated")
-            ver, _sim = verify_day(with_diffuser_counts(st.plant, counts), st.schedule_by_zone(), st.figures(), st.m)
-            out.append(ver)
+            if self.options.hold_do:
+                st.result = r
+                out.append(hold_do(st, check, self.progress)["verification"])
+            else:
+                out.append(check()[0])
+            results.append(st.result if self.options.hold_do else r)
+        self.day_results = results
         return out
 
 
@@ -850,9 +958,9 @@ def run_design(layout: ResolvedPlant | Layout, options: DesignOptions | None = N
         messages.append("no whole-count grid near the continuous optimum meets every load day's limits")
         return _no_design(g, base, "infeasible", messages, t0)
     g.load(best.counts)
+    verification = g.verify(best.counts) if g.options.verify else None  # the DO held first: the days' schedules
     design_rows = _day_rows(g, "design")
     binding, binding_rows = g.binding(best.counts)
-    verification = g.verify(best.counts) if g.options.verify else None
     designed = with_grid_counts(lay, best.counts)
 
     zones = []

@@ -232,6 +232,7 @@ class DiurnalOptimisation:
         t["conversion_s"] = t.get("conversion_s", 0.0) + r.timings.conversion_s
         t["derivatives_s"] = t.get("derivatives_s", 0.0) + r.timings.derivatives_s
         t["ipopt_s"] = t.get("ipopt_s", 0.0) + r.timings.ipopt_s
+        t["ipopt_cpu_s"] = t.get("ipopt_cpu_s", 0.0) + r.timings.ipopt_cpu_s
         t["iterations"] = t.get("iterations", 0) + r.iterations
 
     def solve(self):

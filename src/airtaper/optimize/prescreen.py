@@ -32,7 +32,12 @@ day from the steady state at mean load and full air, :data:`FULL_AIR_DAYS`)
       :meth:`airtaper.simulate.system.System.clarifier_profile`), the finding says so:
       that is why the nitrifiers fall short, not the air (on the robustness
       benchmark's plant 3 the finding read "even with every grid at its maximum
-      airflow" at a DO margin of 1.65 mg/L, with the sludge age at 3.4 d against 8.4 d).
+      airflow" at a DO margin of 1.65 mg/L, with the sludge age at 3.4 d against 8.4 d). With a
+      fixed waste flow there is no target to miss, but the solids over the weir shorten the
+      sludge age all the same: the finding gives the sludge age at full air, the effluent's
+      solids and their share of the solids leaving the plant, and the overload if there is
+      one (the benchmark's plant 1 read as if only the air fell short: its overloaded
+      clarifier's effluent took 30 % of the solids, leaving an 11.4 d sludge age).
 
     The TN limit is not screened: more air can raise TN (less denitrification).
 
@@ -170,12 +175,19 @@ def full_air_findings(plant: ResolvedPlant | Layout, day) -> list[dict]:
 
 
 def _clarifier_cause(day) -> str:
-    """'': the clarifier holds the sludge age at full air; else why the nitrifiers fall short (module notes)."""
+    """What the layered clarifier adds to an NH4-N finding at full air (module notes); '' for an ideal
+    separator or a target sludge age the clarifier holds."""
     check = day.extra.get("start_clarifier")
-    if not check or check["srt_held"]:
+    if not check:
         return ""
-    return ("; the cause is the clarifier, not the air: it cannot hold the target sludge age (" + check["message"]
-            + ")")
+    if not check["srt_held"]:
+        return ("; the cause is the clarifier, not the air: it cannot hold the target sludge age ("
+                + check["message"] + ")")
+    if check["srt_target_d"] is None:  # a fixed waste flow: the solids over the weir shorten the sludge age
+        return (f"; at full air the sludge age is {check['srt_d']:.3g} d, and the clarifier's effluent carries "
+                f"{check['effluent_tss_g_m3']:.0f} g/m3 of solids, {100.0 * check['effluent_solids_share']:.0f} % of "
+                "the solids leaving the plant" + (f" ({check['message']})" if check["overloaded"] else ""))
+    return ""
 
 
 def _oxygen_shortfall(plant: ResolvedPlant, zone, airflow_Sm3_h: float, period: int, do_low_mg_L: float) -> float:

@@ -426,7 +426,7 @@ def summary_figures(summary: dict) -> dict:
         "nh4_max_margin_mg_L": limit_margin(lim.get("nh4_max_mg_L"), eff.get("nh4_max_mg_L")),
         "tn_mean_margin_mg_L": limit_margin(lim.get("tn_mean_mg_L"), eff.get("tn_mean_mg_L")),
         "min_do_margin_mg_L": summary.get("min_do_margin_mg_L"),
-        "ipopt_s": timings.get("ipopt_s"),
+        "ipopt_s": timings.get("ipopt_s"), "ipopt_cpu_s": timings.get("ipopt_cpu_s"),
         "message": "; ".join(summary.get("messages") or []) or None,
     }
 

@@ -525,8 +525,21 @@ FIGURES: tuple[tuple[str, str, Callable], ...] = (
 
 
 def figure_png(fig, dpi: int = 100) -> bytes:
-    """Render and close a figure; PNG bytes (no timestamp in the metadata, so reruns give equal bytes)."""
+    """Render and close a figure; PNG bytes (no timestamp in the metadata, so reruns give equal bytes).
+
+    A figure with a layout engine (constrained layout) gets its layout once, here, and is then drawn once:
+    ``savefig`` would draw the whole figure a second time (with the output disabled) only to lay it out. The
+    layout is the same (the same engine at the same resolution), and so are the bytes; about a third of the
+    report's figure time.
+    """
     plt = _plt()
+    engine = fig.get_layout_engine()
+    if engine is not None and dpi == fig.dpi:
+        import matplotlib
+
+        engine.execute(fig)
+        with matplotlib.rc_context({"figure.autolayout": False, "figure.constrained_layout.use": False}):
+            fig.set_layout_engine(None)  # laid out: savefig draws once
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=dpi, metadata={"Software": None})
     plt.close(fig)

@@ -228,8 +228,10 @@ class System:
         exceeds the feed's settling velocity (solids carried over the weir), or the blanket reaches
         the feed layer (in a steady state the solids an overloaded thickening zone cannot pass pile
         up until they do), or the effluent alone loses solids faster than the target SRT allows
-        (``srt_held`` False: no sludge is wasted and the SRT falls short), with ``message`` in plain
-        words.
+        (``srt_held`` False: no sludge is wasted and the SRT falls short; ``srt_target_d`` is None for a
+        fixed waste flow), with ``message`` in plain words. ``effluent_tss_g_m3`` and
+        ``effluent_solids_share``: the effluent's solids and their share of the solids leaving the
+        plant (effluent and waste; above 0.5 the clarifier, not the waste flow, sets the sludge age).
         """
         if not self.layered:
             return None
@@ -254,6 +256,8 @@ class System:
         over_rate = qe / A > v_feed
         over_blanket = 0 < blanket <= self.feed + 1
         srt, target = float(info["srt_d"]), inp.srt_target_d
+        over_weir, wasted = qe * X[0], float(info["q_waste_m3_d"]) * X[-1]
+        share = over_weir / max(over_weir + wasted, 1e-12)
         srt_held = target is None or srt >= 0.999 * target
         height = self.h * L
         msg = ""
@@ -280,7 +284,8 @@ class System:
                     applied_flux_g_m2_d=applied, limiting_flux_g_m2_d=g_lim, limiting_tss_g_m3=x_lim,
                     flux_ratio=applied / g_lim if g_lim > 0 else float("inf"),
                     overflow_rate_m_d=qe / A, feed_velocity_m_d=v_feed, height_m=height, srt_d=srt,
-                    srt_held=bool(srt_held), overloaded=bool(over_flux or over_rate or over_blanket or not srt_held),
+                    effluent_tss_g_m3=float(X[0]), effluent_solids_share=float(share),
+                    srt_target_d=target, srt_held=bool(srt_held), overloaded=bool(over_flux or over_rate or over_blanket or not srt_held),
                     message=msg)
 
     # --- balances -------------------------------------------------------------

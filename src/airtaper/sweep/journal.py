@@ -39,7 +39,8 @@ RESULT_COLUMNS = (
     "demand_charge_per_day", "start_costs_per_day", "peak_kW", "baseline_energy_kWh_per_day",
     "baseline_cost_per_day", "saving_percent", "cost_saving_percent", "compliant", "verified",
     "nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L", "nh4_mean_margin_mg_L", "nh4_max_margin_mg_L",
-    "tn_mean_margin_mg_L", "min_do_margin_mg_L", "ipopt_s", "run_s", "message", "folder",
+    "tn_mean_margin_mg_L", "min_do_margin_mg_L", "ipopt_s", "ipopt_cpu_s", "run_s", "run_cpu_s", "message",
+    "folder",
 )
 
 
