@@ -57,8 +57,8 @@ rounds: the step, not the points, misses the DO. (c) A round whose re-solve fail
 the minimum alone). After the rounds, a schedule not verified or whose DO minimum is still more
 than :data:`TARGET_mg_L` short is solved again on the finer steps (``refine_reason`` says which
 rule; a round that stops by (b) with the minimum already held to :data:`TARGET_mg_L` and the verification
-passed is kept: no refined study). Rule (b) ends the rounds on any steps, coarse or not: without it, rounds on
-an excursion that does not move spent every round's re-solve. Back-off rounds on the coarse model cost a warm re-solve of the coarse problem each; the
+passed is kept: no refined study). On short steps a round that does not shrink the excursion at all ends the
+rounds: without it, rounds on an excursion that does not move spent every round's re-solve. Back-off rounds on the coarse model cost a warm re-solve of the coarse problem each; the
 refined study is 4-8 times larger and starts cold in its dual (on the robustness benchmark's
 4-zone layered plants, about 4 CPU s per iteration against their 0.05-0.14 mg/L excursions). On
 three tanks with six 4-hour periods of one step, two coarse rounds took the minimum from 0.086
@@ -117,11 +117,12 @@ DAMPED_TRIES = 2
 #: 1.99 mg/L where the simulator had 1.29); the 4-zone layered plants of the robustness benchmark by
 #: 0.05-0.14 mg/L, which back-off rounds on the coarse steps take (module notes).
 LARGE_mg_L = 0.25
-#: A round whose largest excursion is not below SHRINK times the round before's ends the back-off there, on
-#: any model steps (the back-off does not act where the DO leaves its range; on coarse steps the model's step,
-#: not its points, is what misses the DO, and the study is solved again on finer ones unless the minimum is
-#: held to :data:`TARGET_mg_L` already); common practice (no source) for a fixed-point iteration that should
-#: contract.
+#: Coarse model steps: a round whose largest excursion is not below SHRINK times the round before's ends the
+#: back-off there (the model's step, not its points, is what misses the DO, and the study is solved again on
+#: finer ones unless the minimum is held to :data:`TARGET_mg_L` already); common practice (no source) for a
+#: fixed-point iteration that should contract. On short steps (no finer study to fall back on) the rounds end
+#: when a round does not shrink the excursion at all: on the demo (24 one-hour periods) round 1 took it from
+#: 0.029 to 0.024 mg/L (0.83 x) and round 2 held it to 0.005.
 SHRINK = 0.8
 #: Model step (h) of a study solved again when the back-off on longer steps cannot hold the
 #: DO range (module notes): the demo's own step, where the back-off is known to converge.
@@ -300,10 +301,12 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
         if coarse and now > LARGE_mg_L:
             why = f"an excursion of {now:.3f} mg/L (more than {LARGE_mg_L:g}: the step, not the points)"
             break
-        if worst is not None and now > SHRINK * worst:
-            # on any steps: a round that does not shrink the excursion will not be followed by one that does
-            # (the back-off does not act where the DO leaves its range); coarse steps are then solved again
-            why = f"the excursion went from {worst:.3f} to {now:.3f} mg/L in a round (not below {SHRINK:g} x)"
+        if worst is not None and (now > SHRINK * worst if coarse else now >= worst):
+            # coarse steps: a round that does not shrink the excursion below SHRINK x is the step's error, and the
+            # study is solved again on finer steps; on short steps (no such fallback) a round that does not shrink
+            # it at all ends the rounds: the back-off does not act where the DO leaves its range
+            why = (f"the excursion went from {worst:.3f} to {now:.3f} mg/L in a round (not below "
+                   + (f"{SHRINK:g} x)" if coarse else "the round before's)"))
             stalled = True
             break
         worst = now
