@@ -206,10 +206,10 @@ def test_flux_peak_is_where_the_gravity_flux_is_largest(v0_max, v0, rh, rp_over_
     f = _hard_flux(x, x_min, v0_max, v0, rh, rp)
     x_peak = float(flux_peak_tss_g_m3(x_min, v0_max, v0, rh, rp))
     f_peak = float(_hard_flux(x_peak, x_min, v0_max, v0, rh, rp))
-    # no grid point carries more, to within what the smooth maximum with the clamp's end (width 1e-3 x_c)
-    # costs where the maximum is kinked (measured <= 3.5e-7 of the flux over 300 draws); an X_M 1 % off a
-    # flat maximum costs ~5e-5
-    assert f_peak >= f.max() * (1 - 2e-6)
+    # no grid point carries more, to within what X_M's one chord step in Xmin and the smooth maximum with
+    # the clamp's end (width 1e-3 x_c) cost (measured <= 1.2e-6 of the flux over 300 draws of these
+    # ranges); an X_M 1 % off a flat maximum costs ~5e-5
+    assert f_peak >= f.max() * (1 - 5e-6)
     assert x_peak == pytest.approx(x[np.argmax(f)], rel=2e-3)
 
 

@@ -156,11 +156,16 @@ def flux_peak_tss_g_m3(tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g):
     With ``x = X - Xmin`` and the unclamped velocity ``u(x) = v0 (e^-rh x - e^-rp x)``, the flux
     ``u(x) (x + Xmin)`` is largest where ``g(x) = u'(x) (x + Xmin) + u(x) = 0``; no closed form.
     Its root ``x0`` for ``Xmin = 0`` is found once per parameter set (a bracketed root,
-    :func:`_flux_peak_at_no_floor`), then two Newton steps on ``g`` from ``x0`` with the actual
-    ``Xmin`` are written out, so the same formula is a Pyomo expression of ``Xmin`` in the model.
-    Measured against a 0.01 g/m3 grid with BSM1's parameters: at most 0.02 g/m3 off for
-    ``Xmin <= 100`` g/m3 (BSM1: ``fns X_f`` ~ 7) and 1.2 g/m3 at 300. The flux is flat at its maximum,
-    so such an error changes the fluxes only by ``|f''| err^2 / 2`` (< 1e-4 g/(m2 d) at 0.02).
+    :func:`_flux_peak_at_no_floor`), then one chord step on ``g`` from ``x0`` with the actual
+    ``Xmin`` and the slope ``g'(x0)`` of ``Xmin = 0``: ``x* ~ x0 - u'(x0) Xmin / g'(x0)``, linear in
+    ``Xmin`` (its first-order change; a Newton step has ``Xmin`` in its denominator, which turns
+    sign for large ``Xmin``, and a second step nests exponentials of ``Xmin`` that every flux
+    between layers repeats dozens of times in Pyomo's expression tree). Measured against a
+    bracketed root with BSM1's parameters: 0.004, 0.07, 0.44, 1.8 and 17 g/m3 off for ``Xmin`` = 5,
+    20, 50, 100 and 300 g/m3 (BSM1: ``fns X_f`` ~ 7; about 0.6 at 50 and 2.4 at 100 for rh 1e-3,
+    rp 7e-3). The flux is flat at its maximum, so such an error changes the fluxes by ``|f''|
+    err^2 / 2`` (``|f''|`` ~ 0.1 for BSM1: < 0.2 g/(m2 d) against ~3e5 at 1.8 g/m3) and leaves a
+    slope of ``f'' err`` (< 0.2 m/d against ~200 m/d) where the cap sets in.
     Where the velocity is clamped at ``v0'`` over the unclamped maximum (``x* < x_c``, the clamp's
     end on the falling side), ``f = v0' X`` still rises up to ``x_c``, so the maximum is at ``x_c``:
     ``X_M = Xmin + max(x*, x_c)``, a smooth maximum of width :data:`PEAK_RELATIVE_WIDTH` ``x_c``.
@@ -168,16 +173,12 @@ def flux_peak_tss_g_m3(tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g):
     x0, x_c = _flux_peak_at_no_floor(float(v0_max_m_d), float(v0_m_d), float(rh_m3_g), float(rp_m3_g))
     if x0 == 0.0:
         return tss_min_g_m3 + 0.0
-    rh, rp, v0 = rh_m3_g, rp_m3_g, v0_m_d
-    x = x0
-    for _ in range(2):
-        e_h, e_p = exp(-rh * x), exp(-rp * x)
-        u = v0 * (e_h - e_p)
-        du = v0 * (-rh * e_h + rp * e_p)
-        d2u = v0 * (rh**2 * e_h - rp**2 * e_p)
-        g = du * (x + tss_min_g_m3) + u
-        dg = d2u * (x + tss_min_g_m3) + 2.0 * du
-        x = x - g / dg
+    rh, rp, v0 = float(rh_m3_g), float(rp_m3_g), float(v0_m_d)
+    e_h, e_p = np.exp(-rh * x0), np.exp(-rp * x0)
+    du = v0 * (-rh * e_h + rp * e_p)
+    d2u = v0 * (rh**2 * e_h - rp**2 * e_p)
+    # one chord step from x0: g(x0) = u'(x0) Xmin (g vanishes there for Xmin = 0), g' at Xmin = 0 (< 0)
+    x = x0 - du * tss_min_g_m3 / (d2u * x0 + 2.0 * du)
     if x_c > 0.0:
         x = smooth_max(x, x_c, PEAK_RELATIVE_WIDTH * x_c)
     return tss_min_g_m3 + x
