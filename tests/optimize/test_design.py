@@ -387,6 +387,12 @@ def test_payback_against_a_current_grid_that_fails_a_day():
     assert comp["net_present_value"] == pytest.approx(net_present_value(extra, saving, 0.05, 15.0))
     assert comp["payback_years"] == pytest.approx(simple_payback_years(extra, saving), rel=1e-9)
     assert any("current grid cannot meet load day(s) peak" in m for m in s["messages"])
+    # the report and the console say on which days the figures stand
+    from airtaper.report.design import design_console, design_html
+
+    assert "it cannot meet peak" in design_console(s)
+    assert "The current grid cannot meet every load day" in design_html(s, result.zones, result.days, {},
+                                                                          result.binding)
 
 
 @pytest.mark.solver

@@ -64,11 +64,19 @@ What holds each zone
     minimum; mixing: the mixing minimum), beside each day's value of one more diffuser.
 
 Verification and economics
-    The chosen grid's schedule of every day is re-simulated by the independent simulator
+    The chosen grid's schedule of every day is held inside its DO range by ``optimize``'s
+    back-off, with its rule for coarse model steps, and solved again on finer steps for that
+    grid where the rounds cannot hold it (:meth:`GridDesign.verify`); the schedule reported is
+    the one re-simulated by the independent simulator
     (:func:`airtaper.optimize.verify.verify_day`). The layout's current grid is evaluated
     the same way (counts fixed) for the comparison: payback = extra capital / annual
     saving, net present value of the saving over the grid's life at the interest rate
-    minus the extra capital (capital of a grid = the cost of installing it new).
+    minus the extra capital (capital of a grid = the cost of installing it new). A current
+    grid that cannot meet a load day is compared on the days it meets, the same days on
+    both sides, and the day and limit it breaks are named: a grid that breaks a limit on a
+    day has no energy cost there to save from (its operation would be a different plant's),
+    and leaving the day out of both sides states what the retrofit saves where both grids
+    run within the limits.
 """
 
 from __future__ import annotations
@@ -1075,6 +1083,8 @@ def run_design(layout: ResolvedPlant | Layout, options: DesignOptions | None = N
                       "energy_saving_kWh_per_year": current_tot["energy_kWh_per_year"] - same["energy_kWh_per_year"],
                       "payback_years": simple_payback_years(extra, saving),
                       "net_present_value": net_present_value(extra, saving, cap.interest_rate, cap.life_years),
+                      "design_energy_cost_per_year_compared": same["energy_cost_per_year"],
+                      "design_energy_kWh_per_year_compared": same["energy_kWh_per_year"],
                       "load_days_compared": [d.id for d in compared],
                       "days_per_year_compared": float(sum(d.days_per_year for d in compared)),
                       "load_days_not_met_by_current": not_met}
