@@ -347,7 +347,8 @@ def test_coarse_steps_get_optimizes_back_off_rule_and_a_refined_day(monkeypatch)
 
     monkeypatch.setattr(module, "hold_do", held)
     result = run_design(_small(), OPTIONS)
-    assert calls == [True, True]  # 4-hour periods of two steps: 2-hour steps are coarse
+    # 4-hour periods of two steps: 2-hour steps are coarse; the peak day solved again is held on its 0.5-hour steps
+    assert calls == [True, True, False]
     g = result.design
     steps = {d.id: model_steps_per_period(st.plant, st.options) for d, st in zip(g.days, g.studies)}
     assert steps == {"average": 2, "peak": int(4 / REFINED_STEP_H)}
