@@ -323,6 +323,11 @@ def test_the_designed_grid_passes_every_days_verification():
     # the peak day needs more air than the average day on the same grid
     assert days.loc["peak", "energy_kWh_per_day_design"] > days.loc["average", "energy_kWh_per_day_design"]
     assert set(result.schedule["load_day"]) == {"average", "peak"}
+    # designed on 6 periods, the days are solved again on the layout's own 24 for the chosen grid, and those
+    # schedules (held and re-simulated) are the ones reported
+    assert (result.schedule.groupby(["load_day", "zone"]).size() == 24).all()
+    assert result.design.refined == {"average": "on the layout's 24 periods", "peak": "on the layout's 24 periods"}
+    assert sum("the schedule reported is solved on the layout's 24 periods" in m for m in s["messages"]) == 2
 
 
 @pytest.mark.solver
@@ -346,15 +351,15 @@ def test_coarse_steps_get_optimizes_back_off_rule_and_a_refined_day(monkeypatch)
         return out
 
     monkeypatch.setattr(module, "hold_do", held)
-    result = run_design(_small(), OPTIONS)
+    result = run_design(_small(), replace(OPTIONS, verify_layout_periods=False))
     # 4-hour periods of two steps: 2-hour steps are coarse; the peak day solved again is held on its 0.5-hour steps
     assert calls == [True, True, False]
     g = result.design
     steps = {d.id: model_steps_per_period(st.plant, st.options) for d, st in zip(g.days, g.studies)}
     assert steps == {"average": 2, "peak": int(4 / REFINED_STEP_H)}
-    assert g.refined == {"peak": REFINED_STEP_H}
+    assert g.refined == {"peak": f"on {REFINED_STEP_H:g}-hour model steps"}
     assert result.exit_code == 0 and list(result.days["verified"]) == [True, True]
-    assert any("peak: solved on 0.5-hour model steps" in m for m in result.summary["messages"])
+    assert any("peak: the schedule reported is solved on 0.5-hour model steps" in m for m in result.summary["messages"])
     # the schedule reported is the refined study's, for the designed counts
     peak = result.schedule[result.schedule["load_day"] == "peak"]
     st = g.studies[1]
