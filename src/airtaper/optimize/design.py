@@ -1063,6 +1063,8 @@ def run_design(layout: ResolvedPlant | Layout, options: DesignOptions | None = N
         messages.append("no whole-count grid near the continuous optimum meets every load day's limits")
         return _no_design(g, base, "infeasible", messages, t0)
     g.load(best.counts)
+    # the designed grid's days as the search solved them, on the design's periods: the current grid's basis
+    searched_rows = _day_rows(g, "design")
     verification = g.verify(best.counts) if g.options.verify else None  # the DO held first: the days' schedules
     messages.extend(g.notes)
     design_rows = _day_rows(g, "design")
@@ -1116,7 +1118,9 @@ def run_design(layout: ResolvedPlant | Layout, options: DesignOptions | None = N
         compared = [g.days[i] for i in met]
         current_tot = totals(current_rows, "current", g.current, compared)
         current_tot["load_days_not_met"] = not_met
-        same = totals(design_rows, "design", best.counts, compared)
+        # both grids as the search solved them (the design's periods, the model's optimum): like with like, also
+        # when the designed grid's days were solved again on the layout's periods for the verification
+        same = totals(searched_rows, "design", best.counts, compared)
         extra = design_tot["capital"] - current_tot["capital"]
         saving = current_tot["energy_cost_per_year"] - same["energy_cost_per_year"]
         comparison = {"extra_capital": extra, "energy_saving_per_year": saving,
@@ -1125,6 +1129,7 @@ def run_design(layout: ResolvedPlant | Layout, options: DesignOptions | None = N
                       "net_present_value": net_present_value(extra, saving, cap.interest_rate, cap.life_years),
                       "design_energy_cost_per_year_compared": same["energy_cost_per_year"],
                       "design_energy_kWh_per_year_compared": same["energy_kWh_per_year"],
+                      "periods": g.plant.n_periods,
                       "load_days_compared": [d.id for d in compared],
                       "days_per_year_compared": float(sum(d.days_per_year for d in compared)),
                       "load_days_not_met_by_current": not_met}
