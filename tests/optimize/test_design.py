@@ -308,7 +308,9 @@ def test_dearer_diffusers_never_raise_the_chosen_count(solved):
 @pytest.mark.solver
 @pytest.mark.slow
 def test_the_designed_grid_passes_every_days_verification():
-    result = run_design(_small(), OPTIONS)
+    d = _small_data()
+    d["load_days"][1]["water_temperature_C"] = 15.0  # a day's own per-period values, verified on the layout's grid
+    result = run_design(parse_layout(d, str(LAYOUTS / "small.toml"), LAYOUTS), OPTIONS)
     assert result.exit_code == 0 and result.summary["status"] == "optimal"
     assert list(result.days["verified"]) == [True, True]
     s = result.summary

@@ -907,7 +907,9 @@ class GridDesign:
                 continue
             st.result = r
             if self.options.verify_layout_periods and self.source.horizon.n_periods != plant.n_periods:
-                own = with_diffuser_counts(resolve_plant(day_layout(self.source, day)), counts)
+                # the day as the layout gives it (its per-period values on the layout's own periods)
+                own_day = next(d for d in layout_days(self.source) if d.id == day.id)
+                own = with_diffuser_counts(resolve_plant(day_layout(self.source, own_day)), counts)
                 fine = self._resolve_day(i, own, None, f"on the layout's {own.n_periods} periods",
                                          f"the design's {plant.n_periods} periods")
                 if fine is not None:
