@@ -318,3 +318,19 @@ def test_day_extrapolation_waits_while_the_steps_turn_or_grow():
     for k in range(6):  # a growing step (ratio above 1): no jump
         assert speed.factor(y, y + 1.2 ** k) == 0.0
         y = y + 1.2 ** k
+
+
+def test_dense_and_sparse_factorisation_give_the_same_day(monkeypatch):
+    """A small plant's Jacobian is factorised dense (:data:`~airtaper.simulate.run.DENSE_LU_MAX_STATES`): the
+    day is the one the sparse factorisation gives, to round-off, in the same solver steps."""
+    import airtaper.simulate.run as run
+
+    lay = load_layout("layouts/three_tank.toml")
+    days = {}
+    for limit in (0, 10_000):  # sparse, then dense
+        monkeypatch.setattr(run, "DENSE_LU_MAX_STATES", limit)
+        days[limit] = simulate.periodic(lay, do_setpoint_mg_L=2.0, max_days=1, extrapolate=False)
+    sparse, dense = days[0], days[10_000]
+    assert sparse.quadrature.time_h.size == dense.quadrature.time_h.size
+    np.testing.assert_allclose(dense.y_end, sparse.y_end, rtol=1e-9, atol=1e-9)
+    np.testing.assert_allclose(dense.quadrature.airflow_Sm3_h, sparse.quadrature.airflow_Sm3_h, rtol=1e-9)

@@ -32,14 +32,19 @@ def _dense_fd(system, y, inp):
     return J
 
 
-def test_grouped_jacobian_equals_dense_differences(bsm1_layered, bsm1_ideal):
-    rng = np.random.default_rng(1)
+def _states(bsm1_layered, bsm1_ideal, seed):
+    """(name, system, inputs of period 4, a state near the initial guess) of every setup."""
+    rng = np.random.default_rng(seed)
     for name, lay, sp_ in _setups(bsm1_layered, bsm1_ideal):
         plant = PlantData(lay)
         system = System(plant)
         air, sp = resolve_aeration(lay, None, sp_)
         inp = plant.inputs(3, air[3], sp)
-        y = initial_guess(system, inp) * rng.uniform(0.7, 1.3, system.n)
+        yield name, system, inp, initial_guess(system, inp) * rng.uniform(0.7, 1.3, system.n)
+
+
+def test_grouped_jacobian_equals_dense_differences(bsm1_layered, bsm1_ideal):
+    for name, system, inp, y in _states(bsm1_layered, bsm1_ideal, 1):
         J = system.jacobian(y, inp).toarray()
         D = _dense_fd(system, y, inp)
         scale = np.maximum(np.abs(D), 1e-3 * np.abs(D).max(axis=1, keepdims=True) + 1e-9)
@@ -121,3 +126,27 @@ def test_small_clarifier_is_reported_overloaded_in_plain_words():
     assert c["message"].startswith("clarifier overloaded at the mean load")
     assert "(" not in c["message"].split(":")[0] and "Profile" not in c["message"]
     assert c["tss_g_m3"][0] > 50.0
+
+
+def test_rhs_with_balance_carries_the_net_inflows_of_balance(bsm1_layered, bsm1_ideal):
+    """The day's integrand (state derivative, net COD and N inflows) is the right-hand side and
+    :meth:`System.balance` of the same state, to the last bit."""
+    for name, system, inp, y in _states(bsm1_layered, bsm1_ideal, 3):
+        z = np.concatenate((y, [5.0, 7.0]))  # the accumulators do not enter their own rates
+        out = system.rhs_with_balance(z, inp)
+        b = system.balance(y, inp)
+        np.testing.assert_array_equal(out[:system.n], system.rhs(y, inp), err_msg=name)
+        assert (out[system.n], out[system.n + 1]) == (b["cod_net"], b["n_net"]), name
+
+
+def test_derived_inputs_follow_a_replaced_waste_flow(bsm1_ideal):
+    """What the right-hand side caches of an ``Inputs`` is not carried into a copy with another waste flow
+    (the periodic day replaces the waste flow day by day)."""
+    plant = PlantData(bsm1_ideal)
+    system = System(plant)
+    inp = plant.inputs(0)
+    y = initial_guess(system, inp)
+    q0 = float(system.rhs(y, inp, detail=True)[1]["q_waste_m3_d"])
+    other = dataclasses.replace(inp, q_waste=0.5 * q0)
+    assert float(system.rhs(y, other, detail=True)[1]["q_waste_m3_d"]) == 0.5 * q0
+    assert float(system.rhs(y, inp, detail=True)[1]["q_waste_m3_d"]) == q0

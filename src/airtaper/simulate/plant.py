@@ -55,6 +55,9 @@ class Inputs:
     kla_max_per_d: np.ndarray
     airflow_Sm3_h: np.ndarray  # scheduled airflow (MODE_FIXED diffused zones), else 0
     tables: tuple[TransferTable | None, ...] = field(default=())
+    #: what the right-hand side derives from these inputs once (:meth:`airtaper.simulate.system.System.rhs`);
+    #: not an init field, so ``dataclasses.replace`` starts a new, empty one
+    derived: dict = field(default_factory=dict, init=False, repr=False, compare=False)
 
 
 def _network(plant: ResolvedPlant, k: int | None):

@@ -4,7 +4,7 @@
 root solve (:mod:`airtaper.simulate.steady`). :func:`periodic` starts from
 that steady state and simulates whole days with a stiff solver
 (``scipy.integrate.solve_ivp``, BDF, with the sparse grouped-difference
-Jacobian) until the state at the end of a day matches the state at its start
+Jacobian, factorised dense for a small plant) until the state at the end of a day matches the state at its start
 within ``tol``; inputs are constant within each period (influent, flows,
 temperature, airflow or DO setpoint), so every period is integrated on its own
 and no discontinuity falls inside a solver step.
@@ -471,6 +471,10 @@ def _daily_waste_for_srt(system: System, inputs, records, srt_target_d: float) -
     return float(max(q, 0.0))
 
 
+#: Largest system (states including the two accumulators) whose Jacobian BDF factorises dense.
+DENSE_LU_MAX_STATES = 120
+
+
 def _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod, wn):
     """One day, period by period.
 
@@ -486,6 +490,9 @@ def _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod
     zero_col = sps.csc_matrix((n, 2))
     zero_corner = sps.csc_matrix((2, 2))
     first_step = None
+    # A small system's Jacobian is factorised dense (LAPACK): for a few hundred states that costs less
+    # than the sparse factorisation's setup, and BDF takes the same steps either way.
+    dense_lu = n + 2 <= DENSE_LU_MAX_STATES
     # The two accumulators (net COD and N inflow, g) are differences of large flows, so their
     # rates carry round-off of about 1e-9 of the daily inflow; their absolute tolerance is set
     # relative to that inflow so they never drive the step size. (The closure itself does not
@@ -496,12 +503,16 @@ def _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod
         t0, t1 = k * period_d, (k + 1) * period_d
 
         def fun(t, zz, inp=inp):
-            f, info = system.rhs(zz[:n], inp, detail=True)
-            b = system.balance(zz[:n], inp, info)
-            return np.concatenate((f, [b["cod_net"], b["n_net"]]))
+            return system.rhs_with_balance(zz, inp)
 
         def jac(t, zz, inp=inp):
             J = system.jacobian(zz[:n], inp)
+            if dense_lu:
+                full = np.zeros((n + 2, n + 2))
+                full[:n, :n] = J.toarray()
+                full[n, :n] = wcod @ J
+                full[n + 1, :n] = wn @ J
+                return full
             rows = sps.csc_matrix(np.vstack((wcod @ J, wn @ J)))
             return sps.bmat([[J, zero_col], [rows, zero_corner]], format="csc")
 
@@ -565,6 +576,9 @@ class DayQuadrature:
                          for k in range(n)])
 
 
+_QUADRATURE_COLUMNS = (*ASM1_COMPONENTS, *EFFLUENT_COLUMNS, "q_influent_m3_d", "q_effluent_m3_d", "q_waste_m3_d", "srt_d")
+
+
 def day_quadrature(system: System, inputs, dense, nodes: int = QUADRATURE_NODES) -> DayQuadrature:
     """The day at ``nodes`` Gauss-Legendre nodes of every solver step (see :class:`DayQuadrature`)."""
     x, w = np.polynomial.legendre.leggauss(nodes)
@@ -581,14 +595,15 @@ def day_quadrature(system: System, inputs, dense, nodes: int = QUADRATURE_NODES)
         ce = info["c_effluent"]
         q = effluent_quantities(ce.T, inp.params, system.tss_per_cod)
         m = t.size
-        frame = pd.DataFrame(ce.T, columns=list(ASM1_COMPONENTS))
-        for c in EFFLUENT_COLUMNS:
-            frame[c] = q[c]
-        frame["q_influent_m3_d"] = inp.q_influent
-        frame["q_effluent_m3_d"] = np.broadcast_to(info["q_effluent_m3_d"], (m,))
-        frame["q_waste_m3_d"] = np.broadcast_to(info["q_waste_m3_d"], (m,))
-        frame["srt_d"] = info["srt_d"]
-        eff_rows.append(frame)
+        rows = np.empty((m, len(_QUADRATURE_COLUMNS)))  # one frame at the end: far cheaper than a frame per period
+        rows[:, :NC] = ce.T
+        for j, c in enumerate(EFFLUENT_COLUMNS):
+            rows[:, NC + j] = q[c]
+        rows[:, -4] = inp.q_influent
+        rows[:, -3] = info["q_effluent_m3_d"]
+        rows[:, -2] = info["q_waste_m3_d"]
+        rows[:, -1] = info["srt_d"]
+        eff_rows.append(rows)
         B = system.blocks(Y)
         so.append(B[:nz, IDX["SO"]].T)
         air.append(system.airflow_Sm3_h(inp, info["kla_per_d"]).T)
@@ -598,7 +613,7 @@ def day_quadrature(system: System, inputs, dense, nodes: int = QUADRATURE_NODES)
         k_all.append(np.full(m, k))
     t = np.concatenate(t_all)
     weight = np.concatenate(w_all)
-    eff = pd.concat(eff_rows, ignore_index=True)
+    eff = pd.DataFrame(np.concatenate(eff_rows), columns=list(_QUADRATURE_COLUMNS))
     eff.insert(0, "time_h", t * units.HOURS_PER_DAY)
     return DayQuadrature(time_h=t * units.HOURS_PER_DAY, weight=weight / weight.sum(), period=np.concatenate(k_all),
                          effluent=eff, do=np.concatenate(so), airflow_Sm3_h=np.concatenate(air),

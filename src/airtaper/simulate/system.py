@@ -16,15 +16,16 @@ bulk flow up (``v_up = Q_e/A``) above the feed and down (``v_dn = Q_u/A``)
 below it; gravity flux of solids between layer ``i`` and the one below
 ``i+1``::
 
-    J = min(vs_i X_i, vs_i+1 X_i+1)                   at and below the feed layer
-    J = vs_i X_i  if X_i+1 <= X_t  else  the same min  above the feed layer
+    J = min(f(min(X_i, X_M)), f(max(X_i+1, X_M)))       at and below the feed layer
+    J = f(X_i)  if X_i+1 <= X_t  else  the same min      above the feed layer
+    f(X) = vs(X) X,  X_M where f is largest,
     vs(X) = max(0, min(v0', v0 (exp(-rh (X - X_min)) - exp(-rp (X - X_min))))),
     X_min = fns X_feed
 
-with ``min``, ``max`` and the switch smoothed exactly as in the Pyomo model: both compute the
-fluxes with :func:`airtaper.physics.settling.gravity_flux_g_m2_d` and
-:func:`~airtaper.physics.settling.interface_flux_g_m2_d` (a smooth minimum whose width scales
-with the fluxes; see there how far it moves the result).
+(the Godunov flux of Bürger, Diehl & Nopens 2011; for a concentration rising downwards it is
+Takacs' ``min(f(X_i), f(X_i+1))``), with ``min``, ``max`` and the switch smoothed exactly as in
+the Pyomo model: both compute the fluxes with the functions of :mod:`airtaper.physics.settling`
+(see there the sources and how far the smoothing moves the result).
 
 with X the suspended solids (``tss_per_cod`` times the particulate COD).
 Each particulate component moves with the solids flux in proportion to its
@@ -61,7 +62,8 @@ import scipy.sparse as sp
 from airtaper import units
 from airtaper.layout.types import ASM1_COMPONENTS
 from airtaper.physics.settling import (
-    gravity_flux_g_m2_d, interface_flux_g_m2_d, limiting_solids_flux_g_m2_d, takacs_velocity_m_d,
+    flux_peak_tss_g_m3, gravity_flux_g_m2_d, interface_flux_g_m2_d, limiting_solids_flux_g_m2_d,
+    receiving_flux_g_m2_d, sending_flux_g_m2_d, takacs_velocity_m_d,
 )
 from airtaper.process.stoichiometry import (
     IDX, PARTICULATES, SOLIDS_COD, cod_composition, cod_of_n2, n2_yield, n_composition,
@@ -73,6 +75,9 @@ NC = len(ASM1_COMPONENTS)
 PART = np.array([IDX[k] for k in PARTICULATES])
 COD_PART = np.array([IDX[k] for k in SOLIDS_COD])
 SO = IDX["SO"]
+#: COD_PART as a slice (the solids' COD components are adjacent in ASM1's order): a view, not a copy
+_COD_PART_SLICE = slice(int(COD_PART[0]), int(COD_PART[-1]) + 1)
+assert np.array_equal(np.arange(13)[_COD_PART_SLICE], COD_PART)
 #: Time constant of the ideal DO control response, d (1 minute).
 TAU_DO_d = 1.0 / 1440.0
 #: Smallest driving force used when solving the DO-control kLa, mg/L.
@@ -113,13 +118,46 @@ class System:
 
     def tss(self, c) -> np.ndarray:
         """Suspended solids of concentrations with the component axis first."""
-        return self.tss_per_cod * np.asarray(c)[COD_PART].sum(axis=0)
+        return self.tss_per_cod * np.asarray(c)[_COD_PART_SLICE].sum(axis=0)
 
     # --- right-hand side ----------------------------------------------------
+    def _derived(self, inp: Inputs) -> dict:
+        """What the right-hand side needs of ``inp`` beyond the state, computed once per ``inp``.
+
+        The same quantities the right-hand side would otherwise derive at every call, shaped for
+        broadcasting over the columns ``m`` (the grouped Jacobian's); cached in ``inp.derived``.
+        """
+        d = inp.derived
+        if d:
+            return d
+        nz = self.nz
+        ctl = np.flatnonzero(inp.mode == MODE_DO)
+        p = inp.params
+        d.update(
+            V=self.V[:, None],
+            feed=inp.q_feed[None, :, None] * inp.c_influent[:, None, None],  # (13, nz, 1)
+            q_in=inp.q_in_total[None, :, None],
+            V_z=self.V[None, :, None],
+            ctl=ctl,
+            sp=inp.do_setpoint_mg_L[ctl, None],
+            kla_min=inp.kla_min_per_d[ctl, None],
+            kla_max=inp.kla_max_per_d[ctl, None],
+            sat=inp.do_sat_mg_L[:, None],
+            sat_ctl=inp.do_sat_mg_L[ctl, None],
+            kla=inp.kla_per_d[:, None],
+            cod=cod_composition(p), nn=n_composition(p), n2=n2_yield(p), cod_n2=cod_of_n2(p),
+            q_waste=None if inp.q_waste is None else float(inp.q_waste),
+        )
+        d["cod_in"] = inp.q_influent * float(d["cod"] @ inp.c_influent)
+        d["n_in"] = inp.q_influent * float(d["nn"] @ inp.c_influent)
+        d["nz"] = nz
+        return d
+
     def rhs(self, y, inp: Inputs, detail: bool = False):
         """Time derivative (per day) of ``y``; with ``detail`` also a dict of flows and transfer."""
         y = np.asarray(y, dtype=float)
         one = y.ndim == 1
+        d = self._derived(inp)
         Y = y.reshape(self.nb, NC, -1)
         m = Y.shape[2]
         C = np.transpose(Y, (1, 0, 2))  # (13, nb, m)
@@ -136,10 +174,10 @@ class System:
             xu, xe = X[-1], X[0]
         else:
             xe = np.minimum(self.effluent_tss, xf)
-        if inp.q_waste is not None:
-            qw = np.full(m, float(inp.q_waste))
+        if d["q_waste"] is not None:
+            qw = np.full(m, d["q_waste"])
         else:
-            solids = (self.V[:, None] * tss_z).sum(axis=0) / inp.srt_target_d
+            solids = (d["V"] * tss_z).sum(axis=0) / inp.srt_target_d
             if self.layered:
                 qw = (solids - (qf - qr) * xe) / np.maximum(xu - xe, 1.0)
             else:
@@ -151,11 +189,15 @@ class System:
         if self.layered:
             A, f, L = self.area, self.feed, self.n_layers
             vup, vdn = qe / A, qu / A
-            js = gravity_flux_g_m2_d(X, self.fns * xf, self.v0max, self.v0, self.rh, self.rp)
+            settling = (self.fns * xf, self.v0max, self.v0, self.rh, self.rp)
+            xm = flux_peak_tss_g_m3(*settling)
+            send = sending_flux_g_m2_d(X[:-1], settling[0], xm, *settling[1:])
+            take = receiving_flux_g_m2_d(X[1:], settling[0], xm, *settling[1:])
             J = np.empty((L - 1, m))
-            J[f:] = interface_flux_g_m2_d(js[f:-1], js[f + 1:])
+            J[f:] = interface_flux_g_m2_d(send[f:], take[f:])
             if f > 0:
-                J[:f] = interface_flux_g_m2_d(js[:f], js[1:f + 1], X[1:f + 1], self.xt)
+                js = gravity_flux_g_m2_d(X[:f], *settling)
+                J[:f] = interface_flux_g_m2_d(send[:f], take[:f], X[1:f + 1], self.xt, js)
             frac = Cs[PART] / np.maximum(X, _TINY_X)
             F = J[None] * frac[:, :-1]
             dS = np.empty_like(Cs)
@@ -170,48 +212,76 @@ class System:
             cu = Cs[:, -1]
             ce = Cs[:, 0]
         else:
-            ratio = np.where(xf > 0.0, xe / np.maximum(xf, 1e-12), 0.0)
+            ratio = xe / np.maximum(xf, 1e-12) if np.all(xf > 0.0) else \
+                np.where(xf > 0.0, xe / np.maximum(xf, 1e-12), 0.0)
             ce = cf.copy()
             ce[PART] = cf[PART] * ratio
             cu = cf.copy()
             cu[PART] = (qf * cf[PART] - qe * ce[PART]) / qu
 
-        T = np.einsum("ij,kjm->kim", inp.flow_matrix, Cz)
-        T += inp.q_feed[None, :, None] * inp.c_influent[:, None, None]
-        T -= inp.q_in_total[None, :, None] * Cz
+        T = np.matmul(inp.flow_matrix, Cz)
+        T += d["feed"]
+        T -= d["q_in"] * Cz
         T[:, inp.return_to] += qr * cu
-        T /= self.V[None, :, None]
+        T /= d["V_z"]
         rho = process_rates(Cz, inp.params)
-        dz = T + np.tensordot(inp.nu_T, rho, axes=(1, 0))
+        dz = T + (inp.nu_T @ rho.reshape(rho.shape[0], -1)).reshape(T.shape)
 
         so = Cz[SO]
-        sat = inp.do_sat_mg_L[:, None]
-        kla = np.broadcast_to(inp.kla_per_d[:, None], (nz, m)).copy()
-        ctl = inp.mode == MODE_DO
-        if ctl.any():
-            sp_ = inp.do_setpoint_mg_L[ctl, None]
-            need = ((sp_ - so[ctl]) / TAU_DO_d - dz[SO, ctl]) / np.maximum(sat[ctl] - so[ctl], _MIN_DRIVING_FORCE)
-            kla[ctl] = np.clip(need, inp.kla_min_per_d[ctl, None], inp.kla_max_per_d[ctl, None])
+        sat = d["sat"]
+        ctl = d["ctl"]
+        if ctl.size:
+            kla = np.repeat(d["kla"], m, axis=1)
+            so_c = so[ctl]
+            need = ((d["sp"] - so_c) / TAU_DO_d - dz[SO, ctl]) / np.maximum(d["sat_ctl"] - so_c, _MIN_DRIVING_FORCE)
+            kla[ctl] = np.minimum(np.maximum(need, d["kla_min"]), d["kla_max"])
+        else:
+            kla = d["kla"]
         otr = kla * (sat - so)  # g O2/(m3 d)
         dz[SO] += otr
 
-        D = np.empty((NC, self.nb, m))
-        D[:, :nz] = dz
+        D = np.empty((self.nb, NC, m))
+        D[:nz] = dz.transpose(1, 0, 2)
         if self.layered:
-            D[:, nz:] = dS
-        out = np.transpose(D, (1, 0, 2)).reshape(self.n, m)
+            D[nz:] = dS.transpose(1, 0, 2)
+        out = D.reshape(self.n, m)
         if one:
             out = out[:, 0]
         if not detail:
             return out
+        if kla.shape[1] != m:
+            kla = np.repeat(kla, m, axis=1)
         sq = (lambda a: a[..., 0]) if one else (lambda a: a)
         xu_ = self.tss(cu)
         removal = qw * xu_ + qe * self.tss(ce)
-        srt = (self.V[:, None] * tss_z).sum(axis=0) / np.maximum(removal, 1e-12)
+        srt = (d["V"] * tss_z).sum(axis=0) / np.maximum(removal, 1e-12)
         info = dict(kla_per_d=sq(kla), otr_g_m3_d=sq(otr), c_underflow=sq(cu), c_effluent=sq(ce),
                     q_waste_m3_d=sq(qw), q_effluent_m3_d=sq(qe), q_underflow_m3_d=sq(qu), srt_d=sq(srt),
                     process_rates=sq(rho))
         return out, info
+
+    def rhs_with_balance(self, z, inp: Inputs) -> np.ndarray:
+        """The right-hand side of ``z = (y, COD accumulator, N accumulator)``: the state's derivative and
+        the net COD and N inflows of :meth:`balance` (g/d), for integrating the day's closure."""
+        n = self.n
+        f, info = self.rhs(z[:n], inp, detail=True)
+        cod_net, n_net = self._net_inflows(inp, info)
+        out = np.empty(n + 2)
+        out[:n] = f
+        out[n] = cod_net
+        out[n + 1] = n_net
+        return out
+
+    def _net_inflows(self, inp: Inputs, info: dict) -> tuple[float, float]:
+        d = self._derived(inp)
+        cod, nn = d["cod"], d["nn"]
+        n2 = float(self.V @ (d["n2"] @ info["process_rates"]))
+        qe, qw = float(info["q_effluent_m3_d"]), float(info["q_waste_m3_d"])
+        ce, cu = info["c_effluent"], info["c_underflow"]
+        cod_out = qe * float(cod @ ce) + qw * float(cod @ cu)
+        n_out = qe * float(nn @ ce) + qw * float(nn @ cu)
+        o2 = float(self.V @ info["otr_g_m3_d"])
+        return d["cod_in"] - cod_out - o2 - d["cod_n2"] * n2, d["n_in"] - n_out - n2
 
     # --- clarifier --------------------------------------------------------------
     def clarifier_profile(self, y, inp: Inputs) -> dict | None:
