@@ -308,14 +308,16 @@ def test_dearer_diffusers_never_raise_the_chosen_count(solved):
 @pytest.mark.solver
 @pytest.mark.slow
 def test_the_designed_grid_passes_every_days_verification():
-    result = run_design(_small(), OPTIONS)
+    d = _small_data()
+    d["load_days"][1]["water_temperature_C"] = 15.0  # a day's own per-period values, verified on the layout's grid
+    result = run_design(parse_layout(d, str(LAYOUTS / "small.toml"), LAYOUTS), OPTIONS)
     assert result.exit_code == 0 and result.summary["status"] == "optimal"
     assert list(result.days["verified"]) == [True, True]
     s = result.summary
     design, current, comp = s["design"], s["current"], s["comparison"]
     assert comp["extra_capital"] == pytest.approx(design["capital"] - current["capital"])
     assert comp["energy_saving_per_year"] == pytest.approx(current["energy_cost_per_year"]
-                                                           - design["energy_cost_per_year"])
+                                                           - comp["design_energy_cost_per_year_compared"])
     # weights: the year is 300 average days and 65 peak days
     days = result.days.set_index("load_day")
     assert design["energy_kWh_per_year"] == pytest.approx(300 * days.loc["average", "energy_kWh_per_day_design"]
@@ -323,6 +325,11 @@ def test_the_designed_grid_passes_every_days_verification():
     # the peak day needs more air than the average day on the same grid
     assert days.loc["peak", "energy_kWh_per_day_design"] > days.loc["average", "energy_kWh_per_day_design"]
     assert set(result.schedule["load_day"]) == {"average", "peak"}
+    # designed on 6 periods, the days are solved again on the layout's own 24 for the chosen grid, and those
+    # schedules (held and re-simulated) are the ones reported
+    assert (result.schedule.groupby(["load_day", "zone"]).size() == 24).all()
+    assert result.design.refined == {"average": "on the layout's 24 periods", "peak": "on the layout's 24 periods"}
+    assert sum("the schedule reported is solved on the layout's 24 periods" in m for m in s["messages"]) == 2
 
 
 @pytest.mark.solver
@@ -346,15 +353,15 @@ def test_coarse_steps_get_optimizes_back_off_rule_and_a_refined_day(monkeypatch)
         return out
 
     monkeypatch.setattr(module, "hold_do", held)
-    result = run_design(_small(), OPTIONS)
+    result = run_design(_small(), replace(OPTIONS, verify_layout_periods=False))
     # 4-hour periods of two steps: 2-hour steps are coarse; the peak day solved again is held on its 0.5-hour steps
     assert calls == [True, True, False]
     g = result.design
     steps = {d.id: model_steps_per_period(st.plant, st.options) for d, st in zip(g.days, g.studies)}
     assert steps == {"average": 2, "peak": int(4 / REFINED_STEP_H)}
-    assert g.refined == {"peak": REFINED_STEP_H}
+    assert g.refined == {"peak": f"on {REFINED_STEP_H:g}-hour model steps"}
     assert result.exit_code == 0 and list(result.days["verified"]) == [True, True]
-    assert any("peak: solved on 0.5-hour model steps" in m for m in result.summary["messages"])
+    assert any("peak: the schedule reported is solved on 0.5-hour model steps" in m for m in result.summary["messages"])
     # the schedule reported is the refined study's, for the designed counts
     peak = result.schedule[result.schedule["load_day"] == "peak"]
     st = g.studies[1]
@@ -380,8 +387,11 @@ def test_payback_against_a_current_grid_that_fails_a_day():
     assert list(comp["load_days_not_met_by_current"]) == ["peak"]
     assert "broken by" in comp["load_days_not_met_by_current"]["peak"]  # the limit and its least excess
     days = result.days.set_index("load_day")
-    saving = 300.0 * (days.loc["average", "cost_per_day_current"] - days.loc["average", "cost_per_day_design"])
-    assert comp["energy_saving_per_year"] == pytest.approx(saving, rel=1e-9)
+    # both grids compared as the search solved them (the design's 6 periods): the designed grid's average day there
+    searched = result.design._solved[result.design._key(design["counts"])][0]
+    assert comp["design_energy_cost_per_year_compared"] == pytest.approx(300.0 * searched.goal, rel=1e-6)
+    saving = current["energy_cost_per_year"] - comp["design_energy_cost_per_year_compared"]
+    assert comp["energy_saving_per_year"] == pytest.approx(saving, rel=1e-9) and comp["periods"] == 6
     assert current["energy_cost_per_year"] == pytest.approx(300.0 * days.loc["average", "cost_per_day_current"])
     assert pd.isna(days.loc["peak", "cost_per_day_current"])
     extra = design["capital"] - current["capital"]

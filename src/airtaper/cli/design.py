@@ -32,8 +32,9 @@ def register(subparsers) -> None:
     add_output_options(p)
     p.add_argument("--overrides", metavar="FILE", help="override file applied to the layout first")
     p.add_argument("--periods", type=int, metavar="N",
-                   help="periods per day of the design's schedules (a divisor or multiple of the layout's; "
-                        "fewer periods solve faster)")
+                   help="periods per day of the design's search (a divisor or multiple of the layout's; fewer "
+                        "periods solve faster); the chosen grid's days are then solved again, held and verified on "
+                        "the layout's own periods")
     p.add_argument("--no-verify", action="store_true", help="skip the re-simulation of every load day")
     p.add_argument("--no-figure", action="store_true", help="skip taper.png and train.png")
     p.add_argument("--quiet", action="store_true", help="no progress display")

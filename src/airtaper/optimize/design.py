@@ -190,6 +190,9 @@ class DesignOptions:
     # the chosen grid's day schedules held inside their DO ranges between the model's time points before they are
     # verified (the back-off rounds of ``optimize``, GridDesign.verify)
     hold_do: bool = True
+    # a design on other periods than the layout's (``n_periods``): the chosen grid's days are solved again on the
+    # layout's own periods, counts fixed, and those schedules held and verified (GridDesign.verify)
+    verify_layout_periods: bool = True
     max_moves: int = 20  # improving moves of the whole-count search at most
     # whole-count grids tried around the continuous optimum for one meeting every day (GridDesign._roundings).
     # Common practice (no source): 8 of the 32 corners of five zones' boxes, the nearest ones.
@@ -243,8 +246,10 @@ class GridDesign:
         if isinstance(layout, ResolvedPlant):  # its input: each load day's and each grid's plant is made from it
             layout = layout.layout
         self.options = options or DesignOptions()
+        source = layout
         if self.options.n_periods is not None and self.options.n_periods != layout.horizon.n_periods:
             layout = with_periods(layout, self.options.n_periods)
+        self.source = source  # the layout on its own periods: the chosen grid's days are verified there
         self.layout = layout  # the boundary: each load day's layout and a grid's counts are set on it, then resolved
         self.plant = resolve_plant(layout)
         if self.plant.capital is None or self.plant.tariff is None:
@@ -271,7 +276,7 @@ class GridDesign:
         self.relaxed_candidate: Candidate | None = None
         self.day_results: list | None = None  # the days' solver results at the loaded grid (duals)
         self.notes: list[str] = []  # what the verification did beyond the back-off (the summary's messages)
-        self.refined: dict[str, float] = {}  # load day -> model step (h) of a day solved again on finer steps
+        self.refined: dict[str, str] = {}  # load day -> where it was solved again (finer steps, the layout's periods)
 
     # --- building ---------------------------------------------------------------------------
     def build(self) -> None:
@@ -901,11 +906,29 @@ class GridDesign:
                 results.append(r)
                 continue
             st.result = r
+            if self.options.verify_layout_periods and self.source.horizon.n_periods != plant.n_periods:
+                # the day as the layout gives it (its per-period values on the layout's own periods)
+                own_day = next(d for d in layout_days(self.source) if d.id == day.id)
+                own = with_diffuser_counts(resolve_plant(day_layout(self.source, own_day)), counts)
+                fine = self._resolve_day(i, own, None, f"on the layout's {own.n_periods} periods",
+                                         f"the design's {plant.n_periods} periods")
+                if fine is not None:
+                    st, ver = fine
+                    self.studies[i] = st
+                else:
+                    ver = check()[0]
+                out.append(ver)
+                results.append(st.result)
+                continue
             finer = refined_steps_per_period(plant.period_h, model_steps_per_period(plant, st.options))
             hold = hold_do(st, check, self.progress, coarse=finer is not None)
             ver = hold["verification"]
             if hold["refine"]:
-                fine = self._refine(i, plant, hold, finer)
+                step_h = plant.period_h / model_steps_per_period(plant, st.options)
+                fine = self._resolve_day(
+                    i, plant, hold["day"], f"on {plant.period_h / finer:g}-hour model steps",
+                    f"{step_h:g}-hour steps, where the back-off could not hold the DO range ({hold['refine_reason']})",
+                    finer)
                 if fine is not None:
                     st, ver = fine
                     self.studies[i] = st
@@ -914,26 +937,24 @@ class GridDesign:
         self.day_results = results
         return out
 
-    def _refine(self, i: int, plant: ResolvedPlant, hold: dict, finer: int) -> tuple | None:
-        """Day ``i`` solved again on ``finer`` model steps per period for the grid of ``plant`` (its counts fixed):
-        (the refined study, its verification), or None with a note when it gives no schedule (the coarse one stays,
-        unverified).
+    def _resolve_day(self, i: int, plant: ResolvedPlant, start, where: str, instead: str,
+                     steps_per_period: int | None = None) -> tuple | None:
+        """Day ``i`` solved again for the grid of ``plant`` (its counts fixed) ``where`` (on ``steps_per_period``
+        finer steps, or on the layout's own periods and steps: None): (the study, its verification), or None with a note when it gives no schedule (the
+        design's schedule stays, unverified). ``start``: a simulated day to start from (None: the plant's
+        uniform-DO baseline).
 
-        As ``optimize`` does for coarse steps (:mod:`airtaper.optimize.backoff`, "Coarse model steps"): a study on
-        the finer steps started from the coarse schedule's re-simulated day, then its back-off rounds and the
-        verification. Its solve is the design's own (:meth:`_two_phase`): that start breaks the DO range the
-        coarse schedule left (by up to 0.67 mg/L on the demo), and ``optimize``'s run from it crawled on the demo's
-        average day (the dual infeasibility at 3e13 by iteration 60, 10 s an iteration at a load of 6) where the
-        two phases settle. The day's uniform-DO baseline is the design's (the same objective scale)."""
+        Then its back-off rounds and the verification, as ``optimize`` does. The solve is the design's own
+        (:meth:`_two_phase`): a coarse schedule's re-simulated day breaks the DO range it left (by up to 0.67 mg/L
+        on the demo), and ``optimize``'s run from there crawled on the demo's average day (the dual infeasibility
+        at 3e13 by iteration 60, 10 s an iteration at a load of 6) where the two phases settle."""
         st, day = self.studies[i], self.days[i]
-        step_h = plant.period_h / model_steps_per_period(plant, st.options)
-        fine_h = plant.period_h / finer
-        self.progress.phase(f"load day {day.id}: the back-off could not hold the DO range on {step_h:g}-hour model "
-                            f"steps ({hold['refine_reason']}); solving it again on {fine_h:g}-hour steps for the "
-                            "chosen grid")
+        self.progress.phase(f"load day {day.id}: solved again {where} for the chosen grid")
         t0 = time.perf_counter()
-        fine = DiurnalOptimisation(plant, replace(st.options, steps_per_period=finer), self.progress,
-                                   baseline=st.run_baseline(), start=hold["day"])
+        opts = replace(st.options, steps_per_period=steps_per_period)  # None: the plant's own
+        same = plant.n_periods == st.plant.n_periods
+        fine = DiurnalOptimisation(plant, opts, self.progress, baseline=st.run_baseline() if same else None,
+                                   start=start)
         fine.build()
         rungs = [replace(rung, options={**rung.options, "max_iter": self.options.max_iter}) for rung in LADDER[:2]]
         runs, reason, _ = self._two_phase(fine, rungs[0], "first")
@@ -950,16 +971,17 @@ class GridDesign:
             def check():
                 return verify_day(plant, fine.schedule_by_zone(), fine.figures(), fine.m)
 
-            ver = hold_do(fine, check, self.progress)["verification"]
-        self.timings["refined_s"] = self.timings.get("refined_s", 0.0) + time.perf_counter() - t0
+            finer = refined_steps_per_period(plant.period_h, model_steps_per_period(plant, opts))
+            ver = hold_do(fine, check, self.progress, coarse=finer is not None)["verification"]
+        self.timings["resolved_s"] = self.timings.get("resolved_s", 0.0) + time.perf_counter() - t0
         if ver is None:
-            self.notes.append(f"load day {day.id}: solving again on {fine_h:g}-hour model steps gave no schedule ("
-                              + (reason or f"the solver: {r.message}") + f"); the {step_h:g}-hour schedule is "
+            self.notes.append(f"load day {day.id}: solved again {where} for the chosen grid: no schedule ("
+                              + (reason or f"the solver: {r.message}") + f"); the schedule on {instead} is "
                               "reported")
             return None
-        self.notes.append(f"load day {day.id}: solved on {fine_h:g}-hour model steps for the chosen grid: on "
-                          f"{step_h:g}-hour steps the back-off could not hold the DO range ({hold['refine_reason']})")
-        self.refined[day.id] = fine_h
+        self.notes.append(f"load day {day.id}: the schedule reported is solved {where} for the chosen grid "
+                          f"(instead of {instead})")
+        self.refined[day.id] = where
         return fine, ver
 
 
@@ -1043,6 +1065,8 @@ def run_design(layout: ResolvedPlant | Layout, options: DesignOptions | None = N
         messages.append("no whole-count grid near the continuous optimum meets every load day's limits")
         return _no_design(g, base, "infeasible", messages, t0)
     g.load(best.counts)
+    # the designed grid's days as the search solved them, on the design's periods: the current grid's basis
+    searched_rows = _day_rows(g, "design")
     verification = g.verify(best.counts) if g.options.verify else None  # the DO held first: the days' schedules
     messages.extend(g.notes)
     design_rows = _day_rows(g, "design")
@@ -1096,7 +1120,9 @@ def run_design(layout: ResolvedPlant | Layout, options: DesignOptions | None = N
         compared = [g.days[i] for i in met]
         current_tot = totals(current_rows, "current", g.current, compared)
         current_tot["load_days_not_met"] = not_met
-        same = totals(design_rows, "design", best.counts, compared)
+        # both grids as the search solved them (the design's periods, the model's optimum): like with like, also
+        # when the designed grid's days were solved again on the layout's periods for the verification
+        same = totals(searched_rows, "design", best.counts, compared)
         extra = design_tot["capital"] - current_tot["capital"]
         saving = current_tot["energy_cost_per_year"] - same["energy_cost_per_year"]
         comparison = {"extra_capital": extra, "energy_saving_per_year": saving,
@@ -1105,6 +1131,7 @@ def run_design(layout: ResolvedPlant | Layout, options: DesignOptions | None = N
                       "net_present_value": net_present_value(extra, saving, cap.interest_rate, cap.life_years),
                       "design_energy_cost_per_year_compared": same["energy_cost_per_year"],
                       "design_energy_kWh_per_year_compared": same["energy_kWh_per_year"],
+                      "periods": g.plant.n_periods,
                       "load_days_compared": [d.id for d in compared],
                       "days_per_year_compared": float(sum(d.days_per_year for d in compared)),
                       "load_days_not_met_by_current": not_met}

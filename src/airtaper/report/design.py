@@ -152,6 +152,10 @@ def design_html(summary: dict, zones, days, images: dict, binding=None) -> str:
                 "days the current grid breaks a limit, which no saving figure shows.</p>")
         if comp is not None:
             pb = comp["payback_years"]
+            body.append(f"<p>Both grids compared as the design's search solved them ({comp.get('periods', '')} "
+                        "periods a day, each day's model optimum): the designed grid's energy cost there is "
+                        f"{fmt(comp.get('design_energy_cost_per_year_compared'), 0)} {html.escape(cur)} per year on "
+                        "the days compared.</p>")
             body.append(f"<p>Extra capital {fmt(comp['extra_capital'], 0)} {html.escape(cur)}, energy saving "
                         f"{fmt(comp['energy_saving_per_year'], 0)} {html.escape(cur)} per year "
                         f"({fmt(comp['energy_saving_kWh_per_year'], 0)} kWh): simple payback "
