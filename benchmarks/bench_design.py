@@ -33,7 +33,7 @@ sys.path.insert(0, str(ROOT / "src"))
 
 from airtaper.layout import load_layout  # noqa: E402
 from airtaper.layout.loaddays import day_layout  # noqa: E402
-from airtaper.optimize.design import DesignOptions, GridDesign  # noqa: E402
+from airtaper.optimize.design import DesignOptions, GridDesign, grid_capital  # noqa: E402
 from airtaper.optimize.diurnal import StudyOptions, run_optimization  # noqa: E402
 
 
@@ -134,20 +134,35 @@ def main() -> int:
 
 def _savings(g: GridDesign, best) -> None:
     """The designed grid against the current grid and a uniform grid of the same total, each with every day's
-    schedule optimised on it."""
+    schedule optimised on it; a grid that cannot meet a day is compared on the days it meets (the designed grid's
+    annual cost on the same days), as ``design`` compares the current grid."""
     print("designed grid: " + ", ".join(f"{z} {c}" for z, c in best.counts.items())
           + f"  annual cost {best.annual_cost:,.0f}")
+    ours = g._solved[g._key(best.counts)]
+
     def line(name, c):
         grid = ", ".join(f"{z} {v}" for z, v in c.counts.items())
-        if c.annual_cost is None:
-            return (f"{name}: {grid}  cannot meet every day ({c.status}, {c.failed_day}"
-                    + (f": {c.reason}" if c.reason else "") + ")")
-        return (f"{name}: {grid}  annual cost {c.annual_cost:,.0f}; the design saves "
-                f"{c.annual_cost - best.annual_cost:,.0f} ({100 * (c.annual_cost - best.annual_cost) / c.annual_cost:.1f} %)")
+        solves = g._solved[g._key(c.counts)]
+        met = [i for i, s in enumerate(solves) if s.ok]
+        missed = [f"{g.days[i].id}" + (f": {s.reason}" if s.reason else f" ({s.status})")
+                  for i, s in enumerate(solves) if not s.ok]
 
-    print(line("current grid", g.evaluate(g.current)))
+        def cost(counts, days):
+            return g.crf * grid_capital(g.capital, counts) + sum(g.days[i].days_per_year * days[i].goal for i in met)
+
+        if not met:
+            return f"{name}: {grid}  cannot meet any day ({'; '.join(missed)})"
+        theirs, mine = cost(c.counts, solves), cost(best.counts, ours)
+        where = "every day" if not missed else (
+            f"the {sum(g.days[i].days_per_year for i in met):g} days a year it meets; it cannot meet "
+            + "; ".join(missed))
+        return (f"{name}: {grid}  annual cost {theirs:,.0f} against the design's {mine:,.0f} on {where}: the design "
+                f"saves {theirs - mine:,.0f} ({100 * (theirs - mine) / theirs:.1f} %)")
+
+    print(line("current grid", g.evaluate(g.current, every_day=True)))
     total = sum(best.counts.values())
     same, used, t = _nearest_feasible_uniform(g, total)
+    g.evaluate(same.counts, every_day=True)
     print(line(f"uniform grid of the same total ({total})", same))
     if used is not None and used is not same:
         print(line(f"nearest uniform grid that meets every day ({t} diffusers)", used))

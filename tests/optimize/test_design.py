@@ -8,6 +8,7 @@ from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 import pytest
 
 from airtaper.layout import parse_layout
@@ -322,6 +323,77 @@ def test_the_designed_grid_passes_every_days_verification():
     # the peak day needs more air than the average day on the same grid
     assert days.loc["peak", "energy_kWh_per_day_design"] > days.loc["average", "energy_kWh_per_day_design"]
     assert set(result.schedule["load_day"]) == {"average", "peak"}
+
+
+@pytest.mark.solver
+@pytest.mark.slow
+def test_coarse_steps_get_optimizes_back_off_rule_and_a_refined_day(monkeypatch):
+    """The chosen grid's days are held by ``optimize``'s back-off with its rule for model steps longer than
+    REFINED_STEP_H (here 2-hour steps: ``coarse``), and a day whose coarse rounds cannot hold the DO range is solved
+    again on the finer steps for that grid, whose schedule is the one verified and reported. The small case holds
+    its range on 2-hour steps, so the back-off's verdict is forced to "refine" for the peak day."""
+    from airtaper.optimize import design as module
+    from airtaper.optimize.backoff import REFINED_STEP_H
+    from airtaper.optimize.diurnal import model_steps_per_period
+
+    calls, real = [], module.hold_do
+
+    def held(study, verify, progress=None, relax=None, coarse=False):
+        out = real(study, verify, progress, relax=relax, coarse=coarse)
+        calls.append(coarse)
+        if len(calls) == 2:  # the second day (peak): as if its coarse rounds could not hold the range
+            out = dict(out, refine=True, refine_reason="forced by the test")
+        return out
+
+    monkeypatch.setattr(module, "hold_do", held)
+    result = run_design(_small(), OPTIONS)
+    # 4-hour periods of two steps: 2-hour steps are coarse; the peak day solved again is held on its 0.5-hour steps
+    assert calls == [True, True, False]
+    g = result.design
+    steps = {d.id: model_steps_per_period(st.plant, st.options) for d, st in zip(g.days, g.studies)}
+    assert steps == {"average": 2, "peak": int(4 / REFINED_STEP_H)}
+    assert g.refined == {"peak": REFINED_STEP_H}
+    assert result.exit_code == 0 and list(result.days["verified"]) == [True, True]
+    assert any("peak: solved on 0.5-hour model steps" in m for m in result.summary["messages"])
+    # the schedule reported is the refined study's, for the designed counts
+    peak = result.schedule[result.schedule["load_day"] == "peak"]
+    st = g.studies[1]
+    for z, q in st.schedule_by_zone().items():
+        assert peak[peak["zone"] == z]["airflow_Sm3_h"].to_numpy() == pytest.approx(q)
+    assert {z: float(st.m.diffuser_count[z].value) for z in g.ids} == {
+        z: float(n) for z, n in result.summary["design"]["counts"].items()}
+
+
+@pytest.mark.solver
+@pytest.mark.slow
+def test_payback_against_a_current_grid_that_fails_a_day():
+    """A current grid that cannot meet a load day (here the peak day: a heavy day with a low alpha, too much for the
+    current 420/340/260 diffusers) is compared with the designed grid on the days it meets: the same days on both
+    sides, the day it breaks named."""
+    d = _small_data()
+    d["load_days"][1].update(flow_factor=1.5, load_factor=2.2, alpha_factor=0.7)
+    result = run_design(parse_layout(d, str(LAYOUTS / "small.toml"), LAYOUTS), OPTIONS)
+    s = result.summary
+    assert result.exit_code == 0
+    comp, current, design = s["comparison"], s["current"], s["design"]
+    assert comp["load_days_compared"] == ["average"] and comp["days_per_year_compared"] == 300.0
+    assert list(comp["load_days_not_met_by_current"]) == ["peak"]
+    assert "broken by" in comp["load_days_not_met_by_current"]["peak"]  # the limit and its least excess
+    days = result.days.set_index("load_day")
+    saving = 300.0 * (days.loc["average", "cost_per_day_current"] - days.loc["average", "cost_per_day_design"])
+    assert comp["energy_saving_per_year"] == pytest.approx(saving, rel=1e-9)
+    assert current["energy_cost_per_year"] == pytest.approx(300.0 * days.loc["average", "cost_per_day_current"])
+    assert pd.isna(days.loc["peak", "cost_per_day_current"])
+    extra = design["capital"] - current["capital"]
+    assert comp["net_present_value"] == pytest.approx(net_present_value(extra, saving, 0.05, 15.0))
+    assert comp["payback_years"] == pytest.approx(simple_payback_years(extra, saving), rel=1e-9)
+    assert any("current grid cannot meet load day(s) peak" in m for m in s["messages"])
+    # the report and the console say on which days the figures stand
+    from airtaper.report.design import design_console, design_html
+
+    assert "it cannot meet peak" in design_console(s)
+    assert "The current grid cannot meet every load day" in design_html(s, result.zones, result.days, {},
+                                                                          result.binding)
 
 
 @pytest.mark.solver

@@ -15,7 +15,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from airtaper.errors import EXIT_INFEASIBLE, EXIT_OK, EXIT_UNVERIFIED
+from airtaper.errors import EXIT_INFEASIBLE, EXIT_OK
 from airtaper.layout import load_layout
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.dispatch import evaluate, machines_of
@@ -172,35 +172,34 @@ def test_switching_off_costs_no_more_than_aerating_all_day(swing_run, fenwhistle
 
 @pytest.mark.slow
 def test_demo_with_a_blower_out_of_service_is_feasible_and_costs_no_less(demo):
+    """B1 out of service (B2, its twin, and B3 remain). Not B3: on six 4-hour periods the night needs
+    3,876-4,205 Sm3/h (the optimum with every machine, B3 alone at night), below the 4,500 Sm3/h minimum of
+    B1 and B2, so with B3 out the night's air is forced up and Z6's DO leaves its maximum (1.13 mg/L on the
+    coarse steps; on 1-hour steps the relaxed solve did not converge in 150 iterations, without Z6's maximum it did
+    in 16): that plant cannot hold its DO range, and an unverified result is the truthful one."""
     layout = with_periods(demo, 6, steps_per_period=2)
     full = run_optimization(layout)
-    out = replace(layout, blowers=tuple(replace(b, out_of_service=(b.id == "B3")) for b in layout.blowers))
+    assert full.summary["dispatch"]["blowers"]["B1"]["running_h"] > 0.0  # the machine taken out is one in use
+    out = replace(layout, blowers=tuple(replace(b, out_of_service=(b.id == "B1")) for b in layout.blowers))
     less = run_optimization(out)
     for r in (full, less):
-        # feasible for every machine and grid, and the re-simulated effluent within its limits. On six 4-hour
-        # periods the study is solved again on 30-minute steps when the DO leaves its range between points
-        # (optimize/backoff.py); with B3 out that re-solve may spend the run's solve budget, and the coarse
-        # schedule is then kept, unverified, saying so (the DO between points on coarse horizons is open work)
-        assert r.summary["status"] in ("optimal", "unverified"), r.summary["messages"]
-        assert r.exit_code == (EXIT_OK if r.summary["status"] == "optimal" else EXIT_UNVERIFIED)
+        # feasible for every machine and grid, and verified: the re-simulated effluent within its limits and
+        # every zone's DO within its range over continuous time, to the verification's tolerance (on six
+        # 4-hour periods the study is solved again on 30-minute steps, optimize/backoff.py)
+        assert r.exit_code == EXIT_OK and r.summary["status"] == "optimal", r.summary["messages"]
         v = r.summary["verification"]
-        assert not [x for x in v["violations"] if "DO" not in x], v["violations"]
-        if r.summary["status"] == "unverified":
-            assert any("gave no schedule" in m or "breaks a limit" in m for m in r.summary["messages"])
+        assert v["verified"] is True and v["violations"] == [], v["violations"]
         assert r.summary["dispatch"]["feasibility_breaches"] == []
     # with every machine in service: verified, the DO minimum held over continuous time to 0.01 mg/L
     # (optimize/backoff.py: the back-off on 30-minute steps, an early dip's step start backed off too)
     assert full.exit_code == EXIT_OK, full.summary["messages"]
     assert full.summary["verification"]["do_min_margin_mg_L"] >= -0.01, full.summary["verification"]["do_margin_mg_L"]
-    assert less.summary["dispatch"]["blowers"]["B3"]["running_h"] == 0.0
-    assert (less.blowers[less.blowers["blower"] == "B3"]["running"] == False).all()  # noqa: E712
+    assert less.summary["dispatch"]["blowers"]["B1"]["running_h"] == 0.0
+    assert (less.blowers[less.blowers["blower"] == "B1"]["running"] == False).all()  # noqa: E712
     _machines_within_their_ranges(less, out)
     # a subset of the machines cannot do better (up to the loop's tolerance), on the final result: after
     # the DO back-off and the re-dispatch on its airflow, as reported and verified
-    # (compared only on the same model steps: a schedule on 4-hour steps that lets the DO leave its range
-    # between points is not comparable with one held to it on 30-minute steps)
-    if full.summary["status"] == less.summary["status"]:
-        assert less.summary["cost_per_day"] >= full.summary["cost_per_day"] * (1 - COST_RTOL)
+    assert less.summary["cost_per_day"] >= full.summary["cost_per_day"] * (1 - COST_RTOL)
     assert full.summary["cost_per_day"] == pytest.approx(full.summary["dispatch"]["cost_per_day"], rel=1e-12)
 
 

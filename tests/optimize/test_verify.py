@@ -7,7 +7,7 @@ import pytest
 
 from airtaper.optimize.compliance import DO_TOLERANCE_mg_L
 from airtaper.optimize.simday import simulate_day
-from airtaper.optimize.verify import DAY_REPEAT_TOL, LEAD_IN_h, lead_in_periods, start_state_of, swing_do_margins, \
+from airtaper.optimize.verify import DAY_REPEAT_TOL, LEAD_IN_h, do_max_margin, lead_in_periods, start_state_of, swing_do_margins, \
     verify_day
 from airtaper.plant import resolve_plant
 
@@ -72,3 +72,20 @@ def test_the_verification_takes_a_resolved_plant_only(fenwhistle):
         swing_do_margins(fenwhistle, {}, None)
     with pytest.raises(TypeError, match="ResolvedPlant"):
         verify_day(fenwhistle, {}, {})
+
+
+def test_the_do_maximum_margin_leaves_out_a_zone_without_simulated_rows(demo):
+    """A zone with a DO maximum but no rows in the simulated day's extremes gives no margin (not NaN): the
+    margin is the smallest over the zones that have rows, None when none has."""
+    from dataclasses import replace
+
+    import pandas as pd
+
+    layout = replace(demo, zones=tuple(replace(z, do_max_mg_L=3.0) if z.id == "Z5" else z for z in demo.zones))
+    plant = resolve_plant(layout)  # Z5 (maximum 3.0) and Z6 (maximum 2.5) have a DO maximum
+    z6 = pd.DataFrame({"period": [0, 1], "zone": ["Z6", "Z6"], "do_min_mg_L": [1.2, 1.1], "do_max_mg_L": [2.0, 2.4]})
+    margin = do_max_margin(plant, z6)  # Z5 has no rows
+    assert margin is not None and np.isfinite(margin) and margin == pytest.approx(2.5 - 2.4)
+    both = pd.concat([z6, pd.DataFrame({"period": [0], "zone": ["Z5"], "do_min_mg_L": [1.5], "do_max_mg_L": [2.95]})])
+    assert do_max_margin(plant, both) == pytest.approx(3.0 - 2.95)
+    assert do_max_margin(plant, z6.iloc[:0]) is None

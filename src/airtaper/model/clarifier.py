@@ -23,8 +23,12 @@ The settling flux ``J_l`` from layer ``l`` to ``l+1`` (g TSS/(m2 d)) uses the
 double-exponential velocity::
 
     vs(X) = max(0, min(v0', v0 (exp(-rh (X - Xmin)) - exp(-rp (X - Xmin))))),  Xmin = fns TSS_f
-    J_l   = min(vs_l X_l, vs_l+1 X_l+1)                  at and below the feed layer
-    J_l   = vs_l X_l  if X_l+1 <= Xt  else  min(...)     above it (clarification)
+    f(X)  = vs(X) X,  largest at X_M
+    J_l   = min(f(min(X_l, X_M)), f(max(X_l+1, X_M)))   at and below the feed layer
+    J_l   = f(X_l)  if X_l+1 <= Xt  else  min(...)       above it (clarification)
+
+the Godunov flux of Bürger, Diehl & Nopens (2011), which equals Takacs' ``min(f(X_l),
+f(X_l+1))`` where the solids rise downwards (see :mod:`airtaper.physics.settling`).
 
 Each particulate moves with the flux of its layer in proportion to its share of
 the layer's solids: ``J_l,i = w_l X_l,i`` with the effective settling velocity
@@ -47,6 +51,8 @@ References
 ----------
 Takacs, I., Patry, G.G., Nolasco, D. (1991). A dynamic model of the
 clarification-thickening process. Water Research 25(10), 1263-1271.
+Bürger, R., Diehl, S., Nopens, I. (2011). A consistent modelling methodology for secondary
+settling tanks in wastewater treatment. Water Research 45(6), 2247-2260.
 Alex, J. et al. (2008). Benchmark Simulation Model no. 1 (BSM1), IWA Task Group
 on Benchmarking of Control Strategies for WWTPs (settler model).
 """
@@ -110,18 +116,36 @@ def _layer_tss_definition_rule(m, t, layer):
 
 
 def _layer_gravity_flux_rule(m, t, layer):
+    return settling_physics.gravity_flux_g_m2_d(m.settler_tss[t, layer], *_settling_parameters(m, t))
+
+
+def _settling_parameters(m, t):
     s = m.settler
-    return settling_physics.gravity_flux_g_m2_d(m.settler_tss[t, layer], s.fns * m.feed_tss_g_m3[t], s.v0_max_m_d,
-                                                s.v0_m_d, s.rh_m3_g, s.rp_m3_g)
+    return s.fns * m.feed_tss_g_m3[t], s.v0_max_m_d, s.v0_m_d, s.rh_m3_g, s.rp_m3_g
+
+
+def _flux_peak_rule(m, t):
+    return settling_physics.flux_peak_tss_g_m3(*_settling_parameters(m, t))
+
+
+def _sending_flux_rule(m, t, layer):
+    x_min, *rest = _settling_parameters(m, t)
+    return settling_physics.sending_flux_g_m2_d(m.settler_tss[t, layer], x_min, m.settler_flux_peak_tss[t], *rest)
+
+
+def _receiving_flux_rule(m, t, layer):
+    x_min, *rest = _settling_parameters(m, t)
+    return settling_physics.receiving_flux_g_m2_d(m.settler_tss[t, layer], x_min, m.settler_flux_peak_tss[t], *rest)
 
 
 def _settling_flux_definition_rule(m, t, layer):
-    """w_l X_l = J_l, the Takacs flux from ``layer`` to the one below (smoothed, see module notes)."""
-    a, b = m.settler_gravity_flux[t, layer], m.settler_gravity_flux[t, layer + 1]
+    """w_l X_l = J_l, the Godunov flux from ``layer`` to the one below (smoothed, see module notes)."""
+    a, b = m.settler_sending_flux[t, layer], m.settler_receiving_flux[t, layer + 1]
     if layer >= m.settler_feed_layer:
         flux = settling_physics.interface_flux_g_m2_d(a, b)
     else:
-        flux = settling_physics.interface_flux_g_m2_d(a, b, m.settler_tss[t, layer + 1], m.settler.x_threshold_g_m3)
+        flux = settling_physics.interface_flux_g_m2_d(a, b, m.settler_tss[t, layer + 1], m.settler.x_threshold_g_m3,
+                                                      m.settler_gravity_flux[t, layer])
     return m.settler_velocity[t, layer] * m.settler_tss[t, layer] == flux
 
 
@@ -183,6 +207,12 @@ def attach_layered_settler(m, data) -> None:
                                  doc="effective settling velocity out of a layer, J_l / X_l, m/d")
     m.settler_gravity_flux = pyo.Expression(m.STEPS, m.LAYERS, rule=_layer_gravity_flux_rule,
                                             doc="gravity flux vs X of each layer, g/(m2 d)")
+    m.settler_flux_peak_tss = pyo.Expression(m.STEPS, rule=_flux_peak_rule,
+                                             doc="concentration where the gravity flux is largest, g/m3")
+    m.settler_sending_flux = pyo.Expression(m.STEPS, m.LAYERS, rule=_sending_flux_rule,
+                                            doc="gravity flux with the solids capped at the flux maximum, g/(m2 d)")
+    m.settler_receiving_flux = pyo.Expression(m.STEPS, m.LAYERS, rule=_receiving_flux_rule,
+                                              doc="gravity flux with the solids floored at the flux maximum, g/(m2 d)")
     m.settler_tss_definition = pyo.Constraint(m.STEPS, m.LAYERS, rule=_layer_tss_definition_rule)
     m.settler_flux_definition = pyo.Constraint(m.STEPS, m.INTERFACES, rule=_settling_flux_definition_rule)
     m.settler_rhs = pyo.Expression(m.STEPS, m.LAYERS, m.COMPONENTS, rule=_settler_rhs_rule)

@@ -56,7 +56,9 @@ round whose largest excursion is not below :data:`SHRINK` times the round before
 rounds: the step, not the points, misses the DO. (c) A round whose re-solve fails (also damped, also
 the minimum alone). After the rounds, a schedule not verified or whose DO minimum is still more
 than :data:`TARGET_mg_L` short is solved again on the finer steps (``refine_reason`` says which
-rule). Back-off rounds on the coarse model cost a warm re-solve of the coarse problem each; the
+rule; a round that stops by (b) with the minimum already held to :data:`TARGET_mg_L` and the verification
+passed is kept: no refined study). Rule (b) ends the rounds on any steps, coarse or not: without it, rounds on
+an excursion that does not move spent every round's re-solve. Back-off rounds on the coarse model cost a warm re-solve of the coarse problem each; the
 refined study is 4-8 times larger and starts cold in its dual (on the robustness benchmark's
 4-zone layered plants, about 4 CPU s per iteration against their 0.05-0.14 mg/L excursions). On
 three tanks with six 4-hour periods of one step, two coarse rounds took the minimum from 0.086
@@ -115,9 +117,11 @@ DAMPED_TRIES = 2
 #: 1.99 mg/L where the simulator had 1.29); the 4-zone layered plants of the robustness benchmark by
 #: 0.05-0.14 mg/L, which back-off rounds on the coarse steps take (module notes).
 LARGE_mg_L = 0.25
-#: Coarse model steps: a round whose largest excursion is not below SHRINK times the round before's
-#: ends the back-off there (the model's step, not its points, is what misses the DO); common practice
-#: (no source) for a fixed-point iteration that should contract.
+#: A round whose largest excursion is not below SHRINK times the round before's ends the back-off there, on
+#: any model steps (the back-off does not act where the DO leaves its range; on coarse steps the model's step,
+#: not its points, is what misses the DO, and the study is solved again on finer ones unless the minimum is
+#: held to :data:`TARGET_mg_L` already); common practice (no source) for a fixed-point iteration that should
+#: contract.
 SHRINK = 0.8
 #: Model step (h) of a study solved again when the back-off on longer steps cannot hold the
 #: DO range (module notes): the demo's own step, where the back-off is known to converge.
@@ -280,7 +284,8 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
     relaxed = False
     refine = False
     max_given_way = False  # a round with both sides failed and the minimum's back-offs alone solved
-    worst = None  # the largest excursion of the round before (coarse steps: must shrink)
+    worst = None  # the largest excursion of the round before (must shrink by SHRINK)
+    stalled = False  # the rounds ended because a round did not shrink the excursion
     why = None  # coarse steps: why the back-off there ended unverified (refine)
     while rounds < MAX_ROUNDS:
         ex = day.do_extremes
@@ -292,13 +297,15 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
         if not any(found):
             break
         now = max(v for f in found for v in f.values())
-        if coarse:
-            if now > LARGE_mg_L:
-                why = f"an excursion of {now:.3f} mg/L (more than {LARGE_mg_L:g}: the step, not the points)"
-                break
-            if worst is not None and now > SHRINK * worst:
-                why = f"the excursion went from {worst:.3f} to {now:.3f} mg/L in a round (not below {SHRINK:g} x)"
-                break
+        if coarse and now > LARGE_mg_L:
+            why = f"an excursion of {now:.3f} mg/L (more than {LARGE_mg_L:g}: the step, not the points)"
+            break
+        if worst is not None and now > SHRINK * worst:
+            # on any steps: a round that does not shrink the excursion will not be followed by one that does
+            # (the back-off does not act where the DO leaves its range); coarse steps are then solved again
+            why = f"the excursion went from {worst:.3f} to {now:.3f} mg/L in a round (not below {SHRINK:g} x)"
+            stalled = True
+            break
         worst = now
         rounds += 1
         if progress is not None:
@@ -362,7 +369,7 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
             refine = True
             why = why or f"{rounds} back-off rounds"
     return {"verification": ver, "day": day, "rounds": rounds, "resolve_failed": failed, "failed_resolves": damped,
-            "relaxed": relaxed,
+            "relaxed": relaxed, "stalled": stalled, "stop_reason": why,
             "refine": refine, "refine_reason": why if refine else None,
             "max_given_way": max_given_way, "max_excursions_mg_L": over,
             "backoff_mg_L": _by_period(m, values[0]), "backoff_max_mg_L": _by_period(m, values[1]),

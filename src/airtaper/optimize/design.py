@@ -64,11 +64,19 @@ What holds each zone
     minimum; mixing: the mixing minimum), beside each day's value of one more diffuser.
 
 Verification and economics
-    The chosen grid's schedule of every day is re-simulated by the independent simulator
+    The chosen grid's schedule of every day is held inside its DO range by ``optimize``'s
+    back-off, with its rule for coarse model steps, and solved again on finer steps for that
+    grid where the rounds cannot hold it (:meth:`GridDesign.verify`); the schedule reported is
+    the one re-simulated by the independent simulator
     (:func:`airtaper.optimize.verify.verify_day`). The layout's current grid is evaluated
     the same way (counts fixed) for the comparison: payback = extra capital / annual
     saving, net present value of the saving over the grid's life at the interest rate
-    minus the extra capital (capital of a grid = the cost of installing it new).
+    minus the extra capital (capital of a grid = the cost of installing it new). A current
+    grid that cannot meet a load day is compared on the days it meets, the same days on
+    both sides, and the day and limit it breaks are named: a grid that breaks a limit on a
+    day has no energy cost there to save from (its operation would be a different plant's),
+    and leaving the day out of both sides states what the retrofit saves where both grids
+    run within the limits.
 """
 
 from __future__ import annotations
@@ -86,8 +94,8 @@ from airtaper.errors import EXIT_FAILURE, EXIT_INFEASIBLE, EXIT_OK, EXIT_UNVERIF
 from airtaper.layout.loaddays import day_layout, layout_days, with_grid_counts
 from airtaper.layout.types import Layout
 from airtaper.optimize.attempts import LADDER
-from airtaper.optimize.backoff import hold_do
-from airtaper.optimize.diurnal import DiurnalOptimisation, StudyOptions
+from airtaper.optimize.backoff import hold_do, refined_steps_per_period
+from airtaper.optimize.diurnal import DiurnalOptimisation, StudyOptions, model_steps_per_period
 from airtaper.optimize.elastic import REPORT_THRESHOLD
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.marginal import STEP_mg_L, parameter_sensitivity
@@ -262,6 +270,8 @@ class GridDesign:
         self.relaxed: dict[str, float] | None = None  # the continuous optimum
         self.relaxed_candidate: Candidate | None = None
         self.day_results: list | None = None  # the days' solver results at the loaded grid (duals)
+        self.notes: list[str] = []  # what the verification did beyond the back-off (the summary's messages)
+        self.refined: dict[str, float] = {}  # load day -> model step (h) of a day solved again on finer steps
 
     # --- building ---------------------------------------------------------------------------
     def build(self) -> None:
@@ -511,14 +521,17 @@ class GridDesign:
         self.candidates.append(cand)
         return cand
 
-    def load(self, counts: dict[str, int]) -> None:
-        """Put the solved state of an evaluated grid back into every day's model, with its duals (a warm re-solve
-        from the solution: a few iterations)."""
+    def load(self, counts: dict[str, int], days: list[int] | None = None) -> None:
+        """Put the solved state of an evaluated grid back into every day's model (``days``: those days' only, by
+        index), with its duals (a warm re-solve from the solution: a few iterations); the days' results
+        (:attr:`day_results`) are set when every day is loaded."""
         key = self._key(counts)
-        if key not in self._solved or not all(s.ok for s in self._solved[key]):
-            raise ModelError("load: the grid was not solved on every day")
+        days = list(range(len(self.days))) if days is None else list(days)
+        if key not in self._solved or not all(self._solved[key][i].ok for i in days):
+            raise ModelError("load: the grid was not solved on every day asked")
         results = []
-        for i, s in enumerate(self._solved[key]):
+        for i in days:
+            s = self._solved[key][i]
             st, m = self.studies[i], self.studies[i].m
             for z in self.ids:
                 m.diffuser_count[z] = float(counts[z])
@@ -529,7 +542,7 @@ class GridDesign:
             if not r.ok:
                 raise ModelError(f"load day {self.days[i].id}: the re-solve on its own solution failed ({r.message})")
             results.append(r)
-        self.day_results = results
+        self.day_results = results if len(days) == len(self.days) else None
 
     # --- the continuous search (counts real) ------------------------------------------------------
     def solve_relaxed(self, start: dict[str, float] | None = None) -> Candidate | None:
@@ -781,10 +794,13 @@ class GridDesign:
         return best
 
     # --- results of the loaded grid -----------------------------------------------------------
-    def day_figures(self) -> list[dict]:
-        """Per load day at the models' current state: energy, cost, effluent, schedule."""
+    def day_figures(self, days: list[int] | None = None) -> list[dict]:
+        """Per load day (``days``: their indices; default every one) at the models' current state: energy, cost,
+        effluent, schedule."""
         out = []
-        for day, st in zip(self.days, self.studies):
+        for i, (day, st) in enumerate(zip(self.days, self.studies)):
+            if days is not None and i not in days:
+                continue
             out.append({"day": day, "study": st, "energy_kWh_per_day": st.energy_kWh_per_day(),
                         "cost_per_day": float(pyo.value(st.m.opt.goal)), "figures": st.figures(),
                         "schedule": st.schedule_by_zone()})
@@ -861,28 +877,90 @@ class GridDesign:
     def verify(self, counts: dict[str, int]) -> list[dict]:
         """Every day's schedule on the loaded grid ``counts`` re-simulated by the independent simulator; with
         :attr:`DesignOptions.hold_do`, first held inside its DO range between the model's time points by the
-        back-off rounds ``optimize`` runs (:func:`airtaper.optimize.backoff.hold_do`, on the model's own steps).
-        On the demo's six 4-hour periods the re-simulated DO of the chosen grid's schedules left the range by up
-        to 0.9 mg/L inside the periods without them (Z6 above its maximum at night, Z2-Z5 below their minimum).
-        The days' results (their duals) become those of the held solves."""
+        back-off rounds ``optimize`` runs (:func:`airtaper.optimize.backoff.hold_do`), with ``optimize``'s rule for
+        model steps longer than :data:`~airtaper.optimize.backoff.REFINED_STEP_H` (``coarse``: an excursion too
+        large for the points, or one that does not shrink, ends the rounds), and where those rounds cannot hold the
+        range the day solved again on the finer steps for the grid ``counts`` (:meth:`_refine`, as ``optimize``
+        does). On the demo's six 4-hour periods the re-simulated DO of the chosen grid's schedules left the range by
+        up to 0.9 mg/L inside the periods without the back-off (Z6 above its maximum at night, Z2-Z5 below their
+        minimum), and the back-off re-solves on the 2-hour steps failed on four of the six days. The days' studies
+        and results (their duals) become those of the held or refined solves: the schedules reported are the ones
+        verified."""
         if self.day_results is None:
             raise ModelError("load a solved grid first")
         out, results = [], []
-        for day, st, r in zip(self.days, self.studies, self.day_results):
+        for i, (day, st, r) in enumerate(zip(self.days, self.studies, self.day_results)):
             plant = with_diffuser_counts(st.plant, counts)
 
             def check(st=st, plant=plant):
                 return verify_day(plant, st.schedule_by_zone(), st.figures(), st.m)
 
             self.progress.phase(f"verifying load day {day.id}: the schedule re-simulated")
-            if self.options.hold_do:
-                st.result = r
-                out.append(hold_do(st, check, self.progress)["verification"])
-            else:
+            if not self.options.hold_do:
                 out.append(check()[0])
-            results.append(st.result if self.options.hold_do else r)
+                results.append(r)
+                continue
+            st.result = r
+            finer = refined_steps_per_period(plant.period_h, model_steps_per_period(plant, st.options))
+            hold = hold_do(st, check, self.progress, coarse=finer is not None)
+            ver = hold["verification"]
+            if hold["refine"]:
+                fine = self._refine(i, plant, hold, finer)
+                if fine is not None:
+                    st, ver = fine
+                    self.studies[i] = st
+            out.append(ver)
+            results.append(st.result)
         self.day_results = results
         return out
+
+    def _refine(self, i: int, plant: ResolvedPlant, hold: dict, finer: int) -> tuple | None:
+        """Day ``i`` solved again on ``finer`` model steps per period for the grid of ``plant`` (its counts fixed):
+        (the refined study, its verification), or None with a note when it gives no schedule (the coarse one stays,
+        unverified).
+
+        As ``optimize`` does for coarse steps (:mod:`airtaper.optimize.backoff`, "Coarse model steps"): a study on
+        the finer steps started from the coarse schedule's re-simulated day, then its back-off rounds and the
+        verification. Its solve is the design's own (:meth:`_two_phase`): that start breaks the DO range the
+        coarse schedule left (by up to 0.67 mg/L on the demo), and ``optimize``'s run from it crawled on the demo's
+        average day (the dual infeasibility at 3e13 by iteration 60, 10 s an iteration at a load of 6) where the
+        two phases settle. The day's uniform-DO baseline is the design's (the same objective scale)."""
+        st, day = self.studies[i], self.days[i]
+        step_h = plant.period_h / model_steps_per_period(plant, st.options)
+        fine_h = plant.period_h / finer
+        self.progress.phase(f"load day {day.id}: the back-off could not hold the DO range on {step_h:g}-hour model "
+                            f"steps ({hold['refine_reason']}); solving it again on {fine_h:g}-hour steps for the "
+                            "chosen grid")
+        t0 = time.perf_counter()
+        fine = DiurnalOptimisation(plant, replace(st.options, steps_per_period=finer), self.progress,
+                                   baseline=st.run_baseline(), start=hold["day"])
+        fine.build()
+        rungs = [replace(rung, options={**rung.options, "max_iter": self.options.max_iter}) for rung in LADDER[:2]]
+        runs, reason, _ = self._two_phase(fine, rungs[0], "first")
+        if reason is None and not runs[-1].ok:
+            more, reason, _ = self._two_phase(fine, rungs[1], "restart")
+            runs += more
+        r = runs[-1]
+        self.timings["ipopt_s"] = self.timings.get("ipopt_s", 0.0) + sum(x.timings.ipopt_s for x in runs)
+        self.timings["iterations"] = self.timings.get("iterations", 0) + sum(x.iterations for x in runs)
+        ver = None
+        if reason is None and r.ok:
+            fine.result = r
+
+            def check():
+                return verify_day(plant, fine.schedule_by_zone(), fine.figures(), fine.m)
+
+            ver = hold_do(fine, check, self.progress)["verification"]
+        self.timings["refined_s"] = self.timings.get("refined_s", 0.0) + time.perf_counter() - t0
+        if ver is None:
+            self.notes.append(f"load day {day.id}: solving again on {fine_h:g}-hour model steps gave no schedule ("
+                              + (reason or f"the solver: {r.message}") + f"); the {step_h:g}-hour schedule is "
+                              "reported")
+            return None
+        self.notes.append(f"load day {day.id}: solved on {fine_h:g}-hour model steps for the chosen grid: on "
+                          f"{step_h:g}-hour steps the back-off could not hold the DO range ({hold['refine_reason']})")
+        self.refined[day.id] = fine_h
+        return fine, ver
 
 
 @dataclass
@@ -898,9 +976,9 @@ class DesignResult:
     binding: pd.DataFrame | None = None  # binding.csv: one row per zone, load day and limit whose dual is not zero
 
 
-def _day_rows(g: GridDesign, label: str) -> dict[str, dict]:
+def _day_rows(g: GridDesign, label: str, days: list[int] | None = None) -> dict[str, dict]:
     rows = {}
-    for f in g.day_figures():
+    for f in g.day_figures(days):
         d = f["day"]
         rows[d.id] = {f"energy_kWh_per_day_{label}": f["energy_kWh_per_day"],
                       f"cost_per_day_{label}": f["cost_per_day"],
@@ -909,8 +987,9 @@ def _day_rows(g: GridDesign, label: str) -> dict[str, dict]:
     return rows
 
 
-def _annual(g: GridDesign, rows: dict, label: str, what: str) -> float:
-    return sum(d.days_per_year * rows[d.id][f"{what}_{label}"] for d in g.days)
+def _annual(g: GridDesign, rows: dict, label: str, what: str, days=None) -> float:
+    """The year's sum of ``what`` over ``days`` (load days; default every one), each times its days per year."""
+    return sum(d.days_per_year * rows[d.id][f"{what}_{label}"] for d in (g.days if days is None else days))
 
 
 def run_design(layout: ResolvedPlant | Layout, options: DesignOptions | None = None, progress: Progress | None = None
@@ -945,20 +1024,27 @@ def run_design(layout: ResolvedPlant | Layout, options: DesignOptions | None = N
                          + ")") + ("; load day(s) not met: " + ", ".join(failed) if failed else "")
                         + " (candidates.csv lists the grids tried)")
         return _no_design(g, base, status, messages, t0)
-    current = g.evaluate(g.current)
+    # the current grid on every day, also after one it cannot meet: it is compared on the days it meets
+    g.evaluate(g.current, every_day=True)
+    solves = g._solved[g._key(g.current)]
+    met = [i for i, s in enumerate(solves) if s.ok]
+    not_met = {g.days[i].id: s.reason or f"not solved ({s.status})" for i, s in enumerate(solves) if not s.ok}
     current_rows = None
-    if current.annual_cost is not None:
-        g.load(g.current)
-        current_rows = _day_rows(g, "current")
-    else:
-        messages.append("the current grid cannot meet every load day's limits: no payback against it (load day "
-                        f"{current.failed_day}" + (f": {current.reason}" if current.reason else "") + ")")
+    if met:
+        g.load(g.current, days=met)
+        current_rows = _day_rows(g, "current", met)
+    if not_met:
+        messages.append("the current grid cannot meet load day(s) " + "; ".join(
+            f"{d}: {why}" for d, why in not_met.items()) + (
+            ": the payback and net present value compare the grids on the other load days only" if met else
+            ": no payback against it"))
     best = g.search()
     if best is None:
         messages.append("no whole-count grid near the continuous optimum meets every load day's limits")
         return _no_design(g, base, "infeasible", messages, t0)
     g.load(best.counts)
     verification = g.verify(best.counts) if g.options.verify else None  # the DO held first: the days' schedules
+    messages.extend(g.notes)
     design_rows = _day_rows(g, "design")
     binding, binding_rows = g.binding(best.counts)
     designed = with_grid_counts(lay, best.counts)
@@ -976,7 +1062,7 @@ def run_design(layout: ResolvedPlant | Layout, options: DesignOptions | None = N
     days = []
     for i, (d, st) in enumerate(zip(g.days, g.studies)):
         row = {"load_day": d.id, "days_per_year": d.days_per_year, **design_rows[d.id]}
-        if current_rows is not None:
+        if current_rows is not None and d.id in current_rows:
             row.update(current_rows[d.id])
         if verification is not None:
             v = verification[i]
@@ -993,26 +1079,35 @@ def run_design(layout: ResolvedPlant | Layout, options: DesignOptions | None = N
     schedule = pd.concat(sched, ignore_index=True)
     candidates = candidate_table(g)
 
-    def totals(rows, label, counts):
+    def totals(rows, label, counts, days=None):
         capital = grid_capital(cap, counts)
-        energy_cost = _annual(g, rows, label, "cost_per_day")
+        energy_cost = _annual(g, rows, label, "cost_per_day", days)
         return {"counts": dict(counts), "capital": capital, "capital_per_year": g.crf * capital,
-                "energy_kWh_per_year": _annual(g, rows, label, "energy_kWh_per_day"),
+                "energy_kWh_per_year": _annual(g, rows, label, "energy_kWh_per_day", days),
                 "energy_cost_per_year": energy_cost, "annual_cost": g.crf * capital + energy_cost,
                 "diffusers": int(sum(counts.values()))}
 
     design_tot = totals(design_rows, "design", best.counts)
     design_tot["relaxed_counts"] = dict(g.relaxed)
-    current_tot = totals(current_rows, "current", g.current) if current_rows is not None else None
-    comparison = None
-    if current_tot is not None:
+    current_tot, comparison = None, None
+    if current_rows is not None:
+        # on the days the current grid meets (every day when it meets them all): its energy there against the
+        # designed grid's on the same days
+        compared = [g.days[i] for i in met]
+        current_tot = totals(current_rows, "current", g.current, compared)
+        current_tot["load_days_not_met"] = not_met
+        same = totals(design_rows, "design", best.counts, compared)
         extra = design_tot["capital"] - current_tot["capital"]
-        saving = current_tot["energy_cost_per_year"] - design_tot["energy_cost_per_year"]
+        saving = current_tot["energy_cost_per_year"] - same["energy_cost_per_year"]
         comparison = {"extra_capital": extra, "energy_saving_per_year": saving,
-                      "energy_saving_kWh_per_year": current_tot["energy_kWh_per_year"]
-                      - design_tot["energy_kWh_per_year"],
+                      "energy_saving_kWh_per_year": current_tot["energy_kWh_per_year"] - same["energy_kWh_per_year"],
                       "payback_years": simple_payback_years(extra, saving),
-                      "net_present_value": net_present_value(extra, saving, cap.interest_rate, cap.life_years)}
+                      "net_present_value": net_present_value(extra, saving, cap.interest_rate, cap.life_years),
+                      "design_energy_cost_per_year_compared": same["energy_cost_per_year"],
+                      "design_energy_kWh_per_year_compared": same["energy_kWh_per_year"],
+                      "load_days_compared": [d.id for d in compared],
+                      "days_per_year_compared": float(sum(d.days_per_year for d in compared)),
+                      "load_days_not_met_by_current": not_met}
     verified = None if verification is None else all(v["verified"] for v in verification)
     status = "optimal" if verified is not False else "unverified"
     if verified is False:

@@ -453,6 +453,8 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
             result = study.result
             if hold["resolve_failed"]:
                 messages.append("the DO back-off could not be applied in full: the re-solve failed")
+            elif hold["stalled"] and not hold["refine"]:
+                messages.append(f"the DO back-off stopped after {hold['rounds']} rounds: {hold['stop_reason']}")
             if hold["max_excursions_mg_L"]:
                 messages.append("the DO maximum gave way to the minimum (both could not be backed off at once): "
                                 "the re-simulated DO is above the maximum by " + ", ".join(

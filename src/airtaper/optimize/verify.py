@@ -113,8 +113,7 @@ def verify_day(plant: ResolvedPlant, schedule: dict, optimiser_figures: dict, m=
                                    if plant.zone(r.zone).do_min_mg_L is not None and plant.has_diffusers(r.zone)
                                    and plant.zone(r.zone).kind == "aerated"), default=None),
         # the DO maximum alone: the maximum less the highest DO over continuous time, the smallest over the zones
-        "do_max_margin_mg_L": min((hi - float(day.do_extremes.loc[day.do_extremes.zone == z, "do_max_mg_L"].max())
-                                   for z, (_lo, hi) in do_limits(plant).items() if hi is not None), default=None),
+        "do_max_margin_mg_L": do_max_margin(plant, day.do_extremes),
         "method": "effluent means integrated over the day (quadrature of the dense output); "
                   "DO extremes over continuous time",
         "violations": broken,
@@ -124,6 +123,18 @@ def verify_day(plant: ResolvedPlant, schedule: dict, optimiser_figures: dict, m=
         "periodic": day.converged,
         "seconds": day.seconds,
     }, day
+
+
+def do_max_margin(plant: ResolvedPlant, do_extremes) -> float | None:
+    """The DO maximum alone: the maximum less the highest DO over continuous time, the smallest over the zones
+    with a maximum (None when no zone has one). A zone with a maximum but no rows in ``do_extremes`` (the
+    simulated day's extremes per zone and period) has no simulated DO to judge and is left out, not NaN."""
+    margins = []
+    for z, (_lo, hi) in do_limits(plant).items():
+        rows = do_extremes.loc[do_extremes.zone == z, "do_max_mg_L"]
+        if hi is not None and len(rows):
+            margins.append(hi - float(rows.max()))
+    return min(margins, default=None)
 
 
 def swing_do_margins(plant: ResolvedPlant, lows_by_period: dict, swing_states: dict | None) -> dict:
@@ -146,4 +157,4 @@ def swing_do_margins(plant: ResolvedPlant, lows_by_period: dict, swing_states: d
     return out
 
 
-__all__ = ["DAY_REPEAT_TOL", "LEAD_IN_h", "lead_in_periods", "start_state_of", "swing_do_margins", "verify_day"]
+__all__ = ["DAY_REPEAT_TOL", "LEAD_IN_h", "do_max_margin", "lead_in_periods", "start_state_of", "swing_do_margins", "verify_day"]

@@ -2,9 +2,20 @@
 
 Written once for floats, numpy arrays and Pyomo expressions (:mod:`airtaper.physics.backend`):
 the simulator's layered clarifier and the Pyomo model's compute their settling fluxes with the
-same two functions (:func:`gravity_flux_g_m2_d`, :func:`interface_flux_g_m2_d`), so the
-verification simulates the equations the optimiser solved; the overload check uses the
+same functions (:func:`flux_peak_tss_g_m3`, :func:`sending_flux_g_m2_d`,
+:func:`receiving_flux_g_m2_d`, :func:`gravity_flux_g_m2_d`, :func:`interface_flux_g_m2_d`), so
+the verification simulates the equations the optimiser solved; the overload check uses the
 velocity and the limiting flux.
+
+The flux between two layers is the consistent (Godunov) numerical flux of the gravity flux
+``f(X) = vs(X) X`` (Bürger, Diehl & Nopens 2011): the least of ``f`` over ``[X_up, X_dn]`` when
+the concentration rises downwards and the largest of ``f`` over ``[X_dn, X_up]`` when it falls.
+For ``f`` that rises to one maximum at ``X_M`` and falls after it, that is
+``min(f(min(X_up, X_M)), f(max(X_dn, X_M)))``: the upper layer's flux capped at the maximum
+(what it can send) against the lower layer's flux floored at it (what it can take). Where the
+concentration rises downwards it equals Takacs' ``min(f(X_up), f(X_dn))``; where it falls it
+differs, and there Takacs' minimum had a kink wherever two layers below the flux maximum had
+nearly equal concentrations (a zig-zag profile flips which layer sets the flux).
 
 References
 ----------
@@ -13,6 +24,10 @@ clarification-thickening process. Water Research 25(10), 1263-1271,
 doi:10.1016/0043-1354(91)90066-Y (double-exponential settling velocity, eq. 4; the layered
 flux model: the settling flux between two layers the lesser of their gravity fluxes below the
 feed and above it while the lower layer is under the threshold concentration).
+Bürger, R., Diehl, S., Nopens, I. (2011). A consistent modelling methodology for secondary
+settling tanks in wastewater treatment. Water Research 45(6), 2247-2260,
+doi:10.1016/j.watres.2011.01.020 (the Godunov numerical flux of the hindered-settling flux
+between layers; the doi from memory).
 Chen, C., Mangasarian, O.L. (1996). A class of smoothing functions for nonlinear and mixed
 complementarity problems. Computational Optimization and Applications 5(2), 97-138,
 doi:10.1007/BF00249052 (the smooth minimum; from memory).
@@ -24,10 +39,13 @@ theory: the limiting flux of the thickening zone; from memory).
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import numpy as np
+from scipy.optimize import brentq
 
 from airtaper.physics.backend import exp, is_pyomo, sqrt
-from airtaper.physics.smooth import smooth_max, smooth_step
+from airtaper.physics.smooth import smooth_max, smooth_min, smooth_step
 
 
 #: Largest exponent the velocity evaluates for numbers (e**40 ~ 2e17: finite, and its square too).
@@ -43,6 +61,11 @@ FLUX_RELATIVE_WIDTH = 1e-2
 FLUX_WIDTH_FLOOR_g_m2_d = 1.0
 #: Width of the switch at the threshold concentration X_t relative to X_t. Common practice (no source).
 THRESHOLD_RELATIVE_WIDTH = 1e-3
+#: Width of the smooth cap of a layer's concentration at the flux maximum X_M (see
+#: :func:`sending_flux_g_m2_d`) relative to X_M. ``f`` is flat at ``X_M``, so the cap is already once
+#: differentiable; the smoothing only makes it twice so, and shifts a layer far below ``X_M`` by
+#: ``w^2 / (4 (X_M - X))`` (5e-4 g/m3 at BSM1's plateau). Common practice (no source).
+PEAK_RELATIVE_WIDTH = 1e-3
 
 
 def takacs_velocity_m_d(tss_g_m3, tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g, smoothing_m_d=0.0):
@@ -91,24 +114,130 @@ def gravity_flux_g_m2_d(tss_g_m3, tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_
     return v * tss_g_m3
 
 
-def interface_flux_g_m2_d(flux_above_g_m2_d, flux_below_g_m2_d, tss_below_g_m3=None, x_threshold_g_m3=None):
-    """Settling flux from a layer to the one below it, g/(m2 d) (Takacs et al. 1991), smoothed.
+@lru_cache(maxsize=64)
+def _flux_peak_at_no_floor(v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g) -> tuple[float, float]:
+    """``(x0, x_c)``, g/m3 above the non-settleable solids: the unclamped flux's maximum with
+    ``Xmin = 0`` and the end of the velocity clamp at ``v0'`` (0 where the velocity never reaches it).
 
-    Parameters
-    ----------
-    flux_above_g_m2_d, flux_below_g_m2_d : float, ndarray or Pyomo expression
-        Gravity fluxes ``vs X`` of the upper and the lower layer (:func:`gravity_flux_g_m2_d`).
-    tss_below_g_m3, x_threshold_g_m3 : optional
-        For an interface above the feed layer (clarification zone): the lower layer's solids and the
-        threshold concentration ``X_t``, g/m3. Omitted (None) at and below the feed layer.
+    Both are roots of smooth scalar functions in brackets where they change sign (brentq: cannot
+    stall). ``x0`` solves ``f'(x) = u'(x) x + u(x) = 0`` with ``u = v0 (e^-rh x - e^-rp x)``: ``f' = u
+    > 0`` where ``u`` peaks, at ``x_u = ln(rp / rh) / (rp - rh)``, and ``f' < 0`` for large ``x``.
+    """
+    if rp_m3_g <= rh_m3_g:  # the velocity is 0 at every concentration: no flux, any X_M will do
+        return 0.0, 0.0
+
+    def u(x):
+        return v0_m_d * (np.exp(-rh_m3_g * x) - np.exp(-rp_m3_g * x))
+
+    def df(x):
+        return v0_m_d * (-rh_m3_g * np.exp(-rh_m3_g * x) + rp_m3_g * np.exp(-rp_m3_g * x)) * x + u(x)
+
+    x_u = np.log(rp_m3_g / rh_m3_g) / (rp_m3_g - rh_m3_g)
+    hi = 2.0 * x_u + 2.0 / rh_m3_g
+    while df(hi) >= 0.0:
+        hi *= 2.0
+    x0 = brentq(df, x_u, hi, xtol=1e-12, rtol=1e-14)
+    x_c = 0.0
+    if u(x_u) > v0_max_m_d:  # the clamp is active from below x_u up to x_c on the falling side
+        hi = x_u + 1.0 / rh_m3_g
+        while u(hi) >= v0_max_m_d:
+            hi *= 2.0
+        x_c = brentq(lambda x: u(x) - v0_max_m_d, x_u, hi, xtol=1e-12, rtol=1e-14)
+    return float(x0), float(x_c)
+
+
+def flux_peak_tss_g_m3(tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g):
+    """Concentration ``X_M`` where the gravity flux ``f(X) = vs(X) X`` is largest, g/m3.
+
+    Parameters as :func:`takacs_velocity_m_d` (``tss_min_g_m3`` may be a model variable).
 
     Notes
     -----
-    The layered model takes the lesser of the two gravity fluxes, and above the feed the upper
-    layer's own flux while the lower layer is under ``X_t``::
+    With ``x = X - Xmin`` and the unclamped velocity ``u(x) = v0 (e^-rh x - e^-rp x)``, the flux
+    ``u(x) (x + Xmin)`` is largest where ``g(x) = u'(x) (x + Xmin) + u(x) = 0``; no closed form.
+    Its root ``x0`` for ``Xmin = 0`` is found once per parameter set (a bracketed root,
+    :func:`_flux_peak_at_no_floor`), then one chord step on ``g`` from ``x0`` with the actual
+    ``Xmin`` and the slope ``g'(x0)`` of ``Xmin = 0``: ``x* ~ x0 - u'(x0) Xmin / g'(x0)``, linear in
+    ``Xmin`` (its first-order change; a Newton step has ``Xmin`` in its denominator, which turns
+    sign for large ``Xmin``, and a second step nests exponentials of ``Xmin`` that every flux
+    between layers repeats dozens of times in Pyomo's expression tree). Measured against a
+    bracketed root with BSM1's parameters: 0.004, 0.07, 0.44, 1.8 and 17 g/m3 off for ``Xmin`` = 5,
+    20, 50, 100 and 300 g/m3 (BSM1: ``fns X_f`` ~ 7; about 0.6 at 50 and 2.4 at 100 for rh 1e-3,
+    rp 7e-3). The flux is flat at its maximum, so such an error changes the fluxes by ``|f''|
+    err^2 / 2`` (``|f''|`` ~ 0.1 for BSM1: < 0.2 g/(m2 d) against ~3e5 at 1.8 g/m3) and leaves a
+    slope of ``f'' err`` (< 0.2 m/d against ~200 m/d) where the cap sets in.
+    Where the velocity is clamped at ``v0'`` over the unclamped maximum (``x* < x_c``, the clamp's
+    end on the falling side), ``f = v0' X`` still rises up to ``x_c``, so the maximum is at ``x_c``:
+    ``X_M = Xmin + max(x*, x_c)``, a smooth maximum of width :data:`PEAK_RELATIVE_WIDTH` ``x_c``.
+    """
+    x0, x_c = _flux_peak_at_no_floor(float(v0_max_m_d), float(v0_m_d), float(rh_m3_g), float(rp_m3_g))
+    if x0 == 0.0:
+        return tss_min_g_m3 + 0.0
+    rh, rp, v0 = float(rh_m3_g), float(rp_m3_g), float(v0_m_d)
+    e_h, e_p = np.exp(-rh * x0), np.exp(-rp * x0)
+    du = v0 * (-rh * e_h + rp * e_p)
+    d2u = v0 * (rh**2 * e_h - rp**2 * e_p)
+    # one chord step from x0: g(x0) = u'(x0) Xmin (g vanishes there for Xmin = 0), g' at Xmin = 0 (< 0)
+    x = x0 - du * tss_min_g_m3 / (d2u * x0 + 2.0 * du)
+    if x_c > 0.0:
+        x = smooth_max(x, x_c, PEAK_RELATIVE_WIDTH * x_c)
+    return tss_min_g_m3 + x
+
+
+def _peak_width_g_m3(v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g) -> float:
+    x0, x_c = _flux_peak_at_no_floor(float(v0_max_m_d), float(v0_m_d), float(rh_m3_g), float(rp_m3_g))
+    return PEAK_RELATIVE_WIDTH * max(x0, x_c, 1.0)
+
+
+def sending_flux_g_m2_d(tss_g_m3, tss_min_g_m3, x_peak_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g):
+    """Largest flux a layer can pass down, g/(m2 d): ``f(min(X, X_M))``, the cap smoothed.
+
+    ``x_peak_g_m3`` is :func:`flux_peak_tss_g_m3`; other parameters as :func:`gravity_flux_g_m2_d`.
+    Below ``X_M`` it is the layer's own gravity flux, above it the flux maximum ``f(X_M)``.
+    """
+    capped = smooth_min(tss_g_m3, x_peak_g_m3, _peak_width_g_m3(v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g))
+    return gravity_flux_g_m2_d(capped, tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g)
+
+
+def receiving_flux_g_m2_d(tss_g_m3, tss_min_g_m3, x_peak_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g):
+    """Largest flux a layer can take from above, g/(m2 d): ``f(max(X, X_M))``, the floor smoothed.
+
+    Parameters as :func:`sending_flux_g_m2_d`. Above ``X_M`` it is the layer's own gravity flux,
+    below it the flux maximum ``f(X_M)``.
+    """
+    floored = smooth_max(tss_g_m3, x_peak_g_m3, _peak_width_g_m3(v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g))
+    return gravity_flux_g_m2_d(floored, tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g)
+
+
+def interface_flux_g_m2_d(sending_above_g_m2_d, receiving_below_g_m2_d, tss_below_g_m3=None, x_threshold_g_m3=None,
+                          flux_above_g_m2_d=None):
+    """Settling flux from a layer to the one below it, g/(m2 d): the Godunov flux, smoothed.
+
+    Parameters
+    ----------
+    sending_above_g_m2_d : float, ndarray or Pyomo expression
+        :func:`sending_flux_g_m2_d` of the upper layer.
+    receiving_below_g_m2_d : float, ndarray or Pyomo expression
+        :func:`receiving_flux_g_m2_d` of the lower layer.
+    tss_below_g_m3, x_threshold_g_m3, flux_above_g_m2_d : optional
+        For an interface above the feed layer (clarification zone): the lower layer's solids, the
+        threshold concentration ``X_t``, g/m3, and the upper layer's own gravity flux
+        (:func:`gravity_flux_g_m2_d`). Omitted (None) at and below the feed layer.
+
+    Notes
+    -----
+    With ``a`` the upper layer's sending flux and ``b`` the lower layer's receiving flux, the
+    Godunov flux of Bürger, Diehl & Nopens (2011) is ``min(a, b)`` (see the module notes); above
+    the feed Takacs et al. (1991) take the upper layer's own flux ``f_up`` while the lower layer is
+    under ``X_t``::
 
         J = min(a, b)                                     at and below the feed
-        J = a if X_below <= X_t else min(a, b)            above it
+        J = f_up if X_below <= X_t else min(a, b)         above it
+
+    Above the feed, the threshold rule is Takacs' model of clarification (and part of the BSM1
+    definition) and stays; where it hands over to thickening (a blanket above the feed, an
+    overloaded clarifier) it hands over to the same Godunov flux as below the feed, for the same
+    reason: Takacs' ``min(f_up, f_down)`` has a kink wherever the profile zig-zags.
 
     Here ``min`` is the smooth minimum (the CHKS function, Chen & Mangasarian 1996)::
 
@@ -120,25 +249,30 @@ def interface_flux_g_m2_d(flux_above_g_m2_d, flux_below_g_m2_d, tss_below_g_m3=N
 
         J = (1 - step(X_below - X_t)) a + step(X_below - X_t) smin(a, b)
 
-    The smoothing is a numerical regularisation, not physics: below a flux-limited feed several
-    layers sit at one concentration, that is exactly on the kink of ``min``, and a width far
-    below the fluxes' scale (a fixed 1 g/(m2 d) against fluxes of ~1e5) left Newton's and Ipopt's
-    linear model valid only within ~0.003 g/m3 there. Scaled with the fluxes, the minimum is
-    smooth at the scale the solvers see (eps = 1e-3 was still too sharp: the model's own time
-    steps on the demo with a layered clarifier did not converge where the blanket front crossed
-    a layer; 1e-2 does). It is never more than ``s / 2`` below the exact minimum (``eps /
-    sqrt(2)``, 0.7 %, where the two fluxes are equal), less than ``s^2 / (4 |a - b|)`` away from
-    the kink: on the BSM1 open-loop steady state it lifts the flat layers below the feed by
-    about 0.5 % (357.2 to 358.4 against 356.07 g/m3) and moves the reactors and the effluent by
-    less than the benchmark table's 1e-3 (tests/simulate/test_bsm1.py).
+    The smoothing is a numerical regularisation, not physics. With Takacs' minimum of the two
+    layers' own fluxes, several layers at one concentration below a flux-limited feed sat
+    exactly on the kink of ``min``, and a width far below the fluxes' scale (a fixed 1 g/(m2 d)
+    against fluxes of ~1e5) left Newton's and Ipopt's linear model valid only within ~0.003 g/m3
+    there. Scaled with the fluxes, the minimum is smooth at the scale the solvers see (eps = 1e-3
+    was still too sharp: the model's own time steps on the demo with a layered clarifier did not
+    converge where the blanket front crossed a layer; 1e-2 does). It is never more than ``s / 2``
+    below the exact minimum (``eps / sqrt(2)``, 0.7 %, where the two fluxes are equal), less than
+    ``s^2 / (4 |a - b|)`` away from the kink. With the Godunov flux the kink is left only where
+    the upper layer is below ``X_M`` and the lower one above it (across a blanket): on the BSM1
+    open-loop steady state the flux from layer 9 into the blanket sits there (f(356) ~ f(6394)) and
+    layer 9 is lifted by 0.3 % (357.25 against 356.07 g/m3), while layers 5-8 sit at 356.108
+    (Takacs' minimum had lifted all five, alternating, to 357.2-358.4); the reactors and the
+    effluent move by far less than the benchmark table's 1e-3 (tests/simulate/test_bsm1.py).
     """
-    a, b = flux_above_g_m2_d, flux_below_g_m2_d
+    a, b = sending_above_g_m2_d, receiving_below_g_m2_d
     width_sq = FLUX_RELATIVE_WIDTH**2 * (a**2 + b**2) + FLUX_WIDTH_FLOOR_g_m2_d**2
     lesser = 0.5 * (a + b - sqrt((a - b) ** 2 + width_sq))
     if tss_below_g_m3 is None:
         return lesser
+    if flux_above_g_m2_d is None:
+        raise ValueError("interface_flux_g_m2_d: above the feed it needs flux_above_g_m2_d")
     switch = smooth_step(tss_below_g_m3 - x_threshold_g_m3, THRESHOLD_RELATIVE_WIDTH * x_threshold_g_m3)
-    return (1.0 - switch) * a + switch * lesser
+    return (1.0 - switch) * flux_above_g_m2_d + switch * lesser
 
 
 def limiting_solids_flux_g_m2_d(underflow_velocity_m_d, tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g,

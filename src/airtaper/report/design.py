@@ -142,6 +142,14 @@ def design_html(summary: dict, zones, days, images: dict, binding=None) -> str:
                 ["diffusers", fmt(d["diffusers"], 0), fmt(c["diffusers"], 0) if c else "-"]]
         body.append("<h2>Designed grid against the current grid</h2>"
                     + _table(["figure (" + cur + ")", "designed", "current"], rows))
+        if comp is not None and comp.get("load_days_not_met_by_current"):
+            body.append("<p><strong>The current grid cannot meet every load day:</strong> " + "; ".join(
+                f"{html.escape(k)}: {html.escape(v)}" for k, v in comp["load_days_not_met_by_current"].items())
+                + ". Its energy above, and the saving, payback and net present value below, are over the load days "
+                f"it meets ({html.escape(', '.join(comp['load_days_compared']))}: "
+                f"{fmt(comp['days_per_year_compared'], 0)} days a year), where the designed grid's energy costs "
+                f"{fmt(comp['design_energy_cost_per_year_compared'], 0)} {html.escape(cur)} per year; on the other "
+                "days the current grid breaks a limit, which no saving figure shows.</p>")
         if comp is not None:
             pb = comp["payback_years"]
             body.append(f"<p>Extra capital {fmt(comp['extra_capital'], 0)} {html.escape(cur)}, energy saving "
@@ -295,6 +303,11 @@ def design_console(summary: dict) -> str:
             lines.append(f"against current   extra capital {fmt(comp['extra_capital'], 0)} {cur}, saving "
                          f"{fmt(comp['energy_saving_per_year'], 0)} {cur}/year, payback "
                          f"{'never' if pb is None else fmt(pb, 1) + ' years'}, NPV {fmt(comp['net_present_value'], 0)}")
+            if comp.get("load_days_not_met_by_current"):
+                lines.append("                  on the load days the current grid meets ("
+                             f"{', '.join(comp['load_days_compared'])}: "
+                             f"{fmt(comp['days_per_year_compared'], 0)} days a year); it cannot meet "
+                             + ", ".join(comp["load_days_not_met_by_current"]))
         for z, why in (summary.get("binding") or {}).items():
             lines.append(f"{z:<18}" + "; ".join(why))
     lines += [f"note              {m}" for m in summary.get("messages", [])]

@@ -16,15 +16,16 @@ bulk flow up (``v_up = Q_e/A``) above the feed and down (``v_dn = Q_u/A``)
 below it; gravity flux of solids between layer ``i`` and the one below
 ``i+1``::
 
-    J = min(vs_i X_i, vs_i+1 X_i+1)                   at and below the feed layer
-    J = vs_i X_i  if X_i+1 <= X_t  else  the same min  above the feed layer
+    J = min(f(min(X_i, X_M)), f(max(X_i+1, X_M)))       at and below the feed layer
+    J = f(X_i)  if X_i+1 <= X_t  else  the same min      above the feed layer
+    f(X) = vs(X) X,  X_M where f is largest,
     vs(X) = max(0, min(v0', v0 (exp(-rh (X - X_min)) - exp(-rp (X - X_min))))),
     X_min = fns X_feed
 
-with ``min``, ``max`` and the switch smoothed exactly as in the Pyomo model: both compute the
-fluxes with :func:`airtaper.physics.settling.gravity_flux_g_m2_d` and
-:func:`~airtaper.physics.settling.interface_flux_g_m2_d` (a smooth minimum whose width scales
-with the fluxes; see there how far it moves the result).
+(the Godunov flux of Bürger, Diehl & Nopens 2011; for a concentration rising downwards it is
+Takacs' ``min(f(X_i), f(X_i+1))``), with ``min``, ``max`` and the switch smoothed exactly as in
+the Pyomo model: both compute the fluxes with the functions of :mod:`airtaper.physics.settling`
+(see there the sources and how far the smoothing moves the result).
 
 with X the suspended solids (``tss_per_cod`` times the particulate COD).
 Each particulate component moves with the solids flux in proportion to its
@@ -61,7 +62,8 @@ import scipy.sparse as sp
 from airtaper import units
 from airtaper.layout.types import ASM1_COMPONENTS
 from airtaper.physics.settling import (
-    gravity_flux_g_m2_d, interface_flux_g_m2_d, limiting_solids_flux_g_m2_d, takacs_velocity_m_d,
+    flux_peak_tss_g_m3, gravity_flux_g_m2_d, interface_flux_g_m2_d, limiting_solids_flux_g_m2_d,
+    receiving_flux_g_m2_d, sending_flux_g_m2_d, takacs_velocity_m_d,
 )
 from airtaper.process.stoichiometry import (
     IDX, PARTICULATES, SOLIDS_COD, cod_composition, cod_of_n2, n2_yield, n_composition,
@@ -187,11 +189,15 @@ class System:
         if self.layered:
             A, f, L = self.area, self.feed, self.n_layers
             vup, vdn = qe / A, qu / A
-            js = gravity_flux_g_m2_d(X, self.fns * xf, self.v0max, self.v0, self.rh, self.rp)
+            settling = (self.fns * xf, self.v0max, self.v0, self.rh, self.rp)
+            xm = flux_peak_tss_g_m3(*settling)
+            send = sending_flux_g_m2_d(X[:-1], settling[0], xm, *settling[1:])
+            take = receiving_flux_g_m2_d(X[1:], settling[0], xm, *settling[1:])
             J = np.empty((L - 1, m))
-            J[f:] = interface_flux_g_m2_d(js[f:-1], js[f + 1:])
+            J[f:] = interface_flux_g_m2_d(send[f:], take[f:])
             if f > 0:
-                J[:f] = interface_flux_g_m2_d(js[:f], js[1:f + 1], X[1:f + 1], self.xt)
+                js = gravity_flux_g_m2_d(X[:f], *settling)
+                J[:f] = interface_flux_g_m2_d(send[:f], take[:f], X[1:f + 1], self.xt, js)
             frac = Cs[PART] / np.maximum(X, _TINY_X)
             F = J[None] * frac[:, :-1]
             dS = np.empty_like(Cs)
