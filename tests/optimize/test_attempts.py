@@ -201,7 +201,7 @@ def test_the_solve_budget_hands_each_solve_what_is_left_and_counts_only_the_solv
 
     from airtaper.optimize.attempts import SolveBudget
 
-    b = SolveBudget(100.0)
+    b = SolveBudget(100.0, reserve_fraction=0.0)  # the reserve: test_the_solve_budget_keeps_a_reserve_...
     assert not b.exhausted and b.remaining() == 100.0 and b.options()["max_cpu_time"] == 100.0
     with b.charging():  # a "solve" that burns some CPU
         t = time.process_time()
@@ -215,3 +215,91 @@ def test_the_solve_budget_hands_each_solve_what_is_left_and_counts_only_the_solv
     assert b.spent == spent and b.remaining() == pytest.approx(100.0 - spent)
     b.spent += 150.0  # 150 CPU seconds of solving later
     assert b.exhausted and b.options()["max_cpu_time"] == SolveBudget.FLOOR_S
+
+
+def test_the_solve_budget_keeps_a_reserve_for_the_elastic_solve_until_a_schedule_exists():
+    # optimize/attempts.py, "Elastic reserve": the ladder may spend 70 %, the elastic solve the rest; once a
+    # solve gave a schedule the whole budget is there for the staging and back-off re-solves.
+    from airtaper.optimize.attempts import ELASTIC_RESERVE_FRACTION, SolveBudget
+
+    assert ELASTIC_RESERVE_FRACTION == 0.3
+    b = SolveBudget(100.0)
+    assert b.options()["max_cpu_time"] == pytest.approx(70.0)
+    assert b.options(elastic=True)["max_cpu_time"] == pytest.approx(100.0)
+    with b.charging():
+        pass
+    b.spent = 69.0  # the ladder's attempts so far
+    assert not b.exhausted and b.options()["max_cpu_time"] == pytest.approx(1.0)
+    b.spent = 71.0  # the last attempt ran to its limit (the CPU limit is checked between iterations)
+    assert b.exhausted and not b.spent_in_full
+    assert b.options()["max_cpu_time"] == SolveBudget.FLOOR_S  # no more rungs ...
+    assert b.options(elastic=True)["max_cpu_time"] == pytest.approx(29.0)  # ... but the elastic solve's reserve
+    b.release()  # a schedule exists
+    assert not b.exhausted and b.options()["max_cpu_time"] == pytest.approx(29.0)
+    b.spent = 100.5
+    assert b.exhausted and b.spent_in_full and b.options(elastic=True)["max_cpu_time"] == SolveBudget.FLOOR_S
+
+
+def _info(k, inf):
+    from airtaper.solve.ipopt import IterationInfo
+
+    return IterationInfo(iteration=k, objective=1.0, primal_infeasibility=inf, dual_infeasibility=1.0, mu=0.1,
+                         step_norm=1.0, alpha_primal=0.5, alpha_dual=0.5, restoration=False)
+
+
+def _feed(watch, history):
+    """Iterations of ``history`` fed to the watch until it asks to stop; the number fed."""
+    for k, inf in enumerate(history):
+        if watch(_info(k, inf)) is False:
+            return k + 1
+    return len(history)
+
+
+def test_the_stall_rule_stops_an_attempt_whose_infeasibility_does_not_fall_tenfold_in_150_iterations():
+    from airtaper.optimize.attempts import (STALL_FALL_FACTOR, STALL_INFEASIBILITY_MIN, STALL_WINDOW_ITERATIONS,
+                                            StallWatch)
+
+    assert (STALL_WINDOW_ITERATIONS, STALL_FALL_FACTOR, STALL_INFEASIBILITY_MIN) == (150, 10.0, 1e-4)
+    rng = np.random.default_rng(5)
+    # wandering between 1e-2 and 5e-2 (a restoration phase that does not find the feasible set): stopped at
+    # the first iteration where 150 iterations have passed
+    wander = 10.0 ** rng.uniform(-2.0, np.log10(5e-2), 600)
+    w = StallWatch()
+    assert _feed(w, wander) == STALL_WINDOW_ITERATIONS + 1 and w.stalled
+    assert "150 iterations" in w.message() and "10-fold" in w.message()
+    # falling slowly, but tenfold in every 150 iterations (a factor of 10**(1/140) per iteration): goes on
+    w = StallWatch()
+    falling = 1e2 * 10.0 ** (-np.arange(900) / 140.0)
+    assert _feed(w, falling) == len(falling) and not w.stalled
+    # fell fast, then flat, but near feasible (below 1e-4): improving the objective is never stopped
+    w = StallWatch()
+    assert _feed(w, np.r_[np.geomspace(1.0, 5e-5, 20), np.full(500, 5e-5)]) == 520 and not w.stalled
+    # flat above 1e-4 after a fast fall: stopped 150 iterations after the fall ended at most
+    w = StallWatch()
+    hist = np.r_[np.geomspace(10.0, 1e-3, 30), 1e-3 * (1.0 + 0.5 * rng.uniform(size=400))]
+    n = _feed(w, hist)
+    assert w.stalled and 30 < n <= 30 + STALL_WINDOW_ITERATIONS + 1
+    # NaN (an evaluation error Ipopt recovers from) neither stops the attempt nor breaks the rule
+    w = StallWatch()
+    assert _feed(w, np.r_[np.full(10, np.nan), falling[:300]]) == 310 and not w.stalled
+
+
+@pytest.mark.solver
+def test_a_stalled_attempt_ends_the_ladder_and_the_elastic_solve_takes_over(three_tank_6, monkeypatch):
+    """The stall rule's stop (forced here: any attempt that is not feasible after 3 iterations) ends the
+    ladder at its first rung; the elastic solve, not watched, gives the answer (optimize/attempts.py)."""
+    import airtaper.optimize.attempts as attempts
+    import airtaper.optimize.diurnal as diurnal
+
+    class Impatient(attempts.StallWatch):
+        def __init__(self):
+            super().__init__(window=3, factor=1e12, floor=1e-12)
+
+    monkeypatch.setattr(diurnal, "StallWatch", Impatient)
+    res = run_optimization(three_tank_6, StudyOptions(marginal=False, prescreen=False, hold_do=False, verify=False))
+    s = res.summary
+    rungs = [(a["rung"], a["status"]) for a in s["solver"]["attempts"]]
+    assert rungs[0] == ("baseline start", "stalled") and rungs[1][0] == "elastic", rungs
+    assert len(rungs) == 2 and rungs[1][1] in ("optimal", "acceptable"), rungs
+    assert any("did not settle" in m and "stall rule" in m for m in s["messages"]), s["messages"]
+    assert s["status"] == "optimal" and res.exit_code == 0  # the limits can be met: every slack at zero

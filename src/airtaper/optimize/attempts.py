@@ -45,11 +45,32 @@ ladder whose every rung fails slowly) then ends within the budget with a plain-w
 message and exit code 3 (:data:`airtaper.errors.EXIT_INFEASIBLE`) instead of running on:
 the study says it could not settle, never that the limits are infeasible. A study solved
 again on shorter model steps (:mod:`airtaper.optimize.backoff`) gets a budget of its own.
+
+Elastic reserve (:data:`ELASTIC_RESERVE_FRACTION`): until a solve has given a schedule, the ladder
+and every other solve may spend only 70 % of the budget; the last 30 % is kept for the elastic
+solve (:meth:`DiurnalOptimisation.elastic`), so that a plant the optimiser cannot settle is still
+diagnosed (which limit cannot be met, when and by how much) rather than ended with "budget spent".
+Before, a 12-zone plant at twice its design load (plant 23 of the robustness benchmark) spent all
+420 CPU seconds in four rungs (777 iterations) and ended in exit 3 with no diagnosis. Once a schedule
+exists (:meth:`SolveBudget.release`) the reserve is released: the staging and back-off re-solves
+that follow have a schedule to fall back on and need no diagnosis.
+
+Stall rule (:class:`StallWatch`, :data:`STALL_WINDOW_ITERATIONS`, :data:`STALL_FALL_FACTOR`,
+:data:`STALL_INFEASIBILITY_MIN`): an attempt whose (scaled) primal infeasibility has not fallen
+tenfold over the last 150 iterations while it is still above 1e-4 is stopped, and the ladder ends
+there: the elastic solve says what cannot be met. An attempt that converges reduces the
+infeasibility by orders of magnitude well within 150 iterations; one that wanders in restoration or
+creeps along a limit it cannot meet keeps it within a decade for hundreds (plant 23: 777 iterations
+over four rungs, no schedule). Restarting such a plant from another rung repeats the wander; the
+elastic solve does not (its slacks make it feasible). The rule watches feasibility only: an attempt
+that is near feasible (below 1e-4) and still improving its objective is never stopped by it. The
+elastic solve itself is not watched (it is the diagnosis).
 """
 
 from __future__ import annotations
 
 import time
+from collections import deque
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 
@@ -95,36 +116,101 @@ LADDER: tuple[Rung, ...] = (
 SOLVE_BUDGET_S = 420.0
 
 
+#: Share of the solve budget kept for the elastic solve until a schedule exists (module notes,
+#: "Elastic reserve"); of the default 420 s budget, 126 s.
+ELASTIC_RESERVE_FRACTION = 0.3
+
+#: Stall rule (module notes): the iterations over which the primal infeasibility must fall ...
+STALL_WINDOW_ITERATIONS = 150
+#: ... by at least this factor ...
+STALL_FALL_FACTOR = 10.0
+#: ... unless it is already below this (Ipopt's scaled constraint violation; the solves' ``tol`` is 1e-7,
+#: ``acceptable_tol`` 1e-5: below 1e-4 an attempt is near feasible and may take its time on the objective).
+STALL_INFEASIBILITY_MIN = 1e-4
+
+
+class StallWatch:
+    """Iteration callback that asks Ipopt to stop an attempt that does not approach feasibility (module notes).
+
+    Called with each iteration's :class:`~airtaper.solve.ipopt.IterationInfo`; returns False (stop) when the
+    primal infeasibility is above ``floor`` and has not fallen by ``factor`` since ``window`` iterations ago.
+    :attr:`stalled` then holds True and :meth:`message` says why.
+    """
+
+    def __init__(self, window: int = STALL_WINDOW_ITERATIONS, factor: float = STALL_FALL_FACTOR,
+                 floor: float = STALL_INFEASIBILITY_MIN):
+        self.window, self.factor, self.floor = int(window), float(factor), float(floor)
+        self.history: deque = deque(maxlen=self.window + 1)
+        self.stalled = False
+
+    def __call__(self, info) -> bool:
+        inf = float(info.primal_infeasibility)
+        self.history.append(inf)
+        if len(self.history) <= self.window or not np.isfinite(inf) or inf <= self.floor:
+            return True
+        if inf * self.factor > self.history[0]:  # not tenfold lower than `window` iterations ago
+            self.stalled = True
+            return False
+        return True
+
+    def message(self) -> str:
+        first, last = self.history[0], self.history[-1]
+        return (f"stopped: the constraint violation fell only from {first:.2e} to {last:.2e} in "
+                f"{self.window} iterations (stall rule: less than {self.factor:g}-fold while above "
+                f"{self.floor:g})")
+
+
 class SolveBudget:
     """One CPU-time budget shared by every Ipopt solve of an optimisation (module notes).
 
     Each solve runs inside :meth:`charging`, which adds the process's CPU time during the solve to
-    :attr:`spent`; :meth:`options` gives the next solve the rest as ``max_cpu_time``; :attr:`exhausted`
+    :attr:`spent`; :meth:`options` gives the next solve what it may spend as ``max_cpu_time``; :attr:`exhausted`
     tells the ladder to stop. Time between solves (simulation, dispatch, model build) is not counted.
+    Until :meth:`release` (a schedule exists) a share ``reserve_fraction`` is kept for the elastic solve:
+    the other solves see it as spent (module notes, "Elastic reserve").
     """
 
     #: Ipopt's ``max_cpu_time`` must be positive: a solve asked for after the budget is spent gets this, s.
     FLOOR_S = 1e-3
 
-    def __init__(self, seconds: float = SOLVE_BUDGET_S):
+    def __init__(self, seconds: float = SOLVE_BUDGET_S, reserve_fraction: float = ELASTIC_RESERVE_FRACTION):
         self.seconds = float(seconds)
+        self.reserve_s = float(reserve_fraction) * self.seconds
         self.spent = 0.0  # CPU seconds of the solves so far
         self.solves = 0
+        self.released = False  # True once a solve gave a schedule: no reserve any more
 
     def elapsed(self) -> float:
         """CPU seconds charged so far (the solves only)."""
         return self.spent
 
     def remaining(self) -> float:
+        """CPU seconds left of the whole budget (the reserve included)."""
         return max(self.seconds - self.spent, 0.0)
+
+    def available(self, elastic: bool = False) -> float:
+        """CPU seconds the next solve may spend: the rest less the reserve, unless it is the elastic solve or a
+        schedule exists."""
+        keep = 0.0 if (elastic or self.released) else self.reserve_s
+        return max(self.seconds - self.spent - keep, 0.0)
+
+    def release(self) -> None:
+        """A solve gave a schedule: the elastic reserve is no longer kept."""
+        self.released = True
 
     @property
     def exhausted(self) -> bool:
+        """True when the solves other than the elastic one have nothing left (the whole budget once released)."""
+        return self.solves > 0 and self.available() <= 0.0
+
+    @property
+    def spent_in_full(self) -> bool:
+        """True when nothing is left even for the elastic solve."""
         return self.solves > 0 and self.remaining() <= 0.0
 
-    def options(self) -> dict:
-        """Ipopt options of the next solve."""
-        return {"max_cpu_time": max(self.remaining(), self.FLOOR_S)}
+    def options(self, elastic: bool = False) -> dict:
+        """Ipopt options of the next solve (``elastic``: the elastic solve, which may spend the reserve)."""
+        return {"max_cpu_time": max(self.available(elastic), self.FLOOR_S)}
 
     @contextmanager
     def charging(self):
@@ -234,5 +320,6 @@ def simulated_steady_start(layout, airflow: dict) -> tuple[dict, dict | None]:
     return {"zones": zones, "layers": layers, "waste_m3_d": ss.q_waste_m3_d}, ss.clarifier
 
 
-__all__ = ["BASE_OPTIONS", "LADDER", "SOLVE_BUDGET_S", "Rung", "SolveBudget", "point_hours", "simulated_steady_start",
-           "start_airflow", "start_from_day"]
+__all__ = ["BASE_OPTIONS", "ELASTIC_RESERVE_FRACTION", "LADDER", "SOLVE_BUDGET_S", "STALL_FALL_FACTOR",
+           "STALL_INFEASIBILITY_MIN", "STALL_WINDOW_ITERATIONS", "Rung", "SolveBudget", "StallWatch", "point_hours",
+           "simulated_steady_start", "start_airflow", "start_from_day"]

@@ -40,8 +40,8 @@ from airtaper.optimize import elastic as _elastic
 from airtaper.optimize.backoff import hold_do, refined_options, refined_steps_per_period
 from airtaper.optimize.baseline import Baseline, complying_baseline, run_baseline
 from airtaper.optimize.compliance import day_figures
-from airtaper.optimize.attempts import (BASE_OPTIONS, LADDER, SOLVE_BUDGET_S, Rung, SolveBudget, start_airflow,
-                                       start_from_day)
+from airtaper.optimize.attempts import (BASE_OPTIONS, LADDER, SOLVE_BUDGET_S, Rung, SolveBudget, StallWatch,
+                                       start_airflow, start_from_day)
 from airtaper.optimize.marginal import marginal_costs
 from airtaper.optimize.problem import (Problem, attach_problem, fix_slacks, max_power_line_kW, point_weights,
                                       relax_staging, settings_for)
@@ -128,6 +128,7 @@ class DiurnalOptimisation:
         self.m = None
         self.problem: Problem | None = None  # set by build()
         self.budget = SolveBudget(self.options.solve_budget_s)
+        self.stalled: dict | None = None  # the attempt the stall rule stopped (optimize/attempts.py), if any
 
     # --- setup ---------------------------------------------------------------------------
     def run_baseline(self) -> Baseline:
@@ -211,20 +212,34 @@ class DiurnalOptimisation:
             b.peak_kW.set_value(max(pyo.value(b.power_kW[p]) for p in m.PERIODS))
 
     # --- solving ------------------------------------------------------------------------
-    def _ipopt(self, rung: Rung, warm_start=False):
+    def _ipopt(self, rung: Rung, warm_start=False, elastic: bool = False):
+        """One Ipopt solve with ``rung``'s options, charged to the budget; every solve but the elastic one
+        (``elastic``: it may spend the budget's reserve) is watched by the stall rule (optimize/attempts.py)."""
         opts = dict(BASE_OPTIONS)
         opts.update(rung.options)
-        opts.update(self.budget.options())
+        opts.update(self.budget.options(elastic=elastic))
         opts.update(self.options.ipopt_options)
         if not rung.user_scaling:
             opts["nlp_scaling_method"] = "gradient-based"
         self.progress.label = f"{rung.name}: "
+        watch = None if elastic else StallWatch()
+
+        def callback(info) -> bool:
+            shown = self.progress.iteration(info)
+            return (watch is None or watch(info)) and shown is not False
+
         with self.budget.charging():  # the budget counts the solves' own CPU time (optimize/attempts.py)
-            r = solve_nlp(self.m, opts, callback=self.progress.iteration, warm_start=warm_start)
+            r = solve_nlp(self.m, opts, callback=callback, warm_start=warm_start)
         self.progress.done()
         self._add_timings(r)
-        self.attempts.append({"rung": rung.name, "status": r.status.value, "iterations": r.iterations,
-                              "seconds": r.timings.total_s, "message": r.message})
+        attempt = {"rung": rung.name, "status": r.status.value, "iterations": r.iterations,
+                   "seconds": r.timings.total_s, "message": r.message}
+        if watch is not None and watch.stalled:
+            attempt.update(status="stalled", message=watch.message())
+            self.stalled = attempt
+        self.attempts.append(attempt)
+        if r.ok:
+            self.budget.release()  # a schedule exists: no elastic reserve any more
         return r
 
     def _add_timings(self, r) -> None:
@@ -254,7 +269,9 @@ class DiurnalOptimisation:
             # Ipopt converged to a point of local infeasibility: the limits most likely
             # conflict, and the elastic solve will say which (no more rungs).
             infeasible += r.status.value == "infeasible"
-            if infeasible >= INFEASIBLE_STOP or self.budget.exhausted:
+            # a stalled attempt (the stall rule, optimize/attempts.py) ends the ladder too: the elastic solve
+            # says what cannot be met, with the budget's reserve
+            if infeasible >= INFEASIBLE_STOP or self.attempts[-1]["status"] == "stalled" or self.budget.exhausted:
                 break
         self.result = None
         return None
@@ -282,7 +299,7 @@ class DiurnalOptimisation:
         rung = self.options.ladder[0]
         self._restart(rung)
         _elastic.enter_elastic(self.m)
-        r = self._ipopt(Rung("elastic", {"mu_strategy": "adaptive", "max_iter": 3000}))
+        r = self._ipopt(Rung("elastic", {"mu_strategy": "adaptive", "max_iter": 3000}), elastic=True)
         found = _elastic.findings(self.m) if r.ok else []
         return r, found
 
@@ -409,13 +426,16 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
             infeasibility = staging.findings
             messages.extend(f["message"] for f in staging.findings)
     budget_ended = False
-    if result is None and study.budget.exhausted:
+    if result is None and study.budget.spent_in_full:  # not even the elastic reserve is left
         status = "failed"
         budget_ended = True
         messages.append(study.budget.message(study.attempts))
     elif result is None:
+        if study.stalled is not None:
+            messages.append(f"the optimiser did not settle ({study.stalled['rung']}: {study.stalled['message']}); "
+                            "the elastic solve says what cannot be met")
         r, infeasibility = study.elastic()
-        if not r.ok and study.budget.exhausted:
+        if not r.ok and study.budget.spent_in_full:
             status = "failed"
             budget_ended = True
             messages.append(study.budget.message(study.attempts))
