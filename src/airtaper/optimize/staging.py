@@ -25,6 +25,13 @@ Scheme (docs/optimization.md, "Blower staging and swing zones"):
    :data:`MAX_ROUNDS` rounds, or when a round costs more than the best so far (that round
    is undone: the result never costs more than the best round).
 
+Starts: the all-day-aerated solve starts cold from the relaxed point (its values, Ipopt's own
+multipliers): the relaxed solve's multipliers belong to a problem where the swing zones may take
+no air at all, so they are no guide to the one where they must take their minimum all day. The
+first dispatch round starts from the kept swing pattern's multipliers: the candidates are solved
+after it, so "the last solve's" multipliers would be the last candidate's, whose zones were off in
+other periods.
+
 Why the swing scheme: the relaxed optimum ranks the periods by how much air the process
 wants in the swing zone, so the patterns worth trying switch it off where that air is least;
 enumerating every pattern (over ten thousand in 24 periods under four switches) is out of
@@ -235,10 +242,12 @@ def settle_swing_states(study, rounds: list):
     t0 = time.perf_counter()
     set_swing_states(prob, {z: np.ones(len(m.PERIODS), dtype=bool) for z in b.SWING_ZONES})
     prog.phase("swing zones: aerated all day (the reference pattern)")
-    res = study.resolve(warm=True)
+    # cold from the relaxed point (its values, not its multipliers): module notes, "Starts"
+    res = study.resolve(warm=False)
     ok = res is not None and res.ok
     rounds.append({"round": 0, "step": "swing zones aerated all day", "status": res.status.value if res
                    else "failed", "objective": float(pyo.value(b.objective)) if ok else None,
+                   "iterations": res.iterations if res is not None else None,
                    "seconds": time.perf_counter() - t0})
     if not ok:
         return None
@@ -306,8 +315,13 @@ def run_staging(study, first_result) -> StagingOutcome:
         apply_dispatch(m, dp)
         prog.phase(f"staging round {r}: " + ", ".join(
             f"{mm.id} {int(dp.running[j].sum())} periods" for j, mm in enumerate(dp.machines)))
-        # round 1 may go down the retry ladder; later rounds get one warm attempt (the best round stands)
-        res = study.resolve(warm=True) if best is None else study._ipopt(study.options.ladder[0], warm_start=True)
+        # round 1 may go down the retry ladder, warm from the multipliers of the schedule it starts from (the
+        # kept swing pattern's, not the last candidate's: module notes, "Starts"); later rounds get one warm
+        # attempt from the previous round (the best round stands)
+        if best is None:
+            res = study.resolve(warm=out.result if out.result is not None and out.result.ok else True)
+        else:
+            res = study._ipopt(study.options.ladder[0], warm_start=True)
         if res is None or not res.ok:
             rounds.append({"round": r, "status": "failed", "seconds": time.perf_counter() - t0})
             if best is None:
