@@ -226,6 +226,23 @@ def _backtrack(system, inp, y, f, dy, y_full, f_full):
         f_new = system.rhs(y_new, inp)
 
 
+def _linear_solve(A, b) -> np.ndarray | None:
+    """x of the sparse system ``A x = b`` (``A`` CSC) by LU factorisation; None when ``A`` is singular.
+
+    The singular case is caught at the factorisation (SuperLU's "exactly singular" error), so the
+    caller's fallback takes over without the warning (and the NaN solution) that ``spsolve`` gives
+    there: on an overloaded layered demo (tests/simulate/test_steady.py) the full Newton steps
+    after a time integration met an exactly singular Jacobian twice and scipy printed "Matrix is
+    exactly singular" to the user before the next method reached the steady state.
+    """
+    try:
+        lu = spla.splu(A)
+    except RuntimeError:  # "Factor is exactly singular"
+        return None
+    x = lu.solve(np.asarray(b, dtype=float))
+    return x if np.all(np.isfinite(x)) else None
+
+
 def _newton(system, inp, y, tol, max_iter, dt0_d):
     """Pseudo-transient Newton from ``y``; returns (best y, its residual, linear solves, converged).
 
@@ -244,11 +261,8 @@ def _newton(system, inp, y, tol, max_iter, dt0_d):
         it += 1
         J = system.jacobian(y, inp, f0=f)
         A = (eye / dt - J).tocsc() if np.isfinite(dt) else (-J).tocsc()
-        try:
-            dy = spla.spsolve(A, f)
-        except RuntimeError:
-            dy = np.full_like(y, np.nan)
-        if not np.all(np.isfinite(dy)):
+        dy = _linear_solve(A, f)
+        if dy is None:  # singular or not finite: a shorter pseudo-time step makes the matrix regular
             dt *= 0.1
             if dt < _DT_COLLAPSED_d:
                 break
@@ -288,11 +302,8 @@ def _plain_newton(system, inp, y, tol, max_iter=15):
     for it in range(max_iter):
         if res < tol:
             return y, res, it, True
-        try:
-            dy = spla.spsolve((-system.jacobian(y, inp, f0=f)).tocsc(), f)
-        except RuntimeError:
-            return y, res, it + 1, False
-        if not np.all(np.isfinite(dy)):
+        dy = _linear_solve((-system.jacobian(y, inp, f0=f)).tocsc(), f)
+        if dy is None:  # singular Jacobian: not converged here, the caller's next method takes over
             return y, res, it + 1, False
         y = np.maximum(y + dy, 0.0)
         f = system.rhs(y, inp)
