@@ -52,13 +52,16 @@ solve (:meth:`DiurnalOptimisation.elastic`), so that a plant the optimiser canno
 diagnosed (which limit cannot be met, when and by how much) rather than ended with "budget spent".
 Before, a 12-zone plant at twice its design load (plant 23 of the robustness benchmark) spent all
 420 CPU seconds in four rungs (777 iterations) and ended in exit 3 with no diagnosis. Once a schedule
-exists (:meth:`SolveBudget.release`) the reserve is released: the staging and back-off re-solves
-that follow have a schedule to fall back on and need no diagnosis.
+exists (:meth:`SolveBudget.release`, called by :func:`~airtaper.optimize.diurnal.run_optimization`
+after the first solve, or on a staged plant after the staging, whose relaxed first solve is no
+schedule) the reserve is released: the back-off re-solves that follow have a schedule to fall back
+on and need no diagnosis. Only :func:`~airtaper.optimize.diurnal.run_optimization` keeps a reserve
+(other users of :class:`~airtaper.optimize.diurnal.DiurnalOptimisation` call no elastic solve).
 
 Stall rule (:class:`StallWatch`, :data:`STALL_WINDOW_ITERATIONS`, :data:`STALL_FALL_FACTOR`,
 :data:`STALL_INFEASIBILITY_MIN`): an attempt whose (scaled) primal infeasibility has not fallen
 tenfold over the last 150 iterations while it is still above 1e-4 is stopped, and the ladder ends
-there: the elastic solve says what cannot be met. An attempt that converges reduces the
+there (a stalled warm re-solve goes down no ladder either): the elastic solve says what cannot be met. An attempt that converges reduces the
 infeasibility by orders of magnitude well within 150 iterations; one that wanders in restoration or
 creeps along a limit it cannot meet keeps it within a decade for hundreds (plant 23: 777 iterations
 over four rungs, no schedule). Restarting such a plant from another rung repeats the wander; the

@@ -40,8 +40,8 @@ from airtaper.optimize import elastic as _elastic
 from airtaper.optimize.backoff import hold_do, refined_options, refined_steps_per_period
 from airtaper.optimize.baseline import Baseline, complying_baseline, run_baseline
 from airtaper.optimize.compliance import day_figures
-from airtaper.optimize.attempts import (BASE_OPTIONS, LADDER, SOLVE_BUDGET_S, Rung, SolveBudget, StallWatch,
-                                       start_airflow, start_from_day)
+from airtaper.optimize.attempts import (BASE_OPTIONS, ELASTIC_RESERVE_FRACTION, LADDER, SOLVE_BUDGET_S, Rung,
+                                       SolveBudget, StallWatch, start_airflow, start_from_day)
 from airtaper.optimize.marginal import marginal_costs
 from airtaper.optimize.problem import (Problem, attach_problem, fix_slacks, max_power_line_kW, point_weights,
                                       relax_staging, settings_for)
@@ -116,7 +116,11 @@ class DiurnalOptimisation:
     """A built optimisation of one plant (a layout is resolved first); see the module notes."""
 
     def __init__(self, plant: ResolvedPlant | Layout, options: StudyOptions | None = None,
-                 progress: Progress | None = None, baseline: Baseline | None = None, start: SimDay | None = None):
+                 progress: Progress | None = None, baseline: Baseline | None = None, start: SimDay | None = None,
+                 elastic_reserve: float = 0.0):
+        """``elastic_reserve``: share of the solve budget kept for :meth:`elastic` until
+        ``self.budget.release()`` (:func:`run_optimization` keeps
+        :data:`~airtaper.optimize.attempts.ELASTIC_RESERVE_FRACTION`; other users, none)."""
         self.plant = resolve_plant(plant)
         self.start = start  # a simulated day to start the first solve from (None: the baseline's)
         self.options = options or StudyOptions()
@@ -127,7 +131,7 @@ class DiurnalOptimisation:
         self.baseline = baseline
         self.m = None
         self.problem: Problem | None = None  # set by build()
-        self.budget = SolveBudget(self.options.solve_budget_s)
+        self.budget = SolveBudget(self.options.solve_budget_s, reserve_fraction=elastic_reserve)
         self.stalled: dict | None = None  # the attempt the stall rule stopped (optimize/attempts.py), if any
 
     # --- setup ---------------------------------------------------------------------------
@@ -238,8 +242,6 @@ class DiurnalOptimisation:
             attempt.update(status="stalled", message=watch.message())
             self.stalled = attempt
         self.attempts.append(attempt)
-        if r.ok:
-            self.budget.release()  # a schedule exists: no elastic reserve any more
         return r
 
     def _add_timings(self, r) -> None:
@@ -279,6 +281,8 @@ class DiurnalOptimisation:
     def resolve(self, warm: bool = True):
         """Solve again from the current point (after moving a limit); ladder on failure."""
         r = self._ipopt(self.options.ladder[0], warm_start=warm)
+        if self.attempts[-1]["status"] == "stalled":  # the stall rule: no ladder, the elastic solve says why
+            return r
         if not r.ok:
             return self.solve()
         self.result = r
@@ -408,10 +412,13 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
         screen = prescreen(plant)
         if not screen["feasible"]:
             return _screened_out(plant, screen, time.perf_counter() - t0)
-    study = DiurnalOptimisation(plant, opts, prog, baseline=baseline, start=start)
+    study = DiurnalOptimisation(plant, opts, prog, baseline=baseline, start=start,
+                                elastic_reserve=ELASTIC_RESERVE_FRACTION)
     base = study.run_baseline()
     study.build()
     result = study.solve()
+    if result is not None and not study.problem.staged:  # staged: the relaxed solve is no schedule yet
+        study.budget.release()  # a schedule exists: the elastic reserve is free (optimize/attempts.py)
     messages = [] if screen is None or not screen["note"] else [f"pre-screen: {screen['note']}"]
     infeasibility = []
     status = "optimal"
@@ -421,6 +428,8 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
     if result is not None and problem.staged:
         staging = run_staging(study, result)
         result = staging.result
+        if result is not None and result.ok:  # the swing states and machines are settled: a schedule exists
+            study.budget.release()
         if staging.findings:
             status = "infeasible"
             infeasibility = staging.findings
