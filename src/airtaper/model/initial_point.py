@@ -137,7 +137,7 @@ def settler_velocities(m, t) -> np.ndarray:
     once for all layers with numpy through the same physics functions the constraint is built
     from (:mod:`airtaper.physics.settling`), instead of a Pyomo expression walk and a root solve
     per interface (``calculate_variable_from_constraint``): BSM1's steady initialisation took
-    0.69-0.74 CPU s with those, 0.57-0.58 with this.
+    0.83-0.88 CPU s with those, 0.60-0.69 with this (4 runs each, 2-core machine at a load of 6).
     """
     s = m.settler
     n, f = m.settler_layers, m.settler_feed_layer
