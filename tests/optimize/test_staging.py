@@ -261,3 +261,30 @@ def test_post_solve_check_catches_a_machine_or_grid_out_of_range(staged):
         assert any(f"zone {z}" in x for x in feasibility_check(problem, dp))
     finally:
         m.airflow_Sm3_h[z, p].set_value(keep)
+
+
+def test_swing_patterns_are_tried_when_the_all_day_pattern_does_not_solve(fenwhistle_6, monkeypatch):
+    """A swing zone that cannot be aerated all day (forced here: the all-day solve is cut at one iteration)
+    may still be switched off where it cannot hold its DO: the candidate patterns are solved from the
+    relaxed point, and the study ends with a verified schedule, not an elastic diagnosis of the all-day
+    pattern (optimize/staging.py, "Starts")."""
+    from airtaper.optimize.attempts import Rung
+    from airtaper.optimize.diurnal import DiurnalOptimisation
+
+    original = DiurnalOptimisation.resolve
+
+    def all_day_fails(self, warm=True):
+        states = self.problem.swing_states
+        if states is not None and all(v.all() for v in states.values()):
+            return self._ipopt(Rung("all day, cut short by the test", {"max_iter": 1}), warm_start=warm)
+        return original(self, warm)
+
+    monkeypatch.setattr(DiurnalOptimisation, "resolve", all_day_fails)
+    res = run_optimization(fenwhistle_6)
+    s = res.summary
+    assert res.exit_code == EXIT_OK and s["status"] == "optimal" and s["verified"] is True, s["messages"]
+    steps = [r for r in s["dispatch"]["rounds"] if r.get("round") == 0]
+    assert steps[0]["step"] == "swing zones aerated all day" and steps[0]["objective"] is None, steps[0]
+    assert any(r["step"].startswith("swing pattern Z2") and r["status"] == "optimal" for r in steps), steps
+    assert 0 < len(s["dispatch"]["swing_zones"]["Z2"]["aerated_periods"]) < fenwhistle_6.horizon.n_periods
+    assert s["infeasibility"] == []
