@@ -37,7 +37,7 @@ from airtaper.layout.types import Layout
 from airtaper.model.train import build_cyclic_model
 from airtaper.plant import ResolvedPlant, resolve_plant
 from airtaper.optimize import elastic as _elastic
-from airtaper.optimize.backoff import hold_do, refined_options, refined_steps_per_period
+from airtaper.optimize.backoff import hold_do, refined_first_rung, refined_options, refined_steps_per_period
 from airtaper.optimize.baseline import Baseline, complying_baseline, run_baseline
 from airtaper.optimize.compliance import day_figures
 from airtaper.optimize.attempts import (BASE_OPTIONS, LADDER, SOLVE_BUDGET_S, Rung, SolveBudget, start_airflow,
@@ -81,6 +81,8 @@ class StudyOptions:
     ipopt_options: dict = field(default_factory=dict)
     ladder: tuple[Rung, ...] = LADDER
     solve_budget_s: float = SOLVE_BUDGET_S  # CPU seconds of all Ipopt solves (optimize/attempts.py)
+    # the study solved again on finer steps (optimize/backoff.py): a capped first solve, then the elastic solve
+    refined: bool = False
 
 
 @dataclass
@@ -235,13 +237,14 @@ class DiurnalOptimisation:
         t["ipopt_cpu_s"] = t.get("ipopt_cpu_s", 0.0) + r.timings.ipopt_cpu_s
         t["iterations"] = t.get("iterations", 0) + r.iterations
 
-    def solve(self):
-        """Solve down the retry ladder; returns the first successful result or None."""
+    def solve(self, ladder: tuple[Rung, ...] | None = None):
+        """Solve down the retry ladder (``ladder``, default the options'); returns the first successful result
+        or None."""
         if self.m is None:
             self.build()
         self.progress.phase("optimising")
         infeasible = 0
-        for i, rung in enumerate(self.options.ladder):
+        for i, rung in enumerate(self.options.ladder if ladder is None else ladder):
             if i > 0:
                 self.progress.phase(f"retrying: {rung.name}")
                 self._restart(rung)
@@ -394,7 +397,8 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
     study = DiurnalOptimisation(plant, opts, prog, baseline=baseline, start=start)
     base = study.run_baseline()
     study.build()
-    result = study.solve()
+    # the refined study (optimize/backoff.py): one capped solve from the coarse schedule, no retry ladder
+    result = study.solve((refined_first_rung(opts.ladder[0]),) if opts.refined else None)
     messages = [] if screen is None or not screen["note"] else [f"pre-screen: {screen['note']}"]
     infeasibility = []
     status = "optimal"
@@ -414,6 +418,11 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
         budget_ended = True
         messages.append(study.budget.message(study.attempts))
     elif result is None:
+        if opts.refined:
+            from airtaper.optimize.backoff import REFINED_MAX_ITER
+
+            messages.append(f"on the finer model steps the first solve did not converge within {REFINED_MAX_ITER} "
+                            "iterations from the coarse schedule: the elastic solve says which limit gives")
         r, infeasibility = study.elastic()
         if not r.ok and study.budget.exhausted:
             status = "failed"
