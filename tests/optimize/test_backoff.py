@@ -312,3 +312,45 @@ def test_back_off_rounds_on_short_steps_stop_when_the_excursion_does_not_shrink(
     assert 0.024 > SHRINK * 0.029
     _, hold, _, solves, _ = _stand_in_rounds(three_tank_6, [0.029, 0.024, 0.0], lambda k: True)
     assert hold["stalled"] is False and hold["rounds"] == 2 and len(solves) == 2
+
+
+def test_a_refined_study_whose_first_solve_does_not_converge_goes_straight_to_the_elastic_solve(three_tank_6,
+                                                                                               monkeypatch):
+    """The study solved again on finer steps: its first solve is capped at REFINED_MAX_ITER iterations, and when it
+    stops there the elastic solve follows at once (no retry ladder: the demo with blower B3 out spent 443 CPU s
+    down the ladder to exit 4). Stand-in Ipopt and elastic solve; the model is real."""
+    from types import SimpleNamespace
+
+    from airtaper.errors import EXIT_INFEASIBLE
+    from airtaper.optimize.backoff import REFINED_MAX_ITER, REFINED_START, refined_options
+    from airtaper.optimize.diurnal import DiurnalOptimisation
+
+    calls = []
+    finding = {"limit": "blower_min", "zone": None, "amount": 0.14, "unit": "fraction", "spans": [],
+               "message": "the blowers need 14 % more turndown than the smallest machine has, 00:00-08:00"}
+
+    def ipopt(self, rung, warm_start=False):
+        calls.append((rung.name, rung.options.get("max_iter")))
+        self.attempts.append({"rung": rung.name, "status": "iteration_limit", "iterations": 0})
+        return SimpleNamespace(ok=False, status=SimpleNamespace(value="iteration_limit"), message="stand-in")
+
+    def elastic(self):
+        calls.append(("elastic", None))
+        return SimpleNamespace(ok=True, status=SimpleNamespace(value="optimal"), message="stand-in", n_variables=1,
+                               n_constraints=1), [finding]
+
+    monkeypatch.setattr(DiurnalOptimisation, "_ipopt", ipopt)
+    monkeypatch.setattr(DiurnalOptimisation, "elastic", elastic)
+    monkeypatch.setattr(DiurnalOptimisation, "_square_solve", lambda self: None)  # the ladder's square-solved starts
+    opts = refined_options(StudyOptions(marginal=False, verify=False, complying_baseline=False), 8)
+    assert opts.refined and opts.ladder[0] == REFINED_START and "max_iter" not in REFINED_START.options
+    res = run_optimization(three_tank_6, opts)
+    assert calls == [(f"{REFINED_START.name} (at most {REFINED_MAX_ITER} iterations)", REFINED_MAX_ITER),
+                     ("elastic", None)]
+    assert res.exit_code == EXIT_INFEASIBLE and res.summary["status"] == "infeasible"
+    assert finding["message"] in res.summary["messages"]
+    assert any(f"did not converge within {REFINED_MAX_ITER} iterations" in m for m in res.summary["messages"])
+    # the same study not refined goes down the whole ladder first
+    calls.clear()
+    run_optimization(three_tank_6, StudyOptions(marginal=False, verify=False, complying_baseline=False))
+    assert [c[0] for c in calls] == [r.name for r in StudyOptions().ladder] + ["elastic"]

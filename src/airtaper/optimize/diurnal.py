@@ -280,10 +280,16 @@ class DiurnalOptimisation:
         return r
 
     def elastic(self):
-        """Elastic solve from the baseline start; returns (result, findings)."""
+        """Elastic solve; returns (result, findings). It starts from the study's own start when it has one (the
+        refined study's: the coarse schedule a converged solve gave, re-simulated; optimize/elastic.py), else
+        from the baseline."""
         self.progress.phase("the limits cannot all be met: elastic solve")
         rung = self.options.ladder[0]
-        self._restart(rung)
+        if self.start is not None:
+            start_from_day(self.m, self.start, start_airflow(self.m, self.start))
+            self._free_decisions()
+        else:
+            self._restart(rung)
         _elastic.enter_elastic(self.m)
         r = self._ipopt(Rung("elastic", {"mu_strategy": "adaptive", "max_iter": 3000}))
         found = _elastic.findings(self.m) if r.ok else []
@@ -377,12 +383,14 @@ def saving_figures(base: Baseline, complying: Baseline | None, energy: float, co
 
 def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None = None,
                      progress: Progress | None = None, baseline: Baseline | None = None,
-                     start: SimDay | None = None) -> StudyResult:
+                     start: SimDay | None = None, known: _elastic.KnownSchedule | None = None) -> StudyResult:
     """The whole study of a plant (module notes; a layout is resolved first); never raises for an infeasible or
     failed solve.
 
     ``baseline``: the uniform-DO baseline when it is already simulated (the same options); ``start``: a
-    simulated day to start the optimiser from instead of the baseline's (:func:`_solve_refined`).
+    simulated day to start the optimiser from instead of the baseline's (:func:`_solve_refined`); ``known``: a
+    schedule a converged solve gave, re-simulated, that the elastic solve's findings are checked against
+    (:func:`~airtaper.optimize.elastic.check_findings`).
     """
     t0 = time.perf_counter()
     plant = resolve_plant(plant)
@@ -424,7 +432,14 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
             messages.append(f"on the finer model steps the first solve did not converge within {REFINED_MAX_ITER} "
                             "iterations from the coarse schedule: the elastic solve says which limit gives")
         r, infeasibility = study.elastic()
-        if not r.ok and study.budget.exhausted:
+        infeasibility, dropped = _elastic.check_findings(plant, infeasibility, known)
+        if dropped:  # a local result of the elastic solve: a verified schedule meets those limits
+            messages.append(f"the elastic solve's findings on {', '.join(sorted({f['limit'] for f in dropped}))} "
+                            f"are left out: {known.label} meets those limits and every other")
+        if dropped and not infeasibility:
+            status = "failed"
+            messages.append(f"the elastic solve found no limit that {known.label} does not meet")
+        elif not r.ok and study.budget.exhausted:
             status = "failed"
             budget_ended = True
             messages.append(study.budget.message(study.attempts))
@@ -434,6 +449,9 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
         elif infeasibility:
             status = "infeasible"
             messages.extend(f["message"] for f in infeasibility)
+            trade = _elastic.trade_message(infeasibility, known)
+            if trade is not None:
+                messages.append(trade)
         else:
             messages.append("solved through the elastic problem (no limit needed relaxing)")
         study.result = r
@@ -477,7 +495,9 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
             period_h, coarse = plant.period_h, model_steps_per_period(plant, opts)
             finer = refined_steps_per_period(period_h, coarse)
             step = period_h / coarse
-            fine = _solve_refined(plant, opts, prog, base, coarse_day, finer, step, messages)
+            known = _elastic.KnownSchedule(f"the schedule solved on {step:g}-hour model steps", coarse_day,
+                                           bool(verification["verified"]), list(verification["violations"]))
+            fine = _solve_refined(plant, opts, prog, base, coarse_day, finer, step, messages, known)
         if fine is not None:
             if screen is not None:  # the pre-screen ran once, for both
                 from airtaper.optimize.results import jsonable
@@ -607,20 +627,26 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
 
 
 def _solve_refined(plant: ResolvedPlant, opts: StudyOptions, prog, base: Baseline, coarse_day: SimDay, finer: int,
-                   step_h: float, messages: list) -> StudyResult | None:
+                   step_h: float, messages: list, known: _elastic.KnownSchedule) -> StudyResult | None:
     """The study solved again on ``finer`` steps per period (optimize/backoff.py, "Coarse model steps").
 
     Started from the coarse schedule's re-simulated day (its airflows and the simulator's states at every
     finer time point, :func:`~airtaper.optimize.attempts.start_from_day`) with a budget of its own
-    (:func:`~airtaper.optimize.backoff.refined_options`). None (and a message) when it gives no schedule.
+    (:func:`~airtaper.optimize.backoff.refined_options`); the elastic solve's findings are checked against
+    the coarse schedule (``known``). None (and a message) when it gives no schedule, or when it finds the
+    limits cannot be met although the coarse schedule was verified (its findings are a local result).
     """
     period_h = plant.period_h
     prog.phase(f"the back-off could not hold the DO range on {step_h:g}-hour model steps: "
                f"solving again on {period_h / finer:g}-hour steps, from the re-simulated schedule")
-    fine = run_optimization(plant, refined_options(opts, finer), prog, base, start=coarse_day)
-    if fine.summary["status"] == "failed":  # no answer there: keep the coarse result, and say why
+    fine = run_optimization(plant, refined_options(opts, finer), prog, base, start=coarse_day, known=known)
+    status = fine.summary["status"]
+    if status == "failed" or (status == "infeasible" and known.verified):
+        # no answer there, or findings a verified schedule contradicts: keep the coarse result, and say why
         messages.append(f"solving again on {period_h / finer:g}-hour model steps gave no schedule: "
-                        + "; ".join(fine.summary["messages"][:1]))
+                        + "; ".join(fine.summary["messages"][:1] if status == "failed" else
+                                    [f"its elastic solve's findings ({'; '.join(f['message'] for f in fine.summary['infeasibility'])}) "
+                                     f"do not hold against {known.label}, which the simulator verified"]))
         return None
     return fine
 
