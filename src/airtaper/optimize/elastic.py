@@ -38,8 +38,9 @@ in the finding's own hours) while the finding says it must give is dropped when 
 schedule meets every limit (it is verified: the finding is false), and otherwise
 kept with the trade named (the known schedule meets this limit by breaking others:
 with blower B3 out the coarse schedule met the blowers' turndown at night while
-zone Z6's DO left its maximum). The elastic solve of a study that has such a
-schedule starts from it (:meth:`~airtaper.optimize.diurnal.DiurnalOptimisation.elastic`).
+zone Z6's DO left its maximum). Starting the elastic solve from that schedule
+instead of the baseline was tried: on the demo with B3 out it gave the same
+findings in 71 iterations against 40.
 """
 
 from __future__ import annotations
