@@ -350,7 +350,48 @@ def test_a_refined_study_whose_first_solve_does_not_converge_goes_straight_to_th
     assert res.exit_code == EXIT_INFEASIBLE and res.summary["status"] == "infeasible"
     assert finding["message"] in res.summary["messages"]
     assert any(f"did not converge within {REFINED_MAX_ITER} iterations" in m for m in res.summary["messages"])
+    # a verified coarse schedule (a converged solve's: every equipment limit met) contradicts the finding: it is
+    # left out, and with no finding left the refined study gives no answer (the coarse result is kept)
+    from airtaper.optimize.elastic import KnownSchedule
+
+    calls.clear()
+    res = run_optimization(three_tank_6, opts, known=KnownSchedule("the coarse schedule", None, verified=True))
+    assert res.summary["status"] == "failed" and res.summary["infeasibility"] == []
+    assert not any(finding["message"] in m for m in res.summary["messages"])
+    assert any("left out: the coarse schedule meets those limits" in m for m in res.summary["messages"])
     # the same study not refined goes down the whole ladder first
     calls.clear()
     run_optimization(three_tank_6, StudyOptions(marginal=False, verify=False, complying_baseline=False))
     assert [c[0] for c in calls] == [r.name for r in StudyOptions().ladder] + ["elastic"]
+
+
+def test_a_refined_study_whose_findings_a_verified_coarse_schedule_contradicts_keeps_the_coarse_result(monkeypatch):
+    """The refined study ends infeasible (its elastic solve is a local optimum) while the coarse schedule it
+    started from was verified by the simulator: the coarse result stands, and the message says why. When the
+    coarse schedule was not verified the refined study's findings are the answer. Stand-in refined study."""
+    from types import SimpleNamespace
+
+    from airtaper.optimize import diurnal
+    from airtaper.optimize.elastic import KnownSchedule
+    from airtaper.optimize.progress import Silent
+
+    finding = "the effluent NH4-N daily mean cannot meet 1 mg/L: it stays 0.34 mg/L above"
+    fine = SimpleNamespace(summary={"status": "infeasible", "messages": [finding],
+                                    "infeasibility": [{"limit": "nh4_mean", "message": finding}]})
+    seen = []
+
+    def refined_run(plant, options, progress, baseline, start=None, known=None):
+        seen.append((options.refined, options.steps_per_period, known))
+        return fine
+
+    monkeypatch.setattr(diurnal, "run_optimization", refined_run)
+    known = KnownSchedule("the schedule solved on 4-hour model steps", SimpleNamespace(), verified=True)
+    messages = []
+    plant = SimpleNamespace(period_h=4.0)
+    assert diurnal._solve_refined(plant, StudyOptions(), Silent(), None, None, 8, 4.0, messages, known) is None
+    assert seen == [(True, 8, known)]  # the refined study gets the coarse schedule to check its findings against
+    assert len(messages) == 1 and finding in messages[0]
+    assert messages[0].endswith("do not hold against the schedule solved on 4-hour model steps, which the "
+                                "simulator verified")
+    known.verified = False
+    assert diurnal._solve_refined(plant, StudyOptions(), Silent(), None, None, 8, 4.0, [], known) is fine
