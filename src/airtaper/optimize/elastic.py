@@ -348,8 +348,7 @@ def trade_message(kept: list[dict], known: KnownSchedule | None) -> str | None:
     text = {g.name: g.text for g in LIMIT_GROUPS}
     names = ", ".join(text.get(f["limit"], f["limit"]) + (f" of zone {f['zone']}" if f["zone"] else "")
                       for f in trades)
-    broken = known.violations
-    named = "; ".join(broken[:3]) + (f"; {len(broken) - 3} more" if len(broken) > 3 else "")
+    named = "; ".join(known.violations)  # all of them: with B3 out the largest (Z6's maximum) came last of five
     return (f"a trade between limits, not each a limit that cannot be met: {known.label} meets the {names}, "
             f"breaking {named or 'other limits'}")
 
