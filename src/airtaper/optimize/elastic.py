@@ -349,8 +349,8 @@ def trade_message(kept: list[dict], known: KnownSchedule | None) -> str | None:
     names = ", ".join(text.get(f["limit"], f["limit"]) + (f" of zone {f['zone']}" if f["zone"] else "")
                       for f in trades)
     named = "; ".join(known.violations)  # all of them: with B3 out the largest (Z6's maximum) came last of five
-    return (f"a trade between limits, not each a limit that cannot be met: {known.label} meets the {names}, "
-            f"breaking {named or 'other limits'}")
+    return (f"a trade between limits, not each a limit that cannot be met: {known.label} meets the {names} "
+            f"in those findings' hours, breaking {named or 'other limits'}")
 
 
 __all__ = ["EQUIPMENT_WEIGHT", "PROCESS_LIMITS", "PROCESS_WEIGHT", "REPORT_THRESHOLD", "KnownSchedule",
