@@ -134,9 +134,10 @@ REFINED_START = Rung("start from the coarse schedule", {"mu_strategy": "adaptive
 #: ladder: the elastic solve says at once which limit gives (:func:`refined_first_rung`). A refined study with
 #: no feasible point near its start spends seconds per iteration in MUMPS refactorisations (dual infeasibility
 #: 1e14, regularisation 1e7-1e9): on the demo with blower B3 out on six 4-hour periods it ran 443 CPU s to an
-#: unverified exit 4, with this cap 26.8 CPU s to exit 3 naming the blowers' turndown. The refined studies that
-#: converge start near their optimum (the coarse schedule's re-simulated day) and took far fewer iterations
-#: than this on the demo and the calibrated demo.
+#: unverified exit 4, with this cap 33 CPU s to exit 3 naming the blowers' turndown (load 5-8). The refined
+#: studies that converge start near their optimum (the coarse schedule's re-simulated day): the 4-hour demo's
+#: took 40 iterations (measured 3 December 2026), so the cap leaves little room; a study that needs more ends in
+#: the elastic solve, whose findings are checked against the coarse schedule (optimize/elastic.py).
 REFINED_MAX_ITER = 50
 
 
