@@ -147,7 +147,8 @@ def test_a_finding_an_unverified_schedule_meets_is_kept_with_the_trade_named(dem
     assert kept[0] == dict(turndown, trade_with=broken)
     assert trade_message(kept, known) == (
         "a trade between limits, not each a limit that cannot be met: the schedule solved on 4-hour model steps "
-        "meets the blower turndown in those findings' hours, breaking zone Z6: DO leaves its range (1.0..2.5 mg/L) by 1.197 mg/L")
+        "meets the blower turndown in those findings' hours, breaking zone Z6: DO leaves its range (1.0..2.5 mg/L) "
+        "by 1.197 mg/L")
     assert trade_message([over], known) is None
     # a known schedule that did not meet the equipment limits contradicts no equipment finding
     known.meets_equipment = False

@@ -429,8 +429,8 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
         r, infeasibility = study.elastic()
         infeasibility, dropped = _elastic.check_findings(plant, infeasibility, known)
         if dropped:  # a local result of the elastic solve: a verified schedule meets those limits
-            messages.append(f"the elastic solve's findings on {', '.join(sorted({f['limit'] for f in dropped}))} "
-                            f"are left out: {known.label} meets those limits and every other")
+            messages.append(f"the elastic solve's findings on the {_elastic.limit_names(dropped)} are left out: "
+                            f"{known.label} meets those limits and every other")
         if dropped and not infeasibility:
             status = "failed"
             messages.append(f"the elastic solve found no limit that {known.label} does not meet")
@@ -638,10 +638,13 @@ def _solve_refined(plant: ResolvedPlant, opts: StudyOptions, prog, base: Baselin
     status = fine.summary["status"]
     if status == "failed" or (status == "infeasible" and known.verified):
         # no answer there, or findings a verified schedule contradicts: keep the coarse result, and say why
-        messages.append(f"solving again on {period_h / finer:g}-hour model steps gave no schedule: "
-                        + "; ".join(fine.summary["messages"][:1] if status == "failed" else
-                                    [f"its elastic solve's findings ({'; '.join(f['message'] for f in fine.summary['infeasibility'])}) "
-                                     f"do not hold against {known.label}, which the simulator verified"]))
+        if status == "failed":
+            why = "; ".join(fine.summary["messages"][:1])
+        else:
+            found = "; ".join(f["message"] for f in fine.summary["infeasibility"])
+            why = (f"its elastic solve's findings ({found}) do not hold against {known.label}, which the simulator "
+                   "verified")
+        messages.append(f"solving again on {period_h / finer:g}-hour model steps gave no schedule: {why}")
         return None
     return fine
 

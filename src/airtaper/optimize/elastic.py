@@ -338,20 +338,25 @@ def check_findings(plant, found: list[dict], known: KnownSchedule | None) -> tup
     return kept, dropped
 
 
+def limit_names(found: list[dict]) -> str:
+    """The findings' limits in words ("DO minimum of zone Z2, blower turndown")."""
+    from airtaper.optimize.problem import LIMIT_GROUPS
+
+    text = {g.name: g.text for g in LIMIT_GROUPS}
+    return ", ".join(text.get(f["limit"], f["limit"]) + (f" of zone {f['zone']}" if f["zone"] else "") for f in found)
+
+
 def trade_message(kept: list[dict], known: KnownSchedule | None) -> str | None:
     """One sentence for the findings :func:`check_findings` kept as trades between limits (None: there are none)."""
     trades = [f for f in kept if "trade_with" in f]
     if not trades:
         return None
-    from airtaper.optimize.problem import LIMIT_GROUPS
-
-    text = {g.name: g.text for g in LIMIT_GROUPS}
-    names = ", ".join(text.get(f["limit"], f["limit"]) + (f" of zone {f['zone']}" if f["zone"] else "")
-                      for f in trades)
+    names = limit_names(trades)
     named = "; ".join(known.violations)  # all of them: with B3 out the largest (Z6's maximum) came last of five
     return (f"a trade between limits, not each a limit that cannot be met: {known.label} meets the {names} "
             f"in those findings' hours, breaking {named or 'other limits'}")
 
 
 __all__ = ["EQUIPMENT_WEIGHT", "PROCESS_LIMITS", "PROCESS_WEIGHT", "REPORT_THRESHOLD", "KnownSchedule",
-           "check_findings", "enter_elastic", "findings", "known_excess", "leave_elastic", "trade_message"]
+           "check_findings", "enter_elastic", "findings", "known_excess", "leave_elastic", "limit_names",
+           "trade_message"]
