@@ -317,25 +317,30 @@ def test_back_off_rounds_on_short_steps_stop_when_the_excursion_does_not_shrink(
 def test_a_refined_study_whose_first_solve_does_not_converge_goes_straight_to_the_elastic_solve(three_tank_6,
                                                                                                monkeypatch):
     """The study solved again on finer steps: its first solve is capped at REFINED_MAX_ITER iterations, and when it
-    stops there the elastic solve follows at once (no retry ladder: the demo with blower B3 out spent 443 CPU s
-    down the ladder to exit 4). Stand-in Ipopt and elastic solve; the model is real."""
+    stops there diverging (dual infeasibility above REFINED_DIVERGING_DUAL) the elastic solve follows at once (no
+    retry ladder: the demo with blower B3 out spent 443 CPU s down the ladder to exit 4); stopped there still
+    converging, it is continued once, warm from where it stopped. Stand-in Ipopt and elastic solve; the model is
+    real."""
     from types import SimpleNamespace
 
     from airtaper.errors import EXIT_INFEASIBLE
-    from airtaper.optimize.backoff import REFINED_MAX_ITER, REFINED_START, refined_options
+    from airtaper.optimize.backoff import REFINED_DIVERGING_DUAL, REFINED_MAX_ITER, REFINED_START, refined_options
     from airtaper.optimize.diurnal import DiurnalOptimisation
 
     calls = []
+    dual = [8e9]  # the dual infeasibility every stand-in solve stops at (B3 out: 8e9 at iteration 50)
     finding = {"limit": "blower_min", "zone": None, "amount": 0.14, "unit": "fraction", "spans": [],
                "message": "the blowers need 14 % more turndown than the smallest machine has, 00:00-08:00"}
 
     def ipopt(self, rung, warm_start=False):
-        calls.append((rung.name, rung.options.get("max_iter")))
-        self.attempts.append({"rung": rung.name, "status": "iteration_limit", "iterations": 0})
-        return SimpleNamespace(ok=False, status=SimpleNamespace(value="iteration_limit"), message="stand-in")
+        calls.append((rung.name, rung.options.get("max_iter"), warm_start is not False))
+        self.attempts.append({"rung": rung.name, "status": "iteration_limit",
+                              "iterations": rung.options.get("max_iter")})
+        return SimpleNamespace(ok=False, status=SimpleNamespace(value="iteration_limit"), message="stand-in",
+                               dual_infeasibility=dual[0])
 
     def elastic(self):
-        calls.append(("elastic", None))
+        calls.append(("elastic", None, False))
         return SimpleNamespace(ok=True, status=SimpleNamespace(value="optimal"), message="stand-in", n_variables=1,
                                n_constraints=1), [finding]
 
@@ -345,11 +350,22 @@ def test_a_refined_study_whose_first_solve_does_not_converge_goes_straight_to_th
     opts = refined_options(StudyOptions(marginal=False, verify=False, complying_baseline=False), 8)
     assert opts.refined and opts.ladder[0] == REFINED_START and "max_iter" not in REFINED_START.options
     res = run_optimization(three_tank_6, opts)
-    assert calls == [(f"{REFINED_START.name} (at most {REFINED_MAX_ITER} iterations)", REFINED_MAX_ITER),
-                     ("elastic", None)]
+    first = f"{REFINED_START.name} (at most {REFINED_MAX_ITER} iterations)"
+    assert calls == [(first, REFINED_MAX_ITER, False), ("elastic", None, False)]
     assert res.exit_code == EXIT_INFEASIBLE and res.summary["status"] == "infeasible"
     assert finding["message"] in res.summary["messages"]
-    assert any(f"did not converge within {REFINED_MAX_ITER} iterations" in m for m in res.summary["messages"])
+    assert any(f"did not converge ({REFINED_MAX_ITER} iterations, iteration_limit)" in m
+               for m in res.summary["messages"])
+    # stopped at the cap still converging (the demo's refined solve: 0.09 at iteration 30): continued once, warm
+    calls.clear()
+    dual[0] = 0.09
+    assert dual[0] < REFINED_DIVERGING_DUAL
+    run_optimization(three_tank_6, opts)
+    assert calls == [(first, REFINED_MAX_ITER, False),
+                     (f"{REFINED_START.name}, continued (at most {REFINED_MAX_ITER} iterations)", REFINED_MAX_ITER,
+                      True),
+                     ("elastic", None, False)]
+    dual[0] = 8e9
     # a verified coarse schedule (a converged solve's: every equipment limit met) contradicts the finding: it is
     # left out, and with no finding left the refined study gives no answer (the coarse result is kept)
     from airtaper.optimize.elastic import KnownSchedule

@@ -37,7 +37,8 @@ from airtaper.layout.types import Layout
 from airtaper.model.train import build_cyclic_model
 from airtaper.plant import ResolvedPlant, resolve_plant
 from airtaper.optimize import elastic as _elastic
-from airtaper.optimize.backoff import hold_do, refined_first_rung, refined_options, refined_steps_per_period
+from airtaper.optimize.backoff import (hold_do, refined_first_rung, refined_options, refined_steps_per_period,
+                                      still_converging)
 from airtaper.optimize.baseline import Baseline, complying_baseline, run_baseline
 from airtaper.optimize.compliance import day_figures
 from airtaper.optimize.attempts import (BASE_OPTIONS, LADDER, SOLVE_BUDGET_S, Rung, SolveBudget, start_airflow,
@@ -237,14 +238,13 @@ class DiurnalOptimisation:
         t["ipopt_cpu_s"] = t.get("ipopt_cpu_s", 0.0) + r.timings.ipopt_cpu_s
         t["iterations"] = t.get("iterations", 0) + r.iterations
 
-    def solve(self, ladder: tuple[Rung, ...] | None = None):
-        """Solve down the retry ladder (``ladder``, default the options'); returns the first successful result
-        or None."""
+    def solve(self):
+        """Solve down the retry ladder; returns the first successful result or None."""
         if self.m is None:
             self.build()
         self.progress.phase("optimising")
         infeasible = 0
-        for i, rung in enumerate(self.options.ladder if ladder is None else ladder):
+        for i, rung in enumerate(self.options.ladder):
             if i > 0:
                 self.progress.phase(f"retrying: {rung.name}")
                 self._restart(rung)
@@ -400,8 +400,8 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
     study = DiurnalOptimisation(plant, opts, prog, baseline=baseline, start=start)
     base = study.run_baseline()
     study.build()
-    # the refined study (optimize/backoff.py): one capped solve from the coarse schedule, no retry ladder
-    result = study.solve((refined_first_rung(opts.ladder[0]),) if opts.refined else None)
+    # the refined study (optimize/backoff.py): capped solves from the coarse schedule, no retry ladder
+    result = _solve_refined_first(study) if opts.refined else study.solve()
     messages = [] if screen is None or not screen["note"] else [f"pre-screen: {screen['note']}"]
     infeasibility = []
     status = "optimal"
@@ -422,10 +422,9 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
         messages.append(study.budget.message(study.attempts))
     elif result is None:
         if opts.refined:
-            from airtaper.optimize.backoff import REFINED_MAX_ITER
-
-            messages.append(f"on the finer model steps the first solve did not converge within {REFINED_MAX_ITER} "
-                            "iterations from the coarse schedule: the elastic solve says which limit gives")
+            messages.append(f"on the finer model steps the solve from the coarse schedule did not converge "
+                            f"({study.attempts[-1]['iterations']} iterations, {study.attempts[-1]['status']}): "
+                            "the elastic solve says which limit gives")
         r, infeasibility = study.elastic()
         infeasibility, dropped = _elastic.check_findings(plant, infeasibility, known)
         if dropped:  # a local result of the elastic solve: a verified schedule meets those limits
@@ -619,6 +618,20 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
     )
     return StudyResult(schedule=schedule, header=header, timeseries=timeseries, summary=summary.to_dict(),
                        exit_code=exit_code, study=study, blowers=blowers_table)
+
+
+def _solve_refined_first(study: DiurnalOptimisation):
+    """The refined study's first solve (optimize/backoff.py, :data:`~airtaper.optimize.backoff.REFINED_MAX_ITER`):
+    capped, and when it stops at its cap while still converging (dual infeasibility below
+    :data:`~airtaper.optimize.backoff.REFINED_DIVERGING_DUAL`) continued once from where it stopped, warm, with the
+    same cap. No retry ladder: the result, or None (the elastic solve follows)."""
+    study.progress.phase("optimising")
+    study._free_decisions()
+    r = study._ipopt(refined_first_rung(study.options.ladder[0]))
+    if not r.ok and still_converging(r) and not study.budget.exhausted:
+        r = study._ipopt(refined_first_rung(study.options.ladder[0], continued=True), warm_start=r)
+    study.result = r if r.ok else None
+    return study.result
 
 
 def _solve_refined(plant: ResolvedPlant, opts: StudyOptions, prog, base: Baseline, coarse_day: SimDay, finer: int,
