@@ -312,3 +312,103 @@ def test_back_off_rounds_on_short_steps_stop_when_the_excursion_does_not_shrink(
     assert 0.024 > SHRINK * 0.029
     _, hold, _, solves, _ = _stand_in_rounds(three_tank_6, [0.029, 0.024, 0.0], lambda k: True)
     assert hold["stalled"] is False and hold["rounds"] == 2 and len(solves) == 2
+
+
+def test_a_refined_study_whose_first_solve_does_not_converge_goes_straight_to_the_elastic_solve(three_tank_6,
+                                                                                               monkeypatch):
+    """The study solved again on finer steps: its first solve is capped at REFINED_MAX_ITER iterations, and when it
+    stops there diverging (dual infeasibility above REFINED_DIVERGING_DUAL) the elastic solve follows at once (no
+    retry ladder: the demo with blower B3 out spent 443 CPU s down the ladder to exit 4); stopped there still
+    converging, it is continued once, warm from where it stopped. Stand-in Ipopt and elastic solve; the model is
+    real."""
+    from types import SimpleNamespace
+
+    from airtaper.errors import EXIT_INFEASIBLE
+    from airtaper.optimize.backoff import REFINED_DIVERGING_DUAL, REFINED_MAX_ITER, REFINED_START, refined_options
+    from airtaper.optimize.diurnal import DiurnalOptimisation
+
+    calls = []
+    dual = [8e9]  # the dual infeasibility every stand-in solve stops at (B3 out: 8e9 at iteration 50)
+    finding = {"limit": "blower_min", "zone": None, "amount": 0.14, "unit": "fraction", "spans": [],
+               "message": "the blowers need 14 % more turndown than the smallest machine has, 00:00-08:00"}
+
+    def ipopt(self, rung, warm_start=False):
+        calls.append((rung.name, rung.options.get("max_iter"), warm_start is not False))
+        self.attempts.append({"rung": rung.name, "status": "iteration_limit",
+                              "iterations": rung.options.get("max_iter")})
+        return SimpleNamespace(ok=False, status=SimpleNamespace(value="iteration_limit"), message="stand-in",
+                               dual_infeasibility=dual[0])
+
+    def elastic(self):
+        calls.append(("elastic", None, False))
+        return SimpleNamespace(ok=True, status=SimpleNamespace(value="optimal"), message="stand-in", n_variables=1,
+                               n_constraints=1), [finding]
+
+    monkeypatch.setattr(DiurnalOptimisation, "_ipopt", ipopt)
+    monkeypatch.setattr(DiurnalOptimisation, "elastic", elastic)
+    monkeypatch.setattr(DiurnalOptimisation, "_square_solve", lambda self: None)  # the ladder's square-solved starts
+    opts = refined_options(StudyOptions(marginal=False, verify=False, complying_baseline=False), 8)
+    assert opts.refined and opts.ladder[0] == REFINED_START and "max_iter" not in REFINED_START.options
+    res = run_optimization(three_tank_6, opts)
+    first = f"{REFINED_START.name} (at most {REFINED_MAX_ITER} iterations)"
+    assert calls == [(first, REFINED_MAX_ITER, False), ("elastic", None, False)]
+    assert res.exit_code == EXIT_INFEASIBLE and res.summary["status"] == "infeasible"
+    assert finding["message"] in res.summary["messages"]
+    assert any(f"did not converge ({REFINED_MAX_ITER} iterations, iteration_limit)" in m
+               for m in res.summary["messages"])
+    # stopped at the cap still converging (the demo's refined solve: 0.09 at iteration 30): continued once, warm
+    calls.clear()
+    dual[0] = 0.09
+    assert dual[0] < REFINED_DIVERGING_DUAL
+    run_optimization(three_tank_6, opts)
+    assert calls == [(first, REFINED_MAX_ITER, False),
+                     (f"{REFINED_START.name}, continued (at most {REFINED_MAX_ITER} iterations)", REFINED_MAX_ITER,
+                      True),
+                     ("elastic", None, False)]
+    dual[0] = 8e9
+    # a verified coarse schedule (a converged solve's: every equipment limit met) contradicts the finding: it is
+    # left out, and with no finding left the refined study gives no answer (the coarse result is kept)
+    from airtaper.optimize.elastic import KnownSchedule
+
+    calls.clear()
+    res = run_optimization(three_tank_6, opts, known=KnownSchedule("the coarse schedule", None, verified=True))
+    assert res.summary["status"] == "failed" and res.summary["infeasibility"] == []
+    assert not any(finding["message"] in m for m in res.summary["messages"])
+    assert any(m.startswith("the elastic solve's findings on the blower turndown are left out: the coarse schedule "
+                            "meets those limits") for m in res.summary["messages"]), res.summary["messages"]
+    # the same study not refined goes down the whole ladder first
+    calls.clear()
+    run_optimization(three_tank_6, StudyOptions(marginal=False, verify=False, complying_baseline=False))
+    assert [c[0] for c in calls] == [r.name for r in StudyOptions().ladder] + ["elastic"]
+
+
+def test_a_refined_study_whose_findings_a_verified_coarse_schedule_contradicts_keeps_the_coarse_result(monkeypatch):
+    """The refined study ends infeasible (its elastic solve is a local optimum) while the coarse schedule it
+    started from was verified by the simulator: the coarse result stands, and the message says why. When the
+    coarse schedule was not verified the refined study's findings are the answer. Stand-in refined study."""
+    from types import SimpleNamespace
+
+    from airtaper.optimize import diurnal
+    from airtaper.optimize.elastic import KnownSchedule
+    from airtaper.optimize.progress import Silent
+
+    finding = "the effluent NH4-N daily mean cannot meet 1 mg/L: it stays 0.34 mg/L above"
+    fine = SimpleNamespace(summary={"status": "infeasible", "messages": [finding],
+                                    "infeasibility": [{"limit": "nh4_mean", "message": finding}]})
+    seen = []
+
+    def refined_run(plant, options, progress, baseline, start=None, known=None):
+        seen.append((options.refined, options.steps_per_period, known))
+        return fine
+
+    monkeypatch.setattr(diurnal, "run_optimization", refined_run)
+    known = KnownSchedule("the schedule solved on 4-hour model steps", SimpleNamespace(), verified=True)
+    messages = []
+    plant = SimpleNamespace(period_h=4.0)
+    assert diurnal._solve_refined(plant, StudyOptions(), Silent(), None, None, 8, 4.0, messages, known) is None
+    assert seen == [(True, 8, known)]  # the refined study gets the coarse schedule to check its findings against
+    assert len(messages) == 1 and finding in messages[0]
+    assert messages[0].endswith("do not hold against the schedule solved on 4-hour model steps, which the "
+                                "simulator verified")
+    known.verified = False
+    assert diurnal._solve_refined(plant, StudyOptions(), Silent(), None, None, 8, 4.0, [], known) is fine

@@ -198,3 +198,29 @@ def test_retry_ladder_moves_to_the_next_rung_after_a_failure(three_tank_6):
     assert res.exit_code == EXIT_OK
     reference = run_optimization(three_tank_6, StudyOptions(marginal=False, verify=False, staging=False))
     assert res.summary["energy_kWh_per_day"] == pytest.approx(reference.summary["energy_kWh_per_day"], rel=1e-5)
+
+
+@pytest.mark.slow
+def test_demo_with_blower_b3_out_is_diagnosed_by_the_blowers_turndown(demo):
+    """Blower B3 (the turbo, 2,500-5,500 Sm3/h) out of service on six 4-hour periods: the night needs less air
+    than B1 and B2 can give (4,500 Sm3/h each at least; layouts/demo.toml), so the DO carried downstream takes Z6
+    above its maximum. The refined study (30-minute steps) has no feasible point near the coarse schedule: its
+    first solve stops at REFINED_MAX_ITER iterations and the elastic solve names the turndown at night (exit 3,
+    not an unverified exit 4 after the whole retry ladder). The coarse schedule met the turndown while breaking
+    the DO ranges, so the finding is marked as a trade between limits."""
+    from airtaper.optimize.backoff import REFINED_MAX_ITER
+
+    layout = with_periods(demo, 6, steps_per_period=2)
+    out = replace(layout, blowers=tuple(replace(b, out_of_service=(b.id == "B3")) for b in layout.blowers))
+    res = run_optimization(out, StudyOptions(marginal=False))
+    s = res.summary
+    assert res.exit_code == EXIT_INFEASIBLE and s["status"] == "infeasible", s["messages"]
+    turndown = [f for f in s["infeasibility"] if f["limit"] == "blower_min"]
+    assert len(turndown) == 1, s["messages"]
+    assert turndown[0]["message"].startswith("the blowers need") and "turndown" in turndown[0]["message"]
+    # the night: the finding's hours lie within 00:00-08:00 (B3 ran alone there with every machine in service)
+    assert all(sp["end_h"] <= 8.0 for sp in turndown[0]["spans"]), turndown[0]["spans"]
+    assert turndown[0]["trade_with"] and any(m.startswith("a trade between limits") for m in s["messages"])
+    first = s["solver"]["attempts"][0]
+    assert first["iterations"] <= REFINED_MAX_ITER and first["status"] != "optimal"
+    assert s["saving_percent"] is None

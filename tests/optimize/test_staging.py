@@ -176,7 +176,8 @@ def test_demo_with_a_blower_out_of_service_is_feasible_and_costs_no_less(demo):
     3,876-4,205 Sm3/h (the optimum with every machine, B3 alone at night), below the 4,500 Sm3/h minimum of
     B1 and B2, so with B3 out the night's air is forced up and Z6's DO leaves its maximum (1.13 mg/L on the
     coarse steps; on 1-hour steps the relaxed solve did not converge in 150 iterations, without Z6's maximum it did
-    in 16): that plant cannot hold its DO range, and an unverified result is the truthful one."""
+    in 16): that plant cannot hold its DO range, and exit 3 naming the blowers' turndown at night is the truthful
+    result (test_diurnal.py, test_demo_with_blower_b3_out_is_diagnosed_by_the_blowers_turndown)."""
     layout = with_periods(demo, 6, steps_per_period=2)
     full = run_optimization(layout)
     assert full.summary["dispatch"]["blowers"]["B1"]["running_h"] > 0.0  # the machine taken out is one in use
