@@ -929,11 +929,11 @@ class _Parser:
             lo = zt.number("do_min_mg_L", None, ge=0.0, le=20.0)
             hi = zt.number("do_max_mg_L", None, gt=0.0, le=20.0)
             zt.finish()
-            if "do_min_mg_L" not in zt.data and "do_max_mg_L" not in zt.data:
+            if not zt.data:
                 col.error(t.key(zid), "names no DO limit", None, "do_min_mg_L and/or do_max_mg_L, in mg/L")
                 continue
             if lo is None and hi is None:
-                continue  # a bad value, reported
+                continue  # a bad value or an unknown key, reported
             low = lo if lo is not None else z.do_min_mg_L
             high = hi if hi is not None else z.do_max_mg_L
             if low is not None and high is not None and high <= low:
