@@ -121,6 +121,13 @@ def test_design_of_a_day_no_grid_can_meet_ends_exit_3_naming_it(tmp_path, capsys
     assert summary["solver"]["day_solves"] == 0
 
 
+def test_design_own_periods_of_an_unknown_day_exit_2(tmp_path, capsys):
+    code = main(["design", str(_layout(tmp_path)), "--out", str(tmp_path / "out"), "--own-periods", "peak,storm"])
+    assert code == EXIT_INPUT
+    assert capsys.readouterr().err.strip().splitlines() == [
+        "error: <command line>: --own-periods: no such load day (got 'storm', expected one of average, peak)"]
+
+
 def test_design_periods_that_do_not_nest_exit_2(tmp_path, capsys):
     code = main(["design", str(_layout(tmp_path)), "--out", str(tmp_path / "out"), "--periods", "5"])
     assert code == EXIT_INPUT
