@@ -18,6 +18,12 @@ layout's small smoothing term in money). The blowers count as one machine at the
 aggregate efficiency here (staging is a discrete choice per day that does not change the
 grid question); swing zones are relaxed.
 
+Pre-screen and periods
+    Before the search every load day is screened on the layout's own periods for limits no grid of the design
+    ranges can meet (:meth:`GridDesign.prescreen`; exit 3 naming the day). A design on fewer periods than the
+    layout's searches the days whose basis is ``minimum_day`` (``DesignOptions.own_period_days``) on the layout's
+    own periods and steps all the same: the coarse periods average the night's low flow away.
+
 Decomposition
     The days couple only through the counts, so for given counts each day is its own
     solve (the counts are the day model's mutable Param ``diffuser_count``), warm from
