@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 
 from airtaper.cli.main import main
-from airtaper.errors import EXIT_INPUT, EXIT_OK
+from airtaper.errors import EXIT_INFEASIBLE, EXIT_INPUT, EXIT_OK
 
 ROOT = Path(__file__).resolve().parents[2]
 THREE = ROOT / "layouts" / "three_tank.toml"
@@ -97,6 +97,35 @@ def test_design_without_capital_is_one_line_exit_2(tmp_path, capsys):
         f"error: {lay}: capital: a design weighs capital against energy: the layout gives no costs (expected a "
         "[capital] table with cost_per_diffuser)"]
     assert not (tmp_path / "out").exists()
+
+
+def test_design_day_zone_do_limit_out_of_range_is_one_line_exit_2(tmp_path, capsys):
+    lay = _layout(tmp_path, DESIGN_TABLES + "\n[load_days.zones.T3]\ndo_max_mg_L = -1.0\n")
+    code = main(["design", str(lay), "--out", str(tmp_path / "out")])
+    assert code == EXIT_INPUT
+    assert capsys.readouterr().err.strip().splitlines() == [
+        f"error: {lay}: load_days.peak.zones.T3.do_max_mg_L: must be positive (got -1.0, expected > 0)"]
+    assert not (tmp_path / "out").exists()
+
+
+def test_design_of_a_day_no_grid_can_meet_ends_exit_3_naming_it(tmp_path, capsys):
+    night = '\n[[load_days]]\nid = "night"\nbasis = "minimum_day"\ndays_per_year = 1.0\n' \
+            "\n[load_days.zones.T3]\ndo_max_mg_L = 0.6\n"
+    out = tmp_path / "out"
+    code = main(["design", str(_layout(tmp_path, DESIGN_TABLES + night)), "--out", str(out), "--quiet"])
+    assert code == EXIT_INFEASIBLE
+    text = capsys.readouterr().out
+    assert "no grid in the design ranges can meet load day(s) night: zone T3 cannot hold its DO maximum" in text
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["status"] == "infeasible" and summary["prescreen"]["days"]["night"]["feasible"] is False
+    assert summary["solver"]["day_solves"] == 0
+
+
+def test_design_own_periods_of_an_unknown_day_exit_2(tmp_path, capsys):
+    code = main(["design", str(_layout(tmp_path)), "--out", str(tmp_path / "out"), "--own-periods", "peak,storm"])
+    assert code == EXIT_INPUT
+    assert capsys.readouterr().err.strip().splitlines() == [
+        "error: <command line>: --own-periods: no such load day (got 'storm', expected one of average, peak)"]
 
 
 def test_design_periods_that_do_not_nest_exit_2(tmp_path, capsys):

@@ -76,6 +76,25 @@ def test_day_limits_replace_only_what_they_name(demo_data):
     assert (lim.nh4_mean_mg_L, lim.nh4_max_mg_L, lim.tn_mean_mg_L) == (2.0, 5.0, layout.limits.tn_mean_mg_L)
 
 
+def test_day_zone_do_limits_replace_the_zones_own_on_that_day_only(demo_data):
+    # the demo's minimum day accepts Z6 up to 3.5 mg/L; every other zone and day keeps the zone's own range
+    layout = _parse(demo_data)
+    days = {d.id: d for d in layout.load_days}
+    own = {z.id: (z.do_min_mg_L, z.do_max_mg_L) for z in layout.zones}
+    for d in layout.load_days:
+        zones = {z.id: (z.do_min_mg_L, z.do_max_mg_L) for z in day_layout(layout, d).zones}
+        assert zones == (dict(own, Z6=(1.0, 3.5)) if d.id == "minimum" else own), d.id
+    assert own["Z6"] == (1.0, 2.5)
+    # a day's DO minimum alone keeps the zone's maximum
+    _day(demo_data, "summer")["zones"] = {"Z3": {"do_min_mg_L": 1.5}}
+    layout = _parse(demo_data)
+    summer = next(d for d in layout.load_days if d.id == "summer")
+    z3 = next(z for z in day_layout(layout, summer).zones if z.id == "Z3")
+    assert (z3.do_min_mg_L, z3.do_max_mg_L) == (1.5, None)
+    assert parse_layout(layout_to_data(layout), "demo.toml", LAYOUTS) == layout
+    assert days["minimum"].zone_do[0].do_max_mg_L == 3.5
+
+
 def test_layout_without_days_has_its_base_profile_as_the_year(demo_data):
     del demo_data["load_days"]
     layout = _parse(demo_data)
@@ -180,6 +199,26 @@ CASES = [
     ("capital-without-tariff", _no_tariff,
      [E + "capital: capital costs are weighed against the energy bill, which needs prices (expected a [tariff] "
           "(its currency and price_per_kWh) as well)"]),
+    ("day-zone-unknown", _set_day("minimum", "zones", {"Z9": {"do_max_mg_L": 3.0}}),
+     [E + "load_days.minimum.zones.Z9: no such zone (got 'Z9', expected the id of an aerated or swing zone (Z2, Z3, "
+          "Z4, Z5, Z6))"]),
+    ("day-zone-anoxic", _set_day("minimum", "zones", {"Z1": {"do_max_mg_L": 3.0}}),
+     [E + "load_days.minimum.zones.Z1: an anoxic zone takes no air (expected an aerated or swing zone's id)"]),
+    ("day-do-max-below-the-zones-minimum", _set_day("minimum", "zones", {"Z6": {"do_max_mg_L": 0.8}}),
+     [E + "load_days.minimum.zones.Z6.do_max_mg_L: must exceed the day's DO minimum (got 0.8, expected > 1)"]),
+    ("day-do-min-above-the-zones-maximum", _set_day("summer", "zones", {"Z6": {"do_min_mg_L": 3.0}}),
+     [E + "load_days.summer.zones.Z6.do_min_mg_L: must be below the zone's DO maximum (2.5) (got 3.0, expected "
+          "< 2.5)"]),
+    ("day-do-max-not-a-number", _set_day("minimum", "zones", {"Z6": {"do_max_mg_L": "high"}}),
+     [E + "load_days.minimum.zones.Z6.do_max_mg_L: must be a number (got 'high', expected a number)"]),
+    ("day-do-max-out-of-range", _set_day("minimum", "zones", {"Z6": {"do_max_mg_L": 30.0}}),
+     [E + "load_days.minimum.zones.Z6.do_max_mg_L: out of range (got 30.0, expected > 0 and <= 20)"]),
+    ("day-zone-empty", _set_day("minimum", "zones", {"Z6": {}}),
+     [E + "load_days.minimum.zones.Z6: names no DO limit (expected do_min_mg_L and/or do_max_mg_L, in mg/L)"]),
+    ("day-zone-key-typo", _set_day("minimum", "zones", {"Z6": {"do_max": 3.0}}),
+     [E + "load_days.minimum.zones.Z6.do_max: unknown key, did you mean 'do_max_mg_L'?"]),
+    ("day-zone-not-a-table", _set_day("minimum", "zones", {"Z6": 3.0}),
+     [E + "load_days.minimum.zones.Z6: must be a table (got 3.0, expected a table)"]),
     ("count-step-zero", lambda d: d["zones"][2]["grid"].__setitem__("count_step", 0),
      [E + "zones.Z3.grid.count_step: out of range (got 0, expected >= 1 and <= 1e+07)"]),
 ]
@@ -250,9 +289,14 @@ day_values = st.one_of(
     st.sampled_from(list(D.LOAD_DAY_BASES) + ["peak", "Winter", "storm.csv", ""]),
     st.lists(st.floats(min_value=-5, max_value=50), max_size=25), st.dictionaries(st.text(max_size=6),
                                                                                    st.floats(), max_size=3),
+    # a day's zone DO limits ([load_days.zones.<id>]): known and unknown zones, keys and values
+    st.dictionaries(st.sampled_from(["Z1", "Z2", "Z6", "Q9", ""]), st.one_of(
+        st.dictionaries(st.sampled_from(["do_min_mg_L", "do_max_mg_L", "do_max"]),
+                        st.one_of(st.floats(), st.integers(-5, 30), st.text(max_size=3)), max_size=2),
+        st.floats()), max_size=3),
 )
 day_keys = st.sampled_from(["id", "days_per_year", "basis", "flow_factor", "load_factor", "influent_csv",
-                            "water_temperature_C", "air_temperature_C", "alpha_factor", "limits", "other"])
+                            "water_temperature_C", "air_temperature_C", "alpha_factor", "limits", "zones", "other"])
 
 
 @settings(max_examples=N_EXAMPLES, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])

@@ -9,12 +9,13 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pyomo.environ as pyo
 import pytest
 
 from airtaper.layout import parse_layout
 from airtaper.layout.loaddays import day_layout
 from airtaper.optimize.design import (Candidate, DaySolve, DesignOptions, GridDesign, capital_recovery_factor,
-                                      net_present_value, run_design, simple_payback_years)
+                                      net_present_value, payback_text, run_design, simple_payback_years)
 from airtaper.plant import resolve_plant
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -41,6 +42,19 @@ def test_net_present_value_and_payback():
     assert simple_payback_years(10_000.0, 2_500.0) == pytest.approx(4.0)
     assert simple_payback_years(10_000.0, -5.0) is None
     assert simple_payback_years(-100.0, 10.0) == 0.0
+
+
+def test_no_payback_when_cheaper_to_build_but_dearer_to_run():
+    # less capital now but more energy every year: nothing is paid back (the capital saved is spent again); the
+    # words say which case it is
+    assert simple_payback_years(-2_000.0, -300.0) is None
+    assert "cheaper to build but dearer to run" in payback_text(-2_000.0, -300.0)
+    assert simple_payback_years(2_000.0, -300.0) is None
+    assert "costs more to build and saves nothing" in payback_text(2_000.0, -300.0)
+    assert payback_text(1_000.0, 250.0) == "4.0 years"
+    assert simple_payback_years(0.0, 0.0) == 0.0
+    # its net present value says the same: negative over any life
+    assert net_present_value(-2_000.0, -300.0, 0.05, 15.0) < 0.0
 
 
 # --- a small design case: three tanks, two load days, a flat tariff -----------------------------
@@ -329,6 +343,12 @@ def test_the_designed_grid_passes_every_days_verification():
     # schedules (held and re-simulated) are the ones reported
     assert (result.schedule.groupby(["load_day", "zone"]).size() == 24).all()
     assert result.design.refined == {"average": "on the layout's 24 periods", "peak": "on the layout's 24 periods"}
+    # the studies replaced by the re-solves carry their own variables (a warm start or load writes into them)
+    g = result.design
+    for st, variables in zip(g.studies, g._vars):
+        model_vars = list(st.m.component_data_objects(pyo.Var, descend_into=True))
+        assert len(variables) == len(model_vars) and all(a is b for a, b in zip(variables, model_vars))
+    assert s["prescreen"]["feasible"] is True and set(s["prescreen"]["days"]) == {"average", "peak"}
     assert sum("the schedule reported is solved on the layout's 24 periods" in m for m in s["messages"]) == 2
 
 
@@ -423,6 +443,73 @@ def test_a_grids_annual_cost_is_the_sum_of_its_days_solved_alone(solved):
             g.crf * 60.0 + sum(c.gradient[z] - g.crf * 60.0 for c in singles), rel=1e-4, abs=1e-3)
 
 
+def _with_minimum_day(**zones) -> dict:
+    d = _small_data()
+    d["load_days"].append({"id": "night", "basis": "minimum_day", "days_per_year": 1.0})
+    if zones:
+        d["load_days"][-1]["zones"] = zones
+    return d
+
+
+def test_prescreen_names_a_day_no_grid_can_meet_before_any_search():
+    """A minimum day whose last tank may not rise above 0.6 mg/L: with every tank's DO held at its minimum (0.5
+    mg/L) and its air at the least the fewest diffusers of the range allow (the mixing minimum), T3's DO is far
+    above it all day, so no grid of the ranges can meet the day: exit 3 naming it, no day model solved."""
+    import time
+
+    from airtaper.errors import EXIT_INFEASIBLE
+
+    layout = parse_layout(_with_minimum_day(T3={"do_max_mg_L": 0.6}), str(LAYOUTS / "small.toml"), LAYOUTS)
+    t0 = time.process_time()
+    result = run_design(layout, OPTIONS)
+    seconds = time.process_time() - t0
+    s = result.summary
+    assert result.exit_code == EXIT_INFEASIBLE and s["status"] == "infeasible"
+    screen = s["prescreen"]
+    assert screen["feasible"] is False
+    assert [d for d, r in screen["days"].items() if not r["feasible"]] == ["night"]
+    (finding,) = screen["days"]["night"]["findings"]
+    assert finding["limit"] == "do_max" and finding["zone"] == "T3" and finding["spans"][0]["amount"] > 0.05
+    assert any(m.startswith("no grid in the design ranges can meet load day(s) night: zone T3 cannot hold its DO "
+                            "maximum of 0.6 mg/L") for m in s["messages"])
+    assert s["solver"]["day_solves"] == 0 and result.candidates.empty and not result.design.studies
+    # fast: a few simulated days, no optimisation (about 3 CPU s on the small case; generous bound)
+    assert seconds < 60.0
+    # the same day with the tank's own range passes the screen (the other days always do)
+    ok = GridDesign(parse_layout(_with_minimum_day(), str(LAYOUTS / "small.toml"), LAYOUTS), OPTIONS).prescreen()
+    assert ok["feasible"] and set(ok["days"]) == {"average", "peak", "night"}
+
+
+def test_a_minimum_day_is_designed_on_the_layouts_own_periods():
+    """Six coarse periods average the night's low flow away: a day whose basis is minimum_day is designed on the
+    layout's own periods and steps (DesignOptions.own_period_days names others), the other days on the design's."""
+    from airtaper.errors import ModelError
+
+    layout = parse_layout(_with_minimum_day(), str(LAYOUTS / "small.toml"), LAYOUTS)
+    g = GridDesign(layout, OPTIONS)
+    assert g.own_periods == {"night"} and g.layout.horizon.n_periods == 6 and layout.horizon.n_periods == 24
+    assert GridDesign(layout, replace(OPTIONS, own_period_days=("peak",))).own_periods == {"peak"}
+    assert GridDesign(layout, replace(OPTIONS, own_period_days=())).own_periods == set()
+    assert GridDesign(layout, DesignOptions()).own_periods == set()  # the layout's periods: nothing to do
+    with pytest.raises(ModelError, match="no load day 'storm'"):
+        GridDesign(layout, replace(OPTIONS, own_period_days=("storm",)))
+
+
+@pytest.mark.solver
+@pytest.mark.slow
+def test_the_minimum_days_model_and_solves_are_on_the_layouts_periods():
+    layout = parse_layout(_with_minimum_day(), str(LAYOUTS / "small.toml"), LAYOUTS)
+    g = GridDesign(layout, OPTIONS)
+    g.build()
+    periods = {d.id: st.plant.n_periods for d, st in zip(g.days, g.studies)}
+    assert periods == {"average": 6, "peak": 6, "night": 24}
+    night = g.studies[2]
+    assert night.plant.layout == day_layout(layout, layout.load_days[2])  # the layout's own day, not the mapped one
+    c = g.evaluate(g.current, every_day=True)
+    assert c.objective is not None
+    assert len(g._solved[g._key(g.current)][2].state) == len(g._vars[2])
+
+
 def test_design_needs_capital():
     from airtaper.errors import ModelError
     layout = replace(_small(), capital=None)
@@ -491,8 +578,6 @@ def test_phase_two_objective_is_built_once_and_converted_once():
     """Phase two (the least excess) keeps one objective on the day's model, deactivated between its solves, so the
     bridge converts the model for it once (a new objective each call was converted again: about 0.75 s a call on
     the demo's 6-period day) and the day's own objective is the one active afterwards."""
-    import pyomo.environ as pyo
-
     from airtaper.optimize.attempts import LADDER
     from airtaper.optimize.problem import LIMIT_GROUPS
 

@@ -35,6 +35,10 @@ def register(subparsers) -> None:
                    help="periods per day of the design's search (a divisor or multiple of the layout's; fewer "
                         "periods solve faster); the chosen grid's days are then solved again, held and verified on "
                         "the layout's own periods")
+    p.add_argument("--own-periods", metavar="DAY[,DAY]",
+                   help="with --periods: the load days (ids) searched on the layout's own periods all the same "
+                        "(default: the days whose basis is minimum_day, whose night the coarse periods average "
+                        "away); an empty string for none")
     p.add_argument("--no-verify", action="store_true", help="skip the re-simulation of every load day")
     p.add_argument("--no-figure", action="store_true", help="skip taper.png and train.png")
     p.add_argument("--quiet", action="store_true", help="no progress display")
@@ -67,6 +71,19 @@ def periods_problems(n: int | None, plant, whose: str = "the layout's") -> list[
                     f"a divisor or multiple of {have}, at most 288")]
 
 
+def own_periods_problems(value: str | None, plant) -> tuple[tuple[str, ...] | None, list[Problem]]:
+    """``--own-periods DAY[,DAY]``: the load days named must be the layout's (None: the default days)."""
+    if value is None:
+        return None, []
+    days = tuple(d for d in (x.strip() for x in value.split(",")) if d)
+    ids = [d.id for d in plant.load_days]
+    bad = [d for d in days if d not in ids]
+    if bad:
+        return None, [Problem("<command line>", "--own-periods", "no such load day", bad[0],
+                              ("one of " + ", ".join(ids)) if ids else "a layout with [[load_days]]")]
+    return days, []
+
+
 def run(args) -> int:
     from airtaper.optimize.design import DesignOptions, run_design
     from airtaper.optimize.progress import Progress
@@ -76,13 +93,15 @@ def run(args) -> int:
     plant = load_plant(args.layout, args.overrides, warnings=warnings)  # every check `check` and `optimize` run
     for w in warnings:
         print(str(w), file=sys.stderr)
-    problems = layout_problems(args.layout, plant) + periods_problems(args.periods, plant)
+    own, own_problems = own_periods_problems(args.own_periods, plant)
+    problems = layout_problems(args.layout, plant) + periods_problems(args.periods, plant) + own_problems
     if problems:
         raise InputError(problems)
     inputs = layout_input_files(args.layout, plant.layout) + ([args.overrides] if args.overrides else [])
     with output_folder(args.out, inputs=inputs, overwrite=args.overwrite) as out:
         progress = Progress(enabled=not args.quiet)
-        result = run_design(plant, DesignOptions(n_periods=args.periods, verify=not args.no_verify), progress)
+        result = run_design(plant, DesignOptions(n_periods=args.periods, verify=not args.no_verify,
+                                                   own_period_days=own), progress)
         progress.phase("writing outputs")
         result.summary.update(out.provenance())
         write_design_outputs(out.staging, result, figures=not args.no_figure)

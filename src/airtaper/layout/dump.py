@@ -160,4 +160,7 @@ def _load_day(d) -> dict:
         out["air_temperature_C"] = _pp(d.air_temperature_C)
     out["alpha_factor"] = d.alpha_factor
     out["limits"] = _keys(d.limits)
+    if d.zone_do:
+        out["zones"] = {z.zone: {k: v for k, v in (("do_min_mg_L", z.do_min_mg_L), ("do_max_mg_L", z.do_max_mg_L))
+                                 if v is not None} for z in d.zone_do}
     return out

@@ -12,7 +12,9 @@ factor and every load (COD, TSS, nitrogen; with ASM1 components, every component
 but oxygen and alkalinity) by the load factor, so concentrations change by
 load factor / flow factor. Alkalinity is a property of the water and keeps its
 concentration. Recycles and return sludge given as ratios follow the day's flow;
-those given as flows keep them.
+those given as flows keep them. A day's own DO range of a zone (``[load_days.zones.<id>]``, say a DO maximum
+the operator accepts higher on the minimum day) replaces the zone's limit on that day only; the other zones,
+and the limits it does not name, keep the zone's own.
 """
 
 from __future__ import annotations
@@ -81,6 +83,11 @@ def day_layout(layout: Layout, day: LoadDay) -> Layout:
     zones = layout.zones
     if day.alpha_factor != 1.0:
         zones = tuple(replace(z, alpha=z.alpha * day.alpha_factor) for z in zones)
+    if day.zone_do:
+        own = {d.zone: d for d in day.zone_do}
+        zones = tuple(z if z.id not in own else replace(
+            z, do_min_mg_L=z.do_min_mg_L if own[z.id].do_min_mg_L is None else own[z.id].do_min_mg_L,
+            do_max_mg_L=z.do_max_mg_L if own[z.id].do_max_mg_L is None else own[z.id].do_max_mg_L) for z in zones)
     return replace(layout, plant=plant, zones=zones, influent=influent, recycles=recycles, return_sludge=ras,
                    inlet_air=inlet, limits=day.limits, load_days=())
 

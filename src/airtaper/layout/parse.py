@@ -25,7 +25,7 @@ from airtaper.layout.reader import (
 )
 from airtaper.layout.types import (
     Blower, Capital, Clarifier, DiffuserGrid, DiffuserType, EfficiencyPoint, Header, HeadlossPoint,
-    Horizon, Influent, InletAir, Kinetics, Layout, Limits, LoadDay, Operation, Plant, PowerPoint, Recycle, ReturnSludge, Settling,
+    DayZoneDO, Horizon, Influent, InletAir, Kinetics, Layout, Limits, LoadDay, Operation, Plant, PowerPoint, Recycle, ReturnSludge, Settling,
     SotePoint, StepFeed, Tariff, Wasting, Zone,
     RangePoint,
 )
@@ -889,6 +889,10 @@ class _Parser:
         day_limits = limits
         if lim_t is not None:
             day_limits = self.section(lim_t, self.day_limits, limits)
+        zones_t = t.table("zones")
+        zone_do = ()
+        if zones_t is not None:
+            zone_do = self.section(zones_t, self.day_zone_do, zones) or ()
         wasting = flows[3]
         if (wasting is not None and wasting.flow_m3_d is not None and influent is not None and flow_f is not None
                 and (csv_name is None or own is not None)):
@@ -898,7 +902,49 @@ class _Parser:
                 col.error(t.key("influent_csv" if own is not None else "flow_factor"),
                           f"the day's influent flow is not above the waste flow (period {bad[0] + 1})",
                           round(q[bad[0]], 1), f"> flows.waste.flow_m3_d = {wasting.flow_m3_d[bad[0]]:g} m3/d")
-        return LoadDay(ident, weight, basis, flow_f, load_f, own, water, air, alpha_f, day_limits)
+        return LoadDay(ident, weight, basis, flow_f, load_f, own, water, air, alpha_f, day_limits, zone_do)
+
+    def day_zone_do(self, t: Table, zones) -> tuple[DayZoneDO, ...]:
+        """A load day's own DO ranges (``[load_days.zones.<id>]``: ``do_min_mg_L``, ``do_max_mg_L``), each
+        checked against the zone's own limit it leaves in place."""
+        col = self.col
+        known = {z.id: z for z in zones if z is not None and z.id is not None}
+        complete = len(known) == len(zones)  # a zone that did not parse: its id is unknown, say nothing of it
+        out = []
+        for zid in list(t.data):
+            t.allow(zid)
+            z = known.get(zid)
+            if z is None:
+                if complete:
+                    col.error(t.key(zid), "no such zone", zid,
+                              "the id of an aerated or swing zone (" + ", ".join(
+                                  k for k, v in known.items() if v.kind != "anoxic") + ")")
+                continue
+            zt = t.table(zid)
+            if zt is None:
+                continue
+            if z.kind == "anoxic":
+                col.error(t.key(zid), "an anoxic zone takes no air", None, "an aerated or swing zone's id")
+                continue
+            lo = zt.number("do_min_mg_L", None, ge=0.0, le=20.0)
+            hi = zt.number("do_max_mg_L", None, gt=0.0, le=20.0)
+            zt.finish()
+            if not zt.data:
+                col.error(t.key(zid), "names no DO limit", None, "do_min_mg_L and/or do_max_mg_L, in mg/L")
+                continue
+            if lo is None and hi is None:
+                continue  # a bad value or an unknown key, reported
+            low = lo if lo is not None else z.do_min_mg_L
+            high = hi if hi is not None else z.do_max_mg_L
+            if low is not None and high is not None and high <= low:
+                if hi is not None:
+                    col.error(zt.key("do_max_mg_L"), "must exceed the day's DO minimum", hi, f"> {low:g}")
+                else:
+                    col.error(zt.key("do_min_mg_L"), f"must be below the zone's DO maximum ({high:g})", lo,
+                              f"< {high:g}")
+                continue
+            out.append(DayZoneDO(zid, lo, hi))
+        return tuple(out)
 
     def day_limits(self, t: Table, limits: Limits | None) -> Limits | None:
         given = {k: t.number(k, None, gt=0.0) for k in ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L")}

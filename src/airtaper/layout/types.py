@@ -306,6 +306,15 @@ class Horizon:
 
 
 @dataclass(frozen=True)
+class DayZoneDO:
+    """A load day's own DO range of one zone (``[load_days.zones.<id>]``); None: the zone's own limit."""
+
+    zone: str
+    do_min_mg_L: float | None
+    do_max_mg_L: float | None
+
+
+@dataclass(frozen=True)
 class LoadDay:
     """One named day of the year the plant must treat, and how many days of the year it stands for.
 
@@ -327,6 +336,7 @@ class LoadDay:
     air_temperature_C: tuple[float, ...] | None
     alpha_factor: float  # multiplies every zone's alpha
     limits: "Limits"
+    zone_do: tuple[DayZoneDO, ...] = ()  # the day's own DO ranges of some zones (the others keep the zone's)
 
 
 @dataclass(frozen=True)

@@ -18,6 +18,12 @@ layout's small smoothing term in money). The blowers count as one machine at the
 aggregate efficiency here (staging is a discrete choice per day that does not change the
 grid question); swing zones are relaxed.
 
+Pre-screen and periods
+    Before the search every load day is screened on the layout's own periods for limits no grid of the design
+    ranges can meet (:meth:`GridDesign.prescreen`; exit 3 naming the day). A design on fewer periods than the
+    layout's searches the days whose basis is ``minimum_day`` (``DesignOptions.own_period_days``) on the layout's
+    own periods and steps all the same: the coarse periods average the night's low flow away.
+
 Decomposition
     The days couple only through the counts, so for given counts each day is its own
     solve (the counts are the day model's mutable Param ``diffuser_count``), warm from
@@ -99,6 +105,7 @@ from airtaper.optimize.diurnal import DiurnalOptimisation, StudyOptions, model_s
 from airtaper.optimize.elastic import REPORT_THRESHOLD
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.marginal import STEP_mg_L, parameter_sensitivity
+from airtaper.optimize.prescreen import count_range_findings
 from airtaper.optimize.problem import LIMIT_GROUPS
 from airtaper.optimize.progress import Progress, Silent
 from airtaper.optimize.results import jsonable, study_tables
@@ -164,12 +171,25 @@ def net_present_value(extra_capital: float, annual_saving: float, interest_rate:
 
 
 def simple_payback_years(extra_capital: float, annual_saving: float) -> float | None:
-    """Years for the saving to repay the extra capital (None when nothing is saved; 0 when nothing is spent)."""
+    """Years for the saving to repay the extra capital; 0 when nothing more is spent and nothing is lost a year;
+    None when there is no payback: more spent and nothing saved, or less spent and more paid every year (the
+    reverse trade: the capital saved once is eaten by the running cost, :func:`payback_text` says it)."""
     if extra_capital <= 0.0:
-        return 0.0
+        return 0.0 if annual_saving >= 0.0 else None
     if annual_saving <= 0.0:
         return None
     return extra_capital / annual_saving
+
+
+def payback_text(extra_capital: float, annual_saving: float) -> str:
+    """The payback of :func:`simple_payback_years` in words, saying why there is none."""
+    years = simple_payback_years(extra_capital, annual_saving)
+    if years is not None:
+        return "none needed: no extra capital and no extra running cost" if years == 0.0 else f"{years:.1f} years"
+    if extra_capital <= 0.0:
+        return ("no payback: the design is cheaper to build but dearer to run (the capital saved once is spent again "
+                "on energy, the net present value says how soon)")
+    return "no payback: the design costs more to build and saves nothing a year"
 
 
 def grid_capital(capital, counts: dict[str, float]) -> float:
@@ -202,6 +222,14 @@ class DesignOptions:
     # within them counts as not met on that grid. Common practice (no source): a warm day converges in tens.
     max_iter: int = 200
     ipopt_options: dict = field(default_factory=dict)
+    # a design on fewer periods than the layout's (``n_periods``): the load days (ids) designed on the layout's own
+    # periods and steps all the same; None: the days whose basis is "minimum_day". The coarse periods average the
+    # night's low flow and load with the hours around them: on the demo's six 4-hour periods the minimum day's grid
+    # met Z6's DO maximum that the same grid broke by 0.29 mg/L at the least on the layout's 24 hourly periods.
+    own_period_days: tuple[str, ...] | None = None
+    # before the search, every load day screened for limits no grid of the design ranges can meet
+    # (:func:`airtaper.optimize.prescreen.count_range_findings`); a day that fails ends the design (exit 3)
+    prescreen: bool = True
 
 
 @dataclass
@@ -256,6 +284,18 @@ class GridDesign:
             raise ModelError("a design needs the layout's [capital] costs and [tariff]")
         self.progress = progress or Silent()
         self.days = layout_days(layout)
+        self.source_days = layout_days(source)  # the same days with their per-period values on the layout's periods
+        # the days designed on the layout's own periods (DesignOptions.own_period_days)
+        self.own_periods: set[str] = set()
+        if source is not layout:
+            wanted = self.options.own_period_days
+            ids = [d.id for d in self.days]
+            if wanted is None:
+                wanted = [d.id for d in self.days if d.basis == "minimum_day"]
+            unknown = [d for d in wanted if d not in ids]
+            if unknown:
+                raise ModelError(f"own_period_days: no load day {unknown[0]!r} (the layout's days: {', '.join(ids)})")
+            self.own_periods = set(wanted)
         self.zones = list(self.plant.diffused)  # DiffusedZone: type, count step, design count range
         if not self.zones:
             raise ModelError("the layout has no diffuser grids to design")
@@ -284,13 +324,47 @@ class GridDesign:
         t0 = time.perf_counter()
         opts = StudyOptions(objective="cost", staging=False, steps_per_period=self.options.steps_per_period,
                             ipopt_options=dict(self.options.ipopt_options))
-        for i, day in enumerate(self.days, start=1):
+        for i, (day, own) in enumerate(zip(self.days, self.source_days), start=1):
             self.progress.phase(f"load day {day.id}: baseline and model ({i} of {len(self.days)})")
-            st = DiurnalOptimisation(day_layout(self.layout, day), opts, self.progress)
+            if day.id in self.own_periods:  # the layout's own periods and steps (DesignOptions.own_period_days)
+                st = DiurnalOptimisation(day_layout(self.source, own), replace(opts, steps_per_period=None),
+                                         self.progress)
+            else:
+                st = DiurnalOptimisation(day_layout(self.layout, day), opts, self.progress)
             st.build()
             self.studies.append(st)
-            self._vars.append(list(st.m.component_data_objects(pyo.Var, descend_into=True)))
+            self._vars.append(self._variables(st))
         self.timings["build_s"] = time.perf_counter() - t0
+
+    @staticmethod
+    def _variables(st) -> list:
+        """Every variable of a day's model, in the order of its saved states (:attr:`DaySolve.state`)."""
+        return list(st.m.component_data_objects(pyo.Var, descend_into=True))
+
+    def _replace_study(self, i: int, st) -> None:
+        """Day ``i``'s study replaced by one solved again (finer steps, the layout's periods): its variables too,
+        so no later warm start or :meth:`load` writes a state into the old model's variables."""
+        self.studies[i] = st
+        self._vars[i] = self._variables(st)
+        for solves in self._solved.values():  # states of the old model: not a start for the new one
+            if len(solves) > i and solves[i].state is not None:
+                solves[i] = replace(solves[i], state=None)
+
+    def prescreen(self) -> dict:
+        """Every load day screened on the layout's own periods for limits no grid of the design ranges can meet
+        (:func:`airtaper.optimize.prescreen.count_range_findings`): ``{"feasible", "seconds", "days": {day id:
+        {"feasible", "findings", "seconds", "note"}}}``."""
+        t0 = time.perf_counter()
+        lowest = {z: lo for z, (lo, _hi) in self.ranges.items()}
+        highest = {z: hi for z, (_lo, hi) in self.ranges.items()}
+        days = {}
+        for day in self.source_days:
+            self.progress.phase(f"load day {day.id}: pre-screen of the design ranges")
+            days[day.id] = count_range_findings(resolve_plant(day_layout(self.source, day)), lowest, highest)
+        out = {"feasible": all(d["feasible"] for d in days.values()), "seconds": time.perf_counter() - t0,
+               "days": days}
+        self.timings["prescreen_s"] = out["seconds"]
+        return out
 
     # --- one grid: every day on its own -------------------------------------------------------
     def _key(self, counts: dict[str, float]) -> tuple:
@@ -302,7 +376,7 @@ class GridDesign:
         x = np.array([float(counts[z]) for z in self.ids]) / self.steps
         best, dist = None, math.inf
         for key, solves in self._solved.items():
-            if len(solves) > i and solves[i].ok:
+            if len(solves) > i and solves[i].ok and solves[i].state is not None:
                 d = float(np.abs(np.array(key) / self.steps - x).sum())
                 if d < dist:
                     best, dist = solves[i].state, d
@@ -537,6 +611,9 @@ class GridDesign:
         results = []
         for i in days:
             s = self._solved[key][i]
+            if s.state is None:
+                raise ModelError(f"load day {self.days[i].id}: its model was replaced (solved again on other "
+                                 "periods or steps): the grid's state is not its own")
             st, m = self.studies[i], self.studies[i].m
             for z in self.ids:
                 m.diffuser_count[z] = float(counts[z])
@@ -914,7 +991,7 @@ class GridDesign:
                                          f"the design's {plant.n_periods} periods")
                 if fine is not None:
                     st, ver = fine
-                    self.studies[i] = st
+                    self._replace_study(i, st)
                 else:
                     ver = check()[0]
                 out.append(ver)
@@ -931,7 +1008,7 @@ class GridDesign:
                     finer)
                 if fine is not None:
                     st, ver = fine
-                    self.studies[i] = st
+                    self._replace_study(i, st)
             out.append(ver)
             results.append(st.result)
         self.day_results = results
@@ -1023,14 +1100,26 @@ def run_design(layout: ResolvedPlant | Layout, options: DesignOptions | None = N
     lay, plant = g.layout, g.plant
     cap = plant.capital
     messages: list[str] = []
-    g.build()
-    relaxed = g.solve_relaxed()
     base = {"plant": plant.name, "layout": plant.path, "currency": plant.tariff.currency,
-            "load_days": [{"id": d.id, "days_per_year": d.days_per_year} for d in g.days],
+            "load_days": [{"id": d.id, "days_per_year": d.days_per_year,
+                           "periods": g.source.horizon.n_periods if d.id in g.own_periods else plant.n_periods}
+                          for d in g.days],
             "capital_inputs": {"cost_per_diffuser": cap.cost_per_diffuser, "cost_per_zone": cap.cost_per_zone,
                                "interest_rate": cap.interest_rate, "life_years": cap.life_years,
                                "capital_recovery_factor": g.crf},
-            "count_ranges": {z: {"lowest": lo, "highest": hi} for z, (lo, hi) in g.ranges.items()}}
+            "count_ranges": {z: {"lowest": lo, "highest": hi} for z, (lo, hi) in g.ranges.items()},
+            "prescreen": None}
+    if g.options.prescreen:
+        screen = g.prescreen()
+        base["prescreen"] = screen
+        if not screen["feasible"]:
+            bad = {d: r for d, r in screen["days"].items() if not r["feasible"]}
+            messages.append("no grid in the design ranges can meet load day(s) " + "; ".join(
+                f"{d}: " + "; ".join(f["message"] for f in r["findings"]) for d, r in bad.items())
+                + " (pre-screen, before any search)")
+            return _no_design(g, base, "infeasible", messages, t0)
+    g.build()
+    relaxed = g.solve_relaxed()
     if relaxed is None:
         statuses = {c.status for c in g.candidates}
         status = "infeasible" if "infeasible" in statuses else "failed"
@@ -1125,13 +1214,17 @@ def run_design(layout: ResolvedPlant | Layout, options: DesignOptions | None = N
         same = totals(searched_rows, "design", best.counts, compared)
         extra = design_tot["capital"] - current_tot["capital"]
         saving = current_tot["energy_cost_per_year"] - same["energy_cost_per_year"]
+        if simple_payback_years(extra, saving) is None:
+            messages.append("against the current grid: " + payback_text(extra, saving))
         comparison = {"extra_capital": extra, "energy_saving_per_year": saving,
                       "energy_saving_kWh_per_year": current_tot["energy_kWh_per_year"] - same["energy_kWh_per_year"],
                       "payback_years": simple_payback_years(extra, saving),
+                      "payback": payback_text(extra, saving),
                       "net_present_value": net_present_value(extra, saving, cap.interest_rate, cap.life_years),
                       "design_energy_cost_per_year_compared": same["energy_cost_per_year"],
                       "design_energy_kWh_per_year_compared": same["energy_kWh_per_year"],
                       "periods": g.plant.n_periods,
+                      "periods_by_day": {d["id"]: d["periods"] for d in base["load_days"]},
                       "load_days_compared": [d.id for d in compared],
                       "days_per_year_compared": float(sum(d.days_per_year for d in compared)),
                       "load_days_not_met_by_current": not_met}
@@ -1176,4 +1269,5 @@ def candidate_table(g: GridDesign) -> pd.DataFrame:
 
 
 __all__ = ["BINDING_SHARE", "PHASE_ONE_TOLERANCE", "RESTORE_AIM", "WARM_STEPS", "Candidate", "DaySolve", "DesignOptions", "DesignResult", "GridDesign",
-           "run_design", "capital_recovery_factor", "grid_capital", "net_present_value", "simple_payback_years"]
+           "run_design", "capital_recovery_factor", "grid_capital", "net_present_value", "payback_text",
+           "simple_payback_years"]

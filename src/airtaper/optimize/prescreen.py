@@ -230,6 +230,85 @@ def prescreen(plant: ResolvedPlant | Layout, *, simulate: bool = True) -> dict:
             "note": note}
 
 
+def count_range_findings(plant: ResolvedPlant | Layout, lowest: dict[str, int], highest: dict[str, int]) -> dict:
+    """Limits of one day (a load day's plant) that no diffuser grid between the counts ``lowest`` and ``highest``
+    (zone -> count: a design's ranges) can meet, found by two simulated days without an optimisation.
+
+    * Full air on the grid ``highest``: the most oxygen any grid of the range transfers (more diffusers pass more
+      air, at a higher transfer efficiency per diffuser): a DO minimum or an NH4-N limit missed there
+      (:func:`full_air_findings`) is missed by every grid of the range.
+    * Least air on the grid ``lowest``: every zone's DO held at its minimum by the simulator's DO control, its
+      air no lower than the grid's minimum (its diffusers' minimum or its mixing minimum, whichever is higher,
+      both lowest on the fewest diffusers) and no higher than its maximum. Any schedule that meets the DO minima
+      gives every zone at least this air, and more air anywhere raises the DO everywhere (common practice (no
+      source), as for the full-air day), so a zone whose DO rises above its maximum even here (by more than the
+      verification's DO tolerance) is above it on every grid of the range, whatever the schedule. This is the
+      turndown check: air only at the minimum everywhere missed the demo's minimum day, whose Z6 is pushed over
+      its maximum by the air the zones before it need for their DO minima (less ammonia reaches Z6); with the
+      minima held, hour by hour, Z6 at its mixing minimum (360 Sm3/h) is 0.23 mg/L over its 2.5 mg/L at dawn.
+
+    Like :func:`prescreen` a relaxation (the blowers' own limits left out), so a finding is certain. Returns
+    ``{"feasible", "findings", "seconds", "note"}``; each finding as :func:`prescreen`'s.
+    """
+    from airtaper.optimize.simday import simulate_day
+    from airtaper.plant import with_diffuser_counts
+
+    t0 = time.perf_counter()
+    plant = resolve_plant(plant)
+    findings, notes = [], []
+    for side, counts in (("full air", highest), ("least air", lowest)):
+        grid = with_diffuser_counts(plant, counts)
+        zones = _grid_zones(grid)
+        if not zones:
+            break
+        if side == "full air":
+            air = {"schedule": {z.id: z.airflow_range_Sm3_h[1] for z in zones}}
+        else:  # each zone's DO held at its minimum, its air clipped to the grid's range
+            air = {"do_setpoint_mg_L": {z.id: z.zone.do_min_mg_L or 0.0 for z in zones if z.kind == "aerated"}}
+        try:
+            day = simulate_day(grid, max_days=FULL_AIR_DAYS, **air)
+        except (SteadyStateError, RuntimeError, ArithmeticError, ValueError) as exc:
+            notes.append(f"the {side} day could not be simulated ({exc})")
+            continue
+        if side == "full air":
+            findings.extend(full_air_findings(grid, day))
+        else:
+            findings.extend(_least_air_findings(grid, day))
+    return {"feasible": not findings, "findings": findings, "seconds": time.perf_counter() - t0,
+            "note": "; ".join(notes) or None}
+
+
+def _least_air_findings(plant: ResolvedPlant, day) -> list[dict]:
+    """DO maxima the least-air day (every zone's DO at its minimum, its air at least the grid's minimum) breaks
+    (:func:`count_range_findings`)."""
+    out = []
+    period_h, n = plant.period_h, plant.n_periods
+    ex = day.do_extremes
+    highs = {z: g.sort_values("period")["do_max_mg_L"].to_numpy() for z, g in ex.groupby("zone", sort=False)}
+    for dz in _grid_zones(plant):
+        z = dz.zone
+        if z.kind != "aerated" or z.do_max_mg_L is None:
+            continue
+        high = highs[z.id]
+        bad = [k for k in range(n) if high[k] > z.do_max_mg_L + DO_TOLERANCE_mg_L]
+        if not bad:
+            continue
+        lo, _ = dz.airflow_range_Sm3_h
+        spans, texts = [], []
+        for r in period_runs(bad, n):
+            over = float(max(high[k] - z.do_max_mg_L for k in r))
+            spans.append({"start_h": r[0] * period_h, "end_h": (r[-1] + 1) * period_h, "amount": over,
+                          "unit": "mg/L"})
+            texts.append((r, f"{over:.2f} mg/L over"))
+        why = ("its diffusers' minimum" if dz.diffuser_airflow_min_Sm3_h * dz.diffusers >= lo * (1.0 - 1e-9)
+               else "its mixing minimum")
+        out.append(_finding("do_max", z.id, spans,
+                            f"zone {z.id} cannot hold its DO maximum of {z.do_max_mg_L:g} mg/L with every zone's DO "
+                            f"held at its minimum and its air at the least {dz.diffusers} diffusers (the fewest of "
+                            f"the design range) allow ({lo:,.0f} Sm3/h, {why}): " + span_text(texts, period_h)))
+    return out
+
+
 def outside_tested_range(plant: ResolvedPlant | Layout, airflow_by_zone: dict, period_of_point, where: str
                          ) -> list[dict]:
     """Spans where a zone's airflow per diffuser leaves its diffuser type's tested range.
@@ -268,4 +347,4 @@ def outside_tested_range(plant: ResolvedPlant | Layout, airflow_by_zone: dict, p
     return out
 
 
-__all__ = ["equipment_findings", "full_air_findings", "outside_tested_range", "prescreen"]
+__all__ = ["count_range_findings", "equipment_findings", "full_air_findings", "outside_tested_range", "prescreen"]
