@@ -524,6 +524,11 @@ FIGURES: tuple[tuple[str, str, Callable], ...] = (
 )
 
 
+#: zlib level of the PNG files: 1 encodes the report's figures in about half the time of Pillow's default (6) for
+#: files about 7 % larger (demo: 560 against 524 kB for all seven); the pixels are the same.
+PNG_COMPRESS_LEVEL = 1
+
+
 def figure_png(fig, dpi: int = 100) -> bytes:
     """Render and close a figure; PNG bytes (no timestamp in the metadata, so reruns give equal bytes).
 
@@ -541,7 +546,8 @@ def figure_png(fig, dpi: int = 100) -> bytes:
         with matplotlib.rc_context({"figure.autolayout": False, "figure.constrained_layout.use": False}):
             fig.set_layout_engine(None)  # laid out: savefig draws once
     buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=dpi, metadata={"Software": None})
+    fig.savefig(buf, format="png", dpi=dpi, metadata={"Software": None},
+                pil_kwargs={"compress_level": PNG_COMPRESS_LEVEL})
     plt.close(fig)
     return buf.getvalue()
 
