@@ -97,3 +97,34 @@ def test_the_console_entry_runs_the_exit_handlers_and_keeps_the_exit_code():
     r = subprocess.run([sys.executable, "-m", "airtaper", "check", "--help"], capture_output=True, text=True,
                        env=_env(), check=False)
     assert r.returncode == 0 and r.stdout.startswith("usage: airtaper check")
+
+
+#: In a fresh interpreter: import the command, say whether scipy.stats came with it, then use scipy.stats
+#: through Pyomo's deferred scipy and directly (both must still work).
+_STATS = ("import sys\n{before}\nimport airtaper.cli.main as m, airtaper.cli.optimize, airtaper.optimize.diurnal\n"
+          "print('STATS', 'scipy.stats' in sys.modules)\n"
+          "from pyomo.common.dependencies import scipy, scipy_available\n"
+          "import scipy.stats\n"
+          "print('T', bool(scipy_available), round(float(scipy.stats.t.ppf(0.975, 10)), 4))\n")
+
+
+def _stats_run(before: str = "") -> list[str]:
+    r = subprocess.run([sys.executable, "-c", _STATS.format(before=before)], capture_output=True, text=True,
+                       env=_env(), check=False)
+    assert r.returncode == 0, r.stderr
+    return r.stdout.split()
+
+
+def test_the_optimize_command_does_not_import_scipy_stats_and_scipy_stats_still_works():
+    # t(0.975, 10) = 2.2281: Student's t table, e.g. NIST/SEMATECH e-Handbook of Statistical Methods, 1.3.6.7.2
+    assert _stats_run() == ["STATS", "False", "T", "True", "2.2281"]
+
+
+def test_import_works_when_pyomo_has_no_private_hook_or_scipy_came_first():
+    """pyomo_without_scipy_stats relies on a private Pyomo attribute: with an indicator without it (as another
+    Pyomo version may have), or with scipy imported before Pyomo, it does nothing, the imports work and Pyomo
+    imports scipy.stats as it always did."""
+    other_pyomo = ("import pyomo.common.dependencies as d\n"
+                   "d.scipy_available = type('OtherIndicator', (), {'__bool__': lambda self: True})()")
+    assert _stats_run(other_pyomo) == ["STATS", "True", "T", "True", "2.2281"]
+    assert _stats_run("import scipy") == ["STATS", "True", "T", "True", "2.2281"]

@@ -75,7 +75,9 @@ def test_airflow_schedule_drives_the_zones(demo, demo_day):
 def test_bsm1_constant_day_is_its_steady_state(bsm1_layered):
     r = simulate.periodic(bsm1_layered)
     ss = r.start
-    assert r.days == 1 and r.day_change < 1e-6
+    # a constant day repeats at once: one seeking day at loose tolerances, then one at the requested ones
+    assert r.days == 2 and r.day_change < 1e-6
+    assert simulate.periodic(bsm1_layered, seek=False).days == 1
     np.testing.assert_allclose(r.effluent.SNH, ss.effluent["SNH"], rtol=1e-6)
 
 
@@ -269,7 +271,8 @@ def test_a_start_at_a_period_runs_the_rest_of_that_day_first(demo, demo_day):
     at = ts[ts["time_h"] == ts["time_h"].unique()[k * steps]].set_index("zone")
     state = {"zones": {z.id: at.loc[z.id, list(ASM1_COMPONENTS)].to_numpy(dtype=float) for z in demo.zones}}
     waste = float(demo_day.effluent["q_waste_m3_d"].iloc[0])
-    again = simulate.periodic(demo, do_setpoint_mg_L=2.0, start_state=state, start_waste_m3_d=waste, start_period=k)
+    again = simulate.periodic(demo, do_setpoint_mg_L=2.0, start_state=state, start_waste_m3_d=waste, start_period=k,
+                              seek=False)
     assert again.converged and again.days == 1
     scale = np.maximum(np.abs(demo_day.y_end), 1.0)
     assert np.max(np.abs(again.y_start - demo_day.y_end) / scale) < 1e-3  # the day-repeat tolerance
@@ -334,3 +337,38 @@ def test_dense_and_sparse_factorisation_give_the_same_day(monkeypatch):
     assert sparse.quadrature.time_h.size == dense.quadrature.time_h.size
     np.testing.assert_allclose(dense.y_end, sparse.y_end, rtol=1e-9, atol=1e-9)
     np.testing.assert_allclose(dense.quadrature.airflow_Sm3_h, sparse.quadrature.airflow_Sm3_h, rtol=1e-9)
+
+
+def test_seeking_at_loose_tolerances_first_ends_on_the_same_day(demo, day_tolerances):
+    """``seek``: days at SEEKING_RTOL until the day repeats, then days at the requested tolerances: the same
+    periodic day as the requested tolerances alone, within the day-repeat tolerance (1e-3 of the state), and
+    the day returned is one at the requested tolerances (its COD and N close as tightly)."""
+    plain = simulate.periodic(demo, do_setpoint_mg_L=2.0, seek=False, **day_tolerances)
+    sought = simulate.periodic(demo, do_setpoint_mg_L=2.0, seek=True, **day_tolerances)
+    assert plain.converged and sought.converged and sought.day_change < 1e-3
+    scale = np.maximum(np.abs(plain.y_end), 1.0)
+    assert np.max(np.abs(sought.y_end - plain.y_end) / scale) < 1e-3
+    assert np.max(np.abs(sought.effluent["SNH"].to_numpy() - plain.effluent["SNH"].to_numpy())) < 0.01  # mg/L
+    assert sought.balance["cod_closure"] < 1e-6 and sought.balance["n_closure"] < 1e-6
+
+
+def test_the_seek_leaves_the_last_day_to_the_requested_tolerances(demo, monkeypatch):
+    """However few days are allowed, the recorded day is one at the requested tolerances; tolerances no tighter
+    than SEEKING_RTOL seek nothing."""
+    import airtaper.simulate.run as run
+
+    used = []
+    real = run._simulate_day_recorded
+
+    def spy(system, inputs, z0, period_d, steps, rtol, atol, wcod, wn):
+        used.append((rtol, atol))
+        return real(system, inputs, z0, period_d, steps, rtol, atol, wcod, wn)
+
+    monkeypatch.setattr(run, "_simulate_day_recorded", spy)
+    r = simulate.periodic(demo, do_setpoint_mg_L=2.0, max_days=2)
+    assert r.days == 2 and used == [(run.SEEKING_RTOL, run.SEEKING_RTOL), (1e-5, 1e-5)]
+    used.clear()
+    assert simulate.periodic(demo, do_setpoint_mg_L=2.0, max_days=1).days == 1 and used == [(1e-5, 1e-5)]
+    used.clear()
+    simulate.periodic(demo, do_setpoint_mg_L=2.0, max_days=2, rtol=1e-4, atol=2e-4)
+    assert used == [(1e-4, 2e-4)] * 2

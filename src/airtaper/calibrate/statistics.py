@@ -32,7 +32,6 @@ import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 from pyomo.repn import generate_standard_repn
-from scipy import stats
 
 from airtaper.errors import ModelError
 from airtaper.solve import nlp as _nlp
@@ -137,6 +136,8 @@ def fit_statistics(m, names: list[str], params: list, residual_exprs: list, resi
     with np.errstate(invalid="ignore", divide="ignore"):
         corr = cov / np.outer(se, se)
     corr[~np.isfinite(corr)] = 0.0
+    from scipy import stats  # here, not at import: scipy.stats alone costs about 0.4 s to import
+
     tq = float(stats.t.ppf(0.975, dof))
     D = np.diag(np.where(theta != 0, np.abs(theta), 1.0))
     scaled = D @ gn @ D

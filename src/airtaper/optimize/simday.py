@@ -121,20 +121,22 @@ def step_airflow(plant: ResolvedPlant | Layout, res) -> tuple[dict, np.ndarray]:
 
 def simulate_day(plant: ResolvedPlant | Layout, schedule: dict | None = None, do_setpoint_mg_L=None, *,
                  start_state=None, start_waste_m3_d: float | None = None, tol: float | None = None,
-                 max_days: int | None = None, start_period: int = 0) -> SimDay:
+                 max_days: int | None = None, start_period: int = 0, seek: bool = False) -> SimDay:
     """Periodic day of a plant (a layout is resolved first) under a schedule (zone -> per-period airflow)
     or DO control.
 
     ``start_state``/``start_waste_m3_d``: where the simulator's first day starts (its
     default is the mean-load steady state), at the start of the 0-based period
     ``start_period`` (the simulator runs the rest of that day first, see
-    :func:`airtaper.simulate.periodic`); ``tol``: its day-repeat tolerance.
+    :func:`airtaper.simulate.periodic`); ``tol``: its day-repeat tolerance; ``seek``: seek the repeating day at
+    loose solver tolerances first (:func:`airtaper.simulate.periodic`): off by default, since most callers
+    start on or near the repeating day (verification from the optimum), where it only adds a day.
     """
     from airtaper.simulate import periodic
 
     t0 = time.perf_counter()
     plant = resolve_plant(plant)
-    kwargs = {}
+    kwargs = {"seek": seek}
     if start_state is not None:
         kwargs["start_state"] = start_state
     if start_waste_m3_d is not None:

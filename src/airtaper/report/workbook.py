@@ -93,37 +93,49 @@ def _cell(v):
     return v
 
 
-def _write_sheet(ws, frame: pd.DataFrame, headings: list[str]) -> None:
-    from openpyxl.styles import Font
+def _write_sheet(wb, title: str, frame: pd.DataFrame, headings: list[str], widths: dict | None = None) -> None:
+    """A sheet of ``wb`` (a write-only workbook): the headings in bold and frozen, then the rows.
 
-    ws.append([_cell(h) for h in headings])
-    for cell in ws[1]:
-        cell.font = Font(bold=True)
+    A write-only sheet streams its rows to the file as they are appended (no cell objects kept), so its column
+    widths and frozen pane are set first; ``widths``: column letter -> width, beyond the headings' own.
+    """
+    from openpyxl.cell import WriteOnlyCell
+    from openpyxl.styles import Font
+    from openpyxl.utils import get_column_letter
+
+    ws = wb.create_sheet(title)
+    for i, h in enumerate(headings, 1):
+        ws.column_dimensions[get_column_letter(i)].width = max(10, min(60, len(str(h)) + 2))
+    for letter, width in (widths or {}).items():
+        ws.column_dimensions[letter].width = width
+    ws.freeze_panes = "A2"
+    bold = Font(bold=True)
+    cells = []
+    for h in headings:
+        cell = WriteOnlyCell(ws, value=_cell(h))
+        cell.font = bold
+        cells.append(cell)
+    ws.append(cells)
     for row in frame.itertuples(index=False):
         ws.append([_cell(v) for v in row])
-    ws.freeze_panes = "A2"
-    for i, h in enumerate(headings, 1):
-        ws.column_dimensions[ws.cell(row=1, column=i).column_letter].width = max(10, min(60, len(str(h)) + 2))
 
 
 def workbook_bytes(folder: StudyFolder) -> bytes:
-    """The workbook (see module notes) as .xlsx bytes."""
+    """The workbook (see module notes) as .xlsx bytes (written in openpyxl's write-only mode: about a third of
+    the time of building every cell first)."""
     from openpyxl import Workbook
 
-    wb = Workbook()
-    ws = wb.active
-    ws.title = "summary"
-    _write_sheet(ws, pd.DataFrame(_summary_rows(folder.summary), columns=["figure", "value", "unit"]),
-                 ["figure", "value", "unit"])
-    ws.column_dimensions["B"].width = 40
+    wb = Workbook(write_only=True)
+    _write_sheet(wb, "summary", pd.DataFrame(_summary_rows(folder.summary), columns=["figure", "value", "unit"]),
+                 ["figure", "value", "unit"], widths={"B": 40})
     for sheet, attr in TABLE_SHEETS:
         frame = getattr(folder, attr)
         if frame is None:
             continue
-        _write_sheet(wb.create_sheet(sheet), frame, [heading(c) for c in frame.columns])
+        _write_sheet(wb, sheet, frame, [heading(c) for c in frame.columns])
     for sheet, frame in (("marginal costs", _marginal_frame(folder.summary)),
                          ("verification", _verification_frame(folder.summary))):
-        _write_sheet(wb.create_sheet(sheet), frame, list(frame.columns))
+        _write_sheet(wb, sheet, frame, list(frame.columns))
     # fixed document dates: the same folder gives the same workbook
     import datetime
 

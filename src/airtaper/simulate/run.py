@@ -33,6 +33,10 @@ from airtaper.simulate.steady import solve_steady
 from airtaper.simulate.system import NC, System
 
 EFFLUENT_COLUMNS = ("tss_mg_L", "cod_mg_L", "tkn_mg_L", "tn_mg_L")
+#: Solver tolerances (rtol = atol) of the days that seek the repeating day (:func:`periodic`, ``seek``): loose
+#: enough that BDF takes fewer, longer steps, tight enough that the state they reach repeats within the
+#: day-repeat tolerance under the requested tolerances too. Common practice (no source).
+SEEKING_RTOL = 1e-4
 
 
 # --- aeration inputs ------------------------------------------------------------
@@ -254,7 +258,7 @@ class PeriodicResult:
 def periodic(plant, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30, tol: float = 1e-3,
              rtol: float = 1e-5, atol: float = 1e-5, start_state=None,
              start_waste_m3_d: float | None = None, start_period: int = 0,
-             extrapolate: bool = True) -> PeriodicResult:
+             extrapolate: bool = True, seek: bool = True) -> PeriodicResult:
     """Simulate whole days from the mean-load steady state until the day repeats.
 
     Parameters
@@ -290,6 +294,13 @@ def periodic(plant, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30,
         Start a day beyond the last one's end where one slow mode is heading
         (:class:`DayExtrapolation`); the day is still simulated in full and accepted by the
         same test. False: plain day after day.
+    seek : bool
+        Seek the repeating day with the loose solver tolerances :data:`SEEKING_RTOL` first (the lead-in
+        too), then go on from where they end with ``rtol``, ``atol`` until the day repeats again: the day
+        returned, its tables and its test are always of the requested tolerances (at least one such day;
+        ``days`` counts both kinds). Most days of a start far from the repeating day then cost less; a
+        start already on it pays one loose day more. Nothing changes when ``rtol`` and ``atol`` are no
+        tighter than :data:`SEEKING_RTOL`.
     """
     t_start = time.perf_counter()
     plant = resolve_plant(plant)
@@ -321,42 +332,51 @@ def periodic(plant, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30,
         else:
             q_waste = float(system.rhs(y, mean_inp, detail=True)[1]["q_waste_m3_d"])
         inputs = [dataclasses.replace(inp, q_waste=q_waste) for inp in inputs]
+    phases = [(rtol, atol)]  # (rtol, atol) of each phase of days, the requested ones last
+    if seek and min(rtol, atol) < SEEKING_RTOL:
+        phases.insert(0, (SEEKING_RTOL, SEEKING_RTOL))
     if start_period:  # the lead-in: the rest of the day from the state at the start of ``start_period``
         if not 0 < start_period < len(inputs):
             raise ValueError(f"start_period {start_period} is not a period of the day (0 to {len(inputs) - 1})")
         z_end, _, _ = _simulate_day_recorded(system, inputs[start_period:], np.concatenate((y, [0.0, 0.0])),
-                                             period_d, steps, rtol, atol, wcod, wn)
+                                             period_d, steps, *phases[0], wcod, wn)
         y = z_end[: system.n]
     converged = False
     change = np.inf
     days = 0
     rec = None
-    speed = DayExtrapolation()
-    while days < max_days:
-        days += 1
-        z0 = np.concatenate((y, [0.0, 0.0]))
-        z_end, rec_try, dense = _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod, wn)
-        y_end = z_end[: system.n]
-        change = float(np.max(np.abs(y_end - y) / np.maximum(np.abs(y), 1.0)))
-        rec = (y.copy(), z_end, rec_try, dense)
-        y = y_end
-        waste_change = 0.0
-        q_before = q_waste if srt_target is not None else None
-        if srt_target is not None:
-            q_new = _daily_waste_for_srt(system, inputs, rec_try, srt_target)
-            waste_change = abs(q_new - q_waste) / max(q_waste, 1e-9)
-            if waste_change >= tol:
-                q_waste = q_new
-                inputs = [dataclasses.replace(inp, q_waste=q_waste) for inp in inputs]
-        if change < tol and waste_change < tol:
-            converged = True
-            break
-        jump = speed.factor(rec[0], y, q_before, q_waste if srt_target is not None else None) if extrapolate else 0.0
-        if jump:  # the next day starts beyond this one's end, where the slow mode is heading
-            y = np.maximum(y + jump * (y - rec[0]), 0.0)
-            if srt_target is not None and q_waste != q_before:
-                q_waste = max(q_waste + jump * (q_waste - q_before), 0.0)
-                inputs = [dataclasses.replace(inp, q_waste=q_waste) for inp in inputs]
+    for phase, (rtol_k, atol_k) in enumerate(phases):
+        last = phase == len(phases) - 1
+        converged = False
+        speed = DayExtrapolation()  # (a new phase's first step is no step of the same iteration)
+        # the seeking phase leaves the last day to the requested tolerances
+        while days < (max_days if last else max_days - 1):
+            days += 1
+            z0 = np.concatenate((y, [0.0, 0.0]))
+            z_end, rec_try, dense = _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol_k, atol_k,
+                                                           wcod, wn)
+            y_end = z_end[: system.n]
+            change = float(np.max(np.abs(y_end - y) / np.maximum(np.abs(y), 1.0)))
+            rec = (y.copy(), z_end, rec_try, dense)
+            y = y_end
+            waste_change = 0.0
+            q_before = q_waste if srt_target is not None else None
+            if srt_target is not None:
+                q_new = _daily_waste_for_srt(system, inputs, rec_try, srt_target)
+                waste_change = abs(q_new - q_waste) / max(q_waste, 1e-9)
+                if waste_change >= tol:
+                    q_waste = q_new
+                    inputs = [dataclasses.replace(inp, q_waste=q_waste) for inp in inputs]
+            if change < tol and waste_change < tol:
+                converged = True
+                break
+            q_after = q_waste if srt_target is not None else None
+            jump = speed.factor(rec[0], y, q_before, q_after) if extrapolate else 0.0
+            if jump:  # the next day starts beyond this one's end, where the slow mode is heading
+                y = np.maximum(y + jump * (y - rec[0]), 0.0)
+                if srt_target is not None and q_waste != q_before:
+                    q_waste = max(q_waste + jump * (q_waste - q_before), 0.0)
+                    inputs = [dataclasses.replace(inp, q_waste=q_waste) for inp in inputs]
     y0_day, z_end, records, dense = rec
     y1_day = z_end[: system.n]
     # COD and N closure over the recorded day: the net inflows integrated by the solver
