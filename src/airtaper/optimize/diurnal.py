@@ -244,6 +244,8 @@ class DiurnalOptimisation:
         if watch is not None and watch.stalled:
             attempt.update(status="stalled", message=watch.message())
             self.stalled = attempt
+        elif r.ok and not elastic:  # a later solve settled (a swing pattern after the all-day one stalled)
+            self.stalled = None
         self.attempts.append(attempt)
         return r
 
