@@ -1,4 +1,5 @@
-"""Wording and grouping of the elastic findings; the elastic solve on a zone short of diffusers."""
+"""Wording and grouping of the elastic findings, their check against a known schedule; the elastic solve on a zone
+short of diffusers."""
 
 from __future__ import annotations
 
