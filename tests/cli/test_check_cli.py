@@ -51,6 +51,7 @@ def test_check_demo_prints_the_train(capsys):
     assert "load days (365 days in all):" in lines
     assert "  peak 1 d: flow x 1.3, load x 1.5, alpha x 0.9" in lines
     assert "  winter 90 d: flow x 1, load x 1, water 12 C" in lines
+    assert "  minimum 1 d: flow x 0.7, load x 0.6, Z6 DO max 3.5 mg/L" in lines  # the day's own DO range
     assert "capital: 90 EUR per diffuser, 15000 EUR per zone, 5 % over 15 years" in lines
 
 

@@ -172,7 +172,10 @@ def train_report(plant: ResolvedPlant) -> str:
                 f"-{max(d.water_temperature_C):g}" if max(d.water_temperature_C) > min(d.water_temperature_C) else "") \
                 + " C"
             alpha = "" if d.alpha_factor == 1.0 else f", alpha x {d.alpha_factor:g}"
-            lines.append(f"  {d.id} {d.days_per_year:g} d: {what}{temp}{alpha}")
+            do = "".join(f", {z.zone} DO" + (f" min {z.do_min_mg_L:g}" if z.do_min_mg_L is not None else "")
+                         + (f" max {z.do_max_mg_L:g}" if z.do_max_mg_L is not None else "") + " mg/L"
+                         for z in d.zone_do)
+            lines.append(f"  {d.id} {d.days_per_year:g} d: {what}{temp}{alpha}{do}")
     if layout.capital is not None:
         c = layout.capital
         cur = plant.tariff.currency if plant.tariff else ""
