@@ -274,11 +274,11 @@ def test_swing_patterns_are_tried_when_the_all_day_pattern_does_not_solve(fenwhi
 
     original = DiurnalOptimisation.resolve
 
-    def all_day_fails(self, warm=True):
+    def all_day_fails(self, warm=True, name=None):
         states = self.problem.swing_states
         if states is not None and all(v.all() for v in states.values()):
             return self._ipopt(Rung("all day, cut short by the test", {"max_iter": 1}), warm_start=warm)
-        return original(self, warm)
+        return original(self, warm, name)
 
     monkeypatch.setattr(DiurnalOptimisation, "resolve", all_day_fails)
     res = run_optimization(fenwhistle_6)

@@ -42,6 +42,7 @@ import numpy as np
 import pyomo.environ as pyo
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
+
 from airtaper.errors import ModelError
 from airtaper.layout.types import ASM1_COMPONENTS
 from airtaper.model.numeric import compile_system

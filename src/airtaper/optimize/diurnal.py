@@ -26,7 +26,7 @@ re-solved warm (tests, sensitivity studies).
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
@@ -283,9 +283,12 @@ class DiurnalOptimisation:
         self.result = None
         return None
 
-    def resolve(self, warm: bool = True):
-        """Solve again from the current point (after moving a limit); ladder on failure."""
-        r = self._ipopt(self.options.ladder[0], warm_start=warm)
+    def resolve(self, warm: bool = True, name: str | None = None):
+        """Solve again from the current point (after moving a limit); ladder on failure.
+
+        ``name``: what the attempt is called in the summary and messages (None: the first rung's name)."""
+        rung = self.options.ladder[0]
+        r = self._ipopt(rung if name is None else replace(rung, name=name), warm_start=warm)
         if self.attempts[-1]["status"] == "stalled":  # the stall rule: no ladder, the elastic solve says why
             return r
         if not r.ok:

@@ -249,7 +249,7 @@ def settle_swing_states(study, rounds: list):
     set_swing_states(prob, {z: np.ones(len(m.PERIODS), dtype=bool) for z in b.SWING_ZONES})
     prog.phase("swing zones: aerated all day (the reference pattern)")
     # cold from the relaxed point (its values, not its multipliers): module notes, "Starts"
-    res = study.resolve(warm=False)
+    res = study.resolve(warm=False, name="swing zones aerated all day")
     ok = res is not None and res.ok
     rounds.append({"round": 0, "step": "swing zones aerated all day", "status": res.status.value if res
                    else "failed", "objective": float(pyo.value(b.objective)) if ok else None,
@@ -329,7 +329,8 @@ def run_staging(study, first_result) -> StagingOutcome:
         # kept swing pattern's, not the last candidate's: module notes, "Starts"); later rounds get one warm
         # attempt from the previous round (the best round stands)
         if best is None:
-            res = study.resolve(warm=out.result if out.result is not None and out.result.ok else True)
+            res = study.resolve(warm=out.result if out.result is not None and out.result.ok else True,
+                                name="staging round 1")
         else:
             res = study._ipopt(study.options.ladder[0], warm_start=True)
         if res is None or not res.ok:
