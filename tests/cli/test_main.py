@@ -116,7 +116,8 @@ def _stats_run(before: str = "") -> list[str]:
 
 
 def test_the_optimize_command_does_not_import_scipy_stats_and_scipy_stats_still_works():
-    # t(0.975, 10) = 2.2281: Student's t table, e.g. NIST/SEMATECH e-Handbook of Statistical Methods, 1.3.6.7.2
+    # t(0.975, 10) = 2.2281: Student's t table, NIST/SEMATECH e-Handbook of Statistical Methods, 1.3.6.7.2
+    # (from memory)
     assert _stats_run() == ["STATS", "False", "T", "True", "2.2281"]
 
 

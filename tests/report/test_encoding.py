@@ -65,3 +65,13 @@ def test_the_workbook_holds_every_table_with_bold_frozen_headings_and_widths(sma
                 assert list(a.astype(str)) == list(b.astype(str))
     summary = pd.read_excel(io.BytesIO(workbook_bytes(small)), sheet_name="summary").set_index("figure")
     assert summary.loc["energy", "value"] == 1200.0 and summary.loc["energy", "unit"] == "kWh/d"
+
+
+def test_the_same_folder_gives_the_same_workbook_bytes(small):
+    """Fixed document dates and zip entry dates: a rerun later gives equal bytes (the zip's dates have a
+    resolution of 2 s, the document's of 1 s)."""
+    import time
+
+    first = workbook_bytes(small)
+    time.sleep(2.1)
+    assert workbook_bytes(small) == first

@@ -354,7 +354,7 @@ def test_seeking_at_loose_tolerances_first_ends_on_the_same_day(demo, day_tolera
 
 def test_the_seek_leaves_the_last_day_to_the_requested_tolerances(demo, monkeypatch):
     """However few days are allowed, the recorded day is one at the requested tolerances; tolerances no tighter
-    than SEEKING_RTOL seek nothing."""
+    than SEEKING_RTOL, or a day-repeat tolerance below SEEKING_MARGIN times it, seek nothing."""
     import airtaper.simulate.run as run
 
     used = []
@@ -372,3 +372,6 @@ def test_the_seek_leaves_the_last_day_to_the_requested_tolerances(demo, monkeypa
     used.clear()
     simulate.periodic(demo, do_setpoint_mg_L=2.0, max_days=2, rtol=1e-4, atol=2e-4)
     assert used == [(1e-4, 2e-4)] * 2
+    used.clear()  # a repeat test tighter than the loose days can pass seeks nothing
+    simulate.periodic(demo, do_setpoint_mg_L=2.0, max_days=2, tol=run.SEEKING_MARGIN * run.SEEKING_RTOL / 2)
+    assert used == [(1e-5, 1e-5)] * 2

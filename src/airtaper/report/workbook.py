@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import io
 import math
+import zipfile
 
 import pandas as pd
 
@@ -120,6 +121,22 @@ def _write_sheet(wb, title: str, frame: pd.DataFrame, headings: list[str], width
         ws.append([_cell(v) for v in row])
 
 
+class _StampedZip(zipfile.ZipFile):
+    """A zip archive whose entries all carry one fixed date, so that the same content gives the same bytes."""
+
+    def write(self, filename, arcname=None, compress_type=None, compresslevel=None):
+        with open(filename, "rb") as f:
+            self.writestr(arcname or filename, f.read(), compress_type, compresslevel)
+
+    def writestr(self, zinfo_or_arcname, data, compress_type=None, compresslevel=None):
+        if not isinstance(zinfo_or_arcname, zipfile.ZipInfo):
+            info = zipfile.ZipInfo(zinfo_or_arcname, date_time=(2000, 1, 1, 0, 0, 0))
+            info.compress_type = self.compression
+            info.external_attr = 0o600 << 16
+            zinfo_or_arcname = info
+        super().writestr(zinfo_or_arcname, data, compress_type, compresslevel)
+
+
 def workbook_bytes(folder: StudyFolder) -> bytes:
     """The workbook (see module notes) as .xlsx bytes (written in openpyxl's write-only mode: about a third of
     the time of building every cell first)."""
@@ -139,11 +156,14 @@ def workbook_bytes(folder: StudyFolder) -> bytes:
     # fixed document dates: the same folder gives the same workbook
     import datetime
 
+    from openpyxl.writer.excel import ExcelWriter
+
     stamp = datetime.datetime(2000, 1, 1)
     wb.properties.created = stamp
     wb.properties.modified = stamp
     buf = io.BytesIO()
-    wb.save(buf)
+    # (Workbook.save would stamp the document with the time of saving, and the zip its entries)
+    ExcelWriter(wb, _StampedZip(buf, "w", zipfile.ZIP_DEFLATED)).save()
     return buf.getvalue()
 
 

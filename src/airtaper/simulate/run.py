@@ -37,6 +37,10 @@ EFFLUENT_COLUMNS = ("tss_mg_L", "cod_mg_L", "tkn_mg_L", "tn_mg_L")
 #: enough that BDF takes fewer, longer steps, tight enough that the state they reach repeats within the
 #: day-repeat tolerance under the requested tolerances too. Common practice (no source).
 SEEKING_RTOL = 1e-4
+#: The seek runs only for a day-repeat tolerance at least this many times SEEKING_RTOL: a day integrated to
+#: SEEKING_RTOL cannot be told to repeat much closer than that, and the loose days would run to the day limit.
+#: Common practice (no source).
+SEEKING_MARGIN = 10.0
 
 
 # --- aeration inputs ------------------------------------------------------------
@@ -300,7 +304,7 @@ def periodic(plant, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30,
         returned, its tables and its test are always of the requested tolerances (at least one such day;
         ``days`` counts both kinds). Most days of a start far from the repeating day then cost less; a
         start already on it pays one loose day more. Nothing changes when ``rtol`` and ``atol`` are no
-        tighter than :data:`SEEKING_RTOL`.
+        tighter than :data:`SEEKING_RTOL`, or ``tol`` is below :data:`SEEKING_MARGIN` times it.
     """
     t_start = time.perf_counter()
     plant = resolve_plant(plant)
@@ -333,7 +337,7 @@ def periodic(plant, schedule=None, do_setpoint_mg_L=None, *, max_days: int = 30,
             q_waste = float(system.rhs(y, mean_inp, detail=True)[1]["q_waste_m3_d"])
         inputs = [dataclasses.replace(inp, q_waste=q_waste) for inp in inputs]
     phases = [(rtol, atol)]  # (rtol, atol) of each phase of days, the requested ones last
-    if seek and min(rtol, atol) < SEEKING_RTOL:
+    if seek and min(rtol, atol) < SEEKING_RTOL and tol >= SEEKING_MARGIN * SEEKING_RTOL:
         phases.insert(0, (SEEKING_RTOL, SEEKING_RTOL))
     if start_period:  # the lead-in: the rest of the day from the state at the start of ``start_period``
         if not 0 < start_period < len(inputs):
