@@ -275,6 +275,30 @@ def interface_flux_g_m2_d(sending_above_g_m2_d, receiving_below_g_m2_d, tss_belo
     return (1.0 - switch) * flux_above_g_m2_d + switch * lesser
 
 
+def layer_interface_fluxes_g_m2_d(tss_g_m3, feed_index, tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g,
+                                  x_threshold_g_m3):
+    """Settling flux across every interface of a layered clarifier, g/(m2 d) (numpy only).
+
+    ``tss_g_m3``: the layers' solids, top first, shape ``(L,)`` or ``(L, n)`` (``n`` states side by
+    side, with ``tss_min_g_m3`` scalar or of shape ``(n,)``); ``feed_index``: the feed layer, 0-based.
+    Returns shape ``(L - 1, ...)``: row ``k`` is the flux from layer ``k`` into ``k + 1``, by
+    :func:`interface_flux_g_m2_d` with the threshold rule above the feed (interfaces ``k < feed_index``).
+    The one evaluation of the profile's fluxes that the simulator's right-hand side and the model's
+    starting point share (the model's constraints build the same terms one interface at a time).
+    """
+    params = (tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g)
+    x_peak = flux_peak_tss_g_m3(*params)
+    send = sending_flux_g_m2_d(tss_g_m3[:-1], tss_min_g_m3, x_peak, *params[1:])
+    take = receiving_flux_g_m2_d(tss_g_m3[1:], tss_min_g_m3, x_peak, *params[1:])
+    f = int(feed_index)
+    flux = np.empty(send.shape)
+    flux[f:] = interface_flux_g_m2_d(send[f:], take[f:])
+    if f > 0:
+        own = gravity_flux_g_m2_d(tss_g_m3[:f], *params)
+        flux[:f] = interface_flux_g_m2_d(send[:f], take[:f], tss_g_m3[1:f + 1], x_threshold_g_m3, own)
+    return flux
+
+
 def limiting_solids_flux_g_m2_d(underflow_velocity_m_d, tss_min_g_m3, v0_max_m_d, v0_m_d, rh_m3_g, rp_m3_g,
                                 x_max_g_m3: float = 30000.0) -> tuple[float, float]:
     """Limiting solids flux of the thickening zone and the concentration where it occurs.

@@ -61,10 +61,7 @@ import scipy.sparse as sp
 
 from airtaper import units
 from airtaper.layout.types import ASM1_COMPONENTS
-from airtaper.physics.settling import (
-    flux_peak_tss_g_m3, gravity_flux_g_m2_d, interface_flux_g_m2_d, limiting_solids_flux_g_m2_d,
-    receiving_flux_g_m2_d, sending_flux_g_m2_d, takacs_velocity_m_d,
-)
+from airtaper.physics.settling import layer_interface_fluxes_g_m2_d, limiting_solids_flux_g_m2_d, takacs_velocity_m_d
 from airtaper.process.stoichiometry import (
     IDX, PARTICULATES, SOLIDS_COD, cod_composition, cod_of_n2, n2_yield, n_composition,
 )
@@ -189,15 +186,7 @@ class System:
         if self.layered:
             A, f, L = self.area, self.feed, self.n_layers
             vup, vdn = qe / A, qu / A
-            settling = (self.fns * xf, self.v0max, self.v0, self.rh, self.rp)
-            xm = flux_peak_tss_g_m3(*settling)
-            send = sending_flux_g_m2_d(X[:-1], settling[0], xm, *settling[1:])
-            take = receiving_flux_g_m2_d(X[1:], settling[0], xm, *settling[1:])
-            J = np.empty((L - 1, m))
-            J[f:] = interface_flux_g_m2_d(send[f:], take[f:])
-            if f > 0:
-                js = gravity_flux_g_m2_d(X[:f], *settling)
-                J[:f] = interface_flux_g_m2_d(send[:f], take[:f], X[1:f + 1], self.xt, js)
+            J = layer_interface_fluxes_g_m2_d(X, f, self.fns * xf, self.v0max, self.v0, self.rh, self.rp, self.xt)
             frac = Cs[PART] / np.maximum(X, _TINY_X)
             F = J[None] * frac[:, :-1]
             dS = np.empty_like(Cs)
