@@ -104,7 +104,7 @@ from airtaper.optimize.backoff import hold_do, refined_steps_per_period
 from airtaper.optimize.diurnal import DiurnalOptimisation, StudyOptions, model_steps_per_period
 from airtaper.optimize.elastic import REPORT_THRESHOLD
 from airtaper.optimize.horizon import with_periods
-from airtaper.optimize.marginal import STEP_mg_L, parameter_sensitivity
+from airtaper.optimize.marginal import STEP_mg_L, limit_derivative, parameter_sensitivity
 from airtaper.optimize.prescreen import count_range_findings
 from airtaper.optimize.problem import LIMIT_GROUPS
 from airtaper.optimize.progress import Progress, Silent
@@ -918,7 +918,8 @@ class GridDesign:
                 found = []
                 if z in b.DO_ZONES:
                     found.append(("transfer", "DO minimum", "per 0.1 mg/L higher minimum",
-                                  STEP_mg_L * sum(dual(b.do_min[t, z]) for t in m.STEPS)))
+                                  STEP_mg_L * limit_derivative(r, [b.do_min[t, z] for t in m.STEPS],
+                                                               b.do_min_mg_L[z])))
                 for name, case, text, zones in (("diffuser_max", "transfer", "air per diffuser at its maximum",
                                                  b.ZONES),
                                                 ("valve_max", "transfer", "valve capacity", b.VALVE_ZONES),

@@ -78,6 +78,44 @@ def parameter_sensitivity(m, result, params) -> list[float]:
     return out
 
 
+def limit_derivative(result, constraints, param) -> float:
+    """d f* / d q of the optimum for a mutable Param ``q`` that enters ``constraints`` linearly, in a bound or in the
+    body, from their duals.
+
+    A dual is ``d f* / d b`` for the bound ``b`` the constraint holds (:mod:`airtaper.solve.ipopt`); moving the body
+    up by ``delta`` is moving that bound down by ``delta``. So ``d f*/d q = sum_c dual_c (d b_c/d q - d body_c/d q)``.
+    Which side ``q`` lands on is Pyomo's choice, not ours: ``so >= do_min`` keeps ``do_min`` as the lower bound, but
+    ``so >= do_min * held`` with ``held`` a (fixed) variable, as a swing zone's DO minimum is written, becomes
+    ``do_min * held - so <= 0``, where the dual's sign is the other way round and a raised minimum moves the body.
+    Summing the duals there reported a tighter swing-zone minimum as a saving. The partial derivatives are taken
+    as differences of a unit step of ``q`` (the constraints are linear in it, so the difference is exact).
+    """
+    q0 = float(pyo.value(param))
+
+    def parts():
+        return np.array([[float(pyo.value(c.lower)) if c.has_lb() else 0.0,
+                          float(pyo.value(c.upper)) if c.has_ub() else 0.0,
+                          float(pyo.value(c.body))] for c in constraints]).reshape(-1, 3)
+
+    before = parts()
+    try:
+        param.set_value(q0 + 1.0)
+        after = parts()
+    finally:
+        param.set_value(q0)
+    d = after - before
+    total = 0.0
+    for c, (d_lower, d_upper, d_body) in zip(constraints, d):
+        dual = _dual(result, c)
+        if dual == 0.0:
+            continue
+        # the bound that binds: a lower bound's dual is >= 0 and an upper bound's <= 0 for a minimum
+        # (the module notes of airtaper.solve.ipopt); an equality has both and they move together
+        d_bound = d_lower if c.has_lb() and (not c.has_ub() or dual > 0.0) else d_upper
+        total += dual * (d_bound - d_body)
+    return total
+
+
 def raw_derivatives(prob, result) -> dict:
     """d goal / d limit (goal units per mg/L, or per diffuser), keyed like the report entries, of the solved
     :class:`~airtaper.optimize.problem.Problem`."""
@@ -91,7 +129,8 @@ def raw_derivatives(prob, result) -> dict:
     if b.tn_mean.active:
         out[("tn_mean_mg_L", None)] = ref * _dual(result, b.tn_mean)
     for z in b.DO_ZONES:
-        out[("do_min_mg_L", z)] = ref * sum(_dual(result, b.do_min[t, z]) for t in m.STEPS)
+        out[("do_min_mg_L", z)] = ref * limit_derivative(result, [b.do_min[t, z] for t in m.STEPS],
+                                                         b.do_min_mg_L[z])
     zones = list(b.ZONES)
     for z, d in zip(zones, parameter_sensitivity(m, result, [m.diffuser_count[z] for z in zones])):
         out[("diffusers", z)] = ref * d
@@ -137,4 +176,5 @@ def marginal_costs(prob, result, *, energy_kWh_per_day: float, cost_per_day: flo
     return out
 
 
-__all__ = ["PARAMETER_STEP", "STEP_mg_L", "marginal_costs", "parameter_sensitivity", "raw_derivatives"]
+__all__ = ["PARAMETER_STEP", "STEP_mg_L", "limit_derivative", "marginal_costs", "parameter_sensitivity",
+           "raw_derivatives"]
