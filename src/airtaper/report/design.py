@@ -80,6 +80,26 @@ def _messages(summary: dict) -> str:
 
 
 # --- design -----------------------------------------------------------------------------------
+def _payback_words(comp: dict, lead: str) -> str:
+    """The comparison's payback for people: "<lead> 4.2 years", or why there is none (the comparison's own words,
+    :func:`airtaper.optimize.design.payback_text`), never a bare "never"."""
+    years, words = comp.get("payback_years"), comp.get("payback")
+    if years is not None and (years > 0.0 or not words):
+        return f"{lead} {fmt(years, 1)} years"
+    if years is not None:  # none needed: the comparison says why
+        return f"{lead} {words}"
+    return words or f"no {lead.split()[-1]}"
+
+
+def _periods_text(comp: dict) -> str:
+    """How many periods a day the compared days were solved on: one number when they share it, else each day's."""
+    by_day = comp.get("periods_by_day") or {}
+    counts = sorted(set(by_day.values()))
+    if len(counts) > 1:
+        return "periods a day: " + ", ".join(f"{day} {n}" for day, n in by_day.items())
+    return f"{counts[0] if counts else comp.get('periods', '')} periods a day"
+
+
 def taper_figure_png(zones) -> bytes | None:
     """Diffusers per zone, current and designed, with the designed density written above each bar."""
     if zones is None or len(zones) == 0:
@@ -151,15 +171,14 @@ def design_html(summary: dict, zones, days, images: dict, binding=None) -> str:
                 f"{fmt(comp['design_energy_cost_per_year_compared'], 0)} {html.escape(cur)} per year; on the other "
                 "days the current grid breaks a limit, which no saving figure shows.</p>")
         if comp is not None:
-            pb = comp["payback_years"]
-            body.append(f"<p>Both grids compared as the design's search solved them ({comp.get('periods', '')} "
-                        "periods a day, each day's model optimum): the designed grid's energy cost there is "
+            body.append(f"<p>Both grids compared as the design's search solved them ({_periods_text(comp)}, "
+                        "each day's model optimum): the designed grid's energy cost there is "
                         f"{fmt(comp.get('design_energy_cost_per_year_compared'), 0)} {html.escape(cur)} per year on "
                         "the days compared.</p>")
             body.append(f"<p>Extra capital {fmt(comp['extra_capital'], 0)} {html.escape(cur)}, energy saving "
                         f"{fmt(comp['energy_saving_per_year'], 0)} {html.escape(cur)} per year "
-                        f"({fmt(comp['energy_saving_kWh_per_year'], 0)} kWh): simple payback "
-                        f"{'never' if pb is None else fmt(pb, 1) + ' years'}, net present value "
+                        f"({fmt(comp['energy_saving_kWh_per_year'], 0)} kWh): "
+                        f"{html.escape(_payback_words(comp, 'simple payback'))}, net present value "
                         f"{fmt(comp['net_present_value'], 0)} {html.escape(cur)} over "
                         f"{fmt(summary['capital_inputs']['life_years'], 0)} years at "
                         f"{fmt(100 * summary['capital_inputs']['interest_rate'], 1)} %.</p>")
@@ -303,10 +322,9 @@ def design_console(summary: dict) -> str:
         lines.append(f"annual cost       {fmt(d['annual_cost'], 0)} {cur} (capital {fmt(d['capital_per_year'], 0)} "
                      f"+ energy {fmt(d['energy_cost_per_year'], 0)}; {fmt(d['energy_kWh_per_year'], 0)} kWh)")
         if comp is not None:
-            pb = comp["payback_years"]
             lines.append(f"against current   extra capital {fmt(comp['extra_capital'], 0)} {cur}, saving "
-                         f"{fmt(comp['energy_saving_per_year'], 0)} {cur}/year, payback "
-                         f"{'never' if pb is None else fmt(pb, 1) + ' years'}, NPV {fmt(comp['net_present_value'], 0)}")
+                         f"{fmt(comp['energy_saving_per_year'], 0)} {cur}/year, "
+                         f"{_payback_words(comp, 'payback')}, NPV {fmt(comp['net_present_value'], 0)}")
             if comp.get("load_days_not_met_by_current"):
                 lines.append("                  on the load days the current grid meets ("
                              f"{', '.join(comp['load_days_compared'])}: "
