@@ -86,8 +86,18 @@ from airtaper.optimize.attempts import Rung
 #: What the back-off holds: the re-simulated continuous DO at least the minimum less this, mg/L.
 TARGET_mg_L = 0.01
 #: A zone's continuous DO may leave its range by this much without a back-off, mg/L
-#: (half of :data:`TARGET_mg_L` leaves room for the next round's drift).
+#: (half of :data:`TARGET_mg_L` leaves room for the next round's drift). Once a round runs, it backs off
+#: every excursion above this; whether a round runs at all is the stop rule's (:data:`STOP_RULE`).
 ACCEPT_mg_L = 0.005
+#: Stop rule (module notes, "When the rounds end"): no further round once the last re-simulated day is verified
+#: and every excursion the rounds would take (below a DO minimum, above a DO maximum that has not given way) is
+#: at most :data:`TARGET_mg_L`. :data:`ACCEPT_mg_L`'s room for drift is for a next round; with none, it buys nothing.
+STOP_RULE = "verified, every DO excursion within TARGET_mg_L"
+#: Run budget rule (module notes): before each round, the round's cost is estimated as the last round's CPU
+#: seconds (its re-solves and its re-simulation; before round 1, the first verification's re-simulation alone)
+#: and the rounds end when what is left of the run's solve budget (:class:`~airtaper.optimize.attempts.SolveBudget`,
+#: which the rounds' re-simulations are charged to) would not cover it; the last verified schedule is kept.
+ROUND_BUDGET_RULE = "a round's estimated CPU seconds within the solve budget left"
 #: Added to each measured excursion, mg/L.
 CUSHION_mg_L = 0.004
 #: Back-off added per mg/L of measured excursion.
@@ -293,7 +303,13 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
     held = [{(z, p): 0.0 for (z, _t) in vals for p in periods} for vals in values]
     t0 = time.perf_counter()
     energy0 = study.energy_kWh_per_day()
+    c0 = time.process_time()
     ver, day = verify()
+    round_cpu_s = time.process_time() - c0  # the cost of the next round, estimated (ROUND_BUDGET_RULE)
+    round_costs: list[dict] = []  # per round: zone-periods, re-solve and re-simulation CPU s
+    kept = None  # the last verified schedule at a round's start: (variables, back-offs, ver, day, result)
+    budget_ended = False
+    held_to_target = False
     rounds = 0
     damped = 0  # re-solves that failed and were tried again with less back-off
     failed = False
@@ -313,6 +329,25 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
         if not any(found):
             break
         now = max(v for f in found for v in f.values())
+        if ver["verified"] and now <= TARGET_mg_L:
+            # the stop rule (STOP_RULE): what the verification and the target accept needs no further round
+            held_to_target = True
+            why = f"every DO excursion within {TARGET_mg_L:g} mg/L and verified"
+            break
+        if study.budget.remaining() < round_cpu_s:
+            # the run budget rule (ROUND_BUDGET_RULE): the solve budget cannot pay another round
+            budget_ended = True
+            why = (f"run time budget (a round costs about {round_cpu_s:.0f} CPU s, {study.budget.remaining():.0f} s "
+                   "of the solve budget left)")
+            if not ver["verified"] and kept is not None:  # the last verified schedule, not the last one
+                snap, vals, ver, day, study.result = kept
+                for v, value in snap:
+                    v.set_value(value, skip_validation=True)
+                values = [dict(v) for v in vals]
+                for prm, v in zip(params, values):
+                    for k, x in v.items():
+                        prm[k] = x
+            break
         if coarse and now > LARGE_mg_L:
             why = f"an excursion of {now:.3f} mg/L (more than {LARGE_mg_L:g}: the step, not the points)"
             break
@@ -332,6 +367,9 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
         previous = [dict(v) for v in values]
         snapshot = [(v, v.value) for v in m.component_data_objects(pyo.Var, descend_into=True)]
         last = (ver, day, study.result)
+        if ver["verified"]:
+            kept = (snapshot, [dict(v) for v in values], ver, day, study.result)
+        spent0 = study.budget.spent
         steps = [_excursion_points(m, ex, excursions, column)
                  for excursions, column in zip(found, ("do_min", "do_max"))]
         for attempt, (share, both) in enumerate(_attempts(bool(steps[0]) and bool(steps[1]))):
@@ -373,7 +411,15 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
             failed = True
             why = why or "a back-off re-solve failed"
             break
+        resolve_s = study.budget.spent - spent0
+        c0 = time.process_time()
         ver, day = verify()
+        resim_s = time.process_time() - c0
+        study.budget.charge(resim_s)  # the rounds pay for their re-simulations (ROUND_BUDGET_RULE)
+        round_cpu_s = resolve_s + resim_s
+        round_costs.append({"zone_periods": sum(len(f) for f in found), "excursion_mg_L": round(now, 5),
+                            "resolve_cpu_s": round(resolve_s, 2),
+                            "resimulation_cpu_s": round(resim_s, 2), "simulated_days": ver.get("simulated_days")})
     over = {}
     if max_given_way:  # what the maximum gave: its excursions in the last re-simulated day, visible in the summary
         ex = day.do_extremes
@@ -382,12 +428,14 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
                 shortfalls(study.plant, day.do_min_by_period(), held[0], periods, highs, held[1])[1].items()}
     if coarse:
         left = shortfalls(study.plant, day.do_min_by_period(), held[0], periods, swing_states=study.problem.swing_states)
-        if not ver["verified"] or max(left.values(), default=0.0) > TARGET_mg_L:
+        if not budget_ended and (not ver["verified"] or max(left.values(), default=0.0) > TARGET_mg_L):
             # the back-off on the coarse steps could not hold the range: the study is solved again on finer steps
+            # (not when the run's budget ended the rounds: a refined study would spend a budget of its own)
             refine = True
             why = why or f"{rounds} back-off rounds"
     return {"verification": ver, "day": day, "rounds": rounds, "resolve_failed": failed, "failed_resolves": damped,
-            "relaxed": relaxed, "stalled": stalled, "stop_reason": why,
+            "relaxed": relaxed, "stalled": stalled, "stop_reason": why, "held_to_target": held_to_target,
+            "budget_ended": budget_ended, "round_costs": round_costs,
             "refine": refine, "refine_reason": why if refine else None,
             "max_given_way": max_given_way, "max_excursions_mg_L": over,
             "backoff_mg_L": _by_period(m, values[0]), "backoff_max_mg_L": _by_period(m, values[1]),

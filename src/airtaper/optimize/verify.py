@@ -13,7 +13,10 @@ the time points (its discretisation), which the lead-in's hours wash out, while 
 slow states (biomass, inventory) are already periodic within about 1e-5. On the demo a
 start at 0 h needs 2 simulated days, the lead-in 1 day and 2 hours, with the same
 figures within 1e-5 mg/L; from the mean-load steady state it took 13 days, within
-0.3 % on the effluent means. Rule
+0.3 % on the effluent means. Between the DO back-off's rounds the schedule changes in a few
+zone-periods only, and the re-simulation starts from the day simulated before it instead
+(``start_day``: the simulator's own state at 0 h, no lead-in), which is already on the
+simulator's repeating day of a schedule next to this one. Rule
 (:mod:`airtaper.optimize.compliance`): the result is **verified** unless the simulated
 day breaks an effluent limit by more than 2 % of the limit, or a zone's DO range
 by more than 0.05 mg/L.
@@ -69,16 +72,22 @@ def start_state_of(m, period: int | None = None) -> tuple[dict, float | None]:
 
 
 def verify_day(plant: ResolvedPlant, schedule: dict, optimiser_figures: dict, m=None,
-               swing_states: dict | None = None):
+               swing_states: dict | None = None, start_day=None):
     """Simulate ``schedule`` (zone -> per-period airflow) and compare (see module notes).
 
     Returns the verification dict and the simulated :class:`~airtaper.optimize.simday.SimDay`.
     ``m``: the solved model, whose state starts the simulation (None: the simulator's own
     mean-load steady state and default tolerance); ``swing_states``: the swing zones' on/off
-    per period (:attr:`airtaper.optimize.problem.Problem.swing_states`).
+    per period (:attr:`airtaper.optimize.problem.Problem.swing_states`); ``start_day``: a simulated
+    day of a schedule near this one (the DO back-off's round before, module notes), whose state at
+    0 h starts the simulation instead of the model's (no lead-in; the same tolerance).
     """
     _require_plant(plant)
-    if m is not None:
+    if start_day is not None:
+        state, waste = start_day.start_state()
+        day = simulate_day(plant, schedule=schedule, start_state=state, start_waste_m3_d=waste, tol=DAY_REPEAT_TOL)
+        start = "the re-simulated day before (the last back-off round's) at 0 h"
+    elif m is not None:
         n, period_h = plant.n_periods, plant.period_h
         first = n - lead_in_periods(n, period_h)  # 0-based period the lead-in starts (n: none)
         state, waste = start_state_of(m, first if first < n else None)
@@ -119,7 +128,7 @@ def verify_day(plant: ResolvedPlant, schedule: dict, optimiser_figures: dict, m=
         "violations": broken,
         "energy_kWh_per_day": day.energy_kWh_per_day,
         "simulated_days": day.days,
-        "start": start if m is not None else "mean-load steady state",
+        "start": start if m is not None or start_day is not None else "mean-load steady state",
         "periodic": day.converged,
         "seconds": day.seconds,
     }, day
