@@ -511,3 +511,29 @@ def test_a_refined_study_whose_findings_a_verified_coarse_schedule_contradicts_k
                                 "simulator verified")
     known.verified = False
     assert diurnal._solve_refined(plant, StudyOptions(), Silent(), None, None, 8, 4.0, [], known) is fine
+
+
+@pytest.mark.solver
+def test_back_off_re_simulations_continue_only_a_day_that_did_not_repeat(three_tank_diurnal, monkeypatch):
+    """The rounds' re-simulations (optimize/verify.py, CHAINED_MAX_DAYS): after a day that did not repeat (made so
+    here for the first, as every day of plant 36 of the robustness benchmark), the next continues from it; after a
+    day that repeated, the next starts from the model's state again."""
+    from airtaper.optimize import diurnal
+    from airtaper.optimize.verify import CHAINED_MAX_DAYS
+
+    real = diurnal.verify_day
+    seen = []  # (chained, simulated days, repeated) of every re-simulation
+
+    def spy(*args, start_day=None, **kwargs):
+        ver, day = real(*args, start_day=start_day, **kwargs)
+        if not seen:
+            day.converged = False
+        seen.append((start_day is not None, day.days, day.converged))
+        return ver, day
+
+    monkeypatch.setattr(diurnal, "verify_day", spy)
+    s = run_optimization(three_tank_diurnal, StudyOptions(marginal=False)).summary
+    assert s["do_hold"]["rounds"] >= 1 and len(seen) == s["do_hold"]["rounds"] + 1
+    assert seen[0][0] is False and seen[1][0] is True and seen[1][1] <= CHAINED_MAX_DAYS
+    for (_, _, repeated), (chained, _, _) in zip(seen[1:], seen[2:]):
+        assert chained is not repeated

@@ -495,11 +495,15 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
         prog.phase("verifying: the schedule re-simulated by the independent simulator")
         t = time.perf_counter()
 
-        days: list = []  # the last re-simulated day: the next back-off round's re-simulation starts there
+        # the last re-simulated day: when it did not repeat, the next back-off round's re-simulation continues from
+        # it (optimize/verify.py, CHAINED_MAX_DAYS); when it did, from the model's state, which holds the new
+        # schedule's slow states (the demo: 1 day from the model, 2-3 from the day before)
+        days: list = []
 
         def verify():
+            chain = days[-1] if days and not days[-1].converged else None
             ver, day = verify_day(plant, study.schedule_by_zone(), study.figures(), study.m, problem.swing_states,
-                                  start_day=days[-1] if days else None)
+                                  start_day=chain)
             days[:] = [day]
             return ver, day
 
