@@ -508,6 +508,7 @@ def refined_steps_per_period(period_h: float, steps_per_period: int) -> int | No
 
 __all__ = ["ACCEPT_mg_L", "CUSHION_mg_L", "DAMPED_TRIES", "DAMPING", "GAIN", "LARGE_mg_L", "MAX_ROUNDS",
            "OPEN_SHARE", "REFINED_DIVERGING_DUAL", "REFINED_MAX_ITER", "REFINED_START", "REFINED_STEP_H", "RESOLVE",
+           "ROUND_BUDGET_RULE", "STOP_RULE",
            "SHRINK", "TARGET_mg_L",
            "hold_do", "points_at", "refined_first_rung", "refined_options", "refined_steps_per_period", "shortfalls",
            "still_converging"]
