@@ -345,7 +345,7 @@ def test_the_rounds_end_when_the_solve_budget_cannot_pay_another(three_tank_6):
                                                     solve_cpu_s=30.0, budget_s=70.0)
     assert hold["budget_ended"] is True and hold["rounds"] == 2 and len(solves) == 2
     assert "run time budget" in hold["stop_reason"]
-    assert study.budget.remaining() < 30.0 and [r["resolve_cpu_s"] for r in hold["round_costs"]] == [30.0, 30.0]
+    assert study.budget.available() < 30.0 and [r["resolve_cpu_s"] for r in hold["round_costs"]] == [30.0, 30.0]
     assert hold["verification"]["verified"] is True and hold["verification"]["n"] == 2 and hold["day"] is days[1]
     assert q.value == 111.0  # round 1's schedule
     assert hold["backoff_mg_L"] == {"T2/2": pytest.approx(GAIN * 0.04 + CUSHION_mg_L)}  # round 1's back-offs
@@ -369,7 +369,7 @@ def test_a_run_whose_budget_ends_the_rounds_says_so(three_tank_diurnal, monkeypa
     real = diurnal.hold_do
 
     def spent(study, verify, *args, **kwargs):
-        study.budget.charge(study.budget.remaining() - 1e-3)  # the solves before took all but a millisecond
+        study.budget.charge(study.budget.available() - 1e-3)  # the solves before took all but a millisecond
         return real(study, verify, *args, **kwargs)
 
     monkeypatch.setattr(diurnal, "hold_do", spent)

@@ -76,7 +76,7 @@ way) is at most :data:`TARGET_mg_L`. A round backs off every excursion above :da
 target, to leave room for the next round's drift; with no next round that room buys nothing. The maximum is
 held to the same 0.01 mg/L, although the verification accepts 0.05 mg/L for both bounds: the rule ends rounds, it
 does not widen the band. On plant 36 of the robustness benchmark (9 zones, layered clarifier, 48 periods)
-rounds 2-4 took 5, 3 and 1 zone-periods for about 230 of the run's 624 CPU s. Run budget rule
+rounds 2-4 took 5, 3 and 1 zone-periods for about 230 s of a run of 624 CPU s. Run budget rule
 (:data:`ROUND_BUDGET_RULE`): the rounds are optional, so they pay for their re-simulations from the run's solve
 budget too (:meth:`~airtaper.optimize.attempts.SolveBudget.charge`; their re-solves always did); before each
 round its cost is estimated as the last round's (re-solves and re-simulation; before round 1, the first
@@ -349,10 +349,10 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
             held_to_target = True
             why = f"every DO excursion within {TARGET_mg_L:g} mg/L and verified"
             break
-        if study.budget.remaining() < round_cpu_s:
+        if study.budget.available() < round_cpu_s:
             # the run budget rule (ROUND_BUDGET_RULE): the solve budget cannot pay another round
             budget_ended = True
-            why = (f"run time budget (a round costs about {round_cpu_s:.0f} CPU s, {study.budget.remaining():.0f} s "
+            why = (f"run time budget (a round costs about {round_cpu_s:.0f} CPU s, {study.budget.available():.0f} s "
                    "of the solve budget left)")
             if not ver["verified"] and kept is not None:  # the last verified schedule, not the last one
                 snap, vals, ver, day, study.result = kept
