@@ -383,8 +383,8 @@ def test_a_run_whose_budget_ends_the_rounds_says_so(three_tank_diurnal, monkeypa
 @pytest.mark.parametrize("alpha", [1.0, 0.97, 1.03])
 def test_the_stop_rule_on_perturbed_plants(three_tank_diurnal, alpha):
     """Every zone's alpha x 0.97 and x 1.03 (and as given): every back-off round ran on an excursion above the target
-    or an unverified day (the stop rule, backoff.STOP_RULE), and the result holds the DO minimum to the target,
-    verified (issue 12: every layout verifies to 0.01 mg/L or is diagnosed)."""
+    (the stop rule, backoff.STOP_RULE; these days break no effluent limit), and the result holds the DO minimum to
+    the target, verified (issue 12: every layout verifies to 0.01 mg/L or is diagnosed)."""
     from dataclasses import replace
 
     from airtaper.optimize.backoff import TARGET_mg_L
