@@ -307,6 +307,18 @@ def _cpu_limit(seconds: float):
     return limit
 
 
+def _backoff_tag(hold: dict | None) -> str:
+    """" [back-off: zone-periods of each round, CPU s of each round; how the rounds ended]", or "" (no back-off)."""
+    if not hold:
+        return ""
+    costs = hold.get("round_costs") or []
+    ended = ("held" if hold.get("held_to_target") else "budget" if hold.get("budget_ended")
+             else "stalled" if hold.get("stalled") else "failed" if hold.get("resolve_failed") else "done")
+    zp = ",".join(str(c["zone_periods"]) for c in costs) or "-"
+    cpu = ",".join(f"{c['resolve_cpu_s'] + c['resimulation_cpu_s']:.0f}" for c in costs) or "-"
+    return f" [back-off {hold.get('rounds', len(costs))} rounds: {zp} zone-periods, {cpu} CPU s; {ended}]"
+
+
 def run_plant(text: str, folder: Path, timeout_s: float, cpu: bool = False) -> tuple[str, int | None, float, str]:
     """(outcome, exit code, seconds, last message line) of `airtaper optimize` on one layout.
 
@@ -335,17 +347,19 @@ def run_plant(text: str, folder: Path, timeout_s: float, cpu: bool = False) -> t
     err = [ln for ln in p.stderr.splitlines() if ln.strip()]
     last = next((ln for ln in reversed(err) if ln.startswith("error:")), "")
     status = None
+    rounds = ""
     summary_path = folder / "out" / "summary.json"
     if summary_path.is_file():
         s = json.loads(summary_path.read_text())
         status = s.get("status")
+        rounds = _backoff_tag(s.get("do_hold"))
         if not last:
             sources = sorted({f.get("source", "elastic") for f in s.get("infeasibility") or []})
             last = (f"{status}" + (f" ({', '.join(sources)})" if sources else "") + ": "
                     + "; ".join((s.get("messages") or [""])[:2]))
     if not last and err:
         last = err[-1]
-    last = f"[cpu {_child_cpu_s() - cpu0:.0f} s] {last}"
+    last = f"[cpu {_child_cpu_s() - cpu0:.0f} s]{rounds} {last}"
     if "Traceback" in p.stderr:
         return "failed", p.returncode, seconds, "traceback: " + last
     if status == "failed":  # a bounded ending of the optimiser (or a solver failure): no answer

@@ -217,6 +217,18 @@ def test_the_solve_budget_hands_each_solve_what_is_left_and_counts_only_the_solv
     assert b.exhausted and b.options()["max_cpu_time"] == SolveBudget.FLOOR_S
 
 
+def test_time_charged_outside_a_solve_is_spent_but_counts_no_solve():
+    """The DO back-off's re-simulations are charged to the budget (backoff.ROUND_BUDGET_RULE): spent, not a solve."""
+    from airtaper.optimize.attempts import SolveBudget
+
+    b = SolveBudget(100.0, reserve_fraction=0.0)
+    b.charge(30.0)
+    assert b.spent == 30.0 and b.solves == 0 and b.available() == 70.0
+    assert not b.exhausted  # no solve yet: nothing to stop
+    b.charge(-5.0)  # never gives time back
+    assert b.spent == 30.0
+
+
 def test_the_solve_budget_keeps_a_reserve_for_the_elastic_solve_until_a_schedule_exists():
     # optimize/attempts.py, "Elastic reserve": the ladder may spend 70 %, the elastic solve the rest; once a
     # solve gave a schedule the whole budget is there for the staging and back-off re-solves.

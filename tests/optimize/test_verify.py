@@ -66,6 +66,28 @@ def test_the_lead_in_gives_the_day_a_start_at_0_h_gives_in_fewer_days(three_tank
     assert first["zones"]["T1"][7] == study.m.conc[t, "T1", "SO"].value
 
 
+def test_a_re_simulation_from_the_day_before_repeats_in_a_few_days(three_tank_diurnal):
+    """Between the DO back-off's rounds the re-simulation starts from the day simulated before (``start_day``): for
+    a schedule that changed in one zone-period (a round's back-off moves a few), the day repeats within
+    CHAINED_MAX_DAYS days, to the day-repeat tolerance, with the figures of a run from the model-free start."""
+    from airtaper.optimize.verify import CHAINED_MAX_DAYS
+
+    plant = resolve_plant(three_tank_diurnal)
+    base = simulate_day(plant, do_setpoint_mg_L=2.0)
+    schedule = base.period_mean_airflow()
+    day = simulate_day(plant, schedule=schedule, tol=DAY_REPEAT_TOL)  # from the mean-load steady state
+    schedule["T2"] = schedule["T2"].copy()
+    schedule["T2"][2] *= 1.05  # what a round changes
+    alone = simulate_day(plant, schedule=schedule, tol=DAY_REPEAT_TOL)
+    chained, _ = verify_day(plant, schedule, base.figures, start_day=day)
+    assert day.converged and alone.converged and alone.days > CHAINED_MAX_DAYS  # the start saves days
+    assert chained["periodic"] and chained["simulated_days"] <= CHAINED_MAX_DAYS, chained["simulated_days"]
+    assert chained["start"].startswith("the re-simulated day before")
+    for key in ("nh4_mean_mg_L", "nh4_max_mg_L", "tn_mean_mg_L"):
+        assert chained["effluent"][key] == pytest.approx(alone.figures[key], rel=1e-3)
+    assert chained["min_do_margin_mg_L"] == pytest.approx(alone.figures["min_do_margin_mg_L"], abs=1e-3)
+
+
 def test_the_verification_takes_a_resolved_plant_only(fenwhistle):
     """The layout is resolved once, before the study: a Layout reaching the verification is an internal error."""
     with pytest.raises(TypeError, match="ResolvedPlant"):

@@ -38,9 +38,10 @@ solves only (:meth:`SolveBudget.charging` around each call: the model's conversi
 cached, Ipopt's iterations and its calls of the derivative functions), not the baseline, the
 model build, the verification's simulated days or the dispatch MILPs between them (before,
 the clock ran from the first solve on, so the simulator's days between back-off rounds were
-charged to the solver). CPU, not wall clock: on a machine shared with other jobs a wall-clock
-budget measured the load (at a load average of 10 a 12-zone plant got 52 CPU seconds in
-620 s of wall clock), not the solve. A stalled optimiser (restoration that wanders, a
+charged to the solver). One exception: the DO back-off's rounds, which are optional, pay for their
+re-simulations from the budget too (:meth:`SolveBudget.charge`; :data:`airtaper.optimize.backoff.ROUND_BUDGET_RULE`).
+CPU, not wall clock: on a machine shared with other jobs a wall-clock budget measured the load
+(at a load average of 10 a 12-zone plant got 52 CPU seconds in 620 s of wall clock), not the solve. A stalled optimiser (restoration that wanders, a
 ladder whose every rung fails slowly) then ends within the budget with a plain-words
 message and exit code 3 (:data:`airtaper.errors.EXIT_INFEASIBLE`) instead of running on:
 the study says it could not settle, never that the limits are infeasible. A study solved
@@ -226,6 +227,11 @@ class SolveBudget:
         finally:
             self.spent += time.process_time() - t
             self.solves += 1
+
+    def charge(self, seconds: float) -> None:
+        """Charge ``seconds`` of CPU time spent outside a solve (no solve counted): the DO back-off's
+        re-simulations, which its rounds pay from this budget (:data:`airtaper.optimize.backoff.ROUND_BUDGET_RULE`)."""
+        self.spent += max(float(seconds), 0.0)
 
     def message(self, attempts: list[dict]) -> str:
         """The plain-words ending of a run that used up the budget."""

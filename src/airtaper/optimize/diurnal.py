@@ -495,8 +495,17 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
         prog.phase("verifying: the schedule re-simulated by the independent simulator")
         t = time.perf_counter()
 
+        # the last re-simulated day: when it did not repeat, the next back-off round's re-simulation continues from
+        # it (optimize/verify.py, CHAINED_MAX_DAYS); when it did, from the model's state, which holds the new
+        # schedule's slow states (the demo: 1 day from the model, 2-3 from the day before)
+        days: list = []
+
         def verify():
-            return verify_day(plant, study.schedule_by_zone(), study.figures(), study.m, problem.swing_states)
+            chain = days[-1] if days and not days[-1].converged else None
+            ver, day = verify_day(plant, study.schedule_by_zone(), study.figures(), study.m, problem.swing_states,
+                                  start_day=chain)
+            days[:] = [day]
+            return ver, day
 
         if status == "optimal" and opts.hold_do:
             staged = staging is not None and staging.dispatch is not None and not staging.findings
@@ -508,6 +517,9 @@ def run_optimization(plant: ResolvedPlant | Layout, options: StudyOptions | None
             result = study.result
             if hold["resolve_failed"]:
                 messages.append("the DO back-off could not be applied in full: the re-solve failed")
+            elif hold["budget_ended"]:
+                messages.append(f"DO back-off ended after {hold['rounds']} rounds: {hold['stop_reason']}"
+                                + ("; the last verified schedule is kept" if verification["verified"] else ""))
             elif hold["stalled"] and not hold["refine"]:
                 messages.append(f"the DO back-off stopped after {hold['rounds']} rounds: {hold['stop_reason']}")
             if hold["max_excursions_mg_L"]:
