@@ -3,8 +3,11 @@
 from __future__ import annotations
 
 from dataclasses import replace
+from pathlib import Path
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from airtaper.optimize.baseline import SEARCH_TOL_mg_L, complying_baseline, run_baseline, search_range
 from airtaper.optimize.horizon import with_periods
@@ -232,3 +235,145 @@ def test_nh4_falls_as_the_uniform_setpoint_rises(demo6):
         mp.setattr(bl, "_try", counting_try)
         assert bl.complying_baseline(plant, base) is None
     assert max(tried) == hi and min(tried) > 2.0 and len(tried) <= 4
+
+
+def _fake_day(plant, sp, nh4, do_margin=0.5):
+    """A trial with every figure the search reads: NH4-N ``nh4`` (mg/L), the other limits met."""
+    lim = plant.limits
+    figures = {"nh4_mean_mg_L": nh4, "nh4_max_mg_L": 0.0, "tn_mean_mg_L": 0.5 * lim.tn_mean_mg_L,
+               "do_margin_mg_L": {"Z": do_margin}}
+    broken = (["NH4-N"] if nh4 > lim.nh4_mean_mg_L else []) + (["DO"] if do_margin < -0.01 else [])
+    return _FakeBaseline(sp, broken, figures)
+
+
+def _bisected(complies, lo: float, hi: float) -> tuple[float, int]:
+    """Plain bisection of [lo (breaks), hi (complies)] to the search's tolerance: (setpoint found, trials)."""
+    n = 0
+    while hi - lo > SEARCH_TOL_mg_L:
+        mid, n = 0.5 * (lo + hi), n + 1
+        lo, hi = (lo, mid) if complies(mid) else (mid, hi)
+    return hi, n
+
+
+@settings(max_examples=60, deadline=None)
+@given(root=st.floats(2.1, 5.8), slope=st.floats(0.05, 2.0), curve=st.floats(0.0, 1.0), cubic=st.booleans())
+def test_complying_search_interpolates_to_the_same_answer_as_bisection(demo6, root, slope, curve, cubic):
+    """NH4-N falling through the limit at ``root`` (convex, or with an inflection): the search's answer complies,
+    a trial at most the tolerance below it breaks, it lies within the tolerance of plain bisection's (of the
+    bracket the steps found), and the interpolated closing never takes more trials than bisection would."""
+    import airtaper.optimize.baseline as bl
+
+    limit = demo6.limits.nh4_mean_mg_L
+
+    def nh4(sp):
+        d = root - sp
+        return limit * (1.0 + slope * d + curve * (d ** 3 if cubic else d * abs(d)))
+
+    closing = []
+    real_close = bl._close
+
+    def counting_close(plant, low, high):
+        closing.append((low.setpoint_mg_L, high.setpoint_mg_L))
+        return real_close(plant, low, high)
+
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(bl, "_close", counting_close)
+        found, tried = _search_by_rule(mp, demo6, lambda sp: _fake_day(demo6, sp, nh4(sp)))
+    assert found is not None and root <= found.setpoint_mg_L <= root + SEARCH_TOL_mg_L
+    below = [sp for sp in tried if sp < found.setpoint_mg_L]
+    assert max(below) >= found.setpoint_mg_L - SEARCH_TOL_mg_L and all(nh4(sp) > limit for sp in below)
+    if closing:  # the bracket the steps left: interpolating takes no more trials than bisecting it
+        lo, hi = closing[-1]
+        answer, n = _bisected(lambda sp: nh4(sp) <= limit, lo, hi)
+        assert abs(answer - found.setpoint_mg_L) <= SEARCH_TOL_mg_L
+        assert sum(lo < sp < hi for sp in tried) <= n
+
+
+def test_closing_the_bracket_bisects_when_the_figures_mislead(monkeypatch, demo6):
+    """Days whose NH4-N figure crosses its limit at 1.0 mg/L while the days comply only from 3.37 mg/L (a limit the
+    figures do not show): the interpolated trials fall on the unexpected side, the search falls back to bisection
+    and still ends at a complying setpoint with a breaking one within the tolerance below it, in no more than
+    twice bisection's trials."""
+    import airtaper.optimize.baseline as bl
+
+    limit = demo6.limits.nh4_mean_mg_L
+
+    def trial(sp):
+        day = _fake_day(demo6, sp, limit * (1.0 + 0.5 * (1.0 - sp)))
+        day.violations = [] if sp >= 3.37 else ["a limit"]
+        return day
+    tried = []
+    monkeypatch.setattr(bl, "_try", lambda plant_, sp, start: tried.append(sp) or trial(sp))
+    low = _fake_day(demo6, 0.5, limit * 1.25)
+    low.violations = ["NH4-N"]
+    found = bl._close(demo6, low, trial(6.0))
+    assert 3.37 <= found.setpoint_mg_L <= 3.37 + SEARCH_TOL_mg_L
+    assert any(found.setpoint_mg_L - SEARCH_TOL_mg_L <= sp < found.setpoint_mg_L for sp in tried)
+    assert len(tried) <= 2 * _bisected(lambda sp: sp >= 3.37, 0.5, 6.0)[1]
+
+
+def _cold_demo(alpha_factor: float):
+    """The demo (invented) at 13 C and fouling 0.85, every zone's alpha times ``alpha_factor``: the uniform 2 mg/L
+    breaks the NH4-N daily mean limit."""
+    from airtaper.layout.overrides import load_layout_with_values
+    from airtaper.plant import resolve_plant
+
+    demo = Path(__file__).resolve().parents[2] / "layouts" / "demo.toml"
+    lay = load_layout_with_values(str(demo), {"plant.water_temperature_C": 13.0, "zone_defaults.fouling": 0.85},
+                                  "<test>")
+    return resolve_plant(replace(lay, zones=tuple(replace(z, alpha=z.alpha * alpha_factor) for z in lay.zones)))
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("alpha_factor", [0.97, 1.0])
+def test_complying_search_on_the_cold_demo_matches_bisection_in_fewer_trials(alpha_factor):
+    """On the cold demo (and with alpha 3 % lower) the search finds the lowest complying setpoint in 3 simulated
+    days; plain bisection between the baseline's 2 mg/L and a complying 2.75 mg/L needs 5 (with the one at 2.75)
+    to the same tolerance, and its answer lies within the tolerance of the search's."""
+    import airtaper.optimize.baseline as bl
+
+    plant = _cold_demo(alpha_factor)
+    base = run_baseline(plant, 2.0)
+    assert base.violations and "NH4-N daily mean" in base.violations[0]
+    tried = []
+    real_try = bl._try
+
+    def counting_try(plant_, sp, start):
+        tried.append(sp)
+        return real_try(plant_, sp, start)
+
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(bl, "_try", counting_try)
+        found = bl.complying_baseline(plant, base)
+    assert found is not None and not found.violations
+    start = found.day.start_state()
+
+    def complies(sp):
+        return not bl.run_baseline(plant, sp, start_state=start, seek=True).violations
+    assert complies(2.75)  # (above about 3 mg/L a zone's DO maximum breaks)
+    answer, n = _bisected(complies, 2.0, 2.75)
+    assert abs(answer - found.setpoint_mg_L) <= SEARCH_TOL_mg_L
+    assert len(tried) < n + 1, (tried, n)  # (bisection's trials and the one at 2.75)
+    # the bracket: a trial at most the tolerance below the answer broke a limit
+    assert any(found.setpoint_mg_L - SEARCH_TOL_mg_L <= sp < found.setpoint_mg_L for sp in tried)
+
+
+@pytest.mark.slow
+def test_complying_search_on_the_cold_demo_with_more_alpha_finds_none():
+    """With alpha 3 % higher, NH4-N is met from about 2.58 mg/L, but a zone's DO range is already left there: no
+    uniform setpoint complies, found in fewer simulated days than before the interpolation (7)."""
+    import airtaper.optimize.baseline as bl
+
+    plant = _cold_demo(1.03)
+    base = run_baseline(plant, 2.0)
+    tried = []
+    real_try = bl._try
+
+    def counting_try(plant_, sp, start):
+        tried.append(sp)
+        return real_try(plant_, sp, start)
+
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(bl, "_try", counting_try)
+        assert bl.complying_baseline(plant, base) is None
+    assert len(tried) <= 6, tried
