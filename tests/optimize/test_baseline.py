@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import replace
 from pathlib import Path
 
@@ -256,19 +257,17 @@ def _bisected(complies, lo: float, hi: float) -> tuple[float, int]:
 
 
 @settings(max_examples=60, deadline=None)
-@given(root=st.floats(2.1, 5.8), slope=st.floats(0.05, 2.0), curve=st.floats(0.0, 1.0), cubic=st.booleans())
-def test_complying_search_interpolates_to_the_same_answer_as_bisection(demo6, root, slope, curve, cubic):
-    """NH4-N falling through the limit at ``root`` (convex, or with an inflection): the search's answer complies,
-    a trial at most the tolerance below it breaks, it lies within the tolerance of plain bisection's (of the
-    bracket the steps found), and the interpolated closing never takes more trials than bisection would."""
+@given(root=st.floats(2.1, 5.8), slope=st.floats(0.05, 2.0), bend=st.floats(0.2, 3.0),
+       shape=st.sampled_from(["convex", "inflection", "cubic"]))
+def test_complying_search_interpolates_to_the_same_answer_as_bisection(demo6, root, slope, bend, shape):
+    """NH4-N falling through the limit at ``root`` (convex throughout, or with an inflection there): the search's
+    answer complies, a trial at most the tolerance below it breaks, it lies within the tolerance of plain
+    bisection's (of the bracket the steps found), and closing the bracket takes at most 2 trials more than
+    bisecting it (fewer on the whole: see the next test)."""
     import airtaper.optimize.baseline as bl
 
     limit = demo6.limits.nh4_mean_mg_L
-
-    def nh4(sp):
-        d = root - sp
-        return limit * (1.0 + slope * d + curve * (d ** 3 if cubic else d * abs(d)))
-
+    nh4 = _nh4_curve(limit, root, slope, bend, shape)
     closing = []
     real_close = bl._close
 
@@ -282,11 +281,47 @@ def test_complying_search_interpolates_to_the_same_answer_as_bisection(demo6, ro
     assert found is not None and root <= found.setpoint_mg_L <= root + SEARCH_TOL_mg_L
     below = [sp for sp in tried if sp < found.setpoint_mg_L]
     assert max(below) >= found.setpoint_mg_L - SEARCH_TOL_mg_L and all(nh4(sp) > limit for sp in below)
-    if closing:  # the bracket the steps left: interpolating takes no more trials than bisecting it
+    if closing:  # the bracket the steps left
         lo, hi = closing[-1]
         answer, n = _bisected(lambda sp: nh4(sp) <= limit, lo, hi)
         assert abs(answer - found.setpoint_mg_L) <= SEARCH_TOL_mg_L
-        assert sum(lo < sp < hi for sp in tried) <= n
+        assert sum(lo < sp < hi for sp in tried) <= n + 2
+
+
+def _nh4_curve(limit, root, slope, bend, shape):
+    """NH4-N (mg/L) against the setpoint, falling through ``limit`` at ``root``: convex throughout (exponential
+    decay towards a floor, as the oxygen switching function saturates), or with an inflection at the root."""
+    if shape == "convex":
+        return lambda sp: limit * (1.0 + slope * (math.exp(-bend * (sp - root)) - 1.0))
+    if shape == "inflection":
+        return lambda sp: limit * (1.0 + slope * (root - sp) + bend / 3.0 * (root - sp) * abs(root - sp))
+    return lambda sp: limit * (1.0 + slope * (root - sp) + bend / 3.0 * (root - sp) ** 3)
+
+
+def test_closing_the_bracket_takes_fewer_trials_than_bisection_on_the_whole(monkeypatch, demo6):
+    """Over 90 invented curves of each shape, the brackets the steps left take fewer trials to close than
+    bisection: at most 80 % of them for each shape (the measured totals are 55-71 %)."""
+    import random
+
+    import airtaper.optimize.baseline as bl
+
+    limit = demo6.limits.nh4_mean_mg_L
+    rng = random.Random(7)
+    real_close = bl._close
+    for shape in ("convex", "inflection", "cubic"):
+        ours = theirs = 0
+        for _ in range(90):
+            nh4 = _nh4_curve(limit, rng.uniform(2.1, 5.8), rng.uniform(0.05, 2.0), rng.uniform(0.2, 3.0), shape)
+            closing, tried = [], []
+            monkeypatch.setattr(bl, "_close", lambda p, lo, hi: closing.append((lo.setpoint_mg_L, hi.setpoint_mg_L))
+                                or real_close(p, lo, hi))
+            monkeypatch.setattr(bl, "_try", lambda p, sp, start: tried.append(sp) or _fake_day(demo6, sp, nh4(sp)))
+            bl.complying_baseline(demo6, _fake_day(demo6, 2.0, nh4(2.0)))
+            if closing:
+                lo, hi = closing[-1]
+                ours += sum(lo < sp < hi for sp in tried)
+                theirs += _bisected(lambda sp: nh4(sp) <= limit, lo, hi)[1]
+        assert ours <= 0.8 * theirs, (shape, ours, theirs)
 
 
 def test_closing_the_bracket_bisects_when_the_figures_mislead(monkeypatch, demo6):
