@@ -300,7 +300,8 @@ def _nh4_curve(limit, root, slope, bend, shape):
 
 def test_closing_the_bracket_takes_fewer_trials_than_bisection_on_the_whole(monkeypatch, demo6):
     """Over 90 invented curves of each shape, the brackets the steps left take fewer trials to close than
-    bisection: at most 80 % of them for each shape (the measured totals are 55-71 %)."""
+    bisection: at most 80 % of them for each shape (measured: 228 of 328 convex, 91 of 186 and 149 of 296 with an
+    inflection)."""
     import random
 
     import airtaper.optimize.baseline as bl
@@ -326,9 +327,9 @@ def test_closing_the_bracket_takes_fewer_trials_than_bisection_on_the_whole(monk
 
 def test_closing_the_bracket_bisects_when_the_figures_mislead(monkeypatch, demo6):
     """Days whose NH4-N figure crosses its limit at 1.0 mg/L while the days comply only from 3.37 mg/L (a limit the
-    figures do not show): the interpolated trials fall on the unexpected side, the search falls back to bisection
-    and still ends at a complying setpoint with a breaking one within the tolerance below it, in no more than
-    twice bisection's trials."""
+    figures do not show): the interpolated trials keep falling below the days' own crossing, and the Illinois rule
+    and the fall-back to bisection still end at a complying setpoint with a breaking one within the tolerance below
+    it, in no more than twice bisection's trials."""
     import airtaper.optimize.baseline as bl
 
     limit = demo6.limits.nh4_mean_mg_L

@@ -19,11 +19,11 @@ finds nothing; steps of :data:`SEARCH_STEPS_mg_L` between :data:`SEARCH_MIN_mg_L
 complying setpoint found below the baseline is followed further down until the limits
 break again; the bracket (breaking below, complying above) is then narrowed to
 :data:`SEARCH_TOL_mg_L` (:func:`_close`: regula falsi on the excess over the limits the
-lower end breaks, each trial placed so that the next can close the bracket, bisection when
-a trial falls on the unexpected side). Stepping up from an NH4-N breach, a step can pass over a narrow
-complying span: NH4-N is met there but another limit breaks (a zone's DO maximum,
-overshot by the oxygen carried in from the zones before it); the span between the two
-steps is then bisected three ways (NH4-N broken: higher; another limit broken: lower).
+lower end breaks, each trial placed so that the next can close the bracket, the Illinois
+rule when one end moves twice, bisection after two trials that do not halve it). Stepping
+up from an NH4-N breach, a step can pass over a narrow complying span: NH4-N is met there
+but another limit breaks (a zone's DO maximum, overshot by the oxygen carried in from the
+zones before it); the span between the two steps is then bisected three ways (NH4-N broken: higher; another limit broken: lower).
 On the demo at 13 C and fouling 0.85 the steps 2.5 (NH4-N 1.3 % over) and 3.0 mg/L (Z6
 0.019 mg/L above its maximum) used to end in no complying setpoint after 8 trials; it
 now finds 2.59 mg/L in 7.
@@ -296,7 +296,8 @@ def _excess(plant: ResolvedPlant, trial: Baseline) -> dict | None:
     """Limit -> by how much the trial's day breaks it, mg/L (negative: met with that margin); the same limits
     and tolerance as :func:`~airtaper.optimize.compliance.violations`. None when the day has no figures."""
     f, lim = trial.day.figures, plant.limits
-    keys = (("nh4_mean_mg_L", lim.nh4_mean_mg_L), ("nh4_max_mg_L", lim.nh4_max_mg_L), ("tn_mean_mg_L", lim.tn_mean_mg_L))
+    keys = (("nh4_mean_mg_L", lim.nh4_mean_mg_L), ("nh4_max_mg_L", lim.nh4_max_mg_L),
+            ("tn_mean_mg_L", lim.tn_mean_mg_L))
     if any(limit is not None and key not in f for key, limit in keys):
         return None
     out = {key: f[key] - limit for key, limit in keys if limit is not None}

@@ -240,7 +240,7 @@ class System:
         if not detail:
             return out
         sq = (lambda a: a[..., 0]) if one else (lambda a: a)
-        if detail == "balance":  # (every right-hand side of the recorded day: the rest costs a third more)
+        if detail == "balance":  # (every right-hand side of the recorded day: the rest costs 10-30 % more)
             return out, dict(otr_g_m3_d=sq(otr), c_underflow=sq(cu), c_effluent=sq(ce), q_waste_m3_d=sq(qw),
                              q_effluent_m3_d=sq(qe), process_rates=sq(rho))
         if kla.shape[1] != m:
