@@ -348,6 +348,26 @@ def test_closing_the_bracket_bisects_when_the_figures_mislead(monkeypatch, demo6
     assert len(tried) <= 2 * _bisected(lambda sp: sp >= 3.37, 0.5, 6.0)[1]
 
 
+def test_closing_the_bracket_past_a_failed_simulation(monkeypatch, demo6):
+    """A trial whose simulation fails counts as breaking (as bisection treated it): the bracket closes above it
+    by bisection, at a setpoint that complies with a trial that broke or failed at most the tolerance below."""
+    import airtaper.optimize.baseline as bl
+
+    limit = demo6.limits.nh4_mean_mg_L
+    tried = []
+
+    def fake_try(plant_, sp, start):
+        tried.append(sp)
+        if 2.9 < sp < 3.2:  # the simulator fails here
+            return None
+        return _fake_day(demo6, sp, limit * (1.0 + 0.5 * (3.0 - sp)))
+    monkeypatch.setattr(bl, "_try", fake_try)
+    low = _fake_day(demo6, 2.0, limit * 1.5)
+    found = bl._close(demo6, low, fake_try(demo6, 6.0, None))
+    assert 3.2 <= found.setpoint_mg_L <= 3.2 + SEARCH_TOL_mg_L and not found.violations
+    assert any(found.setpoint_mg_L - SEARCH_TOL_mg_L <= sp < found.setpoint_mg_L for sp in tried)
+
+
 def _cold_demo(alpha_factor: float):
     """The demo (invented) at 13 C and fouling 0.85, every zone's alpha times ``alpha_factor``: the uniform 2 mg/L
     breaks the NH4-N daily mean limit."""
