@@ -46,6 +46,26 @@ def test_the_callers_warning_printer_is_restored():
     assert warnings.showwarning is before
 
 
+def test_a_command_runs_with_the_garbage_collectors_thresholds_and_restores_the_callers():
+    import gc
+
+    from airtaper.cli.main import GC_THRESHOLD
+
+    before = gc.get_threshold()
+    seen = []
+    try:
+        gc.set_threshold(500, 5, 5)  # a caller's own (a sweep worker, a notebook)
+        run_handler(lambda args: seen.append(gc.get_threshold()) or EXIT_OK, None)
+        assert seen == [GC_THRESHOLD] and gc.get_threshold() == (500, 5, 5)
+
+        def failing(args):
+            raise RuntimeError("boom")
+        run_handler(failing, None)  # an internal failure: reported, and the thresholds are still restored
+        assert gc.get_threshold() == (500, 5, 5)
+    finally:
+        gc.set_threshold(*before)
+
+
 def test_warning_line_keeps_a_message_on_one_line():
     assert warning_line("a\nb", UserWarning) == "warning: UserWarning: a\\nb"
 

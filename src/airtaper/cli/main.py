@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import argparse
 import atexit
+import gc
 import importlib
 import math
 import os
@@ -157,11 +158,26 @@ class _WarningPrinter:
             print(text, file=sys.stderr)
 
 
+#: Python's cyclic garbage collector while a command runs: a young generation ten times the interpreter's
+#: default (700). A run builds hundreds of thousands of long-lived objects (the Pyomo model, its CasADi
+#: functions, the simulator's tables), and each full collection walks all of them: on the demo's ``optimize``
+#: 9 full collections took 1.18 CPU s of 26.4 (1.37 s with the young ones); with this threshold 3 took 0.14 s
+#: (0.37 s in all), the peak memory the same (424 MB; load 4). Only cycles wait longer to be freed: most
+#: objects are freed by reference counting as before.
+GC_THRESHOLD = (7000, 10, 10)
+
+
 def run_handler(handler, args) -> int:
-    """Run a subcommand handler, turning the project's errors into messages and exit codes."""
-    with warnings.catch_warnings():  # restores the caller's warning filters and printer afterwards
-        warnings.showwarning = _WarningPrinter()
-        return _run(handler, args)
+    """Run a subcommand handler, turning the project's errors into messages and exit codes; the garbage
+    collector's thresholds are :data:`GC_THRESHOLD` meanwhile (the caller's afterwards, e.g. a sweep worker's)."""
+    previous = gc.get_threshold()
+    gc.set_threshold(*GC_THRESHOLD)
+    try:
+        with warnings.catch_warnings():  # restores the caller's warning filters and printer afterwards
+            warnings.showwarning = _WarningPrinter()
+            return _run(handler, args)
+    finally:
+        gc.set_threshold(*previous)
 
 
 def _run(handler, args) -> int:

@@ -150,8 +150,9 @@ class System:
         d["nz"] = nz
         return d
 
-    def rhs(self, y, inp: Inputs, detail: bool = False):
-        """Time derivative (per day) of ``y``; with ``detail`` also a dict of flows and transfer."""
+    def rhs(self, y, inp: Inputs, detail: bool | str = False):
+        """Time derivative (per day) of ``y``; with ``detail`` also a dict of flows and transfer (``"balance"``:
+        only what :meth:`rhs_with_balance` reads, without the solids and sludge age)."""
         y = np.asarray(y, dtype=float)
         one = y.ndim == 1
         d = self._derived(inp)
@@ -238,9 +239,12 @@ class System:
             out = out[:, 0]
         if not detail:
             return out
+        sq = (lambda a: a[..., 0]) if one else (lambda a: a)
+        if detail == "balance":  # (every right-hand side of the recorded day: the rest costs 10-30 % more)
+            return out, dict(otr_g_m3_d=sq(otr), c_underflow=sq(cu), c_effluent=sq(ce), q_waste_m3_d=sq(qw),
+                             q_effluent_m3_d=sq(qe), process_rates=sq(rho))
         if kla.shape[1] != m:
             kla = np.repeat(kla, m, axis=1)
-        sq = (lambda a: a[..., 0]) if one else (lambda a: a)
         xu_ = self.tss(cu)
         removal = qw * xu_ + qe * self.tss(ce)
         srt = (d["V"] * tss_z).sum(axis=0) / np.maximum(removal, 1e-12)
@@ -253,7 +257,7 @@ class System:
         """The right-hand side of ``z = (y, COD accumulator, N accumulator)``: the state's derivative and
         the net COD and N inflows of :meth:`balance` (g/d), for integrating the day's closure."""
         n = self.n
-        f, info = self.rhs(z[:n], inp, detail=True)
+        f, info = self.rhs(z[:n], inp, detail="balance")
         cod_net, n_net = self._net_inflows(inp, info)
         out = np.empty(n + 2)
         out[:n] = f
