@@ -485,13 +485,15 @@ def _daily_waste_for_srt(system: System, inputs, records, srt_target_d: float) -
     """
     _, Y, K = records
     nz = system.nz
-    inventory, xu, qe_xe = [], [], []
-    for y_i, k in zip(Y, K):
-        _, info = system.rhs(y_i, inputs[k], detail=True)
-        cz = system.blocks(y_i)[:nz]
-        inventory.append(float((system.V * system.tss(cz.T)).sum()))
-        xu.append(float(system.tss(info["c_underflow"])))
-        qe_xe.append(float(info["q_effluent_m3_d"]) * float(system.tss(info["c_effluent"])))
+    inventory, xu, qe_xe = (np.empty(len(K)) for _ in range(3))
+    for k in np.unique(K):  # a period's recorded states in one call, as columns
+        at = np.flatnonzero(K == k)
+        cols = Y[at].T
+        _, info = system.rhs(cols, inputs[k], detail="balance")
+        cz = system.blocks(cols)[:nz]  # (zones, 13, m)
+        inventory[at] = (system.V[:, None] * system.tss(cz.transpose(1, 0, 2))).sum(axis=0)
+        xu[at] = system.tss(info["c_underflow"])
+        qe_xe[at] = info["q_effluent_m3_d"] * system.tss(info["c_effluent"])
     q = (np.mean(inventory) / srt_target_d - np.mean(qe_xe)) / max(np.mean(xu), 1e-9)
     return float(max(q, 0.0))
 
