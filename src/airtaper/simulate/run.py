@@ -505,8 +505,8 @@ DENSE_LU_MAX_STATES = 120
 class _DayBDF(BDF):
     """scipy's BDF, its dense LU solves calling LAPACK's ``getrs`` directly: the routine
     ``scipy.linalg.lu_solve`` calls, with the same arguments and result, less its argument handling (on the
-    demo's 80 states 3.8 instead of 10.4 microseconds a solve, about 1,100 solves a simulated day). A right-hand
-    side that is not finite still raises ``ValueError``, as ``lu_solve`` does."""
+    demo's 80 states 3.8 instead of 10.4 microseconds a solve, about 1,100 solves a simulated day). A linear
+    system whose right-hand side is not finite still raises ``ValueError``, as ``lu_solve``'s check does."""
 
     def __init__(self, *args, **kwargs):
         super().__init__(*args, **kwargs)

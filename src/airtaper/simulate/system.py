@@ -133,8 +133,8 @@ class System:
         ctl = np.flatnonzero(inp.mode == MODE_DO)
         p = inp.params
         # the controlled zones as a slice when they are adjacent (a view: no copy at every call)
-        ctl_at = slice(int(ctl[0]), int(ctl[-1]) + 1) if ctl.size and np.array_equal(ctl, np.arange(ctl[0], ctl[-1] + 1)) \
-            else ctl
+        adjacent = ctl.size and np.array_equal(ctl, np.arange(ctl[0], ctl[-1] + 1))
+        ctl_at = slice(int(ctl[0]), int(ctl[-1]) + 1) if adjacent else ctl
         d.update(
             V=self.V[:, None],
             feed=inp.q_feed[None, :, None] * inp.c_influent[:, None, None],  # (13, nz, 1)
