@@ -150,3 +150,47 @@ def test_derived_inputs_follow_a_replaced_waste_flow(bsm1_ideal):
     other = dataclasses.replace(inp, q_waste=0.5 * q0)
     assert float(system.rhs(y, other, detail=True)[1]["q_waste_m3_d"]) == 0.5 * q0
     assert float(system.rhs(y, inp, detail=True)[1]["q_waste_m3_d"]) == q0
+
+
+@pytest.mark.parametrize("controlled", [None, {"Z2": 2.0, "Z3": 1.8, "Z4": 1.5}, {"Z2": 2.0, "Z4": 1.5}],
+                         ids=["default", "adjacent", "apart"])
+def test_one_state_gives_its_column_of_many(bsm1_layered, bsm1_ideal, controlled):
+    """The right-hand side of one state (the integrator's call) is its column of a call with many (the grouped
+    Jacobian's), DO-controlled zones adjacent (a slice) or apart (an index), on every setup."""
+    setups = list(_states(bsm1_layered, bsm1_ideal, 5))
+    if controlled is not None:
+        demo = load_layout("layouts/demo.toml")
+        plant = PlantData(demo)
+        system = System(plant)
+        air, sp = resolve_aeration(demo, None, controlled)
+        inp = plant.inputs(3, air[3], sp)
+        setups = [("demo", system, inp, initial_guess(system, inp))]
+    rng = np.random.default_rng(6)
+    for name, system, inp, y in setups:
+        Y = y[:, None] * rng.uniform(0.6, 1.4, (system.n, 3))
+        F, info = system.rhs(Y, inp, detail=True)
+        for j in range(3):
+            f, one = system.rhs(Y[:, j], inp, detail=True)
+            np.testing.assert_allclose(f, F[:, j], rtol=1e-13, atol=1e-9, err_msg=name)
+            np.testing.assert_allclose(one["kla_per_d"], info["kla_per_d"][:, j], rtol=1e-13, err_msg=name)
+
+
+def test_ideal_separator_passes_solubles_and_splits_particulates(bsm1_ideal):
+    """An ideal separator's effluent carries the feed's solubles unchanged and its particulates at
+    effluent TSS / feed TSS of the feed's; the underflow closes the separator's balance, component by component."""
+    from airtaper.process.stoichiometry import PARTICULATES, IDX
+
+    part = np.array([IDX[k] for k in PARTICULATES])
+    sol = np.setdiff1d(np.arange(13), part)
+    for name, system, inp, y in _states(bsm1_ideal, bsm1_ideal, 7):
+        if system.layered:
+            continue
+        _, info = system.rhs(y, inp, detail=True)
+        cf = system.blocks(y)[system.nz - 1]
+        ce, cu = info["c_effluent"], info["c_underflow"]
+        ratio = min(system.effluent_tss, float(system.tss(cf))) / float(system.tss(cf))
+        np.testing.assert_array_equal(ce[sol], cf[sol], err_msg=name)
+        np.testing.assert_array_equal(cu[sol], cf[sol], err_msg=name)
+        np.testing.assert_allclose(ce[part], cf[part] * ratio, rtol=1e-15, err_msg=name)
+        qe, qu = float(info["q_effluent_m3_d"]), float(info["q_underflow_m3_d"])
+        np.testing.assert_allclose(qe * ce + qu * cu, (qe + qu) * cf, rtol=1e-12, err_msg=name)

@@ -59,21 +59,24 @@ def process_rates(c: np.ndarray, p: ASM1Parameters) -> np.ndarray:
     xba = c[_I["XBA"]]
     xnd = c[_I["XND"]]
 
+    # (each product written into its row of ``rho``, shared factors computed once: the same operations in the
+    # same order as the formulas above, fewer temporary arrays)
     m_s = ss / (p.K_S + ss)
-    o_h = so / (p.K_OH + so)
-    i_h = p.K_OH / (p.K_OH + so)
+    k_so = p.K_OH + so
+    o_h = so / k_so
+    i_h = p.K_OH / k_so
     m_no = sno / (p.K_NO + sno)
     rho = np.empty((8,) + np.shape(ss))
-    rho[0] = p.mu_H * m_s * o_h * xbh
-    rho[1] = p.mu_H * m_s * i_h * m_no * p.eta_g * xbh
-    rho[2] = p.mu_A * snh / (p.K_NH + snh) * so / (p.K_OA + so) * xba
-    rho[3] = p.b_H * xbh
-    rho[4] = p.b_A * xba
-    rho[5] = p.k_a * snd * xbh
+    growth_h = p.mu_H * m_s
+    np.multiply(growth_h * o_h, xbh, out=rho[0, ...])
+    np.multiply(growth_h * i_h * m_no * p.eta_g, xbh, out=rho[1, ...])
+    np.multiply(p.mu_A * snh / (p.K_NH + snh) * so / (p.K_OA + so), xba, out=rho[2, ...])
+    np.multiply(p.b_H, xbh, out=rho[3, ...])
+    np.multiply(p.b_A, xba, out=rho[4, ...])
+    np.multiply(p.k_a * snd, xbh, out=rho[5, ...])
     xbh_pos = np.maximum(xbh, 0.0)
-    hyd = p.k_h * xs / (p.K_X * xbh_pos + xs + _TINY) * xbh_pos * (o_h + p.eta_h * i_h * m_no)
-    rho[6] = hyd
-    rho[7] = hyd * xnd / (xs + _TINY)
+    np.multiply(p.k_h * xs / (p.K_X * xbh_pos + xs + _TINY) * xbh_pos, o_h + p.eta_h * i_h * m_no, out=rho[6, ...])
+    np.divide(rho[6] * xnd, xs + _TINY, out=rho[7, ...])
     return rho
 
 
