@@ -379,42 +379,6 @@ def test_the_seek_leaves_the_last_day_to_the_requested_tolerances(demo, monkeypa
     assert used == [(1e-5, 1e-5)] * 2
 
 
-def test_day_solver_takes_scipy_bdfs_steps_to_the_last_bit(demo):
-    """The simulated day's BDF (its dense LU solves straight through LAPACK) gives scipy's BDF result bit for bit
-    on a period of the demo, from the mean-load steady state and from a perturbed one; a right-hand side that turns
-    non-finite fails both at the same time with the same message."""
-    from scipy.integrate import solve_ivp
-
-    from airtaper.simulate.plant import PlantData
-    from airtaper.simulate.run import _DayBDF, resolve_aeration
-    from airtaper.simulate.system import System
-
-    data = PlantData(demo)
-    system = System(data)
-    air, sp = resolve_aeration(demo, None, 2.0)
-    inp = data.inputs(5, airflow_Sm3_h=air[5], do_setpoint_mg_L=sp)
-    y0 = simulate.steady_state(demo, do_setpoint_mg_L=2.0).y
-    rng = np.random.default_rng(11)
-    for y in (y0, y0 * rng.uniform(0.9, 1.1, y0.size)):
-        def fun(t, yy):
-            return system.rhs(yy, inp)
-
-        def jac(t, yy):
-            return system.jacobian(yy, inp).toarray()
-        a = solve_ivp(fun, (0.0, 0.125), y, method="BDF", jac=jac, rtol=1e-5, atol=1e-5)
-        b = solve_ivp(fun, (0.0, 0.125), y, method=_DayBDF, jac=jac, rtol=1e-5, atol=1e-5)
-        assert a.success and b.success and a.t.size > 10
-        np.testing.assert_array_equal(a.t, b.t)
-        np.testing.assert_array_equal(a.y, b.y)
-
-    def bad(t, yy):
-        f = system.rhs(yy, inp)
-        return f if t < 0.01 else f * np.nan
-    a, b = (solve_ivp(bad, (0.0, 0.125), y0, method=m, jac=jac, rtol=1e-5, atol=1e-5) for m in ("BDF", _DayBDF))
-    assert not a.success and not b.success and a.message == b.message
-    np.testing.assert_array_equal(a.t, b.t)
-
-
 def test_daily_waste_for_the_srt_from_the_recorded_states(demo):
     """The day's one waste flow: mean solids inventory of the zones / SRT = waste flow x mean underflow solids + mean
     effluent solids flow, over the recorded states (each state with its own period's inputs), computed here state

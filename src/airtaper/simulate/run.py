@@ -22,8 +22,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from scipy.integrate import BDF, solve_ivp
-from scipy.linalg import get_lapack_funcs
+from scipy.integrate import solve_ivp
 
 from airtaper import units
 from airtaper.layout.types import ASM1_COMPONENTS
@@ -502,28 +501,6 @@ def _daily_waste_for_srt(system: System, inputs, records, srt_target_d: float) -
 DENSE_LU_MAX_STATES = 120
 
 
-class _DayBDF(BDF):
-    """scipy's BDF, its dense LU solves calling LAPACK's ``getrs`` directly: the routine
-    ``scipy.linalg.lu_solve`` calls, with the same arguments and result, less its argument handling (on the
-    demo's 80 states 3.8 instead of 10.4 microseconds a solve, about 1,100 solves a simulated day). A linear
-    system whose right-hand side is not finite still raises ``ValueError``, as ``lu_solve``'s check does."""
-
-    def __init__(self, *args, **kwargs):
-        super().__init__(*args, **kwargs)
-        if isinstance(self.I, np.ndarray):  # dense (a sparse Jacobian keeps scipy's splu solve)
-            getrs, = get_lapack_funcs(("getrs",), (self.I,))
-
-            def solve_lu(LU, b):
-                if not np.isfinite(b).all():
-                    raise ValueError("array must not contain infs or NaNs")
-                x, info = getrs(LU[0], LU[1], b, overwrite_b=True)
-                if info != 0:
-                    raise ValueError(f"illegal value in {-info}th argument of internal getrs")
-                return x
-
-            self.solve_lu = solve_lu
-
-
 def _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod, wn):
     """One day, period by period.
 
@@ -570,7 +547,7 @@ def _simulate_day_recorded(system, inputs, z0, period_d, steps, rtol, atol, wcod
         # period start; on the demo's day the default start takes 9 % more steps but 17 % fewer
         # right-hand sides and 39 % fewer factorisations, with the day's mean airflow and NH4-N within
         # 1.2e-6 and 0.9e-6 of a run at rtol = atol = 1e-8 (the old start: 0.6e-6 and 5.2e-6).
-        sol = solve_ivp(fun, (t0, t1), z, method=_DayBDF, jac=jac, rtol=rtol, atol=tol_vec, dense_output=True)
+        sol = solve_ivp(fun, (t0, t1), z, method="BDF", jac=jac, rtol=rtol, atol=tol_vec, dense_output=True)
         if not sol.success:
             raise RuntimeError(f"simulation failed in period {k + 1}: {sol.message}")
         for j in range(steps):
