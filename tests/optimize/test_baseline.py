@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import replace
+from contextlib import contextmanager
 from pathlib import Path
 
 import pytest
@@ -13,6 +14,22 @@ from hypothesis import strategies as st
 from airtaper.optimize.baseline import SEARCH_TOL_mg_L, complying_baseline, run_baseline, search_range
 from airtaper.optimize.horizon import with_periods
 from airtaper.optimize.diurnal import saving_figures
+
+
+@contextmanager
+def counting_trials():
+    """The setpoints the complying search tries, in order, while the block runs (optimize.baseline._try counted)."""
+    import airtaper.optimize.baseline as bl
+
+    tried, real = [], bl._try
+
+    def counting(plant_, sp, start):
+        tried.append(sp)
+        return real(plant_, sp, start)
+
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(bl, "_try", counting)
+        yield tried
 
 
 @pytest.fixture(scope="module")
@@ -223,17 +240,9 @@ def test_nh4_falls_as_the_uniform_setpoint_rises(demo6):
     assert nh4[0] > nh4[1] > nh4[2]  # more oxygen nitrifies more (ASM1 process 3, Henze et al. 1987, Table 6.1)
     assert nh4[0] - nh4[1] > nh4[1] - nh4[2]  # and ever less (the switching function saturates): convex
     plant = replace(demo6, limits=replace(demo6.limits, nh4_mean_mg_L=0.9 * nh4[2]))
-    tried = []
-    real_try = bl._try
-
-    def counting_try(plant_, sp, start):
-        tried.append(sp)
-        return real_try(plant_, sp, start)
-
     base = run_baseline(plant, 2.0, start_state=base.day.start_state())
     assert base.violations
-    with pytest.MonkeyPatch.context() as mp:
-        mp.setattr(bl, "_try", counting_try)
+    with counting_trials() as tried:
         assert bl.complying_baseline(plant, base) is None
     assert max(tried) == hi and min(tried) > 2.0 and len(tried) <= 4
 
@@ -391,15 +400,7 @@ def test_complying_search_on_the_cold_demo_matches_bisection_in_fewer_trials(alp
     plant = _cold_demo(alpha_factor)
     base = run_baseline(plant, 2.0)
     assert base.violations and "NH4-N daily mean" in base.violations[0]
-    tried = []
-    real_try = bl._try
-
-    def counting_try(plant_, sp, start):
-        tried.append(sp)
-        return real_try(plant_, sp, start)
-
-    with pytest.MonkeyPatch.context() as mp:
-        mp.setattr(bl, "_try", counting_try)
+    with counting_trials() as tried:
         found = bl.complying_baseline(plant, base)
     assert found is not None and not found.violations
     start = found.day.start_state()
@@ -422,14 +423,6 @@ def test_complying_search_on_the_cold_demo_with_more_alpha_finds_none():
 
     plant = _cold_demo(1.03)
     base = run_baseline(plant, 2.0)
-    tried = []
-    real_try = bl._try
-
-    def counting_try(plant_, sp, start):
-        tried.append(sp)
-        return real_try(plant_, sp, start)
-
-    with pytest.MonkeyPatch.context() as mp:
-        mp.setattr(bl, "_try", counting_try)
+    with counting_trials() as tried:
         assert bl.complying_baseline(plant, base) is None
     assert len(tried) <= 6, tried

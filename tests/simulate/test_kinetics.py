@@ -9,38 +9,24 @@ from airtaper.layout.types import ASM1_COMPONENTS
 from airtaper.process.asm1 import ASM1_20C, BSM1_15C
 from airtaper.simulate.kinetics import process_rates
 
-POINT = dict(SI=30.0, SS=5.0, XI=1000.0, XS=60.0, XBH=2400.0, XBA=140.0, XP=400.0, SO=1.5, SNO=6.0,
-             SNH=2.5, SND=0.8, XND=4.0, SALK=5.0)
-
-
-def _by_hand(c, p):
-    # Henze et al. (1987), Table 6.1: the eight process rates of ASM1
-    mh = c["SS"] / (p.K_S + c["SS"])
-    so_h = c["SO"] / (p.K_OH + c["SO"])
-    ih = p.K_OH / (p.K_OH + c["SO"])
-    no = c["SNO"] / (p.K_NO + c["SNO"])
-    ratio = c["XS"] / c["XBH"]
-    hyd = p.k_h * ratio / (p.K_X + ratio) * (so_h + p.eta_h * ih * no) * c["XBH"]
-    return [p.mu_H * mh * so_h * c["XBH"], p.mu_H * mh * ih * no * p.eta_g * c["XBH"],
-            p.mu_A * c["SNH"] / (p.K_NH + c["SNH"]) * c["SO"] / (p.K_OA + c["SO"]) * c["XBA"],
-            p.b_H * c["XBH"], p.b_A * c["XBA"], p.k_a * c["SND"] * c["XBH"], hyd, hyd * c["XND"] / c["XS"]]
-
 
 @pytest.mark.parametrize("params", [ASM1_20C, BSM1_15C])
-def test_rates_match_the_asm1_equations_for_one_state_and_for_many(params):
+def test_rates_match_the_asm1_equations_for_one_state_and_for_many(params, asm1_by_hand):
+    POINT, by_hand = asm1_by_hand  # Henze et al. (1987), Table 6.1 (tests/conftest.py)
     rng = np.random.default_rng(3)
     states = [dict(POINT)] + [{k: v * rng.uniform(0.2, 3.0) for k, v in POINT.items()} for _ in range(5)]
     C = np.array([[s[k] for k in ASM1_COMPONENTS] for s in states]).T  # (13, states)
     many = process_rates(C, params)
     for j, s in enumerate(states):
         one = process_rates(C[:, j], params)  # (13,): one volume
-        for g, g_many, ref in zip(one, many[:, j], _by_hand(s, params)):
+        for g, g_many, ref in zip(one, many[:, j], by_hand(s, params)):
             assert math.isclose(g, ref, rel_tol=1e-12) and g == g_many
     # (13, zones, columns), as the right-hand side calls it
     np.testing.assert_array_equal(process_rates(C.reshape(13, 2, 3), params), many.reshape(8, 2, 3))
 
 
-def test_negative_dissolved_concentrations_enter_clipped_and_no_biomass_stays_finite():
+def test_negative_dissolved_concentrations_enter_clipped_and_no_biomass_stays_finite(asm1_by_hand):
+    POINT = asm1_by_hand[0]
     c = np.array([dict(POINT, SS=-0.1, SO=-0.01, SNO=-0.2, SNH=-0.05)[k] for k in ASM1_COMPONENTS])
     r = process_rates(c, ASM1_20C)
     assert r[0] == 0.0 and r[1] == 0.0 and r[2] == 0.0  # no substrate, no growth
