@@ -356,12 +356,9 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
                    "of the solve budget left)")
             if not ver["verified"] and kept is not None:  # the last verified schedule, not the last one
                 snap, vals, ver, day, study.result = kept
-                for v, value in snap:
-                    v.set_value(value, skip_validation=True)
+                _restore(snap)
                 values = [dict(v) for v in vals]
-                for prm, v in zip(params, values):
-                    for k, x in v.items():
-                        prm[k] = x
+                _set_backoffs(params, values)
             break
         if coarse and now > LARGE_mg_L:
             why = f"an excursion of {now:.3f} mg/L (more than {LARGE_mg_L:g}: the step, not the points)"
@@ -389,8 +386,7 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
                  for excursions, column in zip(found, ("do_min", "do_max"))]
         for attempt, (share, both) in enumerate(_attempts(bool(steps[0]) and bool(steps[1]))):
             if attempt:  # the re-solve failed: less back-off, from the last schedule that solved
-                for v, value in snapshot:
-                    v.set_value(value, skip_validation=True)
+                _restore(snapshot)
                 if progress is not None:
                     progress.phase(f"back-off round {rounds}: the re-solve failed; {share:g} of its back-offs"
                                    + ("" if both else ", the DO minimum's alone"))
@@ -399,9 +395,7 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
                 for k, s in step.items():
                     vals[k] += share * (GAIN * s + CUSHION_mg_L)
             _keep_band_open(study.plant, values)
-            for prm, vals in zip(params, values):
-                for k, v in vals.items():
-                    prm[k] = v
+            _set_backoffs(params, values)
             if relax is not None and not relaxed:
                 # before the first re-solve, not after it fails: a re-solve against the fixed machine set
                 # wandered for 170+ iterations (infeasibility 2e-2) on the 6-period demo before failing
@@ -416,12 +410,9 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
             if study.budget.exhausted:
                 break
         if r is None or not r.ok:  # this round undone alone: the back-offs and schedule of the rounds before it
-            for prm, vals in zip(params, previous):
-                for k, v in vals.items():
-                    prm[k] = v
+            _set_backoffs(params, previous)
             values = previous
-            for v, value in snapshot:
-                v.set_value(value, skip_validation=True)
+            _restore(snapshot)
             ver, day, study.result = last
             failed = True
             why = why or "a back-off re-solve failed"
@@ -457,6 +448,19 @@ def hold_do(study, verify, progress=None, relax=None, coarse: bool = False) -> d
             "backed_off_points": sum(v > 0.0 for vals in values for v in vals.values()),
             "largest_backoff_mg_L": float(max([*values[0].values(), *values[1].values()], default=0.0)),
             "energy_before_kWh_per_day": energy0, "seconds": time.perf_counter() - t0}
+
+
+def _set_backoffs(params, values) -> None:
+    """Write the back-offs (per Param: point -> mg/L) into the model's back-off Params."""
+    for prm, vals in zip(params, values):
+        for k, v in vals.items():
+            prm[k] = v
+
+
+def _restore(snapshot) -> None:
+    """Put every variable back to its value in ``snapshot`` ((variable, value) pairs): a schedule kept before."""
+    for v, value in snapshot:
+        v.set_value(value, skip_validation=True)
 
 
 def _attempts(both: bool) -> list[tuple[float, bool]]:
